@@ -1,0 +1,483 @@
+//! The command line: argument definitions (clap) and one function per
+//! command. Commands turn library results into bytes for stdout; they hold
+//! no statistics or scheduling logic of their own.
+
+use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use serde::Serialize;
+use std::io::Write;
+use std::process::ExitCode;
+
+/// Exit code for input the user can fix (bad flags, invalid files).
+pub const EXIT_INVALID: u8 = 2;
+/// Exit code for any other failure.
+pub const EXIT_FAILURE: u8 = 1;
+
+#[derive(Parser, Debug)]
+#[command(
+    name = "sluice",
+    version,
+    about = "Plan a queue of A/B tests onto finite traffic",
+    long_about = "Plan a queue of A/B tests onto finite traffic.\n\n\
+        sluice sizes each test with the published statistics and lays out a \
+        calendar: the share of traffic each test gets, when it starts, when \
+        its result arrives, and which tests do not fit and why. Plans are \
+        estimates: they assume independent randomisation units, a fixed \
+        horizon and the traffic forecast you give."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Size one test: units per arm, power, and (with --daily) days to run
+    Size(SizeArgs),
+}
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+pub enum TextOrJson {
+    Text,
+    Json,
+}
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+pub enum MethodArg {
+    /// rates: pooled variance under H0 (Fleiss), the default for rates
+    Pooled,
+    /// rates: unpooled normal approximation
+    Unpooled,
+    /// rates: Fleiss with continuity correction
+    Corrected,
+    /// rates: arcsine transform (Cohen's h)
+    Arcsine,
+    /// means: two-sample t-test (noncentral t), the default for means
+    T,
+    /// means: normal approximation
+    Z,
+}
+
+impl From<MethodArg> for Method {
+    fn from(m: MethodArg) -> Method {
+        match m {
+            MethodArg::Pooled => Method::Pooled,
+            MethodArg::Unpooled => Method::Unpooled,
+            MethodArg::Corrected => Method::Corrected,
+            MethodArg::Arcsine => Method::Arcsine,
+            MethodArg::T => Method::T,
+            MethodArg::Z => Method::Z,
+        }
+    }
+}
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+pub enum CorrectionArg {
+    /// alpha / k for k treatment arms
+    Bonferroni,
+    /// 1 - (1 - alpha)^(1/k)
+    Sidak,
+    /// no correction
+    None,
+}
+
+impl From<CorrectionArg> for Correction {
+    fn from(c: CorrectionArg) -> Correction {
+        match c {
+            CorrectionArg::Bonferroni => Correction::Bonferroni,
+            CorrectionArg::Sidak => Correction::Sidak,
+            CorrectionArg::None => Correction::None,
+        }
+    }
+}
+
+#[derive(Args, Debug)]
+#[command(after_help = "Examples:\n  \
+    sluice size --baseline 0.04 --mde 0.10\n  \
+    sluice size --baseline 0.04 --mde-abs 0.005 --arms 3 --daily 20000 --share 0.5\n  \
+    sluice size --mean 38.5 --sd 61 --mde 0.03 --rho 0.4 --format json")]
+pub struct SizeArgs {
+    /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
+    #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
+    pub baseline: Option<f64>,
+    /// Baseline mean of a mean metric (needs --sd)
+    #[arg(long, value_name = "M", requires = "sd", help_heading = "Metric")]
+    pub mean: Option<f64>,
+    /// Standard deviation per unit of a mean metric (needs --mean)
+    #[arg(long, value_name = "S", requires = "mean", help_heading = "Metric")]
+    pub sd: Option<f64>,
+
+    /// Minimum detectable effect as a relative lift: 0.05 = 5% above baseline
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with = "mde_abs",
+        help_heading = "Effect"
+    )]
+    pub mde: Option<f64>,
+    /// Minimum detectable effect as an absolute difference (0.005 = half a point)
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        help_heading = "Effect"
+    )]
+    pub mde_abs: Option<f64>,
+
+    /// Type I error rate of the whole test
+    #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
+    pub alpha: f64,
+    /// Power of each treatment-versus-control comparison
+    #[arg(long, default_value_t = 0.8, help_heading = "Test settings")]
+    pub power: f64,
+    /// Test one direction only (default: two-sided)
+    #[arg(long, help_heading = "Test settings")]
+    pub one_sided: bool,
+    /// Number of arms, control included
+    #[arg(
+        long,
+        default_value_t = 2,
+        value_name = "K",
+        help_heading = "Test settings"
+    )]
+    pub arms: u32,
+    /// Treatment units per control unit (1 = even split)
+    #[arg(
+        long,
+        default_value_t = 1.0,
+        value_name = "R",
+        help_heading = "Test settings"
+    )]
+    pub ratio: f64,
+    /// Sample-size method [default: pooled for rates, t for means]
+    #[arg(long, value_enum, help_heading = "Test settings")]
+    pub method: Option<MethodArg>,
+    /// Multiple-comparison correction when there are several treatment arms
+    #[arg(long, value_enum, default_value_t = CorrectionArg::Bonferroni, help_heading = "Test settings")]
+    pub correction: CorrectionArg,
+    /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
+    #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
+    pub rho: f64,
+
+    /// Eligible units per day, to compute the days the test needs
+    #[arg(long, value_name = "N", help_heading = "Duration")]
+    pub daily: Option<f64>,
+    /// Share of the daily units that enter the test
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 1.0,
+        requires = "daily",
+        help_heading = "Duration"
+    )]
+    pub share: f64,
+    /// Shortest run in days
+    #[arg(
+        long,
+        value_name = "D",
+        default_value_t = 14,
+        help_heading = "Duration"
+    )]
+    pub min_days: u32,
+    /// Do not round the run up to whole weeks
+    #[arg(long, help_heading = "Duration")]
+    pub no_whole_weeks: bool,
+
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
+    pub format: TextOrJson,
+}
+
+/// A failure that ends a command, with the exit code it deserves.
+#[derive(Debug)]
+pub struct Failure {
+    pub code: u8,
+    pub message: String,
+}
+
+impl Failure {
+    pub fn invalid(message: impl Into<String>) -> Failure {
+        Failure {
+            code: EXIT_INVALID,
+            message: message.into(),
+        }
+    }
+}
+
+/// Entry point of the binary.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = if e.use_stderr() { EXIT_INVALID } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match run(cli) {
+        Ok(bytes) => write_stdout(&bytes),
+        Err(f) => {
+            eprintln!("error: {}", f.message);
+            ExitCode::from(f.code)
+        }
+    }
+}
+
+/// Writes the output; a closed pipe (e.g. `| head`) is not an error.
+fn write_stdout(bytes: &[u8]) -> ExitCode {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(bytes).and_then(|_| out.flush()) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: cannot write the output: {e}");
+            ExitCode::from(EXIT_FAILURE)
+        }
+    }
+}
+
+/// Runs a parsed command and returns the bytes for stdout.
+pub fn run(cli: Cli) -> Result<Vec<u8>, Failure> {
+    match cli.command {
+        Command::Size(args) => size(&args),
+    }
+}
+
+/// The JSON object `sluice size --format json` prints.
+#[derive(Serialize, Debug)]
+pub struct SizeReport {
+    pub metric: Metric,
+    pub effect: Effect,
+    /// The treatment arm's rate or mean implied by the effect.
+    pub treatment_value: f64,
+    pub method: Method,
+    pub alpha: f64,
+    pub comparison_alpha: f64,
+    pub power: f64,
+    pub sides: Sides,
+    pub arms: u32,
+    pub ratio: f64,
+    pub correction: Correction,
+    pub rho: f64,
+    pub control: u64,
+    pub treatment: u64,
+    pub control_exact: f64,
+    pub treatment_exact: f64,
+    pub total: u64,
+    /// Power at the rounded sizes.
+    pub achieved_power: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub daily: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub share: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub days: Option<u64>,
+}
+
+fn design_from_args(a: &SizeArgs) -> Result<Design, Failure> {
+    let metric = match (a.baseline, a.mean, a.sd) {
+        (Some(p), None, None) => Metric::Rate { baseline: p },
+        (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
+        _ => {
+            return Err(Failure::invalid(
+                "give the metric: `--baseline P` for a rate, or `--mean M --sd S` for a mean",
+            ))
+        }
+    };
+    let effect = match (a.mde, a.mde_abs) {
+        (Some(x), None) => Effect::Relative(x),
+        (None, Some(x)) => Effect::Absolute(x),
+        _ => {
+            return Err(Failure::invalid(
+                "give the effect: `--mde X` for a relative lift (0.05 = 5%), or `--mde-abs X` for an absolute difference",
+            ))
+        }
+    };
+    let method = a
+        .method
+        .map(Method::from)
+        .unwrap_or_else(|| Method::default_for(&metric));
+    let design = Design {
+        metric,
+        effect,
+        alpha: a.alpha,
+        power: a.power,
+        sides: if a.one_sided { Sides::One } else { Sides::Two },
+        arms: a.arms,
+        ratio: a.ratio,
+        method,
+        correction: a.correction.into(),
+        rho: a.rho,
+    };
+    design
+        .validate()
+        .map_err(|e| Failure::invalid(flagify(e.to_string())))?;
+    Ok(design)
+}
+
+/// Library messages name fields as in a portfolio (`mde_abs`); on the
+/// command line they are flags (`--mde-abs`).
+fn flagify(message: String) -> String {
+    let mut out = message;
+    for field in [
+        "alpha", "power", "arms", "ratio", "rho", "mde_abs", "mde", "baseline", "mean", "sd",
+        "share", "daily",
+    ] {
+        out = out.replace(
+            &format!("`{field}`"),
+            &format!("`--{}`", field.replace('_', "-")),
+        );
+    }
+    out
+}
+
+/// `sluice size`.
+pub fn size(a: &SizeArgs) -> Result<Vec<u8>, Failure> {
+    let design = design_from_args(a)?;
+    let n = sizing::sample_size(&design).map_err(|e| Failure::invalid(flagify(e.to_string())))?;
+    let achieved = sizing::achieved_power(&design, n.control as f64)
+        .map_err(|e| Failure::invalid(e.to_string()))?;
+    let days = match a.daily {
+        Some(daily) => Some(
+            sizing::days_needed(n.total, daily, a.share, a.min_days, !a.no_whole_weeks)
+                .map_err(|e| Failure::invalid(flagify(e.to_string())))?,
+        ),
+        None => None,
+    };
+    let report = SizeReport {
+        metric: design.metric,
+        effect: design.effect,
+        treatment_value: design.treatment_value(),
+        method: design.method,
+        alpha: design.alpha,
+        comparison_alpha: n.comparison_alpha,
+        power: design.power,
+        sides: design.sides,
+        arms: design.arms,
+        ratio: design.ratio,
+        correction: design.correction,
+        rho: design.rho,
+        control: n.control,
+        treatment: n.treatment,
+        control_exact: n.control_exact,
+        treatment_exact: n.treatment_exact,
+        total: n.total,
+        achieved_power: achieved,
+        daily: a.daily,
+        share: a.daily.map(|_| a.share),
+        days,
+    };
+    match a.format {
+        TextOrJson::Json => {
+            let mut s = serde_json::to_string_pretty(&report)
+                .map_err(|e| Failure::invalid(e.to_string()))?;
+            s.push('\n');
+            Ok(s.into_bytes())
+        }
+        TextOrJson::Text => Ok(size_text(&report, a).into_bytes()),
+    }
+}
+
+fn fmt_units(n: u64) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, c) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
+    use std::fmt::Write as _;
+    let mut s = String::new();
+    let metric = match r.metric {
+        Metric::Rate { baseline } => format!(
+            "rate, baseline {:.4}% -> treatment {:.4}%",
+            baseline * 100.0,
+            r.treatment_value * 100.0
+        ),
+        Metric::Mean { mean, sd } => format!(
+            "mean, baseline {mean} (sd {sd}) -> treatment {:.6}",
+            r.treatment_value
+        ),
+    };
+    let effect = match r.effect {
+        Effect::Relative(x) => format!("{:+}% relative", x * 100.0),
+        Effect::Absolute(x) => format!("{x:+} absolute"),
+    };
+    let _ = writeln!(s, "metric      {metric}");
+    let _ = writeln!(s, "effect      {effect}");
+    let sides = match r.sides {
+        Sides::One => "one-sided",
+        Sides::Two => "two-sided",
+    };
+    let _ = write!(s, "test        alpha {} {sides}", r.alpha);
+    if r.arms > 2 {
+        let _ = write!(
+            s,
+            " ({} per comparison, {})",
+            trim_float(r.comparison_alpha),
+            r.correction.name()
+        );
+    }
+    let _ = writeln!(s, ", power {}, method {}", r.power, r.method);
+    if r.rho > 0.0 {
+        let _ = writeln!(
+            s,
+            "covariate   rho {} (size x {:.4})",
+            r.rho,
+            1.0 - r.rho * r.rho
+        );
+    }
+    let _ = writeln!(s);
+    let _ = writeln!(
+        s,
+        "control     {:>12} units  ({:.2} before rounding)",
+        fmt_units(r.control),
+        r.control_exact
+    );
+    let label = if r.arms > 2 {
+        format!("treatment x{}", r.arms - 1)
+    } else {
+        "treatment".to_string()
+    };
+    let _ = writeln!(
+        s,
+        "{label:<11} {:>12} units  ({:.2} before rounding, ratio {})",
+        fmt_units(r.treatment),
+        r.treatment_exact,
+        r.ratio
+    );
+    let _ = writeln!(
+        s,
+        "total       {:>12} units over {} arms",
+        fmt_units(r.total),
+        r.arms
+    );
+    let _ = writeln!(s, "power       {:.4} at these sizes", r.achieved_power);
+    if let (Some(days), Some(daily)) = (r.days, r.daily) {
+        let weeks = if a.no_whole_weeks {
+            String::new()
+        } else {
+            format!(" ({} weeks)", days / 7)
+        };
+        let _ = writeln!(
+            s,
+            "duration    {days} days{weeks} at {} units a day x {}% share (minimum {} days)",
+            fmt_units(daily.round() as u64),
+            trim_float(a.share * 100.0),
+            a.min_days
+        );
+    }
+    s
+}
+
+fn trim_float(x: f64) -> String {
+    let s = format!("{x:.6}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    s.to_string()
+}

@@ -1,0 +1,228 @@
+//! Forecast: a pool's eligible units on each calendar day, and the
+//! day-by-day run length of a test that takes a constant share of them.
+//!
+//! Pure functions of a [`Pool`] and dates. The rule for a day: the pool's
+//! daily level times the weekday multiplier (Monday first), then the last
+//! adjustment in file order that covers the day, if any: a multiplier scales
+//! that value, a level replaces it. Every later computation (check, plan,
+//! re-plan, renderers) reads traffic through this module.
+
+use crate::portfolio::{Change, Pool};
+use chrono::{Datelike, Duration, NaiveDate};
+
+/// Eligible units of `pool` on `date`.
+pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
+    let f = &pool.forecast;
+    let base = f.daily * f.weekday[date.weekday().num_days_from_monday() as usize];
+    match f
+        .adjustments
+        .iter()
+        .rev()
+        .find(|a| a.from <= date && date <= a.to)
+    {
+        Some(a) => match a.change {
+            Change::Multiply(m) => base * m,
+            Change::Level(level) => level,
+        },
+        None => base,
+    }
+}
+
+/// A pool's forecast over a span of days, with running totals, for fast
+/// run-length queries.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Series {
+    /// The first day of the span.
+    pub start: NaiveDate,
+    /// Units per day; `units[i]` is for `start + i`.
+    pub units: Vec<f64>,
+    /// `cumulative[i]` = sum of `units[..i]`; one longer than `units`.
+    pub cumulative: Vec<f64>,
+}
+
+impl Series {
+    /// The forecast of `pool` from `start` to `end`, inclusive.
+    pub fn new(pool: &Pool, start: NaiveDate, end: NaiveDate) -> Series {
+        let n = ((end - start).num_days() + 1).max(0) as usize;
+        let units: Vec<f64> = (0..n)
+            .map(|i| units_on(pool, start + Duration::days(i as i64)))
+            .collect();
+        let mut cumulative = Vec::with_capacity(n + 1);
+        let mut total = 0.0;
+        cumulative.push(0.0);
+        for u in &units {
+            total += u;
+            cumulative.push(total);
+        }
+        Series {
+            start,
+            units,
+            cumulative,
+        }
+    }
+
+    /// Number of days covered.
+    pub fn len(&self) -> usize {
+        self.units.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.units.is_empty()
+    }
+
+    /// Units from day index `from` to `to`, inclusive.
+    pub fn total(&self, from: usize, to: usize) -> f64 {
+        if from > to || from >= self.units.len() {
+            return 0.0;
+        }
+        let to = to.min(self.units.len() - 1);
+        self.cumulative[to + 1] - self.cumulative[from]
+    }
+
+    /// Last day index of a run starting at day index `start` with a constant
+    /// `share`, once it has collected `need` units: never shorter than
+    /// `min_days`, and a whole number of weeks when `whole_weeks`. `None`
+    /// when the span ends first.
+    pub fn run_end(
+        &self,
+        start: usize,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> Option<usize> {
+        if start >= self.units.len() || share <= 0.0 {
+            return None;
+        }
+        // First index e with share x (cum[e + 1] - cum[start]) >= need.
+        let base = self.cumulative[start];
+        let target = need / share + base;
+        // Tolerate rounding noise in the running totals.
+        let target = target - 1e-9 * target.abs().max(1.0);
+        let tail = &self.cumulative[start + 1..];
+        let k = tail.partition_point(|&c| c < target);
+        if k >= tail.len() {
+            return None;
+        }
+        let days = crate::sizing::round_days(k as u64 + 1, min_days, whole_weeks) as usize;
+        let end = start + days - 1;
+        (end < self.units.len()).then_some(end)
+    }
+}
+
+/// Last day of a run of `pool` that starts on `start` at a constant `share`
+/// and needs `need` units in total, searching until `limit` inclusive.
+pub fn run_end(
+    pool: &Pool,
+    start: NaiveDate,
+    share: f64,
+    need: f64,
+    min_days: u32,
+    whole_weeks: bool,
+    limit: NaiveDate,
+) -> Option<NaiveDate> {
+    let series = Series::new(pool, start, limit);
+    series
+        .run_end(0, share, need, min_days, whole_weeks)
+        .map(|i| start + Duration::days(i as i64))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::portfolio::{Adjustment, Forecast, Sharing};
+
+    fn d(s: &str) -> NaiveDate {
+        NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
+    }
+
+    fn pool(daily: f64, weekday: [f64; 7], adjustments: Vec<Adjustment>) -> Pool {
+        Pool {
+            id: "p".into(),
+            label: "P".into(),
+            forecast: Forecast {
+                daily,
+                weekday,
+                adjustments,
+            },
+            sharing: Sharing::Split,
+            max_concurrent: 3,
+        }
+    }
+
+    #[test]
+    fn weekday_pattern_is_monday_first() {
+        let p = pool(1000.0, [1.0, 1.1, 1.2, 1.3, 1.4, 0.5, 0.6], vec![]);
+        // 2027-01-04 is a Monday; 2027-01-09 a Saturday; 2027-01-10 a Sunday.
+        assert_eq!(units_on(&p, d("2027-01-04")), 1000.0);
+        assert!((units_on(&p, d("2027-01-09")) - 500.0).abs() < 1e-9);
+        assert!((units_on(&p, d("2027-01-10")) - 600.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn later_adjustments_win_where_they_overlap() {
+        let adj = vec![
+            Adjustment {
+                from: d("2026-12-20"),
+                to: d("2027-01-03"),
+                change: Change::Multiply(0.5),
+                note: "holiday dip".into(),
+            },
+            Adjustment {
+                from: d("2026-12-31"),
+                to: d("2027-01-01"),
+                change: Change::Level(100.0),
+                note: "new year".into(),
+            },
+        ];
+        let p = pool(1000.0, [1.0; 7], adj);
+        assert_eq!(units_on(&p, d("2026-12-19")), 1000.0);
+        assert_eq!(units_on(&p, d("2026-12-30")), 500.0);
+        assert_eq!(units_on(&p, d("2026-12-31")), 100.0);
+        assert_eq!(units_on(&p, d("2027-01-01")), 100.0);
+        assert_eq!(units_on(&p, d("2027-01-02")), 500.0);
+        assert_eq!(units_on(&p, d("2027-01-04")), 1000.0);
+    }
+
+    #[test]
+    fn series_crosses_a_year_end_and_a_leap_day() {
+        let p = pool(10.0, [1.0, 1.0, 1.0, 1.0, 1.0, 2.0, 2.0], vec![]);
+        let s = Series::new(&p, d("2027-12-30"), d("2028-03-01"));
+        // 2027-12-30 .. 2028-03-01 is 2 + 31 + 29 + 1 = 63 days (2028 is a leap year).
+        assert_eq!(s.len(), 63);
+        let feb29 = (d("2028-02-29") - d("2027-12-30")).num_days() as usize;
+        // 2028-02-29 is a Tuesday.
+        assert_eq!(s.units[feb29], 10.0);
+        // 63 days are nine whole weeks of 5 x 10 + 2 x 20 units.
+        assert!((s.total(0, 62) - 9.0 * 90.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn run_end_counts_day_by_day_with_minimum_and_whole_weeks() {
+        let p = pool(100.0, [1.0; 7], vec![]);
+        let s = Series::new(&p, d("2027-01-04"), d("2027-03-31"));
+        // 1,000 units at 50%: 50 a day, 20 days; whole weeks make it 21.
+        assert_eq!(s.run_end(0, 0.5, 1000.0, 14, true), Some(20));
+        assert_eq!(s.run_end(0, 0.5, 1000.0, 14, false), Some(19));
+        // A small need still runs the minimum.
+        assert_eq!(s.run_end(0, 1.0, 10.0, 14, false), Some(13));
+        // Too big for the span.
+        assert_eq!(s.run_end(0, 0.1, 1e6, 14, true), None);
+        // Exactly reaching the need on a day ends on that day.
+        assert_eq!(s.run_end(3, 1.0, 1500.0, 1, false), Some(17));
+    }
+
+    #[test]
+    fn run_end_follows_a_dip() {
+        // Zero traffic for a week in the middle stretches the run by a week.
+        let adj = vec![Adjustment {
+            from: d("2027-01-11"),
+            to: d("2027-01-17"),
+            change: Change::Level(0.0),
+            note: "outage".into(),
+        }];
+        let p = pool(100.0, [1.0; 7], adj);
+        let end = run_end(&p, d("2027-01-04"), 1.0, 1400.0, 1, false, d("2027-06-30"));
+        assert_eq!(end, Some(d("2027-01-24")));
+    }
+}

@@ -1,0 +1,13 @@
+//! sluice: plans a queue of A/B tests onto finite traffic.
+//!
+//! Data flows one way (see DEVELOPERS.md):
+//! `portfolio` (YAML to a validated model) -> `sizing` (statistics) ->
+//! `forecast` (pool traffic per day) -> `schedule` (options, LP, greedy,
+//! verifier) -> `plan` (the result) -> `render` (one module per format).
+//! The binary in `main.rs` is a thin shell over [`cli`].
+
+pub mod cli;
+pub mod forecast;
+pub mod plan;
+pub mod portfolio;
+pub mod sizing;

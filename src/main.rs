@@ -1,0 +1,7 @@
+//! The `sluice` binary: parses arguments and hands over to the library.
+
+use std::process::ExitCode;
+
+fn main() -> ExitCode {
+    sluice::cli::main()
+}

@@ -1,0 +1,117 @@
+//! The plan: the one result every renderer reads.
+//!
+//! The scheduler fills a [`Plan`]; renderers (text, JSON, CSV, iCalendar,
+//! HTML, Markdown) only format it and never compute schedule facts of their
+//! own. Field order is the JSON key order; `docs/plan-json.md` documents it.
+
+use chrono::NaiveDate;
+use serde::{Deserialize, Serialize};
+
+/// The planning window, both ends inclusive.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub struct PlanWindow {
+    pub start: NaiveDate,
+    pub end: NaiveDate,
+}
+
+/// How the optimiser did.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SolverSummary {
+    /// The LP/MILP backend, e.g. `microlp` or `highs`.
+    pub backend: String,
+    /// `optimal` (proved), `feasible` (a plan, gap open), `greedy` (fallback).
+    pub status: String,
+    /// Wall-clock seconds spent planning.
+    pub seconds: f64,
+    /// Objective value of the plan.
+    pub value: f64,
+    /// Best upper bound on any plan's value (the LP relaxation or better).
+    pub bound: f64,
+    /// (bound - value) / bound; 0 when proved optimal.
+    pub gap: f64,
+}
+
+/// Whether an experiment got a place in the calendar.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Status {
+    Scheduled,
+    Unscheduled,
+}
+
+/// One experiment's outcome.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlannedExperiment {
+    pub id: String,
+    pub title: String,
+    pub owner: String,
+    /// The pool's id.
+    pub pool: String,
+    pub priority: f64,
+    pub status: Status,
+    /// First day of the run (scheduled only).
+    pub start: Option<NaiveDate>,
+    /// Last day of data (scheduled only); the result is due the day after.
+    pub end: Option<NaiveDate>,
+    /// Constant share of the pool, in (0, 1] (scheduled only).
+    pub share: Option<f64>,
+    /// Days from start to end inclusive (scheduled only).
+    pub days: Option<u32>,
+    /// Units over all arms the test needs.
+    pub units_needed: u64,
+    /// Units the forecast delivers to it from start to end (scheduled only).
+    pub units_expected: Option<f64>,
+    /// Why it is not scheduled, in words a planner can act on.
+    pub reason: Option<String>,
+}
+
+/// One day of one pool.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PoolDay {
+    pub date: NaiveDate,
+    /// Forecast eligible units.
+    pub forecast: f64,
+    /// Sum of the shares of the tests running (may exceed 1 on overlap pools).
+    pub share_used: f64,
+    /// Number of tests running.
+    pub running: u32,
+}
+
+/// One pool over the window.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PoolPlan {
+    pub id: String,
+    pub label: String,
+    /// `split` or `overlap`.
+    pub sharing: String,
+    pub max_concurrent: u32,
+    pub days: Vec<PoolDay>,
+}
+
+/// A blackout span, as the renderers show it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlanBlackout {
+    pub from: NaiveDate,
+    pub to: NaiveDate,
+    /// `no_starts` or `no_running`.
+    pub kind: String,
+    pub note: String,
+    /// Pool ids; empty for every pool.
+    pub pools: Vec<String>,
+}
+
+/// The whole plan.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Plan {
+    /// The portfolio's name.
+    pub portfolio: String,
+    pub window: PlanWindow,
+    pub solver: SolverSummary,
+    /// Value of the greedy baseline on the same portfolio.
+    pub greedy_value: f64,
+    /// In portfolio order.
+    pub experiments: Vec<PlannedExperiment>,
+    /// In portfolio order.
+    pub pools: Vec<PoolPlan>,
+    pub blackouts: Vec<PlanBlackout>,
+}

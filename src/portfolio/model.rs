@@ -1,0 +1,230 @@
+//! The validated portfolio: what every later stage reads.
+//!
+//! Nothing here comes straight from YAML; the loader (`portfolio::load`)
+//! builds these values only after every check has passed, so code that
+//! holds a [`Portfolio`] may rely on the invariants documented on each
+//! field (ids resolved to indices, dates inside the window, numbers in
+//! range, the `after` graph acyclic, every experiment sized).
+
+use crate::sizing::{Correction, Design, Method, SampleSize, Sides};
+use chrono::{NaiveDate, Weekday};
+use serde::Serialize;
+
+/// The planning window, both ends inclusive; `start <= end`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Window {
+    pub start: NaiveDate,
+    pub end: NaiveDate,
+}
+
+impl Window {
+    /// Number of calendar days in the window.
+    pub fn days(&self) -> usize {
+        ((self.end - self.start).num_days() + 1).max(0) as usize
+    }
+
+    /// Whether `date` lies inside the window.
+    pub fn contains(&self, date: NaiveDate) -> bool {
+        self.start <= date && date <= self.end
+    }
+
+    /// Index of `date` counted from the window's first day (may be negative
+    /// or past the end for dates outside).
+    pub fn offset(&self, date: NaiveDate) -> i64 {
+        (date - self.start).num_days()
+    }
+
+    /// The date `offset` days after the window's first day.
+    pub fn date(&self, offset: i64) -> NaiveDate {
+        self.start + chrono::Duration::days(offset)
+    }
+}
+
+/// Portfolio-wide defaults each experiment may override.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Defaults {
+    pub alpha: f64,
+    pub power: f64,
+    pub sides: Sides,
+    /// Method for rate metrics (one of pooled, unpooled, corrected, arcsine).
+    pub rate_method: Method,
+    /// Method for mean metrics (t or z).
+    pub mean_method: Method,
+    pub correction: Correction,
+    /// Shortest run in days (default 14).
+    pub min_days: u32,
+    /// Round runs up to whole weeks (default true).
+    pub whole_weeks: bool,
+}
+
+/// Where tests may start.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum StartGrid {
+    /// Only on `Planning::start_weekday` (the default when whole weeks are on).
+    Weekly,
+    /// Any day.
+    Daily,
+}
+
+/// Settings of the optimiser.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Planning {
+    pub grid: StartGrid,
+    /// The weekday tests start on with the weekly grid (default Monday).
+    #[serde(serialize_with = "serialize_weekday")]
+    pub start_weekday: Weekday,
+    /// How much of its priority a test loses when its result arrives on the
+    /// window's last day, in [0, 1); value = priority x (1 - weight x t),
+    /// with t = (result day - window start) / (window days - 1). Default 0.5.
+    pub lateness_weight: f64,
+    /// Whether a re-plan may change the share of a running test.
+    pub reshare_running: bool,
+}
+
+fn serialize_weekday<S: serde::Serializer>(w: &Weekday, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(&w.to_string())
+}
+
+/// How the tests of a pool share its units.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Sharing {
+    /// Disjoint slices: the shares of tests running on a day add up to at most 1.
+    Split,
+    /// Independent randomisation: each test may see every unit.
+    Overlap,
+}
+
+/// A dated change to a pool's forecast.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Adjustment {
+    /// First and last day it applies to, inclusive.
+    pub from: NaiveDate,
+    pub to: NaiveDate,
+    pub change: Change,
+    pub note: String,
+}
+
+/// What an adjustment does to the days it covers.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Change {
+    /// Multiply the day's forecast (after the weekday pattern); >= 0.
+    Multiply(f64),
+    /// Replace the day's forecast with this many units; >= 0.
+    Level(f64),
+}
+
+/// A pool's forecast of eligible units per day.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Forecast {
+    /// Units on an average day; >= 0.
+    pub daily: f64,
+    /// Multipliers Monday first; all 1.0 when none was given.
+    pub weekday: [f64; 7],
+    /// In file order; where several cover a day, the last one wins.
+    pub adjustments: Vec<Adjustment>,
+}
+
+/// A page, surface or audience whose traffic tests share.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Pool {
+    pub id: String,
+    pub label: String,
+    pub forecast: Forecast,
+    pub sharing: Sharing,
+    /// Most tests running at once; >= 1.
+    pub max_concurrent: u32,
+}
+
+/// `after`: this experiment starts only once `experiment` has ended, plus a gap.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Prerequisite {
+    /// Index into `Portfolio::experiments`.
+    pub experiment: usize,
+    /// Days left free for analysis: this one starts no earlier than
+    /// `predecessor end + 1 + gap_days` (0: the day after it ends).
+    pub gap_days: u32,
+}
+
+/// One queued A/B test, sized.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Experiment {
+    pub id: String,
+    pub title: String,
+    pub owner: String,
+    /// Index into `Portfolio::pools`.
+    pub pool: usize,
+    /// The statistics with defaults applied.
+    pub design: Design,
+    /// Units per arm and in total.
+    pub need: SampleSize,
+    /// Positive weight in the objective.
+    pub priority: f64,
+    /// Inside the window when given.
+    pub earliest_start: Option<NaiveDate>,
+    /// The last day its data may run to; inside the window when given.
+    pub deadline: Option<NaiveDate>,
+    /// Largest share of the pool it may take, in (0, 1].
+    pub max_share: f64,
+    pub min_days: u32,
+    pub whole_weeks: bool,
+    pub after: Vec<Prerequisite>,
+    /// Indices of experiments it must never run alongside; symmetric
+    /// (if a lists b, b lists a), sorted and without duplicates.
+    pub not_with: Vec<usize>,
+}
+
+/// What a blackout forbids.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BlackoutKind {
+    /// No test may start on these days (a release freeze).
+    NoStarts,
+    /// No test may be running on these days (unrepresentative traffic).
+    NoRunning,
+}
+
+/// A span of the calendar with a restriction.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Blackout {
+    pub from: NaiveDate,
+    pub to: NaiveDate,
+    pub kind: BlackoutKind,
+    pub note: String,
+    /// Pool indices it applies to; empty means every pool.
+    pub pools: Vec<usize>,
+}
+
+impl Blackout {
+    pub fn covers(&self, date: NaiveDate, pool: usize) -> bool {
+        self.from <= date
+            && date <= self.to
+            && (self.pools.is_empty() || self.pools.contains(&pool))
+    }
+}
+
+/// The whole validated queue.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Portfolio {
+    pub name: String,
+    pub window: Window,
+    pub defaults: Defaults,
+    /// Shares the planner may give a test, ascending, each in (0, 1].
+    pub share_levels: Vec<f64>,
+    pub planning: Planning,
+    pub pools: Vec<Pool>,
+    pub experiments: Vec<Experiment>,
+    pub blackouts: Vec<Blackout>,
+}
+
+impl Portfolio {
+    pub fn pool_index(&self, id: &str) -> Option<usize> {
+        self.pools.iter().position(|p| p.id == id)
+    }
+
+    pub fn experiment_index(&self, id: &str) -> Option<usize> {
+        self.experiments.iter().position(|e| e.id == id)
+    }
+}
