@@ -53,6 +53,8 @@ pub struct PlannedExperiment {
     pub start: Option<NaiveDate>,
     /// Last day of data (scheduled only); the result is due the day after.
     pub end: Option<NaiveDate>,
+    /// The day the result is due: the day after `end` (scheduled only).
+    pub result_date: Option<NaiveDate>,
     /// Constant share of the pool, in (0, 1] (scheduled only).
     pub share: Option<f64>,
     /// Days from start to end inclusive (scheduled only).
@@ -114,4 +116,7 @@ pub struct Plan {
     /// In portfolio order.
     pub pools: Vec<PoolPlan>,
     pub blackouts: Vec<PlanBlackout>,
+    /// The date the plan was made for (`--today`, or the window's start);
+    /// renderers draw it as today's line.
+    pub today: NaiveDate,
 }
