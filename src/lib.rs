@@ -10,4 +10,5 @@ pub mod cli;
 pub mod forecast;
 pub mod plan;
 pub mod portfolio;
+pub mod schedule;
 pub mod sizing;
