@@ -7,6 +7,7 @@
 //! The binary in `main.rs` is a thin shell over [`cli`].
 
 pub mod cli;
+pub mod diff;
 pub mod forecast;
 pub mod plan;
 pub mod portfolio;

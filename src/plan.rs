@@ -35,8 +35,16 @@ pub struct SolverSummary {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Status {
+    /// Has a place in the calendar.
     Scheduled,
+    /// Left out; `reason` says why.
     Unscheduled,
+    /// Re-plans only: started before today and still collecting units.
+    Running,
+    /// Re-plans only: finished before today; it no longer holds traffic.
+    Finished,
+    /// Re-plans only: stopped for good; it no longer holds traffic.
+    Cancelled,
 }
 
 /// One experiment's outcome.
