@@ -122,7 +122,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
                         .to_string()
                 }
                 Sharing::Overlap => format!(
-                    "overlap: each test may see every unit and up to {} run at once, so up to {} can fit",
+                    "overlap: each test may see every unit and up to {} run at once, so a ratio up to {} can fit",
                     pool.max_concurrent, pool.max_concurrent
                 ),
             };

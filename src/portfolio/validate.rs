@@ -147,7 +147,13 @@ impl Ctx<'_> {
         if let Some(i) = defined.iter().position(|d| *d == id) {
             return Some(i);
         }
-        let ranked = diagnostic::closest_first(id, defined);
+        let mut unique: Vec<&str> = Vec::new();
+        for d in defined {
+            if !unique.contains(d) {
+                unique.push(d);
+            }
+        }
+        let ranked = diagnostic::closest_first(id, &unique);
         let shown: Vec<&str> = ranked.iter().take(8).copied().collect();
         let more = if ranked.len() > shown.len() {
             format!(" and {} more", ranked.len() - shown.len())
@@ -1256,8 +1262,10 @@ fn blackouts(
                 dates_ok = false;
             }
         }
-        dates_ok &= inside(cx, &at("from"), &who, from, window).is_some() || from.is_none();
-        dates_ok &= inside(cx, &at("to"), &who, to, window).is_some() || to.is_none();
+        if dates_ok {
+            dates_ok &= inside(cx, &at("from"), &who, from, window).is_some();
+            dates_ok &= inside(cx, &at("to"), &who, to, window).is_some();
+        }
         let kind = match &b.kind {
             None => {
                 cx.missing(
