@@ -74,7 +74,7 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
     }
     let index = PositionIndex::build(body);
     if let Some(ix) = &index {
-        let unknown = unknown_keys(ix, body, file_name);
+        let unknown = unknown_keys(ix, body, file_name, raw::allowed_keys);
         if !unknown.is_empty() {
             return fail(unknown);
         }
@@ -87,11 +87,17 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
         .map_err(|diagnostics| LoadError { diagnostics })
 }
 
-/// Pass 1: keys no raw struct accepts, all of them.
-fn unknown_keys(ix: &PositionIndex, text: &str, file: &str) -> Vec<Diagnostic> {
+/// Pass 1: keys no raw struct accepts, all of them. `allowed_keys` maps a
+/// path shape (`pools[].adjustments[]`) to the keys its struct accepts.
+pub(super) fn unknown_keys(
+    ix: &PositionIndex,
+    text: &str,
+    file: &str,
+    allowed_keys: fn(&str) -> Option<&'static [&'static str]>,
+) -> Vec<Diagnostic> {
     let mut out = Vec::new();
     for (path, keys) in ix.mappings() {
-        let Some(allowed) = raw::allowed_keys(&position::shape(path)) else {
+        let Some(allowed) = allowed_keys(&position::shape(path)) else {
             continue;
         };
         for (key, span) in keys {
@@ -127,7 +133,7 @@ fn unknown_keys(ix: &PositionIndex, text: &str, file: &str) -> Vec<Diagnostic> {
 }
 
 /// Pass 2: a serde_yaml error as a diagnostic.
-fn from_serde(
+pub(super) fn from_serde(
     e: &serde_yaml::Error,
     text: &str,
     file: &str,

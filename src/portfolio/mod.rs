@@ -9,6 +9,7 @@
 mod load;
 pub mod model;
 mod position;
+pub mod progress;
 pub mod raw;
 mod validate;
 
