@@ -420,7 +420,7 @@ impl Checker<'_> {
             None => None,
         };
         let units = match (e.units, &per_arm) {
-            (Some(u), _) if !(u.is_finite() && u >= 0.0 && u < 1e15) => {
+            (Some(u), _) if !(0.0..1e15).contains(&u) => {
                 self.err(
                     &format!("{at}.units"),
                     format!("`{id}`: `units` is {u}; it must be a whole number >= 0"),
