@@ -677,6 +677,7 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                 daily,
                 weekday,
                 adjustments,
+                scales: Vec::new(),
             },
             sharing,
             max_concurrent,
