@@ -278,6 +278,8 @@ mod tests {
             }],
             blackouts: vec![],
             today: d("2027-01-04"),
+            running: vec![],
+            changes: None,
         }
     }
 
