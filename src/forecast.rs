@@ -4,7 +4,8 @@
 //! Pure functions of a [`Pool`] and dates. The rule for a day: the pool's
 //! daily level times the weekday multiplier (Monday first), then the last
 //! adjustment in file order that covers the day, if any: a multiplier scales
-//! that value, a level replaces it. Every later computation (check, plan,
+//! that value, a level replaces it. Last, every what-if scale whose date
+//! has come multiplies the result. Every later computation (check, plan,
 //! re-plan, renderers) reads traffic through this module.
 
 use crate::portfolio::{Change, Pool};
@@ -14,7 +15,13 @@ use chrono::{Datelike, Duration, NaiveDate};
 pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     let f = &pool.forecast;
     let base = f.daily * f.weekday[date.weekday().num_days_from_monday() as usize];
-    match f
+    let scale: f64 = f
+        .scales
+        .iter()
+        .filter(|s| s.from <= date)
+        .map(|s| s.factor)
+        .product();
+    let value = match f
         .adjustments
         .iter()
         .rev()
@@ -25,7 +32,8 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
             Change::Level(level) => level,
         },
         None => base,
-    }
+    };
+    value * scale
 }
 
 /// A pool's forecast over a span of days, with running totals, for fast
@@ -144,6 +152,7 @@ mod tests {
                 daily,
                 weekday,
                 adjustments,
+                scales: Vec::new(),
             },
             sharing: Sharing::Split,
             max_concurrent: 3,
@@ -182,6 +191,24 @@ mod tests {
         assert_eq!(units_on(&p, d("2027-01-01")), 100.0);
         assert_eq!(units_on(&p, d("2027-01-02")), 500.0);
         assert_eq!(units_on(&p, d("2027-01-04")), 1000.0);
+    }
+
+    #[test]
+    fn scales_compound_with_adjustments_from_their_date() {
+        let adj = vec![Adjustment {
+            from: d("2027-02-01"),
+            to: d("2027-02-07"),
+            change: Change::Multiply(0.5),
+            note: "dip".into(),
+        }];
+        let mut p = pool(1000.0, [1.0; 7], adj);
+        p.forecast.scales.push(crate::portfolio::Scale {
+            from: d("2027-02-03"),
+            factor: 0.7,
+        });
+        assert_eq!(units_on(&p, d("2027-02-02")), 500.0);
+        assert!((units_on(&p, d("2027-02-03")) - 350.0).abs() < 1e-9);
+        assert!((units_on(&p, d("2027-02-10")) - 700.0).abs() < 1e-9);
     }
 
     #[test]

@@ -6,7 +6,10 @@
 //! verifier) -> `plan` (the result) -> `render` (one module per format).
 //! The binary in `main.rs` is a thin shell over [`cli`].
 
+pub mod check;
 pub mod cli;
+pub mod diagnostic;
+pub mod diff;
 pub mod forecast;
 pub mod plan;
 pub mod portfolio;

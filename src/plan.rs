@@ -4,6 +4,7 @@
 //! HTML, Markdown) only format it and never compute schedule facts of their
 //! own. Field order is the JSON key order; `docs/plan-json.md` documents it.
 
+use crate::diff::PlanDiff;
 use chrono::NaiveDate;
 use serde::{Deserialize, Serialize};
 
@@ -35,8 +36,16 @@ pub struct SolverSummary {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Status {
+    /// Has a place in the calendar.
     Scheduled,
+    /// Left out; `reason` says why.
     Unscheduled,
+    /// Re-plans only: started before today and still collecting units.
+    Running,
+    /// Re-plans only: finished before today; it no longer holds traffic.
+    Finished,
+    /// Re-plans only: stopped for good; it no longer holds traffic.
+    Cancelled,
 }
 
 /// One experiment's outcome.
@@ -119,4 +128,33 @@ pub struct Plan {
     /// The date the plan was made for (`--today`, or the window's start);
     /// renderers draw it as today's line.
     pub today: NaiveDate,
+    /// Re-plans only: each running test's outlook.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub running: Vec<RunningOutlook>,
+    /// Re-plans with `--previous` only: what moved since the previous plan.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub changes: Option<PlanDiff>,
+}
+
+/// Re-plans only: where a running test stands and when it will finish.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunningOutlook {
+    pub id: String,
+    pub started: NaiveDate,
+    /// The share it runs at from today.
+    pub share: f64,
+    /// Units collected when the counts were read, over all arms.
+    pub collected: u64,
+    pub units_needed: u64,
+    /// Its last day of data from the forecast; `None` beyond ten years.
+    pub end: Option<NaiveDate>,
+    /// Whether `end` falls inside the window.
+    pub fits_window: bool,
+    /// The smallest share level that would finish it inside the window.
+    pub rescue_share: Option<f64>,
+    /// The effect (in its MDE's kind) the units in hand by the window's end
+    /// can detect at the planned power.
+    pub detectable_effect: Option<f64>,
+    /// The outlook in words, when it cannot finish as it runs.
+    pub advice: Option<String>,
 }

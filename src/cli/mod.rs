@@ -2,8 +2,10 @@
 //! command. Commands turn library results into bytes for stdout; they hold
 //! no statistics or scheduling logic of their own. One module per command.
 
+mod check;
 mod size;
 
+pub use check::CheckArgs;
 pub use size::SizeArgs;
 
 use clap::{Parser, Subcommand, ValueEnum};
@@ -36,6 +38,8 @@ pub struct Cli {
 pub enum Command {
     /// Size one test: units per arm, power, and (with --daily) days to run
     Size(size::SizeArgs),
+    /// Validate a portfolio file and show which tests could fit the window
+    Check(check::CheckArgs),
 }
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -72,6 +76,12 @@ pub fn main() -> ExitCode {
     };
     match run(cli) {
         Ok(bytes) => write_stdout(&bytes),
+        // Messages that are already rendered diagnostics (one or more
+        // `error: ...` blocks) print as they are.
+        Err(f) if f.message.starts_with("error: ") => {
+            eprint!("{}", f.message);
+            ExitCode::from(f.code)
+        }
         Err(f) => {
             eprintln!("error: {}", f.message);
             ExitCode::from(f.code)
@@ -96,5 +106,6 @@ fn write_stdout(bytes: &[u8]) -> ExitCode {
 pub fn run(cli: Cli) -> Result<Vec<u8>, Failure> {
     match cli.command {
         Command::Size(args) => size::run(&args),
+        Command::Check(args) => check::run(&args),
     }
 }

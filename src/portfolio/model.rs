@@ -125,6 +125,17 @@ pub struct Forecast {
     pub weekday: [f64; 7],
     /// In file order; where several cover a day, the last one wins.
     pub adjustments: Vec<Adjustment>,
+    /// What-if scalings from the command line (`--scale POOL=FACTOR@DATE`):
+    /// each multiplies every day from its date on, on top of the rest.
+    pub scales: Vec<Scale>,
+}
+
+/// A lasting change of a pool's traffic from a date on (a what-if).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Scale {
+    pub from: NaiveDate,
+    /// >= 0; 0.7 is a 30% drop.
+    pub factor: f64,
 }
 
 /// A page, surface or audience whose traffic tests share.

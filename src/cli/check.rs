@@ -1,0 +1,171 @@
+//! `sluice check FILE`: validate a portfolio and print the first answer to
+//! "which tests fit": each test's size and solo fit, each pool's supply
+//! against demand. The report comes from [`crate::check`]; this file only
+//! formats it.
+
+use super::{Failure, TextOrJson};
+use crate::check::{self, trim, CheckReport};
+use crate::portfolio;
+use clap::Args;
+use comfy_table::{presets, CellAlignment, Table};
+use std::path::PathBuf;
+
+#[derive(Args, Debug)]
+#[command(after_help = "Examples:\n  \
+    sluice check portfolios/quickstart.yaml\n  \
+    sluice check portfolios/demo.yaml --format json\n\n\
+    Exit status: 0 when the file is valid (whether or not every test fits), \
+    2 when it is not (every problem is listed on stderr).")]
+pub struct CheckArgs {
+    /// The portfolio file (YAML; docs/portfolio.md lists every key)
+    pub file: PathBuf,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
+    pub format: TextOrJson,
+}
+
+/// `sluice check`.
+pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Failure> {
+    let p = portfolio::load(&a.file).map_err(|e| Failure {
+        code: super::EXIT_INVALID,
+        message: e.to_string(),
+    })?;
+    let report = check::check(&p);
+    match a.format {
+        TextOrJson::Json => {
+            let mut s = serde_json::to_string_pretty(&report)
+                .map_err(|e| Failure::invalid(e.to_string()))?;
+            s.push('\n');
+            Ok(s.into_bytes())
+        }
+        TextOrJson::Text => Ok(text(&report).into_bytes()),
+    }
+}
+
+/// 1234567 -> "1,234,567".
+pub fn units(n: u64) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, c) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+fn table() -> Table {
+    let mut t = Table::new();
+    t.load_preset(presets::UTF8_BORDERS_ONLY);
+    t
+}
+
+fn right(t: &mut Table, columns: &[usize]) {
+    for &c in columns {
+        if let Some(col) = t.column_mut(c) {
+            col.set_cell_alignment(CellAlignment::Right);
+        }
+    }
+}
+
+/// The text report: a header, the experiment table, the reasons, the pool table.
+pub fn text(r: &CheckReport) -> String {
+    let mut out = String::new();
+    out.push_str(&format!(
+        "{}: window {} to {} ({} days), {} experiments\n\n",
+        r.name,
+        r.window_start,
+        r.window_end,
+        r.window_days,
+        r.experiments.len()
+    ));
+    let mut t = table();
+    t.set_header(vec![
+        "experiment",
+        "pool",
+        "metric",
+        "arms",
+        "units per arm",
+        "total units",
+        "share",
+        "days from start",
+        "alone",
+    ]);
+    for e in &r.experiments {
+        let per_arm = if e.treatment_units == e.control_units {
+            units(e.control_units)
+        } else {
+            format!("{} / {}", units(e.control_units), units(e.treatment_units))
+        };
+        let days = match (e.days_from_window_start, e.end_from_window_start) {
+            (Some(d), Some(end)) => format!("{d} (to {end})"),
+            _ => format!("over {} years", check::HORIZON_DAYS / 365),
+        };
+        t.add_row(vec![
+            e.id.clone(),
+            e.pool.clone(),
+            e.metric.clone(),
+            e.arms.to_string(),
+            per_arm,
+            units(e.total_units),
+            format!("{}%", trim(e.share * 100.0)),
+            days,
+            if e.fits_alone {
+                "fits alone".to_string()
+            } else {
+                "cannot fit even alone".to_string()
+            },
+        ]);
+    }
+    right(&mut t, &[3, 4, 5, 6, 7]);
+    out.push_str(&t.to_string());
+    out.push('\n');
+    out.push_str(&format!(
+        "\n{} of {} fit the window alone; {} cannot fit even alone.\n",
+        r.fit_alone,
+        r.experiments.len(),
+        r.cannot_fit
+    ));
+    for e in r.experiments.iter().filter(|e| !e.fits_alone) {
+        if let Some(why) = &e.reason {
+            out.push_str(&format!("  `{}`: {why}\n", e.id));
+        }
+    }
+    out.push('\n');
+    let mut t = table();
+    t.set_header(vec![
+        "pool",
+        "sharing",
+        "cap",
+        "tests",
+        "units offered",
+        "units needed",
+        "needed / offered",
+    ]);
+    for p in &r.pools {
+        t.add_row(vec![
+            p.id.clone(),
+            match p.sharing {
+                portfolio::Sharing::Split => "split".to_string(),
+                portfolio::Sharing::Overlap => "overlap".to_string(),
+            },
+            p.max_concurrent.to_string(),
+            p.experiments.to_string(),
+            units(p.offered_units.round() as u64),
+            units(p.needed_units),
+            if p.ratio.is_finite() {
+                format!("{:.2}", p.ratio)
+            } else {
+                "no traffic".to_string()
+            },
+        ]);
+    }
+    right(&mut t, &[2, 3, 4, 5, 6]);
+    out.push_str(&t.to_string());
+    out.push('\n');
+    for p in &r.pools {
+        out.push_str(&format!("  `{}` ({}): {}\n", p.id, p.label, p.note));
+    }
+    out
+}

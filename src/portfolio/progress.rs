@@ -1,0 +1,602 @@
+//! The progress file: where each test stands mid-quarter (running with the
+//! units collected so far, finished, or cancelled), read for a re-plan.
+//!
+//! Same three passes and the same quality of errors as the portfolio
+//! loader (unknown keys with the closest allowed one, serde's type errors
+//! with their position, then every semantic problem at once), checked
+//! against an already validated [`Portfolio`] and the re-plan's `today`.
+//! Counts that the forecast could not have delivered are flagged as
+//! warnings, not refused: forecasts err, counts are facts.
+//! docs/progress.md documents every key.
+
+use super::load::{from_serde, unknown_keys, LoadError};
+use super::model::Portfolio;
+use super::position::PositionIndex;
+use super::raw::{fields_of, Text};
+use crate::diagnostic::{self, Diagnostic};
+use crate::forecast;
+use chrono::{Duration, NaiveDate};
+use serde::Deserialize;
+use std::path::Path;
+
+/// Where one experiment stands.
+#[derive(Debug, Clone, PartialEq)]
+pub enum State {
+    /// Started on `started` at `share` and still collecting.
+    Running {
+        started: NaiveDate,
+        share: f64,
+        /// Units collected so far over all arms.
+        units: u64,
+        /// Per arm, control first, when the file gives them.
+        units_per_arm: Option<Vec<u64>>,
+    },
+    /// Done: it holds no traffic any more.
+    Finished {
+        started: Option<NaiveDate>,
+        ended: Option<NaiveDate>,
+    },
+    /// Stopped for good: it holds no traffic any more.
+    Cancelled { note: String },
+}
+
+/// One line of the progress file, resolved.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Entry {
+    /// Index into `Portfolio::experiments`.
+    pub experiment: usize,
+    pub state: State,
+}
+
+/// The whole progress file, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Progress {
+    /// The day the counts were read: units up to the end of the day before.
+    /// Defaults to the re-plan's `today`.
+    pub as_of: NaiveDate,
+    pub entries: Vec<Entry>,
+    /// Problems worth a look that do not stop the re-plan.
+    pub warnings: Vec<Diagnostic>,
+}
+
+impl Progress {
+    /// The entry for an experiment, if the file has one.
+    pub fn entry(&self, experiment: usize) -> Option<&Entry> {
+        self.entries.iter().find(|e| e.experiment == experiment)
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawProgress {
+    as_of: Option<Text>,
+    experiments: Option<Vec<RawEntry>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawEntry {
+    id: Option<Text>,
+    state: Option<Text>,
+    started: Option<Text>,
+    ended: Option<Text>,
+    share: Option<f64>,
+    units: Option<f64>,
+    units_per_arm: Option<Vec<f64>>,
+    note: Option<Text>,
+}
+
+fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
+    Some(match shape {
+        "" => fields_of::<RawProgress>(),
+        "experiments[]" => fields_of::<RawEntry>(),
+        _ => return None,
+    })
+}
+
+/// Reads and validates the progress file at `path` against `portfolio`.
+pub fn load_progress(
+    path: &Path,
+    portfolio: &Portfolio,
+    today: NaiveDate,
+) -> Result<Progress, LoadError> {
+    let name = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| LoadError {
+        diagnostics: vec![Diagnostic::new(
+            &name,
+            "",
+            format!("cannot read the progress file: {e}"),
+        )
+        .with_hint("check the path; docs/progress.md shows the format")],
+    })?;
+    load_progress_str(&text, &name, portfolio, today)
+}
+
+/// Validates progress text; `file_name` is used in messages only.
+pub fn load_progress_str(
+    text: &str,
+    file_name: &str,
+    portfolio: &Portfolio,
+    today: NaiveDate,
+) -> Result<Progress, LoadError> {
+    let fail = |diagnostics: Vec<Diagnostic>| Err(LoadError { diagnostics });
+    let body = text.strip_prefix('\u{feff}').unwrap_or(text);
+    if body
+        .lines()
+        .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
+    {
+        return fail(vec![Diagnostic::new(file_name, "", "the progress file is empty")
+            .with_hint("list the tests that started: `experiments: [{id: ..., state: running, started: YYYY-MM-DD, share: 0.5, units: 1234}]`")]);
+    }
+    let index = PositionIndex::build(body);
+    if let Some(ix) = &index {
+        let unknown = unknown_keys(ix, body, file_name, allowed_keys);
+        if !unknown.is_empty() {
+            return fail(unknown);
+        }
+    }
+    let raw: RawProgress = match serde_yaml::from_str(body) {
+        Ok(raw) => raw,
+        Err(e) => {
+            let mut d = from_serde(&e, body, file_name, index.as_ref());
+            d.hint = d
+                .hint
+                .map(|h| h.replace("docs/portfolio.md", "docs/progress.md"));
+            return fail(vec![d]);
+        }
+    };
+    let mut cx = Checker {
+        file: file_name,
+        text: body,
+        index: index.as_ref(),
+        errors: Vec::new(),
+        warnings: Vec::new(),
+    };
+    let progress = cx.validate(raw, portfolio, today);
+    if cx.errors.is_empty() {
+        Ok(Progress {
+            warnings: cx.warnings,
+            ..progress
+        })
+    } else {
+        fail(cx.errors)
+    }
+}
+
+struct Checker<'a> {
+    file: &'a str,
+    text: &'a str,
+    index: Option<&'a PositionIndex>,
+    errors: Vec<Diagnostic>,
+    warnings: Vec<Diagnostic>,
+}
+
+impl Checker<'_> {
+    fn diag(&self, key: &str, message: String, hint: String) -> Diagnostic {
+        let d = Diagnostic::new(self.file, key, message).with_hint(hint);
+        match self.index.and_then(|ix| ix.locate(key)) {
+            Some(s) => d.at(self.text, s.line, s.column, s.width),
+            None => d,
+        }
+    }
+
+    fn err(&mut self, key: &str, message: String, hint: impl Into<String>) {
+        let d = self.diag(key, message, hint.into());
+        self.errors.push(d);
+    }
+
+    fn warn(&mut self, key: &str, message: String, hint: impl Into<String>) {
+        let d = self.diag(key, message, hint.into());
+        self.warnings.push(d);
+    }
+
+    fn date(&mut self, key: &str, v: &Option<Text>) -> Option<NaiveDate> {
+        let t = v.as_ref()?;
+        match NaiveDate::parse_from_str(t.as_str().trim(), "%Y-%m-%d") {
+            Ok(d) => Some(d),
+            Err(_) => {
+                self.err(
+                    key,
+                    format!("`{key}` is `{}`, not a date", t.as_str()),
+                    "write dates as YYYY-MM-DD, e.g. 2027-02-01",
+                );
+                None
+            }
+        }
+    }
+
+    fn validate(&mut self, raw: RawProgress, p: &Portfolio, today: NaiveDate) -> Progress {
+        let as_of = match self.date("as_of", &raw.as_of) {
+            Some(d) if d > today => {
+                self.err(
+                    "as_of",
+                    format!("`as_of` is {d}, after today ({today})"),
+                    "counts cannot be read in the future; use the day you read them",
+                );
+                today
+            }
+            Some(d) => d,
+            None => today,
+        };
+        let ids: Vec<&str> = p.experiments.iter().map(|e| e.id.as_str()).collect();
+        let mut entries: Vec<Entry> = Vec::new();
+        let mut seen: Vec<(String, String)> = Vec::new();
+        for (i, e) in raw.experiments.unwrap_or_default().into_iter().enumerate() {
+            let at = format!("experiments[{i}]");
+            let Some(id) = e.id.as_ref().map(|t| t.as_str().trim().to_string()) else {
+                self.err(
+                    &at,
+                    format!("`{at}` has no `id`"),
+                    "name the experiment as in the portfolio: `id: ...`",
+                );
+                continue;
+            };
+            let id_key = format!("{at}.id");
+            let Some(index) = p.experiment_index(&id) else {
+                let closest = diagnostic::closest_first(&id, &ids);
+                let shown: Vec<&str> = closest.into_iter().take(8).collect();
+                self.err(
+                    &id_key,
+                    format!("experiment `{id}` is not in the portfolio"),
+                    format!(
+                        "defined experiments, closest first: {}",
+                        diagnostic::list(&shown)
+                    ),
+                );
+                continue;
+            };
+            if let Some((_, first)) = seen.iter().find(|(s, _)| *s == id) {
+                self.err(
+                    &id_key,
+                    format!("experiment `{id}` appears twice (first at `{first}`)"),
+                    "keep one entry per experiment",
+                );
+                continue;
+            }
+            seen.push((id.clone(), at.clone()));
+            if let Some(state) = self.state(&at, &id, e, index, p, today, as_of) {
+                entries.push(Entry {
+                    experiment: index,
+                    state,
+                });
+            }
+        }
+        Progress {
+            as_of,
+            entries,
+            warnings: Vec::new(),
+        }
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn state(
+        &mut self,
+        at: &str,
+        id: &str,
+        e: RawEntry,
+        index: usize,
+        p: &Portfolio,
+        today: NaiveDate,
+        as_of: NaiveDate,
+    ) -> Option<State> {
+        let state_key = format!("{at}.state");
+        let kind = match e.state.as_ref().map(|t| t.as_str().trim().to_lowercase()) {
+            Some(k) if ["running", "finished", "cancelled"].contains(&k.as_str()) => k,
+            Some(other) => {
+                let hint =
+                    match diagnostic::suggestion(&other, &["running", "finished", "cancelled"]) {
+                        Some(s) => {
+                            format!("did you mean `{s}`? one of `running`, `finished`, `cancelled`")
+                        }
+                        None => "one of `running`, `finished`, `cancelled`".to_string(),
+                    };
+                self.err(
+                    &state_key,
+                    format!("state `{other}` of `{id}` is not known"),
+                    hint,
+                );
+                return None;
+            }
+            None => {
+                self.err(
+                    at,
+                    format!("`{id}` has no `state`"),
+                    "add `state: running`, `state: finished` or `state: cancelled`",
+                );
+                return None;
+            }
+        };
+        let started = self.date(&format!("{at}.started"), &e.started);
+        let ended = self.date(&format!("{at}.ended"), &e.ended);
+        if let Some(s) = started {
+            if s >= today && kind == "running" {
+                self.err(
+                    &format!("{at}.started"),
+                    format!("`{id}` is marked running but starts on {s}, not before today ({today})"),
+                    "a running test started before today; leave tests that have not started out of the progress file",
+                );
+                return None;
+            }
+            if s > today {
+                self.err(
+                    &format!("{at}.started"),
+                    format!("`{id}` starts on {s}, after today ({today})"),
+                    "a test that has not started yet does not belong in the progress file",
+                );
+                return None;
+            }
+        }
+        if let Some(end) = ended {
+            if end >= today {
+                self.err(
+                    &format!("{at}.ended"),
+                    format!("`{id}` ended on {end}, not before today ({today})"),
+                    "a test still collecting today is `running`",
+                );
+            }
+            if started.is_some_and(|s| end < s) {
+                self.err(
+                    &format!("{at}.ended"),
+                    format!("`{id}` ends on {end}, before it started"),
+                    "check the two dates",
+                );
+            }
+        }
+        match kind.as_str() {
+            "finished" => Some(State::Finished { started, ended }),
+            "cancelled" => Some(State::Cancelled {
+                note: e.note.map(|t| t.0).unwrap_or_default(),
+            }),
+            _ => self.running(at, id, e, index, p, started, as_of),
+        }
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn running(
+        &mut self,
+        at: &str,
+        id: &str,
+        e: RawEntry,
+        index: usize,
+        p: &Portfolio,
+        started: Option<NaiveDate>,
+        as_of: NaiveDate,
+    ) -> Option<State> {
+        let exp = &p.experiments[index];
+        let Some(started) = started else {
+            self.err(
+                at,
+                format!("running test `{id}` has no `started` date"),
+                "add `started: YYYY-MM-DD`, the first day of its data",
+            );
+            return None;
+        };
+        let share = match e.share {
+            Some(s) if s > 0.0 && s <= 1.0 => s,
+            Some(s) => {
+                self.err(
+                    &format!("{at}.share"),
+                    format!("`{id}`: `share` is {s}; it must be in (0, 1]"),
+                    "the share of the pool it runs at: 0.5 for half",
+                );
+                return None;
+            }
+            None => {
+                self.err(
+                    at,
+                    format!("running test `{id}` has no `share`"),
+                    "add `share: ...`, the share of the pool it runs at (0.5 for half)",
+                );
+                return None;
+            }
+        };
+        let arms = exp.design.arms as usize;
+        let per_arm = match e.units_per_arm {
+            Some(v) => {
+                let key = format!("{at}.units_per_arm");
+                if v.len() != arms {
+                    self.err(
+                        &key,
+                        format!(
+                            "`{id}` has {arms} arms but `units_per_arm` lists {}",
+                            v.len()
+                        ),
+                        "one count per arm, control first",
+                    );
+                    return None;
+                }
+                if v.iter()
+                    .any(|u| !(u.is_finite() && *u >= 0.0 && u.fract() == 0.0 && *u < 1e15))
+                {
+                    self.err(
+                        &key,
+                        format!("`{id}`: `units_per_arm` must hold whole numbers >= 0"),
+                        "counts of units, e.g. [20510, 20488]",
+                    );
+                    return None;
+                }
+                Some(v.iter().map(|u| *u as u64).collect::<Vec<u64>>())
+            }
+            None => None,
+        };
+        let units = match (e.units, &per_arm) {
+            (Some(u), _) if !(0.0..1e15).contains(&u) => {
+                self.err(
+                    &format!("{at}.units"),
+                    format!("`{id}`: `units` is {u}; it must be a whole number >= 0"),
+                    "the units collected so far over all arms",
+                );
+                return None;
+            }
+            (Some(u), Some(v)) => {
+                let sum: u64 = v.iter().sum();
+                if sum != u.round() as u64 {
+                    self.err(
+                        &format!("{at}.units"),
+                        format!("`{id}`: `units` is {u} but `units_per_arm` adds up to {sum}"),
+                        "give the total over all arms, or leave `units` out",
+                    );
+                    return None;
+                }
+                sum
+            }
+            (Some(u), None) => u.round() as u64,
+            (None, Some(v)) => v.iter().sum(),
+            (None, None) => {
+                self.err(
+                    at,
+                    format!("running test `{id}` has no `units`"),
+                    "add `units: ...`, the units collected so far over all arms (0 if unknown)",
+                );
+                return None;
+            }
+        };
+        // Flag counts the forecast could not have delivered (5% slack).
+        let pool = &p.pools[exp.pool];
+        let last = as_of - Duration::days(1);
+        if last >= started {
+            let days = (last - started).num_days() as usize + 1;
+            let could: f64 = (0..days)
+                .map(|d| forecast::units_on(pool, started + Duration::days(d as i64)))
+                .sum::<f64>()
+                * share;
+            if units as f64 > could * 1.05 + 1.0 {
+                self.warn(
+                    &format!("{at}.units"),
+                    format!(
+                        "`{id}` reports {units} units, more than the forecast of `{}` could deliver at {:.0}% from {started} to {last} ({:.0})",
+                        pool.id,
+                        share * 100.0,
+                        could
+                    ),
+                    "the count is kept; check it, or raise the pool's forecast if traffic runs above it",
+                );
+            }
+        }
+        Some(State::Running {
+            started,
+            share,
+            units,
+            units_per_arm: per_arm,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn quickstart() -> Portfolio {
+        let text = include_str!("../../portfolios/quickstart.yaml");
+        crate::portfolio::load_str(text, "quickstart.yaml").unwrap()
+    }
+
+    fn d(s: &str) -> NaiveDate {
+        NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
+    }
+
+    fn load(text: &str) -> Result<Progress, LoadError> {
+        load_progress_str(text, "progress.yaml", &quickstart(), d("2027-02-03"))
+    }
+
+    #[test]
+    fn reads_every_state() {
+        let p = load(
+            "as_of: 2027-02-02\nexperiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units_per_arm: [40000, 40100]\n  - id: one-page-checkout\n    state: finished\n    started: 2027-01-04\n    ended: 2027-01-31\n  - id: delivery-dates\n    state: cancelled\n    note: legal review\n",
+        )
+        .unwrap();
+        assert_eq!(p.as_of, d("2027-02-02"));
+        assert_eq!(p.entries.len(), 3);
+        assert_eq!(
+            p.entries[0].state,
+            State::Running {
+                started: d("2027-01-04"),
+                share: 0.5,
+                units: 80100,
+                units_per_arm: Some(vec![40000, 40100]),
+            }
+        );
+        assert!(matches!(p.entries[1].state, State::Finished { .. }));
+        assert_eq!(
+            p.entries[2].state,
+            State::Cancelled {
+                note: "legal review".into()
+            }
+        );
+        assert!(p.warnings.is_empty());
+    }
+
+    #[test]
+    fn unknown_id_lists_the_closest_first_with_its_line() {
+        let e = load("experiments:\n  - id: biger-photos\n    state: finished\n").unwrap_err();
+        let d = &e.diagnostics[0];
+        assert_eq!(d.line, Some(2));
+        assert_eq!(d.key, "experiments[0].id");
+        assert!(d.message.contains("`biger-photos` is not in the portfolio"));
+        assert!(d
+            .hint
+            .as_deref()
+            .unwrap()
+            .contains("closest first: `bigger-photos`"));
+    }
+
+    #[test]
+    fn running_after_today_is_an_error() {
+        let e = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-02-10\n    share: 0.5\n    units: 0\n").unwrap_err();
+        let d = &e.diagnostics[0];
+        assert_eq!(d.line, Some(4));
+        assert!(
+            d.message
+                .contains("marked running but starts on 2027-02-10"),
+            "{}",
+            d.message
+        );
+    }
+
+    #[test]
+    fn too_many_units_is_a_warning_not_an_error() {
+        // The product pool offers about 9,000 a day; at 50% for 30 days that
+        // is about 135,000, far below 900,000.
+        let p = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units: 900000\n").unwrap();
+        assert_eq!(p.warnings.len(), 1);
+        assert_eq!(p.warnings[0].line, Some(6));
+        assert!(p.warnings[0].message.contains("more than the forecast"));
+    }
+
+    #[test]
+    fn misspelt_key_names_the_closest_allowed_one() {
+        let e = load("experiments:\n  - id: bigger-photos\n    stat: running\n").unwrap_err();
+        let d = &e.diagnostics[0];
+        assert_eq!(d.line, Some(3));
+        assert!(
+            d.hint.as_deref().unwrap().contains("did you mean `state`?"),
+            "{d:?}"
+        );
+    }
+
+    #[test]
+    fn every_problem_is_reported_at_once() {
+        let e = load("experiments:\n  - id: nope\n    state: finished\n  - id: bigger-photos\n    state: runing\n  - id: one-page-checkout\n    state: running\n    started: 2027-01-04\n    share: 1.5\n    units: 10\n").unwrap_err();
+        assert_eq!(e.diagnostics.len(), 3, "{e}");
+    }
+
+    #[test]
+    fn arm_counts_must_match_the_design() {
+        let e = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units_per_arm: [1, 2, 3]\n").unwrap_err();
+        assert!(e.diagnostics[0].message.contains("has 2 arms"));
+    }
+
+    #[test]
+    fn garbage_is_an_error_not_a_panic() {
+        for text in [
+            "",
+            "[1, 2",
+            "experiments: 3",
+            "- a\n- b",
+            "as_of: tomorrow",
+            "\u{0}\u{1}",
+        ] {
+            assert!(load(text).is_err(), "{text:?}");
+        }
+    }
+}

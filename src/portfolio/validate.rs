@@ -1,0 +1,1315 @@
+//! Raw structs -> the validated [`Portfolio`]: defaults, ranges, ids,
+//! references, the `after` graph, dates against the window, and the sample
+//! size of every experiment.
+//!
+//! Every check runs, whatever failed before it, so one run reports every
+//! problem; the model is returned only when there is none. Positions come
+//! from the [`PositionIndex`] by the key's path.
+
+use super::model::*;
+use super::position::PositionIndex;
+use super::raw::*;
+use crate::diagnostic::{self, Diagnostic};
+use crate::sizing::{
+    self, Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
+};
+use chrono::{NaiveDate, Weekday};
+use std::collections::{BTreeMap, BTreeSet};
+
+/// The share levels used when the file gives none.
+pub const DEFAULT_SHARE_LEVELS: [f64; 7] = [0.10, 0.20, 0.25, 0.33, 0.50, 0.75, 1.00];
+/// The longest planning window accepted, in days (three years).
+pub const MAX_WINDOW_DAYS: i64 = 1096;
+/// The most arms one test may have.
+pub const MAX_ARMS: f64 = 50.0;
+/// The longest minimum run or analysis gap accepted, in days.
+pub const MAX_DAYS_SETTING: f64 = 366.0;
+
+struct Ctx<'a> {
+    file: &'a str,
+    text: &'a str,
+    index: Option<&'a PositionIndex>,
+    diags: Vec<Diagnostic>,
+}
+
+impl Ctx<'_> {
+    fn push(&mut self, key: &str, message: String, hint: Option<String>, at_key: bool) {
+        let mut d = Diagnostic::new(self.file, key, message);
+        if let Some(h) = hint {
+            d = d.with_hint(h);
+        }
+        let span = self.index.and_then(|ix| {
+            if at_key {
+                ix.locate_key(key)
+            } else {
+                ix.locate(key)
+            }
+        });
+        if let Some(s) = span {
+            d = d.at(self.text, s.line, s.column, s.width);
+        }
+        self.diags.push(d);
+    }
+
+    /// A problem with the value at `key`.
+    fn err(&mut self, key: &str, message: impl Into<String>, hint: impl Into<String>) {
+        self.push(key, message.into(), Some(hint.into()), false);
+    }
+
+    /// A required key that is missing (points at its mapping).
+    fn missing(&mut self, key: &str, what: &str, hint: impl Into<String>) {
+        let leaf = key.rsplit(['.', ']']).next().unwrap_or(key);
+        self.push(
+            key,
+            format!("{what} has no `{leaf}`"),
+            Some(hint.into()),
+            false,
+        );
+    }
+
+    /// Checks a number against a rule; `expected` completes "it must be ...".
+    fn number(
+        &mut self,
+        key: &str,
+        who: &str,
+        value: f64,
+        ok: bool,
+        expected: &str,
+        hint: &str,
+    ) -> bool {
+        if !ok {
+            let leaf = leaf(key);
+            self.err(
+                key,
+                format!("{who}`{leaf}` is {}; it must be {expected}", show(value)),
+                hint,
+            );
+        }
+        ok
+    }
+
+    fn date(&mut self, key: &str, who: &str, v: &Option<Text>) -> Option<NaiveDate> {
+        let t = v.as_ref()?;
+        match NaiveDate::parse_from_str(t.as_str().trim(), "%Y-%m-%d") {
+            Ok(d) => Some(d),
+            Err(_) => {
+                self.err(
+                    key,
+                    format!("{who}`{}` is `{}`, not a date", leaf(key), t.as_str()),
+                    "write dates as YYYY-MM-DD, e.g. 2027-01-04",
+                );
+                None
+            }
+        }
+    }
+
+    fn choice<T: Copy>(
+        &mut self,
+        key: &str,
+        who: &str,
+        v: &Option<Text>,
+        options: &[(&str, T)],
+        default: T,
+    ) -> T {
+        let Some(t) = v else { return default };
+        let s = t.as_str().trim().to_lowercase();
+        if let Some((_, x)) = options.iter().find(|(n, _)| *n == s) {
+            return *x;
+        }
+        let names: Vec<&str> = options.iter().map(|(n, _)| *n).collect();
+        let hint = match diagnostic::suggestion(&s, &names) {
+            Some(c) => format!("did you mean `{c}`?"),
+            None => format!("write one of {}", diagnostic::list(&names)),
+        };
+        self.err(
+            key,
+            format!(
+                "{who}`{}` is `{}`; it must be one of {}",
+                leaf(key),
+                t.as_str(),
+                diagnostic::list(&names)
+            ),
+            hint,
+        );
+        default
+    }
+
+    /// An id that must name one of `defined`; `what` is `pool` or
+    /// `experiment`.
+    fn reference(
+        &mut self,
+        key: &str,
+        who: &str,
+        id: &str,
+        what: &str,
+        defined: &[&str],
+    ) -> Option<usize> {
+        if let Some(i) = defined.iter().position(|d| *d == id) {
+            return Some(i);
+        }
+        let mut unique: Vec<&str> = Vec::new();
+        for d in defined {
+            if !unique.contains(d) {
+                unique.push(d);
+            }
+        }
+        let ranked = diagnostic::closest_first(id, &unique);
+        let shown: Vec<&str> = ranked.iter().take(8).copied().collect();
+        let more = if ranked.len() > shown.len() {
+            format!(" and {} more", ranked.len() - shown.len())
+        } else {
+            String::new()
+        };
+        let hint = if defined.is_empty() {
+            format!("no {what} is defined; add one under `{what}s`")
+        } else {
+            format!(
+                "defined {what}s, closest first: {}{more}",
+                diagnostic::list(&shown)
+            )
+        };
+        self.err(key, format!("{who}{what} `{id}` is not defined"), hint);
+        None
+    }
+}
+
+fn leaf(key: &str) -> &str {
+    key.rsplit('.').next().unwrap_or(key)
+}
+
+/// A number as the user would write it.
+fn show(x: f64) -> String {
+    if x.is_nan() {
+        "not a number (NaN)".into()
+    } else if x.is_infinite() {
+        if x > 0.0 {
+            "infinite".into()
+        } else {
+            "minus infinite".into()
+        }
+    } else {
+        format!("{x}")
+    }
+}
+
+fn whole(x: f64, lo: f64, hi: f64) -> bool {
+    x.is_finite() && x.fract() == 0.0 && x >= lo && x <= hi
+}
+
+fn text_or(v: &Option<Text>, default: &str) -> String {
+    v.as_ref()
+        .map(|t| t.as_str().to_string())
+        .unwrap_or_else(|| default.to_string())
+}
+
+const SIDES: [(&str, Sides); 4] = [
+    ("two", Sides::Two),
+    ("one", Sides::One),
+    ("2", Sides::Two),
+    ("1", Sides::One),
+];
+const RATE_METHODS: [(&str, Method); 4] = [
+    ("pooled", Method::Pooled),
+    ("unpooled", Method::Unpooled),
+    ("corrected", Method::Corrected),
+    ("arcsine", Method::Arcsine),
+];
+const MEAN_METHODS: [(&str, Method); 2] = [("t", Method::T), ("z", Method::Z)];
+const CORRECTIONS: [(&str, Correction); 3] = [
+    ("bonferroni", Correction::Bonferroni),
+    ("sidak", Correction::Sidak),
+    ("none", Correction::None),
+];
+
+/// Validates `raw`; `text` and `index` locate problems.
+pub fn validate(
+    raw: RawPortfolio,
+    text: &str,
+    file: &str,
+    index: Option<&PositionIndex>,
+) -> Result<Portfolio, Vec<Diagnostic>> {
+    let mut cx = Ctx {
+        file,
+        text,
+        index,
+        diags: Vec::new(),
+    };
+    let name = raw
+        .name
+        .as_ref()
+        .map(|t| t.as_str().to_string())
+        .unwrap_or_else(|| {
+            std::path::Path::new(file)
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_default()
+        });
+    let window = window(&mut cx, raw.window.as_ref());
+    let (defaults, defaults_ok) = defaults(&mut cx, raw.defaults.unwrap_or_default());
+    let share_levels = share_levels(&mut cx, raw.share_levels);
+    let planning = planning(&mut cx, raw.planning.unwrap_or_default(), &defaults);
+    let pools = pools(&mut cx, raw.pools.unwrap_or_default());
+    let pool_ids: Vec<&str> = pools.iter().map(|p| p.id.as_str()).collect();
+    let experiments = experiments(
+        &mut cx,
+        raw.experiments.unwrap_or_default(),
+        &pool_ids,
+        window,
+        &defaults,
+        defaults_ok,
+        &share_levels,
+    );
+    let blackouts = blackouts(
+        &mut cx,
+        raw.blackouts.unwrap_or_default(),
+        &pool_ids,
+        window,
+    );
+    if !cx.diags.is_empty() {
+        cx.diags
+            .sort_by_key(|d| (d.line.is_none(), d.line, d.column));
+        return Err(cx.diags);
+    }
+    let window = window.expect("a window without diagnostics is valid");
+    Ok(Portfolio {
+        name,
+        window,
+        defaults,
+        share_levels,
+        planning,
+        pools,
+        experiments,
+        blackouts,
+    })
+}
+
+fn window(cx: &mut Ctx, raw: Option<&RawWindow>) -> Option<Window> {
+    let hint = "give the planning window as `window: {start: 2027-01-04, end: 2027-04-04}`";
+    let Some(w) = raw else {
+        cx.missing("window", "the portfolio", hint);
+        return None;
+    };
+    if w.start.is_none() {
+        cx.missing("window.start", "`window`", hint);
+    }
+    if w.end.is_none() {
+        cx.missing("window.end", "`window`", hint);
+    }
+    let start = cx.date("window.start", "", &w.start)?;
+    let end = cx.date("window.end", "", &w.end)?;
+    if end < start {
+        cx.err(
+            "window.end",
+            format!("`window.end` {end} is before `window.start` {start}"),
+            "the window runs from `start` to `end`, both inclusive",
+        );
+        return None;
+    }
+    if (end - start).num_days() >= MAX_WINDOW_DAYS {
+        cx.err(
+            "window.end",
+            format!(
+                "the window spans {} days; sluice plans at most {MAX_WINDOW_DAYS} days (three years)",
+                (end - start).num_days() + 1
+            ),
+            "plan a quarter or a year at a time",
+        );
+        return None;
+    }
+    Some(Window { start, end })
+}
+
+fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
+    let before = cx.diags.len();
+    let alpha = d.alpha.unwrap_or(0.05);
+    cx.number(
+        "defaults.alpha",
+        "",
+        alpha,
+        alpha > 0.0 && alpha <= 0.5,
+        "in (0, 0.5]",
+        "the usual alpha is 0.05",
+    );
+    let power = d.power.unwrap_or(0.8);
+    cx.number(
+        "defaults.power",
+        "",
+        power,
+        power > alpha && power < 1.0,
+        "in (alpha, 1)",
+        "the usual power is 0.8",
+    );
+    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES[..2], Sides::Two);
+    let rate_method = cx.choice(
+        "defaults.rate_method",
+        "",
+        &d.rate_method,
+        &RATE_METHODS,
+        Method::Pooled,
+    );
+    let mean_method = cx.choice(
+        "defaults.mean_method",
+        "",
+        &d.mean_method,
+        &MEAN_METHODS,
+        Method::T,
+    );
+    let correction = cx.choice(
+        "defaults.correction",
+        "",
+        &d.correction,
+        &CORRECTIONS,
+        Correction::Bonferroni,
+    );
+    let min_days = d.min_days.unwrap_or(14.0);
+    let min_ok = cx.number(
+        "defaults.min_days",
+        "",
+        min_days,
+        whole(min_days, 1.0, MAX_DAYS_SETTING),
+        "a whole number of days from 1 to 366",
+        "two weeks (14) is common practice",
+    );
+    let defaults = Defaults {
+        alpha,
+        power,
+        sides,
+        rate_method,
+        mean_method,
+        correction,
+        min_days: if min_ok { min_days as u32 } else { 14 },
+        whole_weeks: d.whole_weeks.unwrap_or(true),
+    };
+    (defaults, cx.diags.len() == before)
+}
+
+fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
+    let Some(levels) = raw else {
+        return DEFAULT_SHARE_LEVELS.to_vec();
+    };
+    if levels.is_empty() {
+        cx.err(
+            "share_levels",
+            "`share_levels` is empty",
+            "list the shares the planner may give a test, e.g. [0.25, 0.5, 1.0], or remove the key for the default",
+        );
+        return DEFAULT_SHARE_LEVELS.to_vec();
+    }
+    let mut out = Vec::new();
+    for (i, &s) in levels.iter().enumerate() {
+        if cx.number(
+            &format!("share_levels[{i}]"),
+            "",
+            s,
+            s > 0.0 && s <= 1.0,
+            "a share in (0, 1]",
+            "write shares as fractions: 0.25 for a quarter of the pool",
+        ) {
+            out.push(s);
+        }
+    }
+    out.sort_by(f64::total_cmp);
+    out.dedup();
+    out
+}
+
+fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
+    let default_grid = if d.whole_weeks {
+        StartGrid::Weekly
+    } else {
+        StartGrid::Daily
+    };
+    let grid = cx.choice(
+        "planning.start_grid",
+        "",
+        &p.start_grid,
+        &[("weekly", StartGrid::Weekly), ("daily", StartGrid::Daily)],
+        default_grid,
+    );
+    let start_weekday = cx.choice(
+        "planning.start_weekday",
+        "",
+        &p.start_weekday,
+        &[
+            ("monday", Weekday::Mon),
+            ("tuesday", Weekday::Tue),
+            ("wednesday", Weekday::Wed),
+            ("thursday", Weekday::Thu),
+            ("friday", Weekday::Fri),
+            ("saturday", Weekday::Sat),
+            ("sunday", Weekday::Sun),
+        ],
+        Weekday::Mon,
+    );
+    let lateness_weight = p.lateness_weight.unwrap_or(0.5);
+    cx.number(
+        "planning.lateness_weight",
+        "",
+        lateness_weight,
+        (0.0..1.0).contains(&lateness_weight),
+        "in [0, 1)",
+        "0 ignores when results arrive; 0.5 (the default) halves the value of a result on the window's last day",
+    );
+    Planning {
+        grid,
+        start_weekday,
+        lateness_weight,
+        reshare_running: p.reshare_running.unwrap_or(false),
+    }
+}
+
+/// Checks ids for presence and uniqueness; returns the ids (a placeholder
+/// where missing) in order.
+fn ids(cx: &mut Ctx, section: &str, what: &str, raw: Vec<Option<&Text>>) -> Vec<String> {
+    let mut seen: BTreeMap<String, usize> = BTreeMap::new();
+    let mut out = Vec::new();
+    for (i, id) in raw.into_iter().enumerate() {
+        let key = format!("{section}[{i}].id");
+        let Some(id) = id else {
+            cx.missing(
+                &key,
+                &format!("{what} number {}", i + 1),
+                format!("give every {what} a unique `id`"),
+            );
+            out.push(format!("#{}", i + 1));
+            continue;
+        };
+        let id = id.as_str().trim().to_string();
+        if id.is_empty() {
+            cx.err(
+                &key,
+                format!("{what} number {} has an empty `id`", i + 1),
+                format!("give every {what} a unique `id`"),
+            );
+        } else if let Some(&first) = seen.get(&id) {
+            let first_line = cx
+                .index
+                .and_then(|ix| ix.locate(&format!("{section}[{first}].id")))
+                .map(|s| format!(" (line {})", s.line))
+                .unwrap_or_default();
+            cx.err(
+                &key,
+                format!("duplicate {what} id `{id}`"),
+                format!(
+                    "it is first defined as {what} number {}{first_line}; ids must be unique",
+                    first + 1
+                ),
+            );
+        } else {
+            seen.insert(id.clone(), i);
+        }
+        out.push(id);
+    }
+    out
+}
+
+fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
+    let ids = ids(
+        cx,
+        "pools",
+        "pool",
+        raw.iter().map(|p| p.id.as_ref()).collect(),
+    );
+    let mut out = Vec::new();
+    for (i, (p, id)) in raw.into_iter().zip(ids).enumerate() {
+        let at = |k: &str| format!("pools[{i}].{k}");
+        let who = format!("pool `{id}`: ");
+        let daily = match p.daily {
+            Some(d) => {
+                cx.number(
+                    &at("daily"),
+                    &who,
+                    d,
+                    d >= 0.0 && d.is_finite() && d < 1e12,
+                    "a number of units per day, >= 0 and below a trillion",
+                    "eligible units (visitors, users or sessions) on an average day",
+                );
+                d
+            }
+            None => {
+                cx.missing(
+                    &at("daily"),
+                    &format!("pool `{id}`"),
+                    "give the eligible units on an average day, e.g. `daily: 20000`",
+                );
+                0.0
+            }
+        };
+        let mut weekday = [1.0; 7];
+        if let Some(pattern) = p.weekday_pattern {
+            if pattern.len() != 7 {
+                cx.err(
+                    &at("weekday_pattern"),
+                    format!(
+                        "{who}`weekday_pattern` has {} values; it must have exactly 7",
+                        pattern.len()
+                    ),
+                    "one multiplier per weekday, Monday first, e.g. [1.05, 1.1, 1.1, 1.05, 0.95, 0.8, 0.85]",
+                );
+            }
+            for (j, &m) in pattern.iter().enumerate() {
+                if cx.number(
+                    &format!("pools[{i}].weekday_pattern[{j}]"),
+                    &who,
+                    m,
+                    m >= 0.0 && m.is_finite() && m <= 1e6,
+                    "a multiplier >= 0",
+                    "1.0 keeps the daily level, 0.8 is 20% below it",
+                ) && j < 7
+                {
+                    weekday[j] = m;
+                }
+            }
+        }
+        let mut adjustments = Vec::new();
+        for (j, a) in p.adjustments.unwrap_or_default().into_iter().enumerate() {
+            let at = |k: &str| format!("pools[{i}].adjustments[{j}].{k}");
+            let what = format!("adjustment {} of pool `{id}`", j + 1);
+            if a.from.is_none() {
+                cx.missing(
+                    &at("from"),
+                    &what,
+                    "give the first day it applies, e.g. `from: 2027-02-14`",
+                );
+            }
+            if a.to.is_none() {
+                cx.missing(
+                    &at("to"),
+                    &what,
+                    "give the last day it applies (inclusive), e.g. `to: 2027-02-20`",
+                );
+            }
+            let from = cx.date(&at("from"), &who, &a.from);
+            let to = cx.date(&at("to"), &who, &a.to);
+            if let (Some(f), Some(t)) = (from, to) {
+                if t < f {
+                    cx.err(
+                        &at("to"),
+                        format!("{who}adjustment `to` {t} is before its `from` {f}"),
+                        "dates run from `from` to `to`, both inclusive",
+                    );
+                }
+            }
+            let change = match (a.multiply, a.level) {
+                (Some(m), None) => {
+                    cx.number(
+                        &at("multiply"),
+                        &who,
+                        m,
+                        m >= 0.0 && m.is_finite() && m <= 1e6,
+                        "a multiplier >= 0",
+                        "0.6 is a 40% dip, 1.3 a 30% rise",
+                    );
+                    Change::Multiply(m)
+                }
+                (None, Some(l)) => {
+                    cx.number(
+                        &at("level"),
+                        &who,
+                        l,
+                        l >= 0.0 && l.is_finite() && l < 1e12,
+                        "a number of units per day, >= 0",
+                        "`level` replaces the day's forecast with this many units",
+                    );
+                    Change::Level(l)
+                }
+                (Some(_), Some(_)) => {
+                    cx.err(
+                        &at("level"),
+                        format!("{what} has both `multiply` and `level`"),
+                        "give one: `multiply` scales the forecast, `level` replaces it",
+                    );
+                    Change::Multiply(1.0)
+                }
+                (None, None) => {
+                    cx.missing(
+                        &at("multiply"),
+                        &what,
+                        "give `multiply: 0.6` (scale the forecast) or `level: 5000` (replace it)",
+                    );
+                    Change::Multiply(1.0)
+                }
+            };
+            if let (Some(from), Some(to)) = (from, to) {
+                adjustments.push(Adjustment {
+                    from,
+                    to,
+                    change,
+                    note: text_or(&a.note, ""),
+                });
+            }
+        }
+        let sharing = cx.choice(
+            &at("sharing"),
+            &who,
+            &p.sharing,
+            &[("split", Sharing::Split), ("overlap", Sharing::Overlap)],
+            Sharing::Split,
+        );
+        let max_concurrent = match p.max_concurrent {
+            Some(m) => {
+                if cx.number(
+                    &at("max_concurrent"),
+                    &who,
+                    m,
+                    whole(m, 1.0, 10_000.0),
+                    "a whole number from 1 to 10000",
+                    "the most tests that may run on this pool at once",
+                ) {
+                    m as u32
+                } else {
+                    1
+                }
+            }
+            None => {
+                cx.missing(
+                    &at("max_concurrent"),
+                    &format!("pool `{id}`"),
+                    "give the most tests that may run on this pool at once, e.g. `max_concurrent: 3`",
+                );
+                1
+            }
+        };
+        out.push(Pool {
+            label: text_or(&p.label, &id),
+            id,
+            forecast: Forecast {
+                daily,
+                weekday,
+                adjustments,
+                scales: Vec::new(),
+            },
+            sharing,
+            max_concurrent,
+        });
+    }
+    out
+}
+
+/// A date that must lie inside the window.
+fn inside(
+    cx: &mut Ctx,
+    key: &str,
+    who: &str,
+    date: Option<NaiveDate>,
+    window: Option<Window>,
+) -> Option<NaiveDate> {
+    let (Some(d), Some(w)) = (date, window) else {
+        return date;
+    };
+    if !w.contains(d) {
+        let side = if d < w.start {
+            "before the window starts"
+        } else {
+            "after the window ends"
+        };
+        cx.err(
+            key,
+            format!("{who}`{}` {d} is {side}", leaf(key)),
+            format!(
+                "the window runs from {} to {}; move the date inside it or widen `window`",
+                w.start, w.end
+            ),
+        );
+        return None;
+    }
+    Some(d)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn experiments(
+    cx: &mut Ctx,
+    raw: Vec<RawExperiment>,
+    pool_ids: &[&str],
+    window: Option<Window>,
+    d: &Defaults,
+    defaults_ok: bool,
+    share_levels: &[f64],
+) -> Vec<Experiment> {
+    let ids = ids(
+        cx,
+        "experiments",
+        "experiment",
+        raw.iter().map(|e| e.id.as_ref()).collect(),
+    );
+    let id_refs: Vec<&str> = ids.iter().map(|s| s.as_str()).collect();
+    let mut out = Vec::new();
+    for (i, (e, id)) in raw.iter().zip(&ids).enumerate() {
+        let at = |k: &str| format!("experiments[{i}].{k}");
+        let who = format!("experiment `{id}`: ");
+        let what = format!("experiment `{id}`");
+        let pool = match &e.pool {
+            Some(p) => cx.reference(&at("pool"), &who, p.as_str().trim(), "pool", pool_ids),
+            None => {
+                cx.missing(
+                    &at("pool"),
+                    &what,
+                    "name the pool whose traffic it uses, e.g. `pool: home`",
+                );
+                None
+            }
+        };
+        let (design, design_ok) = design(cx, e, i, &who, &what, d);
+        let need = if design_ok && defaults_ok {
+            match sizing::sample_size(&design) {
+                Ok(n) => Some(n),
+                Err(err) => {
+                    sizing_error(cx, e, i, &who, &err);
+                    None
+                }
+            }
+        } else {
+            None
+        };
+        let priority = e.priority.unwrap_or(1.0);
+        cx.number(
+            &at("priority"),
+            &who,
+            priority,
+            priority > 0.0 && priority.is_finite() && priority <= 1e9,
+            "a positive weight",
+            "higher means more valuable; 1 is the default",
+        );
+        let max_share = e.max_share.unwrap_or(1.0);
+        if cx.number(
+            &at("max_share"),
+            &who,
+            max_share,
+            max_share > 0.0 && max_share <= 1.0,
+            "a share in (0, 1]",
+            "the largest fraction of the pool this test may take; 1 for no limit",
+        ) {
+            if let Some(&lowest) = share_levels.first() {
+                if max_share < lowest {
+                    cx.err(
+                        &at("max_share"),
+                        format!("{who}`max_share` {max_share} is below the smallest share level {lowest}; the planner could never run it"),
+                        format!("raise `max_share` to at least {lowest}, or add a smaller value to `share_levels`"),
+                    );
+                }
+            }
+        }
+        let min_days = e.min_days.unwrap_or(f64::from(d.min_days));
+        let min_ok = cx.number(
+            &at("min_days"),
+            &who,
+            min_days,
+            whole(min_days, 1.0, MAX_DAYS_SETTING),
+            "a whole number of days from 1 to 366",
+            "two weeks (14) is common practice",
+        );
+        let earliest = cx.date(&at("earliest_start"), &who, &e.earliest_start);
+        let earliest = inside(cx, &at("earliest_start"), &who, earliest, window);
+        let deadline = cx.date(&at("deadline"), &who, &e.deadline);
+        let deadline = inside(cx, &at("deadline"), &who, deadline, window);
+        if let (Some(s), Some(dl)) = (earliest, deadline) {
+            if dl < s {
+                cx.err(
+                    &at("deadline"),
+                    format!("{who}`deadline` {dl} is before `earliest_start` {s}"),
+                    "the deadline is the last day its data may run to; it must come after the earliest start",
+                );
+            }
+        }
+        let mut after: Vec<Prerequisite> = Vec::new();
+        for (j, a) in e.after.iter().flatten().enumerate() {
+            let (ref_id, gap, key, gap_key) = match a {
+                RawAfter::Id(t) => (Some(t), 0.0, format!("experiments[{i}].after[{j}]"), None),
+                RawAfter::WithGap(g) => {
+                    let key = format!("experiments[{i}].after[{j}].id");
+                    if g.id.is_none() {
+                        cx.missing(
+                            &key,
+                            &format!("`after` entry {} of {what}", j + 1),
+                            "give the id of the experiment that must end first",
+                        );
+                    }
+                    (
+                        g.id.as_ref(),
+                        g.gap_days.unwrap_or(0.0),
+                        key,
+                        Some(format!("experiments[{i}].after[{j}].gap_days")),
+                    )
+                }
+            };
+            let gap_ok = match &gap_key {
+                Some(k) => cx.number(
+                    k,
+                    &who,
+                    gap,
+                    whole(gap, 0.0, MAX_DAYS_SETTING),
+                    "a whole number of days from 0 to 366",
+                    "days left free after the earlier test ends, e.g. for its analysis",
+                ),
+                None => true,
+            };
+            let Some(ref_id) = ref_id else { continue };
+            let ref_id = ref_id.as_str().trim();
+            if ref_id == id {
+                cx.err(
+                    &key,
+                    format!("{who}lists itself in `after`"),
+                    "an experiment cannot wait for its own end; remove the entry",
+                );
+                continue;
+            }
+            if let Some(k) = cx.reference(&key, &who, ref_id, "experiment", &id_refs) {
+                if after.iter().any(|p| p.experiment == k) {
+                    cx.err(
+                        &key,
+                        format!("{who}`{ref_id}` is listed twice in `after`"),
+                        "list each prerequisite once",
+                    );
+                } else if gap_ok {
+                    after.push(Prerequisite {
+                        experiment: k,
+                        gap_days: gap as u32,
+                    });
+                }
+            }
+        }
+        let mut not_with = Vec::new();
+        for (j, t) in e.not_with.iter().flatten().enumerate() {
+            let key = format!("experiments[{i}].not_with[{j}]");
+            let other = t.as_str().trim();
+            if other == id {
+                cx.err(
+                    &key,
+                    format!("{who}lists itself in `not_with`"),
+                    "remove the entry; `not_with` names other experiments",
+                );
+                continue;
+            }
+            if let Some(k) = cx.reference(&key, &who, other, "experiment", &id_refs) {
+                not_with.push(k);
+            }
+        }
+        out.push(Experiment {
+            id: id.clone(),
+            title: text_or(&e.title, id),
+            owner: text_or(&e.owner, ""),
+            pool: pool.unwrap_or(usize::MAX),
+            design,
+            need: need.unwrap_or(SampleSize {
+                control_exact: 0.0,
+                treatment_exact: 0.0,
+                control: 0,
+                treatment: 0,
+                arms: design.arms,
+                total: 0,
+                comparison_alpha: 0.0,
+            }),
+            priority,
+            earliest_start: earliest,
+            deadline,
+            max_share,
+            min_days: if min_ok { min_days as u32 } else { d.min_days },
+            whole_weeks: e.whole_weeks.unwrap_or(d.whole_weeks),
+            after,
+            not_with,
+        });
+    }
+    // `not_with` holds both ways, sorted, without duplicates.
+    let pairs: Vec<(usize, usize)> = out
+        .iter()
+        .enumerate()
+        .flat_map(|(i, e)| e.not_with.iter().map(move |&j| (i, j)))
+        .collect();
+    for (i, j) in pairs {
+        out[j].not_with.push(i);
+    }
+    for e in &mut out {
+        e.not_with.sort_unstable();
+        e.not_with.dedup();
+    }
+    cycles(cx, &out);
+    out
+}
+
+/// The design of one experiment: its overrides over the defaults, each
+/// field range-checked here so that every bad field is reported.
+fn design(
+    cx: &mut Ctx,
+    e: &RawExperiment,
+    i: usize,
+    who: &str,
+    what: &str,
+    d: &Defaults,
+) -> (Design, bool) {
+    let before = cx.diags.len();
+    let at = |k: &str| format!("experiments[{i}].{k}");
+    let kind = cx.choice(
+        &at("metric"),
+        who,
+        &e.metric,
+        &[("rate", "rate"), ("mean", "mean")],
+        if e.sd.is_some() { "mean" } else { "rate" },
+    );
+    let baseline = e.baseline.unwrap_or(f64::NAN);
+    let metric = if kind == "rate" {
+        if e.sd.is_some() {
+            cx.err(
+                &at("sd"),
+                format!("{who}`sd` applies only to mean metrics"),
+                "remove `sd`, or set `metric: mean`",
+            );
+        }
+        match e.baseline {
+            None => cx.missing(
+                &at("baseline"),
+                what,
+                "give the control's conversion rate, e.g. `baseline: 0.04` for 4%",
+            ),
+            Some(b) => {
+                cx.number(
+                    &at("baseline"),
+                    who,
+                    b,
+                    b > 0.0 && b < 1.0,
+                    "a rate strictly inside (0, 1)",
+                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`",
+                );
+            }
+        }
+        Metric::Rate { baseline }
+    } else {
+        match e.baseline {
+            None => cx.missing(
+                &at("baseline"),
+                what,
+                "give the control's mean, e.g. `baseline: 38.5`",
+            ),
+            Some(b) => {
+                cx.number(
+                    &at("baseline"),
+                    who,
+                    b,
+                    b.is_finite() && b.abs() < 1e12,
+                    "a finite number",
+                    "the control arm's mean per unit",
+                );
+            }
+        }
+        let sd = e.sd.unwrap_or(f64::NAN);
+        match e.sd {
+            None => cx.missing(
+                &at("sd"),
+                what,
+                "a mean metric needs its standard deviation per unit, e.g. `sd: 61`",
+            ),
+            Some(s) => {
+                cx.number(
+                    &at("sd"),
+                    who,
+                    s,
+                    s > 0.0 && s.is_finite() && s < 1e12,
+                    "> 0",
+                    "the standard deviation of the metric per unit",
+                );
+            }
+        }
+        Metric::Mean { mean: baseline, sd }
+    };
+    let effect = match (e.mde, e.mde_abs) {
+        (Some(x), None) => Effect::Relative(x),
+        (None, Some(x)) => Effect::Absolute(x),
+        (Some(x), Some(_)) => {
+            cx.err(
+                &at("mde_abs"),
+                format!("{who}both `mde` and `mde_abs` are given"),
+                "give one: `mde` is relative (0.05 = 5% lift), `mde_abs` absolute",
+            );
+            Effect::Relative(x)
+        }
+        (None, None) => {
+            cx.missing(&at("mde"), what, "give the smallest effect worth detecting: `mde: 0.05` (5% relative) or `mde_abs: 0.002`");
+            Effect::Relative(f64::NAN)
+        }
+    };
+    let (ek, ev) = match effect {
+        Effect::Relative(x) => ("mde", x),
+        Effect::Absolute(x) => ("mde_abs", x),
+    };
+    if e.mde.is_some() || e.mde_abs.is_some() {
+        cx.number(
+            &at(ek),
+            who,
+            ev,
+            ev.is_finite() && ev != 0.0,
+            "a finite non-zero number",
+            "0.05 is a 5% relative lift",
+        );
+    }
+    let alpha = e.alpha.unwrap_or(d.alpha);
+    cx.number(
+        &at("alpha"),
+        who,
+        alpha,
+        alpha > 0.0 && alpha <= 0.5,
+        "in (0, 0.5]",
+        "the usual alpha is 0.05",
+    );
+    let power = e.power.unwrap_or(d.power);
+    cx.number(
+        &at("power"),
+        who,
+        power,
+        power > alpha && power < 1.0,
+        "in (alpha, 1)",
+        "the usual power is 0.8",
+    );
+    let arms = e.arms.unwrap_or(2.0);
+    let arms_ok = cx.number(
+        &at("arms"),
+        who,
+        arms,
+        whole(arms, 2.0, MAX_ARMS),
+        "a whole number from 2 to 50",
+        "arms count the control too: an A/B test has 2",
+    );
+    let ratio = e.ratio.unwrap_or(1.0);
+    cx.number(
+        &at("ratio"),
+        who,
+        ratio,
+        ratio > 0.0 && ratio.is_finite() && (1e-3..=1e3).contains(&ratio),
+        "in [0.001, 1000]",
+        "treatment units per control unit; 1 is an even split",
+    );
+    let rho = e.rho.unwrap_or(0.0);
+    cx.number(
+        &at("rho"),
+        who,
+        rho,
+        (0.0..1.0).contains(&rho),
+        "in [0, 1)",
+        "the correlation of the metric with its pre-period value; 0 for none",
+    );
+    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES[..2], d.sides);
+    let default_method = if matches!(metric, Metric::Rate { .. }) {
+        d.rate_method
+    } else {
+        d.mean_method
+    };
+    let all_methods: Vec<(&str, Method)> = RATE_METHODS
+        .iter()
+        .chain(MEAN_METHODS.iter())
+        .copied()
+        .collect();
+    let method = cx.choice(&at("method"), who, &e.method, &all_methods, default_method);
+    if e.method.is_some() && method.is_for_rates() != matches!(metric, Metric::Rate { .. }) {
+        let (kind, allowed) = if matches!(metric, Metric::Rate { .. }) {
+            ("rate", "`pooled`, `unpooled`, `corrected`, `arcsine`")
+        } else {
+            ("mean", "`t`, `z`")
+        };
+        cx.err(
+            &at("method"),
+            format!("{who}method `{method}` does not apply to a {kind} metric"),
+            format!("use one of {allowed}"),
+        );
+    }
+    let correction = cx.choice(
+        &at("correction"),
+        who,
+        &e.correction,
+        &CORRECTIONS,
+        d.correction,
+    );
+    let design = Design {
+        metric,
+        effect,
+        alpha,
+        power,
+        sides,
+        arms: if arms_ok { arms as u32 } else { 2 },
+        ratio,
+        method,
+        correction,
+        rho,
+    };
+    (design, cx.diags.len() == before)
+}
+
+/// A sizing failure after the range checks passed (an effect that leaves
+/// (0, 1), a size beyond any traffic), pointed at the key to change.
+fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &SizingError) {
+    let effect_key = if e.mde_abs.is_some() {
+        "mde_abs"
+    } else {
+        "mde"
+    };
+    let key = match err {
+        SizingError::OutOfRange { field, .. } => match *field {
+            "mean" => "baseline",
+            f => f,
+        },
+        SizingError::MethodMismatch { .. } => "method",
+        _ => effect_key,
+    };
+    let hint = match err {
+        SizingError::TreatmentRateOutside { .. } => {
+            "the treatment rate must stay strictly between 0 and 1"
+        }
+        SizingError::NoSolution(_) => "a larger MDE needs fewer units",
+        _ => "see docs/portfolio.md for the ranges",
+    };
+    cx.err(
+        &format!("experiments[{i}].{key}"),
+        format!("{who}{err}"),
+        hint,
+    );
+}
+
+/// Reports every cycle of the `after` graph once, as `a -> b -> a`.
+fn cycles(cx: &mut Ctx, exps: &[Experiment]) {
+    // Edge e -> p: e waits for p.
+    let n = exps.len();
+    let mut state = vec![0u8; n]; // 0 new, 1 on the stack, 2 done
+    let mut reported: BTreeSet<Vec<usize>> = BTreeSet::new();
+    for root in 0..n {
+        if state[root] != 0 {
+            continue;
+        }
+        // Iterative DFS: (node, next edge index).
+        let mut stack: Vec<(usize, usize)> = vec![(root, 0)];
+        state[root] = 1;
+        while let Some(&mut (v, ref mut k)) = stack.last_mut() {
+            if *k < exps[v].after.len() {
+                let w = exps[v].after[*k].experiment;
+                *k += 1;
+                match state[w] {
+                    0 => {
+                        state[w] = 1;
+                        stack.push((w, 0));
+                    }
+                    1 => {
+                        let pos = stack.iter().position(|&(x, _)| x == w).unwrap_or(0);
+                        let cycle: Vec<usize> = stack[pos..].iter().map(|&(x, _)| x).collect();
+                        let mut canon = cycle.clone();
+                        let m = canon
+                            .iter()
+                            .enumerate()
+                            .min_by_key(|(_, &x)| x)
+                            .map_or(0, |(i, _)| i);
+                        canon.rotate_left(m);
+                        if reported.insert(canon) {
+                            let mut names: Vec<&str> =
+                                cycle.iter().map(|&x| exps[x].id.as_str()).collect();
+                            names.push(exps[w].id.as_str());
+                            let entry = exps[v]
+                                .after
+                                .iter()
+                                .position(|p| p.experiment == w)
+                                .unwrap_or(0);
+                            // The entry's key: a plain id or the `id` of a mapping.
+                            let plain = format!("experiments[{v}].after[{entry}]");
+                            let key = match cx.index.and_then(|ix| ix.get(&format!("{plain}.id"))) {
+                                Some(_) => format!("{plain}.id"),
+                                None => plain,
+                            };
+                            cx.err(
+                                &key,
+                                format!("`after` forms a cycle: {}", names.join(" -> ")),
+                                "each test in the cycle waits for the next to end, so none can start; remove one of these `after` entries",
+                            );
+                        }
+                    }
+                    _ => {}
+                }
+            } else {
+                state[v] = 2;
+                stack.pop();
+            }
+        }
+    }
+}
+
+fn blackouts(
+    cx: &mut Ctx,
+    raw: Vec<RawBlackout>,
+    pool_ids: &[&str],
+    window: Option<Window>,
+) -> Vec<Blackout> {
+    let mut out = Vec::new();
+    for (i, b) in raw.into_iter().enumerate() {
+        let at = |k: &str| format!("blackouts[{i}].{k}");
+        let what = format!("blackout {}", i + 1);
+        let who = format!("blackout {}: ", i + 1);
+        if b.from.is_none() {
+            cx.missing(
+                &at("from"),
+                &what,
+                "give its first day, e.g. `from: 2027-02-01`",
+            );
+        }
+        if b.to.is_none() {
+            cx.missing(
+                &at("to"),
+                &what,
+                "give its last day (inclusive), e.g. `to: 2027-02-07`",
+            );
+        }
+        let from = cx.date(&at("from"), &who, &b.from);
+        let to = cx.date(&at("to"), &who, &b.to);
+        let mut dates_ok = from.is_some() && to.is_some();
+        if let (Some(f), Some(t)) = (from, to) {
+            if t < f {
+                cx.err(
+                    &at("to"),
+                    format!("{who}`to` {t} is before `from` {f}"),
+                    "dates run from `from` to `to`, both inclusive",
+                );
+                dates_ok = false;
+            }
+        }
+        if dates_ok {
+            dates_ok &= inside(cx, &at("from"), &who, from, window).is_some();
+            dates_ok &= inside(cx, &at("to"), &who, to, window).is_some();
+        }
+        let kind = match &b.kind {
+            None => {
+                cx.missing(
+                    &at("kind"),
+                    &what,
+                    "`kind: no_starts` (no test may start) or `kind: no_running` (no test may run)",
+                );
+                BlackoutKind::NoStarts
+            }
+            Some(_) => cx.choice(
+                &at("kind"),
+                &who,
+                &b.kind,
+                &[
+                    ("no_starts", BlackoutKind::NoStarts),
+                    ("no_running", BlackoutKind::NoRunning),
+                ],
+                BlackoutKind::NoStarts,
+            ),
+        };
+        let mut pools = Vec::new();
+        for (j, p) in b.pools.iter().flatten().enumerate() {
+            if let Some(k) = cx.reference(
+                &format!("blackouts[{i}].pools[{j}]"),
+                &who,
+                p.as_str().trim(),
+                "pool",
+                pool_ids,
+            ) {
+                pools.push(k);
+            }
+        }
+        pools.sort_unstable();
+        pools.dedup();
+        if let (true, Some(from), Some(to)) = (dates_ok, from, to) {
+            out.push(Blackout {
+                from,
+                to,
+                kind,
+                note: text_or(&b.note, ""),
+                pools,
+            });
+        }
+    }
+    out
+}
