@@ -13,12 +13,47 @@
 
 use super::options::{Instance, Opt};
 use super::state::{micro, WHOLE};
-use super::Backend;
 use crate::portfolio::Sharing;
 use good_lp::{
     variable, Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel,
     Variable, WithTimeLimit,
 };
+
+/// The LP/MILP backend behind good_lp.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Backend {
+    /// microlp: pure Rust, in every build.
+    #[default]
+    Microlp,
+    /// HiGHS, built from source with the `highs` cargo feature.
+    #[cfg(feature = "highs")]
+    Highs,
+}
+
+impl Backend {
+    /// The name in plans and tables.
+    pub fn name(self) -> &'static str {
+        match self {
+            Backend::Microlp => "microlp",
+            #[cfg(feature = "highs")]
+            Backend::Highs => "highs",
+        }
+    }
+
+    /// The backends this build has, the default first.
+    pub fn available() -> Vec<Backend> {
+        vec![
+            Backend::Microlp,
+            #[cfg(feature = "highs")]
+            Backend::Highs,
+        ]
+    }
+
+    /// The backend called `name`, if this build has it.
+    pub fn from_name(name: &str) -> Option<Backend> {
+        Backend::available().into_iter().find(|b| b.name() == name)
+    }
+}
 
 /// The part of the model the solver sees: for each test of the component,
 /// the indices of its options still allowed and whether it must run.

@@ -19,6 +19,7 @@ mod state;
 pub mod synthetic;
 mod verify;
 
+pub use lp::Backend;
 pub use search::SplitMix64;
 pub use verify::verify;
 
@@ -30,42 +31,6 @@ use crate::portfolio::{BlackoutKind, Portfolio, Sharing};
 use chrono::{Duration, NaiveDate};
 use options::{Instance, Role};
 use std::time::Instant;
-
-/// The LP/MILP backend behind good_lp.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum Backend {
-    /// microlp: pure Rust, in every build.
-    #[default]
-    Microlp,
-    /// HiGHS, built from source with the `highs` cargo feature.
-    #[cfg(feature = "highs")]
-    Highs,
-}
-
-impl Backend {
-    /// The name in plans and tables.
-    pub fn name(self) -> &'static str {
-        match self {
-            Backend::Microlp => "microlp",
-            #[cfg(feature = "highs")]
-            Backend::Highs => "highs",
-        }
-    }
-
-    /// The backends this build has, the default first.
-    pub fn available() -> Vec<Backend> {
-        vec![
-            Backend::Microlp,
-            #[cfg(feature = "highs")]
-            Backend::Highs,
-        ]
-    }
-
-    /// The backend called `name`, if this build has it.
-    pub fn from_name(name: &str) -> Option<Backend> {
-        Backend::available().into_iter().find(|b| b.name() == name)
-    }
-}
 
 /// A running test that keeps its traffic exactly as given.
 #[derive(Debug, Clone, PartialEq)]
@@ -313,7 +278,10 @@ fn assemble(
             };
             match run {
                 Some((start, end, share)) => {
-                    out.status = Status::Scheduled;
+                    out.status = match inst.roles[e] {
+                        Role::Fixed { .. } => Status::Running,
+                        _ => Status::Scheduled,
+                    };
                     out.start = Some(start);
                     out.end = Some(end);
                     out.result_date = Some(end + Duration::days(1));
@@ -321,7 +289,16 @@ fn assemble(
                     out.days = Some(((end - start).num_days() + 1) as u32);
                     out.units_expected = Some(units_between(p, ex.pool, start, end, share));
                 }
-                None => out.reason = why[e].clone(),
+                None => {
+                    out.reason = why[e].clone();
+                    if let Role::Excluded { ended, .. } = &inst.roles[e] {
+                        out.status = if ended.is_some() {
+                            Status::Finished
+                        } else {
+                            Status::Cancelled
+                        };
+                    }
+                }
             }
             out
         })
@@ -395,5 +372,7 @@ fn assemble(
         pools,
         blackouts,
         today: request.today.unwrap_or(w.start),
+        running: Vec::new(),
+        changes: None,
     }
 }

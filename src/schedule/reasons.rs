@@ -204,17 +204,39 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         pool_blocked |= full;
     }
     if pool_blocked {
-        // The scheduled tests on this pool across the days it could use.
-        let mut holders: Vec<usize> = (0..inst.roles.len())
-            .filter(|&b| p.experiments[b].pool == ex.pool && b != e)
-            .filter(|&b| match &inst.roles[b] {
-                Role::Fixed { start, end, .. } => {
-                    *start <= span_hi as i64 && span_lo as i64 <= *end
-                }
+        // The days, among those its runs could use, on which the pool
+        // cannot take even its smallest share, and the tests holding them.
+        let cap = pool.max_concurrent;
+        let split = pool.sharing == crate::portfolio::Sharing::Split;
+        let least = super::state::micro(shares[0]);
+        let full: Vec<usize> = (span_lo..=span_hi)
+            .filter(|&d| {
+                state.count[ex.pool][d] >= cap
+                    || (split && state.share[ex.pool][d] + least > super::state::WHOLE)
+            })
+            .collect();
+        let (from_d, to_d) = match (full.first(), full.last()) {
+            (Some(&a), Some(&b)) => (a, b),
+            _ => (span_lo, span_hi),
+        };
+        let runs_on = |b: usize, d: usize| -> bool {
+            match &inst.roles[b] {
+                Role::Fixed { start, end, .. } => *start <= d as i64 && d as i64 <= *end,
                 Role::Free => state
                     .opt(inst, b)
-                    .is_some_and(|bo| bo.start <= span_hi && span_lo <= bo.end),
+                    .is_some_and(|bo| bo.start <= d && d <= bo.end),
                 Role::Excluded { .. } => false,
+            }
+        };
+        let days: &[usize] = if full.is_empty() { &[] } else { &full };
+        let mut holders: Vec<usize> = (0..inst.roles.len())
+            .filter(|&b| p.experiments[b].pool == ex.pool && b != e)
+            .filter(|&b| {
+                if days.is_empty() {
+                    (span_lo..=span_hi).any(|d| runs_on(b, d))
+                } else {
+                    days.iter().any(|&d| runs_on(b, d))
+                }
             })
             .collect();
         holders.sort_by(|&a, &b| {
@@ -236,15 +258,20 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let higher = holders
             .iter()
             .all(|&b| p.experiments[b].priority >= ex.priority);
-        let from = w.date(span_lo as i64);
-        let to = w.date(span_hi as i64);
+        let from = w.date(from_d as i64);
+        let to = w.date(to_d as i64);
         let whom = if higher {
             "tests of higher priority"
         } else {
-            "tests the plan values more together"
+            "tests worth more to the plan together"
+        };
+        let gaps = if full.is_empty() || full.len() == to_d - from_d + 1 {
+            ""
+        } else {
+            " (with gaps too short for it)"
         };
         let mut text = format!(
-            "fits alone, but `{}` is full from {from} to {to} with {whom}: {}",
+            "fits alone, but `{}` is full from {from} to {to}{gaps} with {whom}: {}",
             pool.id,
             names.join(", ")
         );

@@ -86,6 +86,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
                     daily,
                     weekday: [1.05, 1.1, 1.1, 1.05, 1.0, 0.8, 0.9],
                     adjustments,
+                    scales: Vec::new(),
                 },
                 sharing: if split {
                     Sharing::Split

@@ -83,14 +83,14 @@ pub fn verify(
             ));
         }
         match pe.status {
-            Status::Scheduled => match (pe.start, pe.end, pe.share) {
+            Status::Scheduled | Status::Running => match (pe.start, pe.end, pe.share) {
                 (Some(s), Some(e), Some(sh)) => runs[i] = Some((s, e, sh)),
                 _ => bad.push(format!(
                     "`{}` is scheduled without a start, end and share",
                     ex.id
                 )),
             },
-            Status::Unscheduled => {
+            Status::Unscheduled | Status::Finished | Status::Cancelled => {
                 if pe.start.is_some() || pe.end.is_some() || pe.share.is_some() {
                     bad.push(format!("`{}` is unscheduled but has a run", ex.id));
                 }
