@@ -17,6 +17,8 @@ mod reasons;
 mod search;
 mod state;
 pub mod synthetic;
+#[cfg(test)]
+mod tests;
 mod verify;
 
 pub use lp::Backend;
