@@ -405,7 +405,8 @@ fn the_verifier_catches_broken_plans() {
     let r = PlanRequest::default();
     let good = plan(&p, &r);
     assert!(verify(&p, &r, &good).is_ok());
-    let breakers: Vec<(&str, Box<dyn Fn(&mut Plan)>)> = vec![
+    type Breaker = Box<dyn Fn(&mut Plan)>;
+    let breakers: Vec<(&str, Breaker)> = vec![
         (
             "end a day early",
             Box::new(|pl: &mut Plan| {
