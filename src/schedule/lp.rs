@@ -40,6 +40,16 @@ impl Backend {
         }
     }
 
+    /// Whether its MILP is worth running on whole components within a
+    /// time limit (microlp's is not: it returns nothing when stopped early).
+    pub fn solves_milp(self) -> bool {
+        match self {
+            Backend::Microlp => false,
+            #[cfg(feature = "highs")]
+            Backend::Highs => true,
+        }
+    }
+
     /// The backends this build has, the default first.
     pub fn available() -> Vec<Backend> {
         vec![

@@ -146,7 +146,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let mut all_proved = true;
     let mut lp_ok = true;
     let mut improved = false;
-    for comp in &comps {
+    for (c, comp) in comps.iter().enumerate() {
         let out = search::solve_component(
             &inst,
             comp,
@@ -154,6 +154,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
             request.backend,
             deadline,
             request.effort.max(1),
+            comps.len() - c,
         );
         bound += out.bound;
         all_proved &= out.proved;

@@ -76,6 +76,7 @@ pub(crate) fn solve_component(
     backend: Backend,
     deadline: Instant,
     effort: u32,
+    comps_left: usize,
 ) -> Outcome {
     let greedy_value = comp_value(inst, exps, state);
     let trivial: f64 = exps
@@ -97,7 +98,7 @@ pub(crate) fn solve_component(
     let t_lp = t0.elapsed().as_secs_f64();
     let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
     let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
-    let iters = (effort as usize) * 300 * exps.len().max(1);
+    let iters = (effort as usize) * (2000 * exps.len()).min(LNS_MAX_ITERS);
 
     // Start from the better of greedy and the LP rounding, then search.
     let mut best = state.clone();
@@ -115,6 +116,13 @@ pub(crate) fn solve_component(
         let budget = (effort as usize) * BNB_WORK / (nopt * nopt).max(1);
         if let Some(b) = branch_and_bound(inst, exps, &mut best, backend, deadline, budget) {
             bound = bound.min(b);
+        }
+    }
+    if backend.solves_milp() && !proved(&best, inst, exps, bound) && nopt <= MILP_MAX_OPTIONS {
+        if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, comps_left) {
+            if exact {
+                bound = bound.min(v);
+            }
         }
     }
     let value = comp_value(inst, exps, &best);
@@ -140,8 +148,67 @@ pub(crate) fn solve_component(
     }
 }
 
+/// Most iterations of the neighbourhood search per component (2,000 per
+/// test below that).
+const LNS_MAX_ITERS: usize = 40_000;
+
+/// Components with at most this many options go to the exact MILP, where
+/// the backend is good at it.
+const MILP_MAX_OPTIONS: usize = 8000;
+
+/// Hands the component's exact 0-1 model to the backend, warm-started from
+/// `best`, with a fair share of the time left. Adopts a better calendar;
+/// returns its value and whether the backend proved it optimal.
+fn exact_milp(
+    inst: &Instance,
+    exps: &[usize],
+    best: &mut State,
+    backend: Backend,
+    deadline: Instant,
+    comps_left: usize,
+) -> Option<(f64, bool)> {
+    let allowed: Vec<Vec<usize>> = exps
+        .iter()
+        .map(|&e| (0..inst.options[e].len()).collect())
+        .collect();
+    let forced = vec![false; exps.len()];
+    let sub = Sub {
+        exps,
+        allowed: &allowed,
+        forced: &forced,
+    };
+    let start: Vec<Option<usize>> = exps.iter().map(|&e| best.choice[e]).collect();
+    let seconds = remaining(deadline) / comps_left.max(1) as f64;
+    let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start)).ok()?;
+    let mut cand = best.clone();
+    for &e in exps {
+        cand.remove(inst, e);
+    }
+    let order = super::options::topological_order(inst.portfolio);
+    let mut pos = vec![usize::MAX; inst.roles.len()];
+    for (i, &e) in exps.iter().enumerate() {
+        pos[e] = i;
+    }
+    for e in order {
+        let i = pos[e];
+        if i == usize::MAX {
+            continue;
+        }
+        if let Some(j) = solved.x[i].iter().position(|&x| x > 0.5) {
+            let k = allowed[i][j];
+            if !cand.fits(inst, e, &inst.options[e][k]) {
+                return None;
+            }
+            cand.add(inst, e, k);
+        }
+    }
+    adopt(inst, exps, best, &cand);
+    let v = comp_value(inst, exps, &cand);
+    Some((v, solved.optimal))
+}
+
 /// Components with at most this many options get a branch and bound.
-const BNB_MAX_OPTIONS: usize = 600;
+const BNB_MAX_OPTIONS: usize = 2500;
 /// Its node budget times the square of the component's options (about
 /// the cost of one LP solve): a deterministic work budget.
 const BNB_WORK: usize = 25_000_000;

@@ -526,3 +526,42 @@ proptest! {
         }
     }
 }
+
+/// The HiGHS build and the default build agree on the value within the gap
+/// each reports: each plan's value lies under the other's bound, and the
+/// exact optimum HiGHS proves lies between each plan's value and bound.
+#[cfg(feature = "highs")]
+#[test]
+fn highs_and_microlp_agree_within_their_gaps() {
+    for seed in 0..4 {
+        let p = synthetic::portfolio(&synthetic::Spec::medium(seed));
+        let micro = plan(&p, &PlanRequest::default());
+        let highs_request = PlanRequest {
+            backend: Backend::Highs,
+            ..PlanRequest::default()
+        };
+        let highs = plan(&p, &highs_request);
+        for (plan, r) in [(&micro, &PlanRequest::default()), (&highs, &highs_request)] {
+            if let Err(v) = verify(&p, r, plan) {
+                panic!("verifier: {v:#?}");
+            }
+        }
+        let tol = 1e-6 * micro.solver.bound.max(1.0);
+        assert!(
+            micro.solver.value <= highs.solver.bound + tol,
+            "seed {seed}"
+        );
+        assert!(
+            highs.solver.value <= micro.solver.bound + tol,
+            "seed {seed}"
+        );
+        if let Some(opt) = exact_value(&p, &highs_request, 120.0) {
+            for s in [&micro.solver, &highs.solver] {
+                assert!(
+                    s.value <= opt + tol && opt <= s.bound + tol,
+                    "seed {seed}: {s:?} vs {opt}"
+                );
+            }
+        }
+    }
+}
