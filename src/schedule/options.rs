@@ -29,6 +29,9 @@ pub(crate) struct Opt {
     pub share: f64,
     /// Its contribution to the objective.
     pub value: f64,
+    /// First and last of its pool's segments it covers (see `Instance::segments`).
+    pub seg_lo: usize,
+    pub seg_hi: usize,
 }
 
 /// What the request says about one experiment.
@@ -63,6 +66,10 @@ pub(crate) struct Instance<'a> {
     pub preds: Vec<Vec<(usize, u32)>>,
     /// Free successors: (successor, gap days), per experiment.
     pub succs: Vec<Vec<(usize, u32)>>,
+    /// Per pool, the first day of each segment, then `days`: stretches of
+    /// days on which no option starts or ends and no fixed run changes, so
+    /// occupancy can be kept per segment (per week on the weekly grid).
+    pub segments: Vec<Vec<usize>>,
 }
 
 /// Objective weight of a run ending on day index `end` (the last day of
@@ -144,6 +151,7 @@ impl<'a> Instance<'a> {
             options: vec![Vec::new(); n],
             preds,
             succs,
+            segments: Vec::new(),
         };
         // Options in topological order so a test's bound can use its free
         // predecessors' earliest ends.
@@ -153,7 +161,49 @@ impl<'a> Instance<'a> {
                 inst.options[e] = inst.enumerate(e);
             }
         }
+        inst.segment();
         inst
+    }
+
+    /// Cuts each pool's days into segments and labels every option with
+    /// the segments it covers.
+    fn segment(&mut self) {
+        let p = self.portfolio;
+        let mut cuts: Vec<Vec<usize>> = vec![vec![0, self.days]; p.pools.len()];
+        for (e, opts) in self.options.iter().enumerate() {
+            let pool = p.experiments[e].pool;
+            for o in opts {
+                cuts[pool].push(o.start);
+                cuts[pool].push(o.end + 1);
+            }
+        }
+        for (e, role) in self.roles.iter().enumerate() {
+            if let Role::Fixed { start, end, .. } = role {
+                let pool = p.experiments[e].pool;
+                for c in [*start, *end + 1] {
+                    if c > 0 && c < self.days as i64 {
+                        cuts[pool].push(c as usize);
+                    }
+                }
+            }
+        }
+        for c in &mut cuts {
+            c.sort_unstable();
+            c.dedup();
+        }
+        for (e, opts) in self.options.iter_mut().enumerate() {
+            let c = &cuts[p.experiments[e].pool];
+            for o in opts {
+                o.seg_lo = c.partition_point(|&b| b < o.start);
+                o.seg_hi = c.partition_point(|&b| b <= o.end) - 1;
+            }
+        }
+        self.segments = cuts;
+    }
+
+    /// The segment of `pool` holding `day`.
+    pub fn segment_of(&self, pool: usize, day: usize) -> usize {
+        self.segments[pool].partition_point(|&b| b <= day) - 1
     }
 
     /// The earliest day index test `e` may start: today, its earliest start,
@@ -293,6 +343,8 @@ impl<'a> Instance<'a> {
                         self.days,
                         end as i64,
                     ),
+                    seg_lo: 0,
+                    seg_hi: 0,
                 });
             }
         }

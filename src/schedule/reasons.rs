@@ -197,9 +197,10 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let cap = pool.max_concurrent;
         let split = pool.sharing == crate::portfolio::Sharing::Split;
         let full = (o.start..=o.end).any(|d| {
-            state.count[ex.pool][d] >= cap
+            state.count_on(inst, ex.pool, d) >= cap
                 || (split
-                    && state.share[ex.pool][d] + super::state::micro(o.share) > super::state::WHOLE)
+                    && state.share_on(inst, ex.pool, d) + super::state::micro(o.share)
+                        > super::state::WHOLE)
         });
         pool_blocked |= full;
     }
@@ -211,8 +212,8 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let least = super::state::micro(shares[0]);
         let full: Vec<usize> = (span_lo..=span_hi)
             .filter(|&d| {
-                state.count[ex.pool][d] >= cap
-                    || (split && state.share[ex.pool][d] + least > super::state::WHOLE)
+                state.count_on(inst, ex.pool, d) >= cap
+                    || (split && state.share_on(inst, ex.pool, d) + least > super::state::WHOLE)
             })
             .collect();
         let (from_d, to_d) = match (full.first(), full.last()) {

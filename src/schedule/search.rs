@@ -94,11 +94,16 @@ pub(crate) fn solve_component(
         forced: &forced,
     };
     let t0 = Instant::now();
-    let relaxed = lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok();
+    let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
+    let relaxed = if nopt > LP_SPLIT_OPTIONS {
+        relax_by_pool(inst, exps, backend, deadline)
+    } else {
+        lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()
+    };
     let t_lp = t0.elapsed().as_secs_f64();
     let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
     let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
-    let iters = (effort as usize) * (2000 * exps.len()).min(LNS_MAX_ITERS);
+    let iters = (effort as usize) * (1500 * exps.len()).min(LNS_MAX_ITERS);
 
     // Start from the better of greedy and the LP rounding, then search.
     let mut best = state.clone();
@@ -111,7 +116,6 @@ pub(crate) fn solve_component(
         lns(inst, exps, &mut best, iters, &mut rng, deadline);
     }
     let mut bound = bound;
-    let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
     if relaxed.is_some() && !proved(&best, inst, exps, bound) && nopt <= BNB_MAX_OPTIONS {
         let budget = (effort as usize) * BNB_WORK / (nopt * nopt).max(1);
         if let Some(b) = branch_and_bound(inst, exps, &mut best, backend, deadline, budget) {
@@ -148,7 +152,58 @@ pub(crate) fn solve_component(
     }
 }
 
-/// Most iterations of the neighbourhood search per component (2,000 per
+/// Components with more options than this get their bound from one LP
+/// per pool, with the links between pools (`not_with`, `after`) dropped:
+/// a relaxation of the full LP, so a valid bound no lower than its value,
+/// and several times faster on large portfolios.
+const LP_SPLIT_OPTIONS: usize = 8000;
+
+/// The LP relaxation of a component solved pool by pool, links between
+/// pools dropped; `None` if any pool's LP fails.
+fn relax_by_pool(
+    inst: &Instance,
+    exps: &[usize],
+    backend: Backend,
+    deadline: Instant,
+) -> Option<lp::Solved> {
+    let p = inst.portfolio;
+    let mut pools: Vec<usize> = exps.iter().map(|&e| p.experiments[e].pool).collect();
+    pools.sort_unstable();
+    pools.dedup();
+    let mut x: Vec<Vec<f64>> = exps
+        .iter()
+        .map(|&e| vec![0.0; inst.options[e].len()])
+        .collect();
+    let mut value = 0.0;
+    for pool in pools {
+        let members: Vec<usize> = (0..exps.len())
+            .filter(|&i| p.experiments[exps[i]].pool == pool)
+            .collect();
+        let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
+        let allowed: Vec<Vec<usize>> = sub_exps
+            .iter()
+            .map(|&e| (0..inst.options[e].len()).collect())
+            .collect();
+        let forced = vec![false; sub_exps.len()];
+        let sub = Sub {
+            exps: &sub_exps,
+            allowed: &allowed,
+            forced: &forced,
+        };
+        let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()?;
+        value += solved.value;
+        for (k, &i) in members.iter().enumerate() {
+            x[i] = solved.x[k].clone();
+        }
+    }
+    Some(lp::Solved {
+        value,
+        x,
+        optimal: true,
+    })
+}
+
+/// Most iterations of the neighbourhood search per component (1,500 per
 /// test below that).
 const LNS_MAX_ITERS: usize = 40_000;
 
@@ -522,6 +577,7 @@ fn lns(
     deadline: Instant,
 ) {
     let p = inst.portfolio;
+    let eff = chain_priority(inst);
     let mut best = state.clone();
     let mut best_value = best.value;
     let mut removed: Vec<usize> = Vec::new();
@@ -555,6 +611,15 @@ fn lns(
                     if clash {
                         state.remove_with_successors(inst, e, &mut removed);
                     }
+                }
+            }
+            // Predecessors that end too late for this start make way too.
+            for &(pre, gap) in &inst.preds[u] {
+                if state
+                    .opt(inst, pre)
+                    .is_some_and(|po| po.end + 1 + gap as usize > o.start)
+                {
+                    state.remove_with_successors(inst, pre, &mut removed);
                 }
             }
             if state.fits(inst, u, &o) {
@@ -603,7 +668,7 @@ fn lns(
             .copied()
             .filter(|&e| touched.binary_search(&p.experiments[e].pool).is_ok())
             .collect();
-        recreate(inst, &local, state, rng);
+        recreate(inst, &local, state, rng, &eff);
         // Only this component changes, so the global value compares alike.
         let cur_value = state.value;
         // Record-to-record travel: keep a move that stays within a
@@ -620,16 +685,29 @@ fn lns(
     copy_choices(inst, exps, state, &best);
 }
 
+/// Each test's priority raised to the largest of its successors' (and
+/// theirs), so a predecessor is re-inserted before the tests waiting on it.
+pub(crate) fn chain_priority(inst: &Instance) -> Vec<f64> {
+    let p = inst.portfolio;
+    let mut eff: Vec<f64> = p.experiments.iter().map(|e| e.priority).collect();
+    let order = super::options::topological_order(p);
+    for &e in order.iter().rev() {
+        for &(s, _) in &inst.succs[e] {
+            eff[e] = eff[e].max(eff[s]);
+        }
+    }
+    eff
+}
+
 /// Re-inserts every unscheduled test of the component, in priority order
 /// with noise, each at its best fitting option or, now and then, at the
 /// leanest option worth nearly as much.
-fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitMix64) {
-    let p = inst.portfolio;
+fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitMix64, eff: &[f64]) {
     let mut order: Vec<(f64, usize)> = exps
         .iter()
         .copied()
         .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
-        .map(|e| (p.experiments[e].priority * (0.7 + 0.6 * rng.unit()), e))
+        .map(|e| (eff[e] * (0.7 + 0.6 * rng.unit()), e))
         .collect();
     order.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
     let lean = rng.below(3) == 0;

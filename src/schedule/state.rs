@@ -21,9 +21,9 @@ pub(crate) fn micro(share: f64) -> i64 {
 pub(crate) struct State {
     /// Index into `Instance::options[e]` of each scheduled free test.
     pub choice: Vec<Option<usize>>,
-    /// Share in use per pool and day, in millionths.
+    /// Share in use per pool and segment, in millionths.
     pub share: Vec<Vec<i64>>,
-    /// Tests running per pool and day.
+    /// Tests running per pool and segment.
     pub count: Vec<Vec<u32>>,
     /// Objective value of the free tests scheduled.
     pub value: f64,
@@ -32,14 +32,30 @@ pub(crate) struct State {
 impl State {
     /// The calendar with only the fixed runs.
     pub fn new(inst: &Instance) -> State {
+        // Fixed runs change only at segment boundaries: a segment's first
+        // day stands for all of it.
+        let firsts = |pool: usize| {
+            let c = &inst.segments[pool];
+            c[..c.len() - 1].to_vec()
+        };
         State {
             choice: vec![None; inst.roles.len()],
-            share: inst
-                .base_share
-                .iter()
-                .map(|days| days.iter().map(|&s| micro(s)).collect())
+            share: (0..inst.segments.len())
+                .map(|pool| {
+                    firsts(pool)
+                        .into_iter()
+                        .map(|d| micro(inst.base_share[pool][d]))
+                        .collect()
+                })
                 .collect(),
-            count: inst.base_count.clone(),
+            count: (0..inst.segments.len())
+                .map(|pool| {
+                    firsts(pool)
+                        .into_iter()
+                        .map(|d| inst.base_count[pool][d])
+                        .collect()
+                })
+                .collect(),
             value: 0.0,
         }
     }
@@ -64,13 +80,13 @@ impl State {
         let ex = &p.experiments[e];
         let pool = &p.pools[ex.pool];
         let cap = pool.max_concurrent;
-        let counts = &self.count[ex.pool][o.start..=o.end];
+        let counts = &self.count[ex.pool][o.seg_lo..=o.seg_hi];
         if counts.iter().any(|&c| c >= cap) {
             return false;
         }
         if pool.sharing == Sharing::Split {
             let s = micro(o.share);
-            if self.share[ex.pool][o.start..=o.end]
+            if self.share[ex.pool][o.seg_lo..=o.seg_hi]
                 .iter()
                 .any(|&u| u + s > WHOLE)
             {
@@ -106,9 +122,9 @@ impl State {
         let o = inst.options[e][k];
         let pool = inst.portfolio.experiments[e].pool;
         let s = micro(o.share);
-        for d in o.start..=o.end {
-            self.share[pool][d] += s;
-            self.count[pool][d] += 1;
+        for g in o.seg_lo..=o.seg_hi {
+            self.share[pool][g] += s;
+            self.count[pool][g] += 1;
         }
         self.choice[e] = Some(k);
         self.value += o.value;
@@ -122,9 +138,9 @@ impl State {
         let o = inst.options[e][k];
         let pool = inst.portfolio.experiments[e].pool;
         let s = micro(o.share);
-        for d in o.start..=o.end {
-            self.share[pool][d] -= s;
-            self.count[pool][d] -= 1;
+        for g in o.seg_lo..=o.seg_hi {
+            self.share[pool][g] -= s;
+            self.count[pool][g] -= 1;
         }
         self.value -= o.value;
     }
@@ -140,6 +156,16 @@ impl State {
         }
         self.remove(inst, e);
         out.push(e);
+    }
+
+    /// Tests running on `pool` on `day`.
+    pub fn count_on(&self, inst: &Instance, pool: usize, day: usize) -> u32 {
+        self.count[pool][inst.segment_of(pool, day)]
+    }
+
+    /// Share of `pool` in use on `day`, in millionths.
+    pub fn share_on(&self, inst: &Instance, pool: usize, day: usize) -> i64 {
+        self.share[pool][inst.segment_of(pool, day)]
     }
 
     /// The most valuable option of unscheduled `e` that fits now.
