@@ -393,6 +393,41 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
 }
 
 #[test]
+fn edge_cases_give_plans_with_reasons() {
+    // A pool with no traffic, a share cap below every level, and a re-plan
+    // whose today is past the window.
+    let mut tiny = exp("tiny-share", 0, 7000, 1.0);
+    tiny.max_share = 0.25;
+    let p = portfolio(
+        vec![
+            pool("home", 1000.0, Sharing::Split, 3),
+            pool("dark", 0.0, Sharing::Split, 3),
+        ],
+        vec![exp("a", 0, 7000, 1.0), exp("b", 1, 7000, 1.0), tiny],
+    );
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        reason_of(&plan, "b"),
+        "needs 7,000 units; at 100% of `dark` the forecast does not deliver them within three years"
+    );
+    assert_eq!(
+        reason_of(&plan, "tiny-share"),
+        "no share level is at or below its maximum share of 25%; add a smaller level or raise it"
+    );
+    let late = PlanRequest {
+        today: Some(d("2027-02-15")),
+        ..PlanRequest::default()
+    };
+    let plan = planned(&p, &late);
+    assert!(plan.experiments.iter().all(|e| e.start.is_none()));
+    assert_eq!(
+        reason_of(&plan, "a"),
+        "its earliest possible start, 2027-02-15, is past the window"
+    );
+    assert_eq!(plan.solver.value, 0.0);
+}
+
+#[test]
 fn the_verifier_catches_broken_plans() {
     let mut c = exp("c", 0, 7000, 1.0);
     c.not_with = vec![0];
