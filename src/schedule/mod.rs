@@ -5,8 +5,9 @@
 //! components (pools linked by no `not_with` or `after`), and optimises each
 //! (`search`, over the LP relaxation in `lp`); `reasons` explains every test
 //! left out. [`verify`] is an independent checker that re-derives every
-//! constraint from the portfolio and the forecast; the planner never calls
-//! it. A [`PlanRequest`] carries what a re-plan knows: today, the running
+//! constraint from the portfolio and the forecast; the search never uses it,
+//! and [`plan`] runs it once on the finished plan as a guard (falling back
+//! to the greedy calendar should it ever fail). A [`PlanRequest`] carries what a re-plan knows: today, the running
 //! tests that hold their traffic, and the tests that left the queue.
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
@@ -184,13 +185,24 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
         bound,
         gap: if all_proved { 0.0 } else { gap },
     };
-    assemble(
-        &inst,
-        &state,
-        solver,
-        fixed_value + greedy_state.value,
-        request,
-    )
+    let greedy_value = fixed_value + greedy_state.value;
+    let plan = assemble(&inst, &state, solver.clone(), greedy_value, request);
+    // A last guard, after planning: should the optimised calendar ever
+    // fail the independent check, fall back to the greedy one.
+    if verify(portfolio, request, &plan).is_ok() {
+        return plan;
+    }
+    let fallback = SolverSummary {
+        status: "greedy".to_string(),
+        value: greedy_value,
+        gap: if solver.bound.abs() > 1e-12 {
+            ((solver.bound - greedy_value) / solver.bound.abs()).max(0.0)
+        } else {
+            0.0
+        },
+        ..solver
+    };
+    assemble(&inst, &greedy_state, fallback, greedy_value, request)
 }
 
 /// The exact optimum of the 0-1 model, component by component, with the

@@ -100,6 +100,8 @@ fn planned(p: &Portfolio, r: &PlanRequest) -> Plan {
     }
     assert!(plan.solver.value <= plan.solver.bound + 1e-9);
     assert!(plan.solver.value >= plan.greedy_value - 1e-9);
+    // Never the fallback: the optimised plan itself passed the guard.
+    assert_ne!(plan.solver.status, "greedy");
     plan
 }
 
@@ -549,6 +551,7 @@ proptest! {
         }
         prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
         prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
+        prop_assert_ne!(a.solver.status.as_str(), "greedy");
         // Same input, same plan.
         let mut b = plan(&p, &r);
         b.solver.seconds = a.solver.seconds;
@@ -559,6 +562,7 @@ proptest! {
         if let Err(v) = verify(&p, &rr, &c) {
             panic!("verifier on the re-plan: {v:#?}");
         }
+        prop_assert_ne!(c.solver.status.as_str(), "greedy");
     }
 }
 

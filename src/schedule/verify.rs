@@ -4,8 +4,9 @@
 //! forecast, sharing no code with the planner beyond the validated model
 //! and [`units_on`]: it recomputes each run's end by its own day-by-day
 //! loop, rebuilds every pool's daily occupancy from the listed runs, and
-//! recomputes the objective. The planner never calls it; the tests run it
-//! on every plan they make, and so may a re-planner on its results.
+//! recomputes the objective. The search never uses it; `schedule::plan`
+//! runs it once on the finished plan as a guard, the tests run it on every
+//! plan they make, and so may a re-planner on its results.
 
 use super::PlanRequest;
 use crate::forecast::units_on;
