@@ -147,15 +147,34 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let mut all_proved = true;
     let mut lp_ok = true;
     let mut improved = false;
-    for (c, comp) in comps.iter().enumerate() {
+    // Every bound first, then the searches, each with a share of the time
+    // left in proportion to its options (only a safety net: the searches
+    // stop on their work budgets long before on a machine of ordinary speed).
+    let relaxed: Vec<Option<lp::Solved>> = comps
+        .iter()
+        .map(|comp| search::relax(&inst, comp, request.backend, deadline))
+        .collect();
+    let weight = |comp: &Vec<usize>| -> f64 {
+        comp.iter()
+            .map(|&e| inst.options[e].len() as f64)
+            .sum::<f64>()
+            .max(1.0)
+    };
+    let mut weight_left: f64 = comps.iter().map(weight).sum();
+    for (comp, lp) in comps.iter().zip(&relaxed) {
+        let now = Instant::now();
+        let left = deadline.saturating_duration_since(now).as_secs_f64();
+        let share = weight(comp) / weight_left.max(1.0);
+        weight_left -= weight(comp);
+        let comp_deadline = now + std::time::Duration::from_secs_f64(left * share.min(1.0));
         let out = search::solve_component(
             &inst,
             comp,
             &mut state,
+            lp.as_ref(),
             request.backend,
-            deadline,
+            comp_deadline,
             request.effort.max(1),
-            comps.len() - c,
         );
         bound += out.bound;
         all_proved &= out.proved;

@@ -67,22 +67,19 @@ fn remaining(deadline: Instant) -> f64 {
         .as_secs_f64()
 }
 
-/// Optimises the tests `exps` of one component in `state` (which holds the
-/// greedy calendar on entry).
-pub(crate) fn solve_component(
+/// The LP relaxation of one component: one LP, or one per pool (links
+/// between pools dropped) when the component is very large. `None` when
+/// the backend fails or runs out of time.
+pub(crate) fn relax(
     inst: &Instance,
     exps: &[usize],
-    state: &mut State,
     backend: Backend,
     deadline: Instant,
-    effort: u32,
-    comps_left: usize,
-) -> Outcome {
-    let greedy_value = comp_value(inst, exps, state);
-    let trivial: f64 = exps
-        .iter()
-        .map(|&e| inst.options[e].first().map_or(0.0, |o| o.value))
-        .sum();
+) -> Option<lp::Solved> {
+    let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
+    if nopt > LP_SPLIT_OPTIONS {
+        return relax_by_pool(inst, exps, backend, deadline);
+    }
     let allowed: Vec<Vec<usize>> = exps
         .iter()
         .map(|&e| (0..inst.options[e].len()).collect())
@@ -93,21 +90,41 @@ pub(crate) fn solve_component(
         allowed: &allowed,
         forced: &forced,
     };
+    lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()
+}
+
+/// Optimises the tests `exps` of one component in `state` (which holds the
+/// greedy calendar on entry), from its LP relaxation `relaxed`, until its
+/// work budget is spent or `deadline`.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn solve_component(
+    inst: &Instance,
+    exps: &[usize],
+    state: &mut State,
+    relaxed: Option<&lp::Solved>,
+    backend: Backend,
+    deadline: Instant,
+    effort: u32,
+) -> Outcome {
+    let greedy_value = comp_value(inst, exps, state);
+    let trivial: f64 = exps
+        .iter()
+        .map(|&e| inst.options[e].first().map_or(0.0, |o| o.value))
+        .sum();
+    let allowed: Vec<Vec<usize>> = exps
+        .iter()
+        .map(|&e| (0..inst.options[e].len()).collect())
+        .collect();
     let t0 = Instant::now();
     let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
-    let relaxed = if nopt > LP_SPLIT_OPTIONS {
-        relax_by_pool(inst, exps, backend, deadline)
-    } else {
-        lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()
-    };
-    let t_lp = t0.elapsed().as_secs_f64();
+    let t_lp = 0.0;
     let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
     let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
-    let iters = (effort as usize) * (1500 * exps.len()).min(LNS_MAX_ITERS);
+    let iters = (effort as usize) * (1000 * exps.len()).min(LNS_MAX_ITERS);
 
     // Start from the better of greedy and the LP rounding, then search.
     let mut best = state.clone();
-    if let Some(lpx) = &relaxed {
+    if let Some(lpx) = relaxed {
         let mut cand = state.clone();
         round(inst, exps, &allowed, &lpx.x, &mut cand);
         adopt(inst, exps, &mut best, &cand);
@@ -123,7 +140,7 @@ pub(crate) fn solve_component(
         }
     }
     if backend.solves_milp() && !proved(&best, inst, exps, bound) && nopt <= MILP_MAX_OPTIONS {
-        if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, comps_left) {
+        if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, 1) {
             if exact {
                 bound = bound.min(v);
             }
@@ -203,9 +220,9 @@ fn relax_by_pool(
     })
 }
 
-/// Most iterations of the neighbourhood search per component (1,500 per
+/// Most iterations of the neighbourhood search per component (1,000 per
 /// test below that).
-const LNS_MAX_ITERS: usize = 40_000;
+const LNS_MAX_ITERS: usize = 25_000;
 
 /// Components with at most this many options go to the exact MILP, where
 /// the backend is good at it.
