@@ -283,7 +283,7 @@ fn exact_milp(
 const BNB_MAX_OPTIONS: usize = 2500;
 /// Its node budget times the square of the component's options (about
 /// the cost of one LP solve): a deterministic work budget.
-const BNB_WORK: usize = 25_000_000;
+const BNB_WORK: usize = 12_000_000;
 
 /// Depth-first branch and bound over LP relaxations: branch on the most
 /// nearly chosen fractional option (take it / forbid it), prune by the
