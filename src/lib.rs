@@ -8,6 +8,8 @@
 
 pub mod cli;
 pub mod forecast;
+pub mod output;
 pub mod plan;
 pub mod portfolio;
+pub mod render;
 pub mod sizing;
