@@ -28,6 +28,26 @@ pub fn escape(s: &str) -> String {
     out
 }
 
+/// Escapes text like [`escape`], but keeps `backticked` names (as the
+/// scheduler writes them in reasons) as code spans.
+pub fn escape_keeping_code(s: &str) -> String {
+    let parts: Vec<&str> = s.split('`').collect();
+    if parts.len().is_multiple_of(2) {
+        return escape(s);
+    }
+    let mut out = String::with_capacity(s.len() + 8);
+    for (i, part) in parts.iter().enumerate() {
+        if i % 2 == 1 && !part.is_empty() {
+            out.push('`');
+            out.push_str(&part.replace(['\n', '\r'], " "));
+            out.push('`');
+        } else {
+            out.push_str(&escape(part));
+        }
+    }
+    out
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut md = String::new();
@@ -82,7 +102,7 @@ impl Renderer for Markdown {
                     escape(&e.title),
                     e.id.replace('`', "'"),
                     escape(pool_label(plan, &e.pool)),
-                    escape(e.reason.as_deref().unwrap_or("no reason given"))
+                    escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
             }
             let _ = writeln!(w);
@@ -101,6 +121,15 @@ mod tests {
     fn escapes_markup_and_table_breakers() {
         assert_eq!(escape("a|b <c> *d*"), r"a\|b \<c\> \*d\*");
         assert_eq!(escape("two\nlines"), "two lines");
+    }
+
+    #[test]
+    fn keeps_backticked_names_as_code() {
+        assert_eq!(
+            escape_keeping_code("pool `a_b` is *full*"),
+            r"pool `a_b` is \*full\*"
+        );
+        assert_eq!(escape_keeping_code("odd ` tick"), r"odd \` tick");
     }
 
     #[test]
