@@ -634,3 +634,46 @@ fn a_scheduled_test_missing_a_fact_is_an_error_not_a_panic() {
         );
     }
 }
+
+// ------------------------------------------------------------------ docs
+
+fn plan_json_doc() -> String {
+    std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/docs/plan-json.md")).unwrap()
+}
+
+fn collect_keys(value: &serde_json::Value, keys: &mut std::collections::BTreeSet<String>) {
+    match value {
+        serde_json::Value::Object(map) => {
+            for (k, v) in map {
+                keys.insert(k.clone());
+                collect_keys(v, keys);
+            }
+        }
+        serde_json::Value::Array(items) => items.iter().for_each(|v| collect_keys(v, keys)),
+        _ => {}
+    }
+}
+
+#[test]
+fn docs_plan_json_documents_every_key() {
+    let doc = plan_json_doc();
+    let value: serde_json::Value =
+        serde_json::from_slice(&render(&fixture(), Format::Json, &file_opts()).unwrap()).unwrap();
+    let mut keys = std::collections::BTreeSet::new();
+    collect_keys(&value, &mut keys);
+    for key in keys {
+        assert!(
+            doc.contains(&format!("| `{key}` |")),
+            "docs/plan-json.md has no table row for `{key}`"
+        );
+    }
+}
+
+#[test]
+fn docs_plan_json_example_is_a_valid_plan() {
+    let doc = plan_json_doc();
+    let start = doc.find("```json\n").unwrap() + "```json\n".len();
+    let end = start + doc[start..].find("```").unwrap();
+    let plan: Plan = serde_json::from_str(&doc[start..end]).unwrap();
+    assert_eq!(plan.experiments.len(), 2);
+}
