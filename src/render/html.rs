@@ -113,7 +113,9 @@ th, td { text-align: left; padding: 6px 10px; border-bottom: 1px solid #d5d9de; 
 th { border-bottom: 2px solid #1c2127; font-weight: 600; }
 tbody tr:nth-child(even) { background: #f3f5f7; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-td.date { white-space: nowrap; font-variant-numeric: tabular-nums; }
+td.date { font-variant-numeric: tabular-nums; }
+td.date .nw, td.date strong { white-space: nowrap; }
+td.test { min-width: 13em; }
 td.pool { white-space: nowrap; }
 td .small { color: #4a525c; font-size: 13px; }
 td.muted { color: #4a525c; }
@@ -126,6 +128,8 @@ footer { margin-top: 36px; color: #4a525c; font-size: 13px; border-top: 1px soli
   main { max-width: none; padding: 0; }
   h2 { break-after: avoid; }
   figure, .summary li, tr { break-inside: avoid; }
+  table { font-size: 9pt; }
+  td.test { min-width: 11em; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
 "#;
@@ -602,7 +606,7 @@ fn table(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
         };
         let _ = write!(
             s,
-            r#"<tr><td><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
+            r#"<tr><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
             esc(&e.title),
             esc(&e.id),
             esc(pool_label(plan, &e.pool))
@@ -611,7 +615,7 @@ fn table(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
             Some(r) => {
                 let _ = write!(
                     s,
-                    r#"<td class="num">{}</td><td class="date">{} to {}<br/><span class="small">{} days</span></td><td class="date"><strong>{}</strong></td><td class="num">{}</td><td class="num">{}</td>"#,
+                    r#"<td class="num">{}</td><td class="date"><span class="nw">{}</span> to <span class="nw">{}</span><br/><span class="small">{} days</span></td><td class="date"><strong>{}</strong></td><td class="num">{}</td><td class="num">{}</td>"#,
                     percent(r.share),
                     r.start,
                     r.end,

@@ -21,7 +21,7 @@ pub fn escape(s: &str) -> String {
                 out.push('\\');
                 out.push(c);
             }
-            '\n' | '\r' | '\t' => out.push(' '),
+            c if c.is_control() => out.push(' '),
             _ => out.push(c),
         }
     }
@@ -39,7 +39,7 @@ pub fn escape_keeping_code(s: &str) -> String {
     for (i, part) in parts.iter().enumerate() {
         if i % 2 == 1 && !part.is_empty() {
             out.push('`');
-            out.push_str(&part.replace(['\n', '\r'], " "));
+            out.extend(part.chars().map(|c| if c.is_control() { ' ' } else { c }));
             out.push('`');
         } else {
             out.push_str(&escape(part));

@@ -515,8 +515,44 @@ fn timeline(plan: &Plan, width: usize, colour: bool, out: &mut String) -> Result
     Ok(())
 }
 
+/// Replaces control characters (escape sequences, line breaks, tabs) in
+/// user text with spaces, so a title cannot move the cursor, recolour the
+/// terminal or break the layout.
+fn clean(s: &str) -> String {
+    s.chars()
+        .map(|c| if c.is_control() { ' ' } else { c })
+        .collect()
+}
+
+/// A copy of the plan with every piece of user text cleaned for a terminal.
+fn for_terminal(plan: &Plan) -> Plan {
+    let mut p = plan.clone();
+    p.portfolio = clean(&p.portfolio);
+    for e in &mut p.experiments {
+        e.id = clean(&e.id);
+        e.title = clean(&e.title);
+        e.owner = clean(&e.owner);
+        e.pool = clean(&e.pool);
+        e.reason = e.reason.as_deref().map(clean);
+    }
+    for pool in &mut p.pools {
+        pool.id = clean(&pool.id);
+        pool.label = clean(&pool.label);
+        pool.sharing = clean(&pool.sharing);
+    }
+    for b in &mut p.blackouts {
+        b.note = clean(&b.note);
+        b.kind = clean(&b.kind);
+        b.pools = b.pools.iter().map(|x| clean(x)).collect();
+    }
+    p.solver.backend = clean(&p.solver.backend);
+    p.solver.status = clean(&p.solver.status);
+    p
+}
+
 impl Renderer for Text {
     fn render(&self, plan: &Plan, opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+        let plan = &for_terminal(plan);
         let width = opts.effective_width();
         let colour = opts.colour;
         let mut out = String::new();
@@ -656,6 +692,21 @@ mod tests {
         assert!(tail.contains("gift-wrap-upsell"));
         assert!(tail.contains("recipe-cards"));
         assert!(tail.contains("pool `search` already runs"));
+    }
+
+    #[test]
+    fn user_text_cannot_carry_terminal_escapes() {
+        let mut plan = fixture::plan();
+        plan.experiments[0].title = "evil\x1b[2J\x1b]0;title\x07".to_string();
+        plan.experiments[5].reason = Some("line\nbreak\x1b[31m".to_string());
+        plan.portfolio = "q1\rover".to_string();
+        let opts = RenderOptions {
+            width: Some(160),
+            colour: false,
+        };
+        let text = String::from_utf8(Text.render(&plan, &opts).unwrap()).unwrap();
+        assert!(!text.contains('\x1b') && !text.contains('\x07') && !text.contains('\r'));
+        assert!(text.contains("line break"));
     }
 
     #[test]
