@@ -138,6 +138,13 @@ pub fn guard_input(output: &Path, input: &Path) -> Result<(), OutputError> {
     Ok(())
 }
 
+/// What `--out PATH` does: refuses `output` if it is the `input` file, then
+/// writes `bytes` to it atomically.
+pub fn write_output(output: &Path, bytes: &[u8], input: &Path) -> Result<(), OutputError> {
+    guard_input(output, input)?;
+    write_atomic(output, bytes)
+}
+
 #[cfg(unix)]
 fn same_file(a: &Path, b: &Path) -> bool {
     use std::os::unix::fs::MetadataExt;
@@ -220,6 +227,18 @@ mod tests {
         );
         assert!(guard_input(&dir.path().join("plan.html"), &input).is_ok());
         assert_eq!(std::fs::read_to_string(&input).unwrap(), "name: x\n");
+    }
+
+    #[test]
+    fn write_output_leaves_the_input_alone() {
+        let dir = tempfile::tempdir().unwrap();
+        let input = dir.path().join("portfolio.yaml");
+        std::fs::write(&input, "name: x\n").unwrap();
+        assert!(write_output(&input, b"<html/>", &input).is_err());
+        assert_eq!(std::fs::read_to_string(&input).unwrap(), "name: x\n");
+        let out = dir.path().join("plan.html");
+        write_output(&out, b"<html/>", &input).unwrap();
+        assert_eq!(std::fs::read(&out).unwrap(), b"<html/>");
     }
 
     #[cfg(unix)]

@@ -327,7 +327,7 @@ fn calendar_chart(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
                 s,
                 r##"<text x="12" y="{:.1}" font-size="12" fill="#1c2127">{}</text>"##,
                 mid + 4.0,
-                esc(&clip(&e.id, 30))
+                esc(&clip(&e.id, 27))
             );
             match run_of(e)? {
                 Some(r) => bar(plan, &scale, e, &r, y, pool_fill(gi), s),
