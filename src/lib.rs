@@ -11,6 +11,8 @@ pub mod cli;
 pub mod diagnostic;
 pub mod diff;
 pub mod forecast;
+pub mod output;
 pub mod plan;
 pub mod portfolio;
+pub mod render;
 pub mod sizing;
