@@ -15,4 +15,6 @@ pub mod output;
 pub mod plan;
 pub mod portfolio;
 pub mod render;
+pub mod replan;
+pub mod schedule;
 pub mod sizing;

@@ -3,9 +3,11 @@
 //! no statistics or scheduling logic of their own. One module per command.
 
 mod check;
+mod plan;
 mod size;
 
 pub use check::CheckArgs;
+pub use plan::PlanArgs;
 pub use size::SizeArgs;
 
 use clap::{Parser, Subcommand, ValueEnum};
@@ -40,6 +42,8 @@ pub enum Command {
     Size(size::SizeArgs),
     /// Validate a portfolio file and show which tests could fit the window
     Check(check::CheckArgs),
+    /// Plan the portfolio: a start, share and end for every test that fits
+    Plan(plan::PlanArgs),
 }
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -107,5 +111,6 @@ pub fn run(cli: Cli) -> Result<Vec<u8>, Failure> {
     match cli.command {
         Command::Size(args) => size::run(&args),
         Command::Check(args) => check::run(&args),
+        Command::Plan(args) => plan::run(&args),
     }
 }

@@ -1,0 +1,381 @@
+//! The scheduler: turns a validated [`Portfolio`] into a [`Plan`].
+//!
+//! [`plan`] enumerates each test's candidate runs (`options`), builds the
+//! greedy baseline (`greedy`), splits the portfolio into independent
+//! components (pools linked by no `not_with` or `after`), and optimises each
+//! (`search`, over the LP relaxation in `lp`); `reasons` explains every test
+//! left out. [`verify`] is an independent checker that re-derives every
+//! constraint from the portfolio and the forecast; the planner never calls
+//! it. A [`PlanRequest`] carries what a re-plan knows: today, the running
+//! tests that hold their traffic, and the tests that left the queue.
+//! `synthetic` makes seeded random portfolios for tests and the benchmark.
+
+mod greedy;
+mod lp;
+mod options;
+mod reasons;
+mod search;
+mod state;
+pub mod synthetic;
+#[cfg(test)]
+mod tests;
+mod verify;
+
+pub use lp::Backend;
+pub use search::SplitMix64;
+pub use verify::verify;
+
+use crate::forecast::units_on;
+use crate::plan::{
+    Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, SolverSummary, Status,
+};
+use crate::portfolio::{BlackoutKind, Portfolio, Sharing};
+use chrono::{Duration, NaiveDate};
+use options::{Instance, Role};
+use std::time::Instant;
+
+/// A running test that keeps its traffic exactly as given.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FixedRun {
+    /// Index into `Portfolio::experiments`.
+    pub experiment: usize,
+    pub start: NaiveDate,
+    pub share: f64,
+    /// Last day of data, as the caller computed it (it may lie past the window).
+    pub end: NaiveDate,
+}
+
+/// A test that left the queue (finished or cancelled).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Excluded {
+    /// Index into `Portfolio::experiments`.
+    pub experiment: usize,
+    /// The last day of data of a finished test; its successors may start
+    /// after it (plus their gap). `None` for a cancelled test: its
+    /// successors cannot run.
+    pub ended: Option<NaiveDate>,
+    /// Shown as the test's reason in the plan.
+    pub reason: String,
+}
+
+/// What to plan, beyond the portfolio.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlanRequest {
+    /// No new starts before this day (a re-plan's today); `None` for the
+    /// window's first day.
+    pub today: Option<NaiveDate>,
+    /// Running tests, held as given.
+    pub fixed: Vec<FixedRun>,
+    /// Tests left out of this plan.
+    pub excluded: Vec<Excluded>,
+    /// Wall-clock safety net in seconds; the search is otherwise bounded
+    /// by iteration counts, so results do not depend on timing.
+    pub time_limit: f64,
+    pub backend: Backend,
+    /// Multiplier of the search's iteration budget (1 = default).
+    pub effort: u32,
+}
+
+impl Default for PlanRequest {
+    fn default() -> PlanRequest {
+        PlanRequest {
+            today: None,
+            fixed: Vec::new(),
+            excluded: Vec::new(),
+            time_limit: 10.0,
+            backend: Backend::default(),
+            effort: 1,
+        }
+    }
+}
+
+/// Pools linked through `not_with` or `after` fall in one component; each
+/// component lists its free tests in portfolio order.
+fn components(inst: &Instance) -> Vec<Vec<usize>> {
+    let p = inst.portfolio;
+    let np = p.pools.len();
+    let mut parent: Vec<usize> = (0..np).collect();
+    fn find(parent: &mut [usize], mut x: usize) -> usize {
+        while parent[x] != x {
+            parent[x] = parent[parent[x]];
+            x = parent[x];
+        }
+        x
+    }
+    for e in inst.free() {
+        let a = p.experiments[e].pool;
+        let links = p.experiments[e]
+            .not_with
+            .iter()
+            .copied()
+            .chain(inst.preds[e].iter().map(|&(x, _)| x));
+        for other in links {
+            if inst.roles[other] != Role::Free {
+                continue;
+            }
+            let (ra, rb) = (
+                find(&mut parent, a),
+                find(&mut parent, p.experiments[other].pool),
+            );
+            if ra != rb {
+                parent[ra.max(rb)] = ra.min(rb);
+            }
+        }
+    }
+    let mut groups: Vec<Vec<usize>> = vec![Vec::new(); np];
+    for e in inst.free() {
+        let r = find(&mut parent, p.experiments[e].pool);
+        groups[r].push(e);
+    }
+    groups.retain(|g| !g.is_empty());
+    groups.sort_by_key(|g| g[0]);
+    groups
+}
+
+/// Plans the portfolio. Always returns a plan: when the solver fails or the
+/// time limit runs out, the best calendar found so far (at worst the greedy
+/// one), with the bound and gap that could be proved.
+pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
+    let clock = Instant::now();
+    let deadline = clock + std::time::Duration::from_secs_f64(request.time_limit.max(0.0));
+    let inst = Instance::new(portfolio, request);
+    let greedy_state = greedy::greedy(&inst);
+    let mut state = greedy_state.clone();
+    let comps = components(&inst);
+    let mut bound = 0.0;
+    let mut all_proved = true;
+    let mut lp_ok = true;
+    let mut improved = false;
+    for (c, comp) in comps.iter().enumerate() {
+        let out = search::solve_component(
+            &inst,
+            comp,
+            &mut state,
+            request.backend,
+            deadline,
+            request.effort.max(1),
+            comps.len() - c,
+        );
+        bound += out.bound;
+        all_proved &= out.proved;
+        lp_ok &= out.lp_ok;
+        improved |= out.improved;
+    }
+    let fixed_value = inst.fixed_value();
+    let value = fixed_value + state.value;
+    let bound = (fixed_value + bound).max(value);
+    let status = if all_proved {
+        "optimal"
+    } else if !lp_ok && !improved {
+        "greedy"
+    } else {
+        "feasible"
+    };
+    let gap = if bound.abs() > 1e-12 {
+        ((bound - value) / bound.abs()).max(0.0)
+    } else {
+        0.0
+    };
+    let solver = SolverSummary {
+        backend: request.backend.name().to_string(),
+        status: status.to_string(),
+        seconds: clock.elapsed().as_secs_f64(),
+        value,
+        bound,
+        gap: if all_proved { 0.0 } else { gap },
+    };
+    assemble(
+        &inst,
+        &state,
+        solver,
+        fixed_value + greedy_state.value,
+        request,
+    )
+}
+
+/// The exact optimum of the 0-1 model, component by component, with the
+/// backend's MILP (practical with HiGHS; the benchmark uses it to prove
+/// optima). `None` when any component is not proved within `seconds`.
+pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -> Option<f64> {
+    let clock = Instant::now();
+    let inst = Instance::new(portfolio, request);
+    let mut total = inst.fixed_value();
+    for comp in components(&inst) {
+        let allowed: Vec<Vec<usize>> = comp
+            .iter()
+            .map(|&e| (0..inst.options[e].len()).collect())
+            .collect();
+        let forced = vec![false; comp.len()];
+        let sub = lp::Sub {
+            exps: &comp,
+            allowed: &allowed,
+            forced: &forced,
+        };
+        let left = seconds - clock.elapsed().as_secs_f64();
+        if left <= 0.0 {
+            return None;
+        }
+        let solved = lp::solve(&inst, &sub, request.backend, true, left, None).ok()?;
+        if !solved.optimal {
+            return None;
+        }
+        total += solved.value;
+    }
+    Some(total)
+}
+
+/// Units the pool delivers to a run at `share` from `start` to `end`.
+fn units_between(
+    portfolio: &Portfolio,
+    pool: usize,
+    start: NaiveDate,
+    end: NaiveDate,
+    share: f64,
+) -> f64 {
+    let mut total = 0.0;
+    let mut d = start;
+    while d <= end {
+        total += units_on(&portfolio.pools[pool], d);
+        d += Duration::days(1);
+    }
+    share * total
+}
+
+fn assemble(
+    inst: &Instance,
+    state: &state::State,
+    solver: SolverSummary,
+    greedy_value: f64,
+    request: &PlanRequest,
+) -> Plan {
+    let p = inst.portfolio;
+    let w = p.window;
+    let why = reasons::explain(inst, state);
+    let experiments: Vec<PlannedExperiment> = p
+        .experiments
+        .iter()
+        .enumerate()
+        .map(|(e, ex)| {
+            let run = match &inst.roles[e] {
+                Role::Fixed { start, end, share } => Some((w.date(*start), w.date(*end), *share)),
+                Role::Free => state
+                    .opt(inst, e)
+                    .map(|o| (w.date(o.start as i64), w.date(o.end as i64), o.share)),
+                Role::Excluded { .. } => None,
+            };
+            let mut out = PlannedExperiment {
+                id: ex.id.clone(),
+                title: ex.title.clone(),
+                owner: ex.owner.clone(),
+                pool: p.pools[ex.pool].id.clone(),
+                priority: ex.priority,
+                status: Status::Unscheduled,
+                start: None,
+                end: None,
+                result_date: None,
+                share: None,
+                days: None,
+                units_needed: ex.need.total,
+                units_expected: None,
+                reason: None,
+            };
+            match run {
+                Some((start, end, share)) => {
+                    out.status = match inst.roles[e] {
+                        Role::Fixed { .. } => Status::Running,
+                        _ => Status::Scheduled,
+                    };
+                    out.start = Some(start);
+                    out.end = Some(end);
+                    out.result_date = Some(end + Duration::days(1));
+                    out.share = Some(share);
+                    out.days = Some(((end - start).num_days() + 1) as u32);
+                    out.units_expected = Some(units_between(p, ex.pool, start, end, share));
+                }
+                None => {
+                    out.reason = why[e].clone();
+                    if let Role::Excluded { ended, .. } = &inst.roles[e] {
+                        out.status = if ended.is_some() {
+                            Status::Finished
+                        } else {
+                            Status::Cancelled
+                        };
+                    }
+                }
+            }
+            out
+        })
+        .collect();
+    let pools = p
+        .pools
+        .iter()
+        .enumerate()
+        .map(|(pi, pool)| {
+            let days = (0..inst.days)
+                .map(|d| {
+                    let date = w.date(d as i64);
+                    let mut share_used = 0.0;
+                    let mut running = 0;
+                    for (e, pe) in experiments.iter().enumerate() {
+                        if p.experiments[e].pool != pi {
+                            continue;
+                        }
+                        if let (Some(s), Some(t), Some(sh)) = (pe.start, pe.end, pe.share) {
+                            if s <= date && date <= t {
+                                share_used += sh;
+                                running += 1;
+                            }
+                        }
+                    }
+                    PoolDay {
+                        date,
+                        forecast: inst.series[pi].units[d],
+                        share_used,
+                        running,
+                    }
+                })
+                .collect();
+            PoolPlan {
+                id: pool.id.clone(),
+                label: pool.label.clone(),
+                sharing: match pool.sharing {
+                    Sharing::Split => "split",
+                    Sharing::Overlap => "overlap",
+                }
+                .to_string(),
+                max_concurrent: pool.max_concurrent,
+                days,
+            }
+        })
+        .collect();
+    let blackouts = p
+        .blackouts
+        .iter()
+        .map(|b| PlanBlackout {
+            from: b.from,
+            to: b.to,
+            kind: match b.kind {
+                BlackoutKind::NoStarts => "no_starts",
+                BlackoutKind::NoRunning => "no_running",
+            }
+            .to_string(),
+            note: b.note.clone(),
+            pools: b.pools.iter().map(|&i| p.pools[i].id.clone()).collect(),
+        })
+        .collect();
+    Plan {
+        portfolio: p.name.clone(),
+        window: PlanWindow {
+            start: w.start,
+            end: w.end,
+        },
+        solver,
+        greedy_value,
+        experiments,
+        pools,
+        blackouts,
+        today: request.today.unwrap_or(w.start),
+        running: Vec::new(),
+        changes: None,
+    }
+}

@@ -1,0 +1,362 @@
+//! Candidate runs: for every test the planner may place, each allowed
+//! (start day, share level) pair with its exact end day from the forecast.
+//!
+//! This module turns a portfolio and a [`PlanRequest`] into an [`Instance`]:
+//! day indices counted from the window's first day, the traffic held by
+//! fixed (running) tests, and the filtered options of every free test. An
+//! option is kept only when it starts on the start grid, on or after the
+//! test's earliest start, today and its fixed predecessors' ends (plus gap),
+//! not on a `no_starts` day, crosses no `no_running` day, ends inside the
+//! window and by the deadline, and fits beside the fixed runs. Dominated
+//! options (same start, a larger share but no earlier end) are dropped.
+//! Every end comes from [`Series::run_end`].
+
+use super::{FixedRun, PlanRequest};
+use crate::forecast::Series;
+use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};
+use chrono::Datelike;
+
+/// Slack for floating-point comparisons of shares.
+pub(crate) const EPS: f64 = 1e-9;
+
+/// One candidate run of one test.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Opt {
+    /// First day, as an index from the window's first day.
+    pub start: usize,
+    /// Last day of data, inclusive.
+    pub end: usize,
+    pub share: f64,
+    /// Its contribution to the objective.
+    pub value: f64,
+}
+
+/// What the request says about one experiment.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum Role {
+    /// The planner decides.
+    Free,
+    /// Running: holds its traffic as given (offsets may lie outside the window).
+    Fixed { start: i64, end: i64, share: f64 },
+    /// Left out by request; `ended` is the last day of a finished run.
+    Excluded { ended: Option<i64>, reason: String },
+}
+
+/// The portfolio as the planner sees it.
+pub(crate) struct Instance<'a> {
+    pub portfolio: &'a Portfolio,
+    /// Days in the window.
+    pub days: usize,
+    /// Forecast of each pool over the window.
+    pub series: Vec<Series>,
+    /// Share of each pool held by fixed runs, per day.
+    pub base_share: Vec<Vec<f64>>,
+    /// Number of fixed runs on each pool, per day.
+    pub base_count: Vec<Vec<u32>>,
+    pub roles: Vec<Role>,
+    /// Earliest start day index each free test may take (grid aside); may
+    /// be past the window when nothing is possible.
+    pub lo_start: Vec<i64>,
+    /// Options of each free test, sorted by value, best first.
+    pub options: Vec<Vec<Opt>>,
+    /// Free predecessors: (predecessor, gap days), per experiment.
+    pub preds: Vec<Vec<(usize, u32)>>,
+    /// Free successors: (successor, gap days), per experiment.
+    pub succs: Vec<Vec<(usize, u32)>>,
+}
+
+/// Objective weight of a run ending on day index `end` (the last day of
+/// data): priority x (1 - lateness_weight x end / (days - 1)).
+pub(crate) fn run_value(priority: f64, lateness_weight: f64, days: usize, end: i64) -> f64 {
+    let t = if days > 1 {
+        end as f64 / (days - 1) as f64
+    } else {
+        0.0
+    };
+    priority * (1.0 - lateness_weight * t)
+}
+
+impl<'a> Instance<'a> {
+    pub fn new(portfolio: &'a Portfolio, request: &PlanRequest) -> Instance<'a> {
+        let w = portfolio.window;
+        let days = w.days();
+        let n = portfolio.experiments.len();
+        let series: Vec<Series> = portfolio
+            .pools
+            .iter()
+            .map(|p| Series::new(p, w.start, w.end))
+            .collect();
+        let mut roles = vec![Role::Free; n];
+        for ex in &request.excluded {
+            if ex.experiment < n {
+                roles[ex.experiment] = Role::Excluded {
+                    ended: ex.ended.map(|d| w.offset(d)),
+                    reason: ex.reason.clone(),
+                };
+            }
+        }
+        let mut base_share = vec![vec![0.0; days]; portfolio.pools.len()];
+        let mut base_count = vec![vec![0u32; days]; portfolio.pools.len()];
+        for FixedRun {
+            experiment,
+            start,
+            share,
+            end,
+        } in &request.fixed
+        {
+            if *experiment >= n {
+                continue;
+            }
+            let (s, e) = (w.offset(*start), w.offset(*end));
+            roles[*experiment] = Role::Fixed {
+                start: s,
+                end: e,
+                share: *share,
+            };
+            let pool = portfolio.experiments[*experiment].pool;
+            for d in s.max(0)..=e.min(days as i64 - 1) {
+                base_share[pool][d as usize] += share;
+                base_count[pool][d as usize] += 1;
+            }
+        }
+        let mut preds = vec![Vec::new(); n];
+        let mut succs = vec![Vec::new(); n];
+        for (b, e) in portfolio.experiments.iter().enumerate() {
+            if roles[b] != Role::Free {
+                continue;
+            }
+            for pre in &e.after {
+                if roles[pre.experiment] == Role::Free {
+                    preds[b].push((pre.experiment, pre.gap_days));
+                    succs[pre.experiment].push((b, pre.gap_days));
+                }
+            }
+        }
+        let today = request.today.map(|t| w.offset(t)).unwrap_or(0).max(0);
+        let mut inst = Instance {
+            portfolio,
+            days,
+            series,
+            base_share,
+            base_count,
+            roles,
+            lo_start: vec![today; n],
+            options: vec![Vec::new(); n],
+            preds,
+            succs,
+        };
+        // Options in topological order so a test's bound can use its free
+        // predecessors' earliest ends.
+        for e in topological_order(portfolio) {
+            if inst.roles[e] == Role::Free {
+                inst.lo_start[e] = inst.earliest_start(e, today);
+                inst.options[e] = inst.enumerate(e);
+            }
+        }
+        inst
+    }
+
+    /// The earliest day index test `e` may start: today, its earliest start,
+    /// and its predecessors' earliest ends plus gaps; `i64::MAX` when a
+    /// predecessor cannot run at all.
+    fn earliest_start(&self, e: usize, today: i64) -> i64 {
+        let p = self.portfolio;
+        let ex = &p.experiments[e];
+        let mut lo = today;
+        if let Some(d) = ex.earliest_start {
+            lo = lo.max(p.window.offset(d));
+        }
+        for pre in &ex.after {
+            let gap = pre.gap_days as i64;
+            let end = match &self.roles[pre.experiment] {
+                Role::Fixed { end, .. } => Some(*end),
+                Role::Excluded { ended, .. } => *ended,
+                Role::Free => self.options[pre.experiment]
+                    .iter()
+                    .map(|o| o.end as i64)
+                    .min(),
+            };
+            match end {
+                Some(end) => lo = lo.max(end + 1 + gap),
+                None => return i64::MAX,
+            }
+        }
+        lo
+    }
+
+    /// Whether `day` is on the start grid.
+    pub fn on_grid(&self, day: usize) -> bool {
+        let p = self.portfolio;
+        match p.planning.grid {
+            StartGrid::Daily => true,
+            StartGrid::Weekly => p.window.date(day as i64).weekday() == p.planning.start_weekday,
+        }
+    }
+
+    /// Whether a `no_starts` blackout covers `day` on `pool`.
+    pub fn no_start(&self, day: usize, pool: usize) -> bool {
+        let date = self.portfolio.window.date(day as i64);
+        self.portfolio
+            .blackouts
+            .iter()
+            .any(|b| b.kind == BlackoutKind::NoStarts && b.covers(date, pool))
+    }
+
+    /// Days of `pool` a `no_running` blackout covers.
+    pub fn no_running_days(&self, pool: usize) -> Vec<bool> {
+        (0..self.days)
+            .map(|d| {
+                let date = self.portfolio.window.date(d as i64);
+                self.portfolio
+                    .blackouts
+                    .iter()
+                    .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(date, pool))
+            })
+            .collect()
+    }
+
+    /// Share levels test `e` may take, ascending.
+    pub fn shares(&self, e: usize) -> Vec<f64> {
+        let max = self.portfolio.experiments[e].max_share;
+        self.portfolio
+            .share_levels
+            .iter()
+            .copied()
+            .filter(|&s| s > 0.0 && s <= max + EPS)
+            .collect()
+    }
+
+    fn enumerate(&self, e: usize) -> Vec<Opt> {
+        let p = self.portfolio;
+        let ex = &p.experiments[e];
+        let pool = ex.pool;
+        let lo = self.lo_start[e];
+        if lo >= self.days as i64 {
+            return Vec::new();
+        }
+        let deadline = ex
+            .deadline
+            .map(|d| p.window.offset(d))
+            .unwrap_or(i64::MAX)
+            .min(self.days as i64 - 1);
+        let blocked = self.no_running_days(pool);
+        // Prefix count of blocked days, for interval queries.
+        let mut blocked_before = vec![0usize; self.days + 1];
+        for d in 0..self.days {
+            blocked_before[d + 1] = blocked_before[d] + usize::from(blocked[d]);
+        }
+        let shares = self.shares(e);
+        let split = p.pools[pool].sharing == Sharing::Split;
+        let cap = p.pools[pool].max_concurrent;
+        let need = ex.need.total as f64;
+        let mut out = Vec::new();
+        for start in lo.max(0) as usize..self.days {
+            if !self.on_grid(start) || self.no_start(start, pool) || blocked[start] {
+                continue;
+            }
+            let mut last_end = usize::MAX;
+            let mut pushed_last = false;
+            // Largest share first: ends only move later as the share drops.
+            for &share in shares.iter().rev() {
+                let Some(end) =
+                    self.series[pool].run_end(start, share, need, ex.min_days, ex.whole_weeks)
+                else {
+                    break;
+                };
+                if end as i64 > deadline {
+                    break;
+                }
+                if end == last_end && pushed_last {
+                    // A larger share ends no earlier: the larger is dominated.
+                    out.pop();
+                }
+                last_end = end;
+                pushed_last = false;
+                if blocked_before[end + 1] - blocked_before[start] > 0 {
+                    continue;
+                }
+                let fits_fixed = (start..=end).all(|d| {
+                    self.base_count[pool][d] < cap
+                        && (!split || self.base_share[pool][d] + share <= 1.0 + EPS)
+                });
+                if !fits_fixed {
+                    continue;
+                }
+                pushed_last = true;
+                out.push(Opt {
+                    start,
+                    end,
+                    share,
+                    value: run_value(
+                        ex.priority,
+                        p.planning.lateness_weight,
+                        self.days,
+                        end as i64,
+                    ),
+                });
+            }
+        }
+        out.sort_by(|a, b| {
+            b.value
+                .total_cmp(&a.value)
+                .then(a.share.total_cmp(&b.share))
+                .then(a.start.cmp(&b.start))
+        });
+        out
+    }
+
+    /// Experiments the planner decides, in portfolio order.
+    pub fn free(&self) -> impl Iterator<Item = usize> + '_ {
+        (0..self.roles.len()).filter(|&e| self.roles[e] == Role::Free)
+    }
+
+    /// The value of the fixed runs, a constant in every plan.
+    pub fn fixed_value(&self) -> f64 {
+        let p = self.portfolio;
+        self.roles
+            .iter()
+            .enumerate()
+            .map(|(e, r)| match r {
+                Role::Fixed { end, .. } => run_value(
+                    p.experiments[e].priority,
+                    p.planning.lateness_weight,
+                    self.days,
+                    *end,
+                ),
+                _ => 0.0,
+            })
+            .sum()
+    }
+}
+
+/// Experiments ordered so every predecessor comes before its successors
+/// (the portfolio's `after` graph is acyclic); ties in portfolio order.
+pub(crate) fn topological_order(p: &Portfolio) -> Vec<usize> {
+    let n = p.experiments.len();
+    let mut indegree: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
+    let mut succ = vec![Vec::new(); n];
+    for (b, e) in p.experiments.iter().enumerate() {
+        for pre in &e.after {
+            succ[pre.experiment].push(b);
+        }
+    }
+    let mut ready: std::collections::BTreeSet<usize> =
+        (0..n).filter(|&e| indegree[e] == 0).collect();
+    let mut order = Vec::with_capacity(n);
+    while let Some(e) = ready.pop_first() {
+        order.push(e);
+        for &s in &succ[e] {
+            indegree[s] -= 1;
+            if indegree[s] == 0 {
+                ready.insert(s);
+            }
+        }
+    }
+    // A cycle cannot reach here from a validated portfolio; keep the rest
+    // in portfolio order rather than lose them.
+    if order.len() < n {
+        let seen: std::collections::BTreeSet<usize> = order.iter().copied().collect();
+        order.extend((0..n).filter(|e| !seen.contains(e)));
+    }
+    order
+}

@@ -1,0 +1,326 @@
+//! Why each test left out of the calendar is out, in words a planner can
+//! act on: a missing predecessor, a run longer than the window, a deadline
+//! that cannot be met, blackouts in the way, a `not_with` partner, or a
+//! pool full of tests the plan preferred (named, with their priorities).
+
+use super::options::{Instance, Role};
+use super::state::State;
+use chrono::{Datelike, Duration, NaiveDate};
+
+/// A share as a percentage: `50%`, `12.5%`.
+pub(crate) fn percent(share: f64) -> String {
+    let p = share * 100.0;
+    if (p - p.round()).abs() < 1e-6 {
+        format!("{}%", p.round() as i64)
+    } else {
+        format!("{p:.1}%")
+    }
+}
+
+/// A whole number with thousands separators: `123,456`.
+pub(crate) fn thousands(n: u64) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, c) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+fn number(x: f64) -> String {
+    if (x - x.round()).abs() < 1e-9 {
+        format!("{}", x.round() as i64)
+    } else {
+        format!("{x}")
+    }
+}
+
+/// The reason of every unscheduled test; `None` for the scheduled.
+pub(crate) fn explain(inst: &Instance, state: &State) -> Vec<Option<String>> {
+    (0..inst.roles.len())
+        .map(|e| match &inst.roles[e] {
+            Role::Fixed { .. } => None,
+            Role::Excluded { reason, .. } => Some(reason.clone()),
+            Role::Free if state.choice[e].is_some() => None,
+            Role::Free => Some(why(inst, state, e)),
+        })
+        .collect()
+}
+
+/// Days a run at `share` from `start` needs, on the forecast, counted
+/// past the window if need be (up to about three years); `None` if never.
+fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: f64) -> Option<i64> {
+    let p = inst.portfolio;
+    let ex = &p.experiments[e];
+    let limit = p.window.end + Duration::days(3 * 366);
+    crate::forecast::run_end(
+        &p.pools[ex.pool],
+        start,
+        share,
+        ex.need.total as f64,
+        ex.min_days,
+        ex.whole_weeks,
+        limit,
+    )
+    .map(|end| (end - start).num_days() + 1)
+}
+
+fn why(inst: &Instance, state: &State, e: usize) -> String {
+    let p = inst.portfolio;
+    let w = p.window;
+    let ex = &p.experiments[e];
+    let pool = &p.pools[ex.pool];
+    // Predecessors.
+    for pre in &ex.after {
+        let pid = &p.experiments[pre.experiment].id;
+        match &inst.roles[pre.experiment] {
+            Role::Excluded { ended: None, .. } => {
+                return format!("depends on `{pid}`, which left the queue without finishing")
+            }
+            Role::Free if state.choice[pre.experiment].is_none() => {
+                return format!("depends on `{pid}`, which is not scheduled")
+            }
+            _ => {}
+        }
+    }
+    let shares = inst.shares(e);
+    let Some(&top) = shares.last() else {
+        return format!(
+            "no share level is at or below its maximum share of {}; add a smaller level or raise it",
+            percent(ex.max_share)
+        );
+    };
+    // Alone: the earliest start on the grid at its largest share.
+    let lo = inst.lo_start[e];
+    if lo >= inst.days as i64 {
+        return format!(
+            "its earliest possible start, {}, is past the window",
+            w.date(lo)
+        );
+    }
+    let first = (lo.max(0) as usize..inst.days).find(|&d| inst.on_grid(d));
+    let Some(first) = first else {
+        return format!("no start day on the grid is left after {}", w.date(lo));
+    };
+    let start = w.date(first as i64);
+    let left = inst.days - first;
+    match days_needed(inst, e, start, top) {
+        None => {
+            return format!(
+            "needs {} units; at {} of `{}` the forecast does not deliver them within three years",
+            thousands(ex.need.total),
+            percent(top),
+            pool.id
+        )
+        }
+        Some(n) if n > left as i64 => {
+            return if first == 0 {
+                format!(
+                    "needs {n} days at {} of `{}`; the window has {left}",
+                    percent(top),
+                    pool.id
+                )
+            } else {
+                format!(
+                    "needs {n} days at {} of `{}`; from its earliest start on {start} the window has {left}",
+                    percent(top),
+                    pool.id
+                )
+            };
+        }
+        Some(n) => {
+            if let Some(dl) = ex.deadline {
+                let end = start + Duration::days(n - 1);
+                if end > dl {
+                    return format!(
+                        "deadline {dl} cannot be met: at its maximum share of {} the earliest end is {end}",
+                        percent(top)
+                    );
+                }
+            }
+        }
+    }
+    if inst.options[e].is_empty() {
+        let blocking: Vec<String> = p
+            .blackouts
+            .iter()
+            .filter(|b| b.pools.is_empty() || b.pools.contains(&ex.pool))
+            .map(|b| {
+                let kind = match b.kind {
+                    crate::portfolio::BlackoutKind::NoStarts => "no starts",
+                    crate::portfolio::BlackoutKind::NoRunning => "nothing running",
+                };
+                format!("{kind} {}..{}", b.from, b.to)
+            })
+            .collect();
+        if !blocking.is_empty() {
+            return format!(
+                "every run that finishes in time meets a blackout ({}); a larger share or a later deadline would help",
+                blocking.join(", ")
+            );
+        }
+        return format!(
+            "the tests already running on `{}` leave no room for it in time",
+            pool.id
+        );
+    }
+    // It fits alone: find what blocks each option now.
+    let mut partners: Vec<usize> = Vec::new();
+    let mut late_preds: Vec<usize> = Vec::new();
+    let mut pool_blocked = false;
+    let (mut span_lo, mut span_hi) = (usize::MAX, 0usize);
+    for o in &inst.options[e] {
+        span_lo = span_lo.min(o.start);
+        span_hi = span_hi.max(o.end);
+        for &b in &ex.not_with {
+            let overlap = match &inst.roles[b] {
+                Role::Fixed { start, end, .. } => *start <= o.end as i64 && o.start as i64 <= *end,
+                Role::Free => state
+                    .opt(inst, b)
+                    .is_some_and(|bo| bo.start <= o.end && o.start <= bo.end),
+                Role::Excluded { .. } => false,
+            };
+            if overlap && !partners.contains(&b) {
+                partners.push(b);
+            }
+        }
+        for &(pre, gap) in &inst.preds[e] {
+            if let Some(po) = state.opt(inst, pre) {
+                if po.end + 1 + gap as usize > o.start && !late_preds.contains(&pre) {
+                    late_preds.push(pre);
+                }
+            }
+        }
+        let cap = pool.max_concurrent;
+        let split = pool.sharing == crate::portfolio::Sharing::Split;
+        let full = (o.start..=o.end).any(|d| {
+            state.count[ex.pool][d] >= cap
+                || (split
+                    && state.share[ex.pool][d] + super::state::micro(o.share) > super::state::WHOLE)
+        });
+        pool_blocked |= full;
+    }
+    if pool_blocked {
+        // The days, among those its runs could use, on which the pool
+        // cannot take even its smallest share, and the tests holding them.
+        let cap = pool.max_concurrent;
+        let split = pool.sharing == crate::portfolio::Sharing::Split;
+        let least = super::state::micro(shares[0]);
+        let full: Vec<usize> = (span_lo..=span_hi)
+            .filter(|&d| {
+                state.count[ex.pool][d] >= cap
+                    || (split && state.share[ex.pool][d] + least > super::state::WHOLE)
+            })
+            .collect();
+        let (from_d, to_d) = match (full.first(), full.last()) {
+            (Some(&a), Some(&b)) => (a, b),
+            _ => (span_lo, span_hi),
+        };
+        let runs_on = |b: usize, d: usize| -> bool {
+            match &inst.roles[b] {
+                Role::Fixed { start, end, .. } => *start <= d as i64 && d as i64 <= *end,
+                Role::Free => state
+                    .opt(inst, b)
+                    .is_some_and(|bo| bo.start <= d && d <= bo.end),
+                Role::Excluded { .. } => false,
+            }
+        };
+        let days: &[usize] = if full.is_empty() { &[] } else { &full };
+        let mut holders: Vec<usize> = (0..inst.roles.len())
+            .filter(|&b| p.experiments[b].pool == ex.pool && b != e)
+            .filter(|&b| {
+                if days.is_empty() {
+                    (span_lo..=span_hi).any(|d| runs_on(b, d))
+                } else {
+                    days.iter().any(|&d| runs_on(b, d))
+                }
+            })
+            .collect();
+        holders.sort_by(|&a, &b| {
+            p.experiments[b]
+                .priority
+                .total_cmp(&p.experiments[a].priority)
+                .then(a.cmp(&b))
+        });
+        let names: Vec<String> = holders
+            .iter()
+            .map(|&b| {
+                format!(
+                    "{} ({})",
+                    p.experiments[b].id,
+                    number(p.experiments[b].priority)
+                )
+            })
+            .collect();
+        let higher = holders
+            .iter()
+            .all(|&b| p.experiments[b].priority >= ex.priority);
+        let from = w.date(from_d as i64);
+        let to = w.date(to_d as i64);
+        let whom = if higher {
+            "tests of higher priority"
+        } else {
+            "tests worth more to the plan together"
+        };
+        let gaps = if full.is_empty() || full.len() == to_d - from_d + 1 {
+            ""
+        } else {
+            " (with gaps too short for it)"
+        };
+        let mut text = format!(
+            "fits alone, but `{}` is full from {from} to {to}{gaps} with {whom}: {}",
+            pool.id,
+            names.join(", ")
+        );
+        if !partners.is_empty() {
+            let ps: Vec<String> = partners
+                .iter()
+                .map(|&b| format!("`{}`", p.experiments[b].id))
+                .collect();
+            text.push_str(&format!(
+                "; it also must not run alongside {}",
+                ps.join(", ")
+            ));
+        }
+        return text;
+    }
+    if !partners.is_empty() {
+        let ps: Vec<String> = partners
+            .iter()
+            .map(|&b| {
+                let (s, t) = match (&inst.roles[b], state.opt(inst, b)) {
+                    (Role::Fixed { start, end, .. }, _) => (w.date(*start), w.date(*end)),
+                    (_, Some(bo)) => (w.date(bo.start as i64), w.date(bo.end as i64)),
+                    _ => (w.start, w.start),
+                };
+                format!("`{}` ({s} to {t})", p.experiments[b].id)
+            })
+            .collect();
+        return format!(
+            "fits alone, but must not run alongside {}, which the plan keeps",
+            ps.join(", ")
+        );
+    }
+    if !late_preds.is_empty() {
+        let ps: Vec<String> = late_preds
+            .iter()
+            .map(|&b| {
+                let end = state
+                    .opt(inst, b)
+                    .map(|o| w.date(o.end as i64))
+                    .unwrap_or(w.start);
+                format!("`{}` (ends {end})", p.experiments[b].id)
+            })
+            .collect();
+        return format!(
+            "must wait for {}, which leaves too little time after it",
+            ps.join(", ")
+        );
+    }
+    // Nothing above applies: say what was tried.
+    let _ = start.weekday();
+    "no run fits beside the scheduled tests".to_string()
+}

@@ -1,0 +1,670 @@
+//! The optimiser of one component (tests linked by pools, `not_with` or
+//! `after`): the LP relaxation for the bound, LP-guided rounding and a
+//! fix-and-resolve dive for starting calendars, then a seeded large
+//! neighbourhood search (remove the tests around a pool and span, around a
+//! left-out test's option, or a few at random, and re-insert everything
+//! that fits, best value first with a little noise) that keeps the best.
+//!
+//! Every step is counted in iterations, not seconds, so the same input
+//! gives the same plan; the wall clock only cuts the search short when the
+//! time limit runs out.
+
+use super::lp::{self, Sub};
+use super::options::Instance;
+use super::state::State;
+use super::Backend;
+use std::time::Instant;
+
+/// A small seeded generator (splitmix64; Steele, Lea & Flood 2014,
+/// "Fast splittable pseudorandom number generators").
+#[derive(Debug, Clone)]
+pub struct SplitMix64(u64);
+
+impl SplitMix64 {
+    pub fn new(seed: u64) -> SplitMix64 {
+        SplitMix64(seed)
+    }
+
+    pub fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+
+    /// Uniform in [0, 1).
+    pub fn unit(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
+    }
+
+    /// Uniform in 0..n (n > 0).
+    pub fn below(&mut self, n: usize) -> usize {
+        (self.next_u64() % n as u64) as usize
+    }
+}
+
+/// What the search of one component achieved.
+pub(crate) struct Outcome {
+    /// Upper bound on the component's value.
+    pub bound: f64,
+    /// The LP relaxation solved (otherwise the bound is the trivial one).
+    pub lp_ok: bool,
+    /// The calendar is proved optimal.
+    pub proved: bool,
+    /// The search improved on the greedy calendar.
+    pub improved: bool,
+}
+
+/// Tolerance on values for "no worse" and "proved".
+fn tol(v: f64) -> f64 {
+    1e-7 * v.abs().max(1.0)
+}
+
+fn remaining(deadline: Instant) -> f64 {
+    deadline
+        .saturating_duration_since(Instant::now())
+        .as_secs_f64()
+}
+
+/// Optimises the tests `exps` of one component in `state` (which holds the
+/// greedy calendar on entry).
+pub(crate) fn solve_component(
+    inst: &Instance,
+    exps: &[usize],
+    state: &mut State,
+    backend: Backend,
+    deadline: Instant,
+    effort: u32,
+    comps_left: usize,
+) -> Outcome {
+    let greedy_value = comp_value(inst, exps, state);
+    let trivial: f64 = exps
+        .iter()
+        .map(|&e| inst.options[e].first().map_or(0.0, |o| o.value))
+        .sum();
+    let allowed: Vec<Vec<usize>> = exps
+        .iter()
+        .map(|&e| (0..inst.options[e].len()).collect())
+        .collect();
+    let forced = vec![false; exps.len()];
+    let sub = Sub {
+        exps,
+        allowed: &allowed,
+        forced: &forced,
+    };
+    let t0 = Instant::now();
+    let relaxed = lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok();
+    let t_lp = t0.elapsed().as_secs_f64();
+    let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
+    let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
+    let iters = (effort as usize) * (2000 * exps.len()).min(LNS_MAX_ITERS);
+
+    // Start from the better of greedy and the LP rounding, then search.
+    let mut best = state.clone();
+    if let Some(lpx) = &relaxed {
+        let mut cand = state.clone();
+        round(inst, exps, &allowed, &lpx.x, &mut cand);
+        adopt(inst, exps, &mut best, &cand);
+    }
+    if !proved(&best, inst, exps, bound) {
+        lns(inst, exps, &mut best, iters, &mut rng, deadline);
+    }
+    let mut bound = bound;
+    let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
+    if relaxed.is_some() && !proved(&best, inst, exps, bound) && nopt <= BNB_MAX_OPTIONS {
+        let budget = (effort as usize) * BNB_WORK / (nopt * nopt).max(1);
+        if let Some(b) = branch_and_bound(inst, exps, &mut best, backend, deadline, budget) {
+            bound = bound.min(b);
+        }
+    }
+    if backend.solves_milp() && !proved(&best, inst, exps, bound) && nopt <= MILP_MAX_OPTIONS {
+        if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, comps_left) {
+            if exact {
+                bound = bound.min(v);
+            }
+        }
+    }
+    let value = comp_value(inst, exps, &best);
+    if std::env::var("SLUICE_DEBUG").is_ok() {
+        let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
+        eprintln!(
+            "comp n={} opts={} lp={:.3}s total={:.3}s greedy={:.2} value={:.2} bound={:.2}",
+            exps.len(),
+            nopt,
+            t_lp,
+            t0.elapsed().as_secs_f64(),
+            greedy_value,
+            value,
+            bound
+        );
+    }
+    copy_choices(inst, exps, state, &best);
+    Outcome {
+        bound: bound.max(value),
+        lp_ok: relaxed.is_some(),
+        proved: value >= bound - tol(bound),
+        improved: value > greedy_value + tol(greedy_value),
+    }
+}
+
+/// Most iterations of the neighbourhood search per component (2,000 per
+/// test below that).
+const LNS_MAX_ITERS: usize = 40_000;
+
+/// Components with at most this many options go to the exact MILP, where
+/// the backend is good at it.
+const MILP_MAX_OPTIONS: usize = 8000;
+
+/// Hands the component's exact 0-1 model to the backend, warm-started from
+/// `best`, with a fair share of the time left. Adopts a better calendar;
+/// returns its value and whether the backend proved it optimal.
+fn exact_milp(
+    inst: &Instance,
+    exps: &[usize],
+    best: &mut State,
+    backend: Backend,
+    deadline: Instant,
+    comps_left: usize,
+) -> Option<(f64, bool)> {
+    let allowed: Vec<Vec<usize>> = exps
+        .iter()
+        .map(|&e| (0..inst.options[e].len()).collect())
+        .collect();
+    let forced = vec![false; exps.len()];
+    let sub = Sub {
+        exps,
+        allowed: &allowed,
+        forced: &forced,
+    };
+    let start: Vec<Option<usize>> = exps.iter().map(|&e| best.choice[e]).collect();
+    let seconds = remaining(deadline) / comps_left.max(1) as f64;
+    let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start)).ok()?;
+    let mut cand = best.clone();
+    for &e in exps {
+        cand.remove(inst, e);
+    }
+    let order = super::options::topological_order(inst.portfolio);
+    let mut pos = vec![usize::MAX; inst.roles.len()];
+    for (i, &e) in exps.iter().enumerate() {
+        pos[e] = i;
+    }
+    for e in order {
+        let i = pos[e];
+        if i == usize::MAX {
+            continue;
+        }
+        if let Some(j) = solved.x[i].iter().position(|&x| x > 0.5) {
+            let k = allowed[i][j];
+            if !cand.fits(inst, e, &inst.options[e][k]) {
+                return None;
+            }
+            cand.add(inst, e, k);
+        }
+    }
+    adopt(inst, exps, best, &cand);
+    let v = comp_value(inst, exps, &cand);
+    Some((v, solved.optimal))
+}
+
+/// Components with at most this many options get a branch and bound.
+const BNB_MAX_OPTIONS: usize = 2500;
+/// Its node budget times the square of the component's options (about
+/// the cost of one LP solve): a deterministic work budget.
+const BNB_WORK: usize = 25_000_000;
+
+/// Depth-first branch and bound over LP relaxations: branch on the most
+/// nearly chosen fractional option (take it / forbid it), prune by the
+/// incumbent. Improves `best` in place and returns a bound on the
+/// component's value: its value when the tree is exhausted, otherwise the
+/// largest LP value of a node left open. `None` when a solve fails.
+fn branch_and_bound(
+    inst: &Instance,
+    exps: &[usize],
+    best: &mut State,
+    backend: Backend,
+    deadline: Instant,
+    budget: usize,
+) -> Option<f64> {
+    struct Node {
+        allowed: Vec<Vec<usize>>,
+        forced: Vec<bool>,
+        parent: f64,
+    }
+    let mut incumbent = comp_value(inst, exps, best);
+    let mut stack = vec![Node {
+        allowed: exps
+            .iter()
+            .map(|&e| (0..inst.options[e].len()).collect())
+            .collect(),
+        forced: vec![false; exps.len()],
+        parent: f64::INFINITY,
+    }];
+    let order = super::options::topological_order(inst.portfolio);
+    let mut rank = vec![0usize; inst.roles.len()];
+    for (r, &e) in order.iter().enumerate() {
+        rank[e] = r;
+    }
+    let mut by_rank: Vec<usize> = (0..exps.len()).collect();
+    by_rank.sort_by_key(|&i| rank[exps[i]]);
+    let mut nodes = 0usize;
+    // Best-first: the open node with the largest bound (earliest made on
+    // ties), so the proved bound falls as fast as it can.
+    let pop_best = |stack: &mut Vec<Node>| -> Option<Node> {
+        let mut bi = None;
+        for (k, n) in stack.iter().enumerate() {
+            if bi.is_none_or(|b: usize| n.parent > stack[b].parent) {
+                bi = Some(k);
+            }
+        }
+        bi.map(|k| stack.remove(k))
+    };
+    while let Some(node) = pop_best(&mut stack) {
+        if node.parent <= incumbent + tol(incumbent) {
+            continue;
+        }
+        if nodes >= budget || Instant::now() >= deadline {
+            stack.push(node);
+            break;
+        }
+        nodes += 1;
+        let sub = Sub {
+            exps,
+            allowed: &node.allowed,
+            forced: &node.forced,
+        };
+        let lp = match lp::solve(inst, &sub, backend, false, remaining(deadline), None) {
+            Ok(lp) => lp,
+            Err(lp::Failed::Infeasible) => continue,
+            Err(lp::Failed::Other) => return None,
+        };
+        let node_bound = lp.value.min(node.parent);
+        if node_bound <= incumbent + tol(incumbent) {
+            continue;
+        }
+        // Branch on the test whose LP choice is most spread out.
+        let mut pick: Option<(usize, f64)> = None;
+        for (i, xs) in lp.x.iter().enumerate() {
+            let sum: f64 = xs.iter().sum();
+            let max = xs.iter().copied().fold(0.0, f64::max);
+            let spread = if sum > 1e-6 && sum < 1.0 - 1e-6 {
+                sum.min(1.0 - sum)
+            } else {
+                sum - max
+            };
+            if spread > 1e-6 && pick.is_none_or(|p| spread > p.1) {
+                pick = Some((i, spread));
+            }
+        }
+        // Round this node's LP into a calendar; an integral LP is exact.
+        let mut cand = best.clone();
+        for &e in exps {
+            cand.remove(inst, e);
+        }
+        let mut ok = true;
+        for &i in &by_rank {
+            let e = exps[i];
+            if let Some(j) = lp.x[i].iter().position(|&x| x >= 1.0 - 1e-6) {
+                let k = node.allowed[i][j];
+                if cand.fits(inst, e, &inst.options[e][k]) {
+                    cand.add(inst, e, k);
+                } else {
+                    ok = false;
+                }
+            }
+        }
+        if ok {
+            fill(inst, exps, &mut cand);
+            let v = comp_value(inst, exps, &cand);
+            if v > incumbent + tol(incumbent) {
+                copy_choices(inst, exps, best, &cand);
+                incumbent = v;
+            }
+        }
+        let Some((i, _)) = pick else {
+            continue;
+        };
+        let xs = &lp.x[i];
+        let sum: f64 = xs.iter().sum();
+        let (first, second) = if sum < 1.0 - 1e-6 && !node.forced[i] {
+            // Left out, or run.
+            let mut out = Node {
+                allowed: node.allowed.clone(),
+                forced: node.forced.clone(),
+                parent: node_bound,
+            };
+            out.allowed[i].clear();
+            let mut run = Node {
+                allowed: node.allowed,
+                forced: node.forced,
+                parent: node_bound,
+            };
+            run.forced[i] = true;
+            if sum >= 0.5 {
+                (run, out)
+            } else {
+                (out, run)
+            }
+        } else {
+            // Split its options by (start, share) at the LP's median.
+            let mut idx: Vec<usize> = (0..node.allowed[i].len()).collect();
+            let e = exps[i];
+            idx.sort_by(|&a, &b| {
+                let (oa, ob) = (
+                    &inst.options[e][node.allowed[i][a]],
+                    &inst.options[e][node.allowed[i][b]],
+                );
+                oa.start.cmp(&ob.start).then(oa.share.total_cmp(&ob.share))
+            });
+            let mut cum = 0.0;
+            let mut cut = 0;
+            for (pos, &j) in idx.iter().enumerate() {
+                cum += xs[j];
+                if cum >= sum / 2.0 - 1e-9 {
+                    cut = pos + 1;
+                    break;
+                }
+            }
+            let cut = cut.clamp(1, idx.len() - 1);
+            let lo_mass: f64 = idx[..cut].iter().map(|&j| xs[j]).sum();
+            let mut lo: Vec<usize> = idx[..cut].iter().map(|&j| node.allowed[i][j]).collect();
+            let mut hi: Vec<usize> = idx[cut..].iter().map(|&j| node.allowed[i][j]).collect();
+            lo.sort_unstable();
+            hi.sort_unstable();
+            let mut a = Node {
+                allowed: node.allowed.clone(),
+                forced: node.forced.clone(),
+                parent: node_bound,
+            };
+            a.allowed[i] = lo;
+            let mut b = Node {
+                allowed: node.allowed,
+                forced: node.forced,
+                parent: node_bound,
+            };
+            b.allowed[i] = hi;
+            if lo_mass >= sum / 2.0 {
+                (a, b)
+            } else {
+                (b, a)
+            }
+        };
+        stack.push(second);
+        stack.push(first);
+    }
+    let open = stack
+        .iter()
+        .map(|n| n.parent)
+        .fold(f64::NEG_INFINITY, f64::max);
+    if std::env::var("SLUICE_DEBUG").is_ok() {
+        eprintln!(
+            "  bnb nodes={nodes} open={} incumbent={incumbent:.3} open_bound={open:.3}",
+            stack.len()
+        );
+    }
+    Some(incumbent.max(open))
+}
+
+fn proved(state: &State, inst: &Instance, exps: &[usize], bound: f64) -> bool {
+    comp_value(inst, exps, state) >= bound - tol(bound)
+}
+
+/// Value of the component's tests in `state`.
+pub(crate) fn comp_value(inst: &Instance, exps: &[usize], state: &State) -> f64 {
+    exps.iter()
+        .filter_map(|&e| state.opt(inst, e).map(|o| o.value))
+        .sum()
+}
+
+/// Makes `to` hold the choices of `from` for the component's tests.
+pub(crate) fn copy_choices(inst: &Instance, exps: &[usize], to: &mut State, from: &State) {
+    for &e in exps {
+        if to.choice[e] != from.choice[e] {
+            to.remove(inst, e);
+        }
+    }
+    for &e in exps {
+        if to.choice[e] != from.choice[e] {
+            if let Some(k) = from.choice[e] {
+                to.add(inst, e, k);
+            }
+        }
+    }
+}
+
+/// Takes `cand` into `best` when it is strictly better.
+fn adopt(inst: &Instance, exps: &[usize], best: &mut State, cand: &State) {
+    if comp_value(inst, exps, cand) > comp_value(inst, exps, best) + tol(best.value) {
+        copy_choices(inst, exps, best, cand);
+    }
+}
+
+/// LP-guided rounding: the options in order of their LP weight (then
+/// value), each taken when its test is still free and it fits; then every
+/// test left tries its best fitting option.
+fn round(
+    inst: &Instance,
+    exps: &[usize],
+    allowed: &[Vec<usize>],
+    x: &[Vec<f64>],
+    state: &mut State,
+) {
+    for &e in exps {
+        state.remove(inst, e);
+    }
+    let mut order: Vec<(f64, f64, usize, usize)> = Vec::new();
+    for (i, &e) in exps.iter().enumerate() {
+        for (j, &k) in allowed[i].iter().enumerate() {
+            if x[i][j] > 1e-6 {
+                order.push((x[i][j], inst.options[e][k].value, i, k));
+            }
+        }
+    }
+    order.sort_by(|a, b| {
+        b.0.total_cmp(&a.0)
+            .then(b.1.total_cmp(&a.1))
+            .then(a.2.cmp(&b.2))
+            .then(a.3.cmp(&b.3))
+    });
+    for _pass in 0..2 {
+        for &(_, _, i, k) in &order {
+            let e = exps[i];
+            if state.choice[e].is_none() && state.fits(inst, e, &inst.options[e][k]) {
+                state.add(inst, e, k);
+            }
+        }
+    }
+    fill(inst, exps, state);
+}
+
+/// Every unscheduled test of the component takes its best fitting option,
+/// by priority.
+fn fill(inst: &Instance, exps: &[usize], state: &mut State) {
+    let mut order: Vec<usize> = exps.to_vec();
+    let p = inst.portfolio;
+    order.sort_by(|&a, &b| {
+        p.experiments[b]
+            .priority
+            .total_cmp(&p.experiments[a].priority)
+            .then(a.cmp(&b))
+    });
+    for _pass in 0..2 {
+        for &e in &order {
+            if state.choice[e].is_none() {
+                if let Some(k) = state.best_fit(inst, e) {
+                    state.add(inst, e, k);
+                }
+            }
+        }
+    }
+}
+
+/// Whether scheduled `a` and an option span of `b` compete: same pool and
+/// overlapping days, or a `not_with` pair overlapping.
+fn competes(
+    inst: &Instance,
+    a_pool: usize,
+    a: (usize, usize),
+    b: usize,
+    b_span: (usize, usize),
+) -> bool {
+    let overlap = a.0 <= b_span.1 && b_span.0 <= a.1;
+    overlap && inst.portfolio.experiments[b].pool == a_pool
+}
+
+/// The large neighbourhood search on the component's tests in `state`.
+fn lns(
+    inst: &Instance,
+    exps: &[usize],
+    state: &mut State,
+    iters: usize,
+    rng: &mut SplitMix64,
+    deadline: Instant,
+) {
+    let p = inst.portfolio;
+    let mut best = state.clone();
+    let mut best_value = best.value;
+    let mut removed: Vec<usize> = Vec::new();
+    for it in 0..iters {
+        if it % 32 == 0 && Instant::now() >= deadline {
+            break;
+        }
+        removed.clear();
+        let unscheduled: Vec<usize> = exps
+            .iter()
+            .copied()
+            .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
+            .collect();
+        let mode = rng.below(4);
+        let mut seed_move: Option<(usize, usize)> = None;
+        if mode <= 1 && !unscheduled.is_empty() {
+            // Clear the way for one option of a left-out test.
+            let u = unscheduled[rng.below(unscheduled.len())];
+            let n = inst.options[u].len();
+            let top = 1 + rng.below(n);
+            let k = rng.below(top);
+            let o = inst.options[u][k];
+            let u_pool = p.experiments[u].pool;
+            for &e in exps {
+                if let Some(eo) = state.opt(inst, e) {
+                    let span = (eo.start, eo.end);
+                    let clash = competes(inst, u_pool, (o.start, o.end), e, span)
+                        || (p.experiments[u].not_with.contains(&e)
+                            && eo.start <= o.end
+                            && o.start <= eo.end);
+                    if clash {
+                        state.remove_with_successors(inst, e, &mut removed);
+                    }
+                }
+            }
+            if state.fits(inst, u, &o) {
+                seed_move = Some((u, k));
+            }
+        } else if mode == 2 {
+            // A pool over a span of weeks.
+            let e0 = exps[rng.below(exps.len())];
+            let pool = p.experiments[e0].pool;
+            let a = rng.below(inst.days.max(1));
+            let b = a + 7 * (1 + rng.below(6));
+            for &e in exps {
+                if p.experiments[e].pool != pool {
+                    continue;
+                }
+                if let Some(eo) = state.opt(inst, e) {
+                    if eo.start <= b && a <= eo.end {
+                        state.remove_with_successors(inst, e, &mut removed);
+                    }
+                }
+            }
+        } else {
+            // A few at random.
+            let scheduled: Vec<usize> = exps
+                .iter()
+                .copied()
+                .filter(|&e| state.choice[e].is_some())
+                .collect();
+            if scheduled.is_empty() {
+                continue;
+            }
+            for _ in 0..1 + rng.below(3) {
+                let e = scheduled[rng.below(scheduled.len())];
+                state.remove_with_successors(inst, e, &mut removed);
+            }
+        }
+        let mut touched: Vec<usize> = removed.iter().map(|&e| p.experiments[e].pool).collect();
+        if let Some((u, k)) = seed_move {
+            state.add(inst, u, k);
+            touched.push(p.experiments[u].pool);
+        }
+        touched.sort_unstable();
+        touched.dedup();
+        let local: Vec<usize> = exps
+            .iter()
+            .copied()
+            .filter(|&e| touched.binary_search(&p.experiments[e].pool).is_ok())
+            .collect();
+        recreate(inst, &local, state, rng);
+        // Only this component changes, so the global value compares alike.
+        let cur_value = state.value;
+        // Record-to-record travel: keep a move that stays within a
+        // shrinking margin of the best, so the search can leave a local
+        // optimum; fall back to the best otherwise.
+        let margin = 0.01 * (1.0 - it as f64 / iters as f64) * best_value.abs();
+        if cur_value > best_value + tol(best_value) {
+            copy_choices(inst, exps, &mut best, state);
+            best_value = cur_value;
+        } else if cur_value < best_value - margin - tol(best_value) {
+            copy_choices(inst, exps, state, &best);
+        }
+    }
+    copy_choices(inst, exps, state, &best);
+}
+
+/// Re-inserts every unscheduled test of the component, in priority order
+/// with noise, each at its best fitting option or, now and then, at the
+/// leanest option worth nearly as much.
+fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitMix64) {
+    let p = inst.portfolio;
+    let mut order: Vec<(f64, usize)> = exps
+        .iter()
+        .copied()
+        .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
+        .map(|e| (p.experiments[e].priority * (0.7 + 0.6 * rng.unit()), e))
+        .collect();
+    order.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+    let lean = rng.below(3) == 0;
+    for _pass in 0..2 {
+        for &(_, e) in &order {
+            if state.choice[e].is_some() {
+                continue;
+            }
+            let Some(k) = state.best_fit(inst, e) else {
+                continue;
+            };
+            let k = if lean {
+                let top = inst.options[e][k].value;
+                let floor = top - 0.03 * top.abs();
+                let mut pick = k;
+                let mut foot = footprint(&inst.options[e][k]);
+                for (j, o) in inst.options[e].iter().enumerate().skip(k + 1) {
+                    if o.value < floor {
+                        break;
+                    }
+                    let f = footprint(o);
+                    if f < foot && state.fits(inst, e, o) {
+                        pick = j;
+                        foot = f;
+                    }
+                }
+                pick
+            } else {
+                k
+            };
+            state.add(inst, e, k);
+        }
+    }
+}
+
+fn footprint(o: &super::options::Opt) -> f64 {
+    o.share * (o.end - o.start + 1) as f64
+}

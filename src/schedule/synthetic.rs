@@ -1,0 +1,223 @@
+//! Seeded synthetic portfolios for tests and the benchmark.
+//!
+//! The same [`Spec`] always gives the same portfolio. Pools get a daily
+//! level, a weekday pattern, sometimes a dip; tests get a need sized so the
+//! queue asks for about one and a half times the traffic the window holds,
+//! integer priorities 1-10, and now and then an earliest start, a deadline,
+//! an `after` link or a `not_with` pair (mostly within one pool), plus a
+//! week with no starts and sometimes a week with nothing running on a pool.
+//! The scenario is invented; nothing here models a real site.
+
+use super::search::SplitMix64;
+use crate::portfolio::{
+    Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast, Planning, Pool,
+    Portfolio, Prerequisite, Sharing, StartGrid, Window,
+};
+use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
+use chrono::{Duration, NaiveDate, Weekday};
+
+/// The size and seed of a synthetic portfolio.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Spec {
+    pub tests: usize,
+    pub pools: usize,
+    pub weeks: usize,
+    pub seed: u64,
+}
+
+impl Spec {
+    /// 10 tests, 2 pools, 13 weeks.
+    pub fn small(seed: u64) -> Spec {
+        Spec {
+            tests: 10,
+            pools: 2,
+            weeks: 13,
+            seed,
+        }
+    }
+    /// 30 tests, 4 pools, 13 weeks.
+    pub fn medium(seed: u64) -> Spec {
+        Spec {
+            tests: 30,
+            pools: 4,
+            weeks: 13,
+            seed,
+        }
+    }
+    /// 300 tests, 20 pools, 52 weeks.
+    pub fn large(seed: u64) -> Spec {
+        Spec {
+            tests: 300,
+            pools: 20,
+            weeks: 52,
+            seed,
+        }
+    }
+}
+
+/// The share levels of every synthetic portfolio.
+pub const SHARE_LEVELS: [f64; 6] = [0.1, 0.2, 0.3, 0.5, 0.75, 1.0];
+
+/// Builds the portfolio of `spec`.
+pub fn portfolio(spec: &Spec) -> Portfolio {
+    let mut rng = SplitMix64::new(spec.seed.wrapping_mul(0x9E37_79B9).wrapping_add(17));
+    let start = NaiveDate::from_ymd_opt(2027, 1, 4).expect("a valid date"); // a Monday
+    let weeks = spec.weeks.max(1);
+    let end = start + Duration::days(7 * weeks as i64 - 1);
+    let npools = spec.pools.max(1);
+    let pools: Vec<Pool> = (0..npools)
+        .map(|i| {
+            let daily = (10f64.powf(4.0 + 1.3 * rng.unit())).round();
+            let mut adjustments = Vec::new();
+            if rng.unit() < 0.3 {
+                let from = start + Duration::days(7 * rng.below(weeks) as i64);
+                adjustments.push(Adjustment {
+                    from,
+                    to: from + Duration::days(6),
+                    change: Change::Multiply(0.6),
+                    note: "seasonal dip".into(),
+                });
+            }
+            let split = rng.unit() < 0.8;
+            Pool {
+                id: format!("pool-{i}"),
+                label: format!("Pool {i}"),
+                forecast: Forecast {
+                    daily,
+                    weekday: [1.05, 1.1, 1.1, 1.05, 1.0, 0.8, 0.9],
+                    adjustments,
+                    scales: Vec::new(),
+                },
+                sharing: if split {
+                    Sharing::Split
+                } else {
+                    Sharing::Overlap
+                },
+                max_concurrent: if split {
+                    3 + rng.below(3) as u32
+                } else {
+                    2 + rng.below(3) as u32
+                },
+            }
+        })
+        .collect();
+    let ntests = spec.tests;
+    // Mean run at half a pool, in weeks, so demand is ~1.5x the supply.
+    let mean_weeks =
+        (3.0 * weeks as f64 * npools as f64 / ntests.max(1) as f64).min(weeks as f64 * 0.8);
+    let mut experiments: Vec<Experiment> = Vec::with_capacity(ntests);
+    for i in 0..ntests {
+        let pool = rng.below(npools);
+        let run_weeks = (mean_weeks * (0.4 + 1.2 * rng.unit())).max(1.0);
+        let daily = pools[pool].forecast.daily;
+        let total = (daily * 7.0 * run_weeks * 0.5).round() as u64;
+        let earliest_start = (rng.unit() < 0.2)
+            .then(|| start + Duration::days(7 * rng.below(weeks.div_ceil(2)) as i64));
+        let deadline = (rng.unit() < 0.2)
+            .then(|| end - Duration::days(7 * rng.below(weeks.div_ceil(2)) as i64));
+        let max_share = [0.5, 0.75, 1.0, 1.0][rng.below(4)];
+        let mut after = Vec::new();
+        if i > 0 && rng.unit() < 0.1 {
+            let same: Vec<usize> = (0..i).filter(|&j| experiments[j].pool == pool).collect();
+            let pred = if !same.is_empty() && rng.unit() < 0.8 {
+                same[rng.below(same.len())]
+            } else {
+                rng.below(i)
+            };
+            after.push(Prerequisite {
+                experiment: pred,
+                gap_days: [0, 7][rng.below(2)],
+            });
+        }
+        experiments.push(Experiment {
+            id: format!("test-{i:03}"),
+            title: format!("Synthetic test {i}"),
+            owner: "synthetic".into(),
+            pool,
+            design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
+            need: SampleSize {
+                control_exact: total as f64 / 2.0,
+                treatment_exact: total as f64 / 2.0,
+                control: total.div_ceil(2),
+                treatment: total.div_ceil(2),
+                arms: 2,
+                total,
+                comparison_alpha: 0.05,
+            },
+            priority: (1 + rng.below(10)) as f64,
+            earliest_start,
+            deadline,
+            max_share,
+            min_days: 14,
+            whole_weeks: true,
+            after,
+            not_with: Vec::new(),
+        });
+    }
+    // not_with pairs, mostly within a pool.
+    for i in 0..ntests {
+        if rng.unit() < 0.05 {
+            let pool = experiments[i].pool;
+            let same: Vec<usize> = (0..ntests)
+                .filter(|&j| j != i && experiments[j].pool == pool)
+                .collect();
+            let j = if !same.is_empty() && rng.unit() < 0.8 {
+                same[rng.below(same.len())]
+            } else {
+                rng.below(ntests)
+            };
+            if j != i {
+                experiments[i].not_with.push(j);
+                experiments[j].not_with.push(i);
+            }
+        }
+    }
+    for e in &mut experiments {
+        e.not_with.sort_unstable();
+        e.not_with.dedup();
+    }
+    let mut blackouts = vec![Blackout {
+        from: start + Duration::days(7 * (weeks as i64 / 2)),
+        to: start + Duration::days(7 * (weeks as i64 / 2) + 6),
+        kind: BlackoutKind::NoStarts,
+        note: "release freeze".into(),
+        pools: Vec::new(),
+    }];
+    if rng.unit() < 0.5 {
+        let from = start + Duration::days(7 * rng.below(weeks) as i64);
+        blackouts.push(Blackout {
+            from,
+            to: from + Duration::days(6),
+            kind: BlackoutKind::NoRunning,
+            note: "site redesign".into(),
+            pools: vec![rng.below(npools)],
+        });
+    }
+    Portfolio {
+        name: format!(
+            "synthetic-{}x{}x{}-{}",
+            spec.tests, spec.pools, spec.weeks, spec.seed
+        ),
+        window: Window { start, end },
+        defaults: Defaults {
+            alpha: 0.05,
+            power: 0.8,
+            sides: Sides::Two,
+            rate_method: Method::Pooled,
+            mean_method: Method::T,
+            correction: Correction::Bonferroni,
+            min_days: 14,
+            whole_weeks: true,
+        },
+        share_levels: SHARE_LEVELS.to_vec(),
+        planning: Planning {
+            grid: StartGrid::Weekly,
+            start_weekday: Weekday::Mon,
+            lateness_weight: 0.5,
+            reshare_running: false,
+        },
+        pools,
+        experiments,
+        blackouts,
+    }
+}

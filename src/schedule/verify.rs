@@ -1,0 +1,304 @@
+//! The independent plan verifier.
+//!
+//! It re-derives every rule from the portfolio, the request and the
+//! forecast, sharing no code with the planner beyond the validated model
+//! and [`units_on`]: it recomputes each run's end by its own day-by-day
+//! loop, rebuilds every pool's daily occupancy from the listed runs, and
+//! recomputes the objective. The planner never calls it; the tests run it
+//! on every plan they make, and so may a re-planner on its results.
+
+use super::PlanRequest;
+use crate::forecast::units_on;
+use crate::plan::{Plan, Status};
+use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Sharing, StartGrid};
+use chrono::{Datelike, Duration, NaiveDate};
+
+const TOL: f64 = 1e-6;
+
+/// The last day of a run at `share` from `start`: the first day its units
+/// reach `need`, at least `min_days` long, whole weeks when asked; `None`
+/// if not reached by `limit`.
+fn own_end(
+    portfolio: &Portfolio,
+    ex: &Experiment,
+    start: NaiveDate,
+    share: f64,
+    limit: NaiveDate,
+) -> Option<NaiveDate> {
+    let (pool, need) = (ex.pool, ex.need.total as f64);
+    let (min_days, whole_weeks) = (ex.min_days, ex.whole_weeks);
+    let mut total = 0.0;
+    let mut day = start;
+    let mut n: i64 = 0;
+    loop {
+        if day > limit {
+            return None;
+        }
+        total += share * units_on(&portfolio.pools[pool], day);
+        n += 1;
+        if total >= need * (1.0 - 1e-9) {
+            break;
+        }
+        day += Duration::days(1);
+    }
+    let mut days = n.max(i64::from(min_days)).max(1);
+    if whole_weeks {
+        days = (days + 6) / 7 * 7;
+    }
+    let end = start + Duration::days(days - 1);
+    (end <= limit).then_some(end)
+}
+
+/// Checks `plan` against every rule; `Err` lists each violation found.
+pub fn verify(
+    portfolio: &Portfolio,
+    request: &PlanRequest,
+    plan: &Plan,
+) -> Result<(), Vec<String>> {
+    let p = portfolio;
+    let w = p.window;
+    let mut bad: Vec<String> = Vec::new();
+    if plan.experiments.len() != p.experiments.len() {
+        bad.push(format!(
+            "the plan lists {} experiments; the portfolio has {}",
+            plan.experiments.len(),
+            p.experiments.len()
+        ));
+        return Err(bad);
+    }
+    // Runs by experiment index: (start, end, share).
+    let mut runs: Vec<Option<(NaiveDate, NaiveDate, f64)>> = vec![None; p.experiments.len()];
+    for (i, (ex, pe)) in p.experiments.iter().zip(&plan.experiments).enumerate() {
+        if pe.id != ex.id {
+            bad.push(format!("entry {i} is `{}`, expected `{}`", pe.id, ex.id));
+            continue;
+        }
+        if pe.pool != p.pools[ex.pool].id {
+            bad.push(format!("`{}` is listed on pool `{}`", ex.id, pe.pool));
+        }
+        if pe.units_needed != ex.need.total {
+            bad.push(format!(
+                "`{}` lists {} units needed; it needs {}",
+                ex.id, pe.units_needed, ex.need.total
+            ));
+        }
+        match pe.status {
+            Status::Scheduled | Status::Running => match (pe.start, pe.end, pe.share) {
+                (Some(s), Some(e), Some(sh)) => runs[i] = Some((s, e, sh)),
+                _ => bad.push(format!(
+                    "`{}` is scheduled without a start, end and share",
+                    ex.id
+                )),
+            },
+            Status::Unscheduled | Status::Finished | Status::Cancelled => {
+                if pe.start.is_some() || pe.end.is_some() || pe.share.is_some() {
+                    bad.push(format!("`{}` is unscheduled but has a run", ex.id));
+                }
+                if pe.reason.as_deref().is_none_or(|r| r.trim().is_empty()) {
+                    bad.push(format!("`{}` is unscheduled without a reason", ex.id));
+                }
+            }
+        }
+    }
+    let fixed = |i: usize| request.fixed.iter().find(|f| f.experiment == i);
+    let excluded = |i: usize| request.excluded.iter().find(|x| x.experiment == i);
+    for (i, ex) in p.experiments.iter().enumerate() {
+        if let Some(f) = fixed(i) {
+            if runs[i] != Some((f.start, f.end, f.share)) {
+                bad.push(format!("running `{}` was not kept as given", ex.id));
+            }
+            continue;
+        }
+        if excluded(i).is_some() {
+            if runs[i].is_some() {
+                bad.push(format!("`{}` left the queue but is scheduled", ex.id));
+            }
+            continue;
+        }
+        let Some((start, end, share)) = runs[i] else {
+            continue;
+        };
+        let id = &ex.id;
+        if start < w.start || end > w.end {
+            bad.push(format!("`{id}` runs {start}..{end}, outside the window"));
+        }
+        if let Some(today) = request.today {
+            if start < today {
+                bad.push(format!("`{id}` starts {start}, before today {today}"));
+            }
+        }
+        if let Some(es) = ex.earliest_start {
+            if start < es {
+                bad.push(format!(
+                    "`{id}` starts {start}, before its earliest start {es}"
+                ));
+            }
+        }
+        if let Some(dl) = ex.deadline {
+            if end > dl {
+                bad.push(format!("`{id}` ends {end}, after its deadline {dl}"));
+            }
+        }
+        if p.planning.grid == StartGrid::Weekly && start.weekday() != p.planning.start_weekday {
+            bad.push(format!(
+                "`{id}` starts on a {}, off the weekly grid",
+                start.weekday()
+            ));
+        }
+        if !p.share_levels.iter().any(|&l| (l - share).abs() < 1e-12) {
+            bad.push(format!("`{id}` takes share {share}, not a share level"));
+        }
+        if share > ex.max_share + 1e-12 {
+            bad.push(format!(
+                "`{id}` takes share {share}, above its maximum {}",
+                ex.max_share
+            ));
+        }
+        match own_end(p, ex, start, share, w.end) {
+            Some(e) if e == end => {}
+            Some(e) => bad.push(format!(
+                "`{id}` ends {end}; its units and run rules give {e}"
+            )),
+            None => bad.push(format!("`{id}` cannot reach its units inside the window")),
+        }
+        for b in &p.blackouts {
+            let pool = ex.pool;
+            match b.kind {
+                BlackoutKind::NoStarts if b.covers(start, pool) => {
+                    bad.push(format!("`{id}` starts {start} inside a no-starts blackout"))
+                }
+                BlackoutKind::NoRunning
+                    if b.from <= end
+                        && start <= b.to
+                        && (b.pools.is_empty() || b.pools.contains(&pool)) =>
+                {
+                    bad.push(format!(
+                        "`{id}` runs through a no-running blackout {}..{}",
+                        b.from, b.to
+                    ))
+                }
+                _ => {}
+            }
+        }
+        for pre in &ex.after {
+            let pred_end = if let Some(f) = fixed(pre.experiment) {
+                Some(f.end)
+            } else if let Some(x) = excluded(pre.experiment) {
+                x.ended
+            } else {
+                runs[pre.experiment].map(|r| r.1)
+            };
+            let pid = &p.experiments[pre.experiment].id;
+            match pred_end {
+                None => bad.push(format!("`{id}` runs but its predecessor `{pid}` does not")),
+                Some(pe) => {
+                    let first = pe + Duration::days(1 + i64::from(pre.gap_days));
+                    if start < first {
+                        bad.push(format!(
+                            "`{id}` starts {start}, before `{pid}` ends plus gap ({first})"
+                        ));
+                    }
+                }
+            }
+        }
+        if let Some(pe) = plan.experiments.get(i) {
+            if pe.result_date != Some(end + Duration::days(1)) {
+                bad.push(format!(
+                    "`{id}` has a result date that is not the day after its end"
+                ));
+            }
+        }
+    }
+    // not_with, for every pair with both running.
+    for (a, ex) in p.experiments.iter().enumerate() {
+        for &b in &ex.not_with {
+            if b <= a {
+                continue;
+            }
+            if let (Some(ra), Some(rb)) = (runs[a], runs[b]) {
+                if ra.0 <= rb.1 && rb.0 <= ra.1 {
+                    bad.push(format!(
+                        "`{}` and `{}` must not run together but overlap",
+                        ex.id, p.experiments[b].id
+                    ));
+                }
+            }
+        }
+    }
+    // Pools day by day.
+    for (pi, pool) in p.pools.iter().enumerate() {
+        let pp = plan.pools.get(pi);
+        let mut day = w.start;
+        let mut k = 0usize;
+        while day <= w.end {
+            let mut used = 0.0;
+            let mut count = 0u32;
+            for (i, ex) in p.experiments.iter().enumerate() {
+                if ex.pool != pi {
+                    continue;
+                }
+                if let Some((s, e, sh)) = runs[i] {
+                    if s <= day && day <= e {
+                        used += sh;
+                        count += 1;
+                    }
+                }
+            }
+            if pool.sharing == Sharing::Split && used > 1.0 + TOL {
+                bad.push(format!(
+                    "`{}` is shared {:.4} on {day}, over 1",
+                    pool.id, used
+                ));
+            }
+            if count > pool.max_concurrent {
+                bad.push(format!(
+                    "`{}` runs {count} tests on {day}, over its cap {}",
+                    pool.id, pool.max_concurrent
+                ));
+            }
+            match pp.and_then(|pp| pp.days.get(k)) {
+                Some(pd)
+                    if pd.date == day
+                        && pd.running == count
+                        && (pd.share_used - used).abs() < TOL => {}
+                _ => bad.push(format!(
+                    "the plan's day {day} of `{}` does not match its runs",
+                    pool.id
+                )),
+            }
+            day += Duration::days(1);
+            k += 1;
+        }
+    }
+    // The objective.
+    let n = w.days();
+    let mut value = 0.0;
+    for (i, ex) in p.experiments.iter().enumerate() {
+        if let Some((_, end, _)) = runs[i] {
+            let t = if n > 1 {
+                (end - w.start).num_days() as f64 / (n - 1) as f64
+            } else {
+                0.0
+            };
+            value += ex.priority * (1.0 - p.planning.lateness_weight * t);
+        }
+    }
+    let scale = value.abs().max(1.0);
+    if (value - plan.solver.value).abs() > 1e-6 * scale {
+        bad.push(format!(
+            "the plan claims value {}, its runs are worth {value}",
+            plan.solver.value
+        ));
+    }
+    if plan.solver.bound < plan.solver.value - 1e-6 * scale {
+        bad.push(format!(
+            "the bound {} is below the value {}",
+            plan.solver.bound, plan.solver.value
+        ));
+    }
+    if bad.is_empty() {
+        Ok(())
+    } else {
+        Err(bad)
+    }
+}
