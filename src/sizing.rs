@@ -704,21 +704,38 @@ fn bisect(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, rel_tol: f64) -> f64
     hi
 }
 
+/// More units than any test could ever see: sizes at or above this are
+/// reported as having no solution.
+const MAX_UNITS: f64 = 1e15;
+
 /// Units per arm and in total for a design.
 pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
     d.validate()?;
     let control_exact = control_exact(d)?;
     let treatment_exact = control_exact * d.ratio;
-    if !(control_exact.is_finite() && control_exact > 0.0 && control_exact < 1e15) {
-        return Err(SizingError::NoSolution(format!(
-            "the design needs {control_exact} units per arm, beyond any traffic; use a larger MDE"
-        )));
+    for exact in [control_exact, treatment_exact] {
+        if !(exact.is_finite() && exact > 0.0 && exact < MAX_UNITS) {
+            return Err(SizingError::NoSolution(format!(
+                "the design needs {exact} units in one arm, beyond any traffic; use a larger MDE"
+            )));
+        }
     }
     // Power rises with n, so rounding the exact root up gives the smallest
     // whole size that reaches the target (for the t method too).
     let control = round_up(control_exact);
     let treatment = round_up(treatment_exact);
-    let total = control + u64::from(d.arms - 1) * treatment;
+    // Checked: many arms of a large size must not wrap the total around.
+    let total = u64::from(d.arms - 1)
+        .checked_mul(treatment)
+        .and_then(|t| t.checked_add(control))
+        .filter(|&t| (t as f64) < MAX_UNITS)
+        .ok_or_else(|| {
+            SizingError::NoSolution(format!(
+                "`arms` is {}: {treatment} units in each treatment arm come to more than \
+                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
+                d.arms
+            ))
+        })?;
     Ok(SampleSize {
         control_exact,
         treatment_exact,
@@ -731,10 +748,11 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
 }
 
 /// Rounds a size up to whole units, forgiving floating-point noise just
-/// above an integer (1e-9 relative).
+/// above an integer (1e-12 relative: at 1e-9, ten million units could be
+/// rounded down by a hundredth of a unit, below the target power).
 fn round_up(x: f64) -> u64 {
     let r = x.round();
-    if (x - r).abs() <= 1e-9 * x.abs().max(1.0) {
+    if (x - r).abs() <= 1e-12 * x.abs().max(1.0) {
         r as u64
     } else {
         x.ceil() as u64
@@ -1138,6 +1156,33 @@ mod tests {
         assert!(days_needed(100, 10.0, 0.0, 14, true).is_err());
         assert!(days_needed(100, 10.0, 1.5, 14, true).is_err());
         assert!(days_needed(100, 0.0, 0.5, 14, true).is_err());
+    }
+
+    #[test]
+    fn sizes_beyond_any_traffic_are_errors_not_wrapped_totals() {
+        // 1.05e13 units per arm over 2^32 - 2 treatment arms overflowed u64
+        // and wrapped to 7.95e18 in a release build (a panic in debug).
+        let many_arms = Design {
+            arms: u32::MAX,
+            effect: Effect::Absolute(1e-6),
+            ..rate(0.1, 0.1)
+        };
+        let err = sample_size(&many_arms).unwrap_err();
+        assert!(err.to_string().contains("`arms`"), "{err}");
+        // A huge ratio makes the treatment arm infinite.
+        let lopsided = Design {
+            ratio: 1e300,
+            ..rate(0.1, 0.1)
+        };
+        assert!(sample_size(&lopsided).is_err());
+        // Far from the limit, totals are exact.
+        let four = sample_size(&Design {
+            arms: 4,
+            ratio: 2.0,
+            ..rate(0.1, 0.1)
+        })
+        .unwrap();
+        assert_eq!(four.total, four.control + 3 * four.treatment);
     }
 
     #[test]
