@@ -55,6 +55,9 @@ impl From<CorrectionArg> for Correction {
 }
 
 #[derive(Args, Debug)]
+// Negative numbers are values, not flags: `--mean -50` is a real metric, and
+// `--alpha -0.1` should reach the range check that names `--alpha`.
+#[command(allow_negative_numbers = true)]
 #[command(after_help = "Examples:\n  \
     sluice size --baseline 0.04 --mde 0.10\n  \
     sluice size --baseline 0.04 --mde-abs 0.005 --arms 3 --daily 20000 --share 0.5\n  \
