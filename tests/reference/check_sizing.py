@@ -56,6 +56,7 @@ import subprocess
 import sys
 import warnings
 from concurrent.futures import ThreadPoolExecutor
+from types import SimpleNamespace
 
 from scipy.optimize import brentq
 from scipy.stats import norm
@@ -398,30 +399,33 @@ def run_all(binary, designs):
 # ----------------------------------------------------------------- checks
 
 
-class Tally:
-    def __init__(self):
-        self.passed = 0
-        self.failed = 0
-        self.max_rel = {}  # method -> max relative difference of control_exact
-        self.max_units = 0  # largest |sluice - ceil(reference)| in units
-        self.max_power_gap = 0.0
-        self.max_far_tail = 0.0
+def new_tally():
+    """Counts of passed and failed checks, and the largest deviations seen."""
+    return SimpleNamespace(
+        passed=0,
+        failed=0,
+        max_rel={},  # method -> max relative difference of control_exact
+        max_units=0,  # largest |sluice - ceil(reference)| in units
+        max_power_gap=0.0,
+        max_far_tail=0.0,
+    )
 
-    def record(self, name, problems):
-        if problems:
-            self.failed += 1
-            print(f"FAIL {name}")
-            for p in problems:
-                print(f"     {p}")
-        else:
-            self.passed += 1
+
+def record(tally, name, problems):
+    if problems:
+        tally.failed += 1
+        print(f"FAIL {name}")
+        for p in problems:
+            print(f"     {p}")
+    else:
+        tally.passed += 1
 
 
 def check_design(tally, d, result):
     code, out, err = result
     problems = []
     if code != 0:
-        tally.record(describe(d), [f"sluice exited {code}: {err.strip()}"])
+        record(tally, describe(d), [f"sluice exited {code}: {err.strip()}"])
         return
     j = json.loads(out)
     with warnings.catch_warnings():
@@ -430,7 +434,7 @@ def check_design(tally, d, result):
     m = d["method"]
     r = d["ratio"]
     if not (math.isfinite(ref) and ref > 0):
-        tally.record(describe(d), [f"the reference gave no size ({ref})"])
+        record(tally, describe(d), [f"the reference gave no size ({ref})"])
         return
     rel = abs(j["control_exact"] - ref) / ref
     tally.max_rel[m] = max(tally.max_rel.get(m, 0.0), rel)
@@ -474,7 +478,7 @@ def check_design(tally, d, result):
         )
     if far > FAR_TAIL_MAX:
         problems.append(f"the far tail sluice ignores carries {far:.3g} of power")
-    tally.record(describe(d), problems)
+    record(tally, describe(d), problems)
 
 
 # --------------------------------------------------- the inverse: the MDE
@@ -575,18 +579,19 @@ def check_mde(tally, d, n, result):
     code, out, err = result
     name = f"MDE inverse: {describe(d)} (reference N = {n:g})"
     if code != 0:
-        tally.record(name, [f"sluice exited {code}: {err.strip()}"])
+        record(tally, name, [f"sluice exited {code}: {err.strip()}"])
         return
     j = json.loads(out)
     rel = abs(j["control_exact"] - n) / n
     key = f"mde/{d['method']}"
     tally.max_rel[key] = max(tally.max_rel.get(key, 0.0), rel)
-    tally.record(
-        name,
-        []
-        if rel <= MDE_RTOL
-        else [f"sluice needs {j['control_exact']!r} units, the reference {n:g} (relative {rel:.3g})"],
-    )
+    problems = []
+    if rel > MDE_RTOL:
+        problems.append(
+            f"sluice needs {j['control_exact']!r} units, the reference {n:g} "
+            f"(relative {rel:.3g})"
+        )
+    record(tally, name, problems)
 
 
 # ------------------------------------------------------- refused designs
@@ -618,7 +623,7 @@ def check_refused(tally, d, needle, result):
         problems.append(f"exit code {code}, expected 2 (stdout: {out.strip()[:80]})")
     if needle not in err:
         problems.append(f"the message does not name {needle}: {err.strip()}")
-    tally.record(f"refused: {describe(d)}", problems)
+    record(tally, f"refused: {describe(d)}", problems)
 
 
 # ------------------------------------------------------------------- main
@@ -638,7 +643,7 @@ def main():
     everything = designs + [d for d, _ in mde] + [d for d, _ in refused]
     results = run_all(args.bin, everything)
 
-    tally = Tally()
+    tally = new_tally()
     i = 0
     for d in designs:
         check_design(tally, d, results[i])
