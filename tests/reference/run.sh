@@ -17,6 +17,13 @@ venv="$here/.venv"
 python="${PYTHON:-python3}"
 stamp="$venv/.requirements.installed"
 
+# A venv whose interpreter is gone (the Python it was made from moved) is
+# made again.
+if [ -e "$venv" ] && ! "$venv/bin/python" -c 'import sys' >/dev/null 2>&1; then
+    echo "reference: tests/reference/.venv is broken; making it again" >&2
+    rm -rf "$venv"
+fi
+
 if [ ! -x "$venv/bin/python" ]; then
     echo "reference: creating virtual environment in tests/reference/.venv" >&2
     if ! "$python" -m venv "$venv"; then
