@@ -282,7 +282,6 @@ impl Design {
                 let p2 = self.treatment_value();
                 if !(p2 > 0.0 && p2 < 1.0) {
                     return Err(SizingError::TreatmentRateOutside {
-                        field: effect_field,
                         baseline,
                         treatment: p2,
                     });
@@ -318,9 +317,7 @@ pub enum SizingError {
         value: f64,
         expected: &'static str,
     },
-    /// The effect (from the field `mde` or `mde_abs`) leaves (0, 1).
     TreatmentRateOutside {
-        field: &'static str,
         baseline: f64,
         treatment: f64,
     },
@@ -342,12 +339,11 @@ impl fmt::Display for SizingError {
                 expected,
             } => write!(f, "`{field}` is {value}; it must be {expected}"),
             SizingError::TreatmentRateOutside {
-                field,
                 baseline,
                 treatment,
             } => write!(
                 f,
-                "`{field}` moves the rate from {baseline} to {treatment}, outside (0, 1); use a smaller MDE"
+                "the effect moves the rate from {baseline} to {treatment}, outside (0, 1); use a smaller MDE"
             ),
             SizingError::MethodMismatch { method, metric } => {
                 let allowed = if *metric == "rate" {
