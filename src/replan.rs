@@ -314,10 +314,13 @@ pub fn replan(
             State::Finished { ended, .. } => request.excluded.push(Excluded {
                 experiment: entry.experiment,
                 ended: Some(ended.unwrap_or(today - Duration::days(1))),
-                reason: format!("finished{}", match ended {
-                    Some(d) => format!(" on {d}"),
-                    None => String::new(),
-                }),
+                reason: format!(
+                    "finished{}",
+                    match ended {
+                        Some(d) => format!(" on {d}"),
+                        None => String::new(),
+                    }
+                ),
             }),
             State::Cancelled { note } => request.excluded.push(Excluded {
                 experiment: entry.experiment,
@@ -339,7 +342,11 @@ pub fn replan(
             State::Cancelled { .. } => Status::Cancelled,
         };
         let id = &portfolio.experiments[entry.experiment].id;
-        if let Some(advice) = outlooks.iter().find(|o| &o.id == id).and_then(|o| o.advice.clone()) {
+        if let Some(advice) = outlooks
+            .iter()
+            .find(|o| &o.id == id)
+            .and_then(|o| o.advice.clone())
+        {
             pe.reason = Some(advice);
         }
     }

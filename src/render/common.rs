@@ -41,6 +41,32 @@ pub fn run_of(e: &PlannedExperiment) -> Result<Option<Run>, RenderError> {
     }))
 }
 
+/// How to name an experiment with no run in this plan: "does not fit", or
+/// (in re-plans) "finished" / "cancelled".
+pub fn out_word(e: &PlannedExperiment) -> &'static str {
+    match e.status {
+        Status::Finished => "finished",
+        Status::Cancelled => "cancelled",
+        _ => "does not fit",
+    }
+}
+
+/// How many experiments left the queue (finished or cancelled; re-plans).
+pub fn closed_count(plan: &Plan) -> usize {
+    plan.experiments
+        .iter()
+        .filter(|e| matches!(e.status, Status::Finished | Status::Cancelled))
+        .count()
+}
+
+/// ", 3 finished or cancelled" when any did, else "".
+pub fn closed_note(plan: &Plan) -> String {
+    match closed_count(plan) {
+        0 => String::new(),
+        n => format!(", {n} finished or cancelled"),
+    }
+}
+
 /// Counts of experiments in the calendar (scheduled or running) and of
 /// those left out; finished and cancelled ones (re-plans) count in neither.
 pub fn counts(plan: &Plan) -> (usize, usize) {

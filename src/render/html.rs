@@ -332,9 +332,14 @@ fn calendar_chart(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
             match run_of(e)? {
                 Some(r) => bar(plan, &scale, e, &r, y, pool_fill(gi), s),
                 None => {
+                    let word = if e.status == crate::plan::Status::Unscheduled {
+                        "does not fit: see the list below"
+                    } else {
+                        super::common::out_word(e)
+                    };
                     let _ = writeln!(
                         s,
-                        r##"<text x="{:.1}" y="{:.1}" font-size="11" font-style="italic" fill="#4a525c">does not fit: see the list below</text>"##,
+                        r##"<text x="{:.1}" y="{:.1}" font-size="11" font-style="italic" fill="#4a525c">{word}</text>"##,
                         PLOT_X0 + 6.0,
                         mid + 4.0
                     );
@@ -628,7 +633,8 @@ fn table(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
             None => {
                 let _ = write!(
                     s,
-                    r#"<td class="num">—</td><td class="muted" colspan="2">does not fit</td><td class="num">{}</td><td class="num">—</td>"#,
+                    r#"<td class="num">—</td><td class="muted" colspan="2">{}</td><td class="num">{}</td><td class="num">—</td>"#,
+                    super::common::out_word(e),
                     thousands(e.units_needed)
                 );
             }

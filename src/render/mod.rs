@@ -8,6 +8,7 @@
 //! arithmetic they do. Output is deterministic: the same plan and options
 //! give the same bytes. Writing the bytes to a file is `crate::output`'s job.
 
+pub mod changes;
 mod common;
 pub mod csv;
 pub mod html;

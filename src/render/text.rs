@@ -247,7 +247,7 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
         header.push("pool");
     }
     header.extend(["share", "start"]);
-    if layout >= Layout::Medium {
+    if layout >= Layout::Wide {
         header.push("end");
     }
     header.push("result due");
@@ -271,7 +271,7 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
             Some(r) => {
                 row.push(Cell::new(percent(r.share)).set_alignment(CellAlignment::Right));
                 row.push(Cell::new(r.start));
-                if layout >= Layout::Medium {
+                if layout >= Layout::Wide {
                     row.push(Cell::new(r.end));
                 }
                 row.push(Cell::new(r.result_date));
@@ -284,13 +284,13 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
                 let mut word = Cell::new(if layout >= Layout::Wide {
                     "—"
                 } else {
-                    "does not fit"
+                    super::common::out_word(e)
                 });
                 if colour && layout < Layout::Wide {
                     word = word.fg(Color::Yellow);
                 }
                 row.push(word);
-                if layout >= Layout::Medium {
+                if layout >= Layout::Wide {
                     row.push(Cell::new(""));
                 }
                 row.push(Cell::new(""));
@@ -304,9 +304,9 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
         }
         if layout >= Layout::Wide {
             let mut status = Cell::new(if run.is_some() {
-                "scheduled"
+                e.status.name()
             } else {
-                "does not fit"
+                super::common::out_word(e)
             });
             if colour {
                 status = status.fg(if run.is_some() {
@@ -484,7 +484,10 @@ fn timeline(plan: &Plan, width: usize, colour: bool, out: &mut String) -> Result
                     }
                     s.trim_end().to_string()
                 }
-                None => paint("does not fit (see below)", "2", colour),
+                None if e.status == crate::plan::Status::Unscheduled => {
+                    paint("does not fit (see below)", "2", colour)
+                }
+                None => paint(super::common::out_word(e), "2", colour),
             };
             let _ = writeln!(out, "{label} {body}");
         }
@@ -567,12 +570,13 @@ impl Renderer for Text {
             "{}",
             wrap(
                 &format!(
-                    "Window {} to {} ({} weeks); today {}. {fit_n} of {} tests fit, {not_n} do not.",
+                    "Window {} to {} ({} weeks); today {}. {fit_n} of {} tests fit, {not_n} do not{}.",
                     long_date(plan.window.start),
                     long_date(plan.window.end),
                     weeks(plan).len(),
                     long_date(plan.today),
-                    plan.experiments.len()
+                    plan.experiments.len(),
+                    super::common::closed_note(plan)
                 ),
                 width,
                 ""
