@@ -133,10 +133,9 @@ fn from_serde(
     file: &str,
     ix: Option<&PositionIndex>,
 ) -> Diagnostic {
-    let mut msg = e.to_string();
-    if let Some(i) = msg.rfind(" at line ") {
-        msg.truncate(i);
-    }
+    // Positions go in the diagnostic, not the message; a syntax error may
+    // name a second one, where the enclosing structure began.
+    let (msg, context) = strip_positions(&e.to_string());
     // serde_yaml prefixes data errors with the path: `experiments[0].arms: ...`.
     let (key, body) = match msg.split_once(": ") {
         Some((p, rest))
@@ -155,7 +154,15 @@ fn from_serde(
         .replace("expected f64", "expected a number")
         .replace("expected text", "expected text (a single value)");
     let mut hint = "docs/portfolio.md lists every key with its type".to_string();
-    if let Some(i) = body.find("expected struct Raw") {
+    let too_big = body
+        .strip_prefix("invalid type: string \"")
+        .and_then(|rest| rest.strip_suffix("\", expected a number"))
+        .filter(|n| n.parse::<f64>().is_ok_and(|x| x.is_infinite()))
+        .map(str::to_string);
+    if let Some(n) = too_big {
+        body = format!("{n} is too large to be a number");
+        hint = "numbers must stay below about 1.8e308; check for a typo in the exponent".into();
+    } else if let Some(i) = body.find("expected struct Raw") {
         body.truncate(i);
         body.push_str("expected a mapping of keys");
         hint = if key.is_empty() {
@@ -173,6 +180,11 @@ fn from_serde(
         hint = "each key may appear once per mapping; remove one".into();
     } else if key.is_empty() && e.location().is_some() {
         hint = "this is not valid YAML here; check the indentation, colons and brackets".into();
+        if let Some((line, column)) = context {
+            hint.push_str(&format!(
+                " (the enclosing structure starts at line {line}, column {column})"
+            ));
+        }
     }
     let message = if key.is_empty() {
         body
@@ -194,5 +206,60 @@ fn from_serde(
             Some(s) => d.at(text, s.line, s.column, s.width),
             None => d,
         },
+    }
+}
+
+/// Removes every ` at line L column C` from a serde_yaml message; returns
+/// the message and the last such position that is not the error's own
+/// (libyaml names where the enclosing structure began there).
+fn strip_positions(msg: &str) -> (String, Option<(usize, usize)>) {
+    let mut out = String::new();
+    let mut positions = Vec::new();
+    let mut rest = msg;
+    while let Some(i) = rest.find(" at line ") {
+        out.push_str(&rest[..i]);
+        let after = &rest[i + " at line ".len()..];
+        let digits = |t: &str| t.chars().take_while(char::is_ascii_digit).count();
+        let nl = digits(after);
+        let parsed = after[nl..].strip_prefix(" column ").and_then(|t| {
+            let nc = digits(t);
+            Some((after[..nl].parse().ok()?, t[..nc].parse().ok()?, &t[nc..]))
+        });
+        match parsed {
+            Some((line, column, tail)) => {
+                positions.push((line, column));
+                rest = tail;
+            }
+            None => {
+                out.push_str(" at line ");
+                rest = after;
+            }
+        }
+    }
+    out.push_str(rest);
+    let context = if positions.len() > 1 {
+        positions.last().copied()
+    } else {
+        None
+    };
+    (out, context)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn positions_leave_the_message() {
+        let (m, c) = strip_positions(
+            "did not find expected ',' or '}' at line 4 column 6, while parsing a flow mapping at line 3 column 9",
+        );
+        assert_eq!(
+            m,
+            "did not find expected ',' or '}', while parsing a flow mapping"
+        );
+        assert_eq!(c, Some((3, 9)));
+        let (m, c) = strip_positions("x: invalid type at line 2 column 1");
+        assert_eq!((m.as_str(), c), ("x: invalid type", None));
     }
 }

@@ -1148,16 +1148,23 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
     };
     let hint = match err {
         SizingError::TreatmentRateOutside { .. } => {
-            "the treatment rate must stay strictly between 0 and 1"
+            "the treatment rate must stay strictly between 0 and 1; use a smaller MDE"
         }
         SizingError::NoSolution(_) => "a larger MDE needs fewer units",
         _ => "see docs/portfolio.md for the ranges",
     };
-    cx.err(
-        &format!("experiments[{i}].{key}"),
-        format!("{who}{err}"),
-        hint,
-    );
+    let message = match err {
+        SizingError::TreatmentRateOutside {
+            baseline,
+            treatment,
+        } => format!(
+            "{who}the effect moves the rate from {} to {}, outside (0, 1)",
+            show(*baseline),
+            show((treatment * 1e9).round() / 1e9)
+        ),
+        _ => format!("{who}{err}"),
+    };
+    cx.err(&format!("experiments[{i}].{key}"), message, hint);
 }
 
 /// Reports every cycle of the `after` graph once, as `a -> b -> a`.
