@@ -438,6 +438,13 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
             ("friday", Weekday::Fri),
             ("saturday", Weekday::Sat),
             ("sunday", Weekday::Sun),
+            ("mon", Weekday::Mon),
+            ("tue", Weekday::Tue),
+            ("wed", Weekday::Wed),
+            ("thu", Weekday::Thu),
+            ("fri", Weekday::Fri),
+            ("sat", Weekday::Sat),
+            ("sun", Weekday::Sun),
         ],
         Weekday::Mon,
     );
