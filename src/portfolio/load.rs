@@ -474,6 +474,27 @@ blackouts:
     }
 
     #[test]
+    fn a_huge_mean_test_is_sized_by_the_normal_approximation_without_stalling() {
+        // About 9.9 million units per arm: the t search would take minutes.
+        let text = SMALL.replace("mde_abs: 2", "mde_abs: 0.077");
+        let started = std::time::Instant::now();
+        let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert!(started.elapsed().as_secs() < 10);
+        let b = &p.experiments[1];
+        assert_eq!(b.design.method, Method::Z, "the file asked for z here");
+        let mut t = b.design;
+        t.method = Method::T;
+        let text = text.replace("method: z", "method: t");
+        let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(p.experiments[1].design, t);
+        assert!(p.experiments[1].need.control_exact > super::super::validate::T_SIZE_LIMIT);
+        assert_eq!(
+            p.experiments[1].need,
+            sizing::sample_size(&b.design).unwrap()
+        );
+    }
+
+    #[test]
     fn a_max_share_below_every_level_is_refused() {
         let text = SMALL.replace("max_share: 0.5", "max_share: 0.05");
         let e = load_str(&text, "x.yaml").unwrap_err();

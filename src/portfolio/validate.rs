@@ -757,7 +757,7 @@ fn experiments(
         };
         let (design, design_ok) = design(cx, e, i, &who, &what, d);
         let need = if design_ok && defaults_ok {
-            match sizing::sample_size(&design) {
+            match size(&design) {
                 Ok(n) => Some(n),
                 Err(err) => {
                     sizing_error(cx, e, i, &who, &err);
@@ -1137,6 +1137,30 @@ fn design(
     (design, cx.diags.len() == before)
 }
 
+/// Above this many units per arm (by the normal approximation) a t-method
+/// design is sized with the normal approximation instead.
+pub const T_SIZE_LIMIT: f64 = 1e6;
+
+/// The sample size of a design. The t method searches the noncentral t
+/// distribution, which becomes very slow for huge samples (tens of
+/// seconds past a few million units per arm); there the t and normal
+/// sizes agree to within about one unit per arm (Guenther 1981, "Sample
+/// size formulas for normal theory t tests", The American Statistician
+/// 35(4): n_t is about n_z + z^2/4; cited from memory), so the normal
+/// size is used past [`T_SIZE_LIMIT`].
+fn size(design: &Design) -> Result<SampleSize, SizingError> {
+    if design.method == Method::T {
+        let z = sizing::sample_size(&Design {
+            method: Method::Z,
+            ..*design
+        })?;
+        if z.control_exact.max(z.treatment_exact) > T_SIZE_LIMIT {
+            return Ok(z);
+        }
+    }
+    sizing::sample_size(design)
+}
+
 /// A sizing failure after the range checks passed (an effect that leaves
 /// (0, 1), a size beyond any traffic), pointed at the key to change.
 fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &SizingError) {
@@ -1169,6 +1193,20 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
             show(*baseline),
             show((treatment * 1e9).round() / 1e9)
         ),
+        SizingError::NoSolution(text) => {
+            // Write an astronomically large size compactly.
+            let n = text
+                .strip_prefix("the design needs ")
+                .and_then(|t| t.split(' ').next())
+                .and_then(|t| t.parse::<f64>().ok());
+            match n {
+                Some(n) if n.is_finite() => {
+                    format!("{who}the design needs about {n:.1e} units per arm, beyond any traffic")
+                }
+                Some(_) => format!("{who}the design needs more units than can be counted"),
+                None => format!("{who}{err}"),
+            }
+        }
         _ => format!("{who}{err}"),
     };
     cx.err(&format!("experiments[{i}].{key}"), message, hint);
