@@ -207,6 +207,18 @@ const FIXTURES: &[(&str, usize, &str, &str)] = &[
         "pool `search` is not defined",
     ),
     (
+        "duplicate-key",
+        13,
+        "experiments[0].baseline",
+        "key `baseline` appears twice",
+    ),
+    (
+        "percent",
+        11,
+        "experiments[0].baseline",
+        "invalid type: string \"4%\", expected a number",
+    ),
+    (
         "unicode-id",
         14,
         "experiments[1].pool",
@@ -218,6 +230,11 @@ const FIXTURES: &[(&str, usize, &str, &str)] = &[
 const WHOLE_FILE: &[(&str, Option<usize>, &str)] = &[
     ("empty", None, "the file is empty"),
     ("not-yaml", Some(4), "did not find expected ',' or '}'"),
+    (
+        "tab-indent",
+        Some(4),
+        "found character that cannot start any token",
+    ),
     (
         "wrong-shape",
         Some(2),

@@ -94,7 +94,23 @@ fn unknown_keys(ix: &PositionIndex, text: &str, file: &str) -> Vec<Diagnostic> {
         let Some(allowed) = raw::allowed_keys(&position::shape(path)) else {
             continue;
         };
-        for (key, span) in keys {
+        for (n, (key, span)) in keys.iter().enumerate() {
+            let full = if path.is_empty() {
+                key.clone()
+            } else {
+                format!("{path}.{key}")
+            };
+            if let Some((_, first)) = keys[..n].iter().find(|(k, _)| k == key) {
+                out.push(
+                    Diagnostic::new(file, full.clone(), format!("key `{key}` appears twice"))
+                        .with_hint(format!(
+                            "it is first given on line {}; keep one",
+                            first.line
+                        ))
+                        .at(text, span.line, span.column, span.width),
+                );
+                continue;
+            }
             if allowed.contains(&key.as_str()) {
                 continue;
             }
@@ -102,11 +118,6 @@ fn unknown_keys(ix: &PositionIndex, text: &str, file: &str) -> Vec<Diagnostic> {
                 "at the top level".to_string()
             } else {
                 format!("in `{path}`")
-            };
-            let full = if path.is_empty() {
-                key.clone()
-            } else {
-                format!("{path}.{key}")
             };
             let hint = match diagnostic::suggestion(key, allowed) {
                 Some(s) => format!(
@@ -171,7 +182,16 @@ fn from_serde(
             format!("`{key}` holds `key: value` lines; docs/portfolio.md lists them")
         };
     } else if body.contains("expected a number") {
-        hint = "write a plain number such as `0.05` or `12000`".into();
+        let percent = body
+            .split('"')
+            .nth(1)
+            .and_then(|v| v.trim().strip_suffix('%'))
+            .and_then(|v| v.trim().parse::<f64>().ok());
+        hint = if let Some(x) = percent {
+            format!("write percentages as fractions: {x}% is `{}`", x / 100.0)
+        } else {
+            "write a plain number such as `0.05` or `12000`".into()
+        };
     } else if body.contains("expected a boolean") {
         hint = "write `true` or `false`".into();
     } else if body.contains("expected a sequence") {
@@ -179,7 +199,15 @@ fn from_serde(
     } else if body.contains("duplicate") {
         hint = "each key may appear once per mapping; remove one".into();
     } else if key.is_empty() && e.location().is_some() {
-        hint = "this is not valid YAML here; check the indentation, colons and brackets".into();
+        let tab = e
+            .location()
+            .and_then(|l| text.lines().nth(l.line().saturating_sub(1)))
+            .is_some_and(|l| l.contains('\t'));
+        hint = if tab {
+            "YAML indents with spaces, not tabs".into()
+        } else {
+            "this is not valid YAML here; check the indentation, colons and brackets".into()
+        };
         if let Some((line, column)) = context {
             hint.push_str(&format!(
                 " (the enclosing structure starts at line {line}, column {column})"

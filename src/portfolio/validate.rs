@@ -63,7 +63,7 @@ impl Ctx<'_> {
             key,
             format!("{what} has no `{leaf}`"),
             Some(hint.into()),
-            false,
+            true,
         );
     }
 
