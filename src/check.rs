@@ -287,3 +287,204 @@ pub fn trim(x: f64) -> String {
     let s = format!("{x:.2}");
     s.trim_end_matches('0').trim_end_matches('.').to_string()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::portfolio::load_str;
+    use proptest::prelude::*;
+
+    fn d(s: &str) -> NaiveDate {
+        NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
+    }
+
+    /// One pool of 1,000 units a day, flat; `extra` lands under the
+    /// experiment, `tail` at the end.
+    fn portfolio(extra: &str, tail: &str) -> Portfolio {
+        let text = format!(
+            "window: {{start: 2027-01-04, end: 2027-04-04}}\n\
+             pools:\n  - {{id: p, daily: 1000, max_concurrent: 2}}\n\
+             experiments:\n  - id: t\n    pool: p\n    baseline: 0.2\n    mde: 0.1\n{extra}{tail}"
+        );
+        load_str(&text, "t.yaml").unwrap_or_else(|e| panic!("{e}"))
+    }
+
+    #[test]
+    fn the_share_is_the_largest_level_under_max_share() {
+        let p = portfolio("    max_share: 0.3\n", "");
+        assert_eq!(share_for(&p, &p.experiments[0]), 0.25);
+        let p = portfolio("", "");
+        assert_eq!(share_for(&p, &p.experiments[0]), 1.0);
+    }
+
+    #[test]
+    fn days_come_from_the_forecast_day_by_day() {
+        let p = portfolio("", "");
+        let r = check(&p);
+        let e = &r.experiments[0];
+        let need = p.experiments[0].need.total as f64;
+        // 1,000 units a day at 100%: ceil(need / 1000) days, in whole weeks.
+        let days = ((need / 1000.0).ceil() as u32).max(14).div_ceil(7) * 7;
+        assert_eq!(e.days_from_window_start, Some(days));
+        assert_eq!(
+            e.end_from_window_start,
+            Some(d("2027-01-04") + Duration::days(i64::from(days) - 1))
+        );
+        assert!(e.fits_alone);
+        assert_eq!(e.solo_start, Some(d("2027-01-04")));
+        assert_eq!(r.pools[0].offered_units, 91_000.0);
+        assert_eq!(r.pools[0].needed_units, p.experiments[0].need.total);
+        assert!((r.pools[0].ratio - need / 91_000.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_run_too_long_for_the_window_says_how_long_it_would_take() {
+        let p = portfolio("    max_share: 0.1\n", "");
+        let e = &check(&p).experiments[0];
+        assert!(!e.fits_alone);
+        let days = e.days_from_window_start.unwrap();
+        assert!(days > 91);
+        let reason = e.reason.as_deref().unwrap();
+        assert!(
+            reason.starts_with(&format!("at 10% it needs {days} days")),
+            "{reason}"
+        );
+        assert!(
+            reason.ends_with("after the window's end 2027-04-04"),
+            "{reason}"
+        );
+    }
+
+    #[test]
+    fn beyond_the_horizon_there_is_no_day_count() {
+        let p = portfolio("", "").clone();
+        let mut p = p;
+        p.pools[0].forecast.daily = 0.001;
+        let e = &check(&p).experiments[0];
+        assert_eq!(e.days_from_window_start, None);
+        assert!(e.reason.as_deref().unwrap().contains("more than 5 years"));
+    }
+
+    #[test]
+    fn a_deadline_is_the_limit_when_it_comes_first() {
+        let p = portfolio("    deadline: 2027-01-12\n", "");
+        let e = &check(&p).experiments[0];
+        assert!(!e.fits_alone);
+        assert!(
+            e.reason
+                .as_deref()
+                .unwrap()
+                .contains("after its deadline 2027-01-12"),
+            "{:?}",
+            e.reason
+        );
+    }
+
+    #[test]
+    fn the_weekly_grid_moves_a_start_to_the_next_start_weekday() {
+        // 2027-01-06 is a Wednesday; the next Monday is 2027-01-11.
+        let p = portfolio("    earliest_start: 2027-01-06\n", "");
+        let e = &check(&p).experiments[0];
+        assert_eq!(e.solo_start, Some(d("2027-01-11")));
+    }
+
+    #[test]
+    fn a_no_running_blackout_pushes_the_solo_run_past_it() {
+        let p = portfolio(
+            "",
+            "blackouts:\n  - {from: 2027-01-10, to: 2027-01-11, kind: no_running}\n",
+        );
+        let e = &check(&p).experiments[0];
+        assert!(e.fits_alone);
+        // The first Monday after the blackout.
+        assert_eq!(e.solo_start, Some(d("2027-01-18")));
+        // The duration from the window's first day ignores blackouts.
+        assert!(e.end_from_window_start.unwrap() >= d("2027-01-10"));
+    }
+
+    #[test]
+    fn a_freeze_over_every_start_day_leaves_no_start() {
+        let p = portfolio(
+            "",
+            "blackouts:\n  - {from: 2027-01-04, to: 2027-04-04, kind: no_starts}\n",
+        );
+        let e = &check(&p).experiments[0];
+        assert!(!e.fits_alone);
+        assert!(e
+            .reason
+            .as_deref()
+            .unwrap()
+            .starts_with("no allowed start day"));
+    }
+
+    #[test]
+    fn overlap_pools_explain_their_ratio() {
+        let text = "window: {start: 2027-01-04, end: 2027-01-31}\n\
+                    pools: [{id: s, daily: 500, sharing: overlap, max_concurrent: 4}]\n";
+        let p = load_str(text, "t.yaml").unwrap();
+        let r = check(&p);
+        assert_eq!(r.pools[0].offered_units, 14_000.0);
+        assert_eq!(r.pools[0].ratio, 0.0);
+        assert!(r.pools[0].note.contains("up to 4 run at once"));
+    }
+
+    fn pick<T: Clone + std::fmt::Debug + 'static>(v: Vec<T>) -> impl Strategy<Value = T> {
+        prop::sample::select(v)
+    }
+
+    /// Valid values three times as often as invalid ones, so that many
+    /// cases load and reach the report.
+    fn mostly(
+        valid: Vec<&'static str>,
+        invalid: Vec<&'static str>,
+    ) -> impl Strategy<Value = &'static str> {
+        prop_oneof![3 => pick(valid), 1 => pick(invalid)]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(128))]
+
+        /// Schema-shaped portfolios with values at and past every edge:
+        /// loading and checking return, whatever the numbers.
+        #[test]
+        fn odd_numbers_never_panic_loading_or_checking(
+            daily in mostly(vec!["1", "1500", "2.5e5", "1e11", "0"], vec!["-3", ".nan", ".inf", "1e300"]),
+            baseline in mostly(vec!["0.0001", "0.04", "0.5", "0.9999", "38.5", "-2"], vec!["1", "0", "1e-300"]),
+            mde in mostly(vec!["0.0001", "0.05", "0.5", "-0.5", "3"], vec!["0", "1e-12", "-1"]),
+            arms in mostly(vec!["2", "3", "50"], vec!["51", "0", "2.5"]),
+            ratio in mostly(vec!["1", "0.001", "1000", "0.5"], vec!["1e-9"]),
+            rho in mostly(vec!["0", "0.5", "0.999999"], vec!["1", "-0.1"]),
+            share in mostly(vec!["1", "0.1", "0.33"], vec!["0.0001"]),
+            metric in pick(vec!["rate", "mean"]),
+            sd in pick(vec!["1", "1e-9", "1e9", "61"]),
+            min_days in mostly(vec!["1", "14", "366"], vec!["367", "0"]),
+        ) {
+            let sd_line = if metric == "mean" { format!("    sd: {sd}\n") } else { String::new() };
+            let text = [
+                "window: {start: 2027-12-27, end: 2028-03-05}".to_string(),
+                "pools:".into(),
+                format!("  - {{id: p, daily: {daily}, max_concurrent: 2}}"),
+                "experiments:".into(),
+                "  - id: t".into(),
+                "    pool: p".into(),
+                format!("    metric: {metric}"),
+                format!("    baseline: {baseline}"),
+                format!("{sd_line}    mde: {mde}"),
+                format!("    arms: {arms}"),
+                format!("    ratio: {ratio}"),
+                format!("    rho: {rho}"),
+                format!("    max_share: {share}"),
+                format!("    min_days: {min_days}"),
+            ]
+            .join("\n");
+            match load_str(&text, "fuzz.yaml") {
+                Ok(p) => {
+                    let r = check(&p);
+                    prop_assert_eq!(r.experiments.len(), 1);
+                    prop_assert_eq!(r.window_days, 70);eprintln!("OKCASE");
+                }
+                Err(e) => prop_assert!(!e.diagnostics.is_empty()),
+            }
+        }
+    }
+}

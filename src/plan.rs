@@ -48,6 +48,24 @@ pub enum Status {
     Cancelled,
 }
 
+impl Status {
+    /// The name in JSON and CSV.
+    pub fn name(self) -> &'static str {
+        match self {
+            Status::Scheduled => "scheduled",
+            Status::Unscheduled => "unscheduled",
+            Status::Running => "running",
+            Status::Finished => "finished",
+            Status::Cancelled => "cancelled",
+        }
+    }
+
+    /// Whether it holds a run in this plan's calendar (scheduled or running).
+    pub fn in_calendar(self) -> bool {
+        matches!(self, Status::Scheduled | Status::Running)
+    }
+}
+
 /// One experiment's outcome.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlannedExperiment {

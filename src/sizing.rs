@@ -500,11 +500,14 @@ pub fn noncentral_t_cdf(t: f64, df: f64, delta: f64) -> f64 {
         }
         let mut a = 0.5;
         let b = 0.5 * df;
-        let rxb = (1.0 - x).powf(b);
-        let albeta = std::f64::consts::PI.sqrt().ln() + ln_gamma(b) - ln_gamma(0.5 + b);
+        // (1 - x)^b and ln B(1/2, b) lose digits at large b (df in the
+        // millions) when written plainly; these forms keep them.
+        let ln_rxb = b * (-x).ln_1p();
+        let rxb = ln_rxb.exp();
+        let albeta = ln_beta_half(b);
         let mut xodd = beta_reg(a, b, x);
         let mut godd = 2.0 * rxb * (a * x.ln() - albeta).exp();
-        let mut xeven = 1.0 - rxb;
+        let mut xeven = -ln_rxb.exp_m1();
         let mut geven = b * x * rxb;
         tnc = p * xodd + q * xeven;
         let mut en = 1.0;
@@ -530,13 +533,93 @@ pub fn noncentral_t_cdf(t: f64, df: f64, delta: f64) -> f64 {
     tnc.clamp(0.0, 1.0)
 }
 
-/// Upper quantile of Student's t with `df` degrees of freedom.
-fn t_upper(q: f64, df: f64) -> f64 {
-    use statrs::distribution::StudentsT;
-    match StudentsT::new(0.0, 1.0, df) {
-        Ok(t) => t.inverse_cdf(1.0 - q),
-        Err(_) => f64::NAN,
+/// ln B(1/2, b) = ln Gamma(1/2) + ln Gamma(b) - ln Gamma(b + 1/2). For large b
+/// the difference of two huge ln Gamma values cancels (1e-7 lost at
+/// b = 5e7), so there it uses the asymptotic series Gamma(b + 1/2) /
+/// Gamma(b) = sqrt(b) (1 - 1/(8b) + 1/(128b^2) + 5/(1024b^3) - 21/(32768b^4)),
+/// whose next term is below 1e-15 for b > 1000 (Abramowitz & Stegun 1964,
+/// 6.1.47, the ratio of gamma functions).
+fn ln_beta_half(b: f64) -> f64 {
+    let ln_sqrt_pi = std::f64::consts::PI.sqrt().ln();
+    if b > 1000.0 {
+        let series = 1.0 - 1.0 / (8.0 * b) + 1.0 / (128.0 * b * b) + 5.0 / (1024.0 * b.powi(3))
+            - 21.0 / (32768.0 * b.powi(4));
+        ln_sqrt_pi - 0.5 * b.ln() - series.ln()
+    } else {
+        ln_sqrt_pi + ln_gamma(b) - ln_gamma(0.5 + b)
     }
+}
+
+/// Upper quantile of Student's t with `df` degrees of freedom: the t with
+/// P(T > t) = q, for q in (0, 0.5].
+///
+/// statrs' `inverse_cdf` (an inverse regularised beta) drifts at large df
+/// (at df = 1e7 it gives 1.8266 for the 0.975 quantile, where the answer is
+/// 1.959964, which made large t-test sizes too small) and is slow beyond.
+/// Instead:
+/// * df >= 1e5: the Cornish-Fisher expansion of t in the normal quantile z
+///   (Abramowitz & Stegun 1964, *Handbook of Mathematical Functions*,
+///   26.7.5), t = z + g1/df + g2/df^2 + g3/df^3, whose next term is below
+///   1e-17 here;
+/// * smaller df: Newton's method on statrs' survival function (accurate to
+///   about 1e-11 there), from the same expansion, kept inside a bracket
+///   that bisection falls back to.
+fn t_upper(q: f64, df: f64) -> f64 {
+    use statrs::distribution::{Continuous, StudentsT};
+    if !(q > 0.0 && q <= 0.5) {
+        return f64::NAN;
+    }
+    let Ok(t) = StudentsT::new(0.0, 1.0, df) else {
+        return f64::NAN;
+    };
+    if q == 0.5 {
+        return 0.0;
+    }
+    let z = z_upper(q);
+    let (z3, z5, z7) = (z.powi(3), z.powi(5), z.powi(7));
+    let expansion = z
+        + (z3 + z) / (4.0 * df)
+        + (5.0 * z5 + 16.0 * z3 + 3.0 * z) / (96.0 * df * df)
+        + (3.0 * z7 + 19.0 * z5 + 17.0 * z3 - 15.0 * z) / (384.0 * df * df * df);
+    if df >= 1e5 {
+        return expansion;
+    }
+    // sf falls from 0.5 at 0; grow the upper end until it falls below q.
+    // Past 1e150 (df far below 1) the quantile means nothing: no answer.
+    let mut lo = 0.0;
+    let mut hi = z.max(1.0);
+    while t.sf(hi) > q {
+        lo = hi;
+        hi *= 2.0;
+        if hi > 1e150 {
+            return f64::NAN;
+        }
+    }
+    let mut x = if expansion > lo && expansion < hi {
+        expansion
+    } else {
+        0.5 * (lo + hi)
+    };
+    for _ in 0..200 {
+        let f = t.sf(x) - q;
+        if f == 0.0 {
+            return x;
+        }
+        if f > 0.0 {
+            lo = x;
+        } else {
+            hi = x;
+        }
+        let mut next = x + f / t.pdf(x);
+        if !(next > lo && next < hi) {
+            next = 0.5 * (lo + hi);
+        }
+        if (next - x).abs() <= 4.0 * f64::EPSILON * x.abs().max(1.0) {
+            return next;
+        }
+        x = next;
+    }
+    x
 }
 
 /// Power of the two-sample t-test with `n_control` control units and
@@ -550,13 +633,18 @@ fn t_power(d: &Design, n_control: f64) -> f64 {
     let n1 = n_control;
     let n2 = n_control * d.ratio;
     let df = n1 + n2 - 2.0;
-    if df <= 0.0 {
+    // A t-test needs at least one degree of freedom (three units in all);
+    // below that its quantiles run off to infinity.
+    if df < 1.0 {
         return 0.0;
     }
     let delta = (d.treatment_value() - mean_of(d)).abs();
     let ncp = delta / (sd * (1.0 / n1 + 1.0 / n2).sqrt());
     let sides = f64::from(d.sides.count());
     let crit = t_upper(d.comparison_alpha() / sides, df);
+    if !crit.is_finite() {
+        return 0.0;
+    }
     let upper = 1.0 - noncentral_t_cdf(crit, df, ncp);
     if sides == 2.0 {
         upper + noncentral_t_cdf(-crit, df, ncp)
@@ -616,21 +704,38 @@ fn bisect(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, rel_tol: f64) -> f64
     hi
 }
 
+/// More units than any test could ever see: sizes at or above this are
+/// reported as having no solution.
+const MAX_UNITS: f64 = 1e15;
+
 /// Units per arm and in total for a design.
 pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
     d.validate()?;
     let control_exact = control_exact(d)?;
     let treatment_exact = control_exact * d.ratio;
-    if !(control_exact.is_finite() && control_exact > 0.0 && control_exact < 1e15) {
-        return Err(SizingError::NoSolution(format!(
-            "the design needs {control_exact} units per arm, beyond any traffic; use a larger MDE"
-        )));
+    for exact in [control_exact, treatment_exact] {
+        if !(exact.is_finite() && exact > 0.0 && exact < MAX_UNITS) {
+            return Err(SizingError::NoSolution(format!(
+                "the design needs {exact} units in one arm, beyond any traffic; use a larger MDE"
+            )));
+        }
     }
     // Power rises with n, so rounding the exact root up gives the smallest
     // whole size that reaches the target (for the t method too).
     let control = round_up(control_exact);
     let treatment = round_up(treatment_exact);
-    let total = control + u64::from(d.arms - 1) * treatment;
+    // Checked: many arms of a large size must not wrap the total around.
+    let total = u64::from(d.arms - 1)
+        .checked_mul(treatment)
+        .and_then(|t| t.checked_add(control))
+        .filter(|&t| (t as f64) < MAX_UNITS)
+        .ok_or_else(|| {
+            SizingError::NoSolution(format!(
+                "`arms` is {}: {treatment} units in each treatment arm come to more than \
+                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
+                d.arms
+            ))
+        })?;
     Ok(SampleSize {
         control_exact,
         treatment_exact,
@@ -643,10 +748,11 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
 }
 
 /// Rounds a size up to whole units, forgiving floating-point noise just
-/// above an integer (1e-9 relative).
+/// above an integer (1e-12 relative: at 1e-9, ten million units could be
+/// rounded down by a hundredth of a unit, below the target power).
 fn round_up(x: f64) -> u64 {
     let r = x.round();
-    if (x - r).abs() <= 1e-9 * x.abs().max(1.0) {
+    if (x - r).abs() <= 1e-12 * x.abs().max(1.0) {
         r as u64
     } else {
         x.ceil() as u64
@@ -815,12 +921,61 @@ mod tests {
             0.6709221372818337,
             epsilon = 1e-9
         );
+        // Millions of degrees of freedom (scipy 1.17.1, t = its 0.975
+        // quantile): the plain (1 - x)^b and ln Gamma difference lost 1e-8.
+        assert_abs_diff_eq!(
+            noncentral_t_cdf(1.9599642217672055, 1e7, 2.8),
+            0.20044417208466286,
+            epsilon = 2e-9
+        );
+        assert_abs_diff_eq!(
+            noncentral_t_cdf(1.9599663568141072, 1e6, 2.8),
+            0.2004448505306511,
+            epsilon = 1e-10
+        );
         // Large df approaches the normal: P(T <= 3) with ncp 1 ~ Phi(2).
         assert_abs_diff_eq!(
             noncentral_t_cdf(3.0, 1e6, 1.0),
             std_normal().cdf(2.0),
             epsilon = 1e-4
         );
+    }
+
+    #[test]
+    fn t_quantile_is_accurate_at_every_df() {
+        // scipy.stats.t.isf(q, df), computed with scipy 1.17.1. statrs'
+        // own inverse gives 1.8266 at df = 1e7 (the bug this guards).
+        let cases = [
+            (0.025, 1e7, 1.9599642217672055),
+            (0.025, 3.4e6, 1.9599646822671306),
+            (0.025, 6e5, 1.9599679383332786),
+            (0.025, 1e9, 1.9599639869123253),
+            (0.0125, 3.0, 4.176534846104498),
+            (0.05, 1.5, 3.7051808200967518),
+            (0.005, 40.0, 2.7044592674331622),
+        ];
+        for (q, df, want) in cases {
+            assert_abs_diff_eq!(t_upper(q, df), want, epsilon = 1e-8);
+        }
+        assert_abs_diff_eq!(t_upper(0.5, 20.0), 0.0, epsilon = 1e-12);
+    }
+
+    #[test]
+    fn t_sizes_stay_accurate_for_millions_of_units() {
+        // d = 0.003 at two-sided alpha 0.05, power 0.8, statsmodels 0.15.0:
+        // TTestIndPower().solve_power(0.003, alpha=0.05, power=0.8) =
+        // 1744192.184659929 per arm, and the normal test with both tails,
+        // NormalIndPower().solve_power(...) = 1744191.2242947044; the t
+        // test costs about z^2/4 ~ 1 unit more. Before t_upper was fixed,
+        // sluice answered 1741422.7, 2,770 units short.
+        let d = Design {
+            method: Method::T,
+            ..Design::new(Metric::Mean { mean: 0.0, sd: 1.0 }, Effect::Absolute(0.003))
+        };
+        let n = sample_size(&d).unwrap();
+        assert_abs_diff_eq!(n.control_exact, 1744192.184659929, epsilon = 0.5);
+        let extra = n.control_exact - 1744191.2242947044;
+        assert!((0.5..1.5).contains(&extra), "t costs {extra} units more");
     }
 
     #[test]
@@ -1001,6 +1156,33 @@ mod tests {
         assert!(days_needed(100, 10.0, 0.0, 14, true).is_err());
         assert!(days_needed(100, 10.0, 1.5, 14, true).is_err());
         assert!(days_needed(100, 0.0, 0.5, 14, true).is_err());
+    }
+
+    #[test]
+    fn sizes_beyond_any_traffic_are_errors_not_wrapped_totals() {
+        // 1.05e13 units per arm over 2^32 - 2 treatment arms overflowed u64
+        // and wrapped to 7.95e18 in a release build (a panic in debug).
+        let many_arms = Design {
+            arms: u32::MAX,
+            effect: Effect::Absolute(1e-6),
+            ..rate(0.1, 0.1)
+        };
+        let err = sample_size(&many_arms).unwrap_err();
+        assert!(err.to_string().contains("`arms`"), "{err}");
+        // A huge ratio makes the treatment arm infinite.
+        let lopsided = Design {
+            ratio: 1e300,
+            ..rate(0.1, 0.1)
+        };
+        assert!(sample_size(&lopsided).is_err());
+        // Far from the limit, totals are exact.
+        let four = sample_size(&Design {
+            arms: 4,
+            ratio: 2.0,
+            ..rate(0.1, 0.1)
+        })
+        .unwrap();
+        assert_eq!(four.total, four.control + 3 * four.treatment);
     }
 
     #[test]

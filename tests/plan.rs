@@ -61,16 +61,16 @@ fn the_demo_prints_a_calendar_with_the_unscheduled_and_the_solver_line() {
         String::from_utf8_lossy(&out.stderr)
     );
     let text = String::from_utf8(out.stdout).unwrap();
-    assert!(text.contains("experiment"), "{text}");
+    assert!(text.contains("Experiment plan: "), "{text}");
     assert!(text.contains("search-ranking-v2"), "{text}");
-    assert!(text.contains("not scheduled ("), "{text}");
+    assert!(text.contains("\nDoes not fit\n"), "{text}");
     // home-mega-menu needs more days than the window holds.
     assert!(
-        text.contains("home-mega-menu (home, priority 4): needs "),
+        text.contains("- home-mega-menu (Mega menu with room pictures, home): needs "),
         "{text}"
     );
-    assert!(text.contains("solver microlp: "), "{text}");
-    assert!(text.contains("greedy "), "{text}");
+    assert!(text.contains("solver `microlp`: "), "{text}");
+    assert!(text.contains("greedy baseline "), "{text}");
 }
 
 #[test]

@@ -73,12 +73,13 @@ fn right(t: &mut Table, columns: &[usize]) {
 pub fn text(r: &CheckReport) -> String {
     let mut out = String::new();
     out.push_str(&format!(
-        "{}: window {} to {} ({} days), {} experiments\n\n",
+        "{}: window {} to {} ({} days), {} experiment{}\n\n",
         r.name,
         r.window_start,
         r.window_end,
         r.window_days,
-        r.experiments.len()
+        r.experiments.len(),
+        if r.experiments.len() == 1 { "" } else { "s" }
     ));
     let mut t = table();
     t.set_header(vec![

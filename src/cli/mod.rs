@@ -4,10 +4,12 @@
 
 mod check;
 mod plan;
+mod replan;
 mod size;
 
 pub use check::CheckArgs;
 pub use plan::PlanArgs;
+pub use replan::ReplanArgs;
 pub use size::SizeArgs;
 
 use clap::{Parser, Subcommand, ValueEnum};
@@ -44,6 +46,8 @@ pub enum Command {
     Check(check::CheckArgs),
     /// Plan the portfolio: a start, share and end for every test that fits
     Plan(plan::PlanArgs),
+    /// Plan again mid-quarter around the running tests, and show what moved
+    Replan(replan::ReplanArgs),
 }
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -112,5 +116,6 @@ pub fn run(cli: Cli) -> Result<Vec<u8>, Failure> {
         Command::Size(args) => size::run(&args),
         Command::Check(args) => check::run(&args),
         Command::Plan(args) => plan::run(&args),
+        Command::Replan(args) => replan::run(&args),
     }
 }

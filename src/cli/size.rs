@@ -1,7 +1,7 @@
 //! `sluice size`: the size, power and duration of one test.
 
 use super::{Failure, TextOrJson};
-use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
+use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
@@ -55,6 +55,9 @@ impl From<CorrectionArg> for Correction {
 }
 
 #[derive(Args, Debug)]
+// Negative numbers are values, not flags: `--mean -50` is a real metric, and
+// `--alpha -0.1` should reach the range check that names `--alpha`.
+#[command(allow_negative_numbers = true)]
 #[command(after_help = "Examples:\n  \
     sluice size --baseline 0.04 --mde 0.10\n  \
     sluice size --baseline 0.04 --mde-abs 0.005 --arms 3 --daily 20000 --share 0.5\n  \
@@ -220,8 +223,23 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Failure> {
     };
     design
         .validate()
-        .map_err(|e| Failure::invalid(flagify(e.to_string())))?;
+        .map_err(|e| Failure::invalid(flag_message(&e, &design)))?;
     Ok(design)
+}
+
+/// The library's message for a design built from flags: an effect that
+/// moves the rate outside (0, 1) is put down to the flag that set it, and
+/// every field is named as its flag.
+fn flag_message(e: &SizingError, d: &Design) -> String {
+    let text = e.to_string();
+    let text = match (e, d.effect) {
+        (SizingError::TreatmentRateOutside { .. }, Effect::Relative(_)) => format!("`mde`: {text}"),
+        (SizingError::TreatmentRateOutside { .. }, Effect::Absolute(_)) => {
+            format!("`mde_abs`: {text}")
+        }
+        _ => text,
+    };
+    flagify(text)
 }
 
 /// Library messages name fields as in a portfolio (`mde_abs`); on the
@@ -243,7 +261,8 @@ fn flagify(message: String) -> String {
 /// `sluice size`.
 pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Failure> {
     let design = design_from_args(a)?;
-    let n = sizing::sample_size(&design).map_err(|e| Failure::invalid(flagify(e.to_string())))?;
+    let n =
+        sizing::sample_size(&design).map_err(|e| Failure::invalid(flag_message(&e, &design)))?;
     let achieved = sizing::achieved_power(&design, n.control as f64)
         .map_err(|e| Failure::invalid(e.to_string()))?;
     let days = match a.daily {

@@ -100,7 +100,23 @@ pub(super) fn unknown_keys(
         let Some(allowed) = allowed_keys(&position::shape(path)) else {
             continue;
         };
-        for (key, span) in keys {
+        for (n, (key, span)) in keys.iter().enumerate() {
+            let full = if path.is_empty() {
+                key.clone()
+            } else {
+                format!("{path}.{key}")
+            };
+            if let Some((_, first)) = keys[..n].iter().find(|(k, _)| k == key) {
+                out.push(
+                    Diagnostic::new(file, full.clone(), format!("key `{key}` appears twice"))
+                        .with_hint(format!(
+                            "it is first given on line {}; keep one",
+                            first.line
+                        ))
+                        .at(text, span.line, span.column, span.width),
+                );
+                continue;
+            }
             if allowed.contains(&key.as_str()) {
                 continue;
             }
@@ -108,11 +124,6 @@ pub(super) fn unknown_keys(
                 "at the top level".to_string()
             } else {
                 format!("in `{path}`")
-            };
-            let full = if path.is_empty() {
-                key.clone()
-            } else {
-                format!("{path}.{key}")
             };
             let hint = match diagnostic::suggestion(key, allowed) {
                 Some(s) => format!(
@@ -139,10 +150,9 @@ pub(super) fn from_serde(
     file: &str,
     ix: Option<&PositionIndex>,
 ) -> Diagnostic {
-    let mut msg = e.to_string();
-    if let Some(i) = msg.rfind(" at line ") {
-        msg.truncate(i);
-    }
+    // Positions go in the diagnostic, not the message; a syntax error may
+    // name a second one, where the enclosing structure began.
+    let (msg, context) = strip_positions(&e.to_string());
     // serde_yaml prefixes data errors with the path: `experiments[0].arms: ...`.
     let (key, body) = match msg.split_once(": ") {
         Some((p, rest))
@@ -161,7 +171,15 @@ pub(super) fn from_serde(
         .replace("expected f64", "expected a number")
         .replace("expected text", "expected text (a single value)");
     let mut hint = "docs/portfolio.md lists every key with its type".to_string();
-    if let Some(i) = body.find("expected struct Raw") {
+    let too_big = body
+        .strip_prefix("invalid type: string \"")
+        .and_then(|rest| rest.strip_suffix("\", expected a number"))
+        .filter(|n| n.parse::<f64>().is_ok_and(|x| x.is_infinite()))
+        .map(str::to_string);
+    if let Some(n) = too_big {
+        body = format!("{n} is too large to be a number");
+        hint = "numbers must stay below about 1.8e308; check for a typo in the exponent".into();
+    } else if let Some(i) = body.find("expected struct Raw") {
         body.truncate(i);
         body.push_str("expected a mapping of keys");
         hint = if key.is_empty() {
@@ -170,7 +188,16 @@ pub(super) fn from_serde(
             format!("`{key}` holds `key: value` lines; docs/portfolio.md lists them")
         };
     } else if body.contains("expected a number") {
-        hint = "write a plain number such as `0.05` or `12000`".into();
+        let percent = body
+            .split('"')
+            .nth(1)
+            .and_then(|v| v.trim().strip_suffix('%'))
+            .and_then(|v| v.trim().parse::<f64>().ok());
+        hint = if let Some(x) = percent {
+            format!("write percentages as fractions: {x}% is `{}`", x / 100.0)
+        } else {
+            "write a plain number such as `0.05` or `12000`".into()
+        };
     } else if body.contains("expected a boolean") {
         hint = "write `true` or `false`".into();
     } else if body.contains("expected a sequence") {
@@ -178,7 +205,20 @@ pub(super) fn from_serde(
     } else if body.contains("duplicate") {
         hint = "each key may appear once per mapping; remove one".into();
     } else if key.is_empty() && e.location().is_some() {
-        hint = "this is not valid YAML here; check the indentation, colons and brackets".into();
+        let tab = e
+            .location()
+            .and_then(|l| text.lines().nth(l.line().saturating_sub(1)))
+            .is_some_and(|l| l.contains('\t'));
+        hint = if tab {
+            "YAML indents with spaces, not tabs".into()
+        } else {
+            "this is not valid YAML here; check the indentation, colons and brackets".into()
+        };
+        if let Some((line, column)) = context {
+            hint.push_str(&format!(
+                " (the enclosing structure starts at line {line}, column {column})"
+            ));
+        }
     }
     let message = if key.is_empty() {
         body
@@ -200,5 +240,509 @@ pub(super) fn from_serde(
             Some(s) => d.at(text, s.line, s.column, s.width),
             None => d,
         },
+    }
+}
+
+/// Removes every ` at line L column C` from a serde_yaml message; returns
+/// the message and the last such position that is not the error's own
+/// (libyaml names where the enclosing structure began there).
+fn strip_positions(msg: &str) -> (String, Option<(usize, usize)>) {
+    let mut out = String::new();
+    let mut positions = Vec::new();
+    let mut rest = msg;
+    while let Some(i) = rest.find(" at line ") {
+        out.push_str(&rest[..i]);
+        let after = &rest[i + " at line ".len()..];
+        let digits = |t: &str| t.chars().take_while(char::is_ascii_digit).count();
+        let nl = digits(after);
+        let parsed = after[nl..].strip_prefix(" column ").and_then(|t| {
+            let nc = digits(t);
+            Some((after[..nl].parse().ok()?, t[..nc].parse().ok()?, &t[nc..]))
+        });
+        match parsed {
+            Some((line, column, tail)) => {
+                positions.push((line, column));
+                rest = tail;
+            }
+            None => {
+                out.push_str(" at line ");
+                rest = after;
+            }
+        }
+    }
+    out.push_str(rest);
+    let context = if positions.len() > 1 {
+        positions.last().copied()
+    } else {
+        None
+    };
+    (out, context)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::portfolio::model::*;
+    use crate::portfolio::DEFAULT_SHARE_LEVELS;
+    use crate::sizing::{self, Correction, Effect, Method, Metric, Sides};
+    use chrono::{NaiveDate, Weekday};
+    use proptest::prelude::*;
+
+    fn d(s: &str) -> NaiveDate {
+        NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
+    }
+
+    const SMALL: &str = "\
+name: small
+window: {start: 2027-01-04, end: 2027-04-04}
+pools:
+  - {id: home, daily: 20000, max_concurrent: 2}
+  - id: basket
+    label: Basket
+    daily: 3000
+    weekday_pattern: [1, 1, 1, 1, 1, 0.5, 0.5]
+    adjustments:
+      - {from: 2027-02-01, to: 2027-02-07, multiply: 0.5, note: dip}
+      - {from: 2027-02-03, to: 2027-02-03, level: 10}
+    sharing: overlap
+    max_concurrent: 3
+experiments:
+  - id: a
+    pool: home
+    baseline: 0.04
+    mde: 0.1
+    not_with: [c, c]
+  - id: b
+    title: Bee
+    owner: Team B
+    pool: basket
+    metric: mean
+    baseline: 38.5
+    sd: 61
+    mde_abs: 2
+    arms: 3
+    ratio: 2
+    rho: 0.4
+    alpha: 0.1
+    power: 0.9
+    sides: one
+    method: z
+    correction: sidak
+    priority: 2.5
+    earliest_start: 2027-01-11
+    deadline: 2027-03-28
+    max_share: 0.5
+    min_days: 7
+    whole_weeks: false
+    after: [a, {id: c, gap_days: 5}]
+  - id: c
+    pool: home
+    baseline: 0.2
+    mde: 0.05
+    not_with: [b]
+blackouts:
+  - {from: 2027-03-15, to: 2027-03-21, kind: no_starts, note: freeze}
+  - {from: 2027-02-15, to: 2027-02-16, kind: no_running, pools: [basket, basket]}
+";
+
+    fn small() -> Portfolio {
+        load_str(SMALL, "small.yaml").unwrap_or_else(|e| panic!("{e}"))
+    }
+
+    #[test]
+    fn defaults_fill_what_the_file_leaves_out() {
+        let p = small();
+        assert_eq!(p.name, "small");
+        assert_eq!(p.window.start, d("2027-01-04"));
+        assert_eq!(p.defaults.alpha, 0.05);
+        assert_eq!(p.defaults.power, 0.8);
+        assert_eq!(p.defaults.sides, Sides::Two);
+        assert_eq!(p.defaults.rate_method, Method::Pooled);
+        assert_eq!(p.defaults.mean_method, Method::T);
+        assert_eq!(p.defaults.correction, Correction::Bonferroni);
+        assert_eq!(p.defaults.min_days, 14);
+        assert!(p.defaults.whole_weeks);
+        assert_eq!(p.share_levels, DEFAULT_SHARE_LEVELS.to_vec());
+        assert_eq!(p.planning.grid, StartGrid::Weekly);
+        assert_eq!(p.planning.start_weekday, Weekday::Mon);
+        assert_eq!(p.planning.lateness_weight, 0.5);
+        assert!(!p.planning.reshare_running);
+        let home = &p.pools[0];
+        assert_eq!(home.label, "home");
+        assert_eq!(home.forecast.weekday, [1.0; 7]);
+        assert_eq!(home.sharing, Sharing::Split);
+        let a = &p.experiments[0];
+        assert_eq!(a.title, "a");
+        assert_eq!(a.priority, 1.0);
+        assert_eq!(a.max_share, 1.0);
+        assert_eq!((a.min_days, a.whole_weeks), (14, true));
+        assert_eq!(a.design.arms, 2);
+        assert_eq!(a.design.method, Method::Pooled);
+        assert_eq!(a.earliest_start, None);
+    }
+
+    #[test]
+    fn overrides_reach_the_design_and_the_size_comes_from_sizing() {
+        let p = small();
+        let b = &p.experiments[1];
+        assert_eq!((b.title.as_str(), b.owner.as_str()), ("Bee", "Team B"));
+        assert_eq!(b.pool, 1);
+        assert_eq!(
+            b.design.metric,
+            Metric::Mean {
+                mean: 38.5,
+                sd: 61.0
+            }
+        );
+        assert_eq!(b.design.effect, Effect::Absolute(2.0));
+        assert_eq!((b.design.arms, b.design.ratio, b.design.rho), (3, 2.0, 0.4));
+        assert_eq!((b.design.alpha, b.design.power), (0.1, 0.9));
+        assert_eq!(b.design.sides, Sides::One);
+        assert_eq!(b.design.method, Method::Z);
+        assert_eq!(b.design.correction, Correction::Sidak);
+        assert_eq!(b.need, sizing::sample_size(&b.design).unwrap());
+        assert_eq!(b.priority, 2.5);
+        assert_eq!(b.earliest_start, Some(d("2027-01-11")));
+        assert_eq!(b.deadline, Some(d("2027-03-28")));
+        assert_eq!((b.max_share, b.min_days, b.whole_weeks), (0.5, 7, false));
+        let basket = &p.pools[1];
+        assert_eq!(basket.label, "Basket");
+        assert_eq!(basket.sharing, Sharing::Overlap);
+        assert_eq!(basket.max_concurrent, 3);
+        assert_eq!(basket.forecast.weekday[5], 0.5);
+        assert_eq!(basket.forecast.adjustments.len(), 2);
+        assert_eq!(basket.forecast.adjustments[1].change, Change::Level(10.0));
+        assert_eq!(basket.forecast.adjustments[0].note, "dip");
+    }
+
+    #[test]
+    fn after_keeps_gaps_and_not_with_is_symmetric_sorted_unique() {
+        let p = small();
+        assert_eq!(
+            p.experiments[1].after,
+            vec![
+                Prerequisite {
+                    experiment: 0,
+                    gap_days: 0
+                },
+                Prerequisite {
+                    experiment: 2,
+                    gap_days: 5
+                }
+            ]
+        );
+        assert_eq!(p.experiments[0].not_with, vec![2]);
+        assert_eq!(p.experiments[1].not_with, vec![2]);
+        assert_eq!(p.experiments[2].not_with, vec![0, 1]);
+    }
+
+    #[test]
+    fn blackouts_resolve_pools() {
+        let p = small();
+        assert_eq!(p.blackouts[0].kind, BlackoutKind::NoStarts);
+        assert!(p.blackouts[0].pools.is_empty());
+        assert_eq!(p.blackouts[1].kind, BlackoutKind::NoRunning);
+        assert_eq!(p.blackouts[1].pools, vec![1]);
+        assert_eq!(p.blackouts[1].note, "");
+    }
+
+    #[test]
+    fn grid_follows_whole_weeks_and_share_levels_are_sorted() {
+        let text = SMALL.replace(
+            "name: small\n",
+            "name: small\ndefaults: {whole_weeks: false}\nshare_levels: [1, 0.5, 0.25, 0.5]\nplanning: {start_weekday: Wednesday}\n",
+        );
+        let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(p.planning.grid, StartGrid::Daily);
+        assert_eq!(p.planning.start_weekday, Weekday::Wed);
+        assert_eq!(p.share_levels, vec![0.25, 0.5, 1.0]);
+        assert!(!p.experiments[0].whole_weeks);
+    }
+
+    #[test]
+    fn the_name_defaults_to_the_file_stem() {
+        let text = SMALL.replace("name: small\n", "");
+        let p = load_str(&text, "dir/spring.yaml").unwrap();
+        assert_eq!(p.name, "spring");
+    }
+
+    #[test]
+    fn every_unknown_key_is_reported_with_the_closest_allowed_one() {
+        let text = SMALL
+            .replace("    sharing: overlap", "    shareing: overlap")
+            .replace("    title: Bee", "    titel: Bee");
+        let e = load_str(&text, "x.yaml").unwrap_err();
+        assert_eq!(e.diagnostics.len(), 2);
+        let s = &e.diagnostics[0];
+        assert_eq!(s.key, "pools[1].shareing");
+        assert_eq!((s.line, s.column), (Some(12), Some(5)));
+        assert!(s
+            .hint
+            .as_deref()
+            .unwrap()
+            .starts_with("did you mean `sharing`?"));
+        assert_eq!(e.diagnostics[1].key, "experiments[1].titel");
+        assert!(e.to_string().ends_with("2 problems in `x.yaml`\n"));
+    }
+
+    #[test]
+    fn unknown_ids_list_the_defined_ones_closest_first() {
+        let text = SMALL.replace("after: [a, {id: c", "after: [a, {id: cc");
+        let e = load_str(&text, "x.yaml").unwrap_err();
+        assert_eq!(e.diagnostics.len(), 1);
+        let d = &e.diagnostics[0];
+        assert_eq!(d.key, "experiments[1].after[1].id");
+        assert_eq!(d.message, "experiment `b`: experiment `cc` is not defined");
+        assert_eq!(
+            d.hint.as_deref(),
+            Some("defined experiments, closest first: `c`, `a`, `b`")
+        );
+    }
+
+    #[test]
+    fn a_longer_cycle_is_printed_in_full() {
+        let text = SMALL.replace("    not_with: [b]\n", "    not_with: [b]\n    after: [b]\n");
+        let e = load_str(&text, "x.yaml").unwrap_err();
+        let msgs: Vec<&str> = e.diagnostics.iter().map(|d| d.message.as_str()).collect();
+        assert_eq!(msgs, vec!["`after` forms a cycle: b -> c -> b"]);
+    }
+
+    #[test]
+    fn a_huge_mean_test_is_sized_by_the_normal_approximation_without_stalling() {
+        // About 9.9 million units per arm: the t search would take minutes.
+        let text = SMALL.replace("mde_abs: 2", "mde_abs: 0.077");
+        let started = std::time::Instant::now();
+        let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert!(started.elapsed().as_secs() < 10);
+        let b = &p.experiments[1];
+        assert_eq!(b.design.method, Method::Z, "the file asked for z here");
+        let mut t = b.design;
+        t.method = Method::T;
+        let text = text.replace("method: z", "method: t");
+        let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(p.experiments[1].design, t);
+        assert!(p.experiments[1].need.control_exact > super::super::validate::T_SIZE_LIMIT);
+        assert_eq!(
+            p.experiments[1].need,
+            sizing::sample_size(&b.design).unwrap()
+        );
+    }
+
+    #[test]
+    fn a_max_share_below_every_level_is_refused() {
+        let text = SMALL.replace("max_share: 0.5", "max_share: 0.05");
+        let e = load_str(&text, "x.yaml").unwrap_err();
+        assert!(e.diagnostics[0]
+            .message
+            .contains("below the smallest share level 0.1"));
+    }
+
+    #[test]
+    fn method_must_suit_the_metric() {
+        let text = SMALL.replace("method: z", "method: pooled");
+        let e = load_str(&text, "x.yaml").unwrap_err();
+        assert_eq!(e.diagnostics[0].key, "experiments[1].method");
+        assert!(e.diagnostics[0]
+            .message
+            .contains("does not apply to a mean metric"));
+    }
+
+    #[test]
+    fn odd_inputs_are_errors_not_panics() {
+        for (text, part) in [
+            ("", "the file is empty"),
+            ("   \n# only a comment\n", "the file is empty"),
+            ("just a sentence", "expected a mapping"),
+            ("[1, 2, 3]", "expected a mapping"),
+            ("42", "expected a mapping"),
+            ("name: [unclosed", "`name`"),
+            (
+                "window: {start: 2027-01-04\npools: []",
+                "did not find expected",
+            ),
+            ("name: x\n---\nname: y\n", "more than one document"),
+            ("\u{feff}name: x\n", "has no `window`"),
+            (
+                "window: {start: 0001-01-01, end: 9999-12-31}",
+                "three years",
+            ),
+            ("window: 12", "expected a mapping"),
+            ("pools: {id: x}", "expected a sequence"),
+            (
+                "window: {start: 2027-01-04, end: 2027-04-04}\nexperiments: [{id: 名前, pool: 池}]",
+                "pool `池` is not defined",
+            ),
+        ] {
+            let e = load_str(text, "t.yaml").expect_err(text);
+            assert!(e.to_string().contains(part), "{text:?}: {e}");
+        }
+    }
+
+    #[test]
+    fn a_file_that_is_not_utf8_is_reported_with_its_line() {
+        let dir = std::env::temp_dir().join(format!("sluice-load-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let f = dir.join("latin1.yaml");
+        std::fs::write(&f, b"name: ok\nowner: Jos\xe9\n").unwrap();
+        let e = load(&f).unwrap_err();
+        assert_eq!(e.diagnostics[0].line, Some(2));
+        assert!(e.diagnostics[0].message.contains("not UTF-8"));
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    /// A YAML-ish tree: mappings whose keys mostly come from the schema,
+    /// sequences, and scalars chosen to hit range checks.
+    fn tree() -> impl Strategy<Value = serde_yaml::Value> {
+        use serde_yaml::Value;
+        let keys = prop::sample::select(vec![
+            "name",
+            "window",
+            "start",
+            "end",
+            "defaults",
+            "alpha",
+            "power",
+            "sides",
+            "pools",
+            "experiments",
+            "blackouts",
+            "id",
+            "pool",
+            "daily",
+            "weekday_pattern",
+            "adjustments",
+            "from",
+            "to",
+            "multiply",
+            "level",
+            "sharing",
+            "max_concurrent",
+            "baseline",
+            "sd",
+            "mde",
+            "mde_abs",
+            "arms",
+            "ratio",
+            "rho",
+            "metric",
+            "after",
+            "not_with",
+            "gap_days",
+            "kind",
+            "share_levels",
+            "max_share",
+            "priority",
+            "earliest_start",
+            "deadline",
+            "planning",
+            "start_grid",
+            "min_days",
+            "zz",
+        ]);
+        let leaf = prop_oneof![
+            Just(Value::Null),
+            any::<bool>().prop_map(Value::Bool),
+            any::<f64>().prop_map(|x| Value::Number(x.into())),
+            any::<i64>().prop_map(|x| Value::Number(x.into())),
+            prop::sample::select(vec![
+                "2027-01-04",
+                "2027-04-04",
+                "2028-02-29",
+                "2027-02-30",
+                "home",
+                "a",
+                "b",
+                "rate",
+                "mean",
+                "split",
+                "overlap",
+                "no_starts",
+                "no_running",
+                "weekly",
+                "0.05",
+                "",
+                "ünï",
+                "1e400",
+                ".nan",
+            ])
+            .prop_map(|s| Value::String(s.to_string())),
+            (0.0..1.0f64).prop_map(|x| Value::Number(x.into())),
+        ];
+        leaf.prop_recursive(5, 64, 8, move |inner| {
+            prop_oneof![
+                prop::collection::vec(inner.clone(), 0..6).prop_map(Value::Sequence),
+                prop::collection::vec((keys.clone(), inner), 0..8).prop_map(|kv| {
+                    let mut m = serde_yaml::Mapping::new();
+                    for (k, v) in kv {
+                        m.insert(Value::String(k.to_string()), v);
+                    }
+                    Value::Mapping(m)
+                }),
+            ]
+        })
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(256))]
+
+        #[test]
+        fn random_bytes_never_panic(bytes in prop::collection::vec(any::<u8>(), 0..512)) {
+            let text = String::from_utf8_lossy(&bytes);
+            let _ = load_str(&text, "fuzz.yaml").map_err(|e| e.to_string());
+        }
+
+        #[test]
+        fn random_trees_never_panic(v in tree()) {
+            let text = serde_yaml::to_string(&v).unwrap_or_default();
+            let _ = load_str(&text, "fuzz.yaml").map_err(|e| e.to_string());
+        }
+
+        #[test]
+        fn mutated_portfolios_never_panic(
+            edits in prop::collection::vec((0usize..60, prop::sample::select(vec![
+                "", "  - id: a", "    after: [b]", "    pool: x", "  baseline: 2", "- ",
+                ":", "    mde: .nan", "    arms: 1e30", "[", "    not_with: [a, a, b]",
+                "    deadline: 2027-01-01", "experiments: 3", "      multiply: -1",
+            ])), 1..6)
+        ) {
+            let mut lines: Vec<String> = SMALL.lines().map(str::to_string).collect();
+            for (at, line) in edits {
+                let at = at % (lines.len() + 1);
+                if line.is_empty() && at < lines.len() {
+                    lines.remove(at);
+                } else {
+                    lines.insert(at, line.to_string());
+                }
+            }
+            let text = lines.join("\n");
+            match load_str(&text, "fuzz.yaml") {
+                Ok(p) => {
+                    // Whatever loads keeps the model's invariants.
+                    for e in &p.experiments {
+                        prop_assert!(e.pool < p.pools.len());
+                        prop_assert!(e.need.total > 0);
+                        prop_assert!(e.not_with.windows(2).all(|w| w[0] < w[1]));
+                    }
+                }
+                Err(e) => {
+                    prop_assert!(!e.diagnostics.is_empty());
+                    let _ = e.to_string();
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn positions_leave_the_message() {
+        let (m, c) = strip_positions(
+            "did not find expected ',' or '}' at line 4 column 6, while parsing a flow mapping at line 3 column 9",
+        );
+        assert_eq!(
+            m,
+            "did not find expected ',' or '}', while parsing a flow mapping"
+        );
+        assert_eq!(c, Some((3, 9)));
+        let (m, c) = strip_positions("x: invalid type at line 2 column 1");
+        assert_eq!((m.as_str(), c), ("x: invalid type", None));
     }
 }

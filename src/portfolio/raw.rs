@@ -283,6 +283,29 @@ mod tests {
     }
 
     #[test]
+    fn docs_portfolio_md_documents_every_key() {
+        let doc = include_str!("../../docs/portfolio.md");
+        for shape in [
+            "",
+            "window",
+            "defaults",
+            "planning",
+            "pools[]",
+            "pools[].adjustments[]",
+            "experiments[]",
+            "experiments[].after[]",
+            "blackouts[]",
+        ] {
+            for key in allowed_keys(shape).unwrap() {
+                assert!(
+                    doc.contains(&format!("| `{key}` |")),
+                    "docs/portfolio.md has no row for `{key}` ({shape})"
+                );
+            }
+        }
+    }
+
+    #[test]
     fn unknown_keys_are_refused() {
         let r: Result<RawWindow, _> = serde_yaml::from_str("start: x\nstrat: y");
         assert!(r.unwrap_err().to_string().contains("unknown field `strat`"));

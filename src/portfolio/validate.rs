@@ -63,7 +63,7 @@ impl Ctx<'_> {
             key,
             format!("{what} has no `{leaf}`"),
             Some(hint.into()),
-            false,
+            true,
         );
     }
 
@@ -438,6 +438,13 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
             ("friday", Weekday::Fri),
             ("saturday", Weekday::Sat),
             ("sunday", Weekday::Sun),
+            ("mon", Weekday::Mon),
+            ("tue", Weekday::Tue),
+            ("wed", Weekday::Wed),
+            ("thu", Weekday::Thu),
+            ("fri", Weekday::Fri),
+            ("sat", Weekday::Sat),
+            ("sun", Weekday::Sun),
         ],
         Weekday::Mon,
     );
@@ -751,7 +758,7 @@ fn experiments(
         };
         let (design, design_ok) = design(cx, e, i, &who, &what, d);
         let need = if design_ok && defaults_ok {
-            match sizing::sample_size(&design) {
+            match size(&design) {
                 Ok(n) => Some(n),
                 Err(err) => {
                     sizing_error(cx, e, i, &who, &err);
@@ -1131,6 +1138,30 @@ fn design(
     (design, cx.diags.len() == before)
 }
 
+/// Above this many units per arm (by the normal approximation) a t-method
+/// design is sized with the normal approximation instead.
+pub const T_SIZE_LIMIT: f64 = 1e6;
+
+/// The sample size of a design. The t method searches the noncentral t
+/// distribution, which becomes very slow for huge samples (tens of
+/// seconds past a few million units per arm); there the t and normal
+/// sizes agree to within about one unit per arm (Guenther 1981, "Sample
+/// size formulas for normal theory t tests", The American Statistician
+/// 35(4): n_t is about n_z + z^2/4; cited from memory), so the normal
+/// size is used past [`T_SIZE_LIMIT`].
+fn size(design: &Design) -> Result<SampleSize, SizingError> {
+    if design.method == Method::T {
+        let z = sizing::sample_size(&Design {
+            method: Method::Z,
+            ..*design
+        })?;
+        if z.control_exact.max(z.treatment_exact) > T_SIZE_LIMIT {
+            return Ok(z);
+        }
+    }
+    sizing::sample_size(design)
+}
+
 /// A sizing failure after the range checks passed (an effect that leaves
 /// (0, 1), a size beyond any traffic), pointed at the key to change.
 fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &SizingError) {
@@ -1149,16 +1180,37 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
     };
     let hint = match err {
         SizingError::TreatmentRateOutside { .. } => {
-            "the treatment rate must stay strictly between 0 and 1"
+            "the treatment rate must stay strictly between 0 and 1; use a smaller MDE"
         }
         SizingError::NoSolution(_) => "a larger MDE needs fewer units",
         _ => "see docs/portfolio.md for the ranges",
     };
-    cx.err(
-        &format!("experiments[{i}].{key}"),
-        format!("{who}{err}"),
-        hint,
-    );
+    let message = match err {
+        SizingError::TreatmentRateOutside {
+            baseline,
+            treatment,
+        } => format!(
+            "{who}the effect moves the rate from {} to {}, outside (0, 1)",
+            show(*baseline),
+            show((treatment * 1e9).round() / 1e9)
+        ),
+        SizingError::NoSolution(text) => {
+            // Write an astronomically large size compactly.
+            let n = text
+                .strip_prefix("the design needs ")
+                .and_then(|t| t.split(' ').next())
+                .and_then(|t| t.parse::<f64>().ok());
+            match n {
+                Some(n) if n.is_finite() => {
+                    format!("{who}the design needs about {n:.1e} units per arm, beyond any traffic")
+                }
+                Some(_) => format!("{who}the design needs more units than can be counted"),
+                None => format!("{who}{err}"),
+            }
+        }
+        _ => format!("{who}{err}"),
+    };
+    cx.err(&format!("experiments[{i}].{key}"), message, hint);
 }
 
 /// Reports every cycle of the `after` graph once, as `a -> b -> a`.

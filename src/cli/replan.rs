@@ -1,0 +1,97 @@
+//! `sluice replan FILE --progress PROGRESS --today DATE`: plan again
+//! mid-quarter around the running tests, with optional `--scale` what-ifs,
+//! and (with `--previous`) show what moved first. The rules live in
+//! [`crate::replan`]; this file parses flags and wires them together.
+
+use super::plan::{emit, load_portfolio, OutputArgs, SolverArgs};
+use super::Failure;
+use crate::plan::Plan;
+use crate::portfolio::progress;
+use crate::render::{changes, Format};
+use crate::replan::{self, ScaleArg};
+use chrono::NaiveDate;
+use clap::Args;
+use std::path::PathBuf;
+
+#[derive(Args, Debug)]
+#[command(after_help = "Examples:\n  \
+    sluice replan portfolios/demo.yaml --progress progress.yaml --today 2027-02-03\n  \
+    sluice replan portfolios/demo.yaml --progress progress.yaml --today 2027-02-03 \\\n      \
+    --scale home=0.7 --previous plan.json\n  \
+    sluice replan portfolios/demo.yaml --progress progress.yaml --today 2027-02-03 \\\n      \
+    --scale search=0.8@2027-03-01 --format html --out replan.html\n\n\
+    Running tests keep their start and share (never paused); finished and \
+    cancelled tests free their pool; every other test is planned again from \
+    --today. docs/progress.md describes the progress file.")]
+pub struct ReplanArgs {
+    /// The portfolio file (YAML; docs/portfolio.md lists every key)
+    pub file: PathBuf,
+    /// Where each test stands: running (with units so far), finished, cancelled
+    #[arg(long, value_name = "FILE")]
+    pub progress: PathBuf,
+    /// The day of the re-plan: no new test starts before it
+    #[arg(long, value_name = "YYYY-MM-DD")]
+    pub today: NaiveDate,
+    /// A traffic what-if, repeatable: POOL=FACTOR[@FROM], e.g. checkout=0.7@2027-02-01
+    #[arg(long, value_name = "POOL=FACTOR[@DATE]")]
+    pub scale: Vec<ScaleArg>,
+    /// The earlier plan (`sluice plan --format json`) to compare against
+    #[arg(long, value_name = "PLAN.json")]
+    pub previous: Option<PathBuf>,
+    #[command(flatten)]
+    pub output: OutputArgs,
+    #[command(flatten)]
+    pub solver: SolverArgs,
+}
+
+fn read_previous(path: &PathBuf) -> Result<Plan, Failure> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Failure::invalid(format!(
+            "cannot read the previous plan `{}`: {e}",
+            path.display()
+        ))
+    })?;
+    serde_json::from_str(&text).map_err(|e| {
+        Failure::invalid(format!(
+            "`{}` is not a plan in JSON ({e}); write one with `sluice plan FILE --format json --out {}`",
+            path.display(),
+            path.display()
+        ))
+    })
+}
+
+/// `sluice replan`.
+pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
+    let base = a.solver.request()?;
+    let mut portfolio = load_portfolio(&a.file)?;
+    let w = portfolio.window;
+    if a.today > w.end {
+        return Err(Failure::invalid(format!(
+            "`--today` {} is after the window's end {}; there is nothing left to plan (give the portfolio a new window to plan the next quarter)",
+            a.today, w.end
+        )));
+    }
+    let today = a.today.max(w.start);
+    replan::apply_scales(&mut portfolio, &a.scale, today)
+        .map_err(|e| Failure::invalid(e.to_string()))?;
+    let progress =
+        progress::load_progress(&a.progress, &portfolio, a.today).map_err(|e| Failure {
+            code: super::EXIT_INVALID,
+            message: e.to_string(),
+        })?;
+    for w in &progress.warnings {
+        eprint!("{}", w.to_string().replacen("error:", "warning:", 1));
+    }
+    let previous = a.previous.as_ref().map(read_previous).transpose()?;
+    let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)
+        .map_err(|e| Failure::invalid(e.to_string()))?;
+    if let Some(prev) = &previous {
+        plan.changes = Some(crate::diff::diff(prev, &plan));
+    }
+    let prefix = match a.output.format {
+        Format::Text if changes::has_any(&plan) => Some(changes::text(&plan).into_bytes()),
+        Format::Md if changes::has_any(&plan) => Some(changes::markdown(&plan).into_bytes()),
+        _ => None,
+    };
+    emit(plan, &a.output, &a.file, prefix)
+}

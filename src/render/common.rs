@@ -1,0 +1,249 @@
+//! Helpers shared by the renderers: number and date wording, the week grid
+//! used for display, looking up a scheduled run, and the cautions text.
+//!
+//! Nothing here computes a schedule fact: runs, shares and result dates are
+//! read from the plan as they are.
+
+use super::RenderError;
+use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Status};
+use chrono::{Duration, NaiveDate};
+
+/// The schedule facts of one scheduled experiment, read from the plan.
+#[derive(Debug, Clone, Copy)]
+pub struct Run {
+    pub start: NaiveDate,
+    pub end: NaiveDate,
+    pub result_date: NaiveDate,
+    pub share: f64,
+    pub days: u32,
+    pub units_expected: f64,
+}
+
+/// The run of `e` if it is scheduled; `None` if it is not; an error if the
+/// plan calls it scheduled but leaves a fact out.
+pub fn run_of(e: &PlannedExperiment) -> Result<Option<Run>, RenderError> {
+    if !e.status.in_calendar() {
+        return Ok(None);
+    }
+    let missing = |field: &str| {
+        RenderError::Inconsistent(format!(
+            "experiment `{}` is scheduled but has no `{field}`",
+            e.id
+        ))
+    };
+    Ok(Some(Run {
+        start: e.start.ok_or_else(|| missing("start"))?,
+        end: e.end.ok_or_else(|| missing("end"))?,
+        result_date: e.result_date.ok_or_else(|| missing("result_date"))?,
+        share: e.share.ok_or_else(|| missing("share"))?,
+        days: e.days.ok_or_else(|| missing("days"))?,
+        units_expected: e.units_expected.ok_or_else(|| missing("units_expected"))?,
+    }))
+}
+
+/// How to name an experiment with no run in this plan: "does not fit", or
+/// (in re-plans) "finished" / "cancelled".
+pub fn out_word(e: &PlannedExperiment) -> &'static str {
+    match e.status {
+        Status::Finished => "finished",
+        Status::Cancelled => "cancelled",
+        _ => "does not fit",
+    }
+}
+
+/// How many experiments left the queue (finished or cancelled; re-plans).
+pub fn closed_count(plan: &Plan) -> usize {
+    plan.experiments
+        .iter()
+        .filter(|e| matches!(e.status, Status::Finished | Status::Cancelled))
+        .count()
+}
+
+/// ", 3 finished or cancelled" when any did, else "".
+pub fn closed_note(plan: &Plan) -> String {
+    match closed_count(plan) {
+        0 => String::new(),
+        n => format!(", {n} finished or cancelled"),
+    }
+}
+
+/// Counts of experiments in the calendar (scheduled or running) and of
+/// those left out; finished and cancelled ones (re-plans) count in neither.
+pub fn counts(plan: &Plan) -> (usize, usize) {
+    let count =
+        |f: &dyn Fn(Status) -> bool| plan.experiments.iter().filter(|e| f(e.status)).count();
+    (
+        count(&|s| s.in_calendar()),
+        count(&|s| s == Status::Unscheduled),
+    )
+}
+
+/// The experiments of `pool`, in plan order.
+pub fn experiments_in<'a>(
+    plan: &'a Plan,
+    pool: &'a str,
+) -> impl Iterator<Item = &'a PlannedExperiment> + 'a {
+    plan.experiments.iter().filter(move |e| e.pool == pool)
+}
+
+/// Experiments whose pool is not among the plan's pools (should not happen,
+/// but a renderer must not silently drop them).
+pub fn orphans(plan: &Plan) -> Vec<&PlannedExperiment> {
+    plan.experiments
+        .iter()
+        .filter(|e| !plan.pools.iter().any(|p| p.id == e.pool))
+        .collect()
+}
+
+/// The pool's label, or its id when the plan does not know it.
+pub fn pool_label<'a>(plan: &'a Plan, pool: &'a str) -> &'a str {
+    plan.pools
+        .iter()
+        .find(|p| p.id == pool)
+        .map(|p| p.label.as_str())
+        .unwrap_or(pool)
+}
+
+/// Whether a blackout covers `pool` (an empty pool list covers every pool).
+pub fn blackout_covers(b: &PlanBlackout, pool: &str) -> bool {
+    b.pools.is_empty() || b.pools.iter().any(|p| p == pool)
+}
+
+/// Whether the pool's capacity is a share (split) rather than a count.
+pub fn is_split(pool: &PoolPlan) -> bool {
+    pool.sharing == "split"
+}
+
+/// One display week of the window: seven days from `start`, the last one
+/// cut at the window's end.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Week {
+    pub start: NaiveDate,
+    pub end: NaiveDate,
+}
+
+/// The window cut into weeks from its first day.
+pub fn weeks(plan: &Plan) -> Vec<Week> {
+    let mut out = Vec::new();
+    let mut start = plan.window.start;
+    while start <= plan.window.end {
+        let end = (start + Duration::days(6)).min(plan.window.end);
+        out.push(Week { start, end });
+        start += Duration::days(7);
+    }
+    out
+}
+
+/// `1234567` as `1,234,567`.
+pub fn thousands(n: u64) -> String {
+    let digits = n.to_string();
+    let mut out = String::with_capacity(digits.len() + digits.len() / 3);
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i).is_multiple_of(3) {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out
+}
+
+/// A unit count given as a float, rounded to whole units with separators.
+pub fn units(x: f64) -> String {
+    if x.is_finite() && x >= 0.0 {
+        thousands(x.round() as u64)
+    } else {
+        "?".to_string()
+    }
+}
+
+/// A share as a percentage: whole percent, or one decimal when needed.
+pub fn percent(share: f64) -> String {
+    let p = share * 100.0;
+    if (p - p.round()).abs() < 0.05 {
+        format!("{:.0}%", p)
+    } else {
+        format!("{:.1}%", p)
+    }
+}
+
+/// A date as `Mon 4 Jan 2027`.
+pub fn long_date(d: NaiveDate) -> String {
+    d.format("%a %-d %b %Y").to_string()
+}
+
+/// A date as `4 Jan`.
+pub fn short_date(d: NaiveDate) -> String {
+    d.format("%-d %b").to_string()
+}
+
+/// The solver's numbers in one sentence.
+pub fn solver_sentence(plan: &Plan) -> String {
+    let s = &plan.solver;
+    let status = match s.status.as_str() {
+        "optimal" => "proved optimal".to_string(),
+        "feasible" => "a feasible plan, not proved optimal".to_string(),
+        "greedy" => "the greedy fallback (the solver gave no plan)".to_string(),
+        other => other.to_string(),
+    };
+    format!(
+        "solver `{}`: {status}; plan value {:.1} against a bound of {:.1} (gap {:.1}%); greedy baseline {:.1}.",
+        s.backend,
+        s.value,
+        s.bound,
+        s.gap * 100.0,
+        plan.greedy_value
+    )
+}
+
+/// The cautions every output carries, as one paragraph.
+pub const CAUTION: &str = "This calendar is an estimate. The sample sizes assume independent \
+randomisation units and a fixed horizon: each result is read once, at its planned end, not \
+checked daily. The dates assume the traffic forecast holds, and real traffic always differs \
+from a forecast, so leave a margin and re-plan when traffic moves. Tests that touch pricing, \
+health or vulnerable users go through your organisation's own review, whatever this plan \
+says fits.";
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::fixture;
+
+    #[test]
+    fn thousands_groups_digits() {
+        assert_eq!(thousands(0), "0");
+        assert_eq!(thousands(999), "999");
+        assert_eq!(thousands(1000), "1,000");
+        assert_eq!(thousands(2_400_000), "2,400,000");
+        assert_eq!(units(629_759.6), "629,760");
+    }
+
+    #[test]
+    fn percent_drops_needless_decimals() {
+        assert_eq!(percent(0.4), "40%");
+        assert_eq!(percent(1.0), "100%");
+        assert_eq!(percent(0.125), "12.5%");
+    }
+
+    #[test]
+    fn weeks_cover_the_window_exactly() {
+        let plan = fixture::plan();
+        let w = weeks(&plan);
+        assert_eq!(w.len(), 13);
+        assert_eq!(w[0].start, plan.window.start);
+        assert_eq!(w[12].end, plan.window.end);
+        for pair in w.windows(2) {
+            assert_eq!(pair[0].end + Duration::days(1), pair[1].start);
+        }
+    }
+
+    #[test]
+    fn a_scheduled_experiment_without_a_start_is_an_error() {
+        let mut plan = fixture::plan();
+        plan.experiments[0].start = None;
+        let err = run_of(&plan.experiments[0]).unwrap_err().to_string();
+        assert!(
+            err.contains("`hero-copy`") && err.contains("`start`"),
+            "{err}"
+        );
+    }
+}

@@ -1,0 +1,91 @@
+//! CSV: one row per experiment in plan order, with a header row. Dates are
+//! ISO 8601 (`YYYY-MM-DD`); shares are fractions in (0, 1]; cells that do
+//! not apply (an unscheduled test's dates) are empty. Quoting is left to the
+//! `csv` crate.
+
+use super::common::run_of;
+use super::{RenderError, RenderOptions, Renderer};
+use crate::plan::Plan;
+
+/// The CSV renderer.
+pub struct Csv;
+
+/// The header row, in column order.
+pub const HEADER: [&str; 14] = [
+    "id",
+    "title",
+    "owner",
+    "pool",
+    "priority",
+    "status",
+    "start",
+    "end",
+    "result_date",
+    "share",
+    "days",
+    "units_needed",
+    "units_expected",
+    "reason",
+];
+
+impl Renderer for Csv {
+    fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+        let mut w = csv::Writer::from_writer(Vec::new());
+        w.write_record(HEADER).map_err(RenderError::Csv)?;
+        for e in &plan.experiments {
+            let run = run_of(e)?;
+            let opt =
+                |f: &dyn Fn(&super::common::Run) -> String| run.as_ref().map(f).unwrap_or_default();
+            let status = e.status.name();
+            let row = [
+                e.id.clone(),
+                e.title.clone(),
+                e.owner.clone(),
+                e.pool.clone(),
+                e.priority.to_string(),
+                status.to_string(),
+                opt(&|r| r.start.to_string()),
+                opt(&|r| r.end.to_string()),
+                opt(&|r| r.result_date.to_string()),
+                opt(&|r| r.share.to_string()),
+                opt(&|r| r.days.to_string()),
+                e.units_needed.to_string(),
+                opt(&|r| format!("{:.0}", r.units_expected)),
+                e.reason.clone().unwrap_or_default(),
+            ];
+            w.write_record(&row).map_err(RenderError::Csv)?;
+        }
+        w.into_inner()
+            .map_err(|e| RenderError::Csv(csv::Error::from(e.into_error())))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::fixture;
+
+    #[test]
+    fn parses_back_with_one_row_per_experiment() {
+        let plan = fixture::plan();
+        let bytes = Csv.render(&plan, &RenderOptions::default()).unwrap();
+        let mut r = csv::Reader::from_reader(bytes.as_slice());
+        assert_eq!(r.headers().unwrap(), HEADER.as_slice());
+        let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
+        assert_eq!(rows.len(), plan.experiments.len());
+        for (row, e) in rows.iter().zip(&plan.experiments) {
+            assert_eq!(&row[0], e.id);
+            assert_eq!(&row[1], e.title);
+            assert_eq!(
+                row[6].to_string(),
+                e.start.map(|d| d.to_string()).unwrap_or_default()
+            );
+            assert_eq!(
+                row[8].to_string(),
+                e.result_date.map(|d| d.to_string()).unwrap_or_default()
+            );
+            assert_eq!(row[11].parse::<u64>().unwrap(), e.units_needed);
+            assert_eq!(&row[13], e.reason.as_deref().unwrap_or(""));
+        }
+    }
+}

@@ -1,0 +1,866 @@
+//! HTML: one self-contained report file (no external scripts, fonts,
+//! styles or images) for people who read the plan in a browser or on paper.
+//!
+//! Sections: a summary (how many tests fit, how many do not, the solver's
+//! value against its bound), a calendar chart in inline SVG (rows grouped by
+//! pool on a week grid, today's line, blackouts shaded, each bar labelled
+//! and carrying a tooltip of its numbers), one chart per pool of the daily
+//! traffic in use against its capacity, the table of tests, the tests that
+//! do not fit with their reasons, and the assumptions and cautions.
+//!
+//! The markup is XHTML-compatible (every element closed, only XML's five
+//! entities) so that an XML parser can check it, and all user text is
+//! escaped. Coordinates are printed with fixed decimals so that the same
+//! plan always gives the same bytes. The look is our own: plain, high
+//! contrast, and readable when printed.
+
+use super::common::{
+    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pool_label,
+    run_of, short_date, solver_sentence, thousands, units, weeks, Run, CAUTION,
+};
+use super::{RenderError, RenderOptions, Renderer};
+use crate::plan::{Plan, PlannedExperiment, PoolPlan};
+use chrono::{Duration, NaiveDate};
+use std::fmt::Write;
+
+/// The HTML report renderer.
+pub struct Html;
+
+/// Escapes text for XML and HTML content and attribute values.
+pub fn esc(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            // Control characters other than tab and newline are not allowed
+            // in XML 1.0 at all; drop them.
+            c if (c as u32) < 0x20 && c != '\t' && c != '\n' => {}
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Escapes text like [`esc`], then shows `backticked` names (as the
+/// scheduler writes them in reasons) as code.
+pub fn esc_with_code(s: &str) -> String {
+    let escaped = esc(s);
+    let parts: Vec<&str> = escaped.split('`').collect();
+    if parts.len().is_multiple_of(2) {
+        // An unpaired backtick: keep the text as it is.
+        return escaped;
+    }
+    let mut out = String::with_capacity(escaped.len() + parts.len() * 7);
+    for (i, part) in parts.iter().enumerate() {
+        if i % 2 == 1 {
+            out.push_str("<code>");
+            out.push_str(part);
+            out.push_str("</code>");
+        } else {
+            out.push_str(part);
+        }
+    }
+    out
+}
+
+/// Bar colours per pool, in pool order (cycled). Each has a contrast ratio
+/// above 4.5:1 against white, so white labels on bars stay readable.
+const POOL_FILLS: [&str; 5] = ["#1f5f8b", "#8a4f0a", "#5b3f8c", "#2d6a3e", "#8c2f4b"];
+
+/// Width of the SVG charts in user units; they scale to the page width.
+const SVG_W: f64 = 1040.0;
+/// Left edge of the plotting area (the labels sit to its left).
+const PLOT_X0: f64 = 210.0;
+/// Right edge of the plotting area.
+const PLOT_X1: f64 = 1024.0;
+/// Height of one experiment row in the calendar chart.
+const ROW_H: f64 = 26.0;
+/// Height of the pool heading row in the calendar chart.
+const GROUP_H: f64 = 28.0;
+/// Height of the axis band above the calendar chart.
+const AXIS_H: f64 = 44.0;
+/// Rough width of one character of 11px sans-serif text, for deciding
+/// whether a label fits inside its bar.
+const CHAR_W: f64 = 6.4;
+
+const STYLE: &str = r#"
+:root { color-scheme: light; }
+* { box-sizing: border-box; }
+body { margin: 0; background: #ffffff; color: #1c2127;
+  font-family: system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif;
+  font-size: 15px; line-height: 1.5; }
+main { max-width: 1100px; margin: 0 auto; padding: 28px 28px 48px; }
+header.top { border-bottom: 3px solid #1c2127; padding-bottom: 12px; margin-bottom: 20px; }
+h1 { font-size: 26px; margin: 0 0 4px; letter-spacing: -0.01em; }
+h2 { font-size: 19px; margin: 32px 0 8px; padding-top: 8px; border-top: 1px solid #d5d9de; }
+h3 { font-size: 15px; margin: 18px 0 4px; }
+p.meta { margin: 0; color: #4a525c; }
+.summary { display: flex; flex-wrap: wrap; gap: 12px; margin: 8px 0 4px; padding: 0; list-style: none; }
+.summary li { flex: 1 1 200px; border: 1px solid #c4cad1; border-left: 6px solid #1c2127; padding: 10px 14px; }
+.summary li.warn { border-left-color: #a4500f; }
+.summary .big { display: block; font-size: 24px; font-weight: 700; line-height: 1.2; }
+.summary .small { color: #4a525c; font-size: 13px; }
+figure { margin: 8px 0 0; }
+figcaption { color: #4a525c; font-size: 13px; margin-top: 4px; }
+svg { width: 100%; height: auto; display: block; }
+svg text { font-family: inherit; }
+table { border-collapse: collapse; width: 100%; font-size: 14px; }
+th, td { text-align: left; padding: 6px 10px; border-bottom: 1px solid #d5d9de; vertical-align: top; }
+th { border-bottom: 2px solid #1c2127; font-weight: 600; }
+tbody tr:nth-child(even) { background: #f3f5f7; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.date { font-variant-numeric: tabular-nums; }
+td.date .nw, td.date strong { white-space: nowrap; }
+td.test { min-width: 13em; }
+td.pool { white-space: nowrap; }
+td .small { color: #4a525c; font-size: 13px; }
+td.muted { color: #4a525c; }
+.swatch { display: inline-block; width: 10px; height: 10px; margin-right: 6px; vertical-align: baseline; }
+ul.reasons li { margin-bottom: 6px; }
+code { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; font-size: 0.92em; }
+footer { margin-top: 36px; color: #4a525c; font-size: 13px; border-top: 1px solid #d5d9de; padding-top: 8px; }
+@media print {
+  body { font-size: 10.5pt; }
+  main { max-width: none; padding: 0; }
+  h2 { break-after: avoid; }
+  figure, .summary li, tr { break-inside: avoid; }
+  table { font-size: 9pt; }
+  td.test { min-width: 11em; }
+  * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+}
+"#;
+
+/// The x position of the start of `date` in the plotting area.
+struct Scale {
+    start: NaiveDate,
+    day_w: f64,
+}
+
+impl Scale {
+    fn new(plan: &Plan) -> Scale {
+        let days = ((plan.window.end - plan.window.start).num_days() + 1).max(1) as f64;
+        Scale {
+            start: plan.window.start,
+            day_w: (PLOT_X1 - PLOT_X0) / days,
+        }
+    }
+
+    fn x(&self, date: NaiveDate) -> f64 {
+        PLOT_X0 + (date - self.start).num_days() as f64 * self.day_w
+    }
+
+    /// The x span of the days `from..=to`, clipped to the window.
+    fn span(&self, from: NaiveDate, to: NaiveDate) -> (f64, f64) {
+        let a = self.x(from).clamp(PLOT_X0, PLOT_X1);
+        let b = self.x(to + Duration::days(1)).clamp(PLOT_X0, PLOT_X1);
+        (a, b)
+    }
+}
+
+fn pool_fill(index: usize) -> &'static str {
+    POOL_FILLS[index % POOL_FILLS.len()]
+}
+
+/// Week lines and date labels over the height `top..bottom`; labels above
+/// `top` when `labels` is set. Labels are thinned so they never touch.
+fn week_grid(plan: &Plan, scale: &Scale, top: f64, bottom: f64, labels: bool, s: &mut String) {
+    let ws = weeks(plan);
+    let week_px = 7.0 * scale.day_w;
+    let every = ((46.0 / week_px).ceil() as usize).max(1);
+    let _ = writeln!(s, r#"<g class="grid">"#);
+    for (i, w) in ws.iter().enumerate() {
+        let x = scale.x(w.start);
+        let _ = writeln!(
+            s,
+            r##"<line x1="{x:.1}" y1="{top:.1}" x2="{x:.1}" y2="{bottom:.1}" stroke="#d5d9de" stroke-width="1"/>"##
+        );
+        if labels && i % every == 0 {
+            let _ = writeln!(
+                s,
+                r##"<text x="{:.1}" y="{:.1}" font-size="11" fill="#4a525c">{}</text>"##,
+                x + 3.0,
+                top - 6.0,
+                esc(&short_date(w.start))
+            );
+        }
+    }
+    let _ = writeln!(
+        s,
+        r##"<line x1="{PLOT_X1:.1}" y1="{top:.1}" x2="{PLOT_X1:.1}" y2="{bottom:.1}" stroke="#d5d9de" stroke-width="1"/>"##
+    );
+    let _ = writeln!(s, "</g>");
+}
+
+/// Shaded blackout spans covering `pool`, over `top..bottom`.
+fn blackout_shades(plan: &Plan, scale: &Scale, pool: &str, top: f64, bottom: f64, s: &mut String) {
+    for b in plan.blackouts.iter().filter(|b| blackout_covers(b, pool)) {
+        if b.to < plan.window.start || b.from > plan.window.end {
+            continue;
+        }
+        let (x0, x1) = scale.span(b.from, b.to);
+        let (pattern, kind) = match b.kind.as_str() {
+            "no_running" => ("url(#shade-stop)", "nothing runs"),
+            "no_starts" => ("url(#shade-nostart)", "no new starts"),
+            _ => ("url(#shade-nostart)", b.kind.as_str()),
+        };
+        let _ = writeln!(
+            s,
+            r#"<rect x="{x0:.1}" y="{top:.1}" width="{:.1}" height="{:.1}" fill="{pattern}"><title>{}</title></rect>"#,
+            x1 - x0,
+            bottom - top,
+            esc(&format!(
+                "Blackout {} to {}: {kind}. {}",
+                b.from, b.to, b.note
+            ))
+        );
+    }
+}
+
+/// Patterns shared by the charts (the ids are unique in the document).
+const PATTERNS: &str = r##"<defs>
+<pattern id="shade-stop" width="8" height="8" patternUnits="userSpaceOnUse" patternTransform="rotate(45)"><rect width="8" height="8" fill="#eceff2"/><rect width="3" height="8" fill="#b9c0c8"/></pattern>
+<pattern id="shade-nostart" width="8" height="8" patternUnits="userSpaceOnUse" patternTransform="rotate(45)"><rect width="8" height="8" fill="#f6f7f9"/><rect width="1.5" height="8" fill="#c9ced5"/></pattern>
+</defs>"##;
+
+fn bar_tooltip(plan: &Plan, e: &PlannedExperiment, r: &Run) -> String {
+    format!(
+        "{} ({})\nPool: {}\nShare: {}\nRuns {} to {} ({} days)\nResult due {}\nUnits needed {}; expected {}\nOwner: {}",
+        e.title,
+        e.id,
+        pool_label(plan, &e.pool),
+        percent(r.share),
+        r.start,
+        r.end,
+        r.days,
+        r.result_date,
+        thousands(e.units_needed),
+        units(r.units_expected),
+        e.owner
+    )
+}
+
+fn calendar_chart(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
+    let scale = Scale::new(plan);
+    let mut groups: Vec<(String, Option<&PoolPlan>, Vec<&PlannedExperiment>)> = plan
+        .pools
+        .iter()
+        .map(|p| {
+            (
+                p.label.clone(),
+                Some(p),
+                experiments_in(plan, &p.id).collect(),
+            )
+        })
+        .collect();
+    let lost = orphans(plan);
+    if !lost.is_empty() {
+        groups.push(("Pool not in the plan".to_string(), None, lost));
+    }
+    let rows: usize = groups.iter().map(|g| g.2.len()).sum();
+    let height = AXIS_H + groups.len() as f64 * GROUP_H + rows as f64 * ROW_H + 12.0;
+    let (fit, _) = counts(plan);
+    let _ = writeln!(
+        s,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {SVG_W:.0} {height:.0}" role="img" aria-labelledby="cal-title cal-desc">"#
+    );
+    let _ = writeln!(
+        s,
+        r#"<title id="cal-title">Calendar of the plan</title><desc id="cal-desc">{fit} scheduled tests in {} pools, one row per test, one column per week from {} to {}; the table below lists the same facts.</desc>"#,
+        plan.pools.len(),
+        plan.window.start,
+        plan.window.end
+    );
+    let _ = writeln!(s, "{PATTERNS}");
+    let bottom = height - 12.0;
+    // Where each group sits: (top of its heading row, bottom of its rows).
+    let mut spans = Vec::with_capacity(groups.len());
+    let mut y = AXIS_H;
+    for (_, _, exps) in &groups {
+        let group_bottom = y + GROUP_H + exps.len() as f64 * ROW_H;
+        spans.push((y, group_bottom));
+        y = group_bottom;
+    }
+    // Back to front: blackouts, week grid and today's line, then the pool
+    // headings (opaque, so lines pause there), then the rows.
+    for ((_, pool, _), &(group_top, group_bottom)) in groups.iter().zip(&spans) {
+        let pool_id = pool.map(|p| p.id.as_str()).unwrap_or("");
+        blackout_shades(plan, &scale, pool_id, group_top + GROUP_H, group_bottom, s);
+    }
+    week_grid(plan, &scale, AXIS_H, bottom, true, s);
+    if plan.today >= plan.window.start && plan.today <= plan.window.end {
+        let x = scale.x(plan.today);
+        let _ = writeln!(
+            s,
+            r##"<g class="today"><line x1="{x:.1}" y1="{:.1}" x2="{x:.1}" y2="{bottom:.1}" stroke="#b3261e" stroke-width="2" stroke-dasharray="5 3"/><text x="{:.1}" y="14" font-size="11" font-weight="700" fill="#b3261e">today, {}</text><title>Plan made for {}</title></g>"##,
+            18.0,
+            x + 3.0,
+            esc(&short_date(plan.today)),
+            long_date(plan.today)
+        );
+    }
+    for (gi, ((label, pool, exps), &(group_top, group_bottom))) in
+        groups.iter().zip(&spans).enumerate()
+    {
+        let heading = match pool {
+            Some(p) if is_split(p) => {
+                format!("{label} · split · up to {} at once", p.max_concurrent)
+            }
+            Some(p) => format!("{label} · overlap · up to {} at once", p.max_concurrent),
+            None => label.clone(),
+        };
+        let _ = writeln!(
+            s,
+            r##"<rect x="0" y="{group_top:.1}" width="{SVG_W:.0}" height="{GROUP_H:.1}" fill="#f3f5f7"/><rect x="0" y="{group_top:.1}" width="5" height="{:.1}" fill="{}"/><text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text>"##,
+            group_bottom - group_top,
+            pool_fill(gi),
+            group_top + 18.5,
+            esc(&heading)
+        );
+        let mut y = group_top + GROUP_H;
+        for e in exps {
+            let mid = y + ROW_H / 2.0;
+            let _ = writeln!(
+                s,
+                r##"<text x="12" y="{:.1}" font-size="12" fill="#1c2127">{}</text>"##,
+                mid + 4.0,
+                esc(&clip(&e.id, 27))
+            );
+            match run_of(e)? {
+                Some(r) => bar(plan, &scale, e, &r, y, pool_fill(gi), s),
+                None => {
+                    let word = if e.status == crate::plan::Status::Unscheduled {
+                        "does not fit: see the list below"
+                    } else {
+                        super::common::out_word(e)
+                    };
+                    let _ = writeln!(
+                        s,
+                        r##"<text x="{:.1}" y="{:.1}" font-size="11" font-style="italic" fill="#4a525c">{word}</text>"##,
+                        PLOT_X0 + 6.0,
+                        mid + 4.0
+                    );
+                }
+            }
+            y += ROW_H;
+        }
+        let _ = writeln!(
+            s,
+            r##"<line x1="0" y1="{group_bottom:.1}" x2="{SVG_W:.0}" y2="{group_bottom:.1}" stroke="#c4cad1" stroke-width="1"/>"##
+        );
+    }
+    let _ = writeln!(s, "</svg>");
+    Ok(())
+}
+
+fn clip(s: &str, max: usize) -> String {
+    if s.chars().count() <= max {
+        s.to_string()
+    } else {
+        let mut out: String = s.chars().take(max - 1).collect();
+        out.push('…');
+        out
+    }
+}
+
+fn bar(
+    plan: &Plan,
+    scale: &Scale,
+    e: &PlannedExperiment,
+    r: &Run,
+    y: f64,
+    fill: &str,
+    s: &mut String,
+) {
+    let (x0, x1) = scale.span(r.start, r.end);
+    let w = (x1 - x0).max(2.0);
+    let top = y + 4.0;
+    let h = ROW_H - 8.0;
+    let label = format!(
+        "{} · result {}",
+        percent(r.share),
+        short_date(r.result_date)
+    );
+    let text_w = label.chars().count() as f64 * CHAR_W;
+    let _ = writeln!(
+        s,
+        "<g class=\"bar\"><title>{}</title>",
+        esc(&bar_tooltip(plan, e, r))
+    );
+    let _ = writeln!(
+        s,
+        r#"<rect x="{x0:.1}" y="{top:.1}" width="{w:.1}" height="{h:.1}" rx="3" fill="{fill}"/>"#
+    );
+    // The result-due day: a small mark just after the bar's end.
+    if r.result_date <= plan.window.end + Duration::days(1) {
+        let xr = scale.x(r.result_date).min(PLOT_X1);
+        let _ = writeln!(
+            s,
+            r##"<path d="M{:.1},{:.1} l5,-5 l5,5 l-5,5 z" fill="#ffffff" stroke="{fill}" stroke-width="2"/>"##,
+            xr - 5.0 + scale.day_w / 2.0,
+            top + h / 2.0
+        );
+    }
+    let baseline = top + h / 2.0 + 4.0;
+    if text_w + 12.0 <= w {
+        let _ = writeln!(
+            s,
+            r##"<text x="{:.1}" y="{baseline:.1}" font-size="11" font-weight="600" fill="#ffffff">{}</text>"##,
+            x0 + 6.0,
+            esc(&label)
+        );
+    } else if x1 + 16.0 + text_w <= PLOT_X1 {
+        let _ = writeln!(
+            s,
+            r##"<text x="{:.1}" y="{baseline:.1}" font-size="11" fill="#1c2127">{}</text>"##,
+            x1 + 16.0,
+            esc(&label)
+        );
+    } else {
+        let _ = writeln!(
+            s,
+            r##"<text x="{:.1}" y="{baseline:.1}" font-size="11" fill="#1c2127" text-anchor="end">{}</text>"##,
+            x0 - 4.0,
+            esc(&label)
+        );
+    }
+    let _ = writeln!(s, "</g>");
+}
+
+/// One pool's daily use against its capacity: the share in use for split
+/// pools (capacity 100%), the number of tests running for overlap pools
+/// (capacity: how many may run at once).
+fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String) {
+    let scale = Scale::new(plan);
+    let split = is_split(p);
+    let value = |d: &crate::plan::PoolDay| {
+        if split {
+            d.share_used
+        } else {
+            f64::from(d.running)
+        }
+    };
+    let capacity = if split {
+        1.0
+    } else {
+        f64::from(p.max_concurrent.max(1))
+    };
+    let peak = p.days.iter().map(value).fold(0.0, f64::max);
+    let top_value = capacity.max(peak);
+    let (top, bottom) = (30.0, 150.0);
+    let height = bottom + 26.0;
+    let y = |v: f64| bottom - (v / top_value) * (bottom - top);
+    let id = format!("pool-{index}");
+    let what = if split {
+        "share of the pool's units in use each day, against 100%".to_string()
+    } else {
+        format!(
+            "tests running each day, against the limit of {} at once",
+            p.max_concurrent
+        )
+    };
+    let _ = writeln!(
+        s,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {SVG_W:.0} {height:.0}" role="img" aria-labelledby="{id}-title {id}-desc">"#
+    );
+    let _ = writeln!(
+        s,
+        r#"<title id="{id}-title">{}: traffic in use</title><desc id="{id}-desc">{}: {what}; peak {}.</desc>"#,
+        esc(&p.label),
+        esc(&p.label),
+        if split {
+            percent(peak)
+        } else {
+            format!("{peak:.0}")
+        }
+    );
+    blackout_shades(plan, &scale, &p.id, top, bottom, s);
+    week_grid(plan, &scale, top, bottom, true, s);
+    // Faint guide lines: quarters of a split pool, each test of an overlap pool.
+    let guides: Vec<f64> = if split {
+        vec![0.25, 0.5, 0.75]
+    } else if p.max_concurrent <= 12 {
+        (1..p.max_concurrent).map(f64::from).collect()
+    } else {
+        Vec::new()
+    };
+    for g in guides {
+        let _ = writeln!(
+            s,
+            r##"<line x1="{PLOT_X0:.1}" y1="{:.1}" x2="{PLOT_X1:.1}" y2="{:.1}" stroke="#e3e6ea" stroke-width="1"/>"##,
+            y(g),
+            y(g)
+        );
+    }
+    // Y axis labels: 0 and capacity.
+    for (v, words) in [
+        (
+            0.0,
+            if split {
+                "0%".to_string()
+            } else {
+                "0".to_string()
+            },
+        ),
+        (
+            capacity,
+            if split {
+                "100%".to_string()
+            } else {
+                format!("{} at once", p.max_concurrent)
+            },
+        ),
+    ] {
+        let _ = writeln!(
+            s,
+            r##"<text x="{:.1}" y="{:.1}" font-size="11" fill="#4a525c" text-anchor="end">{}</text>"##,
+            PLOT_X0 - 8.0,
+            y(v) + 4.0,
+            esc(&words)
+        );
+    }
+    let _ = writeln!(
+        s,
+        r##"<text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text><text x="12" y="{:.1}" font-size="11" fill="#4a525c">{}</text>"##,
+        top + 16.0,
+        esc(&clip(&p.label, 28)),
+        top + 32.0,
+        if split { "split pool" } else { "overlap pool" }
+    );
+    let fill = pool_fill(index);
+    // The area: one step path over the days (no seams between days).
+    let shown: Vec<&crate::plan::PoolDay> = p
+        .days
+        .iter()
+        .filter(|d| d.date >= plan.window.start && d.date <= plan.window.end)
+        .collect();
+    let mut path = String::new();
+    for d in &shown {
+        let (x0, x1) = scale.span(d.date, d.date);
+        let yv = y(value(d).min(capacity));
+        let _ = write!(path, "M{x0:.1},{bottom:.1}V{yv:.1}H{x1:.1}V{bottom:.1}Z");
+    }
+    if !path.is_empty() {
+        let _ = writeln!(
+            s,
+            r#"<path d="{path}" fill="{fill}" shape-rendering="crispEdges"/>"#
+        );
+    }
+    // Anything above capacity (a bug upstream) stands out in red.
+    for d in shown.iter().filter(|d| value(d) > capacity + 1e-9) {
+        let (x0, x1) = scale.span(d.date, d.date);
+        let _ = writeln!(
+            s,
+            r##"<rect x="{x0:.1}" y="{:.1}" width="{:.2}" height="{:.1}" fill="#b3261e"/>"##,
+            y(value(d)),
+            x1 - x0,
+            y(capacity) - y(value(d))
+        );
+    }
+    // Invisible day columns carry the tooltips.
+    let _ = writeln!(s, r##"<g class="days" fill="#ffffff" fill-opacity="0">"##);
+    for d in &shown {
+        let (x0, x1) = scale.span(d.date, d.date);
+        let tip = format!(
+            "{}: {} in use, {} running, forecast {} units",
+            long_date(d.date),
+            percent(d.share_used),
+            d.running,
+            units(d.forecast)
+        );
+        let _ = writeln!(
+            s,
+            r#"<rect x="{x0:.1}" y="{top:.1}" width="{:.2}" height="{:.1}"><title>{}</title></rect>"#,
+            x1 - x0,
+            bottom - top,
+            esc(&tip)
+        );
+    }
+    let _ = writeln!(s, "</g>");
+    let cy = y(capacity);
+    let _ = writeln!(
+        s,
+        r##"<line x1="{PLOT_X0:.1}" y1="{cy:.1}" x2="{PLOT_X1:.1}" y2="{cy:.1}" stroke="#1c2127" stroke-width="1.5" stroke-dasharray="6 3"/><line x1="{PLOT_X0:.1}" y1="{bottom:.1}" x2="{PLOT_X1:.1}" y2="{bottom:.1}" stroke="#1c2127" stroke-width="1"/>"##
+    );
+    if plan.today >= plan.window.start && plan.today <= plan.window.end {
+        let x = scale.x(plan.today);
+        let _ = writeln!(
+            s,
+            r##"<line x1="{x:.1}" y1="{top:.1}" x2="{x:.1}" y2="{bottom:.1}" stroke="#b3261e" stroke-width="2" stroke-dasharray="5 3"/>"##
+        );
+    }
+    let _ = writeln!(s, "</svg>");
+}
+
+fn table(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
+    let _ = writeln!(
+        s,
+        r#"<table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
+    );
+    for e in &plan.experiments {
+        let pool_index = plan.pools.iter().position(|p| p.id == e.pool);
+        let swatch = match pool_index {
+            Some(i) => format!(
+                r#"<span class="swatch" style="background:{}"></span>"#,
+                pool_fill(i)
+            ),
+            None => String::new(),
+        };
+        let _ = write!(
+            s,
+            r#"<tr><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
+            esc(&e.title),
+            esc(&e.id),
+            esc(pool_label(plan, &e.pool))
+        );
+        match run_of(e)? {
+            Some(r) => {
+                let _ = write!(
+                    s,
+                    r#"<td class="num">{}</td><td class="date"><span class="nw">{}</span> to <span class="nw">{}</span><br/><span class="small">{} days</span></td><td class="date"><strong>{}</strong></td><td class="num">{}</td><td class="num">{}</td>"#,
+                    percent(r.share),
+                    r.start,
+                    r.end,
+                    r.days,
+                    r.result_date,
+                    thousands(e.units_needed),
+                    units(r.units_expected)
+                );
+            }
+            None => {
+                let _ = write!(
+                    s,
+                    r#"<td class="num">—</td><td class="muted" colspan="2">{}</td><td class="num">{}</td><td class="num">—</td>"#,
+                    super::common::out_word(e),
+                    thousands(e.units_needed)
+                );
+            }
+        }
+        let _ = writeln!(s, "<td>{}</td></tr>", esc(&e.owner));
+    }
+    let _ = writeln!(s, "</tbody></table>");
+    Ok(())
+}
+
+impl Renderer for Html {
+    fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+        let mut s = String::new();
+        let (fit, not_fit) = counts(plan);
+        let title = format!("Experiment plan: {}", plan.portfolio);
+        let _ = writeln!(s, "<!DOCTYPE html>");
+        let _ = writeln!(
+            s,
+            r#"<html xmlns="http://www.w3.org/1999/xhtml" lang="en" xml:lang="en">"#
+        );
+        let _ = writeln!(
+            s,
+            r#"<head><meta charset="utf-8"/><meta name="viewport" content="width=device-width, initial-scale=1"/><meta name="generator" content="sluice"/><title>{}</title><style>{STYLE}</style></head>"#,
+            esc(&title)
+        );
+        let _ = writeln!(s, "<body><main>");
+        let _ = writeln!(
+            s,
+            r#"<header class="top"><h1>{}</h1><p class="meta">Window {} to {} · made for {}</p></header>"#,
+            esc(&title),
+            long_date(plan.window.start),
+            long_date(plan.window.end),
+            long_date(plan.today)
+        );
+
+        // Summary.
+        let sv = &plan.solver;
+        let _ = writeln!(
+            s,
+            r#"<section><h2 id="summary">Summary</h2><ul class="summary">"#
+        );
+        let _ = writeln!(
+            s,
+            r#"<li><span class="big">{fit} of {}</span><span class="small">tests fit in the window</span></li>"#,
+            plan.experiments.len()
+        );
+        let _ = writeln!(
+            s,
+            r#"<li class="{}"><span class="big">{not_fit}</span><span class="small">{} not fit (reasons below)</span></li>"#,
+            if not_fit > 0 { "warn" } else { "" },
+            if not_fit == 1 {
+                "test does"
+            } else {
+                "tests do"
+            }
+        );
+        let _ = writeln!(
+            s,
+            r#"<li><span class="big">{:.1} of {:.1}</span><span class="small">plan value against the best possible bound (gap {:.1}%)</span></li>"#,
+            sv.value,
+            sv.bound,
+            sv.gap * 100.0
+        );
+        let _ = writeln!(
+            s,
+            r#"<li><span class="big">{:.1}</span><span class="small">value of the simple priority-order plan, for comparison</span></li>"#,
+            plan.greedy_value
+        );
+        let _ = writeln!(s, "</ul>");
+        let next = plan
+            .experiments
+            .iter()
+            .filter_map(|e| run_of(e).ok().flatten().map(|r| (r.result_date, e)))
+            .filter(|(d, _)| *d >= plan.today)
+            .min_by_key(|(d, _)| *d);
+        if let Some((d, e)) = next {
+            let _ = writeln!(
+                s,
+                r#"<p>Next result due: <strong>{}</strong> on {}.</p>"#,
+                esc(&e.title),
+                long_date(d)
+            );
+        }
+        let _ = writeln!(s, "</section>");
+
+        // Calendar.
+        let _ = writeln!(s, r#"<section><h2 id="calendar">Calendar</h2><figure>"#);
+        calendar_chart(plan, &mut s)?;
+        let _ = writeln!(
+            s,
+            "<figcaption>Each bar is one test's run; its label gives the share of the pool and the day the result is due (the diamond). Shaded: blackouts (dense: nothing runs; light: no new starts). Dashed red line: today. Hover a bar for its numbers.</figcaption></figure></section>"
+        );
+
+        // Pool use.
+        let _ = writeln!(
+            s,
+            r#"<section><h2 id="traffic">Traffic in use per pool</h2>"#
+        );
+        for (i, p) in plan.pools.iter().enumerate() {
+            let _ = writeln!(s, "<figure>");
+            pool_chart(plan, i, p, &mut s);
+            let caption = if is_split(p) {
+                format!(
+                    "{}: each day's bar is the sum of the shares of the tests running; the dashed line is the whole pool (100%).",
+                    p.label
+                )
+            } else {
+                format!(
+                    "{}: each test may see every unit, so each day's bar counts the tests running; the dashed line is the limit of {} at once.",
+                    p.label, p.max_concurrent
+                )
+            };
+            let _ = writeln!(s, "<figcaption>{}</figcaption></figure>", esc(&caption));
+        }
+        let _ = writeln!(s, "</section>");
+
+        // Table.
+        let _ = writeln!(s, r#"<section><h2 id="tests">Tests</h2>"#);
+        table(plan, &mut s)?;
+        let _ = writeln!(s, "</section>");
+
+        // Unscheduled.
+        let _ = writeln!(s, r#"<section><h2 id="not-fit">Tests that do not fit</h2>"#);
+        if not_fit == 0 {
+            let _ = writeln!(s, "<p>Every test fits in the window.</p>");
+        } else {
+            let _ = writeln!(s, r#"<ul class="reasons">"#);
+            for e in &plan.experiments {
+                if e.status != crate::plan::Status::Unscheduled {
+                    continue;
+                }
+                let _ = writeln!(
+                    s,
+                    "<li><strong>{}</strong> (<code>{}</code>, {}): {}</li>",
+                    esc(&e.title),
+                    esc(&e.id),
+                    esc(pool_label(plan, &e.pool)),
+                    esc_with_code(e.reason.as_deref().unwrap_or("no reason given"))
+                );
+            }
+            let _ = writeln!(s, "</ul>");
+        }
+        let _ = writeln!(s, "</section>");
+
+        // Assumptions.
+        let _ = writeln!(
+            s,
+            r#"<section><h2 id="assumptions">Assumptions and cautions</h2><ul>
+<li>The sample sizes assume independent randomisation units: each unit is counted once and does not affect the others.</li>
+<li>Each result is read once, at the planned end (a fixed horizon). Reading results early and stopping on a good day inflates false positives.</li>
+<li>Every date is an estimate from the traffic forecast. Real traffic differs from any forecast; leave a margin and re-plan when it moves.</li>
+<li>Tests that touch pricing, health or vulnerable users go through your organisation's own review, whatever this plan says fits.</li>
+</ul><p>{}</p></section>"#,
+            esc(CAUTION)
+        );
+
+        let _ = writeln!(
+            s,
+            "<footer>Made by sluice from the portfolio <code>{}</code>. {}</footer>",
+            esc(&plan.portfolio),
+            esc_with_code(&solver_sentence(plan))
+        );
+        let _ = writeln!(s, "</main></body></html>");
+        Ok(s.into_bytes())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::fixture;
+
+    #[test]
+    fn escapes_markup_and_quotes() {
+        assert_eq!(
+            esc(r#"a & b <c> "d" 'e'"#),
+            "a &amp; b &lt;c&gt; &quot;d&quot; &#39;e&#39;"
+        );
+        assert_eq!(esc("bell\u{7}"), "bell");
+    }
+
+    #[test]
+    fn user_text_never_appears_unescaped() {
+        let html = String::from_utf8(
+            Html.render(&fixture::plan(), &RenderOptions::default())
+                .unwrap(),
+        )
+        .unwrap();
+        assert!(!html.contains("<label>"));
+        assert!(html.contains("&lt;label&gt;"));
+    }
+
+    #[test]
+    fn backticked_names_become_code() {
+        assert_eq!(
+            esc_with_code("pool `a<b>` is full"),
+            "pool <code>a&lt;b&gt;</code> is full"
+        );
+        assert_eq!(esc_with_code("one ` only"), "one ` only");
+    }
+
+    #[test]
+    fn self_contained() {
+        let html = String::from_utf8(
+            Html.render(&fixture::plan(), &RenderOptions::default())
+                .unwrap(),
+        )
+        .unwrap();
+        for needle in [
+            "<script",
+            "<link",
+            "src=",
+            "@import",
+            "url(http",
+            "href=\"http",
+        ] {
+            assert!(!html.contains(needle), "found {needle}");
+        }
+    }
+
+    #[test]
+    fn scale_maps_window_ends_to_plot_edges() {
+        let plan = fixture::plan();
+        let scale = Scale::new(&plan);
+        assert!((scale.x(plan.window.start) - PLOT_X0).abs() < 1e-9);
+        let (_, end) = scale.span(plan.window.end, plan.window.end);
+        assert!((end - PLOT_X1).abs() < 1e-9);
+    }
+}

@@ -1,0 +1,160 @@
+//! iCalendar (RFC 5545): for each scheduled experiment, an all-day event
+//! spanning its run and an all-day "result due" event on its result date.
+//!
+//! Writing, line folding and text escaping are left to the `icalendar`
+//! crate. Everything that calendar clients use to match events is derived
+//! from the plan alone, so the same plan always gives the same bytes and a
+//! re-imported calendar updates its events rather than duplicating them:
+//! UIDs come from the portfolio name, the experiment id and the event kind,
+//! and DTSTAMP is the plan's `today` at midnight UTC (not the clock).
+//! All-day events end on the day after their last day, as RFC 5545 §3.6.1
+//! defines DTEND for DATE values (exclusive).
+
+use super::common::{percent, pool_label, run_of, thousands, units, Run};
+use super::{RenderError, RenderOptions, Renderer};
+use crate::plan::{Plan, PlannedExperiment};
+use chrono::{Duration, NaiveTime};
+use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
+
+/// The iCalendar renderer.
+pub struct Ics;
+
+/// PRODID of every calendar sluice writes (RFC 5545 §3.7.3).
+pub const PRODID: &str = "-//sluice//experiment plan//EN";
+
+/// The two kinds of event per scheduled experiment.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EventKind {
+    /// The span the test runs, first to last day.
+    Run,
+    /// The day its result is due.
+    Result,
+}
+
+impl EventKind {
+    fn tag(self) -> &'static str {
+        match self {
+            EventKind::Run => "run",
+            EventKind::Result => "result",
+        }
+    }
+}
+
+/// The stable UID of one event: `<kind>.<experiment>.<portfolio>@sluice`.
+/// Characters other than ASCII letters, digits and `-` are written as `_`
+/// followed by their UTF-8 bytes in hex, so distinct ids never collide.
+pub fn uid(portfolio: &str, experiment: &str, kind: EventKind) -> String {
+    format!(
+        "{}.{}.{}@sluice",
+        kind.tag(),
+        uid_part(experiment),
+        uid_part(portfolio)
+    )
+}
+
+fn uid_part(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        if c.is_ascii_alphanumeric() || c == '-' {
+            out.push(c);
+        } else {
+            let mut buf = [0u8; 4];
+            for b in c.encode_utf8(&mut buf).bytes() {
+                out.push_str(&format!("_{b:02X}"));
+            }
+        }
+    }
+    out
+}
+
+fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
+    format!(
+        "Experiment: {} ({})\n\
+         Owner: {}\n\
+         Pool: {} ({})\n\
+         Share of the pool: {}\n\
+         Runs: {} to {} ({} days)\n\
+         Result due: {}\n\
+         Units needed: {}\n\
+         Units expected: {}\n\
+         Portfolio: {}\n\
+         Planned by sluice; dates are estimates from a traffic forecast.",
+        e.title,
+        e.id,
+        e.owner,
+        pool_label(plan, &e.pool),
+        e.pool,
+        percent(run.share),
+        run.start,
+        run.end,
+        run.days,
+        run.result_date,
+        thousands(e.units_needed),
+        units(run.units_expected),
+        plan.portfolio,
+    )
+}
+
+impl Renderer for Ics {
+    fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+        let stamp = plan.today.and_time(NaiveTime::MIN).and_utc();
+        let mut cal = Calendar::empty();
+        cal.append_property(Property::new("VERSION", "2.0"));
+        cal.append_property(Property::new("PRODID", PRODID));
+        cal.append_property(Property::new("CALSCALE", "GREGORIAN"));
+        cal.append_property(Property::new("METHOD", "PUBLISH"));
+        cal.name(&format!("Experiment plan: {}", plan.portfolio));
+        for e in &plan.experiments {
+            let Some(run) = run_of(e)? else { continue };
+            let desc = description(plan, e, &run);
+            let mut running = Event::new();
+            running
+                .uid(&uid(&plan.portfolio, &e.id, EventKind::Run))
+                .timestamp(stamp)
+                .summary(&format!("Test running: {} [{}]", e.title, e.id))
+                .description(&desc)
+                .starts(run.start)
+                .ends(run.end + Duration::days(1))
+                .status(EventStatus::Tentative)
+                .add_property("TRANSP", "TRANSPARENT");
+            cal.push(running.done());
+            let mut result = Event::new();
+            result
+                .uid(&uid(&plan.portfolio, &e.id, EventKind::Result))
+                .timestamp(stamp)
+                .summary(&format!("Result due: {} [{}]", e.title, e.id))
+                .description(&desc)
+                .starts(run.result_date)
+                .ends(run.result_date + Duration::days(1))
+                .status(EventStatus::Tentative)
+                .add_property("TRANSP", "TRANSPARENT");
+            cal.push(result.done());
+        }
+        Ok(cal.to_string().into_bytes())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn uids_are_stable_and_distinct() {
+        assert_eq!(
+            uid("fernbrook-tea-q1", "hero-copy", EventKind::Run),
+            "run.hero-copy.fernbrook-tea-q1@sluice"
+        );
+        assert_ne!(
+            uid("p", "a_b", EventKind::Run),
+            uid("p", "a-b", EventKind::Run)
+        );
+        assert_ne!(
+            uid("p", "a", EventKind::Run),
+            uid("p", "a", EventKind::Result)
+        );
+        assert_eq!(
+            uid("q 1", "é", EventKind::Result),
+            "result._C3_A9.q_201@sluice"
+        );
+    }
+}

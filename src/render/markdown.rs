@@ -1,0 +1,148 @@
+//! Markdown: a short summary to paste into a document or a ticket: the
+//! result dates in a table, the tests that do not fit with their reasons,
+//! and one paragraph of assumptions. User text is escaped so that it cannot
+//! break the table or start markup of its own.
+
+use super::common::{counts, long_date, percent, pool_label, run_of, CAUTION};
+use super::{RenderError, RenderOptions, Renderer};
+use crate::plan::Plan;
+use std::fmt::Write;
+
+/// The Markdown renderer.
+pub struct Markdown;
+
+/// Escapes text for Markdown (CommonMark backslash escapes for ASCII
+/// punctuation that can start markup; line breaks become spaces).
+pub fn escape(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '\\' | '`' | '*' | '_' | '[' | ']' | '<' | '>' | '|' | '#' | '~' | '!' | '&' => {
+                out.push('\\');
+                out.push(c);
+            }
+            c if c.is_control() => out.push(' '),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+/// Escapes text like [`escape`], but keeps `backticked` names (as the
+/// scheduler writes them in reasons) as code spans.
+pub fn escape_keeping_code(s: &str) -> String {
+    let parts: Vec<&str> = s.split('`').collect();
+    if parts.len().is_multiple_of(2) {
+        return escape(s);
+    }
+    let mut out = String::with_capacity(s.len() + 8);
+    for (i, part) in parts.iter().enumerate() {
+        if i % 2 == 1 && !part.is_empty() {
+            out.push('`');
+            out.extend(part.chars().map(|c| if c.is_control() { ' ' } else { c }));
+            out.push('`');
+        } else {
+            out.push_str(&escape(part));
+        }
+    }
+    out
+}
+
+impl Renderer for Markdown {
+    fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+        let mut md = String::new();
+        let (fit, not_fit) = counts(plan);
+        let w = &mut md;
+        // Writing to a String cannot fail.
+        let _ = writeln!(w, "## Experiment plan: {}\n", escape(&plan.portfolio));
+        let _ = writeln!(
+            w,
+            "Window {} to {}. {fit} of {} tests fit; {not_fit} do not.\n",
+            long_date(plan.window.start),
+            long_date(plan.window.end),
+            plan.experiments.len()
+        );
+        if fit > 0 {
+            let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
+            let _ = writeln!(w, "|---|---|---|---|--:|---|");
+            let mut rows = Vec::new();
+            for e in &plan.experiments {
+                if let Some(run) = run_of(e)? {
+                    rows.push((run, e));
+                }
+            }
+            // Stakeholders read this table by date; ties keep plan order.
+            rows.sort_by_key(|(run, _)| run.result_date);
+            for (run, e) in rows {
+                let _ = writeln!(
+                    w,
+                    "| {} | {} (`{}`) | {} | {} to {} | {} | {} |",
+                    long_date(run.result_date),
+                    escape(&e.title),
+                    e.id.replace('`', "'"),
+                    escape(pool_label(plan, &e.pool)),
+                    run.start,
+                    run.end,
+                    percent(run.share),
+                    escape(&e.owner)
+                );
+            }
+            let _ = writeln!(w);
+        }
+        if not_fit > 0 {
+            let _ = writeln!(w, "### Tests that do not fit\n");
+            for e in plan
+                .experiments
+                .iter()
+                .filter(|e| e.status == crate::plan::Status::Unscheduled)
+            {
+                let _ = writeln!(
+                    w,
+                    "- **{}** (`{}`, {}): {}",
+                    escape(&e.title),
+                    e.id.replace('`', "'"),
+                    escape(pool_label(plan, &e.pool)),
+                    escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
+                );
+            }
+            let _ = writeln!(w);
+        }
+        let _ = writeln!(w, "### Assumptions\n\n{CAUTION}");
+        Ok(md.into_bytes())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::fixture;
+
+    #[test]
+    fn escapes_markup_and_table_breakers() {
+        assert_eq!(escape("a|b <c> *d*"), r"a\|b \<c\> \*d\*");
+        assert_eq!(escape("two\nlines"), "two lines");
+    }
+
+    #[test]
+    fn keeps_backticked_names_as_code() {
+        assert_eq!(
+            escape_keeping_code("pool `a_b` is *full*"),
+            r"pool `a_b` is \*full\*"
+        );
+        assert_eq!(escape_keeping_code("odd ` tick"), r"odd \` tick");
+    }
+
+    #[test]
+    fn lists_results_by_date_and_every_test_that_does_not_fit() {
+        let plan = fixture::plan();
+        let md =
+            String::from_utf8(Markdown.render(&plan, &RenderOptions::default()).unwrap()).unwrap();
+        let hero = md.find("Shorter hero headline").unwrap();
+        let shipping = md.find("Free-shipping progress bar").unwrap();
+        assert!(hero < shipping, "results sorted by date");
+        for e in plan.experiments.iter().filter(|e| e.reason.is_some()) {
+            assert!(md.contains(&format!("`{}`", e.id)), "{} missing", e.id);
+        }
+        assert!(md.contains("\\<label\\>"), "title escaped");
+    }
+}

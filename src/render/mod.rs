@@ -1,0 +1,286 @@
+//! Renderers: turn one [`Plan`] into the bytes of one output format.
+//!
+//! Every format (terminal text, JSON, CSV, iCalendar, HTML report, Markdown)
+//! lives in its own module behind the [`Renderer`] trait and reads nothing
+//! but the plan and the [`RenderOptions`]. Renderers only lay out facts the
+//! scheduler already put in the plan: they never recompute starts, ends,
+//! shares or result dates. Grouping days into weeks for display is the only
+//! arithmetic they do. Output is deterministic: the same plan and options
+//! give the same bytes. Writing the bytes to a file is `crate::output`'s job.
+
+pub mod changes;
+mod common;
+pub mod csv;
+pub mod html;
+pub mod ics;
+pub mod json;
+pub mod markdown;
+pub mod text;
+
+use crate::plan::Plan;
+use std::fmt;
+use std::io::IsTerminal;
+
+/// Columns used for the terminal text when the width is not known
+/// (output is not a terminal, or the terminal does not say).
+pub const FALLBACK_WIDTH: u16 = 100;
+
+/// Narrowest width the text renderer lays out for; anything smaller is
+/// treated as this.
+pub const MIN_WIDTH: u16 = 40;
+
+/// The output formats of `sluice plan`.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, Hash, clap::ValueEnum)]
+pub enum Format {
+    /// Terminal table, timeline and weekly pool share.
+    Text,
+    /// The whole plan as JSON (documented in docs/plan-json.md).
+    Json,
+    /// One row per experiment.
+    Csv,
+    /// An iCalendar file: run spans and result-due days.
+    Ics,
+    /// A self-contained HTML report with SVG charts.
+    Html,
+    /// A short Markdown summary.
+    Md,
+}
+
+impl Format {
+    /// Every format, in the order the help text lists them.
+    pub const ALL: [Format; 6] = [
+        Format::Text,
+        Format::Json,
+        Format::Csv,
+        Format::Ics,
+        Format::Html,
+        Format::Md,
+    ];
+
+    /// The name used on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Text => "text",
+            Format::Json => "json",
+            Format::Csv => "csv",
+            Format::Ics => "ics",
+            Format::Html => "html",
+            Format::Md => "md",
+        }
+    }
+
+    /// The usual file extension, without the dot.
+    pub fn extension(self) -> &'static str {
+        match self {
+            Format::Text => "txt",
+            other => other.name(),
+        }
+    }
+
+    /// The renderer for this format.
+    pub fn renderer(self) -> &'static dyn Renderer {
+        match self {
+            Format::Text => &text::Text,
+            Format::Json => &json::Json,
+            Format::Csv => &csv::Csv,
+            Format::Ics => &ics::Ics,
+            Format::Html => &html::Html,
+            Format::Md => &markdown::Markdown,
+        }
+    }
+}
+
+impl fmt::Display for Format {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl std::str::FromStr for Format {
+    type Err = RenderError;
+
+    fn from_str(s: &str) -> Result<Format, RenderError> {
+        Format::ALL
+            .into_iter()
+            .find(|f| f.name() == s)
+            .ok_or_else(|| RenderError::UnknownFormat(s.to_string()))
+    }
+}
+
+/// How to lay out output that depends on where it goes. Only the text
+/// format reads these; the file formats ignore them.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct RenderOptions {
+    /// Terminal width in columns; `None` uses [`FALLBACK_WIDTH`].
+    pub width: Option<u16>,
+    /// Whether to use ANSI colour in the text format.
+    pub colour: bool,
+}
+
+impl Default for RenderOptions {
+    /// No colour, fallback width: what a file or a pipe gets.
+    fn default() -> Self {
+        RenderOptions {
+            width: None,
+            colour: false,
+        }
+    }
+}
+
+impl RenderOptions {
+    /// The options for writing to this process's standard output: colour
+    /// only on a terminal and never when `NO_COLOR` is set; the terminal's
+    /// width, or [`FALLBACK_WIDTH`] when it is not a terminal.
+    pub fn for_stdout() -> RenderOptions {
+        let stdout = std::io::stdout();
+        let is_tty = stdout.is_terminal();
+        let width = terminal_size::terminal_size_of(&stdout).map(|(w, _)| w.0);
+        let no_color = std::env::var_os("NO_COLOR");
+        RenderOptions::decide(is_tty, no_color.as_deref(), width)
+    }
+
+    /// The options for writing to a file (`--out`): no colour, fallback width.
+    pub fn for_file() -> RenderOptions {
+        RenderOptions::default()
+    }
+
+    /// The decision behind [`RenderOptions::for_stdout`], kept pure for tests.
+    ///
+    /// `NO_COLOR` follows its convention (no-color.org): colour is off when
+    /// the variable is present and not empty, whatever its value.
+    pub fn decide(
+        is_tty: bool,
+        no_color: Option<&std::ffi::OsStr>,
+        terminal_width: Option<u16>,
+    ) -> RenderOptions {
+        let no_color = no_color.is_some_and(|v| !v.is_empty());
+        RenderOptions {
+            width: if is_tty { terminal_width } else { None },
+            colour: is_tty && !no_color,
+        }
+    }
+
+    /// The width to lay out for: the given width (at least [`MIN_WIDTH`]),
+    /// or [`FALLBACK_WIDTH`].
+    pub fn effective_width(&self) -> usize {
+        usize::from(self.width.unwrap_or(FALLBACK_WIDTH).max(MIN_WIDTH))
+    }
+}
+
+/// A failure to render a plan.
+#[derive(Debug)]
+pub enum RenderError {
+    /// A format name that is not one of [`Format::ALL`].
+    UnknownFormat(String),
+    /// JSON serialisation failed.
+    Json(serde_json::Error),
+    /// CSV writing failed.
+    Csv(::csv::Error),
+    /// The plan breaks a promise the renderers rely on (for example a
+    /// scheduled experiment without a start); names the experiment.
+    Inconsistent(String),
+}
+
+impl fmt::Display for RenderError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            RenderError::UnknownFormat(name) => {
+                let names: Vec<String> = Format::ALL
+                    .iter()
+                    .map(|f| format!("`{}`", f.name()))
+                    .collect();
+                write!(
+                    f,
+                    "unknown output format `{name}`; known formats: {}",
+                    names.join(", ")
+                )
+            }
+            RenderError::Json(e) => write!(f, "cannot write the plan as json: {e}"),
+            RenderError::Csv(e) => write!(f, "cannot write the plan as csv: {e}"),
+            RenderError::Inconsistent(what) => write!(
+                f,
+                "the plan is inconsistent: {what} (this is a bug in sluice; please report it)"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for RenderError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            RenderError::Json(e) => Some(e),
+            RenderError::Csv(e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
+/// One output format.
+pub trait Renderer {
+    /// The bytes of `plan` in this format.
+    fn render(&self, plan: &Plan, opts: &RenderOptions) -> Result<Vec<u8>, RenderError>;
+}
+
+/// Renders `plan` in `format`.
+pub fn render(plan: &Plan, format: Format, opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
+    format.renderer().render(plan, opts)
+}
+
+#[cfg(test)]
+pub(crate) mod fixture {
+    //! The small fixture plan shared by the renderer unit tests.
+    use crate::plan::Plan;
+
+    /// The invented plan in tests/fixtures/plan-small.json.
+    pub fn plan() -> Plan {
+        serde_json::from_str(include_str!("../../tests/fixtures/plan-small.json"))
+            .expect("tests/fixtures/plan-small.json is a valid plan")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::ffi::OsStr;
+
+    #[test]
+    fn colour_only_on_a_terminal_without_no_color() {
+        assert!(RenderOptions::decide(true, None, Some(120)).colour);
+        assert!(!RenderOptions::decide(false, None, Some(120)).colour);
+        assert!(!RenderOptions::decide(true, Some(OsStr::new("1")), None).colour);
+        // no-color.org: an empty NO_COLOR does not switch colour off.
+        assert!(RenderOptions::decide(true, Some(OsStr::new("")), None).colour);
+    }
+
+    #[test]
+    fn width_follows_the_terminal_and_falls_back_otherwise() {
+        let tty = RenderOptions::decide(true, None, Some(132));
+        assert_eq!(tty.effective_width(), 132);
+        let pipe = RenderOptions::decide(false, None, Some(132));
+        assert_eq!(pipe.width, None);
+        assert_eq!(pipe.effective_width(), usize::from(FALLBACK_WIDTH));
+        let tiny = RenderOptions::decide(true, None, Some(10));
+        assert_eq!(tiny.effective_width(), usize::from(MIN_WIDTH));
+    }
+
+    #[test]
+    fn format_names_round_trip_and_unknown_names_are_listed() {
+        for f in Format::ALL {
+            assert_eq!(f.name().parse::<Format>().unwrap(), f);
+        }
+        let err = "pdf".parse::<Format>().unwrap_err().to_string();
+        assert!(err.contains("`pdf`") && err.contains("`html`"), "{err}");
+    }
+
+    #[test]
+    fn every_format_renders_the_same_bytes_twice() {
+        let plan = fixture::plan();
+        for f in Format::ALL {
+            let opts = RenderOptions::default();
+            let a = render(&plan, f, &opts).unwrap();
+            let b = render(&plan, f, &opts).unwrap();
+            assert!(!a.is_empty(), "{f} is empty");
+            assert_eq!(a, b, "{f} differs between two renders");
+        }
+    }
+}
