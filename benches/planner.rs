@@ -56,6 +56,22 @@ fn peak_mb() -> f64 {
         .map_or(f64::NAN, |kb| kb / 1024.0)
 }
 
+/// The optimum of the exact 0-1 model, proved by HiGHS.
+#[cfg(feature = "highs")]
+fn proven_optimum(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
+    let exact = PlanRequest {
+        backend: Backend::Highs,
+        ..PlanRequest::default()
+    };
+    schedule::exact_value(portfolio, &exact, 300.0)
+}
+
+/// Without HiGHS nothing proves an optimum here.
+#[cfg(not(feature = "highs"))]
+fn proven_optimum(_: &sluice::portfolio::Portfolio) -> Option<f64> {
+    None
+}
+
 fn run_row(size: &str, backend: &str) -> Row {
     let portfolio = synthetic::portfolio(&spec(size));
     let backend = Backend::from_name(backend).expect("a backend of this build");
@@ -70,21 +86,10 @@ fn run_row(size: &str, backend: &str) -> Row {
     let verified = schedule::verify(&portfolio, &request, &plan).is_ok();
     let peak = peak_mb();
     // The proven optimum, from the exact model, where HiGHS is built.
-    let optimum = if cfg!(feature = "highs") && size != "large" {
-        #[cfg(feature = "highs")]
-        {
-            let exact = PlanRequest {
-                backend: Backend::Highs,
-                ..PlanRequest::default()
-            };
-            schedule::exact_value(&portfolio, &exact, 300.0)
-        }
-        #[cfg(not(feature = "highs"))]
-        {
-            None
-        }
-    } else {
+    let optimum = if size == "large" {
         None
+    } else {
+        proven_optimum(&portfolio)
     };
     let s = &plan.solver;
     Row {
