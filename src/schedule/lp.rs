@@ -194,6 +194,21 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
                 le.push((c.iter().map(|&(i, j, _)| (i, j, 1.0)).collect(), count_left));
             }
             if split && max_share_sum > share_left + 1e-9 {
+                // Valid cuts the share row alone misses: at most k runs
+                // with shares above share_left / (k + 1) fit together.
+                for k in 1..=2usize {
+                    let above = share_left / (k + 1) as f64 + 1e-9;
+                    let big: Terms = c
+                        .iter()
+                        .filter(|&&(_, _, sh)| sh > above)
+                        .map(|&(i, j, _)| (i, j, 1.0))
+                        .collect();
+                    let mut tests: Vec<usize> = big.iter().map(|&(i, _, _)| i).collect();
+                    tests.dedup();
+                    if tests.len() > k && (k as f64) < count_left {
+                        le.push((big, k as f64));
+                    }
+                }
                 le.push((c, share_left));
             }
         }
