@@ -289,9 +289,6 @@ pub(crate) enum Failed {
 }
 
 fn failed(e: good_lp::ResolutionError) -> Failed {
-    if std::env::var("SLUICE_DEBUG").is_ok() {
-        eprintln!("  lp failed: {e:?}");
-    }
     match e {
         good_lp::ResolutionError::Infeasible => Failed::Infeasible,
         _ => Failed::Other,

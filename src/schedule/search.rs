@@ -115,9 +115,7 @@ pub(crate) fn solve_component(
         .iter()
         .map(|&e| (0..inst.options[e].len()).collect())
         .collect();
-    let t0 = Instant::now();
     let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
-    let t_lp = 0.0;
     let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
     let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
     let iters = (effort as usize) * (1000 * exps.len()).min(LNS_MAX_ITERS);
@@ -147,19 +145,6 @@ pub(crate) fn solve_component(
         }
     }
     let value = comp_value(inst, exps, &best);
-    if std::env::var("SLUICE_DEBUG").is_ok() {
-        let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
-        eprintln!(
-            "comp n={} opts={} lp={:.3}s total={:.3}s greedy={:.2} value={:.2} bound={:.2}",
-            exps.len(),
-            nopt,
-            t_lp,
-            t0.elapsed().as_secs_f64(),
-            greedy_value,
-            value,
-            bound
-        );
-    }
     copy_choices(inst, exps, state, &best);
     Outcome {
         bound: bound.max(value),
@@ -468,12 +453,6 @@ fn branch_and_bound(
         .iter()
         .map(|n| n.parent)
         .fold(f64::NEG_INFINITY, f64::max);
-    if std::env::var("SLUICE_DEBUG").is_ok() {
-        eprintln!(
-            "  bnb nodes={nodes} open={} incumbent={incumbent:.3} open_bound={open:.3}",
-            stack.len()
-        );
-    }
     Some(incumbent.max(open))
 }
 
