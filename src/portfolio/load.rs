@@ -14,7 +14,7 @@
 //! module and its siblings are the only code that touches the YAML crates.
 
 use super::model::Portfolio;
-use super::position::{self, PositionIndex};
+use super::position::{self, PositionIndex, Scan, MAX_DEPTH};
 use super::raw::{self, RawPortfolio};
 use crate::diagnostic::{self, Diagnostic};
 use std::fmt;
@@ -72,7 +72,19 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
                 "start from `portfolios/quickstart.yaml`; docs/portfolio.md lists every key",
             )]);
     }
-    let index = PositionIndex::build(body);
+    let index = match PositionIndex::scan(body) {
+        Scan::Indexed(ix) => Some(ix),
+        Scan::Unparsable => None,
+        Scan::TooDeep(at) => {
+            return fail(vec![Diagnostic::new(
+                file_name,
+                "",
+                format!("the file nests lists and mappings more than {MAX_DEPTH} levels deep"),
+            )
+            .with_hint("a portfolio needs five levels at most; check for runaway brackets")
+            .at(body, at.line, at.column, 1)]);
+        }
+    };
     if let Some(ix) = &index {
         let unknown = unknown_keys(ix, body, file_name);
         if !unknown.is_empty() {
@@ -561,6 +573,10 @@ blackouts:
                 "three years",
             ),
             ("window: 12", "expected a mapping"),
+            (
+                &format!("name: {}{}", "[".repeat(100_000), "]".repeat(100_000)),
+                "more than 64 levels deep",
+            ),
             ("pools: {id: x}", "expected a sequence"),
             (
                 "window: {start: 2027-01-04, end: 2027-04-04}\nexperiments: [{id: 名前, pool: 池}]",
