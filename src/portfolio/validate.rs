@@ -229,12 +229,7 @@ fn text_or(v: &Option<Text>, default: &str) -> String {
         .unwrap_or_else(|| default.to_string())
 }
 
-const SIDES: [(&str, Sides); 4] = [
-    ("two", Sides::Two),
-    ("one", Sides::One),
-    ("2", Sides::Two),
-    ("1", Sides::One),
-];
+const SIDES: [(&str, Sides); 2] = [("two", Sides::Two), ("one", Sides::One)];
 const RATE_METHODS: [(&str, Method); 4] = [
     ("pooled", Method::Pooled),
     ("unpooled", Method::Unpooled),
@@ -367,7 +362,7 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "in (alpha, 1)",
         "the usual power is 0.8",
     );
-    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES[..2], Sides::Two);
+    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES, Sides::Two);
     let rate_method = cx.choice(
         "defaults.rate_method",
         "",
@@ -995,13 +990,21 @@ fn design(
                 "give the control's conversion rate, e.g. `baseline: 0.04` for 4%",
             ),
             Some(b) => {
+                let hint = if b > 1.0 && b < 100.0 {
+                    format!(
+                        "{b} looks like a percentage: {b}% is `{}`; for a mean metric set `metric: mean` and give `sd`",
+                        b / 100.0
+                    )
+                } else {
+                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`".to_string()
+                };
                 cx.number(
                     &at("baseline"),
                     who,
                     b,
                     b > 0.0 && b < 1.0,
                     "a rate strictly inside (0, 1)",
-                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`",
+                    &hint,
                 );
             }
         }
@@ -1119,7 +1122,7 @@ fn design(
         "in [0, 1)",
         "the correlation of the metric with its pre-period value; 0 for none",
     );
-    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES[..2], d.sides);
+    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES, d.sides);
     let default_method = if matches!(metric, Metric::Rate { .. }) {
         d.rate_method
     } else {
@@ -1205,7 +1208,17 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
         SizingError::MethodMismatch { .. } => "method",
         _ => effect_key,
     };
+    let percent_hint;
     let hint = match err {
+        SizingError::TreatmentRateOutside { .. } if e.mde.is_some_and(|m| m >= 1.0) => {
+            let m = e.mde.unwrap_or(1.0);
+            percent_hint = format!(
+                "`mde` {m} is a lift of {}%; write a {m}% lift as `{}`",
+                m * 100.0,
+                m / 100.0
+            );
+            percent_hint.as_str()
+        }
         SizingError::TreatmentRateOutside { .. } => {
             "the treatment rate must stay strictly between 0 and 1; use a smaller MDE"
         }
