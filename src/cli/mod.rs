@@ -77,8 +77,8 @@ pub fn main() -> ExitCode {
     match run(cli) {
         Ok(bytes) => write_stdout(&bytes),
         // Messages that are already rendered diagnostics (one or more
-        // `error: ...` blocks) print as they are.
-        // A closed stderr is ignored rather than a panic.
+        // `error: ...` blocks, as from a portfolio that fails to load)
+        // print as they are. A closed stderr is not worth a panic.
         Err(f) if f.message.starts_with("error: ") => {
             let _ = write!(std::io::stderr(), "{}", f.message);
             ExitCode::from(f.code)

@@ -708,6 +708,23 @@ blackouts:
         }
 
         #[test]
+        fn comments_and_blank_lines_change_nothing(
+            at in prop::collection::vec((0usize..60, prop::sample::select(vec![
+                "", "# a note", "    # indented note", "#",
+            ])), 1..8)
+        ) {
+            let mut lines: Vec<&str> = SMALL.lines().collect();
+            for (i, line) in at {
+                let i = i % (lines.len() + 1);
+                lines.insert(i, line);
+            }
+            match load_str(&lines.join("\n"), "small.yaml") {
+                Ok(p) => prop_assert_eq!(p, small()),
+                Err(e) => prop_assert!(false, "{}", e),
+            }
+        }
+
+        #[test]
         fn mutated_portfolios_never_panic(
             edits in prop::collection::vec((0usize..60, prop::sample::select(vec![
                 "", "  - id: a", "    after: [b]", "    pool: x", "  baseline: 2", "- ",
