@@ -74,7 +74,7 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
     }
     let index = match index_of(body, file_name) {
         Ok(index) => index,
-        Err(d) => return fail(vec![d]),
+        Err(d) => return fail(d),
     };
     if let Some(ix) = &index {
         let unknown = unknown_keys(ix, body, file_name, raw::allowed_keys);
@@ -92,17 +92,20 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
 
 /// The position index of `body`: `None` when the YAML parser rejects it
 /// (serde then reports the syntax error), an error when it nests too deep.
-pub(super) fn index_of(body: &str, file_name: &str) -> Result<Option<PositionIndex>, Diagnostic> {
+pub(super) fn index_of(
+    body: &str,
+    file_name: &str,
+) -> Result<Option<PositionIndex>, Vec<Diagnostic>> {
     match PositionIndex::scan(body) {
         Scan::Indexed(ix) => Ok(Some(ix)),
         Scan::Unparsable => Ok(None),
-        Scan::TooDeep(at) => Err(Diagnostic::new(
+        Scan::TooDeep(at) => Err(vec![Diagnostic::new(
             file_name,
             "",
             format!("the file nests lists and mappings more than {MAX_DEPTH} levels deep"),
         )
         .with_hint("a portfolio needs five levels at most; check for runaway brackets")
-        .at(body, at.line, at.column, 1)),
+        .at(body, at.line, at.column, 1)]),
     }
 }
 

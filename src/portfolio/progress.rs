@@ -130,7 +130,7 @@ pub fn load_progress_str(
     }
     let index = match index_of(body, file_name) {
         Ok(index) => index,
-        Err(d) => return fail(vec![d]),
+        Err(d) => return fail(d),
     };
     if let Some(ix) = &index {
         let unknown = unknown_keys(ix, body, file_name, allowed_keys);
