@@ -32,10 +32,10 @@ fn slip(days: Option<i64>) -> String {
     }
 }
 
-fn movement(e: &ExperimentDiff) -> &'static str {
-    match e.movement {
+fn movement(e: &ExperimentDiff) -> String {
+    let word = match e.movement {
         Movement::Unchanged if e.new_status.is_some_and(closed) => {
-            status_word(e.new_status.unwrap())
+            status_word(e.new_status.unwrap_or(Status::Finished))
         }
         Movement::Unchanged => "unchanged",
         Movement::Later => "later",
@@ -50,6 +50,12 @@ fn movement(e: &ExperimentDiff) -> &'static str {
         },
         Movement::Added => "new in the portfolio",
         Movement::Dropped => "gone from the portfolio",
+    };
+    // A running test cannot be moved, only re-read: say which rows those are.
+    if e.new_status == Some(Status::Running) {
+        format!("{word}, running")
+    } else {
+        word.to_string()
     }
 }
 
@@ -134,11 +140,24 @@ fn headline(d: &PlanDiff) -> String {
     if !d.share_changed.is_empty() {
         parts.push(format!("{} with a new share", d.share_changed.len()));
     }
-    let closed = count(Movement::Closed);
-    let tail = if closed > 0 {
-        format!("; {closed} finished or cancelled since")
-    } else {
+    let since = |status: Status| {
+        d.experiments
+            .iter()
+            .filter(|e| e.movement == Movement::Closed && e.new_status == Some(status))
+            .count()
+    };
+    let closed: Vec<String> = [
+        (since(Status::Finished), "finished"),
+        (since(Status::Cancelled), "cancelled"),
+    ]
+    .iter()
+    .filter(|(n, _)| *n > 0)
+    .map(|(n, word)| format!("{n} {word}"))
+    .collect();
+    let tail = if closed.is_empty() {
         String::new()
+    } else {
+        format!("; {} since", closed.join(" and "))
     };
     if parts.is_empty() {
         format!("Nothing in the calendar moved{tail}.")
@@ -208,7 +227,7 @@ fn cells(e: &ExperimentDiff) -> [String; 8] {
         slip(e.slip_days),
         share(e.old_share),
         share(e.new_share),
-        movement(e).to_string(),
+        movement(e),
     ]
 }
 
@@ -372,5 +391,128 @@ pub fn into_html_report(plan: &Plan, report: &str) -> String {
             format!("{}\n{}{}", &report[..at], extra, &report[at..])
         }
         _ => report.to_string(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::render::fixture;
+    use chrono::Duration;
+
+    /// The fixture plan re-made: `hero-copy` finished, `trust-badges` a
+    /// week later, `search-synonyms` running at a new share, `recipe-cards`
+    /// in, `search-freshness` out, and the storefront's forecast 30% down.
+    fn replanned() -> Plan {
+        let old = fixture::plan();
+        let mut new = old.clone();
+        for e in &mut new.experiments {
+            match e.id.as_str() {
+                "hero-copy" => {
+                    e.status = Status::Finished;
+                    (e.start, e.end, e.result_date, e.share) = (None, None, None, None);
+                }
+                "trust-badges" => {
+                    e.result_date = e.result_date.map(|d| d + Duration::days(7));
+                }
+                "search-synonyms" => {
+                    e.status = Status::Running;
+                    e.share = Some(0.5);
+                }
+                "recipe-cards" => {
+                    e.status = Status::Scheduled;
+                    e.result_date = old.experiments[3].result_date;
+                    e.share = Some(0.2);
+                }
+                "search-freshness" => {
+                    e.status = Status::Unscheduled;
+                    (e.start, e.end, e.result_date, e.share) = (None, None, None, None);
+                }
+                _ => {}
+            }
+        }
+        for day in &mut new.pools[0].days {
+            day.forecast *= 0.7;
+        }
+        new.changes = Some(crate::diff::diff(&old, &new));
+        new
+    }
+
+    fn row_of(text: &str, id: &str) -> usize {
+        text.lines()
+            .position(|l| l.trim_start().starts_with(id) || l.starts_with(&format!("| `{id}`")))
+            .unwrap_or_else(|| panic!("no row for {id}:\n{text}"))
+    }
+
+    #[test]
+    fn what_moved_comes_first_with_a_one_line_summary() {
+        let plan = replanned();
+        let text = text(&plan);
+        assert!(text.contains(
+            "\n1 result later (by up to 7 days), 1 no longer fit, 1 now fit, 1 with a new share; 1 finished since.\n"
+        ), "{text}");
+        let order = [
+            "search-freshness",
+            "trust-badges",
+            "search-synonyms",
+            "recipe-cards",
+            "free-shipping-bar",
+            "gift-wrap-upsell",
+            "hero-copy",
+        ];
+        for pair in order.windows(2) {
+            assert!(
+                row_of(&text, pair[0]) < row_of(&text, pair[1]),
+                "{pair:?}\n{text}"
+            );
+        }
+        assert!(text.contains("new share, running"), "{text}");
+        assert!(text.contains("no longer fits"), "{text}");
+        let md = markdown(&plan);
+        for pair in order.windows(2) {
+            assert!(
+                row_of(&md, pair[0]) < row_of(&md, pair[1]),
+                "{pair:?}\n{md}"
+            );
+        }
+    }
+
+    #[test]
+    fn pool_totals_group_digits_and_give_the_forecast_change() {
+        let plan = replanned();
+        let d = plan.changes.as_ref().unwrap();
+        let before = d.pools[0].before.forecast_units;
+        let line = pool_line(&d.pools[0]);
+        assert!(line.starts_with("pool storefront: in the calendar 3 -> 2 (1 finished or cancelled since), out 1 -> 1, "), "{line}");
+        assert!(
+            line.contains(&format!(
+                "forecast {} -> {} units over the window (-30%)",
+                units(before),
+                units(before * 0.7)
+            )),
+            "{line}"
+        );
+        assert!(
+            before >= 1000.0,
+            "the fixture has enough traffic to group digits"
+        );
+        assert!(line.contains(','), "{line}");
+        // An unchanged forecast is given once.
+        let search = pool_line(&d.pools[1]);
+        assert!(search.ends_with(" units over the window"), "{search}");
+    }
+
+    #[test]
+    fn the_html_report_gets_the_changes_after_its_header() {
+        let plan = replanned();
+        let report =
+            "<html><body><main><header>x</header><section>summary</section></main></body></html>";
+        let out = into_html_report(&plan, report);
+        let changes = out.find(r#"<h2 id="changes">"#).unwrap();
+        assert!(out.find("</header>").unwrap() < changes);
+        assert!(changes < out.find("summary").unwrap());
+        assert!(out.contains("<td><code>search-freshness</code></td>"));
+        // Nothing to add: the report is left as it was.
+        assert_eq!(into_html_report(&fixture::plan(), report), report);
     }
 }
