@@ -9,7 +9,7 @@
 
 use super::common::{percent, thousands, units};
 use crate::diff::{ExperimentDiff, Movement, PlanDiff, PoolDiff};
-use crate::plan::{Plan, Status};
+use crate::plan::{Plan, RunningOutlook, Status};
 use std::fmt::Write as _;
 
 /// The text table's style: a rule under the header only, as in the plan's
@@ -202,6 +202,25 @@ fn pool_line(p: &PoolDiff) -> String {
     )
 }
 
+/// The running tests with advice, in two groups (each only when not
+/// empty): those that cannot finish inside the window, then those a
+/// re-plan gave a new share so that they do.
+fn advice_groups(plan: &Plan) -> Vec<(&'static str, Vec<&RunningOutlook>)> {
+    let with_advice = |fits: bool| -> Vec<&RunningOutlook> {
+        plan.running
+            .iter()
+            .filter(|o| o.advice.is_some() && o.fits_window == fits)
+            .collect()
+    };
+    [
+        ("Running tests that need a decision", with_advice(false)),
+        ("Running tests given a new share", with_advice(true)),
+    ]
+    .into_iter()
+    .filter(|(_, g)| !g.is_empty())
+    .collect()
+}
+
 /// Whether there is anything to show before the plan.
 pub fn has_any(plan: &Plan) -> bool {
     plan.changes.is_some() || plan.running.iter().any(|o| o.advice.is_some())
@@ -262,10 +281,9 @@ pub fn text(plan: &Plan) -> String {
         summary_lines(&mut s, d, "");
         let _ = writeln!(s);
     }
-    let troubled: Vec<_> = plan.running.iter().filter(|o| o.advice.is_some()).collect();
-    if !troubled.is_empty() {
-        let _ = writeln!(s, "Running tests that need a decision");
-        for o in troubled {
+    for (heading, group) in advice_groups(plan) {
+        let _ = writeln!(s, "{heading}");
+        for o in group {
             let _ = writeln!(s, "  {}: {}", o.id, o.advice.as_deref().unwrap_or(""));
         }
         let _ = writeln!(s);
@@ -304,10 +322,9 @@ pub fn markdown(plan: &Plan) -> String {
         summary_lines(&mut s, d, "- ");
         let _ = writeln!(s);
     }
-    let troubled: Vec<_> = plan.running.iter().filter(|o| o.advice.is_some()).collect();
-    if !troubled.is_empty() {
-        let _ = writeln!(s, "## Running tests that need a decision\n");
-        for o in troubled {
+    for (heading, group) in advice_groups(plan) {
+        let _ = writeln!(s, "## {heading}\n");
+        for o in group {
             let _ = writeln!(
                 s,
                 "- `{}`: {}",
@@ -361,13 +378,18 @@ pub fn html(plan: &Plan) -> String {
         }
         let _ = writeln!(s, "</ul></section>");
     }
-    let troubled: Vec<_> = plan.running.iter().filter(|o| o.advice.is_some()).collect();
-    if !troubled.is_empty() {
+    for (heading, group) in advice_groups(plan) {
+        let id = if group.iter().all(|o| o.fits_window) {
+            "reshared"
+        } else {
+            "decisions"
+        };
         let _ = writeln!(
             s,
-            r#"<section><h2 id="decisions">Running tests that need a decision</h2><ul class="reasons">"#
+            r#"<section><h2 id="{id}">{}</h2><ul class="reasons">"#,
+            esc(heading)
         );
-        for o in troubled {
+        for o in group {
             let _ = writeln!(
                 s,
                 "<li><code>{}</code>: {}</li>",
@@ -514,5 +536,39 @@ mod tests {
         assert!(out.contains("<td><code>search-freshness</code></td>"));
         // Nothing to add: the report is left as it was.
         assert_eq!(into_html_report(&fixture::plan(), report), report);
+    }
+
+    #[test]
+    fn advice_is_grouped_by_whether_the_test_still_fits() {
+        let mut plan = fixture::plan();
+        let outlook = |id: &str, fits: bool, advice: &str| RunningOutlook {
+            id: id.into(),
+            started: plan.window.start,
+            share: 0.5,
+            collected: 10,
+            units_needed: 100,
+            end: None,
+            fits_window: fits,
+            rescue_share: None,
+            detectable_effect: None,
+            advice: Some(advice.into()),
+        };
+        plan.running = vec![
+            outlook("search-synonyms", true, "re-shared from 10% to 50%"),
+            outlook("hero-copy", false, "cannot reach its sample"),
+        ];
+        let out = text(&plan);
+        let decide = out
+            .find("Running tests that need a decision\n  hero-copy: cannot")
+            .unwrap();
+        let reshared = out
+            .find("Running tests given a new share\n  search-synonyms: re-shared")
+            .unwrap();
+        assert!(decide < reshared, "{out}");
+        let html = html(&plan);
+        assert!(html.contains(r#"<h2 id="decisions">Running tests that need a decision"#));
+        assert!(html.contains(r#"<h2 id="reshared">Running tests given a new share"#));
+        plan.running.pop();
+        assert!(!text(&plan).contains("need a decision"));
     }
 }
