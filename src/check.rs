@@ -3,8 +3,9 @@
 //!
 //! Per experiment: its size, how long it runs at its largest share from
 //! the window's first day, and whether it fits the window on its own (its
-//! earliest start, deadline, start grid and blackouts respected, every
-//! other test ignored). Per pool: the units the window offers against the
+//! earliest start, deadline, start grid and blackouts respected, and its
+//! `after` prerequisites' own solo runs plus gaps; every other test
+//! ignored). Per pool: the units the window offers against the
 //! units its experiments need. Durations come day by day from
 //! [`forecast::Series::run_end`]. No formatting here: the CLI renders the
 //! [`CheckReport`].
@@ -96,11 +97,14 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .iter()
         .map(|pool| Series::new(pool, w.start, horizon_end.max(w.end)))
         .collect();
-    let experiments: Vec<ExperimentCheck> = p
-        .experiments
-        .iter()
-        .map(|e| experiment(p, e, &series[e.pool]))
-        .collect();
+    // Prerequisites first, so each test can start after theirs end.
+    let mut done: Vec<Option<ExperimentCheck>> = vec![None; p.experiments.len()];
+    for i in after_order(p) {
+        let e = &p.experiments[i];
+        let start = earliest(p, e, &done);
+        done[i] = Some(experiment(p, e, &series[e.pool], start));
+    }
+    let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
         .pools
         .iter()
@@ -164,7 +168,65 @@ pub fn share_for(p: &Portfolio, e: &Experiment) -> f64 {
         .unwrap_or(e.max_share)
 }
 
-fn experiment(p: &Portfolio, e: &Experiment, series: &Series) -> ExperimentCheck {
+/// Experiment indices with every `after` prerequisite before its
+/// dependants (Kahn's algorithm; ties in file order). The graph is acyclic
+/// in a validated portfolio.
+fn after_order(p: &Portfolio) -> Vec<usize> {
+    let n = p.experiments.len();
+    let mut waiting: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
+    let mut dependants: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for (i, e) in p.experiments.iter().enumerate() {
+        for pre in &e.after {
+            dependants[pre.experiment].push(i);
+        }
+    }
+    let mut ready: std::collections::BTreeSet<usize> =
+        (0..n).filter(|&i| waiting[i] == 0).collect();
+    let mut order = Vec::with_capacity(n);
+    while let Some(i) = ready.pop_first() {
+        order.push(i);
+        for &d in &dependants[i] {
+            waiting[d] -= 1;
+            if waiting[d] == 0 {
+                ready.insert(d);
+            }
+        }
+    }
+    order
+}
+
+/// The first day a solo run of `e` may start, and why not earlier.
+#[derive(Debug, Clone, PartialEq)]
+enum Earliest {
+    /// From this day; the string names the prerequisite that sets it.
+    From(NaiveDate, Option<String>),
+    /// A prerequisite cannot fit, so neither can this test.
+    Blocked(String),
+}
+
+fn earliest(p: &Portfolio, e: &Experiment, done: &[Option<ExperimentCheck>]) -> Earliest {
+    let w = p.window;
+    let mut first = e.earliest_start.unwrap_or(w.start).max(w.start);
+    let mut because = None;
+    for pre in &e.after {
+        let Some(c) = &done[pre.experiment] else {
+            continue;
+        };
+        match c.solo_end {
+            Some(end) => {
+                let from = end + Duration::days(1 + i64::from(pre.gap_days));
+                if from > first {
+                    first = from;
+                    because = Some(c.id.clone());
+                }
+            }
+            None => return Earliest::Blocked(c.id.clone()),
+        }
+    }
+    Earliest::From(first, because)
+}
+
+fn experiment(p: &Portfolio, e: &Experiment, series: &Series, start: Earliest) -> ExperimentCheck {
     let w = p.window;
     let share = share_for(p, e);
     let need = e.need.total as f64;
@@ -174,7 +236,15 @@ fn experiment(p: &Portfolio, e: &Experiment, series: &Series) -> ExperimentCheck
         None => (None, None),
     };
     let pool = &p.pools[e.pool];
-    let (solo, reason) = solo_fit(p, e, series, share);
+    let (solo, reason) = match start {
+        Earliest::From(first, because) => solo_fit(p, e, series, share, first, because),
+        Earliest::Blocked(pre) => (
+            None,
+            Some(format!(
+                "it runs after `{pre}`, which cannot fit even alone"
+            )),
+        ),
+    };
     ExperimentCheck {
         id: e.id.clone(),
         title: e.title.clone(),
@@ -203,10 +273,11 @@ fn solo_fit(
     e: &Experiment,
     series: &Series,
     share: f64,
+    first: NaiveDate,
+    because: Option<String>,
 ) -> (Option<(NaiveDate, NaiveDate)>, Option<String>) {
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
-    let first = e.earliest_start.unwrap_or(w.start).max(w.start);
     let blocked = |date: NaiveDate, kind: BlackoutKind| {
         p.blackouts
             .iter()
@@ -254,15 +325,22 @@ fn solo_fit(
     } else {
         format!("the window's end {last}")
     };
-    let reason = if !any_start {
+    let reason = if first > last {
+        match &because {
+            Some(pre) => format!(
+                "it may start only on {first}, after `{pre}` ends and the gap, later than {until}"
+            ),
+            None => format!("it may start only on {first}, later than {until}"),
+        }
+    } else if !any_start {
         format!("no allowed start day between {first} and {last} (start grid, freezes)")
     } else if blocked_by_running {
         format!("every run at {pct} that ends by {until} crosses a no-running blackout")
     } else if ran_out {
-        let start = if first > w.start {
-            format!(" even from its earliest start {first}")
-        } else {
-            String::new()
+        let start = match (&because, first > w.start) {
+            (Some(pre), _) => format!(" even from {first}, after `{pre}` ends"),
+            (None, true) => format!(" even from its earliest start {first}"),
+            (None, false) => String::new(),
         };
         let i = w.offset(first) as usize;
         match series.run_end(i, share, need, e.min_days, e.whole_weeks) {
@@ -400,6 +478,63 @@ mod tests {
         assert_eq!(e.solo_start, Some(d("2027-01-18")));
         // The duration from the window's first day ignores blackouts.
         assert!(e.end_from_window_start.unwrap() >= d("2027-01-10"));
+    }
+
+    #[test]
+    fn a_dependant_starts_after_its_prerequisite_and_the_gap() {
+        let p = portfolio(
+            "",
+            "  - id: u\n    pool: p\n    baseline: 0.2\n    mde: 0.1\n    after: [{id: t, gap_days: 7}]\n",
+        );
+        let r = check(&p);
+        let (t, u) = (&r.experiments[0], &r.experiments[1]);
+        assert_eq!(t.solo_end, Some(d("2027-01-17")));
+        // 2027-01-17 + 1 + 7 days is Monday 2027-01-25.
+        assert_eq!(u.solo_start, Some(d("2027-01-25")));
+        assert!(u.fits_alone);
+    }
+
+    #[test]
+    fn a_dependant_of_a_test_that_cannot_fit_cannot_fit() {
+        let p = portfolio(
+            "    max_share: 0.1\n",
+            "  - id: u\n    pool: p\n    baseline: 0.2\n    mde: 0.1\n    after: [t]\n",
+        );
+        let u = &check(&p).experiments[1];
+        assert!(!u.fits_alone);
+        assert_eq!(
+            u.reason.as_deref(),
+            Some("it runs after `t`, which cannot fit even alone")
+        );
+    }
+
+    #[test]
+    fn a_prerequisite_ending_late_leaves_no_start() {
+        let p = portfolio(
+            "    earliest_start: 2027-03-01\n",
+            "  - id: u\n    pool: p\n    baseline: 0.2\n    mde: 0.1\n    after: [{id: t, gap_days: 30}]\n",
+        );
+        let u = &check(&p).experiments[1];
+        assert!(!u.fits_alone);
+        let reason = u.reason.as_deref().unwrap();
+        assert!(reason.contains("after `t` ends"), "{reason}");
+    }
+
+    #[test]
+    fn prerequisites_come_first_whatever_the_file_order() {
+        let text = "window: {start: 2027-01-04, end: 2027-04-04}\n\
+                    pools: [{id: p, daily: 1000, max_concurrent: 2}]\n\
+                    experiments:\n\
+                    \x20 - {id: c, pool: p, baseline: 0.2, mde: 0.1, after: [b]}\n\
+                    \x20 - {id: b, pool: p, baseline: 0.2, mde: 0.1, after: [a]}\n\
+                    \x20 - {id: a, pool: p, baseline: 0.2, mde: 0.1}\n";
+        let p = load_str(text, "t.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(after_order(&p), vec![2, 1, 0]);
+        let r = check(&p);
+        let ids: Vec<&str> = r.experiments.iter().map(|e| e.id.as_str()).collect();
+        assert_eq!(ids, ["c", "b", "a"], "the report keeps file order");
+        assert!(r.experiments[0].solo_start > r.experiments[1].solo_end);
+        assert!(r.experiments[1].solo_start > r.experiments[2].solo_end);
     }
 
     #[test]

@@ -55,14 +55,24 @@ impl Diagnostic {
 
     /// Points the diagnostic at `line`:`column` (both 1-based) of `source`,
     /// underlining `width` characters.
-    pub fn at(mut self, source: &str, line: usize, column: usize, width: usize) -> Diagnostic {
+    pub fn at(self, source: &str, line: usize, column: usize, width: usize) -> Diagnostic {
+        let text = line.checked_sub(1).and_then(|i| source.lines().nth(i));
+        self.at_line(text, line, column, width)
+    }
+
+    /// As [`Diagnostic::at`] with the source line already found (for
+    /// loaders that report many problems in a long file).
+    pub fn at_line(
+        mut self,
+        text: Option<&str>,
+        line: usize,
+        column: usize,
+        width: usize,
+    ) -> Diagnostic {
         self.line = Some(line);
         self.column = Some(column);
         self.width = width.max(1);
-        self.source_line = line
-            .checked_sub(1)
-            .and_then(|i| source.lines().nth(i))
-            .map(|l| l.to_string());
+        self.source_line = text.map(str::to_string);
         self
     }
 

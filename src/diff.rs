@@ -58,6 +58,9 @@ pub struct PoolTotals {
     pub scheduled: u32,
     /// Experiments out of the calendar.
     pub unscheduled: u32,
+    /// Experiments finished or cancelled (re-plans only).
+    #[serde(default)]
+    pub closed: u32,
     /// Units the scheduled experiments need, summed.
     pub units_needed: u64,
     /// Forecast units of the pool over the window.
@@ -131,6 +134,8 @@ fn totals(plan: &Plan, pool: &str) -> PoolTotals {
             t.units_needed += e.units_needed;
         } else if e.status == Status::Unscheduled {
             t.unscheduled += 1;
+        } else if closed(e) {
+            t.closed += 1;
         }
     }
     if let Some(p) = plan.pools.iter().find(|p| p.id == pool) {
@@ -340,5 +345,8 @@ mod tests {
         let diff = diff(&old, &new);
         assert_eq!(diff.experiments[0].movement, Movement::Closed);
         assert!(diff.no_longer_fit.is_empty());
+        assert_eq!(diff.pools[0].before.scheduled, 1);
+        assert_eq!(diff.pools[0].after.scheduled, 0);
+        assert_eq!(diff.pools[0].after.closed, 1);
     }
 }

@@ -4,7 +4,9 @@
 //! `portfolio` (YAML to a validated model) -> `sizing` (statistics) ->
 //! `forecast` (pool traffic per day) -> `schedule` (options, LP, greedy,
 //! verifier) -> `plan` (the result) -> `render` (one module per format).
-//! The binary in `main.rs` is a thin shell over [`cli`].
+//! `check` is the first report on a loaded portfolio (sizes, solo fit,
+//! pool supply against demand); `diagnostic` renders positioned errors in
+//! files users write. The binary in `main.rs` is a thin shell over [`cli`].
 
 pub mod check;
 pub mod cli;

@@ -112,8 +112,8 @@ pub fn text(r: &CheckReport) -> String {
             units(e.total_units),
             format!("{}%", trim(e.share * 100.0)),
             days,
-            if e.fits_alone {
-                "fits alone".to_string()
+            if let (true, Some(start)) = (e.fits_alone, e.solo_start) {
+                format!("fits alone from {start}")
             } else {
                 "cannot fit even alone".to_string()
             },

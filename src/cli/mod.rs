@@ -85,13 +85,14 @@ pub fn main() -> ExitCode {
     match run(cli) {
         Ok(bytes) => write_stdout(&bytes),
         // Messages that are already rendered diagnostics (one or more
-        // `error: ...` blocks) print as they are.
+        // `error: ...` blocks, as from a portfolio that fails to load)
+        // print as they are. A closed stderr is not worth a panic.
         Err(f) if f.message.starts_with("error: ") => {
-            eprint!("{}", f.message);
+            let _ = write!(std::io::stderr(), "{}", f.message);
             ExitCode::from(f.code)
         }
         Err(f) => {
-            eprintln!("error: {}", f.message);
+            let _ = writeln!(std::io::stderr(), "error: {}", f.message);
             ExitCode::from(f.code)
         }
     }

@@ -81,10 +81,25 @@ pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Failure> {
 /// an atomic write to `--out` (then a one-line note for stdout). `prefix`
 /// goes before the plan (a re-plan's changes) in formats that carry it.
 pub fn emit(
-    mut plan: Plan,
+    plan: Plan,
     out: &OutputArgs,
     input: &Path,
     prefix: Option<Vec<u8>>,
+) -> Result<Vec<u8>, Failure> {
+    emit_with(plan, out, input, |_, rendered| {
+        let mut bytes = prefix.unwrap_or_default();
+        bytes.extend(rendered);
+        bytes
+    })
+}
+
+/// [`emit`], with `finish` given the plan and its rendered bytes to make
+/// the bytes written (a re-plan places its changes into the HTML report).
+pub fn emit_with(
+    mut plan: Plan,
+    out: &OutputArgs,
+    input: &Path,
+    finish: impl FnOnce(&Plan, Vec<u8>) -> Vec<u8>,
 ) -> Result<Vec<u8>, Failure> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
@@ -94,11 +109,9 @@ pub fn emit(
     } else {
         RenderOptions::for_stdout()
     };
-    let mut bytes = prefix.unwrap_or_default();
-    bytes.extend(
-        render::render(&plan, out.format, &opts)
-            .map_err(|e| Failure::invalid(format!("cannot render the plan: {e}")))?,
-    );
+    let rendered = render::render(&plan, out.format, &opts)
+        .map_err(|e| Failure::invalid(format!("cannot render the plan: {e}")))?;
+    let bytes = finish(&plan, rendered);
     match &out.out {
         None => Ok(bytes),
         Some(path) => {

@@ -3,7 +3,7 @@
 //! and (with `--previous`) show what moved first. The rules live in
 //! [`crate::replan`]; this file parses flags and wires them together.
 
-use super::plan::{emit, load_portfolio, OutputArgs, SolverArgs};
+use super::plan::{load_portfolio, OutputArgs, SolverArgs};
 use super::Failure;
 use crate::plan::Plan;
 use crate::portfolio::progress;
@@ -88,10 +88,19 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
     if let Some(prev) = &previous {
         plan.changes = Some(crate::diff::diff(prev, &plan));
     }
-    let prefix = match a.output.format {
-        Format::Text if changes::has_any(&plan) => Some(changes::text(&plan).into_bytes()),
-        Format::Md if changes::has_any(&plan) => Some(changes::markdown(&plan).into_bytes()),
-        _ => None,
-    };
-    emit(plan, &a.output, &a.file, prefix)
+    let format = a.output.format;
+    super::plan::emit_with(plan, &a.output, &a.file, move |plan, rendered| {
+        if !changes::has_any(plan) {
+            return rendered;
+        }
+        match format {
+            Format::Text => [changes::text(plan).into_bytes(), rendered].concat(),
+            Format::Md => [changes::markdown(plan).into_bytes(), rendered].concat(),
+            Format::Html => match String::from_utf8(rendered) {
+                Ok(report) => changes::into_html_report(plan, &report).into_bytes(),
+                Err(e) => e.into_bytes(),
+            },
+            _ => rendered,
+        }
+    })
 }

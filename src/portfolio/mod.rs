@@ -3,12 +3,13 @@
 //! `model` holds the validated types every later stage reads. The loader
 //! (YAML to raw serde structs to the validated model, with errors that name
 //! the file, line and key) lives in `load`, `raw`, `position` and
-//! `validate`, the only code that touches the YAML crates. docs/portfolio.md
-//! documents the file.
+//! `validate` (and `progress`, the re-plan's progress file), the only code that touches the YAML crates (`position`,
+//! the key-and-value position index, is public for other loaders of YAML
+//! files). docs/portfolio.md documents the file.
 
 mod load;
 pub mod model;
-mod position;
+pub mod position;
 pub mod progress;
 pub mod raw;
 mod validate;

@@ -40,16 +40,47 @@ pub struct PositionIndex {
 }
 
 impl PositionIndex {
-    /// Indexes `text`; `None` when the parser rejects it.
+    /// Indexes `text`; `None` when the parser rejects it or it nests
+    /// too deep.
+    #[cfg(test)]
     pub fn build(text: &str) -> Option<PositionIndex> {
+        match PositionIndex::scan(text) {
+            Scan::Indexed(ix) => Some(ix),
+            _ => None,
+        }
+    }
+
+    /// Indexes `text`, telling a text that nests deeper than [`MAX_DEPTH`]
+    /// (with where it first does) from one the parser rejects.
+    pub fn scan(text: &str) -> Scan {
         let mut builder = Builder {
             index: PositionIndex::default(),
             stack: Vec::new(),
             anchored: false,
+            too_deep: None,
         };
+        // Pull events one by one: the parser's own `load` recurses once
+        // per nesting level and can overflow the stack on hostile input.
         let mut parser = Parser::new_from_str(text);
-        parser.load(&mut builder, false).ok()?;
-        Some(builder.index)
+        let parsed = loop {
+            match parser.next_token() {
+                Err(e) => break Err(e),
+                Ok((Event::StreamEnd | Event::DocumentEnd, _)) => break Ok(()),
+                Ok((ev, mark)) => builder.on_event(ev, mark),
+            }
+            if builder.too_deep.is_some() {
+                break Ok(());
+            }
+        };
+        match (builder.too_deep, parsed) {
+            (Some(span), _) => Scan::TooDeep(span),
+            (None, Ok(())) => Scan::Indexed(builder.index),
+            // The parser's own limit on flow nesting.
+            (None, Err(e)) if e.info().contains("recursion limit") => {
+                Scan::TooDeep(span_of(*e.marker(), 1))
+            }
+            (None, Err(_)) => Scan::Unparsable,
+        }
     }
 
     /// The node at `path` (`""` is the document root).
@@ -136,7 +167,22 @@ struct Builder {
     stack: Vec<Frame>,
     /// Set once the root value has been seen; later documents are ignored.
     anchored: bool,
+    /// Where nesting first passes [`MAX_DEPTH`]; the index is then dropped
+    /// (no portfolio nests that deep, paths would grow quadratically, and
+    /// serde_yaml's parser slows quadratically with depth).
+    too_deep: Option<Span>,
 }
+
+/// What [`PositionIndex::scan`] found.
+#[derive(Debug)]
+pub enum Scan {
+    Indexed(PositionIndex),
+    TooDeep(Span),
+    Unparsable,
+}
+
+/// Deepest nesting indexed; a portfolio needs five levels.
+pub const MAX_DEPTH: usize = 64;
 
 fn span_of(mark: Marker, width: usize) -> Span {
     Span {
@@ -226,6 +272,13 @@ impl Builder {
 
 impl MarkedEventReceiver for Builder {
     fn on_event(&mut self, ev: Event, mark: Marker) {
+        if self.too_deep.is_some() {
+            return;
+        }
+        if self.stack.len() > MAX_DEPTH {
+            self.too_deep = Some(span_of(mark, 1));
+            return;
+        }
         match ev {
             Event::Scalar(text, style, _, _) => {
                 let quoted = matches!(
@@ -348,6 +401,23 @@ experiments:
             shape("pools[3].adjustments[10].to"),
             "pools[].adjustments[].to"
         );
+    }
+
+    #[test]
+    fn deep_block_nesting_neither_overflows_nor_indexes() {
+        let lines: Vec<String> = (0..5000).map(|i| format!("{}a:", " ".repeat(i))).collect();
+        match PositionIndex::scan(&lines.join("\n")) {
+            Scan::TooDeep(at) => assert_eq!(at.line, MAX_DEPTH + 1),
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn deep_nesting_has_no_index() {
+        let deep = format!("a: {}{}", "[".repeat(100), "]".repeat(100));
+        assert!(PositionIndex::build(&deep).is_none());
+        let fine = format!("a: {}{}", "[".repeat(10), "]".repeat(10));
+        assert!(PositionIndex::build(&fine).is_some());
     }
 
     #[test]

@@ -9,7 +9,7 @@
 //! warnings, not refused: forecasts err, counts are facts.
 //! docs/progress.md documents every key.
 
-use super::load::{from_serde, unknown_keys, LoadError};
+use super::load::{from_serde, index_of, unknown_keys, LoadError};
 use super::model::Portfolio;
 use super::position::PositionIndex;
 use super::raw::{fields_of, Text};
@@ -128,7 +128,10 @@ pub fn load_progress_str(
         return fail(vec![Diagnostic::new(file_name, "", "the progress file is empty")
             .with_hint("list the tests that started: `experiments: [{id: ..., state: running, started: YYYY-MM-DD, share: 0.5, units: 1234}]`")]);
     }
-    let index = PositionIndex::build(body);
+    let index = match index_of(body, file_name) {
+        Ok(index) => index,
+        Err(d) => return fail(d),
+    };
     if let Some(ix) = &index {
         let unknown = unknown_keys(ix, body, file_name, allowed_keys);
         if !unknown.is_empty() {

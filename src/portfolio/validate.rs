@@ -14,7 +14,7 @@ use crate::sizing::{
     self, Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
 };
 use chrono::{NaiveDate, Weekday};
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 /// The share levels used when the file gives none.
 pub const DEFAULT_SHARE_LEVELS: [f64; 7] = [0.10, 0.20, 0.25, 0.33, 0.50, 0.75, 1.00];
@@ -27,9 +27,12 @@ pub const MAX_DAYS_SETTING: f64 = 366.0;
 
 struct Ctx<'a> {
     file: &'a str,
-    text: &'a str,
+    /// The source, line by line.
+    lines: Vec<&'a str>,
     index: Option<&'a PositionIndex>,
     diags: Vec<Diagnostic>,
+    /// Ids compared so far for "closest first" hints.
+    ranked: usize,
 }
 
 impl Ctx<'_> {
@@ -46,7 +49,8 @@ impl Ctx<'_> {
             }
         });
         if let Some(s) = span {
-            d = d.at(self.text, s.line, s.column, s.width);
+            let text = s.line.checked_sub(1).and_then(|i| self.lines.get(i));
+            d = d.at_line(text.copied(), s.line, s.column, s.width);
         }
         self.diags.push(d);
     }
@@ -134,7 +138,7 @@ impl Ctx<'_> {
         default
     }
 
-    /// An id that must name one of `defined`; `what` is `pool` or
+    /// An id that must name one of `names`; `what` is `pool` or
     /// `experiment`.
     fn reference(
         &mut self,
@@ -142,27 +146,26 @@ impl Ctx<'_> {
         who: &str,
         id: &str,
         what: &str,
-        defined: &[&str],
+        names: &Names,
     ) -> Option<usize> {
-        if let Some(i) = defined.iter().position(|d| *d == id) {
+        if let Some(&i) = names.index.get(id) {
             return Some(i);
         }
-        let mut unique: Vec<&str> = Vec::new();
-        for d in defined {
-            if !unique.contains(d) {
-                unique.push(d);
-            }
-        }
-        let ranked = diagnostic::closest_first(id, &unique);
-        let shown: Vec<&str> = ranked.iter().take(8).copied().collect();
-        let more = if ranked.len() > shown.len() {
-            format!(" and {} more", ranked.len() - shown.len())
-        } else {
-            String::new()
-        };
-        let hint = if defined.is_empty() {
+        let hint = if names.list.is_empty() {
             format!("no {what} is defined; add one under `{what}s`")
+        } else if self.ranked + names.list.len() > RANKING_BUDGET {
+            // Ranking costs a pass over every id; past this budget a plain
+            // hint keeps a huge broken file quick to report.
+            format!("{} {what}s are defined", names.list.len())
         } else {
+            self.ranked += names.list.len();
+            let ranked = diagnostic::closest_first(id, &names.list);
+            let shown: Vec<&str> = ranked.iter().take(8).copied().collect();
+            let more = if ranked.len() > shown.len() {
+                format!(" and {} more", ranked.len() - shown.len())
+            } else {
+                String::new()
+            };
             format!(
                 "defined {what}s, closest first: {}{more}",
                 diagnostic::list(&shown)
@@ -170,6 +173,30 @@ impl Ctx<'_> {
         };
         self.err(key, format!("{who}{what} `{id}` is not defined"), hint);
         None
+    }
+}
+
+/// Ids compared, over all unknown references, before the hints stop
+/// ranking the defined ids by similarity.
+const RANKING_BUDGET: usize = 200_000;
+
+/// Defined ids: each once, in file order, and their first index.
+struct Names<'a> {
+    list: Vec<&'a str>,
+    index: HashMap<&'a str, usize>,
+}
+
+impl<'a> Names<'a> {
+    fn new(ids: impl IntoIterator<Item = &'a str>) -> Names<'a> {
+        let mut list = Vec::new();
+        let mut index = HashMap::new();
+        for (i, id) in ids.into_iter().enumerate() {
+            if let std::collections::hash_map::Entry::Vacant(v) = index.entry(id) {
+                v.insert(i);
+                list.push(id);
+            }
+        }
+        Names { list, index }
     }
 }
 
@@ -202,12 +229,7 @@ fn text_or(v: &Option<Text>, default: &str) -> String {
         .unwrap_or_else(|| default.to_string())
 }
 
-const SIDES: [(&str, Sides); 4] = [
-    ("two", Sides::Two),
-    ("one", Sides::One),
-    ("2", Sides::Two),
-    ("1", Sides::One),
-];
+const SIDES: [(&str, Sides); 2] = [("two", Sides::Two), ("one", Sides::One)];
 const RATE_METHODS: [(&str, Method); 4] = [
     ("pooled", Method::Pooled),
     ("unpooled", Method::Unpooled),
@@ -230,9 +252,10 @@ pub fn validate(
 ) -> Result<Portfolio, Vec<Diagnostic>> {
     let mut cx = Ctx {
         file,
-        text,
+        lines: text.lines().collect(),
         index,
         diags: Vec::new(),
+        ranked: 0,
     };
     let name = raw
         .name
@@ -249,7 +272,7 @@ pub fn validate(
     let share_levels = share_levels(&mut cx, raw.share_levels);
     let planning = planning(&mut cx, raw.planning.unwrap_or_default(), &defaults);
     let pools = pools(&mut cx, raw.pools.unwrap_or_default());
-    let pool_ids: Vec<&str> = pools.iter().map(|p| p.id.as_str()).collect();
+    let pool_ids = Names::new(pools.iter().map(|p| p.id.as_str()));
     let experiments = experiments(
         &mut cx,
         raw.experiments.unwrap_or_default(),
@@ -339,7 +362,7 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "in (alpha, 1)",
         "the usual power is 0.8",
     );
-    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES[..2], Sides::Two);
+    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES, Sides::Two);
     let rate_method = cx.choice(
         "defaults.rate_method",
         "",
@@ -727,7 +750,7 @@ fn inside(
 fn experiments(
     cx: &mut Ctx,
     raw: Vec<RawExperiment>,
-    pool_ids: &[&str],
+    pool_ids: &Names,
     window: Option<Window>,
     d: &Defaults,
     defaults_ok: bool,
@@ -739,7 +762,7 @@ fn experiments(
         "experiment",
         raw.iter().map(|e| e.id.as_ref()).collect(),
     );
-    let id_refs: Vec<&str> = ids.iter().map(|s| s.as_str()).collect();
+    let id_refs = Names::new(ids.iter().map(|s| s.as_str()));
     let mut out = Vec::new();
     for (i, (e, id)) in raw.iter().zip(&ids).enumerate() {
         let at = |k: &str| format!("experiments[{i}].{k}");
@@ -968,13 +991,21 @@ fn design(
                 "give the control's conversion rate, e.g. `baseline: 0.04` for 4%",
             ),
             Some(b) => {
+                let hint = if b > 1.0 && b < 100.0 {
+                    format!(
+                        "{b} looks like a percentage: {b}% is `{}`; for a mean metric set `metric: mean` and give `sd`",
+                        b / 100.0
+                    )
+                } else {
+                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`".to_string()
+                };
                 cx.number(
                     &at("baseline"),
                     who,
                     b,
                     b > 0.0 && b < 1.0,
                     "a rate strictly inside (0, 1)",
-                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`",
+                    &hint,
                 );
             }
         }
@@ -1092,7 +1123,7 @@ fn design(
         "in [0, 1)",
         "the correlation of the metric with its pre-period value; 0 for none",
     );
-    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES[..2], d.sides);
+    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES, d.sides);
     let default_method = if matches!(metric, Metric::Rate { .. }) {
         d.rate_method
     } else {
@@ -1138,27 +1169,8 @@ fn design(
     (design, cx.diags.len() == before)
 }
 
-/// Above this many units per arm (by the normal approximation) a t-method
-/// design is sized with the normal approximation instead.
-pub const T_SIZE_LIMIT: f64 = 1e6;
-
-/// The sample size of a design. The t method searches the noncentral t
-/// distribution, which becomes very slow for huge samples (tens of
-/// seconds past a few million units per arm); there the t and normal
-/// sizes agree to within about one unit per arm (Guenther 1981, "Sample
-/// size formulas for normal theory t tests", The American Statistician
-/// 35(4): n_t is about n_z + z^2/4; cited from memory), so the normal
-/// size is used past [`T_SIZE_LIMIT`].
+/// The sample size of a design.
 fn size(design: &Design) -> Result<SampleSize, SizingError> {
-    if design.method == Method::T {
-        let z = sizing::sample_size(&Design {
-            method: Method::Z,
-            ..*design
-        })?;
-        if z.control_exact.max(z.treatment_exact) > T_SIZE_LIMIT {
-            return Ok(z);
-        }
-    }
     sizing::sample_size(design)
 }
 
@@ -1178,7 +1190,17 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
         SizingError::MethodMismatch { .. } => "method",
         _ => effect_key,
     };
+    let percent_hint;
     let hint = match err {
+        SizingError::TreatmentRateOutside { .. } if e.mde.is_some_and(|m| m >= 1.0) => {
+            let m = e.mde.unwrap_or(1.0);
+            percent_hint = format!(
+                "`mde` {m} is a lift of {}%; write a {m}% lift as `{}`",
+                m * 100.0,
+                m / 100.0
+            );
+            percent_hint.as_str()
+        }
         SizingError::TreatmentRateOutside { .. } => {
             "the treatment rate must stay strictly between 0 and 1; use a smaller MDE"
         }
@@ -1280,7 +1302,7 @@ fn cycles(cx: &mut Ctx, exps: &[Experiment]) {
 fn blackouts(
     cx: &mut Ctx,
     raw: Vec<RawBlackout>,
-    pool_ids: &[&str],
+    pool_ids: &Names,
     window: Option<Window>,
 ) -> Vec<Blackout> {
     let mut out = Vec::new();

@@ -1,0 +1,58 @@
+#!/usr/bin/env bash
+# The whole story of sluice on the demo portfolio (Larkspur & Loom, an
+# invented shop for home textiles, first quarter of 2027):
+#
+#   1. check the queue;            2. plan the quarter;
+#   3. the HTML report and the results calendar (iCalendar);
+#   4. day 30: progress so far, and product-page traffic down 30%;
+#   5. re-plan, and what moved since the first plan.
+#
+# Every output goes to demo/out/ (git-ignored), made afresh on each run.
+# Runs from any folder; needs cargo and python3 (standard library only).
+set -euo pipefail
+
+here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+root="$(cd "$here/.." && pwd)"
+out="$here/out"
+portfolio="$root/portfolios/demo.yaml"
+today=2027-02-03          # day 30 of the window, which starts on 2027-01-04
+drop="product=0.7@$today" # product pages lose 30% of their visitors from today
+
+heading() { printf '\n==> %s\n\n' "$*"; }
+
+heading "building sluice (release)"
+(cd "$root" && cargo build --release --quiet)
+sluice="${CARGO_TARGET_DIR:-$root/target}/release/sluice"
+case "$sluice" in /*) ;; *) sluice="$root/$sluice" ;; esac
+
+rm -rf "$out"
+mkdir -p "$out"
+
+heading "1. check the queue: sizes, and what could fit alone"
+"$sluice" check "$portfolio" | tee "$out/check.txt"
+
+heading "2. plan the quarter from its first day"
+"$sluice" plan "$portfolio" --no-timing | tee "$out/plan.txt"
+"$sluice" plan "$portfolio" --no-timing --format json --out "$out/plan.json"
+
+heading "3. the report to share and the calendar of result dates"
+"$sluice" plan "$portfolio" --no-timing --format html --out "$out/plan.html"
+"$sluice" plan "$portfolio" --no-timing --format ics --out "$out/results.ics"
+
+heading "4. day 30 ($today): progress so far (traffic ran at 90% of the forecast)"
+python3 "$here/progress_from_plan.py" "$out/plan.json" "$today" > "$out/progress-day30.yaml"
+cat "$out/progress-day30.yaml"
+echo
+echo "and from today, product pages get 30% fewer visitors: --scale $drop"
+
+heading "5. re-plan around the running tests, and what moved"
+replan=("$sluice" replan "$portfolio" --progress "$out/progress-day30.yaml"
+    --today "$today" --scale "$drop" --previous "$out/plan.json" --no-timing)
+"${replan[@]}" | tee "$out/replan.txt"
+"${replan[@]}" --format md --out "$out/replan.md"
+"${replan[@]}" --format html --out "$out/replan.html"
+"${replan[@]}" --format json --out "$out/replan.json"
+
+written=$(cd "$out" && ls | tr '\n' ' ')
+heading "done"
+echo "wrote to ${out#"$PWD"/}: $written"
