@@ -566,6 +566,40 @@ proptest! {
     }
 }
 
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 60, ..ProptestConfig::default() })]
+
+    /// The daily grid, runs of any length, a minimum run of 3 to 20 days
+    /// and a start weekday other than Monday: still verified calendars.
+    #[test]
+    fn daily_grids_and_odd_lengths_plan_to_verified_calendars(
+        tests in 1usize..7,
+        pools in 1usize..3,
+        weeks in 2usize..7,
+        seed in 0u64..1_000_000,
+        daily in any::<bool>(),
+    ) {
+        let mut p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
+        if daily {
+            p.planning.grid = StartGrid::Daily;
+        } else {
+            p.planning.start_weekday = Weekday::Wed;
+        }
+        for (i, e) in p.experiments.iter_mut().enumerate() {
+            e.whole_weeks = i % 2 == 0 && !daily;
+            e.min_days = 3 + (seed as u32 + i as u32) % 18;
+        }
+        let r = PlanRequest::default();
+        let a = plan(&p, &r);
+        if let Err(v) = verify(&p, &r, &a) {
+            panic!("verifier: {v:#?}");
+        }
+        prop_assert_ne!(a.solver.status.as_str(), "greedy");
+        prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
+        prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
+    }
+}
+
 /// The HiGHS build and the default build agree on the value within the gap
 /// each reports: each plan's value lies under the other's bound, and the
 /// exact optimum HiGHS proves lies between each plan's value and bound.
