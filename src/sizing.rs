@@ -773,14 +773,28 @@ pub fn achieved_power(d: &Design, n_control: f64) -> Result<f64, SizingError> {
     let nf = normal_form(d);
     let reduction = 1.0 - d.rho * d.rho;
     let za = z_alpha(d);
-    let n_for_normal = match d.method {
-        Method::T => return Ok(t_power(d, n_control)),
-        Method::Corrected => continuity_uncorrect(n_control, d.ratio, nf.delta),
-        _ => n_control,
+    let power = match d.method {
+        Method::T => t_power(d, n_control),
+        _ => {
+            let n_for_normal = match d.method {
+                Method::Corrected => continuity_uncorrect(n_control, d.ratio, nf.delta),
+                _ => n_control,
+            };
+            // Solve (za A + zb B)^2 / delta^2 x reduction = n for zb.
+            let zb = ((n_for_normal / reduction).sqrt() * nf.delta.abs() - za * nf.a) / nf.b;
+            std_normal().cdf(zb)
+        }
     };
-    // Solve (za A + zb B)^2 / delta^2 x reduction = n for zb.
-    let zb = ((n_for_normal / reduction).sqrt() * nf.delta.abs() - za * nf.a) / nf.b;
-    Ok(std_normal().cdf(zb))
+    // Inputs at the edge of floating point (e.g. a ratio of 1e231) can
+    // overflow the arithmetic; say so rather than return NaN.
+    if power.is_finite() {
+        Ok(power)
+    } else {
+        Err(SizingError::NoSolution(
+            "the power cannot be computed for numbers this extreme; check the design's inputs"
+                .into(),
+        ))
+    }
 }
 
 /// The smallest effect (in the design's own effect kind, relative or
