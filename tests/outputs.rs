@@ -239,6 +239,16 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         assert!(!line.contains('\n'), "a bare LF in {line:?}");
         assert!(line.len() <= 75, "unfolded line {line:?}");
     }
+    // The calendar's name reads back as written (RFC 7986 NAME is TEXT).
+    let cal = ical::IcalParser::new(std::io::BufReader::new(bytes.as_slice()))
+        .next()
+        .unwrap()
+        .unwrap();
+    let want = format!("Experiment plan: {}", plan.portfolio);
+    for key in ["NAME", "X-WR-CALNAME"] {
+        let p = cal.properties.iter().find(|p| p.name == key).unwrap();
+        assert_eq!(unescape(p.value.as_deref().unwrap()), want, "{key}");
+    }
     let events = parse_ics(&bytes);
     let tests = scheduled(&plan);
     assert_eq!(

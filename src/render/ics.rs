@@ -103,7 +103,11 @@ impl Renderer for Ics {
         cal.append_property(Property::new("PRODID", PRODID));
         cal.append_property(Property::new("CALSCALE", "GREGORIAN"));
         cal.append_property(Property::new("METHOD", "PUBLISH"));
-        cal.name(&format!("Experiment plan: {}", plan.portfolio));
+        // `Calendar::name` writes NAME (RFC 7986 §5.1, a TEXT value)
+        // without escaping it; escaped here, X-WR-CALNAME by the crate.
+        let name = format!("Experiment plan: {}", plan.portfolio);
+        cal.append_property(Property::new("NAME", escape_text(&name)));
+        cal.append_property(Property::new("X-WR-CALNAME", &name));
         for e in &plan.experiments {
             let Some(run) = run_of(e)? else { continue };
             let desc = description(plan, e, &run);
@@ -132,6 +136,24 @@ impl Renderer for Ics {
         }
         Ok(refold(&cal.to_string()).into_bytes())
     }
+}
+
+/// Escapes a TEXT value (RFC 5545 §3.3.11): backslash, semicolon, comma
+/// and line breaks.
+fn escape_text(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '\\' | ';' | ',' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '\n' => out.push_str("\\n"),
+            '\r' => {}
+            c => out.push(c),
+        }
+    }
+    out
 }
 
 /// Most octets in a content line, line break excluded (RFC 5545 §3.1).
@@ -248,6 +270,18 @@ mod tests {
         for line in text.split("\r\n") {
             assert!(line.len() <= LINE_LIMIT, "{} octets: {line:?}", line.len());
         }
+    }
+
+    #[test]
+    fn the_calendar_name_is_escaped_text() {
+        assert_eq!(escape_text("a, b; c\\d\ne"), "a\\, b\\; c\\\\d\\ne");
+        let mut plan = crate::render::fixture::plan();
+        plan.portfolio = "Larkspur & Loom, Q1; 2027".to_string();
+        let text =
+            String::from_utf8(Ics.render(&plan, &RenderOptions::default()).unwrap()).unwrap();
+        let want = "Experiment plan: Larkspur & Loom\\, Q1\\; 2027\r\n";
+        assert!(text.contains(&format!("\r\nNAME:{want}")), "{text}");
+        assert!(text.contains(&format!("\r\nX-WR-CALNAME:{want}")), "{text}");
     }
 
     #[test]
