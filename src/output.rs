@@ -14,6 +14,8 @@ pub enum OutputError {
     WouldOverwriteInput { output: PathBuf, input: PathBuf },
     /// The output path has no file name (e.g. `out/` or `..`).
     NotAFile { path: PathBuf },
+    /// The folder the output would go in does not exist (or is a file).
+    MissingFolder { path: PathBuf, folder: PathBuf },
     /// Creating, writing or renaming failed.
     Io {
         path: PathBuf,
@@ -34,6 +36,12 @@ impl fmt::Display for OutputError {
                 f,
                 "cannot write `{}`: the output path must name a file",
                 path.display()
+            ),
+            OutputError::MissingFolder { path, folder } => write!(
+                f,
+                "cannot write `{}`: the folder `{}` does not exist; create it first or choose another path",
+                path.display(),
+                folder.display()
             ),
             OutputError::Io { path, source } => {
                 write!(f, "cannot write `{}`: {source}", path.display())
@@ -68,6 +76,12 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
         Some(d) if !d.as_os_str().is_empty() => d,
         _ => Path::new("."),
     };
+    if !dir.is_dir() {
+        return Err(OutputError::MissingFolder {
+            path: path.to_path_buf(),
+            folder: dir.to_path_buf(),
+        });
+    }
     let existing = std::fs::metadata(path).ok();
     if existing.as_ref().is_some_and(|m| m.is_dir()) {
         return Err(OutputError::NotAFile {
@@ -204,6 +218,7 @@ mod tests {
         let path = dir.path().join("no-such-folder").join("plan.json");
         let err = write_atomic(&path, b"{}").unwrap_err().to_string();
         assert!(err.contains("plan.json"), "{err}");
+        assert!(err.contains("no-such-folder` does not exist"), "{err}");
         assert!(!path.exists());
     }
 

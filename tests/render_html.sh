@@ -1,13 +1,19 @@
 #!/usr/bin/env bash
 # Renders the HTML report in headless Chromium and checks the screenshot.
 #
-#   bash tests/render_html.sh            # the report of tests/fixtures/plan-small.json
+#   bash tests/render_html.sh            # the demo's report and the fixture's
 #   bash tests/render_html.sh REPORT.html
+#
+# With no argument it renders two reports: the real one the binary writes
+# for the demo portfolio (`sluice plan portfolios/demo.yaml --format html
+# --out ...`: 32 tests in 5 pools), and the one of the small fixture plan
+# tests/fixtures/plan-small.json. It builds with cargo when the binary is
+# missing or older than the sources.
 #
 # Installs Debian's `chromium` when /usr/bin/chromium is missing (CI runs as
 # root). The PNG is checked with python3's standard library only (zlib): the
-# expected size, not blank, the charts' colours present. Prints
-# `N passed, M failed` and exits non-zero when a check fails.
+# expected size, not blank, each pool's colour present, today's line drawn.
+# Prints `N passed, M failed` and exits non-zero when a check fails.
 set -uo pipefail
 cd "$(dirname "$0")/.."
 
@@ -44,35 +50,28 @@ if [ ! -x /usr/bin/chromium ]; then
     fi
 fi
 
-if [ $# -ge 1 ]; then
-    report="$(realpath "$1")"
-else
-    report="$work/report.html"
-    if ! cargo run --quiet --example render_plan -- tests/fixtures/plan-small.json html "$report"; then
-        check "the fixture plan renders to html" false
-        finish
-    fi
-fi
-check "the report exists" test -s "$report"
-
-png="$work/report.png"
-timeout 120 /usr/bin/chromium --headless --no-sandbox --disable-gpu --no-first-run \
-    --disable-background-networking --disable-component-update --disable-sync \
-    --user-data-dir="$work/profile" --hide-scrollbars \
-    --window-size="$WIDTH,$HEIGHT" --screenshot="$png" "file://$report" \
-    >"$work/chromium.log" 2>&1
-status=$?
-[ $status -eq 0 ] || tail -20 "$work/chromium.log"
-check "chromium exits cleanly" test $status -eq 0
-check "chromium wrote a screenshot" test -s "$png"
-
-if [ -s "$png" ]; then
-    python3 - "$png" "$WIDTH" "$HEIGHT" >"$work/image-checks.txt" <<'PY'
+# render_and_check NAME REPORT.html POOLS: screenshots REPORT.html and checks
+# the image; POOLS is how many pools' colours must show.
+render_and_check() {
+    local name="$1" report="$2" pools="$3"
+    check "$name: the report exists" test -s "$report"
+    local png="$work/$name.png"
+    timeout 120 /usr/bin/chromium --headless --no-sandbox --disable-gpu --no-first-run \
+        --disable-background-networking --disable-component-update --disable-sync \
+        --user-data-dir="$work/profile-$name" --hide-scrollbars \
+        --window-size="$WIDTH,$HEIGHT" --screenshot="$png" "file://$report" \
+        >"$work/chromium-$name.log" 2>&1
+    local status=$?
+    [ $status -eq 0 ] || tail -20 "$work/chromium-$name.log"
+    check "$name: chromium exits cleanly" test $status -eq 0
+    check "$name: chromium wrote a screenshot" test -s "$png"
+    [ -s "$png" ] || return 0
+    python3 - "$png" "$WIDTH" "$HEIGHT" "$pools" >"$work/image-checks.txt" <<'PY'
 import struct
 import sys
 import zlib
 
-path, want_w, want_h = sys.argv[1], int(sys.argv[2]), int(sys.argv[3])
+path, want_w, want_h, pools = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), int(sys.argv[4])
 data = open(path, "rb").read()
 results = []
 
@@ -144,9 +143,11 @@ def near(hex_colour, tolerance=6):
 
 check(f"not blank ({100 * non_white / total:.1f}% of pixels drawn)", non_white > total * 0.03)
 check(f"not one flat colour ({len(pixels)} colours)", len(pixels) > 200)
-# Colours the report itself uses: the first two pools' bars and today's line.
-check("first pool's bars are drawn", near("1f5f8b") > 2000)
-check("second pool's bars are drawn", near("8a4f0a") > 2000)
+# Colours the report itself uses (POOL_FILLS in src/render/html.rs): each
+# pool's bars, and today's line.
+fills = ["1f5f8b", "8a4f0a", "5b3f8c", "2d6a3e", "8c2f4b"]
+for k in range(pools):
+    check(f"pool {k + 1}'s bars are drawn (#{fills[k % 5]})", near(fills[k % 5]) > 2000)
 check("today's line is drawn", near("b3261e") > 50)
 # The page is laid out top to bottom: something drawn in each quarter.
 quarters = [rows[q * height // 4 : (q + 1) * height // 4] for q in range(4)]
@@ -158,14 +159,54 @@ for name, ok in results:
     print(("ok: " if ok else "FAILED: ") + name)
 sys.exit(0 if all(ok for _, ok in results) else 1)
 PY
-    py=$?
-    cat "$work/image-checks.txt"
+    local py=$?
+    sed "s/^\(ok\|FAILED\): /\1: $name: /" "$work/image-checks.txt"
     passed=$((passed + $(grep -c '^ok: ' "$work/image-checks.txt")))
     failed=$((failed + $(grep -c '^FAILED: ' "$work/image-checks.txt")))
     # A crash in the checker itself counts as a failure too.
     if [ $py -ne 0 ] && ! grep -q '^FAILED: ' "$work/image-checks.txt"; then
-        check "the image checker runs" false
+        check "$name: the image checker runs" false
     fi
+}
+
+# has_text NAME REPORT.html TEXT: the report's source holds TEXT.
+has_text() {
+    check "$1: the report names $3" grep -qF -- "$3" "$2"
+}
+
+if [ $# -ge 1 ]; then
+    render_and_check "given" "$(realpath "$1")" 2
+    finish
+fi
+
+# The demo, through the real binary. Build when the binary is missing or
+# older than any source file.
+bin="target/debug/sluice"
+if [ ! -x "$bin" ] || [ -n "$(find src Cargo.toml Cargo.lock -newer "$bin" -print -quit 2>/dev/null)" ]; then
+    if ! cargo build --quiet --bin sluice; then
+        check "sluice builds" false
+        finish
+    fi
+fi
+demo="$work/plan.html"
+if "$bin" plan portfolios/demo.yaml --format html --out "$demo" 2>"$work/plan.log"; then
+    check "sluice plan writes the demo's report" true
+    # What the screenshot cannot tell: every test and pool is in it.
+    for id in $(grep -E '^  - id: ' portfolios/demo.yaml | sed 's/^  - id: //'); do
+        has_text demo "$demo" "$id"
+    done
+    render_and_check demo "$demo" 5
+else
+    cat "$work/plan.log"
+    check "sluice plan writes the demo's report" false
+fi
+
+# The small fixture plan, through the library (no scheduler run).
+fixture="$work/fixture.html"
+if cargo run --quiet --example render_plan -- tests/fixtures/plan-small.json html "$fixture"; then
+    render_and_check fixture "$fixture" 2
+else
+    check "the fixture plan renders to html" false
 fi
 
 finish

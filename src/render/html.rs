@@ -116,7 +116,6 @@ td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-sp
 td.date { font-variant-numeric: tabular-nums; }
 td.date .nw, td.date strong { white-space: nowrap; }
 td.test { min-width: 13em; }
-td.pool { white-space: nowrap; }
 td .small { color: #4a525c; font-size: 13px; }
 td.muted { color: #4a525c; }
 .swatch { display: inline-block; width: 10px; height: 10px; margin-right: 6px; vertical-align: baseline; }
@@ -356,6 +355,39 @@ fn calendar_chart(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
     Ok(())
 }
 
+/// Most characters of a pool's name per line beside its traffic chart:
+/// what 13px bold text fits between the left edge and the axis labels.
+const POOL_NAME_CHARS: usize = 19;
+
+/// Breaks `s` into at most `lines` lines of at most `max` characters at
+/// spaces; a word longer than a line, or text left over after the last
+/// line, is cut with `…`.
+fn wrap_label(s: &str, max: usize, lines: usize) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    let mut line = String::new();
+    let mut words = s.split_whitespace().peekable();
+    while let Some(word) = words.next() {
+        let needed = line.chars().count() + usize::from(!line.is_empty()) + word.chars().count();
+        if !line.is_empty() && needed > max {
+            if out.len() + 1 == lines {
+                // No line left: the rest goes on this one, clipped.
+                let rest: Vec<&str> = std::iter::once(word).chain(words).collect();
+                line = clip(&format!("{line} {}", rest.join(" ")), max);
+                break;
+            }
+            out.push(std::mem::take(&mut line));
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        out.push(clip(&line, max));
+    }
+    out
+}
+
 fn clip(s: &str, max: usize) -> String {
     if s.chars().count() <= max {
         s.to_string()
@@ -379,8 +411,14 @@ fn bar(
     let w = (x1 - x0).max(2.0);
     let top = y + 4.0;
     let h = ROW_H - 8.0;
+    // A test already running says so: its start is a fact, not a plan.
     let label = format!(
-        "{} · result {}",
+        "{}{} · result {}",
+        if e.status == crate::plan::Status::Running {
+            "running · "
+        } else {
+            ""
+        },
         percent(r.share),
         short_date(r.result_date)
     );
@@ -522,12 +560,21 @@ fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String) {
             esc(&words)
         );
     }
+    // The pool's name in the column left of the axis labels, on up to two
+    // lines so a long name never runs into them.
+    let name_lines = wrap_label(&p.label, POOL_NAME_CHARS, 2);
+    for (i, line) in name_lines.iter().enumerate() {
+        let _ = writeln!(
+            s,
+            r##"<text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text>"##,
+            top + 16.0 + 16.0 * i as f64,
+            esc(line)
+        );
+    }
     let _ = writeln!(
         s,
-        r##"<text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text><text x="12" y="{:.1}" font-size="11" fill="#4a525c">{}</text>"##,
-        top + 16.0,
-        esc(&clip(&p.label, 28)),
-        top + 32.0,
+        r##"<text x="12" y="{:.1}" font-size="11" fill="#4a525c">{}</text>"##,
+        top + 16.0 * (name_lines.len() as f64 + 1.0),
         if split { "split pool" } else { "overlap pool" }
     );
     let fill = pool_fill(index);
@@ -678,8 +725,13 @@ impl Renderer for Html {
         );
         let _ = writeln!(
             s,
-            r#"<li><span class="big">{fit} of {}</span><span class="small">tests fit in the window</span></li>"#,
-            plan.experiments.len()
+            r#"<li><span class="big">{fit} of {}</span><span class="small">tests fit in the window{}</span></li>"#,
+            fit + not_fit,
+            match plan.experiments.len() - fit - not_fit {
+                0 => String::new(),
+                1 => "; 1 more has finished or been cancelled".to_string(),
+                done => format!("; {done} more have finished or been cancelled"),
+            }
         );
         let _ = writeln!(
             s,
@@ -806,6 +858,60 @@ impl Renderer for Html {
 mod tests {
     use super::*;
     use crate::render::fixture;
+
+    #[test]
+    fn a_replan_marks_running_tests_and_counts_only_open_ones() {
+        use crate::plan::Status;
+        let mut plan = fixture::plan();
+        let scheduled: Vec<usize> = (0..plan.experiments.len())
+            .filter(|&i| plan.experiments[i].status == Status::Scheduled)
+            .collect();
+        let total = plan.experiments.len();
+        let (fit, not_fit) = crate::render::common::counts(&plan);
+        plan.experiments[scheduled[0]].status = Status::Running;
+        let running_id = plan.experiments[scheduled[0]].id.clone();
+        let done = &mut plan.experiments[scheduled[1]];
+        done.status = Status::Finished;
+        let html =
+            String::from_utf8(Html.render(&plan, &RenderOptions::default()).unwrap()).unwrap();
+        assert!(html.contains("running · "), "the running bar says so");
+        assert!(html.contains(&running_id));
+        assert_eq!(fit + not_fit, total);
+        assert!(
+            html.contains(&format!(
+                "{} of {}</span><span class=\"small\">tests fit in the window; 1 more has finished or been cancelled",
+                fit - 1,
+                total - 1
+            )),
+            "the summary counts the open tests"
+        );
+        let plain = String::from_utf8(
+            Html.render(&fixture::plan(), &RenderOptions::default())
+                .unwrap(),
+        )
+        .unwrap();
+        assert!(!plain.contains("running · "));
+        assert!(plain.contains(&format!(
+            "{fit} of {total}</span><span class=\"small\">tests fit in the window</span>"
+        )));
+    }
+
+    #[test]
+    fn long_pool_names_wrap_onto_two_lines_and_then_clip() {
+        assert_eq!(wrap_label("Home page", 19, 2), ["Home page"]);
+        assert_eq!(
+            wrap_label("App onboarding (new installs)", 19, 2),
+            ["App onboarding (new", "installs)"]
+        );
+        let three = wrap_label("Basket, checkout and the payment pages after it", 19, 2);
+        assert_eq!(three.len(), 2);
+        assert_eq!(three[0], "Basket, checkout");
+        assert!(three[1].ends_with('…'), "{three:?}");
+        assert!(three.iter().all(|l| l.chars().count() <= 19), "{three:?}");
+        let word = wrap_label("Supercalifragilisticexpialidocious", 19, 2);
+        assert_eq!(word, ["Supercalifragilist…"]);
+        assert!(wrap_label("", 19, 2).is_empty());
+    }
 
     #[test]
     fn escapes_markup_and_quotes() {

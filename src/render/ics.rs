@@ -103,7 +103,11 @@ impl Renderer for Ics {
         cal.append_property(Property::new("PRODID", PRODID));
         cal.append_property(Property::new("CALSCALE", "GREGORIAN"));
         cal.append_property(Property::new("METHOD", "PUBLISH"));
-        cal.name(&format!("Experiment plan: {}", plan.portfolio));
+        // `Calendar::name` writes NAME (RFC 7986 §5.1, a TEXT value)
+        // without escaping it; escaped here, X-WR-CALNAME by the crate.
+        let name = format!("Experiment plan: {}", plan.portfolio);
+        cal.append_property(Property::new("NAME", escape_text(&name)));
+        cal.append_property(Property::new("X-WR-CALNAME", &name));
         for e in &plan.experiments {
             let Some(run) = run_of(e)? else { continue };
             let desc = description(plan, e, &run);
@@ -130,13 +134,155 @@ impl Renderer for Ics {
                 .add_property("TRANSP", "TRANSPARENT");
             cal.push(result.done());
         }
-        Ok(cal.to_string().into_bytes())
+        Ok(refold(&cal.to_string()).into_bytes())
     }
+}
+
+/// Escapes a TEXT value (RFC 5545 §3.3.11): backslash, semicolon, comma
+/// and line breaks.
+fn escape_text(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '\\' | ';' | ',' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '\n' => out.push_str("\\n"),
+            '\r' => {}
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Most octets in a content line, line break excluded (RFC 5545 §3.1).
+const LINE_LIMIT: usize = 75;
+
+/// Folds the calendar's content lines again, within [`LINE_LIMIT`] octets.
+///
+/// The `icalendar` crate (0.17) folds long lines, but its last piece can be
+/// one octet over the limit, and it may fold right after a space, which
+/// parsers that trim line ends (the `ical` crate among them) then lose. So
+/// the crate's folds are undone (CRLF followed by one space: the crate
+/// escapes line breaks inside values, so no other CRLF-space occurs) and
+/// each line is folded again by the rule of RFC 5545 §3.1 (CRLF, then one
+/// space), on UTF-8 character boundaries and never beside a space or tab.
+fn refold(ics: &str) -> String {
+    let unfolded = ics.replace("\r\n ", "");
+    let mut out = String::with_capacity(ics.len());
+    for line in unfolded.split_inclusive("\r\n") {
+        let body = line.strip_suffix("\r\n").unwrap_or(line);
+        let mut rest = body;
+        let mut first = true;
+        while rest.len() > LINE_LIMIT - usize::from(!first) {
+            let room = LINE_LIMIT - usize::from(!first);
+            let mut cut = room;
+            while cut > 1
+                && (!rest.is_char_boundary(cut)
+                    || rest[..cut].ends_with([' ', '\t'])
+                    || rest[cut..].starts_with([' ', '\t']))
+            {
+                cut -= 1;
+            }
+            if cut <= 1 {
+                cut = room;
+                while !rest.is_char_boundary(cut) {
+                    cut -= 1;
+                }
+            }
+            if !first {
+                out.push(' ');
+            }
+            out.push_str(&rest[..cut]);
+            out.push_str("\r\n");
+            rest = &rest[cut..];
+            first = false;
+        }
+        if !first {
+            out.push(' ');
+        }
+        out.push_str(rest);
+        if line.len() > body.len() {
+            out.push_str("\r\n");
+        }
+    }
+    out
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn unfold(s: &str) -> String {
+        s.replace("\r\n ", "")
+    }
+
+    #[test]
+    fn refold_keeps_every_line_within_75_octets_and_the_content_intact() {
+        // The shape the crate left one octet over: a continuation line of
+        // a space and 75 octets.
+        let long = format!("DESCRIPTION:{}\r\n {}\r\n", "a".repeat(63), "b".repeat(75));
+        let folded = refold(&long);
+        for line in folded.split("\r\n") {
+            assert!(line.len() <= LINE_LIMIT, "{} octets: {line:?}", line.len());
+        }
+        assert_eq!(unfold(&folded), unfold(&long));
+        assert!(folded.ends_with("\r\n"));
+
+        // Multi-byte characters are never split, and no piece starts or
+        // ends with a space.
+        let words = format!("SUMMARY:{}end\r\n", "thé café au lait ".repeat(12));
+        let folded = refold(&words);
+        for line in folded.split("\r\n") {
+            assert!(line.len() <= LINE_LIMIT);
+            assert!(!line.ends_with(' '), "{line:?}");
+            assert!(!line.starts_with("  "), "{line:?}");
+        }
+        assert_eq!(unfold(&folded), words);
+
+        // A fold after a space is moved, so no piece ends with one.
+        let spaced = format!(
+            "DESCRIPTION:{}Units \r\n needed: 302\\,400\r\n",
+            "c".repeat(57)
+        );
+        let folded = refold(&spaced);
+        assert!(
+            folded.split("\r\n").all(|l| !l.ends_with(' ')),
+            "{folded:?}"
+        );
+        assert_eq!(unfold(&folded), unfold(&spaced));
+
+        // Short lines pass through untouched.
+        let short = "BEGIN:VCALENDAR\r\nVERSION:2.0\r\n";
+        assert_eq!(refold(short), short);
+    }
+
+    #[test]
+    fn rendered_lines_stay_within_the_limit() {
+        let mut plan = crate::render::fixture::plan();
+        for (i, e) in plan.experiments.iter_mut().enumerate() {
+            // Titles of every length shift where the folds fall.
+            e.title = format!("{} {}", e.title, "x".repeat(i * 7 + 40));
+        }
+        let bytes = Ics.render(&plan, &RenderOptions::default()).unwrap();
+        let text = String::from_utf8(bytes).unwrap();
+        for line in text.split("\r\n") {
+            assert!(line.len() <= LINE_LIMIT, "{} octets: {line:?}", line.len());
+        }
+    }
+
+    #[test]
+    fn the_calendar_name_is_escaped_text() {
+        assert_eq!(escape_text("a, b; c\\d\ne"), "a\\, b\\; c\\\\d\\ne");
+        let mut plan = crate::render::fixture::plan();
+        plan.portfolio = "Larkspur & Loom, Q1; 2027".to_string();
+        let text =
+            String::from_utf8(Ics.render(&plan, &RenderOptions::default()).unwrap()).unwrap();
+        let want = "Experiment plan: Larkspur & Loom\\, Q1\\; 2027\r\n";
+        assert!(text.contains(&format!("\r\nNAME:{want}")), "{text}");
+        assert!(text.contains(&format!("\r\nX-WR-CALNAME:{want}")), "{text}");
+    }
 
     #[test]
     fn uids_are_stable_and_distinct() {

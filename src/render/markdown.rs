@@ -15,9 +15,18 @@ pub struct Markdown;
 /// punctuation that can start markup; line breaks become spaces).
 pub fn escape(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
-    for c in s.chars() {
+    let mut chars = s.chars().peekable();
+    while let Some(c) = chars.next() {
         match c {
-            '\\' | '`' | '*' | '_' | '[' | ']' | '<' | '>' | '|' | '#' | '~' | '!' | '&' => {
+            // `&` only starts an entity (`&amp;`, `&#38;`) before a letter or
+            // `#`; "Larkspur & Loom" reads better without a backslash.
+            '&' if chars
+                .peek()
+                .is_some_and(|n| n.is_ascii_alphanumeric() || *n == '#') =>
+            {
+                out.push_str("\\&");
+            }
+            '\\' | '`' | '*' | '_' | '[' | ']' | '<' | '>' | '|' | '#' | '~' | '!' => {
                 out.push('\\');
                 out.push(c);
             }
@@ -121,6 +130,9 @@ mod tests {
     fn escapes_markup_and_table_breakers() {
         assert_eq!(escape("a|b <c> *d*"), r"a\|b \<c\> \*d\*");
         assert_eq!(escape("two\nlines"), "two lines");
+        // `&` is escaped only where it could start an entity.
+        assert_eq!(escape("Larkspur & Loom"), "Larkspur & Loom");
+        assert_eq!(escape("R&D &amp; &#38; &"), r"R\&D \&amp; \&\#38; &");
     }
 
     #[test]

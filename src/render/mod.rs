@@ -111,7 +111,8 @@ impl std::str::FromStr for Format {
 /// format reads these; the file formats ignore them.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct RenderOptions {
-    /// Terminal width in columns; `None` uses [`FALLBACK_WIDTH`].
+    /// Width in columns (the terminal's, or `COLUMNS`); `None` uses
+    /// [`FALLBACK_WIDTH`].
     pub width: Option<u16>,
     /// Whether to use ANSI colour in the text format.
     pub colour: bool,
@@ -130,16 +131,20 @@ impl Default for RenderOptions {
 impl RenderOptions {
     /// The options for writing to this process's standard output: colour
     /// only on a terminal and never when `NO_COLOR` is set; the terminal's
-    /// width, or [`FALLBACK_WIDTH`] when it is not a terminal.
+    /// width, else the `COLUMNS` environment variable when it holds a sane
+    /// number, else [`FALLBACK_WIDTH`].
     pub fn for_stdout() -> RenderOptions {
         let stdout = std::io::stdout();
         let is_tty = stdout.is_terminal();
         let width = terminal_size::terminal_size_of(&stdout).map(|(w, _)| w.0);
         let no_color = std::env::var_os("NO_COLOR");
-        RenderOptions::decide(is_tty, no_color.as_deref(), width)
+        let columns = std::env::var_os("COLUMNS");
+        RenderOptions::decide(is_tty, no_color.as_deref(), width, columns.as_deref())
     }
 
-    /// The options for writing to a file (`--out`): no colour, fallback width.
+    /// The options for writing to a file (`--out`): no colour, fallback
+    /// width. `COLUMNS` is not read, so a file is the same wherever it is
+    /// written from.
     pub fn for_file() -> RenderOptions {
         RenderOptions::default()
     }
@@ -148,14 +153,22 @@ impl RenderOptions {
     ///
     /// `NO_COLOR` follows its convention (no-color.org): colour is off when
     /// the variable is present and not empty, whatever its value.
+    ///
+    /// The width: on a terminal, the width the terminal reports. Otherwise
+    /// (a pipe, a file, or a terminal that does not say) the `COLUMNS`
+    /// environment variable, the usual way to tell a command-line tool how
+    /// wide its output may be when it cannot ask a terminal, if it is a
+    /// sane number (see [`parse_columns`]); else `None`, the fallback.
     pub fn decide(
         is_tty: bool,
         no_color: Option<&std::ffi::OsStr>,
         terminal_width: Option<u16>,
+        columns: Option<&std::ffi::OsStr>,
     ) -> RenderOptions {
         let no_color = no_color.is_some_and(|v| !v.is_empty());
+        let from_terminal = if is_tty { terminal_width } else { None };
         RenderOptions {
-            width: if is_tty { terminal_width } else { None },
+            width: from_terminal.or_else(|| columns.and_then(parse_columns)),
             colour: is_tty && !no_color,
         }
     }
@@ -165,6 +178,20 @@ impl RenderOptions {
     pub fn effective_width(&self) -> usize {
         usize::from(self.width.unwrap_or(FALLBACK_WIDTH).max(MIN_WIDTH))
     }
+}
+
+/// Widest `COLUMNS` value taken at its word; anything wider is more likely
+/// a mistake than a screen.
+pub const MAX_COLUMNS: u16 = 1000;
+
+/// The width a `COLUMNS` value asks for: a whole number from 1 to
+/// [`MAX_COLUMNS`] (surrounding spaces allowed). Empty, zero, negative,
+/// fractional, non-numeric and huge values give `None`, so the fallback
+/// applies. Values under [`MIN_WIDTH`] are kept here and raised to it by
+/// [`RenderOptions::effective_width`], as a narrow terminal would be.
+pub fn parse_columns(value: &std::ffi::OsStr) -> Option<u16> {
+    let n: u16 = value.to_str()?.trim().parse().ok()?;
+    (1..=MAX_COLUMNS).contains(&n).then_some(n)
 }
 
 /// A failure to render a plan.
@@ -245,22 +272,63 @@ mod tests {
 
     #[test]
     fn colour_only_on_a_terminal_without_no_color() {
-        assert!(RenderOptions::decide(true, None, Some(120)).colour);
-        assert!(!RenderOptions::decide(false, None, Some(120)).colour);
-        assert!(!RenderOptions::decide(true, Some(OsStr::new("1")), None).colour);
+        assert!(RenderOptions::decide(true, None, Some(120), None).colour);
+        assert!(!RenderOptions::decide(false, None, Some(120), None).colour);
+        assert!(!RenderOptions::decide(true, Some(OsStr::new("1")), None, None).colour);
         // no-color.org: an empty NO_COLOR does not switch colour off.
-        assert!(RenderOptions::decide(true, Some(OsStr::new("")), None).colour);
+        assert!(RenderOptions::decide(true, Some(OsStr::new("")), None, None).colour);
+        // COLUMNS sets a width, never colour.
+        let piped = RenderOptions::decide(false, None, None, Some(OsStr::new("160")));
+        assert!(!piped.colour);
     }
 
     #[test]
     fn width_follows_the_terminal_and_falls_back_otherwise() {
-        let tty = RenderOptions::decide(true, None, Some(132));
+        let tty = RenderOptions::decide(true, None, Some(132), None);
         assert_eq!(tty.effective_width(), 132);
-        let pipe = RenderOptions::decide(false, None, Some(132));
+        let pipe = RenderOptions::decide(false, None, Some(132), None);
         assert_eq!(pipe.width, None);
         assert_eq!(pipe.effective_width(), usize::from(FALLBACK_WIDTH));
-        let tiny = RenderOptions::decide(true, None, Some(10));
+        let tiny = RenderOptions::decide(true, None, Some(10), None);
         assert_eq!(tiny.effective_width(), usize::from(MIN_WIDTH));
+    }
+
+    #[test]
+    fn columns_sets_the_width_when_no_terminal_says() {
+        fn cols(v: &str) -> Option<&OsStr> {
+            Some(OsStr::new(v))
+        }
+        // A pipe: COLUMNS decides.
+        let narrow = RenderOptions::decide(false, None, None, cols("60"));
+        assert_eq!(narrow.width, Some(60));
+        assert_eq!(narrow.effective_width(), 60);
+        let wide = RenderOptions::decide(false, None, Some(80), cols("160"));
+        assert_eq!(wide.effective_width(), 160);
+        // A terminal that reports its width wins over a stale COLUMNS.
+        let tty = RenderOptions::decide(true, None, Some(132), cols("60"));
+        assert_eq!(tty.effective_width(), 132);
+        // A terminal that does not say: COLUMNS again.
+        let mute = RenderOptions::decide(true, None, None, cols("90"));
+        assert_eq!(mute.effective_width(), 90);
+        // Below the narrowest layout: raised to it, like a tiny terminal.
+        let tiny = RenderOptions::decide(false, None, None, cols("12"));
+        assert_eq!(tiny.effective_width(), usize::from(MIN_WIDTH));
+    }
+
+    #[test]
+    fn columns_that_are_not_a_sane_width_fall_back() {
+        for bad in ["", "0", "-80", "80.5", "wide", "1001", "70000", "99999999"] {
+            assert_eq!(parse_columns(OsStr::new(bad)), None, "COLUMNS={bad:?}");
+            let o = RenderOptions::decide(false, None, None, Some(OsStr::new(bad)));
+            assert_eq!(
+                o.effective_width(),
+                usize::from(FALLBACK_WIDTH),
+                "COLUMNS={bad:?}"
+            );
+        }
+        assert_eq!(parse_columns(OsStr::new(" 72 ")), Some(72));
+        assert_eq!(parse_columns(OsStr::new("1000")), Some(1000));
+        assert_eq!(parse_columns(OsStr::new("1")), Some(1));
     }
 
     #[test]

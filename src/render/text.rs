@@ -208,32 +208,94 @@ impl Track {
     }
 }
 
-/// Which table columns fit the width.
-#[derive(Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+/// Which columns the experiment table shows, from fewest to most.
+#[derive(Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Debug)]
 enum Layout {
+    /// test, share, start, result due.
     Narrow,
+    /// Adds the pool.
+    Compact,
+    /// Adds days and units needed.
     Medium,
+    /// Adds the end day and the status.
     Wide,
+    /// Adds the title.
     Widest,
 }
 
 impl Layout {
+    /// The richest layout worth trying at `width` columns.
     fn for_width(width: usize) -> Layout {
         match width {
-            0..=79 => Layout::Narrow,
+            0..=79 => Layout::Compact,
             80..=119 => Layout::Medium,
             120..=159 => Layout::Wide,
             _ => Layout::Widest,
         }
     }
+
+    const ALL: [Layout; 5] = [
+        Layout::Widest,
+        Layout::Wide,
+        Layout::Medium,
+        Layout::Compact,
+        Layout::Narrow,
+    ];
 }
 
+/// The experiment table at `width`: the richest layout (up to
+/// [`Layout::for_width`]) whose columns fit without wrapping a cell, so an
+/// id is never broken across lines while a column could be left out
+/// instead; the narrowest layout, wrapped to the width, when none fits.
 fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, RenderError> {
-    let layout = Layout::for_width(width);
+    let natural = |layout: Layout, title_room: usize| -> Result<usize, RenderError> {
+        let t = table_for(plan, layout, title_room, None, false)?.to_string();
+        Ok(t.lines().map(UnicodeWidthStr::width).max().unwrap_or(0))
+    };
+    let most = Layout::for_width(width);
+    if most == Layout::Widest {
+        // Titles are long: they get the room the wide layout leaves, cut
+        // with `…`, when that is enough to be worth a column.
+        let room = width.saturating_sub(natural(Layout::Wide, 0)? + 2);
+        if room >= MIN_TITLE_ROOM && natural(Layout::Widest, room)? <= width {
+            return table_for(plan, Layout::Widest, room, Some(width), colour);
+        }
+    }
+    for layout in Layout::ALL
+        .into_iter()
+        .filter(|&l| l <= most.min(Layout::Wide))
+    {
+        if natural(layout, 0)? <= width {
+            return table_for(plan, layout, 0, Some(width), colour);
+        }
+    }
+    table_for(plan, Layout::Narrow, 0, Some(width), colour)
+}
+
+/// Fewest columns worth giving the titles in the widest table.
+const MIN_TITLE_ROOM: usize = 16;
+
+/// The experiment table in `layout` (titles cut to `title_room` columns),
+/// wrapped to `width` when given and laid out at its natural width
+/// otherwise.
+fn table_for(
+    plan: &Plan,
+    layout: Layout,
+    title_room: usize,
+    width: Option<usize>,
+    colour: bool,
+) -> Result<Table, RenderError> {
     let mut t = Table::new();
-    t.load_preset(TABLE_STYLE)
-        .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_width(width as u16);
+    t.load_preset(TABLE_STYLE);
+    match width {
+        Some(w) => {
+            t.set_content_arrangement(ContentArrangement::Dynamic)
+                .set_width(u16::try_from(w).unwrap_or(u16::MAX));
+        }
+        None => {
+            t.set_content_arrangement(ContentArrangement::Disabled);
+        }
+    }
     if colour {
         t.enforce_styling();
     } else {
@@ -243,7 +305,7 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
     if layout >= Layout::Widest {
         header.push("title");
     }
-    if layout >= Layout::Medium {
+    if layout >= Layout::Compact {
         header.push("pool");
     }
     header.extend(["share", "start"]);
@@ -262,9 +324,9 @@ fn experiment_table(plan: &Plan, width: usize, colour: bool) -> Result<Table, Re
         let run = run_of(e)?;
         let mut row = vec![Cell::new(&e.id)];
         if layout >= Layout::Widest {
-            row.push(Cell::new(&e.title));
+            row.push(Cell::new(fit(&e.title, title_room)));
         }
-        if layout >= Layout::Medium {
+        if layout >= Layout::Compact {
             row.push(Cell::new(&e.pool));
         }
         match &run {
@@ -570,11 +632,23 @@ impl Renderer for Text {
             "{}",
             wrap(
                 &format!(
-                    "Window {} to {} ({} weeks); today {}. {fit_n} of {} tests fit, {not_n} do not{}.",
+                    "Window {} to {} ({} weeks); today {}.",
                     long_date(plan.window.start),
                     long_date(plan.window.end),
                     weeks(plan).len(),
                     long_date(plan.today),
+                ),
+                width,
+                ""
+            )
+        );
+        // The counts on a line of their own, where the eye finds them.
+        let _ = write!(
+            out,
+            "{}",
+            wrap(
+                &format!(
+                    "{fit_n} of {} tests fit, {not_n} do not{}.",
                     plan.experiments.len(),
                     super::common::closed_note(plan)
                 ),
@@ -621,6 +695,49 @@ mod tests {
             colour,
         };
         String::from_utf8(Text.render(&fixture::plan(), &opts).unwrap()).unwrap()
+    }
+
+    #[test]
+    fn the_table_leaves_out_columns_rather_than_break_an_id() {
+        let plain = fixture::plan();
+        let mut long = fixture::plan();
+        long.experiments[0].id = "a-rather-long-experiment-identifier".to_string();
+        // Where the narrowest table fits, ids stay whole (a 35-character id
+        // needs about 72 columns even with the fewest columns).
+        let cases = [
+            (&plain, 60u16),
+            (&plain, 72),
+            (&long, 80),
+            (&long, 100),
+            (&long, 120),
+            (&long, 160),
+            (&long, 200),
+        ];
+        for (plan, width) in cases {
+            let out = String::from_utf8(
+                Text.render(
+                    plan,
+                    &RenderOptions {
+                        width: Some(width),
+                        colour: false,
+                    },
+                )
+                .unwrap(),
+            )
+            .unwrap();
+            let table = out.split("\nTimeline").next().unwrap();
+            for e in &plan.experiments {
+                assert!(
+                    table.lines().any(|l| l.starts_with(&format!(" {} ", e.id))),
+                    "`{}` whole on one line at {width} columns:\n{table}",
+                    e.id
+                );
+            }
+            assert!(
+                table.lines().all(|l| l.width() <= usize::from(width)),
+                "{table}"
+            );
+        }
     }
 
     #[test]
