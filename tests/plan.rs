@@ -14,6 +14,7 @@ fn repo(rel: &str) -> PathBuf {
 fn sluice(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_sluice"))
         .args(args)
+        .env_remove("COLUMNS")
         .output()
         .expect("the binary runs")
 }
