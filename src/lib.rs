@@ -20,3 +20,4 @@ pub mod render;
 pub mod replan;
 pub mod schedule;
 pub mod sizing;
+pub mod words;

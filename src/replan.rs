@@ -16,6 +16,7 @@ use crate::portfolio::progress::{Progress, State};
 use crate::portfolio::{Portfolio, Scale};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
 use crate::sizing::{self, round_days};
+pub use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
 use std::fmt;
 
@@ -265,19 +266,6 @@ fn outlook(portfolio: &Portfolio, run: &Run, share: f64, today: NaiveDate) -> Ru
     }
     outlook.advice = Some(advice);
     outlook
-}
-
-/// A count with thousands separators: 1234567 -> `1,234,567`.
-pub fn thousands(n: u64) -> String {
-    let digits = n.to_string();
-    let mut out = String::with_capacity(digits.len() + digits.len() / 3);
-    for (i, c) in digits.chars().enumerate() {
-        if i > 0 && (digits.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out
 }
 
 /// Re-plans `portfolio` (with any `--scale` already applied) from `today`
@@ -743,14 +731,5 @@ mod tests {
         assert_eq!(request.excluded[1].reason, "cancelled: legal review");
         assert!(plan.pools[0].days.iter().all(|day| day.running == 0));
         schedule::verify(&p, &request, &plan).unwrap();
-    }
-
-    #[test]
-    fn thousands_separators() {
-        assert_eq!(thousands(0), "0");
-        assert_eq!(thousands(999), "999");
-        assert_eq!(thousands(1000), "1,000");
-        assert_eq!(thousands(2038498), "2,038,498");
-        assert_eq!(thousands(u64::MAX), "18,446,744,073,709,551,615");
     }
 }

@@ -6,6 +6,7 @@
 use super::{Failure, TextOrJson};
 use crate::check::{self, trim, CheckReport};
 use crate::portfolio;
+pub use crate::words::thousands as units;
 use clap::Args;
 use comfy_table::{presets, CellAlignment, Table};
 use std::path::PathBuf;
@@ -40,19 +41,6 @@ pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Failure> {
         }
         TextOrJson::Text => Ok(text(&report).into_bytes()),
     }
-}
-
-/// 1234567 -> "1,234,567".
-pub fn units(n: u64) -> String {
-    let s = n.to_string();
-    let mut out = String::new();
-    for (i, c) in s.chars().enumerate() {
-        if i > 0 && (s.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out
 }
 
 fn table() -> Table {

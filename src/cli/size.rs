@@ -2,6 +2,7 @@
 
 use super::{Failure, TextOrJson};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
+use crate::words::thousands as fmt_units;
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
@@ -304,18 +305,6 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Failure> {
         }
         TextOrJson::Text => Ok(size_text(&report, a).into_bytes()),
     }
-}
-
-fn fmt_units(n: u64) -> String {
-    let s = n.to_string();
-    let mut out = String::new();
-    for (i, c) in s.chars().enumerate() {
-        if i > 0 && (s.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out
 }
 
 fn size_text(r: &SizeReport, a: &SizeArgs) -> String {

@@ -6,6 +6,7 @@
 
 use super::RenderError;
 use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Status};
+pub use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
 
 /// The schedule facts of one scheduled experiment, read from the plan.
@@ -130,19 +131,6 @@ pub fn weeks(plan: &Plan) -> Vec<Week> {
         let end = (start + Duration::days(6)).min(plan.window.end);
         out.push(Week { start, end });
         start += Duration::days(7);
-    }
-    out
-}
-
-/// `1234567` as `1,234,567`.
-pub fn thousands(n: u64) -> String {
-    let digits = n.to_string();
-    let mut out = String::with_capacity(digits.len() + digits.len() / 3);
-    for (i, c) in digits.chars().enumerate() {
-        if i > 0 && (digits.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
     }
     out
 }

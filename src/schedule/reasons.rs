@@ -5,6 +5,7 @@
 
 use super::options::{Instance, Role};
 use super::state::State;
+pub(crate) use crate::words::thousands;
 use chrono::{Datelike, Duration, NaiveDate};
 
 /// A share as a percentage: `50%`, `12.5%`.
@@ -15,19 +16,6 @@ pub(crate) fn percent(share: f64) -> String {
     } else {
         format!("{p:.1}%")
     }
-}
-
-/// A whole number with thousands separators: `123,456`.
-pub(crate) fn thousands(n: u64) -> String {
-    let s = n.to_string();
-    let mut out = String::new();
-    for (i, c) in s.chars().enumerate() {
-        if i > 0 && (s.len() - i).is_multiple_of(3) {
-            out.push(',');
-        }
-        out.push(c);
-    }
-    out
 }
 
 fn number(x: f64) -> String {
