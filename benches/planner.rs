@@ -7,8 +7,27 @@
 //! is that row's alone. With the `highs` feature the benchmark also solves
 //! the exact 0-1 model of small and medium portfolios to record the proven
 //! optimum. Timings are measured, never asserted.
+//!
+//! After the plan rows come re-plan rows (`small-replan`, ...): each size is
+//! planned, then re-planned from the window's middle (the first start-grid
+//! day on or after it) through [`sluice::replan::replan`], the path `sluice
+//! replan` takes. The progress is made up from the plan: tests it started
+//! before today and ending on or after today run, with the forecast's units
+//! from their start to the day before today at their share; tests it ended
+//! before today finished. The pool with the most running tests loses 30% of
+//! its traffic from today (a `--scale POOL=0.7` what-if), so the running
+//! tests there get new ends and the rest of the queue moves. Only the
+//! re-plan is timed; its peak memory is the child's high-water mark after
+//! the first plan, where the kernel lets the mark be reset (else it
+//! includes the first plan). Every re-plan is checked by
+//! [`schedule::verify`]; a failure fails its row, and a failed row makes
+//! the benchmark exit with status 1 once the table is written.
 
+use chrono::{Datelike, Duration, NaiveDate};
 use serde::{Deserialize, Serialize};
+use sluice::forecast::units_on;
+use sluice::portfolio::progress::{Entry, Progress, State};
+use sluice::portfolio::{Portfolio, Scale, StartGrid};
 use sluice::schedule::{self, synthetic, Backend, PlanRequest};
 use std::process::Command;
 use std::time::Instant;
@@ -72,7 +91,138 @@ fn proven_optimum(_: &sluice::portfolio::Portfolio) -> Option<f64> {
     None
 }
 
+/// Resets the process's peak-memory mark (`VmHWM`), so a later reading
+/// covers only what comes after; false where the kernel does not allow it.
+fn reset_peak() -> bool {
+    std::fs::write("/proc/self/clear_refs", "5").is_ok()
+}
+
+/// The re-plan's today: the first start-grid day on or after the window's
+/// middle.
+fn middle_on_grid(portfolio: &Portfolio) -> NaiveDate {
+    let w = portfolio.window;
+    let mut day = w.date(w.days() as i64 / 2);
+    if portfolio.planning.grid == StartGrid::Weekly {
+        while day.weekday() != portfolio.planning.start_weekday {
+            day += Duration::days(1);
+        }
+    }
+    day
+}
+
+/// Where every test of `plan` stands on `today`, as a progress file would
+/// say: running (units = the forecast from its start to the day before
+/// today, times its share) or finished (ended before today). Tests the
+/// plan starts on or after today, or leaves out, are not in it.
+fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDate) -> Progress {
+    let mut entries = Vec::new();
+    for (i, pe) in plan.experiments.iter().enumerate() {
+        let (Some(start), Some(end), Some(share)) = (pe.start, pe.end, pe.share) else {
+            continue;
+        };
+        if start >= today {
+            continue;
+        }
+        let state = if end < today {
+            State::Finished {
+                started: Some(start),
+                ended: Some(end),
+            }
+        } else {
+            let pool = &portfolio.pools[portfolio.experiments[i].pool];
+            let mut units = 0.0;
+            let mut day = start;
+            while day < today {
+                units += share * units_on(pool, day);
+                day += Duration::days(1);
+            }
+            State::Running {
+                started: start,
+                share,
+                units: units.round() as u64,
+                units_per_arm: None,
+            }
+        };
+        entries.push(Entry {
+            experiment: i,
+            state,
+        });
+    }
+    Progress {
+        as_of: today,
+        entries,
+        warnings: Vec::new(),
+    }
+}
+
+/// The pool with the most running tests in `progress` (the first on a tie).
+fn busiest_pool(portfolio: &Portfolio, progress: &Progress) -> usize {
+    let mut running = vec![0usize; portfolio.pools.len()];
+    for e in &progress.entries {
+        if matches!(e.state, State::Running { .. }) {
+            running[portfolio.experiments[e.experiment].pool] += 1;
+        }
+    }
+    (0..running.len())
+        .max_by_key(|&i| (running[i], std::cmp::Reverse(i)))
+        .unwrap_or(0)
+}
+
+/// Plans `size`, then times the re-plan from the window's middle with the
+/// busiest pool at 70% of its forecast from then on.
+fn run_replan_row(size: &str, backend: &str) -> Row {
+    let mut portfolio = synthetic::portfolio(&spec(size));
+    let backend = Backend::from_name(backend).expect("a backend of this build");
+    let request = PlanRequest {
+        backend,
+        time_limit: 25.0,
+        ..PlanRequest::default()
+    };
+    let first = schedule::plan(&portfolio, &request);
+    let today = middle_on_grid(&portfolio);
+    let progress = progress_at(&portfolio, &first, today);
+    let pool = busiest_pool(&portfolio, &progress);
+    portfolio.pools[pool].forecast.scales.push(Scale {
+        from: today,
+        factor: 0.7,
+    });
+    let peak_reset = reset_peak();
+    let clock = Instant::now();
+    let (plan, replan_request) = sluice::replan::replan(&portfolio, &progress, today, &request)
+        .expect("the re-plan of a synthetic portfolio");
+    let seconds = clock.elapsed().as_secs_f64();
+    let peak = peak_mb();
+    if let Err(problems) = schedule::verify(&portfolio, &replan_request, &plan) {
+        panic!(
+            "the {size} re-plan from {today} fails the verifier:\n{}",
+            problems.join("\n")
+        );
+    }
+    if !peak_reset {
+        eprintln!("{size}-replan: the peak memory includes the first plan");
+    }
+    let s = &plan.solver;
+    Row {
+        size: format!("{size}-replan"),
+        backend: s.backend.clone(),
+        seconds,
+        value: s.value,
+        bound: s.bound,
+        optimum: None,
+        value_over_bound: s.value / s.bound,
+        value_over_optimum: None,
+        greedy_over_bound: plan.greedy_value / s.bound,
+        peak_mb: peak,
+        greedy: plan.greedy_value,
+        status: s.status.clone(),
+        verified: true,
+    }
+}
+
 fn run_row(size: &str, backend: &str) -> Row {
+    if let Some(base) = size.strip_suffix("-replan") {
+        return run_replan_row(base, backend);
+    }
     let portfolio = synthetic::portfolio(&spec(size));
     let backend = Backend::from_name(backend).expect("a backend of this build");
     let request = PlanRequest {
@@ -120,10 +270,18 @@ fn main() {
         Ok(s) => s.split(',').map(str::to_string).collect(),
         Err(_) => vec!["small".into(), "medium".into(), "large".into()],
     };
+    // The re-plan rows follow the plan rows, so the plan rows keep their
+    // places in the JSON.
+    let rows_to_run: Vec<String> = sizes
+        .iter()
+        .cloned()
+        .chain(sizes.iter().map(|s| format!("{s}-replan")))
+        .collect();
     let exe = std::env::current_exe().expect("the bench binary");
     let mut rows = Vec::new();
+    let mut failed = false;
     println!(
-        "{:<7} {:<8} {:>8} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8}",
+        "{:<13} {:<8} {:>8} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8}",
         "size",
         "backend",
         "seconds",
@@ -135,7 +293,7 @@ fn main() {
         "g/bound",
         "peak MB"
     );
-    for size in &sizes {
+    for size in &rows_to_run {
         for backend in Backend::available() {
             let out = Command::new(&exe)
                 .env("SLUICE_BENCH_ROW", format!("{size}:{}", backend.name()))
@@ -148,11 +306,12 @@ fn main() {
                     backend.name(),
                     String::from_utf8_lossy(&out.stderr)
                 );
+                failed = true;
                 continue;
             };
             let r: Row = serde_json::from_str(line).expect("the child prints a row");
             println!(
-                "{:<7} {:<8} {:>8.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0}{}",
+                "{:<13} {:<8} {:>8.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0}{}",
                 r.size,
                 r.backend,
                 r.seconds,
@@ -175,5 +334,8 @@ fn main() {
     match std::fs::write(&path, json + "\n") {
         Ok(()) => println!("wrote {}", path.display()),
         Err(e) => eprintln!("cannot write {}: {e}", path.display()),
+    }
+    if failed {
+        std::process::exit(1);
     }
 }

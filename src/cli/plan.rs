@@ -86,20 +86,21 @@ pub fn emit(
     input: &Path,
     prefix: Option<Vec<u8>>,
 ) -> Result<Vec<u8>, Failure> {
-    emit_with(plan, out, input, |_, rendered| {
+    emit_with(plan, out, input, |_, rendered, _| {
         let mut bytes = prefix.unwrap_or_default();
         bytes.extend(rendered);
         bytes
     })
 }
 
-/// [`emit`], with `finish` given the plan and its rendered bytes to make
-/// the bytes written (a re-plan places its changes into the HTML report).
+/// [`emit`], with `finish` given the plan, its rendered bytes and the
+/// render options to make the bytes written (a re-plan places its changes
+/// into the HTML report and lays its text table out for the same width).
 pub fn emit_with(
     mut plan: Plan,
     out: &OutputArgs,
     input: &Path,
-    finish: impl FnOnce(&Plan, Vec<u8>) -> Vec<u8>,
+    finish: impl FnOnce(&Plan, Vec<u8>, &RenderOptions) -> Vec<u8>,
 ) -> Result<Vec<u8>, Failure> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
@@ -111,7 +112,7 @@ pub fn emit_with(
     };
     let rendered = render::render(&plan, out.format, &opts)
         .map_err(|e| Failure::invalid(format!("cannot render the plan: {e}")))?;
-    let bytes = finish(&plan, rendered);
+    let bytes = finish(&plan, rendered, &opts);
     match &out.out {
         None => Ok(bytes),
         Some(path) => {

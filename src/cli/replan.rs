@@ -89,12 +89,16 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
         plan.changes = Some(crate::diff::diff(prev, &plan));
     }
     let format = a.output.format;
-    super::plan::emit_with(plan, &a.output, &a.file, move |plan, rendered| {
+    super::plan::emit_with(plan, &a.output, &a.file, move |plan, rendered, opts| {
         if !changes::has_any(plan) {
             return rendered;
         }
         match format {
-            Format::Text => [changes::text(plan).into_bytes(), rendered].concat(),
+            Format::Text => [
+                changes::text(plan, opts.effective_width()).into_bytes(),
+                rendered,
+            ]
+            .concat(),
             Format::Md => [changes::markdown(plan).into_bytes(), rendered].concat(),
             Format::Html => match String::from_utf8(rendered) {
                 Ok(report) => changes::into_html_report(plan, &report).into_bytes(),

@@ -11,6 +11,7 @@ use super::common::{percent, thousands, units};
 use crate::diff::{ExperimentDiff, Movement, PlanDiff, PoolDiff};
 use crate::plan::{Plan, RunningOutlook, Status};
 use std::fmt::Write as _;
+use unicode_width::UnicodeWidthStr;
 
 /// The text table's style: a rule under the header only, as in the plan's
 /// own table.
@@ -250,33 +251,100 @@ fn cells(e: &ExperimentDiff) -> [String; 8] {
     ]
 }
 
-/// The changes and outlooks as terminal text (no colour).
-pub fn text(plan: &Plan) -> String {
-    use comfy_table::{Cell, CellAlignment, Table};
+/// The text table's columns (indices into [`HEADER`]) from the widest
+/// layout to the narrowest: the old and new share go first, then the pool,
+/// then the old result date (the new one and the slip still give it).
+const TEXT_LAYOUTS: [&[usize]; 4] = [
+    &[0, 1, 2, 3, 4, 5, 6, 7],
+    &[0, 1, 2, 3, 4, 7],
+    &[0, 2, 3, 4, 7],
+    &[0, 3, 4, 7],
+];
+
+/// The "what moved" table with `columns`, fitted to `width` by comfy-table's
+/// dynamic arrangement when given, at its natural width otherwise. No
+/// column is narrower than its longest word, so cells wrap only between
+/// words: an id or a date is never broken.
+fn moved_table(d: &PlanDiff, columns: &[usize], width: Option<usize>) -> comfy_table::Table {
+    use comfy_table::{Cell, CellAlignment, ColumnConstraint, ContentArrangement, Table, Width};
+    let mut t = Table::new();
+    t.load_preset(TABLE_STYLE);
+    t.force_no_tty();
+    match width {
+        Some(w) => {
+            t.set_content_arrangement(ContentArrangement::Dynamic)
+                .set_width(u16::try_from(w).unwrap_or(u16::MAX));
+        }
+        None => {
+            t.set_content_arrangement(ContentArrangement::Disabled);
+        }
+    }
+    t.set_header(columns.iter().map(|&i| HEADER[i]));
+    let rows: Vec<[String; 8]> = ordered(d).into_iter().map(cells).collect();
+    for cells in &rows {
+        t.add_row(columns.iter().map(|&i| {
+            let cell = Cell::new(&cells[i]);
+            if (4..=6).contains(&i) {
+                cell.set_alignment(CellAlignment::Right)
+            } else {
+                cell
+            }
+        }));
+    }
+    let longest_word = |i: usize| {
+        std::iter::once(HEADER[i])
+            .chain(rows.iter().map(|r| r[i].as_str()))
+            .flat_map(str::split_whitespace)
+            .map(UnicodeWidthStr::width)
+            .max()
+            .unwrap_or(1)
+    };
+    // The ids keep their content's width. Elsewhere the lower boundary is
+    // the longest word plus the two columns of padding: comfy-table 7
+    // weighs it against an average that includes the padding, so the bare
+    // word width would still let a date be cut.
+    t.set_constraints(columns.iter().map(|&i| {
+        if i <= 1 {
+            ColumnConstraint::ContentWidth
+        } else {
+            let w = u16::try_from(longest_word(i) + 2).unwrap_or(u16::MAX);
+            ColumnConstraint::LowerBoundary(Width::Fixed(w))
+        }
+    }));
+    t
+}
+
+/// The "what moved" table at `width`: the widest layout of
+/// [`TEXT_LAYOUTS`] that fits unwrapped, else the narrowest with cells
+/// wrapped between words. Words are never broken, so a table of very long
+/// ids can still run past a very narrow width.
+fn moved_table_at(d: &PlanDiff, width: usize) -> comfy_table::Table {
+    let natural = |columns: &[usize]| {
+        moved_table(d, columns, None)
+            .to_string()
+            .lines()
+            .map(UnicodeWidthStr::width)
+            .max()
+            .unwrap_or(0)
+    };
+    let columns = TEXT_LAYOUTS
+        .iter()
+        .copied()
+        .find(|c| natural(c) <= width)
+        .unwrap_or(TEXT_LAYOUTS[TEXT_LAYOUTS.len() - 1]);
+    moved_table(d, columns, Some(width))
+}
+
+/// The changes and outlooks as terminal text (no colour), the table laid
+/// out for `width` columns (see [`moved_table_at`]). The sentences around
+/// it are not wrapped.
+pub fn text(plan: &Plan, width: usize) -> String {
     let mut s = String::new();
     if let Some(d) = &plan.changes {
         let _ = writeln!(s, "What moved since the previous plan");
         let _ = writeln!(s, "{}", headline(d));
         let _ = writeln!(s);
-        let mut t = Table::new();
-        t.load_preset(TABLE_STYLE);
-        t.set_header(HEADER.to_vec());
-        for e in ordered(d) {
-            let row: Vec<Cell> = cells(e)
-                .into_iter()
-                .enumerate()
-                .map(|(i, c)| {
-                    let cell = Cell::new(c);
-                    if (4..=6).contains(&i) {
-                        cell.set_alignment(CellAlignment::Right)
-                    } else {
-                        cell
-                    }
-                })
-                .collect();
-            t.add_row(row);
-        }
-        let _ = writeln!(s, "{t}");
+        let _ = writeln!(s, "{}", moved_table_at(d, width));
         let _ = writeln!(s);
         summary_lines(&mut s, d, "");
         let _ = writeln!(s);
@@ -469,7 +537,7 @@ mod tests {
     #[test]
     fn what_moved_comes_first_with_a_one_line_summary() {
         let plan = replanned();
-        let text = text(&plan);
+        let text = text(&plan, 160);
         assert!(text.contains(
             "\n1 result later (by up to 7 days), 1 no longer fit, 1 now fit, 1 with a new share; 1 finished since.\n"
         ), "{text}");
@@ -495,6 +563,95 @@ mod tests {
             assert!(
                 row_of(&md, pair[0]) < row_of(&md, pair[1]),
                 "{pair:?}\n{md}"
+            );
+        }
+    }
+
+    /// The table's lines in `text`: from the header to the blank line after it.
+    fn table_lines(text: &str) -> Vec<&str> {
+        text.lines()
+            .skip_while(|l| !l.trim_start().starts_with("experiment"))
+            .take_while(|l| !l.trim().is_empty())
+            .collect()
+    }
+
+    #[test]
+    fn the_table_fits_the_width_and_drops_shares_then_pool() {
+        let plan = replanned();
+        let d = plan.changes.as_ref().unwrap();
+        let mut headers = Vec::new();
+        for width in [60, 100, 160] {
+            let out = text(&plan, width);
+            let lines = table_lines(&out);
+            assert!(lines.len() > d.experiments.len(), "{width}:\n{out}");
+            for l in &lines {
+                assert!(
+                    l.width() <= width,
+                    "{width}: {} columns: {l:?}\n{out}",
+                    l.width()
+                );
+            }
+            // Every id is in one piece on one line, in its own cell.
+            for e in &d.experiments {
+                assert!(
+                    lines
+                        .iter()
+                        .any(|l| l.split_whitespace().any(|w| w == e.id)),
+                    "{width}: `{}` is not whole:\n{out}",
+                    e.id
+                );
+            }
+            headers.push(lines[0].to_string());
+        }
+        // Every column at 160; narrower, the shares go first, then the
+        // pool, then the old result; the id, the new result, the slip and
+        // the change always stay.
+        let has = |h: &str, name: &str| h.contains(name);
+        for name in HEADER {
+            assert!(has(&headers[2], name), "{name} in {:?}", headers[2]);
+        }
+        assert!(!has(&headers[0], "old share") && !has(&headers[0], "new share"));
+        for h in &headers {
+            assert!(
+                has(h, "pool") || !has(h, "share"),
+                "pool before shares: {h:?}"
+            );
+            assert!(
+                has(h, "old result") || !has(h, "pool"),
+                "old result before pool: {h:?}"
+            );
+        }
+        for pair in headers.windows(2) {
+            for name in HEADER {
+                assert!(
+                    !has(&pair[0], name) || has(&pair[1], name),
+                    "{name} at 60 or 100 but not wider: {pair:?}"
+                );
+            }
+        }
+        for h in &headers {
+            for kept in ["experiment", "new result", "slip", "change"] {
+                assert!(has(h, kept), "{kept} in {h:?}");
+            }
+        }
+        // At 160 the whole table fits on one line a row, as before.
+        let wide = text(&plan, 160);
+        assert_eq!(table_lines(&wide).len(), d.experiments.len() + 2, "{wide}");
+    }
+
+    #[test]
+    fn ids_stay_whole_even_below_the_narrowest_layout() {
+        let plan = replanned();
+        let d = plan.changes.as_ref().unwrap();
+        let out = text(&plan, 30);
+        let lines = table_lines(&out);
+        for e in &d.experiments {
+            assert!(
+                lines
+                    .iter()
+                    .any(|l| l.split_whitespace().any(|w| w == e.id)),
+                "`{}` is broken:\n{out}",
+                e.id
             );
         }
     }
@@ -557,7 +714,7 @@ mod tests {
             outlook("search-synonyms", true, "re-shared from 10% to 50%"),
             outlook("hero-copy", false, "cannot reach its sample"),
         ];
-        let out = text(&plan);
+        let out = text(&plan, 100);
         let decide = out
             .find("Running tests that need a decision\n  hero-copy: cannot")
             .unwrap();
@@ -569,6 +726,6 @@ mod tests {
         assert!(html.contains(r#"<h2 id="decisions">Running tests that need a decision"#));
         assert!(html.contains(r#"<h2 id="reshared">Running tests given a new share"#));
         plan.running.pop();
-        assert!(!text(&plan).contains("need a decision"));
+        assert!(!text(&plan, 100).contains("need a decision"));
     }
 }
