@@ -60,6 +60,15 @@ pub fn closed_count(plan: &Plan) -> usize {
         .count()
 }
 
+/// "do not" or, for one test, "does not".
+pub fn do_not(n: usize) -> &'static str {
+    if n == 1 {
+        "does not"
+    } else {
+        "do not"
+    }
+}
+
 /// ", 3 finished or cancelled" when any did, else "".
 pub fn closed_note(plan: &Plan) -> String {
     match closed_count(plan) {

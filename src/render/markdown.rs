@@ -66,10 +66,11 @@ impl Renderer for Markdown {
         let _ = writeln!(w, "## Experiment plan: {}\n", escape(&plan.portfolio));
         let _ = writeln!(
             w,
-            "Window {} to {}. {fit} of {} tests fit; {not_fit} do not.\n",
+            "Window {} to {}. {fit} of {} tests fit; {not_fit} {}.\n",
             long_date(plan.window.start),
             long_date(plan.window.end),
-            plan.experiments.len()
+            plan.experiments.len(),
+            super::common::do_not(not_fit)
         );
         if fit > 0 {
             let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");

@@ -648,8 +648,9 @@ impl Renderer for Text {
             "{}",
             wrap(
                 &format!(
-                    "{fit_n} of {} tests fit, {not_n} do not{}.",
+                    "{fit_n} of {} tests fit, {not_n} {}{}.",
                     plan.experiments.len(),
+                    super::common::do_not(not_n),
                     super::common::closed_note(plan)
                 ),
                 width,
