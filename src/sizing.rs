@@ -645,12 +645,26 @@ fn t_power(d: &Design, n_control: f64) -> f64 {
     if !crit.is_finite() {
         return 0.0;
     }
-    let upper = 1.0 - noncentral_t_cdf(crit, df, ncp);
-    if sides == 2.0 {
-        upper + noncentral_t_cdf(-crit, df, ncp)
+    // Past a million degrees of freedom the series of AS 243 (through the
+    // incomplete beta) loses digits; there the normal approximation of the
+    // noncentral t, Abramowitz & Stegun (1964) 26.7.10,
+    // P(T <= t) ~ Phi((t (1 - 1/(4 df)) - ncp) / sqrt(1 + t^2 / (2 df))),
+    // errs by O(1/df^2), far below what a size can show.
+    let cdf = |x: f64| {
+        if df > 1e6 {
+            std_normal()
+                .cdf((x * (1.0 - 1.0 / (4.0 * df)) - ncp) / (1.0 + x * x / (2.0 * df)).sqrt())
+        } else {
+            noncentral_t_cdf(x, df, ncp)
+        }
+    };
+    let upper = 1.0 - cdf(crit);
+    let power = if sides == 2.0 {
+        upper + cdf(-crit)
     } else {
         upper
-    }
+    };
+    power.clamp(0.0, 1.0)
 }
 
 /// Control-arm units before rounding, for a design assumed valid.

@@ -133,6 +133,12 @@ fn two_rates() -> impl Strategy<Value = (f64, f64)> {
         .prop_filter("rates too close", |(a, b)| (a - b).abs() > 0.002)
 }
 
+/// The t method finds its exact size by bisection to a relative tolerance
+/// of 1e-9 (`sizing::bisect`), so two t sizes that meet at the same root
+/// (e.g. where the degrees of freedom reach 1) may differ by that much;
+/// the closed forms are compared at 1e-12.
+const T_TOL: f64 = 1e-9;
+
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(200))]
 
@@ -157,7 +163,7 @@ proptest! {
         let sign = if up { 1.0 } else { -1.0 };
         let n_small = n_exact(&mean(s, sd, sign * d_small * sd, m));
         let n_big = n_exact(&mean(s, sd, sign * d_small * grow * sd, m));
-        prop_assert!(n_big <= n_small * (1.0 + 1e-12), "{n_big} > {n_small}");
+        prop_assert!(n_big <= n_small * (1.0 + T_TOL), "{n_big} > {n_small}");
     }
 
     #[test]
@@ -170,7 +176,7 @@ proptest! {
         for d in [rate(s, p1, p2 - p1, rm), mean(s, 3.0, dz * 3.0, mm)] {
             let a = n_exact(&Design { power: lo, ..d });
             let b = n_exact(&Design { power: hi, ..d });
-            prop_assert!(b >= a * (1.0 - 1e-12), "{:?}: power {lo} needs {a}, {hi} needs {b}", d.method);
+            prop_assert!(b >= a * (1.0 - T_TOL), "{:?}: power {lo} needs {a}, {hi} needs {b}", d.method);
         }
     }
 
@@ -184,7 +190,7 @@ proptest! {
         for d in [rate(s, p1, p2 - p1, rm), mean(s, 3.0, dz * 3.0, mm)] {
             let a = n_exact(&Design { alpha: lo, ..d });
             let b = n_exact(&Design { alpha: hi, ..d });
-            prop_assert!(b <= a * (1.0 + 1e-12), "{:?}: alpha {lo} needs {a}, {hi} needs {b}", d.method);
+            prop_assert!(b <= a * (1.0 + T_TOL), "{:?}: alpha {lo} needs {a}, {hi} needs {b}", d.method);
         }
     }
 
