@@ -27,18 +27,10 @@ pub struct CheckArgs {
 
 /// `sluice check`.
 pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Failure> {
-    let p = portfolio::load(&a.file).map_err(|e| Failure {
-        code: super::EXIT_INVALID,
-        message: e.to_string(),
-    })?;
+    let p = super::plan::load_portfolio(&a.file)?;
     let report = check::check(&p);
     match a.format {
-        TextOrJson::Json => {
-            let mut s = serde_json::to_string_pretty(&report)
-                .map_err(|e| Failure::invalid(e.to_string()))?;
-            s.push('\n');
-            Ok(s.into_bytes())
-        }
+        TextOrJson::Json => super::json_bytes(&report),
         TextOrJson::Text => Ok(text(&report).into_bytes()),
     }
 }

@@ -72,6 +72,16 @@ impl Failure {
     }
 }
 
+/// A value as pretty JSON with a closing newline, for `--format json`.
+pub fn json_bytes(value: &impl serde::Serialize) -> Result<Vec<u8>, Failure> {
+    let mut s = serde_json::to_string_pretty(value).map_err(|e| Failure {
+        code: EXIT_FAILURE,
+        message: format!("cannot write JSON: {e}"),
+    })?;
+    s.push('\n');
+    Ok(s.into_bytes())
+}
+
 /// Entry point of the binary.
 pub fn main() -> ExitCode {
     let cli = match Cli::try_parse() {

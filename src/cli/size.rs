@@ -297,12 +297,7 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Failure> {
         days,
     };
     match a.format {
-        TextOrJson::Json => {
-            let mut s = serde_json::to_string_pretty(&report)
-                .map_err(|e| Failure::invalid(e.to_string()))?;
-            s.push('\n');
-            Ok(s.into_bytes())
-        }
+        TextOrJson::Json => super::json_bytes(&report),
         TextOrJson::Text => Ok(size_text(&report, a).into_bytes()),
     }
 }

@@ -458,11 +458,8 @@ impl Checker<'_> {
         let pool = &p.pools[exp.pool];
         let last = as_of - Duration::days(1);
         if last >= started {
-            let days = (last - started).num_days() as usize + 1;
-            let could: f64 = (0..days)
-                .map(|d| forecast::units_on(pool, started + Duration::days(d as i64)))
-                .sum::<f64>()
-                * share;
+            let series = forecast::Series::new(pool, started, last);
+            let could = series.total(0, series.len() - 1) * share;
             if units as f64 > could * 1.05 + 1.0 {
                 self.warn(
                     &format!("{at}.units"),

@@ -266,19 +266,11 @@ const TEXT_LAYOUTS: [&[usize]; 4] = [
 /// column is narrower than its longest word, so cells wrap only between
 /// words: an id or a date is never broken.
 fn moved_table(d: &PlanDiff, columns: &[usize], width: Option<usize>) -> comfy_table::Table {
-    use comfy_table::{Cell, CellAlignment, ColumnConstraint, ContentArrangement, Table, Width};
+    use comfy_table::{Cell, CellAlignment, ColumnConstraint, Table, Width};
     let mut t = Table::new();
     t.load_preset(TABLE_STYLE);
     t.force_no_tty();
-    match width {
-        Some(w) => {
-            t.set_content_arrangement(ContentArrangement::Dynamic)
-                .set_width(u16::try_from(w).unwrap_or(u16::MAX));
-        }
-        None => {
-            t.set_content_arrangement(ContentArrangement::Disabled);
-        }
-    }
+    super::common::fit_table(&mut t, width);
     t.set_header(columns.iter().map(|&i| HEADER[i]));
     let rows: Vec<[String; 8]> = ordered(d).into_iter().map(cells).collect();
     for cells in &rows {

@@ -200,6 +200,21 @@ from a forecast, so leave a margin and re-plan when traffic moves. Tests that to
 health or vulnerable users go through your organisation's own review, whatever this plan \
 says fits.";
 
+/// Lays `t` out to fit `width` columns (comfy-table's dynamic arrangement),
+/// or at its natural width when there is no width to fit.
+pub fn fit_table(t: &mut comfy_table::Table, width: Option<usize>) {
+    use comfy_table::ContentArrangement;
+    match width {
+        Some(w) => {
+            t.set_content_arrangement(ContentArrangement::Dynamic)
+                .set_width(u16::try_from(w).unwrap_or(u16::MAX));
+        }
+        None => {
+            t.set_content_arrangement(ContentArrangement::Disabled);
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

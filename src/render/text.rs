@@ -287,15 +287,7 @@ fn table_for(
 ) -> Result<Table, RenderError> {
     let mut t = Table::new();
     t.load_preset(TABLE_STYLE);
-    match width {
-        Some(w) => {
-            t.set_content_arrangement(ContentArrangement::Dynamic)
-                .set_width(u16::try_from(w).unwrap_or(u16::MAX));
-        }
-        None => {
-            t.set_content_arrangement(ContentArrangement::Disabled);
-        }
-    }
+    super::common::fit_table(&mut t, width);
     if colour {
         t.enforce_styling();
     } else {
