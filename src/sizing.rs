@@ -736,8 +736,9 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
     }
     // Power rises with n, so rounding the exact root up gives the smallest
     // whole size that reaches the target (for the t method too).
-    let control = round_up(control_exact);
-    let treatment = round_up(treatment_exact);
+    // An arm holds at least one unit, however large the effect.
+    let control = round_up(control_exact).max(1);
+    let treatment = round_up(treatment_exact).max(1);
     // Checked: many arms of a large size must not wrap the total around.
     let total = u64::from(d.arms - 1)
         .checked_mul(treatment)
