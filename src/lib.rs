@@ -19,5 +19,6 @@ pub mod portfolio;
 pub mod render;
 pub mod replan;
 pub mod schedule;
+pub mod share;
 pub mod sizing;
 pub mod words;

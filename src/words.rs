@@ -1,5 +1,9 @@
 //! Wording of numbers shared by every layer (reasons, advice, tables,
-//! reports), so that a count reads the same everywhere.
+//! reports, diagnostics), so that a count, a share or a plural reads the
+//! same everywhere. Nothing else in the crate formats a percentage, groups
+//! thousands or picks a plural ending by hand.
+
+use std::fmt;
 
 /// A whole number with thousands separators: `1234567` -> `1,234,567`.
 pub fn thousands(n: u64) -> String {
@@ -14,9 +18,72 @@ pub fn thousands(n: u64) -> String {
     out
 }
 
+/// A unit count held as a float, rounded to whole units with separators;
+/// `?` for a value that is not a finite count.
+pub fn units(x: f64) -> String {
+    if x.is_finite() && x >= 0.0 {
+        thousands(x.round() as u64)
+    } else {
+        "?".to_string()
+    }
+}
+
+/// A share (a fraction, 0.25) as a percentage: whole percent when it is
+/// within 0.05 points of one (`25%`), else one decimal (`12.5%`).
+pub fn percent(share: f64) -> String {
+    let p = share * 100.0;
+    if (p - p.round()).abs() < 0.05 {
+        format!("{:.0}%", p)
+    } else {
+        format!("{:.1}%", p)
+    }
+}
+
+/// A number rounded to at most `decimals` places, without trailing zeros:
+/// `trimmed(33.0, 2)` is `33`, `trimmed(12.50, 2)` is `12.5`,
+/// `trimmed(0.1 * 70.0, 6)` is `7`. Negative zero prints as `0`.
+pub fn trimmed(x: f64, decimals: usize) -> String {
+    let s = format!("{x:.decimals$}");
+    let s = if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.')
+    } else {
+        s.as_str()
+    };
+    if s == "-0" {
+        "0".to_string()
+    } else {
+        s.to_string()
+    }
+}
+
+/// A noun that agrees with a count, after just's `Count`: `Count("test", 1)`
+/// shows `test`, `Count("test", 3)` shows `tests`. For a word whose plural
+/// is not a plain `s`, use [`agree`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Count<'a>(pub &'a str, pub usize);
+
+impl fmt::Display for Count<'_> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.1 == 1 {
+            f.write_str(self.0)
+        } else {
+            write!(f, "{}s", self.0)
+        }
+    }
+}
+
+/// The form of a word that agrees with `n`: `agree("does", "do", n)`.
+pub fn agree<'a>(one: &'a str, many: &'a str, n: usize) -> &'a str {
+    if n == 1 {
+        one
+    } else {
+        many
+    }
+}
+
 #[cfg(test)]
 mod tests {
-    use super::thousands;
+    use super::*;
 
     #[test]
     fn groups_digits_in_threes() {
@@ -25,5 +92,38 @@ mod tests {
         assert_eq!(thousands(1000), "1,000");
         assert_eq!(thousands(1_234_567), "1,234,567");
         assert_eq!(thousands(u64::MAX), "18,446,744,073,709,551,615");
+        assert_eq!(units(629_759.6), "629,760");
+        assert_eq!(units(f64::NAN), "?");
+        assert_eq!(units(-1.0), "?");
+    }
+
+    #[test]
+    fn percent_drops_needless_decimals() {
+        assert_eq!(percent(0.4), "40%");
+        assert_eq!(percent(1.0), "100%");
+        assert_eq!(percent(0.125), "12.5%");
+        assert_eq!(percent(0.3), "30%");
+        assert_eq!(percent(0.1204), "12%");
+        assert_eq!(percent(0.1 * 0.7), "7%");
+        assert_eq!(percent(0.0), "0%");
+    }
+
+    #[test]
+    fn trimmed_rounds_then_drops_zeros() {
+        assert_eq!(trimmed(33.0, 2), "33");
+        assert_eq!(trimmed(12.5, 2), "12.5");
+        assert_eq!(trimmed(0.1 * 70.0, 6), "7");
+        assert_eq!(trimmed(0.123456789, 4), "0.1235");
+        assert_eq!(trimmed(1500.0, 0), "1500");
+        assert_eq!(trimmed(-0.0001, 2), "0");
+    }
+
+    #[test]
+    fn counts_agree_with_their_number() {
+        assert_eq!(format!("{} {}", 1, Count("test", 1)), "1 test");
+        assert_eq!(format!("{} {}", 0, Count("test", 0)), "0 tests");
+        assert_eq!(format!("{} {}", 3, Count("problem", 3)), "3 problems");
+        assert_eq!(agree("does", "do", 1), "does");
+        assert_eq!(agree("does", "do", 2), "do");
     }
 }
