@@ -99,7 +99,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .collect();
     // Prerequisites first, so each test can start after theirs end.
     let mut done: Vec<Option<ExperimentCheck>> = vec![None; p.experiments.len()];
-    for i in after_order(p) {
+    for &i in &p.after_order {
         let e = &p.experiments[i];
         let start = earliest(p, e, &done);
         done[i] = Some(experiment(p, e, &series[e.pool], start));
@@ -166,33 +166,6 @@ pub fn share_for(p: &Portfolio, e: &Experiment) -> f64 {
             Some(acc.map_or(s, |a| a.max(s)))
         })
         .unwrap_or(e.max_share)
-}
-
-/// Experiment indices with every `after` prerequisite before its
-/// dependants (Kahn's algorithm; ties in file order). The graph is acyclic
-/// in a validated portfolio.
-fn after_order(p: &Portfolio) -> Vec<usize> {
-    let n = p.experiments.len();
-    let mut waiting: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
-    let mut dependants: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for (i, e) in p.experiments.iter().enumerate() {
-        for pre in &e.after {
-            dependants[pre.experiment].push(i);
-        }
-    }
-    let mut ready: std::collections::BTreeSet<usize> =
-        (0..n).filter(|&i| waiting[i] == 0).collect();
-    let mut order = Vec::with_capacity(n);
-    while let Some(i) = ready.pop_first() {
-        order.push(i);
-        for &d in &dependants[i] {
-            waiting[d] -= 1;
-            if waiting[d] == 0 {
-                ready.insert(d);
-            }
-        }
-    }
-    order
 }
 
 /// The first day a solo run of `e` may start, and why not earlier.
@@ -529,7 +502,7 @@ mod tests {
                     \x20 - {id: b, pool: p, baseline: 0.2, mde: 0.1, after: [a]}\n\
                     \x20 - {id: a, pool: p, baseline: 0.2, mde: 0.1}\n";
         let p = load_str(text, "t.yaml").unwrap_or_else(|e| panic!("{e}"));
-        assert_eq!(after_order(&p), vec![2, 1, 0]);
+        assert_eq!(p.after_order, vec![2, 1, 0]);
         let r = check(&p);
         let ids: Vec<&str> = r.experiments.iter().map(|e| e.id.as_str()).collect();
         assert_eq!(ids, ["c", "b", "a"], "the report keeps file order");
@@ -616,7 +589,7 @@ mod tests {
                 Ok(p) => {
                     let r = check(&p);
                     prop_assert_eq!(r.experiments.len(), 1);
-                    prop_assert_eq!(r.window_days, 70);eprintln!("OKCASE");
+                    prop_assert_eq!(r.window_days, 70);
                 }
                 Err(e) => prop_assert!(!e.diagnostics.is_empty()),
             }

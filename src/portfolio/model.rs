@@ -82,6 +82,20 @@ pub struct Planning {
     pub reshare_running: bool,
 }
 
+impl Default for Planning {
+    /// What a file without `planning` gets (with whole weeks on): the
+    /// weekly grid on Mondays, a lateness weight of 0.5, running tests
+    /// keep their share.
+    fn default() -> Planning {
+        Planning {
+            grid: StartGrid::Weekly,
+            start_weekday: Weekday::Mon,
+            lateness_weight: 0.5,
+            reshare_running: false,
+        }
+    }
+}
+
 fn serialize_weekday<S: serde::Serializer>(w: &Weekday, s: S) -> Result<S::Ok, S::Error> {
     s.serialize_str(&w.to_string())
 }
@@ -228,6 +242,11 @@ pub struct Portfolio {
     pub pools: Vec<Pool>,
     pub experiments: Vec<Experiment>,
     pub blackouts: Vec<Blackout>,
+    /// Every experiment index once, each `after` prerequisite before its
+    /// dependants, ties in file order: [`after_order`] of `experiments`,
+    /// computed once when the portfolio is validated. Not part of the file.
+    #[serde(skip)]
+    pub after_order: Vec<usize>,
 }
 
 impl Portfolio {
@@ -238,4 +257,31 @@ impl Portfolio {
     pub fn experiment_index(&self, id: &str) -> Option<usize> {
         self.experiments.iter().position(|e| e.id == id)
     }
+}
+
+/// Experiment indices ordered so every `after` prerequisite comes before
+/// its dependants, ties in file order (Kahn's algorithm, always taking the
+/// lowest ready index); `None` when the `after` graph has a cycle.
+pub fn after_order(experiments: &[Experiment]) -> Option<Vec<usize>> {
+    let n = experiments.len();
+    let mut waiting: Vec<usize> = experiments.iter().map(|e| e.after.len()).collect();
+    let mut dependants: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for (i, e) in experiments.iter().enumerate() {
+        for pre in &e.after {
+            dependants[pre.experiment].push(i);
+        }
+    }
+    let mut ready: std::collections::BTreeSet<usize> =
+        (0..n).filter(|&i| waiting[i] == 0).collect();
+    let mut order = Vec::with_capacity(n);
+    while let Some(i) = ready.pop_first() {
+        order.push(i);
+        for &d in &dependants[i] {
+            waiting[d] -= 1;
+            if waiting[d] == 0 {
+                ready.insert(d);
+            }
+        }
+    }
+    (order.len() == n).then_some(order)
 }

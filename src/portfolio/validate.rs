@@ -273,7 +273,7 @@ pub fn validate(
     let planning = planning(&mut cx, raw.planning.unwrap_or_default(), &defaults);
     let pools = pools(&mut cx, raw.pools.unwrap_or_default());
     let pool_ids = Names::new(pools.iter().map(|p| p.id.as_str()));
-    let experiments = experiments(
+    let (experiments, after_order) = experiments(
         &mut cx,
         raw.experiments.unwrap_or_default(),
         &pool_ids,
@@ -294,6 +294,7 @@ pub fn validate(
         return Err(cx.diags);
     }
     let window = window.expect("a window without diagnostics is valid");
+    let after_order = after_order.expect("an `after` graph without diagnostics is acyclic");
     Ok(Portfolio {
         name,
         window,
@@ -303,6 +304,7 @@ pub fn validate(
         pools,
         experiments,
         blackouts,
+        after_order,
     })
 }
 
@@ -437,8 +439,9 @@ fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
 }
 
 fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
+    let fallback = Planning::default();
     let default_grid = if d.whole_weeks {
-        StartGrid::Weekly
+        fallback.grid
     } else {
         StartGrid::Daily
     };
@@ -469,9 +472,9 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
             ("sat", Weekday::Sat),
             ("sun", Weekday::Sun),
         ],
-        Weekday::Mon,
+        fallback.start_weekday,
     );
-    let lateness_weight = p.lateness_weight.unwrap_or(0.5);
+    let lateness_weight = p.lateness_weight.unwrap_or(fallback.lateness_weight);
     cx.number(
         "planning.lateness_weight",
         "",
@@ -484,7 +487,7 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         grid,
         start_weekday,
         lateness_weight,
-        reshare_running: p.reshare_running.unwrap_or(false),
+        reshare_running: p.reshare_running.unwrap_or(fallback.reshare_running),
     }
 }
 
@@ -755,7 +758,7 @@ fn experiments(
     d: &Defaults,
     defaults_ok: bool,
     share_levels: &[f64],
-) -> Vec<Experiment> {
+) -> (Vec<Experiment>, Option<Vec<usize>>) {
     let ids = ids(
         cx,
         "experiments",
@@ -952,8 +955,12 @@ fn experiments(
         e.not_with.sort_unstable();
         e.not_with.dedup();
     }
-    cycles(cx, &out);
-    out
+    // The order every later stage reads; only a cycle stops it.
+    let order = after_order(&out);
+    if order.is_none() {
+        cycles(cx, &out);
+    }
+    (out, order)
 }
 
 /// The design of one experiment: its overrides over the defaults, each

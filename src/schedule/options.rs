@@ -155,7 +155,7 @@ impl<'a> Instance<'a> {
         };
         // Options in topological order so a test's bound can use its free
         // predecessors' earliest ends.
-        for e in topological_order(portfolio) {
+        for &e in &portfolio.after_order {
             if inst.roles[e] == Role::Free {
                 inst.lo_start[e] = inst.earliest_start(e, today);
                 inst.options[e] = inst.enumerate(e);
@@ -379,36 +379,4 @@ impl<'a> Instance<'a> {
             })
             .sum()
     }
-}
-
-/// Experiments ordered so every predecessor comes before its successors
-/// (the portfolio's `after` graph is acyclic); ties in portfolio order.
-pub(crate) fn topological_order(p: &Portfolio) -> Vec<usize> {
-    let n = p.experiments.len();
-    let mut indegree: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
-    let mut succ = vec![Vec::new(); n];
-    for (b, e) in p.experiments.iter().enumerate() {
-        for pre in &e.after {
-            succ[pre.experiment].push(b);
-        }
-    }
-    let mut ready: std::collections::BTreeSet<usize> =
-        (0..n).filter(|&e| indegree[e] == 0).collect();
-    let mut order = Vec::with_capacity(n);
-    while let Some(e) = ready.pop_first() {
-        order.push(e);
-        for &s in &succ[e] {
-            indegree[s] -= 1;
-            if indegree[s] == 0 {
-                ready.insert(s);
-            }
-        }
-    }
-    // A cycle cannot reach here from a validated portfolio; keep the rest
-    // in portfolio order rather than lose them.
-    if order.len() < n {
-        let seen: std::collections::BTreeSet<usize> = order.iter().copied().collect();
-        order.extend((0..n).filter(|e| !seen.contains(e)));
-    }
-    order
 }

@@ -241,12 +241,11 @@ fn exact_milp(
     for &e in exps {
         cand.remove(inst, e);
     }
-    let order = super::options::topological_order(inst.portfolio);
     let mut pos = vec![usize::MAX; inst.roles.len()];
     for (i, &e) in exps.iter().enumerate() {
         pos[e] = i;
     }
-    for e in order {
+    for &e in &inst.portfolio.after_order {
         let i = pos[e];
         if i == usize::MAX {
             continue;
@@ -297,9 +296,8 @@ fn branch_and_bound(
         forced: vec![false; exps.len()],
         parent: f64::INFINITY,
     }];
-    let order = super::options::topological_order(inst.portfolio);
     let mut rank = vec![0usize; inst.roles.len()];
-    for (r, &e) in order.iter().enumerate() {
+    for (r, &e) in inst.portfolio.after_order.iter().enumerate() {
         rank[e] = r;
     }
     let mut by_rank: Vec<usize> = (0..exps.len()).collect();
@@ -686,8 +684,7 @@ fn lns(
 pub(crate) fn chain_priority(inst: &Instance) -> Vec<f64> {
     let p = inst.portfolio;
     let mut eff: Vec<f64> = p.experiments.iter().map(|e| e.priority).collect();
-    let order = super::options::topological_order(p);
-    for &e in order.iter().rev() {
+    for &e in p.after_order.iter().rev() {
         for &(s, _) in &inst.succs[e] {
             eff[e] = eff[e].max(eff[s]);
         }

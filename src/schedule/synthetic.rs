@@ -10,11 +10,11 @@
 
 use super::search::SplitMix64;
 use crate::portfolio::{
-    Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast, Planning, Pool,
-    Portfolio, Prerequisite, Sharing, StartGrid, Window,
+    after_order, Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast,
+    Planning, Pool, Portfolio, Prerequisite, Sharing, Window,
 };
 use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
-use chrono::{Duration, NaiveDate, Weekday};
+use chrono::{Duration, NaiveDate};
 
 /// The size and seed of a synthetic portfolio.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -210,13 +210,9 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             whole_weeks: true,
         },
         share_levels: SHARE_LEVELS.to_vec(),
-        planning: Planning {
-            grid: StartGrid::Weekly,
-            start_weekday: Weekday::Mon,
-            lateness_weight: 0.5,
-            reshare_running: false,
-        },
+        planning: Planning::default(),
         pools,
+        after_order: after_order(&experiments).expect("`after` links point back, so never round"),
         experiments,
         blackouts,
     }

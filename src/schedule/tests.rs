@@ -7,7 +7,7 @@
 use super::*;
 use crate::plan::Status;
 use crate::portfolio::{
-    Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
+    after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
 use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
@@ -80,13 +80,9 @@ fn portfolio(pools: Vec<Pool>, experiments: Vec<Experiment>) -> Portfolio {
             whole_weeks: true,
         },
         share_levels: vec![0.5, 1.0],
-        planning: Planning {
-            grid: StartGrid::Weekly,
-            start_weekday: Weekday::Mon,
-            lateness_weight: 0.5,
-            reshare_running: false,
-        },
+        planning: Planning::default(),
         pools,
+        after_order: after_order(&experiments).expect("hand-built `after` links have no cycle"),
         experiments,
         blackouts: Vec::new(),
     }
