@@ -57,6 +57,23 @@ pub struct Defaults {
     pub whole_weeks: bool,
 }
 
+impl Default for Defaults {
+    /// What a file without `defaults` gets: alpha 0.05, power 0.8, two
+    /// sides, the pooled and t methods, Bonferroni, 14 days, whole weeks.
+    fn default() -> Defaults {
+        Defaults {
+            alpha: 0.05,
+            power: 0.8,
+            sides: Sides::Two,
+            rate_method: Method::Pooled,
+            mean_method: Method::T,
+            correction: Correction::Bonferroni,
+            min_days: 14,
+            whole_weeks: true,
+        }
+    }
+}
+
 /// Where tests may start.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]

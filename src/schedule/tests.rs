@@ -10,7 +10,7 @@ use crate::portfolio::{
     after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
-use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
+use crate::sizing::{Design, Effect, Metric};
 use chrono::Weekday;
 use proptest::prelude::*;
 
@@ -40,15 +40,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         owner: "tests".into(),
         pool,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
-        need: SampleSize {
-            control_exact: need as f64 / 2.0,
-            treatment_exact: need as f64 / 2.0,
-            control: need / 2,
-            treatment: need / 2,
-            arms: 2,
-            total: need,
-            comparison_alpha: 0.05,
-        },
+        need: super::synthetic::two_arm_need(need),
         priority,
         earliest_start: None,
         deadline: None,
@@ -70,14 +62,8 @@ fn portfolio(pools: Vec<Pool>, experiments: Vec<Experiment>) -> Portfolio {
             end: d("2027-01-31"),
         },
         defaults: Defaults {
-            alpha: 0.05,
-            power: 0.8,
-            sides: Sides::Two,
-            rate_method: Method::Pooled,
-            mean_method: Method::T,
-            correction: Correction::Bonferroni,
             min_days: 7,
-            whole_weeks: true,
+            ..Defaults::default()
         },
         share_levels: vec![0.5, 1.0],
         planning: Planning::default(),
