@@ -302,3 +302,53 @@ pub fn after_order(experiments: &[Experiment]) -> Option<Vec<usize>> {
     }
     (order.len() == n).then_some(order)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::sizing::{Effect, Metric};
+
+    /// Experiments whose `after` lists name the given indices.
+    fn graph(after: &[&[usize]]) -> Vec<Experiment> {
+        after
+            .iter()
+            .enumerate()
+            .map(|(i, pre)| Experiment {
+                id: format!("t{i}"),
+                title: String::new(),
+                owner: String::new(),
+                pool: 0,
+                design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
+                need: crate::schedule::synthetic::two_arm_need(1000),
+                priority: 1.0,
+                earliest_start: None,
+                deadline: None,
+                max_share: 1.0,
+                min_days: 14,
+                whole_weeks: true,
+                after: pre
+                    .iter()
+                    .map(|&experiment| Prerequisite {
+                        experiment,
+                        gap_days: 0,
+                    })
+                    .collect(),
+                not_with: Vec::new(),
+            })
+            .collect()
+    }
+
+    #[test]
+    fn prerequisites_come_first_and_ties_keep_file_order() {
+        // 0 waits for 3, 2 waits for 0 and 1; 1 and 3 wait for nothing.
+        let order = after_order(&graph(&[&[3], &[], &[0, 1], &[]])).unwrap();
+        assert_eq!(order, vec![1, 3, 0, 2]);
+        assert_eq!(after_order(&graph(&[&[], &[], &[]])), Some(vec![0, 1, 2]));
+    }
+
+    #[test]
+    fn a_cycle_has_no_order() {
+        assert_eq!(after_order(&graph(&[&[1], &[0]])), None);
+        assert_eq!(after_order(&graph(&[&[], &[2], &[3], &[1]])), None);
+    }
+}

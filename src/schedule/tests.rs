@@ -549,6 +549,47 @@ proptest! {
 }
 
 proptest! {
+    #![proptest_config(ProptestConfig { cases: 100, ..ProptestConfig::default() })]
+
+    /// `check`'s solo run and the planner's options agree: a test with no
+    /// `after` link starts its earliest solo run, at its largest share, on
+    /// the first day any of its options starts, and ends it on the
+    /// earliest end among the options starting that day.
+    #[test]
+    fn the_earliest_solo_run_is_the_earliest_option(
+        tests in 1usize..9,
+        pools in 1usize..4,
+        weeks in 3usize..11,
+        seed in 0u64..1_000_000,
+        daily in any::<bool>(),
+    ) {
+        let mut p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
+        if daily {
+            p.planning.grid = StartGrid::Daily;
+            p.planning.start_weekday = Weekday::Wed;
+            for e in &mut p.experiments {
+                e.whole_weeks = false;
+                e.min_days = 3;
+            }
+        }
+        let inst = Instance::new(&p, &PlanRequest::default());
+        for (e, ex) in p.experiments.iter().enumerate() {
+            if !ex.after.is_empty() {
+                continue;
+            }
+            let share = *inst.shares(e).last().unwrap();
+            let solo = inst.earliest_solo(e, share, inst.lo_start[e] as usize);
+            let first = inst.options[e].iter().map(|o| o.start).min();
+            let want = first.map(|s| {
+                let end = inst.options[e].iter().filter(|o| o.start == s).map(|o| o.end).min();
+                (s, end.unwrap())
+            });
+            prop_assert_eq!(solo.run, want, "test {} of seed {}", e, seed);
+        }
+    }
+}
+
+proptest! {
     #![proptest_config(ProptestConfig { cases: 60, ..ProptestConfig::default() })]
 
     /// The daily grid, runs of any length, a minimum run of 3 to 20 days
