@@ -26,8 +26,8 @@
 use chrono::{Datelike, Duration, NaiveDate};
 use serde::{Deserialize, Serialize};
 use sluice::forecast::units_on;
-use sluice::portfolio::progress::{Entry, Progress, State};
 use sluice::portfolio::{Portfolio, Scale, StartGrid};
+use sluice::replan::progress::{Entry, Progress, State};
 use sluice::schedule::{self, synthetic, Backend, PlanRequest};
 use std::process::Command;
 use std::time::Instant;

@@ -5,15 +5,18 @@
 //! the window's first day, and whether it fits the window on its own (its
 //! earliest start, deadline, start grid and blackouts respected, and its
 //! `after` prerequisites' own solo runs plus gaps; every other test
-//! ignored). Per pool: the units the window offers against the
-//! units its experiments need. Durations come day by day from
+//! ignored). The earliest solo run comes from the planner's own
+//! `schedule::Instance::earliest_solo`, so `check` and `plan` apply one
+//! start grid and one set of blackout rules. Per pool: the units the
+//! window offers against the units its experiments need. Durations come day by day from
 //! [`forecast::Series::run_end`]. No formatting here: the CLI renders the
 //! [`CheckReport`].
 
 use crate::forecast::Series;
-use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Sharing, StartGrid};
+use crate::portfolio::{Experiment, Portfolio, Sharing};
+use crate::schedule::{Instance, PlanRequest};
 use crate::sizing::Metric;
-use chrono::{Datelike, Duration, NaiveDate};
+use chrono::{Duration, NaiveDate};
 use serde::Serialize;
 
 /// How far past the window's first day a run is followed to tell how long
@@ -97,12 +100,14 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .iter()
         .map(|pool| Series::new(pool, w.start, horizon_end.max(w.end)))
         .collect();
+    // The planner's view of the portfolio, for its start grid and blackouts.
+    let inst = Instance::new(p, &PlanRequest::default());
     // Prerequisites first, so each test can start after theirs end.
     let mut done: Vec<Option<ExperimentCheck>> = vec![None; p.experiments.len()];
-    for i in after_order(p) {
+    for &i in &p.after_order {
         let e = &p.experiments[i];
         let start = earliest(p, e, &done);
-        done[i] = Some(experiment(p, e, &series[e.pool], start));
+        done[i] = Some(experiment(&inst, i, &series[e.pool], start));
     }
     let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
@@ -168,33 +173,6 @@ pub fn share_for(p: &Portfolio, e: &Experiment) -> f64 {
         .unwrap_or(e.max_share)
 }
 
-/// Experiment indices with every `after` prerequisite before its
-/// dependants (Kahn's algorithm; ties in file order). The graph is acyclic
-/// in a validated portfolio.
-fn after_order(p: &Portfolio) -> Vec<usize> {
-    let n = p.experiments.len();
-    let mut waiting: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
-    let mut dependants: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for (i, e) in p.experiments.iter().enumerate() {
-        for pre in &e.after {
-            dependants[pre.experiment].push(i);
-        }
-    }
-    let mut ready: std::collections::BTreeSet<usize> =
-        (0..n).filter(|&i| waiting[i] == 0).collect();
-    let mut order = Vec::with_capacity(n);
-    while let Some(i) = ready.pop_first() {
-        order.push(i);
-        for &d in &dependants[i] {
-            waiting[d] -= 1;
-            if waiting[d] == 0 {
-                ready.insert(d);
-            }
-        }
-    }
-    order
-}
-
 /// The first day a solo run of `e` may start, and why not earlier.
 #[derive(Debug, Clone, PartialEq)]
 enum Earliest {
@@ -226,18 +204,20 @@ fn earliest(p: &Portfolio, e: &Experiment, done: &[Option<ExperimentCheck>]) -> 
     Earliest::From(first, because)
 }
 
-fn experiment(p: &Portfolio, e: &Experiment, series: &Series, start: Earliest) -> ExperimentCheck {
+fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> ExperimentCheck {
+    let p = inst.portfolio;
+    let e = &p.experiments[i];
     let w = p.window;
     let share = share_for(p, e);
     let need = e.need.total as f64;
     let from_start = series.run_end(0, share, need, e.min_days, e.whole_weeks);
     let (days, end) = match from_start {
-        Some(i) => (Some(i as u32 + 1), Some(w.date(i as i64))),
+        Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
     };
     let pool = &p.pools[e.pool];
     let (solo, reason) = match start {
-        Earliest::From(first, because) => solo_fit(p, e, series, share, first, because),
+        Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
         Earliest::Blocked(pre) => (
             None,
             Some(format!(
@@ -267,57 +247,24 @@ fn experiment(p: &Portfolio, e: &Experiment, series: &Series, start: Earliest) -
     }
 }
 
-/// The earliest run of `e` alone that fits, or why none does.
+/// The earliest run of experiment `i` alone that fits, as the planner's
+/// `Instance` finds it from `first` on, or why none does.
 fn solo_fit(
-    p: &Portfolio,
-    e: &Experiment,
+    inst: &Instance,
+    i: usize,
     series: &Series,
     share: f64,
     first: NaiveDate,
     because: Option<String>,
 ) -> (Option<(NaiveDate, NaiveDate)>, Option<String>) {
+    let p = inst.portfolio;
+    let e = &p.experiments[i];
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
-    let blocked = |date: NaiveDate, kind: BlackoutKind| {
-        p.blackouts
-            .iter()
-            .any(|b| b.kind == kind && b.covers(date, e.pool))
-    };
     let need = e.need.total as f64;
-    let mut ran_out = false;
-    let mut blocked_by_running = false;
-    let mut any_start = false;
-    let mut day = first;
-    while day <= last {
-        let on_grid = match p.planning.grid {
-            StartGrid::Daily => true,
-            StartGrid::Weekly => day.weekday() == p.planning.start_weekday,
-        };
-        if on_grid && !blocked(day, BlackoutKind::NoStarts) {
-            any_start = true;
-            let i = w.offset(day) as usize;
-            match series.run_end(i, share, need, e.min_days, e.whole_weeks) {
-                Some(j) => {
-                    let end = w.date(j as i64);
-                    if end > last {
-                        ran_out = true;
-                        break;
-                    }
-                    let crosses = std::iter::successors(Some(day), |d| d.succ_opt())
-                        .take_while(|d| *d <= end)
-                        .any(|d| blocked(d, BlackoutKind::NoRunning));
-                    if !crosses {
-                        return (Some((day, end)), None);
-                    }
-                    blocked_by_running = true;
-                }
-                None => {
-                    ran_out = true;
-                    break;
-                }
-            }
-        }
-        day += Duration::days(1);
+    let solo = inst.earliest_solo(i, share, w.offset(first).max(0) as usize);
+    if let Some((start, end)) = solo.run {
+        return (Some((w.date(start as i64), w.date(end as i64))), None);
     }
     let pct = format!("{}%", trim(share * 100.0));
     let until = if e.deadline.is_some_and(|d| d < w.end) {
@@ -332,11 +279,11 @@ fn solo_fit(
             ),
             None => format!("it may start only on {first}, later than {until}"),
         }
-    } else if !any_start {
+    } else if !solo.any_start {
         format!("no allowed start day between {first} and {last} (start grid, freezes)")
-    } else if blocked_by_running {
+    } else if solo.crossed {
         format!("every run at {pct} that ends by {until} crosses a no-running blackout")
-    } else if ran_out {
+    } else if solo.ran_out {
         let start = match (&because, first > w.start) {
             (Some(pre), _) => format!(" even from {first}, after `{pre}` ends"),
             (None, true) => format!(" even from its earliest start {first}"),
@@ -529,7 +476,7 @@ mod tests {
                     \x20 - {id: b, pool: p, baseline: 0.2, mde: 0.1, after: [a]}\n\
                     \x20 - {id: a, pool: p, baseline: 0.2, mde: 0.1}\n";
         let p = load_str(text, "t.yaml").unwrap_or_else(|e| panic!("{e}"));
-        assert_eq!(after_order(&p), vec![2, 1, 0]);
+        assert_eq!(p.after_order, vec![2, 1, 0]);
         let r = check(&p);
         let ids: Vec<&str> = r.experiments.iter().map(|e| e.id.as_str()).collect();
         assert_eq!(ids, ["c", "b", "a"], "the report keeps file order");
@@ -616,7 +563,7 @@ mod tests {
                 Ok(p) => {
                     let r = check(&p);
                     prop_assert_eq!(r.experiments.len(), 1);
-                    prop_assert_eq!(r.window_days, 70);eprintln!("OKCASE");
+                    prop_assert_eq!(r.window_days, 70);
                 }
                 Err(e) => prop_assert!(!e.diagnostics.is_empty()),
             }

@@ -7,8 +7,7 @@
 
 use chrono::NaiveDate;
 use serde_json::Value;
-use sluice::portfolio::progress::load_progress;
-use sluice::replan::{self, ScaleArg};
+use sluice::replan::{self, load_progress, ScaleArg};
 use sluice::schedule::{self, PlanRequest};
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
@@ -260,9 +259,9 @@ fn the_scenario_keeps_running_tests_passes_the_verifier_and_diffs_exactly() {
     assert_eq!(list(&changes["now_fit"]), now);
 
     // The independent verifier on the same re-plan, made through the library.
-    let mut portfolio = sluice::portfolio::load(&repo("portfolios/demo.yaml")).unwrap();
+    let portfolio = sluice::portfolio::load(&repo("portfolios/demo.yaml")).unwrap();
     let scales: Vec<ScaleArg> = vec![scale.parse().unwrap()];
-    replan::apply_scales(&mut portfolio, &scales, d(DAY30)).unwrap();
+    let portfolio = replan::with_scales(&portfolio, &scales, d(DAY30)).unwrap();
     let progress = load_progress(Path::new(progress), &portfolio, d(DAY30)).unwrap();
     let (plan, request) =
         replan::replan(&portfolio, &progress, d(DAY30), &PlanRequest::default()).unwrap();

@@ -6,9 +6,8 @@
 use super::plan::{load_portfolio, OutputArgs, SolverArgs};
 use super::Failure;
 use crate::plan::Plan;
-use crate::portfolio::progress;
 use crate::render::{changes, Format};
-use crate::replan::{self, ScaleArg};
+use crate::replan::{self, progress, ScaleArg};
 use chrono::NaiveDate;
 use clap::Args;
 use std::path::PathBuf;
@@ -63,7 +62,7 @@ fn read_previous(path: &PathBuf) -> Result<Plan, Failure> {
 /// `sluice replan`.
 pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
     let base = a.solver.request()?;
-    let mut portfolio = load_portfolio(&a.file)?;
+    let portfolio = load_portfolio(&a.file)?;
     let w = portfolio.window;
     if a.today > w.end {
         return Err(Failure::invalid(format!(
@@ -72,7 +71,7 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
         )));
     }
     let today = a.today.max(w.start);
-    replan::apply_scales(&mut portfolio, &a.scale, today)
+    let portfolio = replan::with_scales(&portfolio, &a.scale, today)
         .map_err(|e| Failure::invalid(e.to_string()))?;
     let progress =
         progress::load_progress(&a.progress, &portfolio, a.today).map_err(|e| Failure {

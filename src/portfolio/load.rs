@@ -92,7 +92,7 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
 
 /// The position index of `body`: `None` when the YAML parser rejects it
 /// (serde then reports the syntax error), an error when it nests too deep.
-pub(super) fn index_of(
+pub(crate) fn index_of(
     body: &str,
     file_name: &str,
 ) -> Result<Option<PositionIndex>, Vec<Diagnostic>> {
@@ -111,7 +111,7 @@ pub(super) fn index_of(
 
 /// Pass 1: keys no raw struct accepts, all of them. `allowed_keys` maps a
 /// path shape (`pools[].adjustments[]`) to the keys its struct accepts.
-pub(super) fn unknown_keys(
+pub(crate) fn unknown_keys(
     ix: &PositionIndex,
     text: &str,
     file: &str,
@@ -166,7 +166,7 @@ pub(super) fn unknown_keys(
 }
 
 /// Pass 2: a serde_yaml error as a diagnostic.
-pub(super) fn from_serde(
+pub(crate) fn from_serde(
     e: &serde_yaml::Error,
     text: &str,
     file: &str,

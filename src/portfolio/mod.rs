@@ -3,17 +3,21 @@
 //! `model` holds the validated types every later stage reads. The loader
 //! (YAML to raw serde structs to the validated model, with errors that name
 //! the file, line and key) lives in `load`, `raw`, `position` and
-//! `validate` (and `progress`, the re-plan's progress file), the only code that touches the YAML crates (`position`,
-//! the key-and-value position index, is public for other loaders of YAML
-//! files). docs/portfolio.md documents the file.
+//! `validate`, the only code that touches the YAML crates besides the
+//! re-plan's progress file (`crate::replan::progress`), which shares the
+//! loader's passes and its `Checker`; `position`, the key-and-value
+//! position index, is public for other loaders of YAML files.
+//! docs/portfolio.md documents the file.
 
+mod checker;
 mod load;
 pub mod model;
 pub mod position;
-pub mod progress;
 pub mod raw;
 mod validate;
 
+pub(crate) use checker::Checker;
+pub(crate) use load::{from_serde, index_of, unknown_keys};
 pub use load::{load, load_str, LoadError};
 pub use model::*;
 pub use validate::DEFAULT_SHARE_LEVELS;

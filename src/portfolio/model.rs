@@ -57,6 +57,23 @@ pub struct Defaults {
     pub whole_weeks: bool,
 }
 
+impl Default for Defaults {
+    /// What a file without `defaults` gets: alpha 0.05, power 0.8, two
+    /// sides, the pooled and t methods, Bonferroni, 14 days, whole weeks.
+    fn default() -> Defaults {
+        Defaults {
+            alpha: 0.05,
+            power: 0.8,
+            sides: Sides::Two,
+            rate_method: Method::Pooled,
+            mean_method: Method::T,
+            correction: Correction::Bonferroni,
+            min_days: 14,
+            whole_weeks: true,
+        }
+    }
+}
+
 /// Where tests may start.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
@@ -80,6 +97,20 @@ pub struct Planning {
     pub lateness_weight: f64,
     /// Whether a re-plan may change the share of a running test.
     pub reshare_running: bool,
+}
+
+impl Default for Planning {
+    /// What a file without `planning` gets (with whole weeks on): the
+    /// weekly grid on Mondays, a lateness weight of 0.5, running tests
+    /// keep their share.
+    fn default() -> Planning {
+        Planning {
+            grid: StartGrid::Weekly,
+            start_weekday: Weekday::Mon,
+            lateness_weight: 0.5,
+            reshare_running: false,
+        }
+    }
 }
 
 fn serialize_weekday<S: serde::Serializer>(w: &Weekday, s: S) -> Result<S::Ok, S::Error> {
@@ -228,6 +259,11 @@ pub struct Portfolio {
     pub pools: Vec<Pool>,
     pub experiments: Vec<Experiment>,
     pub blackouts: Vec<Blackout>,
+    /// Every experiment index once, each `after` prerequisite before its
+    /// dependants, ties in file order: [`after_order`] of `experiments`,
+    /// computed once when the portfolio is validated. Not part of the file.
+    #[serde(skip)]
+    pub after_order: Vec<usize>,
 }
 
 impl Portfolio {
@@ -237,5 +273,82 @@ impl Portfolio {
 
     pub fn experiment_index(&self, id: &str) -> Option<usize> {
         self.experiments.iter().position(|e| e.id == id)
+    }
+}
+
+/// Experiment indices ordered so every `after` prerequisite comes before
+/// its dependants, ties in file order (Kahn's algorithm, always taking the
+/// lowest ready index); `None` when the `after` graph has a cycle.
+pub fn after_order(experiments: &[Experiment]) -> Option<Vec<usize>> {
+    let n = experiments.len();
+    let mut waiting: Vec<usize> = experiments.iter().map(|e| e.after.len()).collect();
+    let mut dependants: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for (i, e) in experiments.iter().enumerate() {
+        for pre in &e.after {
+            dependants[pre.experiment].push(i);
+        }
+    }
+    let mut ready: std::collections::BTreeSet<usize> =
+        (0..n).filter(|&i| waiting[i] == 0).collect();
+    let mut order = Vec::with_capacity(n);
+    while let Some(i) = ready.pop_first() {
+        order.push(i);
+        for &d in &dependants[i] {
+            waiting[d] -= 1;
+            if waiting[d] == 0 {
+                ready.insert(d);
+            }
+        }
+    }
+    (order.len() == n).then_some(order)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::sizing::{Effect, Metric};
+
+    /// Experiments whose `after` lists name the given indices.
+    fn graph(after: &[&[usize]]) -> Vec<Experiment> {
+        after
+            .iter()
+            .enumerate()
+            .map(|(i, pre)| Experiment {
+                id: format!("t{i}"),
+                title: String::new(),
+                owner: String::new(),
+                pool: 0,
+                design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
+                need: crate::schedule::synthetic::two_arm_need(1000),
+                priority: 1.0,
+                earliest_start: None,
+                deadline: None,
+                max_share: 1.0,
+                min_days: 14,
+                whole_weeks: true,
+                after: pre
+                    .iter()
+                    .map(|&experiment| Prerequisite {
+                        experiment,
+                        gap_days: 0,
+                    })
+                    .collect(),
+                not_with: Vec::new(),
+            })
+            .collect()
+    }
+
+    #[test]
+    fn prerequisites_come_first_and_ties_keep_file_order() {
+        // 0 waits for 3, 2 waits for 0 and 1; 1 and 3 wait for nothing.
+        let order = after_order(&graph(&[&[3], &[], &[0, 1], &[]])).unwrap();
+        assert_eq!(order, vec![1, 3, 0, 2]);
+        assert_eq!(after_order(&graph(&[&[], &[], &[]])), Some(vec![0, 1, 2]));
+    }
+
+    #[test]
+    fn a_cycle_has_no_order() {
+        assert_eq!(after_order(&graph(&[&[1], &[0]])), None);
+        assert_eq!(after_order(&graph(&[&[], &[2], &[3], &[1]])), None);
     }
 }

@@ -6,6 +6,7 @@
 //! problem; the model is returned only when there is none. Positions come
 //! from the [`PositionIndex`] by the key's path.
 
+use super::checker::Checker;
 use super::model::*;
 use super::position::PositionIndex;
 use super::raw::*;
@@ -25,41 +26,28 @@ pub const MAX_ARMS: f64 = 50.0;
 /// The longest minimum run or analysis gap accepted, in days.
 pub const MAX_DAYS_SETTING: f64 = 366.0;
 
+/// The shared [`Checker`] (every problem at its key and line) plus the
+/// budget of the "closest first" hints.
 struct Ctx<'a> {
-    file: &'a str,
-    /// The source, line by line.
-    lines: Vec<&'a str>,
-    index: Option<&'a PositionIndex>,
-    diags: Vec<Diagnostic>,
+    ck: Checker<'a>,
     /// Ids compared so far for "closest first" hints.
     ranked: usize,
 }
 
+impl<'a> std::ops::Deref for Ctx<'a> {
+    type Target = Checker<'a>;
+    fn deref(&self) -> &Checker<'a> {
+        &self.ck
+    }
+}
+
+impl std::ops::DerefMut for Ctx<'_> {
+    fn deref_mut(&mut self) -> &mut Self::Target {
+        &mut self.ck
+    }
+}
+
 impl Ctx<'_> {
-    fn push(&mut self, key: &str, message: String, hint: Option<String>, at_key: bool) {
-        let mut d = Diagnostic::new(self.file, key, message);
-        if let Some(h) = hint {
-            d = d.with_hint(h);
-        }
-        let span = self.index.and_then(|ix| {
-            if at_key {
-                ix.locate_key(key)
-            } else {
-                ix.locate(key)
-            }
-        });
-        if let Some(s) = span {
-            let text = s.line.checked_sub(1).and_then(|i| self.lines.get(i));
-            d = d.at_line(text.copied(), s.line, s.column, s.width);
-        }
-        self.diags.push(d);
-    }
-
-    /// A problem with the value at `key`.
-    fn err(&mut self, key: &str, message: impl Into<String>, hint: impl Into<String>) {
-        self.push(key, message.into(), Some(hint.into()), false);
-    }
-
     /// A required key that is missing (points at its mapping).
     fn missing(&mut self, key: &str, what: &str, hint: impl Into<String>) {
         let leaf = key.rsplit(['.', ']']).next().unwrap_or(key);
@@ -92,19 +80,10 @@ impl Ctx<'_> {
         ok
     }
 
+    /// The date at `key`, if given and valid.
     fn date(&mut self, key: &str, who: &str, v: &Option<Text>) -> Option<NaiveDate> {
-        let t = v.as_ref()?;
-        match NaiveDate::parse_from_str(t.as_str().trim(), "%Y-%m-%d") {
-            Ok(d) => Some(d),
-            Err(_) => {
-                self.err(
-                    key,
-                    format!("{who}`{}` is `{}`, not a date", leaf(key), t.as_str()),
-                    "write dates as YYYY-MM-DD, e.g. 2027-01-04",
-                );
-                None
-            }
-        }
+        let name = format!("{who}`{}`", leaf(key));
+        self.ck.date(key, &name, v, "2027-01-04")
     }
 
     fn choice<T: Copy>(
@@ -251,10 +230,7 @@ pub fn validate(
     index: Option<&PositionIndex>,
 ) -> Result<Portfolio, Vec<Diagnostic>> {
     let mut cx = Ctx {
-        file,
-        lines: text.lines().collect(),
-        index,
-        diags: Vec::new(),
+        ck: Checker::new(file, text, index),
         ranked: 0,
     };
     let name = raw
@@ -273,7 +249,7 @@ pub fn validate(
     let planning = planning(&mut cx, raw.planning.unwrap_or_default(), &defaults);
     let pools = pools(&mut cx, raw.pools.unwrap_or_default());
     let pool_ids = Names::new(pools.iter().map(|p| p.id.as_str()));
-    let experiments = experiments(
+    let (experiments, after_order) = experiments(
         &mut cx,
         raw.experiments.unwrap_or_default(),
         &pool_ids,
@@ -288,12 +264,13 @@ pub fn validate(
         &pool_ids,
         window,
     );
-    if !cx.diags.is_empty() {
-        cx.diags
-            .sort_by_key(|d| (d.line.is_none(), d.line, d.column));
-        return Err(cx.diags);
+    if !cx.errors.is_empty() {
+        let mut diags = cx.ck.errors;
+        diags.sort_by_key(|d| (d.line.is_none(), d.line, d.column));
+        return Err(diags);
     }
     let window = window.expect("a window without diagnostics is valid");
+    let after_order = after_order.expect("an `after` graph without diagnostics is acyclic");
     Ok(Portfolio {
         name,
         window,
@@ -303,6 +280,7 @@ pub fn validate(
         pools,
         experiments,
         blackouts,
+        after_order,
     })
 }
 
@@ -343,8 +321,9 @@ fn window(cx: &mut Ctx, raw: Option<&RawWindow>) -> Option<Window> {
 }
 
 fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
-    let before = cx.diags.len();
-    let alpha = d.alpha.unwrap_or(0.05);
+    let before = cx.errors.len();
+    let fallback = Defaults::default();
+    let alpha = d.alpha.unwrap_or(fallback.alpha);
     cx.number(
         "defaults.alpha",
         "",
@@ -353,7 +332,7 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "in (0, 0.5]",
         "the usual alpha is 0.05",
     );
-    let power = d.power.unwrap_or(0.8);
+    let power = d.power.unwrap_or(fallback.power);
     cx.number(
         "defaults.power",
         "",
@@ -362,29 +341,29 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "in (alpha, 1)",
         "the usual power is 0.8",
     );
-    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES, Sides::Two);
+    let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES, fallback.sides);
     let rate_method = cx.choice(
         "defaults.rate_method",
         "",
         &d.rate_method,
         &RATE_METHODS,
-        Method::Pooled,
+        fallback.rate_method,
     );
     let mean_method = cx.choice(
         "defaults.mean_method",
         "",
         &d.mean_method,
         &MEAN_METHODS,
-        Method::T,
+        fallback.mean_method,
     );
     let correction = cx.choice(
         "defaults.correction",
         "",
         &d.correction,
         &CORRECTIONS,
-        Correction::Bonferroni,
+        fallback.correction,
     );
-    let min_days = d.min_days.unwrap_or(14.0);
+    let min_days = d.min_days.unwrap_or(f64::from(fallback.min_days));
     let min_ok = cx.number(
         "defaults.min_days",
         "",
@@ -400,10 +379,14 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         rate_method,
         mean_method,
         correction,
-        min_days: if min_ok { min_days as u32 } else { 14 },
-        whole_weeks: d.whole_weeks.unwrap_or(true),
+        min_days: if min_ok {
+            min_days as u32
+        } else {
+            fallback.min_days
+        },
+        whole_weeks: d.whole_weeks.unwrap_or(fallback.whole_weeks),
     };
-    (defaults, cx.diags.len() == before)
+    (defaults, cx.errors.len() == before)
 }
 
 fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
@@ -437,8 +420,9 @@ fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
 }
 
 fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
+    let fallback = Planning::default();
     let default_grid = if d.whole_weeks {
-        StartGrid::Weekly
+        fallback.grid
     } else {
         StartGrid::Daily
     };
@@ -469,9 +453,9 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
             ("sat", Weekday::Sat),
             ("sun", Weekday::Sun),
         ],
-        Weekday::Mon,
+        fallback.start_weekday,
     );
-    let lateness_weight = p.lateness_weight.unwrap_or(0.5);
+    let lateness_weight = p.lateness_weight.unwrap_or(fallback.lateness_weight);
     cx.number(
         "planning.lateness_weight",
         "",
@@ -484,7 +468,7 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         grid,
         start_weekday,
         lateness_weight,
-        reshare_running: p.reshare_running.unwrap_or(false),
+        reshare_running: p.reshare_running.unwrap_or(fallback.reshare_running),
     }
 }
 
@@ -755,7 +739,7 @@ fn experiments(
     d: &Defaults,
     defaults_ok: bool,
     share_levels: &[f64],
-) -> Vec<Experiment> {
+) -> (Vec<Experiment>, Option<Vec<usize>>) {
     let ids = ids(
         cx,
         "experiments",
@@ -952,8 +936,12 @@ fn experiments(
         e.not_with.sort_unstable();
         e.not_with.dedup();
     }
-    cycles(cx, &out);
-    out
+    // The order every later stage reads; only a cycle stops it.
+    let order = after_order(&out);
+    if order.is_none() {
+        cycles(cx, &out);
+    }
+    (out, order)
 }
 
 /// The design of one experiment: its overrides over the defaults, each
@@ -966,7 +954,7 @@ fn design(
     what: &str,
     d: &Defaults,
 ) -> (Design, bool) {
-    let before = cx.diags.len();
+    let before = cx.errors.len();
     let at = |k: &str| format!("experiments[{i}].{k}");
     let kind = cx.choice(
         &at("metric"),
@@ -1166,7 +1154,7 @@ fn design(
         correction,
         rho,
     };
-    (design, cx.diags.len() == before)
+    (design, cx.errors.len() == before)
 }
 
 /// The sample size of a design.

@@ -67,11 +67,27 @@ impl Backend {
 
 /// The part of the model the solver sees: for each test of the component,
 /// the indices of its options still allowed and whether it must run.
+#[derive(Debug, Clone)]
 pub(crate) struct Sub<'s> {
     pub exps: &'s [usize],
-    pub allowed: &'s [Vec<usize>],
+    pub allowed: Vec<Vec<usize>>,
     /// Tests fixed to run (their allowed options sum to exactly 1).
-    pub forced: &'s [bool],
+    pub forced: Vec<bool>,
+}
+
+impl<'s> Sub<'s> {
+    /// The whole model of the tests `exps`: every option allowed, none
+    /// forced (the root a branch and bound narrows).
+    pub fn all(inst: &Instance, exps: &'s [usize]) -> Sub<'s> {
+        Sub {
+            exps,
+            allowed: exps
+                .iter()
+                .map(|&e| (0..inst.options[e].len()).collect())
+                .collect(),
+            forced: vec![false; exps.len()],
+        }
+    }
 }
 
 /// A solved model.

@@ -32,7 +32,8 @@ use crate::plan::{
 };
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing};
 use chrono::{Duration, NaiveDate};
-use options::{Instance, Role};
+pub(crate) use options::Instance;
+use options::Role;
 use std::time::Instant;
 
 /// A running test that keeps its traffic exactly as given.
@@ -232,16 +233,7 @@ pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -
     let inst = Instance::new(portfolio, request);
     let mut total = inst.fixed_value();
     for comp in components(&inst) {
-        let allowed: Vec<Vec<usize>> = comp
-            .iter()
-            .map(|&e| (0..inst.options[e].len()).collect())
-            .collect();
-        let forced = vec![false; comp.len()];
-        let sub = lp::Sub {
-            exps: &comp,
-            allowed: &allowed,
-            forced: &forced,
-        };
+        let sub = lp::Sub::all(&inst, &comp);
         let left = seconds - clock.elapsed().as_secs_f64();
         if left <= 0.0 {
             return None;

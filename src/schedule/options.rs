@@ -72,6 +72,19 @@ pub(crate) struct Instance<'a> {
     pub segments: Vec<Vec<usize>>,
 }
 
+/// What [`Instance::earliest_solo`] found.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub(crate) struct Solo {
+    /// First and last day index of the earliest run that fits.
+    pub run: Option<(usize, usize)>,
+    /// Some day scanned was an allowed start.
+    pub any_start: bool,
+    /// Some run that ended in time crossed a `no_running` day.
+    pub crossed: bool,
+    /// The scan stopped at a run that ends too late (or past the window).
+    pub ran_out: bool,
+}
+
 /// Objective weight of a run ending on day index `end` (the last day of
 /// data): priority x (1 - lateness_weight x end / (days - 1)).
 pub(crate) fn run_value(priority: f64, lateness_weight: f64, days: usize, end: i64) -> f64 {
@@ -155,7 +168,7 @@ impl<'a> Instance<'a> {
         };
         // Options in topological order so a test's bound can use its free
         // predecessors' earliest ends.
-        for e in topological_order(portfolio) {
+        for &e in &portfolio.after_order {
             if inst.roles[e] == Role::Free {
                 inst.lo_start[e] = inst.earliest_start(e, today);
                 inst.options[e] = inst.enumerate(e);
@@ -234,6 +247,71 @@ impl<'a> Instance<'a> {
         lo
     }
 
+    /// Whether a test of `pool` may start on `day`: on the start grid and
+    /// not in a `no_starts` blackout.
+    pub fn may_start(&self, day: usize, pool: usize) -> bool {
+        self.on_grid(day) && !self.no_start(day, pool)
+    }
+
+    /// The last day index a run of test `e` may end on: its deadline or
+    /// the window's last day, whichever comes first.
+    fn last_end(&self, e: usize) -> i64 {
+        let p = self.portfolio;
+        p.experiments[e]
+            .deadline
+            .map(|d| p.window.offset(d))
+            .unwrap_or(i64::MAX)
+            .min(self.days as i64 - 1)
+    }
+
+    /// Prefix counts of the days of `pool` a `no_running` blackout covers:
+    /// entry `d` counts the days before `d`, so a run from `s` to `t`
+    /// crosses one when entries `t + 1` and `s` differ.
+    fn no_running_before(&self, pool: usize) -> Vec<usize> {
+        let mut before = vec![0usize; self.days + 1];
+        for (d, blocked) in self.no_running_days(pool).into_iter().enumerate() {
+            before[d + 1] = before[d] + usize::from(blocked);
+        }
+        before
+    }
+
+    /// The earliest run of test `e` alone (fixed runs and every other test
+    /// ignored) at `share`, starting on day index `first` or later: the
+    /// first allowed start whose run ends by the deadline and the window's
+    /// end and crosses no `no_running` day. The scan stops at the first
+    /// allowed start whose run ends too late; the flags say what it met.
+    pub fn earliest_solo(&self, e: usize, share: f64, first: usize) -> Solo {
+        let ex = &self.portfolio.experiments[e];
+        let pool = ex.pool;
+        let last = self.last_end(e);
+        let before = self.no_running_before(pool);
+        let need = ex.need.total as f64;
+        let mut solo = Solo::default();
+        for start in first..self.days {
+            if start as i64 > last {
+                break;
+            }
+            if !self.may_start(start, pool) {
+                continue;
+            }
+            solo.any_start = true;
+            match self.series[pool].run_end(start, share, need, ex.min_days, ex.whole_weeks) {
+                Some(end) if end as i64 <= last => {
+                    if before[end + 1] == before[start] {
+                        solo.run = Some((start, end));
+                        return solo;
+                    }
+                    solo.crossed = true;
+                }
+                _ => {
+                    solo.ran_out = true;
+                    return solo;
+                }
+            }
+        }
+        solo
+    }
+
     /// Whether `day` is on the start grid.
     pub fn on_grid(&self, day: usize) -> bool {
         let p = self.portfolio;
@@ -284,24 +362,16 @@ impl<'a> Instance<'a> {
         if lo >= self.days as i64 {
             return Vec::new();
         }
-        let deadline = ex
-            .deadline
-            .map(|d| p.window.offset(d))
-            .unwrap_or(i64::MAX)
-            .min(self.days as i64 - 1);
-        let blocked = self.no_running_days(pool);
-        // Prefix count of blocked days, for interval queries.
-        let mut blocked_before = vec![0usize; self.days + 1];
-        for d in 0..self.days {
-            blocked_before[d + 1] = blocked_before[d] + usize::from(blocked[d]);
-        }
+        let deadline = self.last_end(e);
+        let blocked_before = self.no_running_before(pool);
         let shares = self.shares(e);
         let split = p.pools[pool].sharing == Sharing::Split;
         let cap = p.pools[pool].max_concurrent;
         let need = ex.need.total as f64;
         let mut out = Vec::new();
         for start in lo.max(0) as usize..self.days {
-            if !self.on_grid(start) || self.no_start(start, pool) || blocked[start] {
+            let blocked = blocked_before[start + 1] > blocked_before[start];
+            if !self.may_start(start, pool) || blocked {
                 continue;
             }
             let mut last_end = usize::MAX;
@@ -379,36 +449,4 @@ impl<'a> Instance<'a> {
             })
             .sum()
     }
-}
-
-/// Experiments ordered so every predecessor comes before its successors
-/// (the portfolio's `after` graph is acyclic); ties in portfolio order.
-pub(crate) fn topological_order(p: &Portfolio) -> Vec<usize> {
-    let n = p.experiments.len();
-    let mut indegree: Vec<usize> = p.experiments.iter().map(|e| e.after.len()).collect();
-    let mut succ = vec![Vec::new(); n];
-    for (b, e) in p.experiments.iter().enumerate() {
-        for pre in &e.after {
-            succ[pre.experiment].push(b);
-        }
-    }
-    let mut ready: std::collections::BTreeSet<usize> =
-        (0..n).filter(|&e| indegree[e] == 0).collect();
-    let mut order = Vec::with_capacity(n);
-    while let Some(e) = ready.pop_first() {
-        order.push(e);
-        for &s in &succ[e] {
-            indegree[s] -= 1;
-            if indegree[s] == 0 {
-                ready.insert(s);
-            }
-        }
-    }
-    // A cycle cannot reach here from a validated portfolio; keep the rest
-    // in portfolio order rather than lose them.
-    if order.len() < n {
-        let seen: std::collections::BTreeSet<usize> = order.iter().copied().collect();
-        order.extend((0..n).filter(|e| !seen.contains(e)));
-    }
-    order
 }

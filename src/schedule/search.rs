@@ -80,17 +80,15 @@ pub(crate) fn relax(
     if nopt > LP_SPLIT_OPTIONS {
         return relax_by_pool(inst, exps, backend, deadline);
     }
-    let allowed: Vec<Vec<usize>> = exps
-        .iter()
-        .map(|&e| (0..inst.options[e].len()).collect())
-        .collect();
-    let forced = vec![false; exps.len()];
-    let sub = Sub {
-        exps,
-        allowed: &allowed,
-        forced: &forced,
-    };
-    lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()
+    lp::solve(
+        inst,
+        &Sub::all(inst, exps),
+        backend,
+        false,
+        remaining(deadline),
+        None,
+    )
+    .ok()
 }
 
 /// Optimises the tests `exps` of one component in `state` (which holds the
@@ -111,10 +109,6 @@ pub(crate) fn solve_component(
         .iter()
         .map(|&e| inst.options[e].first().map_or(0.0, |o| o.value))
         .sum();
-    let allowed: Vec<Vec<usize>> = exps
-        .iter()
-        .map(|&e| (0..inst.options[e].len()).collect())
-        .collect();
     let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
     let bound = relaxed.as_ref().map_or(trivial, |s| s.value.min(trivial));
     let mut rng = SplitMix64::new(0x5EED ^ exps[0] as u64);
@@ -124,7 +118,7 @@ pub(crate) fn solve_component(
     let mut best = state.clone();
     if let Some(lpx) = relaxed {
         let mut cand = state.clone();
-        round(inst, exps, &allowed, &lpx.x, &mut cand);
+        round(inst, &Sub::all(inst, exps), &lpx.x, &mut cand);
         adopt(inst, exps, &mut best, &cand);
     }
     if !proved(&best, inst, exps, bound) {
@@ -182,16 +176,7 @@ fn relax_by_pool(
             .filter(|&i| p.experiments[exps[i]].pool == pool)
             .collect();
         let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
-        let allowed: Vec<Vec<usize>> = sub_exps
-            .iter()
-            .map(|&e| (0..inst.options[e].len()).collect())
-            .collect();
-        let forced = vec![false; sub_exps.len()];
-        let sub = Sub {
-            exps: &sub_exps,
-            allowed: &allowed,
-            forced: &forced,
-        };
+        let sub = Sub::all(inst, &sub_exps);
         let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()?;
         value += solved.value;
         for (k, &i) in members.iter().enumerate() {
@@ -224,16 +209,7 @@ fn exact_milp(
     deadline: Instant,
     comps_left: usize,
 ) -> Option<(f64, bool)> {
-    let allowed: Vec<Vec<usize>> = exps
-        .iter()
-        .map(|&e| (0..inst.options[e].len()).collect())
-        .collect();
-    let forced = vec![false; exps.len()];
-    let sub = Sub {
-        exps,
-        allowed: &allowed,
-        forced: &forced,
-    };
+    let sub = Sub::all(inst, exps);
     let start: Vec<Option<usize>> = exps.iter().map(|&e| best.choice[e]).collect();
     let seconds = remaining(deadline) / comps_left.max(1) as f64;
     let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start)).ok()?;
@@ -241,18 +217,17 @@ fn exact_milp(
     for &e in exps {
         cand.remove(inst, e);
     }
-    let order = super::options::topological_order(inst.portfolio);
     let mut pos = vec![usize::MAX; inst.roles.len()];
     for (i, &e) in exps.iter().enumerate() {
         pos[e] = i;
     }
-    for e in order {
+    for &e in &inst.portfolio.after_order {
         let i = pos[e];
         if i == usize::MAX {
             continue;
         }
         if let Some(j) = solved.x[i].iter().position(|&x| x > 0.5) {
-            let k = allowed[i][j];
+            let k = sub.allowed[i][j];
             if !cand.fits(inst, e, &inst.options[e][k]) {
                 return None;
             }
@@ -283,23 +258,17 @@ fn branch_and_bound(
     deadline: Instant,
     budget: usize,
 ) -> Option<f64> {
-    struct Node {
-        allowed: Vec<Vec<usize>>,
-        forced: Vec<bool>,
+    struct Node<'s> {
+        sub: Sub<'s>,
         parent: f64,
     }
     let mut incumbent = comp_value(inst, exps, best);
     let mut stack = vec![Node {
-        allowed: exps
-            .iter()
-            .map(|&e| (0..inst.options[e].len()).collect())
-            .collect(),
-        forced: vec![false; exps.len()],
+        sub: Sub::all(inst, exps),
         parent: f64::INFINITY,
     }];
-    let order = super::options::topological_order(inst.portfolio);
     let mut rank = vec![0usize; inst.roles.len()];
-    for (r, &e) in order.iter().enumerate() {
+    for (r, &e) in inst.portfolio.after_order.iter().enumerate() {
         rank[e] = r;
     }
     let mut by_rank: Vec<usize> = (0..exps.len()).collect();
@@ -307,7 +276,7 @@ fn branch_and_bound(
     let mut nodes = 0usize;
     // Best-first: the open node with the largest bound (earliest made on
     // ties), so the proved bound falls as fast as it can.
-    let pop_best = |stack: &mut Vec<Node>| -> Option<Node> {
+    fn pop_best<'s>(stack: &mut Vec<Node<'s>>) -> Option<Node<'s>> {
         let mut bi = None;
         for (k, n) in stack.iter().enumerate() {
             if bi.is_none_or(|b: usize| n.parent > stack[b].parent) {
@@ -315,7 +284,7 @@ fn branch_and_bound(
             }
         }
         bi.map(|k| stack.remove(k))
-    };
+    }
     while let Some(node) = pop_best(&mut stack) {
         if node.parent <= incumbent + tol(incumbent) {
             continue;
@@ -325,12 +294,7 @@ fn branch_and_bound(
             break;
         }
         nodes += 1;
-        let sub = Sub {
-            exps,
-            allowed: &node.allowed,
-            forced: &node.forced,
-        };
-        let lp = match lp::solve(inst, &sub, backend, false, remaining(deadline), None) {
+        let lp = match lp::solve(inst, &node.sub, backend, false, remaining(deadline), None) {
             Ok(lp) => lp,
             Err(lp::Failed::Infeasible) => continue,
             Err(lp::Failed::Other) => return None,
@@ -362,7 +326,7 @@ fn branch_and_bound(
         for &i in &by_rank {
             let e = exps[i];
             if let Some(j) = lp.x[i].iter().position(|&x| x >= 1.0 - 1e-6) {
-                let k = node.allowed[i][j];
+                let k = node.sub.allowed[i][j];
                 if cand.fits(inst, e, &inst.options[e][k]) {
                     cand.add(inst, e, k);
                 } else {
@@ -383,20 +347,18 @@ fn branch_and_bound(
         };
         let xs = &lp.x[i];
         let sum: f64 = xs.iter().sum();
-        let (first, second) = if sum < 1.0 - 1e-6 && !node.forced[i] {
+        let (first, second) = if sum < 1.0 - 1e-6 && !node.sub.forced[i] {
             // Left out, or run.
             let mut out = Node {
-                allowed: node.allowed.clone(),
-                forced: node.forced.clone(),
+                sub: node.sub.clone(),
                 parent: node_bound,
             };
-            out.allowed[i].clear();
+            out.sub.allowed[i].clear();
             let mut run = Node {
-                allowed: node.allowed,
-                forced: node.forced,
+                sub: node.sub,
                 parent: node_bound,
             };
-            run.forced[i] = true;
+            run.sub.forced[i] = true;
             if sum >= 0.5 {
                 (run, out)
             } else {
@@ -404,13 +366,11 @@ fn branch_and_bound(
             }
         } else {
             // Split its options by (start, share) at the LP's median.
-            let mut idx: Vec<usize> = (0..node.allowed[i].len()).collect();
+            let allowed = &node.sub.allowed[i];
+            let mut idx: Vec<usize> = (0..allowed.len()).collect();
             let e = exps[i];
             idx.sort_by(|&a, &b| {
-                let (oa, ob) = (
-                    &inst.options[e][node.allowed[i][a]],
-                    &inst.options[e][node.allowed[i][b]],
-                );
+                let (oa, ob) = (&inst.options[e][allowed[a]], &inst.options[e][allowed[b]]);
                 oa.start.cmp(&ob.start).then(oa.share.total_cmp(&ob.share))
             });
             let mut cum = 0.0;
@@ -424,22 +384,20 @@ fn branch_and_bound(
             }
             let cut = cut.clamp(1, idx.len() - 1);
             let lo_mass: f64 = idx[..cut].iter().map(|&j| xs[j]).sum();
-            let mut lo: Vec<usize> = idx[..cut].iter().map(|&j| node.allowed[i][j]).collect();
-            let mut hi: Vec<usize> = idx[cut..].iter().map(|&j| node.allowed[i][j]).collect();
+            let mut lo: Vec<usize> = idx[..cut].iter().map(|&j| allowed[j]).collect();
+            let mut hi: Vec<usize> = idx[cut..].iter().map(|&j| allowed[j]).collect();
             lo.sort_unstable();
             hi.sort_unstable();
             let mut a = Node {
-                allowed: node.allowed.clone(),
-                forced: node.forced.clone(),
+                sub: node.sub.clone(),
                 parent: node_bound,
             };
-            a.allowed[i] = lo;
+            a.sub.allowed[i] = lo;
             let mut b = Node {
-                allowed: node.allowed,
-                forced: node.forced,
+                sub: node.sub,
                 parent: node_bound,
             };
-            b.allowed[i] = hi;
+            b.sub.allowed[i] = hi;
             if lo_mass >= sum / 2.0 {
                 (a, b)
             } else {
@@ -492,14 +450,9 @@ fn adopt(inst: &Instance, exps: &[usize], best: &mut State, cand: &State) {
 
 /// LP-guided rounding: the options in order of their LP weight (then
 /// value), each taken when its test is still free and it fits; then every
-/// test left tries its best fitting option.
-fn round(
-    inst: &Instance,
-    exps: &[usize],
-    allowed: &[Vec<usize>],
-    x: &[Vec<f64>],
-    state: &mut State,
-) {
+/// test left tries its best fitting option. `x` is the LP solution of `sub`.
+fn round(inst: &Instance, sub: &Sub, x: &[Vec<f64>], state: &mut State) {
+    let (exps, allowed) = (sub.exps, &sub.allowed);
     for &e in exps {
         state.remove(inst, e);
     }
@@ -686,8 +639,7 @@ fn lns(
 pub(crate) fn chain_priority(inst: &Instance) -> Vec<f64> {
     let p = inst.portfolio;
     let mut eff: Vec<f64> = p.experiments.iter().map(|e| e.priority).collect();
-    let order = super::options::topological_order(p);
-    for &e in order.iter().rev() {
+    for &e in p.after_order.iter().rev() {
         for &(s, _) in &inst.succs[e] {
             eff[e] = eff[e].max(eff[s]);
         }

@@ -10,11 +10,11 @@
 
 use super::search::SplitMix64;
 use crate::portfolio::{
-    Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast, Planning, Pool,
-    Portfolio, Prerequisite, Sharing, StartGrid, Window,
+    after_order, Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast,
+    Planning, Pool, Portfolio, Prerequisite, Sharing, Window,
 };
-use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
-use chrono::{Duration, NaiveDate, Weekday};
+use crate::sizing::{Design, Effect, Metric, SampleSize};
+use chrono::{Duration, NaiveDate};
 
 /// The size and seed of a synthetic portfolio.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -57,6 +57,20 @@ impl Spec {
 
 /// The share levels of every synthetic portfolio.
 pub const SHARE_LEVELS: [f64; 6] = [0.1, 0.2, 0.3, 0.5, 0.75, 1.0];
+
+/// The sample size of a two-arm test that needs `total` units (the
+/// planner reads only the total; each arm gets half, rounded up).
+pub(crate) fn two_arm_need(total: u64) -> SampleSize {
+    SampleSize {
+        control_exact: total as f64 / 2.0,
+        treatment_exact: total as f64 / 2.0,
+        control: total.div_ceil(2),
+        treatment: total.div_ceil(2),
+        arms: 2,
+        total,
+        comparison_alpha: 0.05,
+    }
+}
 
 /// Builds the portfolio of `spec`.
 pub fn portfolio(spec: &Spec) -> Portfolio {
@@ -135,15 +149,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             owner: "synthetic".into(),
             pool,
             design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
-            need: SampleSize {
-                control_exact: total as f64 / 2.0,
-                treatment_exact: total as f64 / 2.0,
-                control: total.div_ceil(2),
-                treatment: total.div_ceil(2),
-                arms: 2,
-                total,
-                comparison_alpha: 0.05,
-            },
+            need: two_arm_need(total),
             priority: (1 + rng.below(10)) as f64,
             earliest_start,
             deadline,
@@ -199,24 +205,11 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             spec.tests, spec.pools, spec.weeks, spec.seed
         ),
         window: Window { start, end },
-        defaults: Defaults {
-            alpha: 0.05,
-            power: 0.8,
-            sides: Sides::Two,
-            rate_method: Method::Pooled,
-            mean_method: Method::T,
-            correction: Correction::Bonferroni,
-            min_days: 14,
-            whole_weeks: true,
-        },
+        defaults: Defaults::default(),
         share_levels: SHARE_LEVELS.to_vec(),
-        planning: Planning {
-            grid: StartGrid::Weekly,
-            start_weekday: Weekday::Mon,
-            lateness_weight: 0.5,
-            reshare_running: false,
-        },
+        planning: Planning::default(),
         pools,
+        after_order: after_order(&experiments).expect("`after` links point back, so never round"),
         experiments,
         blackouts,
     }

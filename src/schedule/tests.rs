@@ -7,10 +7,10 @@
 use super::*;
 use crate::plan::Status;
 use crate::portfolio::{
-    Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
+    after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
-use crate::sizing::{Correction, Design, Effect, Method, Metric, SampleSize, Sides};
+use crate::sizing::{Design, Effect, Metric};
 use chrono::Weekday;
 use proptest::prelude::*;
 
@@ -40,15 +40,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         owner: "tests".into(),
         pool,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
-        need: SampleSize {
-            control_exact: need as f64 / 2.0,
-            treatment_exact: need as f64 / 2.0,
-            control: need / 2,
-            treatment: need / 2,
-            arms: 2,
-            total: need,
-            comparison_alpha: 0.05,
-        },
+        need: super::synthetic::two_arm_need(need),
         priority,
         earliest_start: None,
         deadline: None,
@@ -70,23 +62,13 @@ fn portfolio(pools: Vec<Pool>, experiments: Vec<Experiment>) -> Portfolio {
             end: d("2027-01-31"),
         },
         defaults: Defaults {
-            alpha: 0.05,
-            power: 0.8,
-            sides: Sides::Two,
-            rate_method: Method::Pooled,
-            mean_method: Method::T,
-            correction: Correction::Bonferroni,
             min_days: 7,
-            whole_weeks: true,
+            ..Defaults::default()
         },
         share_levels: vec![0.5, 1.0],
-        planning: Planning {
-            grid: StartGrid::Weekly,
-            start_weekday: Weekday::Mon,
-            lateness_weight: 0.5,
-            reshare_running: false,
-        },
+        planning: Planning::default(),
         pools,
+        after_order: after_order(&experiments).expect("hand-built `after` links have no cycle"),
         experiments,
         blackouts: Vec::new(),
     }
@@ -563,6 +545,47 @@ proptest! {
             panic!("verifier on the re-plan: {v:#?}");
         }
         prop_assert_ne!(c.solver.status.as_str(), "greedy");
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 100, ..ProptestConfig::default() })]
+
+    /// `check`'s solo run and the planner's options agree: a test with no
+    /// `after` link starts its earliest solo run, at its largest share, on
+    /// the first day any of its options starts, and ends it on the
+    /// earliest end among the options starting that day.
+    #[test]
+    fn the_earliest_solo_run_is_the_earliest_option(
+        tests in 1usize..9,
+        pools in 1usize..4,
+        weeks in 3usize..11,
+        seed in 0u64..1_000_000,
+        daily in any::<bool>(),
+    ) {
+        let mut p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
+        if daily {
+            p.planning.grid = StartGrid::Daily;
+            p.planning.start_weekday = Weekday::Wed;
+            for e in &mut p.experiments {
+                e.whole_weeks = false;
+                e.min_days = 3;
+            }
+        }
+        let inst = Instance::new(&p, &PlanRequest::default());
+        for (e, ex) in p.experiments.iter().enumerate() {
+            if !ex.after.is_empty() {
+                continue;
+            }
+            let share = *inst.shares(e).last().unwrap();
+            let solo = inst.earliest_solo(e, share, inst.lo_start[e] as usize);
+            let first = inst.options[e].iter().map(|o| o.start).min();
+            let want = first.map(|s| {
+                let end = inst.options[e].iter().filter(|o| o.start == s).map(|o| o.end).min();
+                (s, end.unwrap())
+            });
+            prop_assert_eq!(solo.run, want, "test {} of seed {}", e, seed);
+        }
     }
 }
 

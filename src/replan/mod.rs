@@ -3,70 +3,28 @@
 //! split never changes), finished and cancelled tests free their pool, and
 //! every other test is planned again from today around the running ones.
 //!
-//! This module turns a [`Progress`] into a [`PlanRequest`] (each running
-//! test's new end from its remaining need and the forecast from the day the
-//! counts were read), calls the scheduler, marks the statuses, and says for
-//! every running test that can no longer finish inside the window when it
-//! would, and the smallest change that would rescue it: a larger share, or
-//! the effect it can still detect by the window's end (the sizing inverse).
+//! [`replan`] turns a [`Progress`] into a [`PlanRequest`] (each running
+//! test held to its new end), calls the scheduler and marks the statuses.
+//! `progress` loads the progress file; `outlook` works out each running
+//! test's new end and, for one that can no longer finish inside the window
+//! when it would, the smallest change that would rescue it (a larger
+//! share, or the effect it can still detect by the window's end, the sizing
+//! inverse); `scale` parses `--scale` and builds the scaled portfolio.
 
-use crate::forecast::units_on;
-use crate::plan::{Plan, RunningOutlook, Status};
-use crate::portfolio::progress::{Progress, State};
-use crate::portfolio::{Portfolio, Scale};
+mod outlook;
+pub mod progress;
+pub mod scale;
+
+pub use progress::{load_progress, load_progress_str, Progress};
+pub use scale::{with_scales, ScaleArg};
+
+use crate::plan::{Plan, Status};
+use crate::portfolio::Portfolio;
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
-use crate::sizing::{self, round_days};
-pub use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
+use outlook::{outlook, percent, Run, HORIZON_DAYS};
+use progress::State;
 use std::fmt;
-
-/// How far past the window a running test's end is searched (ten years).
-const HORIZON_DAYS: i64 = 3653;
-
-/// `--scale POOL=FACTOR[@FROM]`: a lasting change of a pool's traffic.
-#[derive(Debug, Clone, PartialEq)]
-pub struct ScaleArg {
-    pub pool: String,
-    pub factor: f64,
-    /// From this day on; the re-plan's today when not given.
-    pub from: Option<NaiveDate>,
-}
-
-impl std::str::FromStr for ScaleArg {
-    type Err = String;
-
-    fn from_str(s: &str) -> Result<ScaleArg, String> {
-        let hint = "write POOL=FACTOR or POOL=FACTOR@YYYY-MM-DD, e.g. `checkout=0.7@2027-02-01`";
-        let (pool, rest) = s
-            .split_once('=')
-            .ok_or_else(|| format!("`{s}` has no `=`; {hint}"))?;
-        let (factor, from) = match rest.split_once('@') {
-            Some((f, d)) => (f, Some(d)),
-            None => (rest, None),
-        };
-        let factor: f64 = factor
-            .trim()
-            .parse()
-            .map_err(|_| format!("`{factor}` is not a number; {hint}"))?;
-        if !(factor.is_finite() && factor >= 0.0) {
-            return Err(format!(
-                "the factor must be a number >= 0 (0.7 for a 30% drop); {hint}"
-            ));
-        }
-        let from = match from {
-            Some(d) => Some(
-                NaiveDate::parse_from_str(d.trim(), "%Y-%m-%d")
-                    .map_err(|_| format!("`{d}` is not a date; {hint}"))?,
-            ),
-            None => None,
-        };
-        let pool = pool.trim().to_string();
-        if pool.is_empty() {
-            return Err(format!("the pool is missing; {hint}"));
-        }
-        Ok(ScaleArg { pool, factor, from })
-    }
-}
 
 /// Why a re-plan could not be made.
 #[derive(Debug, Clone, PartialEq)]
@@ -80,195 +38,7 @@ impl fmt::Display for ReplanError {
 
 impl std::error::Error for ReplanError {}
 
-/// Applies `--scale` what-ifs to the portfolio's forecasts.
-pub fn apply_scales(
-    portfolio: &mut Portfolio,
-    scales: &[ScaleArg],
-    today: NaiveDate,
-) -> Result<(), ReplanError> {
-    for s in scales {
-        let Some(i) = portfolio.pool_index(&s.pool) else {
-            let ids: Vec<&str> = portfolio.pools.iter().map(|p| p.id.as_str()).collect();
-            let ids = crate::diagnostic::closest_first(&s.pool, &ids);
-            return Err(ReplanError(format!(
-                "`--scale`: pool `{}` is not defined; defined pools, closest first: {}",
-                s.pool,
-                crate::diagnostic::list(&ids)
-            )));
-        };
-        portfolio.pools[i].forecast.scales.push(Scale {
-            from: s.from.unwrap_or(today),
-            factor: s.factor,
-        });
-    }
-    Ok(())
-}
-
-/// A running test as the progress file gives it.
-#[derive(Debug, Clone, Copy)]
-struct Run {
-    /// Index into `Portfolio::experiments`.
-    experiment: usize,
-    start: NaiveDate,
-    /// The share it has run at so far.
-    share: f64,
-    /// Units over all arms collected up to the end of the day before `as_of`.
-    collected: u64,
-    as_of: NaiveDate,
-}
-
-impl Run {
-    /// Its share on `day` when it runs at `from_today` from `today` on.
-    fn share_on(&self, day: NaiveDate, from_today: f64, today: NaiveDate) -> f64 {
-        if day < today {
-            self.share
-        } else {
-            from_today
-        }
-    }
-}
-
-/// A running test's last day of data when it runs at `share` from `today`
-/// on (at its old share before): counted from `as_of` with the units
-/// already collected, never before `today`, at least its minimum run from
-/// its start, and whole weeks from its start when asked. A test already
-/// past its need therefore ends today, or on the last day of the week (from
-/// its start) that today falls in. `None` past the ten-year horizon.
-fn running_end(
-    portfolio: &Portfolio,
-    run: &Run,
-    share: f64,
-    today: NaiveDate,
-) -> Option<NaiveDate> {
-    let e = &portfolio.experiments[run.experiment];
-    let pool = &portfolio.pools[e.pool];
-    let need = e.need.total.saturating_sub(run.collected) as f64;
-    let first = run.as_of.max(run.start);
-    let mut reached = first - Duration::days(1);
-    if need > 0.0 {
-        let mut total = 0.0;
-        let mut day = first;
-        let limit = first + Duration::days(HORIZON_DAYS);
-        loop {
-            total += run.share_on(day, share, today) * units_on(pool, day);
-            if total >= need * (1.0 - 1e-9) {
-                break;
-            }
-            day += Duration::days(1);
-            if day > limit {
-                return None;
-            }
-        }
-        reached = day;
-    }
-    let end = reached.max(today);
-    let days = (end - run.start).num_days() as u64 + 1;
-    let days = round_days(days, e.min_days, e.whole_weeks);
-    Some(run.start + Duration::days(days as i64 - 1))
-}
-
-/// Units a running test will have by the window's end at `share` from today.
-fn units_by_window_end(portfolio: &Portfolio, run: &Run, share: f64, today: NaiveDate) -> f64 {
-    let e = &portfolio.experiments[run.experiment];
-    let pool = &portfolio.pools[e.pool];
-    let mut day = run.as_of.max(run.start);
-    let mut total = run.collected as f64;
-    while day <= portfolio.window.end {
-        total += run.share_on(day, share, today) * units_on(pool, day);
-        day += Duration::days(1);
-    }
-    total
-}
-
-fn percent(share: f64) -> String {
-    format!("{:.0}%", share * 100.0)
-}
-
-/// The outlook of one running test at `share` from today, and a rescue
-/// when it cannot finish inside the window.
-fn outlook(portfolio: &Portfolio, run: &Run, share: f64, today: NaiveDate) -> RunningOutlook {
-    let e = &portfolio.experiments[run.experiment];
-    let end = running_end(portfolio, run, share, today);
-    let fits = end.is_some_and(|d| d <= portfolio.window.end);
-    let mut outlook = RunningOutlook {
-        id: e.id.clone(),
-        started: run.start,
-        share,
-        collected: run.collected,
-        units_needed: e.need.total,
-        end,
-        fits_window: fits,
-        rescue_share: None,
-        detectable_effect: None,
-        advice: None,
-    };
-    if fits {
-        return outlook;
-    }
-    // The smallest allowed share level above the current one that ends in time.
-    outlook.rescue_share = portfolio
-        .share_levels
-        .iter()
-        .copied()
-        .filter(|&s| s > share + 1e-9 && s <= e.max_share + 1e-9)
-        .find(|&s| {
-            running_end(portfolio, run, s, today).is_some_and(|d| d <= portfolio.window.end)
-        });
-    // The effect the units in hand by the window's end can detect.
-    let by_end = units_by_window_end(portfolio, run, share, today);
-    let d = &e.design;
-    let per_control = by_end / (1.0 + f64::from(d.arms - 1) * d.ratio);
-    outlook.detectable_effect = sizing::minimum_detectable_effect(d, per_control).ok();
-    let when = match end {
-        Some(day) => format!(
-            "at {} it would reach its {} units on {day}",
-            percent(share),
-            thousands(e.need.total)
-        ),
-        None => format!(
-            "at {} it would not reach its {} units within ten years",
-            percent(share),
-            thousands(e.need.total)
-        ),
-    };
-    let mut advice = format!(
-        "cannot reach its sample by the window's end ({}): {when}",
-        portfolio.window.end
-    );
-    match outlook.rescue_share {
-        Some(s) => advice.push_str(&format!(
-            "; a share of {} from today would finish it in time",
-            percent(s)
-        )),
-        None => advice.push_str(&format!(
-            "; no share up to its maximum of {} finishes it in time",
-            percent(e.max_share)
-        )),
-    }
-    match outlook.detectable_effect {
-        Some(effect) => {
-            let (kind, planned) = match d.effect {
-                sizing::Effect::Relative(x) => (
-                    format!("a relative effect of {:.1}%", effect * 100.0),
-                    format!("{:.1}%", x * 100.0),
-                ),
-                sizing::Effect::Absolute(x) => {
-                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
-                }
-            };
-            advice.push_str(&format!(
-                "; stopped at the window's end it can detect {kind} (planned MDE: {planned})"
-            ));
-        }
-        None => advice.push_str(
-            "; stopped at the window's end it has too few units to detect any effect at the planned power",
-        ),
-    }
-    outlook.advice = Some(advice);
-    outlook
-}
-
-/// Re-plans `portfolio` (with any `--scale` already applied) from `today`
+/// Re-plans `portfolio` (from [`with_scales`] when there are `--scale`s) from `today`
 /// given `progress`. Running tests keep their start and share, unless the
 /// portfolio allows re-sharing running tests: then a test that cannot
 /// finish in the window takes the smallest share level that rescues it,
@@ -371,8 +141,11 @@ pub fn replan(
 
 #[cfg(test)]
 mod tests {
+    use super::outlook::running_end;
+    use super::progress::Entry;
     use super::*;
-    use crate::portfolio::progress::Entry;
+    use crate::forecast::units_on;
+    use crate::sizing;
 
     fn d(s: &str) -> NaiveDate {
         NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
@@ -407,50 +180,18 @@ mod tests {
     }
 
     #[test]
-    fn scale_args_parse_with_and_without_a_date() {
-        let s: ScaleArg = "home=0.7@2027-02-03".parse().unwrap();
-        assert_eq!(
-            s,
-            ScaleArg {
-                pool: "home".into(),
-                factor: 0.7,
-                from: Some(d("2027-02-03")),
-            }
-        );
-        let s: ScaleArg = " search = 0 ".parse().unwrap();
-        assert_eq!((s.pool.as_str(), s.factor, s.from), ("search", 0.0, None));
-        let s: ScaleArg = "app-onboarding=1.25".parse().unwrap();
-        assert_eq!(s.factor, 1.25);
-    }
-
-    #[test]
-    fn bad_scale_args_say_what_is_wrong_and_how_to_write_it() {
-        for (arg, says) in [
-            ("home", "has no `=`"),
-            ("home=lots", "`lots` is not a number"),
-            ("home=-0.3", "must be a number >= 0"),
-            ("home=NaN", "must be a number >= 0"),
-            ("home=inf", "must be a number >= 0"),
-            ("home=0.7@next-week", "`next-week` is not a date"),
-            ("home=0.7@2027-02-30", "is not a date"),
-            ("=0.7", "the pool is missing"),
-        ] {
-            let e = arg.parse::<ScaleArg>().unwrap_err();
-            assert!(e.contains(says), "{arg}: {e}");
-            assert!(e.contains("POOL=FACTOR@YYYY-MM-DD"), "{arg}: {e}");
-        }
-    }
-
-    #[test]
-    fn apply_scales_names_an_unknown_pool_and_defaults_to_today() {
-        let mut p = flat(false, 1, false);
-        let e = apply_scales(&mut p, &["shoop=0.5".parse().unwrap()], d("2027-02-01")).unwrap_err();
+    fn with_scales_names_an_unknown_pool_and_defaults_to_today() {
+        let p = flat(false, 1, false);
+        let e = with_scales(&p, &["shoop=0.5".parse().unwrap()], d("2027-02-01")).unwrap_err();
         assert!(e.0.contains("pool `shoop` is not defined"), "{e}");
         assert!(e.0.contains("`shop`"), "{e}");
-        apply_scales(&mut p, &["shop=0.5".parse().unwrap()], d("2027-02-01")).unwrap();
-        let pool = &p.pools[0];
+        let scaled = with_scales(&p, &["shop=0.5".parse().unwrap()], d("2027-02-01")).unwrap();
+        let pool = &scaled.pools[0];
         assert_eq!(units_on(pool, d("2027-01-31")), 1000.0);
         assert_eq!(units_on(pool, d("2027-02-01")), 500.0);
+        // The portfolio it was made from keeps its forecast.
+        assert!(p.pools[0].forecast.scales.is_empty());
+        assert_eq!(units_on(&p.pools[0], d("2027-02-01")), 1000.0);
     }
 
     #[test]
@@ -542,8 +283,12 @@ mod tests {
 
     #[test]
     fn a_pool_without_traffic_never_finishes_a_run() {
-        let mut p = flat(false, 1, false);
-        apply_scales(&mut p, &["shop=0".parse().unwrap()], d("2027-02-01")).unwrap();
+        let p = with_scales(
+            &flat(false, 1, false),
+            &["shop=0".parse().unwrap()],
+            d("2027-02-01"),
+        )
+        .unwrap();
         let r = run("2027-01-04", 0.5, need(&p) / 2, "2027-02-01");
         assert_eq!(running_end(&p, &r, 0.5, d("2027-02-01")), None);
         let o = outlook(&p, &r, 0.5, d("2027-02-01"));

@@ -9,12 +9,10 @@
 //! warnings, not refused: forecasts err, counts are facts.
 //! docs/progress.md documents every key.
 
-use super::load::{from_serde, index_of, unknown_keys, LoadError};
-use super::model::Portfolio;
-use super::position::PositionIndex;
-use super::raw::{fields_of, Text};
 use crate::diagnostic::{self, Diagnostic};
 use crate::forecast;
+use crate::portfolio::raw::{fields_of, Text};
+use crate::portfolio::{from_serde, index_of, unknown_keys, Checker, LoadError, Portfolio};
 use chrono::{Duration, NaiveDate};
 use serde::Deserialize;
 use std::path::Path;
@@ -148,70 +146,49 @@ pub fn load_progress_str(
             return fail(vec![d]);
         }
     };
-    let mut cx = Checker {
-        file: file_name,
-        text: body,
-        index: index.as_ref(),
-        errors: Vec::new(),
-        warnings: Vec::new(),
+    let mut cx = ProgressCheck {
+        ck: Checker::new(file_name, body, index.as_ref()),
+        p: portfolio,
+        today,
     };
-    let progress = cx.validate(raw, portfolio, today);
-    if cx.errors.is_empty() {
+    let progress = cx.validate(raw);
+    if cx.ck.errors.is_empty() {
         Ok(Progress {
-            warnings: cx.warnings,
+            warnings: cx.ck.warnings,
             ..progress
         })
     } else {
-        fail(cx.errors)
+        fail(cx.ck.errors)
     }
 }
 
-struct Checker<'a> {
-    file: &'a str,
-    text: &'a str,
-    index: Option<&'a PositionIndex>,
-    errors: Vec<Diagnostic>,
-    warnings: Vec<Diagnostic>,
+/// The checks of one progress file against a portfolio and the re-plan's
+/// `today`, recorded by the shared [`Checker`].
+struct ProgressCheck<'a> {
+    ck: Checker<'a>,
+    p: &'a Portfolio,
+    today: NaiveDate,
 }
 
-impl Checker<'_> {
-    fn diag(&self, key: &str, message: String, hint: String) -> Diagnostic {
-        let d = Diagnostic::new(self.file, key, message).with_hint(hint);
-        match self.index.and_then(|ix| ix.locate(key)) {
-            Some(s) => d.at(self.text, s.line, s.column, s.width),
-            None => d,
-        }
-    }
+/// One entry under check: its key (`experiments[2]`), its id, its index
+/// in the portfolio, and the day its counts were read.
+struct At<'e> {
+    at: &'e str,
+    id: &'e str,
+    index: usize,
+    as_of: NaiveDate,
+}
 
-    fn err(&mut self, key: &str, message: String, hint: impl Into<String>) {
-        let d = self.diag(key, message, hint.into());
-        self.errors.push(d);
-    }
-
-    fn warn(&mut self, key: &str, message: String, hint: impl Into<String>) {
-        let d = self.diag(key, message, hint.into());
-        self.warnings.push(d);
-    }
-
+impl ProgressCheck<'_> {
     fn date(&mut self, key: &str, v: &Option<Text>) -> Option<NaiveDate> {
-        let t = v.as_ref()?;
-        match NaiveDate::parse_from_str(t.as_str().trim(), "%Y-%m-%d") {
-            Ok(d) => Some(d),
-            Err(_) => {
-                self.err(
-                    key,
-                    format!("`{key}` is `{}`, not a date", t.as_str()),
-                    "write dates as YYYY-MM-DD, e.g. 2027-02-01",
-                );
-                None
-            }
-        }
+        self.ck.date(key, &format!("`{key}`"), v, "2027-02-01")
     }
 
-    fn validate(&mut self, raw: RawProgress, p: &Portfolio, today: NaiveDate) -> Progress {
+    fn validate(&mut self, raw: RawProgress) -> Progress {
+        let (p, today) = (self.p, self.today);
         let as_of = match self.date("as_of", &raw.as_of) {
             Some(d) if d > today => {
-                self.err(
+                self.ck.err(
                     "as_of",
                     format!("`as_of` is {d}, after today ({today})"),
                     "counts cannot be read in the future; use the day you read them",
@@ -227,7 +204,7 @@ impl Checker<'_> {
         for (i, e) in raw.experiments.unwrap_or_default().into_iter().enumerate() {
             let at = format!("experiments[{i}]");
             let Some(id) = e.id.as_ref().map(|t| t.as_str().trim().to_string()) else {
-                self.err(
+                self.ck.err(
                     &at,
                     format!("`{at}` has no `id`"),
                     "name the experiment as in the portfolio: `id: ...`",
@@ -238,7 +215,7 @@ impl Checker<'_> {
             let Some(index) = p.experiment_index(&id) else {
                 let closest = diagnostic::closest_first(&id, &ids);
                 let shown: Vec<&str> = closest.into_iter().take(8).collect();
-                self.err(
+                self.ck.err(
                     &id_key,
                     format!("experiment `{id}` is not in the portfolio"),
                     format!(
@@ -249,7 +226,7 @@ impl Checker<'_> {
                 continue;
             };
             if let Some((_, first)) = seen.iter().find(|(s, _)| *s == id) {
-                self.err(
+                self.ck.err(
                     &id_key,
                     format!("experiment `{id}` appears twice (first at `{first}`)"),
                     "keep one entry per experiment",
@@ -257,7 +234,13 @@ impl Checker<'_> {
                 continue;
             }
             seen.push((id.clone(), at.clone()));
-            if let Some(state) = self.state(&at, &id, e, index, p, today, as_of) {
+            let entry = At {
+                at: &at,
+                id: &id,
+                index,
+                as_of,
+            };
+            if let Some(state) = self.state(&entry, e) {
                 entries.push(Entry {
                     experiment: index,
                     state,
@@ -271,17 +254,8 @@ impl Checker<'_> {
         }
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn state(
-        &mut self,
-        at: &str,
-        id: &str,
-        e: RawEntry,
-        index: usize,
-        p: &Portfolio,
-        today: NaiveDate,
-        as_of: NaiveDate,
-    ) -> Option<State> {
+    fn state(&mut self, entry: &At, e: RawEntry) -> Option<State> {
+        let (at, id, today) = (entry.at, entry.id, self.today);
         let state_key = format!("{at}.state");
         let kind = match e.state.as_ref().map(|t| t.as_str().trim().to_lowercase()) {
             Some(k) if ["running", "finished", "cancelled"].contains(&k.as_str()) => k,
@@ -293,7 +267,7 @@ impl Checker<'_> {
                         }
                         None => "one of `running`, `finished`, `cancelled`".to_string(),
                     };
-                self.err(
+                self.ck.err(
                     &state_key,
                     format!("state `{other}` of `{id}` is not known"),
                     hint,
@@ -301,7 +275,7 @@ impl Checker<'_> {
                 return None;
             }
             None => {
-                self.err(
+                self.ck.err(
                     at,
                     format!("`{id}` has no `state`"),
                     "add `state: running`, `state: finished` or `state: cancelled`",
@@ -313,7 +287,7 @@ impl Checker<'_> {
         let ended = self.date(&format!("{at}.ended"), &e.ended);
         if let Some(s) = started {
             if s >= today && kind == "running" {
-                self.err(
+                self.ck.err(
                     &format!("{at}.started"),
                     format!("`{id}` is marked running but starts on {s}, not before today ({today})"),
                     "a running test started before today; leave tests that have not started out of the progress file",
@@ -321,7 +295,7 @@ impl Checker<'_> {
                 return None;
             }
             if s > today {
-                self.err(
+                self.ck.err(
                     &format!("{at}.started"),
                     format!("`{id}` starts on {s}, after today ({today})"),
                     "a test that has not started yet does not belong in the progress file",
@@ -331,14 +305,14 @@ impl Checker<'_> {
         }
         if let Some(end) = ended {
             if end >= today {
-                self.err(
+                self.ck.err(
                     &format!("{at}.ended"),
                     format!("`{id}` ended on {end}, not before today ({today})"),
                     "a test still collecting today is `running`",
                 );
             }
             if started.is_some_and(|s| end < s) {
-                self.err(
+                self.ck.err(
                     &format!("{at}.ended"),
                     format!("`{id}` ends on {end}, before it started"),
                     "check the two dates",
@@ -350,24 +324,15 @@ impl Checker<'_> {
             "cancelled" => Some(State::Cancelled {
                 note: e.note.map(|t| t.0).unwrap_or_default(),
             }),
-            _ => self.running(at, id, e, index, p, started, as_of),
+            _ => self.running(entry, e, started),
         }
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn running(
-        &mut self,
-        at: &str,
-        id: &str,
-        e: RawEntry,
-        index: usize,
-        p: &Portfolio,
-        started: Option<NaiveDate>,
-        as_of: NaiveDate,
-    ) -> Option<State> {
-        let exp = &p.experiments[index];
+    fn running(&mut self, entry: &At, e: RawEntry, started: Option<NaiveDate>) -> Option<State> {
+        let (at, id, p) = (entry.at, entry.id, self.p);
+        let exp = &p.experiments[entry.index];
         let Some(started) = started else {
-            self.err(
+            self.ck.err(
                 at,
                 format!("running test `{id}` has no `started` date"),
                 "add `started: YYYY-MM-DD`, the first day of its data",
@@ -377,7 +342,7 @@ impl Checker<'_> {
         let share = match e.share {
             Some(s) if s > 0.0 && s <= 1.0 => s,
             Some(s) => {
-                self.err(
+                self.ck.err(
                     &format!("{at}.share"),
                     format!("`{id}`: `share` is {s}; it must be in (0, 1]"),
                     "the share of the pool it runs at: 0.5 for half",
@@ -385,7 +350,7 @@ impl Checker<'_> {
                 return None;
             }
             None => {
-                self.err(
+                self.ck.err(
                     at,
                     format!("running test `{id}` has no `share`"),
                     "add `share: ...`, the share of the pool it runs at (0.5 for half)",
@@ -398,7 +363,7 @@ impl Checker<'_> {
             Some(v) => {
                 let key = format!("{at}.units_per_arm");
                 if v.len() != arms {
-                    self.err(
+                    self.ck.err(
                         &key,
                         format!(
                             "`{id}` has {arms} arms but `units_per_arm` lists {}",
@@ -411,7 +376,7 @@ impl Checker<'_> {
                 if v.iter()
                     .any(|u| !(u.is_finite() && *u >= 0.0 && u.fract() == 0.0 && *u < 1e15))
                 {
-                    self.err(
+                    self.ck.err(
                         &key,
                         format!("`{id}`: `units_per_arm` must hold whole numbers >= 0"),
                         "counts of units, e.g. [20510, 20488]",
@@ -424,7 +389,7 @@ impl Checker<'_> {
         };
         let units = match (e.units, &per_arm) {
             (Some(u), _) if !(0.0..1e15).contains(&u) => {
-                self.err(
+                self.ck.err(
                     &format!("{at}.units"),
                     format!("`{id}`: `units` is {u}; it must be a whole number >= 0"),
                     "the units collected so far over all arms",
@@ -434,7 +399,7 @@ impl Checker<'_> {
             (Some(u), Some(v)) => {
                 let sum: u64 = v.iter().sum();
                 if sum != u.round() as u64 {
-                    self.err(
+                    self.ck.err(
                         &format!("{at}.units"),
                         format!("`{id}`: `units` is {u} but `units_per_arm` adds up to {sum}"),
                         "give the total over all arms, or leave `units` out",
@@ -446,7 +411,7 @@ impl Checker<'_> {
             (Some(u), None) => u.round() as u64,
             (None, Some(v)) => v.iter().sum(),
             (None, None) => {
-                self.err(
+                self.ck.err(
                     at,
                     format!("running test `{id}` has no `units`"),
                     "add `units: ...`, the units collected so far over all arms (0 if unknown)",
@@ -456,12 +421,12 @@ impl Checker<'_> {
         };
         // Flag counts the forecast could not have delivered (5% slack).
         let pool = &p.pools[exp.pool];
-        let last = as_of - Duration::days(1);
+        let last = entry.as_of - Duration::days(1);
         if last >= started {
             let series = forecast::Series::new(pool, started, last);
             let could = series.total(0, series.len() - 1) * share;
             if units as f64 > could * 1.05 + 1.0 {
-                self.warn(
+                self.ck.warn(
                     &format!("{at}.units"),
                     format!(
                         "`{id}` reports {units} units, more than the forecast of `{}` could deliver at {:.0}% from {started} to {last} ({:.0})",
