@@ -15,6 +15,7 @@
 use crate::forecast::Series;
 use crate::portfolio::{Experiment, Portfolio, Sharing};
 use crate::schedule::{Instance, PlanRequest};
+use crate::share::Share;
 use crate::sizing::Metric;
 use chrono::{Duration, NaiveDate};
 use serde::Serialize;
@@ -57,7 +58,7 @@ pub struct ExperimentCheck {
     pub total_units: u64,
     /// The share the durations assume: the largest share level not above
     /// the experiment's `max_share`.
-    pub share: f64,
+    pub share: Share,
     /// Days the run takes at `share` when started on the window's first
     /// day (minimum run and whole weeks included); `None` when it would
     /// take longer than [`HORIZON_DAYS`].
@@ -162,14 +163,9 @@ pub fn check(p: &Portfolio) -> CheckReport {
 }
 
 /// The largest share level not above `max_share` (validation guarantees one).
-pub fn share_for(p: &Portfolio, e: &Experiment) -> f64 {
+pub fn share_for(p: &Portfolio, e: &Experiment) -> Share {
     p.share_levels
-        .iter()
-        .copied()
-        .filter(|&s| s <= e.max_share + 1e-12)
-        .fold(None, |acc: Option<f64>, s| {
-            Some(acc.map_or(s, |a| a.max(s)))
-        })
+        .largest_up_to(e.max_share)
         .unwrap_or(e.max_share)
 }
 
@@ -210,7 +206,7 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     let w = p.window;
     let share = share_for(p, e);
     let need = e.need.total as f64;
-    let from_start = series.run_end(0, share, need, e.min_days, e.whole_weeks);
+    let from_start = series.run_end(0, share.fraction(), need, e.min_days, e.whole_weeks);
     let (days, end) = match from_start {
         Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
@@ -253,7 +249,7 @@ fn solo_fit(
     inst: &Instance,
     i: usize,
     series: &Series,
-    share: f64,
+    share: Share,
     first: NaiveDate,
     because: Option<String>,
 ) -> (Option<(NaiveDate, NaiveDate)>, Option<String>) {
@@ -266,7 +262,7 @@ fn solo_fit(
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
     }
-    let pct = format!("{}%", trim(share * 100.0));
+    let pct = share.to_string();
     let until = if e.deadline.is_some_and(|d| d < w.end) {
         format!("its deadline {last}")
     } else {
@@ -290,7 +286,7 @@ fn solo_fit(
             (None, false) => String::new(),
         };
         let i = w.offset(first) as usize;
-        match series.run_end(i, share, need, e.min_days, e.whole_weeks) {
+        match series.run_end(i, share.fraction(), need, e.min_days, e.whole_weeks) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",
                 j - i + 1,
@@ -305,12 +301,6 @@ fn solo_fit(
         format!("no run at {pct} ends by {until}")
     };
     (None, Some(reason))
-}
-
-/// A number without trailing zeros: 33.0 -> "33", 12.5 -> "12.5".
-pub fn trim(x: f64) -> String {
-    let s = format!("{x:.2}");
-    s.trim_end_matches('0').trim_end_matches('.').to_string()
 }
 
 #[cfg(test)]
@@ -337,9 +327,9 @@ mod tests {
     #[test]
     fn the_share_is_the_largest_level_under_max_share() {
         let p = portfolio("    max_share: 0.3\n", "");
-        assert_eq!(share_for(&p, &p.experiments[0]), 0.25);
+        assert_eq!(share_for(&p, &p.experiments[0]), Share::from_fraction(0.25));
         let p = portfolio("", "");
-        assert_eq!(share_for(&p, &p.experiments[0]), 1.0);
+        assert_eq!(share_for(&p, &p.experiments[0]), Share::WHOLE);
     }
 
     #[test]

@@ -80,7 +80,8 @@ impl<'de> Deserialize<'de> for Share {
 }
 
 /// The share levels a portfolio allows, ascending and without repeats.
-#[derive(Debug, Clone, PartialEq, Eq, Default)]
+#[derive(Debug, Clone, PartialEq, Eq, Default, Serialize)]
+#[serde(transparent)]
 pub struct ShareLevels(Vec<Share>);
 
 impl ShareLevels {

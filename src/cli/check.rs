@@ -4,7 +4,7 @@
 //! formats it.
 
 use super::{Failure, TextOrJson};
-use crate::check::{self, trim, CheckReport};
+use crate::check::{self, CheckReport};
 use crate::portfolio;
 pub use crate::words::thousands as units;
 use clap::Args;
@@ -90,7 +90,7 @@ pub fn text(r: &CheckReport) -> String {
             e.arms.to_string(),
             per_arm,
             units(e.total_units),
-            format!("{}%", trim(e.share * 100.0)),
+            e.share.to_string(),
             days,
             if let (true, Some(start)) = (e.fits_alone, e.solo_start) {
                 format!("fits alone from {start}")

@@ -306,6 +306,7 @@ mod tests {
     use super::*;
     use crate::portfolio::model::*;
     use crate::portfolio::DEFAULT_SHARE_LEVELS;
+    use crate::share::{Share, ShareLevels};
     use crate::sizing::{self, Correction, Effect, Method, Metric, Sides};
     use chrono::{NaiveDate, Weekday};
     use proptest::prelude::*;
@@ -384,7 +385,10 @@ blackouts:
         assert_eq!(p.defaults.correction, Correction::Bonferroni);
         assert_eq!(p.defaults.min_days, 14);
         assert!(p.defaults.whole_weeks);
-        assert_eq!(p.share_levels, DEFAULT_SHARE_LEVELS.to_vec());
+        assert_eq!(
+            p.share_levels,
+            ShareLevels::from_fractions(&DEFAULT_SHARE_LEVELS)
+        );
         assert_eq!(p.planning.grid, StartGrid::Weekly);
         assert_eq!(p.planning.start_weekday, Weekday::Mon);
         assert_eq!(p.planning.lateness_weight, 0.5);
@@ -396,7 +400,7 @@ blackouts:
         let a = &p.experiments[0];
         assert_eq!(a.title, "a");
         assert_eq!(a.priority, 1.0);
-        assert_eq!(a.max_share, 1.0);
+        assert_eq!(a.max_share, Share::WHOLE);
         assert_eq!((a.min_days, a.whole_weeks), (14, true));
         assert_eq!(a.design.arms, 2);
         assert_eq!(a.design.method, Method::Pooled);
@@ -426,7 +430,8 @@ blackouts:
         assert_eq!(b.priority, 2.5);
         assert_eq!(b.earliest_start, Some(d("2027-01-11")));
         assert_eq!(b.deadline, Some(d("2027-03-28")));
-        assert_eq!((b.max_share, b.min_days, b.whole_weeks), (0.5, 7, false));
+        assert_eq!(b.max_share.fraction(), 0.5);
+        assert_eq!((b.min_days, b.whole_weeks), (7, false));
         let basket = &p.pools[1];
         assert_eq!(basket.label, "Basket");
         assert_eq!(basket.sharing, Sharing::Overlap);
@@ -477,7 +482,10 @@ blackouts:
         let p = load_str(&text, "x.yaml").unwrap_or_else(|e| panic!("{e}"));
         assert_eq!(p.planning.grid, StartGrid::Daily);
         assert_eq!(p.planning.start_weekday, Weekday::Wed);
-        assert_eq!(p.share_levels, vec![0.25, 0.5, 1.0]);
+        assert_eq!(
+            p.share_levels,
+            ShareLevels::from_fractions(&[0.25, 0.5, 1.0])
+        );
         assert!(!p.experiments[0].whole_weeks);
     }
 

@@ -6,6 +6,7 @@
 //! field (ids resolved to indices, dates inside the window, numbers in
 //! range, the `after` graph acyclic, every experiment sized).
 
+use crate::share::{Share, ShareLevels};
 use crate::sizing::{Correction, Design, Method, SampleSize, Sides};
 use chrono::{NaiveDate, Weekday};
 use serde::Serialize;
@@ -209,7 +210,7 @@ pub struct Experiment {
     /// The last day its data may run to; inside the window when given.
     pub deadline: Option<NaiveDate>,
     /// Largest share of the pool it may take, in (0, 1].
-    pub max_share: f64,
+    pub max_share: Share,
     pub min_days: u32,
     pub whole_weeks: bool,
     pub after: Vec<Prerequisite>,
@@ -254,7 +255,7 @@ pub struct Portfolio {
     pub window: Window,
     pub defaults: Defaults,
     /// Shares the planner may give a test, ascending, each in (0, 1].
-    pub share_levels: Vec<f64>,
+    pub share_levels: ShareLevels,
     pub planning: Planning,
     pub pools: Vec<Pool>,
     pub experiments: Vec<Experiment>,
@@ -323,7 +324,7 @@ mod tests {
                 priority: 1.0,
                 earliest_start: None,
                 deadline: None,
-                max_share: 1.0,
+                max_share: Share::WHOLE,
                 min_days: 14,
                 whole_weeks: true,
                 after: pre

@@ -11,6 +11,7 @@ use super::model::*;
 use super::position::PositionIndex;
 use super::raw::*;
 use crate::diagnostic::{self, Diagnostic};
+use crate::share::{Share, ShareLevels};
 use crate::sizing::{
     self, Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
 };
@@ -389,9 +390,9 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
     (defaults, cx.errors.len() == before)
 }
 
-fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
+fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> ShareLevels {
     let Some(levels) = raw else {
-        return DEFAULT_SHARE_LEVELS.to_vec();
+        return ShareLevels::from_fractions(&DEFAULT_SHARE_LEVELS);
     };
     if levels.is_empty() {
         cx.err(
@@ -399,7 +400,7 @@ fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
             "`share_levels` is empty",
             "list the shares the planner may give a test, e.g. [0.25, 0.5, 1.0], or remove the key for the default",
         );
-        return DEFAULT_SHARE_LEVELS.to_vec();
+        return ShareLevels::from_fractions(&DEFAULT_SHARE_LEVELS);
     }
     let mut out = Vec::new();
     for (i, &s) in levels.iter().enumerate() {
@@ -407,16 +408,19 @@ fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> Vec<f64> {
             &format!("share_levels[{i}]"),
             "",
             s,
-            s > 0.0 && s <= 1.0,
+            is_share(s),
             "a share in (0, 1]",
             "write shares as fractions: 0.25 for a quarter of the pool",
         ) {
-            out.push(s);
+            out.push(Share::from_fraction(s));
         }
     }
-    out.sort_by(f64::total_cmp);
-    out.dedup();
-    out
+    ShareLevels::new(out)
+}
+
+/// A share the model can hold: in (0, 1] and not below one millionth.
+fn is_share(s: f64) -> bool {
+    s > 0.0 && s <= 1.0 && !Share::from_fraction(s).is_zero()
 }
 
 fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
@@ -738,7 +742,7 @@ fn experiments(
     window: Option<Window>,
     d: &Defaults,
     defaults_ok: bool,
-    share_levels: &[f64],
+    share_levels: &ShareLevels,
 ) -> (Vec<Experiment>, Option<Vec<usize>>) {
     let ids = ids(
         cx,
@@ -789,16 +793,16 @@ fn experiments(
             &at("max_share"),
             &who,
             max_share,
-            max_share > 0.0 && max_share <= 1.0,
+            is_share(max_share),
             "a share in (0, 1]",
             "the largest fraction of the pool this test may take; 1 for no limit",
         ) {
-            if let Some(&lowest) = share_levels.first() {
-                if max_share < lowest {
+            if let Some(lowest) = share_levels.lowest() {
+                if Share::from_fraction(max_share) < lowest {
                     cx.err(
                         &at("max_share"),
-                        format!("{who}`max_share` {max_share} is below the smallest share level {lowest}; the planner could never run it"),
-                        format!("raise `max_share` to at least {lowest}, or add a smaller value to `share_levels`"),
+                        format!("{who}`max_share` {max_share} is below the smallest share level {}; the planner could never run it", lowest.fraction()),
+                        format!("raise `max_share` to at least {}, or add a smaller value to `share_levels`", lowest.fraction()),
                     );
                 }
             }
@@ -916,7 +920,7 @@ fn experiments(
             priority,
             earliest_start: earliest,
             deadline,
-            max_share,
+            max_share: Share::from_fraction(max_share),
             min_days: if min_ok { min_days as u32 } else { d.min_days },
             whole_weeks: e.whole_weeks.unwrap_or(d.whole_weeks),
             after,

@@ -21,6 +21,7 @@ pub use scale::{with_scales, ScaleArg};
 use crate::plan::{Plan, Status};
 use crate::portfolio::Portfolio;
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
+use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use outlook::{outlook, percent, Run, HORIZON_DAYS};
 use progress::State;
@@ -91,7 +92,7 @@ pub fn replan(
                 request.fixed.push(FixedRun {
                     experiment: entry.experiment,
                     start: *started,
-                    share: run_share,
+                    share: Share::from_fraction(run_share),
                     end,
                 });
                 outlooks.push(o);
@@ -325,15 +326,17 @@ mod tests {
         let left = 63.0 * 1000.0;
         let rescue = p
             .share_levels
+            .all()
             .iter()
-            .copied()
+            .map(|s| s.fraction())
             .find(|s| s * left >= remaining as f64)
             .expect("some level fits");
         assert_eq!(o.rescue_share, Some(rescue));
         let below: Vec<f64> = p
             .share_levels
+            .all()
             .iter()
-            .copied()
+            .map(|s| s.fraction())
             .filter(|s| *s > 0.1 && *s < rescue)
             .collect();
         for s in below {
@@ -413,7 +416,7 @@ mod tests {
         let r = slow();
         let rescue = outlook(&p, &r, 0.1, today).rescue_share.unwrap();
         let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
-        assert_eq!(request.fixed[0].share, 0.1);
+        assert_eq!(request.fixed[0].share, Share::from_fraction(0.1));
         assert!(request.fixed[0].end > p.window.end);
         assert_eq!(plan.experiments[0].status, Status::Running);
         assert_eq!(plan.experiments[0].start, Some(d("2027-01-04")));
@@ -430,7 +433,7 @@ mod tests {
         let p = flat(false, 1, true);
         let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
         let fixed = &request.fixed[0];
-        assert_eq!(fixed.share, rescue);
+        assert_eq!(fixed.share.fraction(), rescue);
         assert_eq!(fixed.start, d("2027-01-04"));
         assert_eq!(Some(fixed.end), running_end(&p, &r, rescue, today));
         assert!(fixed.end <= p.window.end);

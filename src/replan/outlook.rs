@@ -7,6 +7,7 @@
 use crate::forecast::units_on;
 use crate::plan::RunningOutlook;
 use crate::portfolio::Portfolio;
+use crate::share::Share;
 use crate::sizing::{self, round_days};
 use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
@@ -123,9 +124,9 @@ pub(super) fn outlook(
     // The smallest allowed share level above the current one that ends in time.
     outlook.rescue_share = portfolio
         .share_levels
-        .iter()
-        .copied()
-        .filter(|&s| s > share + 1e-9 && s <= e.max_share + 1e-9)
+        .up_to(e.max_share)
+        .map(Share::fraction)
+        .filter(|&s| Share::from_fraction(s) > Share::from_fraction(share))
         .find(|&s| {
             running_end(portfolio, run, s, today).is_some_and(|d| d <= portfolio.window.end)
         });
@@ -157,7 +158,7 @@ pub(super) fn outlook(
         )),
         None => advice.push_str(&format!(
             "; no share up to its maximum of {} finishes it in time",
-            percent(e.max_share)
+            e.max_share
         )),
     }
     match outlook.detectable_effect {

@@ -12,7 +12,7 @@
 //! model small.
 
 use super::options::{Instance, Opt};
-use super::state::{micro, WHOLE};
+use super::state::WHOLE;
 use crate::portfolio::Sharing;
 use good_lp::{
     variable, Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel,
@@ -162,7 +162,7 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
                 let o = opt(i, j);
                 let mut s = pts.partition_point(|&b| b < o.start);
                 while s + 1 < pts.len() && pts[s] <= o.end {
-                    cover[s].push((i, j, o.share));
+                    cover[s].push((i, j, o.share.fraction()));
                     s += 1;
                 }
             }
@@ -187,7 +187,7 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
                 .min()
                 .unwrap_or(0) as f64;
             let share_left = days
-                .map(|d| WHOLE - micro(inst.base_share[pool][d]))
+                .map(|d| WHOLE - inst.base_share[pool][d])
                 .min()
                 .unwrap_or(0) as f64
                 / WHOLE as f64;

@@ -31,6 +31,7 @@ use crate::plan::{
     Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, SolverSummary, Status,
 };
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing};
+use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 pub(crate) use options::Instance;
 use options::Role;
@@ -42,7 +43,7 @@ pub struct FixedRun {
     /// Index into `Portfolio::experiments`.
     pub experiment: usize,
     pub start: NaiveDate,
-    pub share: f64,
+    pub share: Share,
     /// Last day of data, as the caller computed it (it may lie past the window).
     pub end: NaiveDate,
 }
@@ -311,9 +312,10 @@ fn assemble(
                     out.start = Some(start);
                     out.end = Some(end);
                     out.result_date = Some(end + Duration::days(1));
-                    out.share = Some(share);
+                    out.share = Some(share.fraction());
                     out.days = Some(((end - start).num_days() + 1) as u32);
-                    out.units_expected = Some(units_between(p, ex.pool, start, end, share));
+                    out.units_expected =
+                        Some(units_between(p, ex.pool, start, end, share.fraction()));
                 }
                 None => {
                     out.reason = why[e].clone();

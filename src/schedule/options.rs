@@ -11,13 +11,12 @@
 //! options (same start, a larger share but no earlier end) are dropped.
 //! Every end comes from [`Series::run_end`].
 
+use super::state::{micro, WHOLE};
 use super::{FixedRun, PlanRequest};
 use crate::forecast::Series;
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};
+use crate::share::Share;
 use chrono::Datelike;
-
-/// Slack for floating-point comparisons of shares.
-pub(crate) const EPS: f64 = 1e-9;
 
 /// One candidate run of one test.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -26,7 +25,7 @@ pub(crate) struct Opt {
     pub start: usize,
     /// Last day of data, inclusive.
     pub end: usize,
-    pub share: f64,
+    pub share: Share,
     /// Its contribution to the objective.
     pub value: f64,
     /// First and last of its pool's segments it covers (see `Instance::segments`).
@@ -40,7 +39,7 @@ pub(crate) enum Role {
     /// The planner decides.
     Free,
     /// Running: holds its traffic as given (offsets may lie outside the window).
-    Fixed { start: i64, end: i64, share: f64 },
+    Fixed { start: i64, end: i64, share: Share },
     /// Left out by request; `ended` is the last day of a finished run.
     Excluded { ended: Option<i64>, reason: String },
 }
@@ -53,7 +52,7 @@ pub(crate) struct Instance<'a> {
     /// Forecast of each pool over the window.
     pub series: Vec<Series>,
     /// Share of each pool held by fixed runs, per day.
-    pub base_share: Vec<Vec<f64>>,
+    pub base_share: Vec<Vec<i64>>,
     /// Number of fixed runs on each pool, per day.
     pub base_count: Vec<Vec<u32>>,
     pub roles: Vec<Role>,
@@ -115,7 +114,7 @@ impl<'a> Instance<'a> {
                 };
             }
         }
-        let mut base_share = vec![vec![0.0; days]; portfolio.pools.len()];
+        let mut base_share = vec![vec![0i64; days]; portfolio.pools.len()];
         let mut base_count = vec![vec![0u32; days]; portfolio.pools.len()];
         for FixedRun {
             experiment,
@@ -135,7 +134,7 @@ impl<'a> Instance<'a> {
             };
             let pool = portfolio.experiments[*experiment].pool;
             for d in s.max(0)..=e.min(days as i64 - 1) {
-                base_share[pool][d as usize] += share;
+                base_share[pool][d as usize] += micro(*share);
                 base_count[pool][d as usize] += 1;
             }
         }
@@ -280,7 +279,7 @@ impl<'a> Instance<'a> {
     /// first allowed start whose run ends by the deadline and the window's
     /// end and crosses no `no_running` day. The scan stops at the first
     /// allowed start whose run ends too late; the flags say what it met.
-    pub fn earliest_solo(&self, e: usize, share: f64, first: usize) -> Solo {
+    pub fn earliest_solo(&self, e: usize, share: Share, first: usize) -> Solo {
         let ex = &self.portfolio.experiments[e];
         let pool = ex.pool;
         let last = self.last_end(e);
@@ -295,7 +294,13 @@ impl<'a> Instance<'a> {
                 continue;
             }
             solo.any_start = true;
-            match self.series[pool].run_end(start, share, need, ex.min_days, ex.whole_weeks) {
+            match self.series[pool].run_end(
+                start,
+                share.fraction(),
+                need,
+                ex.min_days,
+                ex.whole_weeks,
+            ) {
                 Some(end) if end as i64 <= last => {
                     if before[end + 1] == before[start] {
                         solo.run = Some((start, end));
@@ -344,14 +349,9 @@ impl<'a> Instance<'a> {
     }
 
     /// Share levels test `e` may take, ascending.
-    pub fn shares(&self, e: usize) -> Vec<f64> {
+    pub fn shares(&self, e: usize) -> Vec<Share> {
         let max = self.portfolio.experiments[e].max_share;
-        self.portfolio
-            .share_levels
-            .iter()
-            .copied()
-            .filter(|&s| s > 0.0 && s <= max + EPS)
-            .collect()
+        self.portfolio.share_levels.up_to(max).collect()
     }
 
     fn enumerate(&self, e: usize) -> Vec<Opt> {
@@ -378,9 +378,13 @@ impl<'a> Instance<'a> {
             let mut pushed_last = false;
             // Largest share first: ends only move later as the share drops.
             for &share in shares.iter().rev() {
-                let Some(end) =
-                    self.series[pool].run_end(start, share, need, ex.min_days, ex.whole_weeks)
-                else {
+                let Some(end) = self.series[pool].run_end(
+                    start,
+                    share.fraction(),
+                    need,
+                    ex.min_days,
+                    ex.whole_weeks,
+                ) else {
                     break;
                 };
                 if end as i64 > deadline {
@@ -397,7 +401,7 @@ impl<'a> Instance<'a> {
                 }
                 let fits_fixed = (start..=end).all(|d| {
                     self.base_count[pool][d] < cap
-                        && (!split || self.base_share[pool][d] + share <= 1.0 + EPS)
+                        && (!split || self.base_share[pool][d] + micro(share) <= WHOLE)
                 });
                 if !fits_fixed {
                     continue;
@@ -421,7 +425,7 @@ impl<'a> Instance<'a> {
         out.sort_by(|a, b| {
             b.value
                 .total_cmp(&a.value)
-                .then(a.share.total_cmp(&b.share))
+                .then(a.share.cmp(&b.share))
                 .then(a.start.cmp(&b.start))
         });
         out

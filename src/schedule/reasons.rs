@@ -5,18 +5,9 @@
 
 use super::options::{Instance, Role};
 use super::state::State;
+use crate::share::Share;
 pub(crate) use crate::words::thousands;
 use chrono::{Datelike, Duration, NaiveDate};
-
-/// A share as a percentage: `50%`, `12.5%`.
-pub(crate) fn percent(share: f64) -> String {
-    let p = share * 100.0;
-    if (p - p.round()).abs() < 1e-6 {
-        format!("{}%", p.round() as i64)
-    } else {
-        format!("{p:.1}%")
-    }
-}
 
 fn number(x: f64) -> String {
     if (x - x.round()).abs() < 1e-9 {
@@ -40,14 +31,14 @@ pub(crate) fn explain(inst: &Instance, state: &State) -> Vec<Option<String>> {
 
 /// Days a run at `share` from `start` needs, on the forecast, counted
 /// past the window if need be (up to about three years); `None` if never.
-fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: f64) -> Option<i64> {
+fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Option<i64> {
     let p = inst.portfolio;
     let ex = &p.experiments[e];
     let limit = p.window.end + Duration::days(3 * 366);
     crate::forecast::run_end(
         &p.pools[ex.pool],
         start,
-        share,
+        share.fraction(),
         ex.need.total as f64,
         ex.min_days,
         ex.whole_weeks,
@@ -78,7 +69,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     let Some(&top) = shares.last() else {
         return format!(
             "no share level is at or below its maximum share of {}; add a smaller level or raise it",
-            percent(ex.max_share)
+            ex.max_share
         );
     };
     // Alone: the earliest start on the grid at its largest share.
@@ -100,7 +91,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
             return format!(
             "needs {} units; at {} of `{}` the forecast does not deliver them within three years",
             thousands(ex.need.total),
-            percent(top),
+            top,
             pool.id
         )
         }
@@ -108,13 +99,12 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
             return if first == 0 {
                 format!(
                     "needs {n} days at {} of `{}`; the window has {left}",
-                    percent(top),
-                    pool.id
+                    top, pool.id
                 )
             } else {
                 format!(
                     "needs {n} days at {} of `{}`; from its earliest start on {start} the window has {left}",
-                    percent(top),
+                    top,
                     pool.id
                 )
             };
@@ -125,7 +115,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 if end > dl {
                     return format!(
                         "deadline {dl} cannot be met: at its maximum share of {} the earliest end is {end}",
-                        percent(top)
+                        top
                     );
                 }
             }

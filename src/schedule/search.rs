@@ -371,7 +371,7 @@ fn branch_and_bound(
             let e = exps[i];
             idx.sort_by(|&a, &b| {
                 let (oa, ob) = (&inst.options[e][allowed[a]], &inst.options[e][allowed[b]]);
-                oa.start.cmp(&ob.start).then(oa.share.total_cmp(&ob.share))
+                oa.start.cmp(&ob.start).then(oa.share.cmp(&ob.share))
             });
             let mut cum = 0.0;
             let mut cut = 0;
@@ -692,5 +692,5 @@ fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitM
 }
 
 fn footprint(o: &super::options::Opt) -> f64 {
-    o.share * (o.end - o.start + 1) as f64
+    o.share.fraction() * (o.end - o.start + 1) as f64
 }

@@ -8,13 +8,14 @@
 
 use super::options::{Instance, Opt, Role};
 use crate::portfolio::Sharing;
+use crate::share::Share;
 
-/// One whole share in millionths.
-pub(crate) const WHOLE: i64 = 1_000_000;
+/// One whole pool in millionths, as sums of [`Share`]s are kept.
+pub(crate) const WHOLE: i64 = Share::MILLION as i64;
 
-/// A share in millionths, rounded to the nearest.
-pub(crate) fn micro(share: f64) -> i64 {
-    (share * WHOLE as f64).round() as i64
+/// A share in millionths, for sums that may pass one whole pool.
+pub(crate) fn micro(share: Share) -> i64 {
+    i64::from(share.millionths())
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -44,7 +45,7 @@ impl State {
                 .map(|pool| {
                     firsts(pool)
                         .into_iter()
-                        .map(|d| micro(inst.base_share[pool][d]))
+                        .map(|d| inst.base_share[pool][d])
                         .collect()
                 })
                 .collect(),

@@ -13,6 +13,7 @@ use crate::portfolio::{
     after_order, Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast,
     Planning, Pool, Portfolio, Prerequisite, Sharing, Window,
 };
+use crate::share::{Share, ShareLevels};
 use crate::sizing::{Design, Effect, Metric, SampleSize};
 use chrono::{Duration, NaiveDate};
 
@@ -129,7 +130,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             .then(|| start + Duration::days(7 * rng.below(weeks.div_ceil(2)) as i64));
         let deadline = (rng.unit() < 0.2)
             .then(|| end - Duration::days(7 * rng.below(weeks.div_ceil(2)) as i64));
-        let max_share = [0.5, 0.75, 1.0, 1.0][rng.below(4)];
+        let max_share = Share::from_fraction([0.5, 0.75, 1.0, 1.0][rng.below(4)]);
         let mut after = Vec::new();
         if i > 0 && rng.unit() < 0.1 {
             let same: Vec<usize> = (0..i).filter(|&j| experiments[j].pool == pool).collect();
@@ -206,7 +207,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         ),
         window: Window { start, end },
         defaults: Defaults::default(),
-        share_levels: SHARE_LEVELS.to_vec(),
+        share_levels: ShareLevels::from_fractions(&SHARE_LEVELS),
         planning: Planning::default(),
         pools,
         after_order: after_order(&experiments).expect("`after` links point back, so never round"),

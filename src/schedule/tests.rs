@@ -10,6 +10,7 @@ use crate::portfolio::{
     after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
+use crate::share::ShareLevels;
 use crate::sizing::{Design, Effect, Metric};
 use chrono::Weekday;
 use proptest::prelude::*;
@@ -44,7 +45,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         priority,
         earliest_start: None,
         deadline: None,
-        max_share: 1.0,
+        max_share: Share::WHOLE,
         min_days: 7,
         whole_weeks: true,
         after: Vec::new(),
@@ -65,7 +66,7 @@ fn portfolio(pools: Vec<Pool>, experiments: Vec<Experiment>) -> Portfolio {
             min_days: 7,
             ..Defaults::default()
         },
-        share_levels: vec![0.5, 1.0],
+        share_levels: ShareLevels::from_fractions(&[0.5, 1.0]),
         planning: Planning::default(),
         pools,
         after_order: after_order(&experiments).expect("hand-built `after` links have no cycle"),
@@ -341,7 +342,7 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
         fixed: vec![FixedRun {
             experiment: 0,
             start: d("2027-01-04"),
-            share: 1.0,
+            share: Share::WHOLE,
             end: d("2027-01-17"),
         }],
         excluded: vec![
@@ -381,7 +382,7 @@ fn edge_cases_give_plans_with_reasons() {
     // A pool with no traffic, a share cap below every level, and a re-plan
     // whose today is past the window.
     let mut tiny = exp("tiny-share", 0, 7000, 1.0);
-    tiny.max_share = 0.25;
+    tiny.max_share = Share::from_fraction(0.25);
     let p = portfolio(
         vec![
             pool("home", 1000.0, Sharing::Split, 3),
@@ -506,7 +507,7 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
                 r.fixed.push(FixedRun {
                     experiment: i,
                     start: s,
-                    share: sh,
+                    share: Share::from_fraction(sh),
                     end: t,
                 });
             }

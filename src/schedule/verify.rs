@@ -12,6 +12,7 @@ use super::PlanRequest;
 use crate::forecast::units_on;
 use crate::plan::{Plan, Status};
 use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Sharing, StartGrid};
+use crate::share::Share;
 use chrono::{Datelike, Duration, NaiveDate};
 
 const TOL: f64 = 1e-6;
@@ -105,7 +106,7 @@ pub fn verify(
     let excluded = |i: usize| request.excluded.iter().find(|x| x.experiment == i);
     for (i, ex) in p.experiments.iter().enumerate() {
         if let Some(f) = fixed(i) {
-            if runs[i] != Some((f.start, f.end, f.share)) {
+            if runs[i] != Some((f.start, f.end, f.share.fraction())) {
                 bad.push(format!("running `{}` was not kept as given", ex.id));
             }
             continue;
@@ -146,13 +147,13 @@ pub fn verify(
                 start.weekday()
             ));
         }
-        if !p.share_levels.iter().any(|&l| (l - share).abs() < 1e-12) {
+        if !p.share_levels.contains(Share::from_fraction(share)) {
             bad.push(format!("`{id}` takes share {share}, not a share level"));
         }
-        if share > ex.max_share + 1e-12 {
+        if Share::from_fraction(share) > ex.max_share {
             bad.push(format!(
                 "`{id}` takes share {share}, above its maximum {}",
-                ex.max_share
+                ex.max_share.fraction()
             ));
         }
         match own_end(p, ex, start, share, w.end) {
