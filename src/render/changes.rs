@@ -8,8 +8,7 @@
 //! plan's order.
 
 use super::common::{percent, thousands, units};
-use crate::diff::{ExperimentDiff, Movement, PlanDiff, PoolDiff};
-use crate::plan::{Plan, RunningOutlook, Status};
+use crate::plan::{ExperimentDiff, Movement, Plan, PlanDiff, PoolDiff, RunningOutlook, Status};
 use std::fmt::Write as _;
 use unicode_width::UnicodeWidthStr;
 
@@ -479,6 +478,7 @@ pub fn into_html_report(plan: &Plan, report: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::plan::Run;
     use crate::render::fixture;
     use chrono::Duration;
 
@@ -492,23 +492,26 @@ mod tests {
             match e.id.as_str() {
                 "hero-copy" => {
                     e.status = Status::Finished;
-                    (e.start, e.end, e.result_date, e.share) = (None, None, None, None);
+                    e.run = None;
                 }
                 "trust-badges" => {
-                    e.result_date = e.result_date.map(|d| d + Duration::days(7));
+                    if let Some(r) = &mut e.run {
+                        r.result_date += Duration::days(7);
+                    }
                 }
                 "search-synonyms" => {
                     e.status = Status::Running;
-                    e.share = Some(0.5);
+                    if let Some(r) = &mut e.run {
+                        r.share = 0.5;
+                    }
                 }
                 "recipe-cards" => {
                     e.status = Status::Scheduled;
-                    e.result_date = old.experiments[3].result_date;
-                    e.share = Some(0.2);
+                    e.run = old.experiments[3].run.map(|r| Run { share: 0.2, ..r });
                 }
                 "search-freshness" => {
                     e.status = Status::Unscheduled;
-                    (e.start, e.end, e.result_date, e.share) = (None, None, None, None);
+                    e.run = None;
                 }
                 _ => {}
             }

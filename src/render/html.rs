@@ -16,10 +16,10 @@
 
 use super::common::{
     blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pool_label,
-    run_of, short_date, solver_sentence, thousands, units, weeks, Run, CAUTION,
+    short_date, solver_sentence, thousands, units, weeks, CAUTION,
 };
 use super::{RenderError, RenderOptions, Renderer};
-use crate::plan::{Plan, PlannedExperiment, PoolPlan};
+use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
 
@@ -201,10 +201,9 @@ fn blackout_shades(plan: &Plan, scale: &Scale, pool: &str, top: f64, bottom: f64
             continue;
         }
         let (x0, x1) = scale.span(b.from, b.to);
-        let (pattern, kind) = match b.kind.as_str() {
-            "no_running" => ("url(#shade-stop)", "nothing runs"),
-            "no_starts" => ("url(#shade-nostart)", "no new starts"),
-            _ => ("url(#shade-nostart)", b.kind.as_str()),
+        let (pattern, kind) = match b.kind {
+            BlackoutKind::NoRunning => ("url(#shade-stop)", "nothing runs"),
+            BlackoutKind::NoStarts => ("url(#shade-nostart)", "no new starts"),
         };
         let _ = writeln!(
             s,
@@ -328,8 +327,8 @@ fn calendar_chart(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
                 mid + 4.0,
                 esc(&clip(&e.id, 27))
             );
-            match run_of(e)? {
-                Some(r) => bar(plan, &scale, e, &r, y, pool_fill(gi), s),
+            match &e.run {
+                Some(r) => bar(plan, &scale, e, r, y, pool_fill(gi), s),
                 None => {
                     let word = if e.status == crate::plan::Status::Unscheduled {
                         "does not fit: see the list below"
@@ -663,7 +662,7 @@ fn table(plan: &Plan, s: &mut String) -> Result<(), RenderError> {
             esc(&e.id),
             esc(pool_label(plan, &e.pool))
         );
-        match run_of(e)? {
+        match &e.run {
             Some(r) => {
                 let _ = write!(
                     s,
@@ -759,7 +758,7 @@ impl Renderer for Html {
         let next = plan
             .experiments
             .iter()
-            .filter_map(|e| run_of(e).ok().flatten().map(|r| (r.result_date, e)))
+            .filter_map(|e| e.run.map(|r| (r.result_date, e)))
             .filter(|(d, _)| *d >= plan.today)
             .min_by_key(|(d, _)| *d);
         if let Some((d, e)) = next {

@@ -3,7 +3,7 @@
 //! and one paragraph of assumptions. User text is escaped so that it cannot
 //! break the table or start markup of its own.
 
-use super::common::{counts, long_date, percent, pool_label, run_of, CAUTION};
+use super::common::{counts, long_date, percent, pool_label, CAUTION};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::Plan;
 use std::fmt::Write;
@@ -75,12 +75,11 @@ impl Renderer for Markdown {
         if fit > 0 {
             let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
             let _ = writeln!(w, "|---|---|---|---|--:|---|");
-            let mut rows = Vec::new();
-            for e in &plan.experiments {
-                if let Some(run) = run_of(e)? {
-                    rows.push((run, e));
-                }
-            }
+            let mut rows: Vec<_> = plan
+                .experiments
+                .iter()
+                .filter_map(|e| e.run.map(|run| (run, e)))
+                .collect();
             // Stakeholders read this table by date; ties keep plan order.
             rows.sort_by_key(|(run, _)| run.result_date);
             for (run, e) in rows {

@@ -203,9 +203,6 @@ pub enum RenderError {
     Json(serde_json::Error),
     /// CSV writing failed.
     Csv(::csv::Error),
-    /// The plan breaks a promise the renderers rely on (for example a
-    /// scheduled experiment without a start); names the experiment.
-    Inconsistent(String),
 }
 
 impl fmt::Display for RenderError {
@@ -224,10 +221,6 @@ impl fmt::Display for RenderError {
             }
             RenderError::Json(e) => write!(f, "cannot write the plan as json: {e}"),
             RenderError::Csv(e) => write!(f, "cannot write the plan as csv: {e}"),
-            RenderError::Inconsistent(what) => write!(
-                f,
-                "the plan is inconsistent: {what} (this is a bug in sluice; please report it)"
-            ),
         }
     }
 }

@@ -9,11 +9,11 @@
 //! several weeks per character). ANSI colour only when the options ask.
 
 use super::common::{
-    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, run_of,
-    short_date, solver_sentence, thousands, weeks, Run, Week, CAUTION,
+    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, short_date,
+    solver_sentence, thousands, weeks, Week, CAUTION,
 };
 use super::{RenderError, RenderOptions, Renderer};
-use crate::plan::{Plan, PlannedExperiment, PoolPlan};
+use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use chrono::{Duration, NaiveDate};
 use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table};
 use std::fmt::Write;
@@ -313,7 +313,7 @@ fn table_for(
     }
     t.set_header(header.iter().map(Cell::new));
     for e in &plan.experiments {
-        let run = run_of(e)?;
+        let run = e.run;
         let mut row = vec![Cell::new(&e.id)];
         if layout >= Layout::Widest {
             row.push(Cell::new(fit(&e.title, title_room)));
@@ -412,7 +412,7 @@ fn pool_share_table(plan: &Plan, width: usize, colour: bool) -> Table {
     let mut header = vec![Cell::new("week of")];
     for p in &plan.pools {
         let name = if per_pool >= p.label.width() + 12 {
-            format!("{} ({})", p.label, p.sharing)
+            format!("{} ({})", p.label, p.sharing.name())
         } else {
             p.id.clone()
         };
@@ -517,7 +517,7 @@ fn timeline(plan: &Plan, width: usize, colour: bool, out: &mut String) -> Result
         };
         let sgr = POOL_COLOURS[gi % POOL_COLOURS.len()];
         for e in exps {
-            let run = run_of(e)?;
+            let run = e.run;
             let label = format!("  {}", fit(&e.id, label_w - 3));
             let label = format!(
                 "{label}{}",
@@ -550,10 +550,9 @@ fn timeline(plan: &Plan, width: usize, colour: bool, out: &mut String) -> Result
         .blackouts
         .iter()
         .map(|b| {
-            let kind = match b.kind.as_str() {
-                "no_starts" => "no new starts",
-                "no_running" => "nothing runs",
-                other => other,
+            let kind = match b.kind {
+                BlackoutKind::NoStarts => "no new starts",
+                BlackoutKind::NoRunning => "nothing runs",
             };
             let pools = if b.pools.is_empty() {
                 "all pools".to_string()
@@ -595,15 +594,12 @@ fn for_terminal(plan: &Plan) -> Plan {
     for pool in &mut p.pools {
         pool.id = clean(&pool.id);
         pool.label = clean(&pool.label);
-        pool.sharing = clean(&pool.sharing);
     }
     for b in &mut p.blackouts {
         b.note = clean(&b.note);
-        b.kind = clean(&b.kind);
         b.pools = b.pools.iter().map(|x| clean(x)).collect();
     }
     p.solver.backend = clean(&p.solver.backend);
-    p.solver.status = clean(&p.solver.status);
     p
 }
 
@@ -786,7 +782,7 @@ mod tests {
             .iter()
             .find(|e| e.id == "search-freshness")
             .unwrap();
-        let run = run_of(e).unwrap().unwrap();
+        let run = e.run.unwrap();
         let row: String = track.row(Some(&run), &|_, _| false).into_iter().collect();
         assert_eq!(row, "·██████······");
         let mut shifted = run;
