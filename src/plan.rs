@@ -93,11 +93,12 @@ impl Status {
 
 /// One experiment's outcome.
 ///
-/// In JSON its run's facts stand as six keys of their own between `status`
-/// and `reason` (`start`, `end`, `result_date`, `share`, `days`,
-/// `units_expected`, with `units_needed` among them), all `null` when it
-/// has no run; reading a plan refuses one with some of them and not others,
-/// or a run that disagrees with its status.
+/// In JSON the run is not nested: its six facts are keys of the experiment
+/// (`start`, `end`, `result_date`, `share`, `days` before `units_needed`,
+/// `units_expected` after it), each `null` when there is no run. A private
+/// wire struct keeps that layout (`#[serde(flatten)]` could not put
+/// `units_needed` between them). Reading a plan refuses half a run, and a
+/// run that disagrees with the status.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(into = "ExperimentJson", try_from = "ExperimentJson")]
 pub struct PlannedExperiment {

@@ -7,6 +7,11 @@
 //! shares or result dates. Grouping days into weeks for display is the only
 //! arithmetic they do. Output is deterministic: the same plan and options
 //! give the same bytes. Writing the bytes to a file is `crate::output`'s job.
+//!
+//! A re-plan's changes (`Plan::changes`) and running tests' advice
+//! (`Plan::running`) are part of the plan: text, Markdown and HTML draw
+//! them first, in the words of `moved`; JSON carries them as they are.
+//! `markup` lays out a table once for Markdown and HTML.
 
 mod common;
 pub mod csv;
@@ -14,7 +19,7 @@ pub mod html;
 pub mod ics;
 pub mod json;
 pub mod markdown;
-pub mod markup;
+mod markup;
 mod moved;
 pub mod text;
 

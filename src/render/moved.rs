@@ -91,7 +91,7 @@ fn rank(m: Movement) -> u8 {
 }
 
 /// The experiments in display order (stable within a group).
-pub fn ordered(d: &PlanDiff) -> Vec<&ExperimentDiff> {
+fn ordered(d: &PlanDiff) -> Vec<&ExperimentDiff> {
     let mut rows: Vec<&ExperimentDiff> = d.experiments.iter().collect();
     rows.sort_by_key(|e| rank(e.movement));
     rows
@@ -249,7 +249,7 @@ pub const COLUMNS: [Column; 8] = [
 ];
 
 /// One experiment's cells, a column each of [`HEADER`].
-pub fn cells(e: &ExperimentDiff) -> [String; 8] {
+fn cells(e: &ExperimentDiff) -> [String; 8] {
     [
         e.id.clone(),
         e.pool.clone(),
