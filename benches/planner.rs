@@ -117,7 +117,10 @@ fn middle_on_grid(portfolio: &Portfolio) -> NaiveDate {
 fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDate) -> Progress {
     let mut entries = Vec::new();
     for (i, pe) in plan.experiments.iter().enumerate() {
-        let (Some(start), Some(end), Some(share)) = (pe.start, pe.end, pe.share) else {
+        let Some(sluice::plan::Run {
+            start, end, share, ..
+        }) = pe.run
+        else {
             continue;
         };
         if start >= today {
@@ -214,7 +217,7 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         greedy_over_bound: plan.greedy_value / s.bound,
         peak_mb: peak,
         greedy: plan.greedy_value,
-        status: s.status.clone(),
+        status: s.status.name().to_string(),
         verified: true,
     }
 }
@@ -254,7 +257,7 @@ fn run_row(size: &str, backend: &str) -> Row {
         greedy_over_bound: plan.greedy_value / s.bound,
         peak_mb: peak,
         greedy: plan.greedy_value,
-        status: s.status.clone(),
+        status: s.status.name().to_string(),
         verified,
     }
 }

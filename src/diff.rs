@@ -5,92 +5,20 @@
 //! schedule facts of its own beyond subtracting dates and summing the
 //! plans' own per-experiment numbers.
 
-use crate::plan::{Plan, PlannedExperiment, Status};
-use chrono::NaiveDate;
-use serde::{Deserialize, Serialize};
-
-/// How one experiment's outcome changed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Movement {
-    /// Same result date and share.
-    Unchanged,
-    /// Its result arrives later.
-    Later,
-    /// Its result arrives earlier.
-    Earlier,
-    /// Same result date, another share.
-    Reshared,
-    /// It was in the calendar and is not any more.
-    NoLongerFits,
-    /// It was out and now has a place.
-    NowFits,
-    /// Out before and out now.
-    StillOut,
-    /// Finished or cancelled since the previous plan.
-    Closed,
-    /// Not in the previous plan.
-    Added,
-    /// In the previous plan only.
-    Dropped,
-}
-
-/// One experiment, before and after.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct ExperimentDiff {
-    pub id: String,
-    pub pool: String,
-    pub movement: Movement,
-    pub old_status: Option<Status>,
-    pub new_status: Option<Status>,
-    pub old_result_date: Option<NaiveDate>,
-    pub new_result_date: Option<NaiveDate>,
-    /// New result date minus old, in days (+ later, - earlier); both scheduled only.
-    pub slip_days: Option<i64>,
-    pub old_share: Option<f64>,
-    pub new_share: Option<f64>,
-}
-
-/// A pool's totals in one plan.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
-pub struct PoolTotals {
-    /// Experiments in the calendar (scheduled or running).
-    pub scheduled: u32,
-    /// Experiments out of the calendar.
-    pub unscheduled: u32,
-    /// Experiments finished or cancelled (re-plans only).
-    #[serde(default)]
-    pub closed: u32,
-    /// Units the scheduled experiments need, summed.
-    pub units_needed: u64,
-    /// Forecast units of the pool over the window.
-    pub forecast_units: f64,
-}
-
-/// A pool before and after.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct PoolDiff {
-    pub id: String,
-    pub before: PoolTotals,
-    pub after: PoolTotals,
-}
-
-/// Everything that moved.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct PlanDiff {
-    /// In the new plan's order, then experiments only the old plan had.
-    pub experiments: Vec<ExperimentDiff>,
-    /// Ids that were scheduled and are not any more.
-    pub no_longer_fit: Vec<String>,
-    /// Ids that were unscheduled and now are.
-    pub now_fit: Vec<String>,
-    /// Ids scheduled in both with another share.
-    pub share_changed: Vec<String>,
-    pub pools: Vec<PoolDiff>,
-}
+use crate::plan::{
+    ExperimentDiff, Movement, Plan, PlanDiff, PlannedExperiment, PoolDiff, PoolTotals, Status,
+};
 
 fn in_calendar(e: &PlannedExperiment) -> bool {
     matches!(e.status, Status::Scheduled | Status::Running)
+}
+
+fn result_date(e: &PlannedExperiment) -> Option<chrono::NaiveDate> {
+    e.run.map(|r| r.result_date)
+}
+
+fn share(e: &PlannedExperiment) -> Option<f64> {
+    e.run.map(|r| r.share)
 }
 
 fn closed(e: &PlannedExperiment) -> bool {
@@ -109,10 +37,10 @@ fn movement(old: &PlannedExperiment, new: &PlannedExperiment) -> Movement {
         (true, false) => Movement::NoLongerFits,
         (false, true) => Movement::NowFits,
         (false, false) => Movement::StillOut,
-        (true, true) => match new.result_date.cmp(&old.result_date) {
+        (true, true) => match result_date(new).cmp(&result_date(old)) {
             std::cmp::Ordering::Greater => Movement::Later,
             std::cmp::Ordering::Less => Movement::Earlier,
-            std::cmp::Ordering::Equal if !same_share(old.share, new.share) => Movement::Reshared,
+            std::cmp::Ordering::Equal if !same_share(share(old), share(new)) => Movement::Reshared,
             std::cmp::Ordering::Equal => Movement::Unchanged,
         },
     }
@@ -157,7 +85,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
             None => Movement::Added,
         };
         let both = o.filter(|o| in_calendar(o) && in_calendar(n));
-        let slip = both.and_then(|o| match (o.result_date, n.result_date) {
+        let slip = both.and_then(|o| match (result_date(o), result_date(n)) {
             (Some(a), Some(b)) => Some((b - a).num_days()),
             _ => None,
         });
@@ -166,7 +94,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
             Movement::NowFits => now_fit.push(n.id.clone()),
             _ => {}
         }
-        if both.is_some_and(|o| !same_share(o.share, n.share)) {
+        if both.is_some_and(|o| !same_share(share(o), share(n))) {
             share_changed.push(n.id.clone());
         }
         experiments.push(ExperimentDiff {
@@ -175,11 +103,11 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
             movement: mv,
             old_status: o.map(|o| o.status),
             new_status: Some(n.status),
-            old_result_date: o.and_then(|o| o.result_date),
-            new_result_date: n.result_date,
+            old_result_date: o.and_then(result_date),
+            new_result_date: result_date(n),
             slip_days: slip,
-            old_share: o.and_then(|o| o.share),
-            new_share: n.share,
+            old_share: o.and_then(share),
+            new_share: share(n),
         });
     }
     for o in &old.experiments {
@@ -190,10 +118,10 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
                 movement: Movement::Dropped,
                 old_status: Some(o.status),
                 new_status: None,
-                old_result_date: o.result_date,
+                old_result_date: result_date(o),
                 new_result_date: None,
                 slip_days: None,
-                old_share: o.share,
+                old_share: share(o),
                 new_share: None,
             });
         }
@@ -224,7 +152,8 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::plan::{PlanWindow, PoolDay, PoolPlan, SolverSummary};
+    use crate::plan::{PlanWindow, PoolDay, PoolPlan, Run, Sharing, SolverStatus, SolverSummary};
+    use chrono::NaiveDate;
 
     fn d(s: &str) -> NaiveDate {
         NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
@@ -239,13 +168,15 @@ mod tests {
             pool: "home".into(),
             priority: 1.0,
             status,
-            start: end.map(|_| d("2027-01-04")),
-            end,
-            result_date: end.map(|e| e.succ_opt().unwrap()),
-            share,
-            days: None,
+            run: end.zip(share).map(|(end, share)| Run {
+                start: d("2027-01-04"),
+                end,
+                result_date: end.succ_opt().unwrap(),
+                share,
+                days: 1,
+                units_expected: 0.0,
+            }),
             units_needed: 1000,
-            units_expected: None,
             reason: None,
         }
     }
@@ -259,7 +190,7 @@ mod tests {
             },
             solver: SolverSummary {
                 backend: "microlp".into(),
-                status: "optimal".into(),
+                status: SolverStatus::Optimal,
                 seconds: 0.0,
                 value: 0.0,
                 bound: 0.0,
@@ -270,7 +201,7 @@ mod tests {
             pools: vec![PoolPlan {
                 id: "home".into(),
                 label: "Home".into(),
-                sharing: "split".into(),
+                sharing: Sharing::Split,
                 max_concurrent: 2,
                 days: (4..=6)
                     .map(|i| PoolDay {

@@ -3,8 +3,11 @@
 //! The scheduler fills a [`Plan`]; renderers (text, JSON, CSV, iCalendar,
 //! HTML, Markdown) only format it and never compute schedule facts of their
 //! own. Field order is the JSON key order; `docs/plan-json.md` documents it.
+//!
+//! It also holds [`PlanDiff`], what moved since a previous plan, which a
+//! re-plan carries; `crate::diff` computes it from two plans.
 
-use crate::diff::PlanDiff;
+pub use crate::portfolio::{BlackoutKind, Sharing};
 use chrono::NaiveDate;
 use serde::{Deserialize, Serialize};
 
@@ -20,8 +23,7 @@ pub struct PlanWindow {
 pub struct SolverSummary {
     /// The LP/MILP backend, e.g. `microlp` or `highs`.
     pub backend: String,
-    /// `optimal` (proved), `feasible` (a plan, gap open), `greedy` (fallback).
-    pub status: String,
+    pub status: SolverStatus,
     /// Wall-clock seconds spent planning.
     pub seconds: f64,
     /// Objective value of the plan.
@@ -30,6 +32,29 @@ pub struct SolverSummary {
     pub bound: f64,
     /// (bound - value) / bound; 0 when proved optimal.
     pub gap: f64,
+}
+
+/// How far the optimiser got; in JSON `optimal`, `feasible` or `greedy`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SolverStatus {
+    /// Proved optimal.
+    Optimal,
+    /// A verified plan, the gap to the bound still open.
+    Feasible,
+    /// The greedy fallback: the solver gave no plan, or none that verified.
+    Greedy,
+}
+
+impl SolverStatus {
+    /// The name in JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            SolverStatus::Optimal => "optimal",
+            SolverStatus::Feasible => "feasible",
+            SolverStatus::Greedy => "greedy",
+        }
+    }
 }
 
 /// Whether an experiment got a place in the calendar.
@@ -67,7 +92,15 @@ impl Status {
 }
 
 /// One experiment's outcome.
+///
+/// In JSON the run is not nested: its six facts are keys of the experiment
+/// (`start`, `end`, `result_date`, `share`, `days` before `units_needed`,
+/// `units_expected` after it), each `null` when there is no run. A private
+/// wire struct keeps that layout (`#[serde(flatten)]` could not put
+/// `units_needed` between them). Reading a plan refuses half a run, and a
+/// run that disagrees with the status.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(into = "ExperimentJson", try_from = "ExperimentJson")]
 pub struct PlannedExperiment {
     pub id: String,
     pub title: String,
@@ -76,22 +109,142 @@ pub struct PlannedExperiment {
     pub pool: String,
     pub priority: f64,
     pub status: Status,
-    /// First day of the run (scheduled only).
-    pub start: Option<NaiveDate>,
-    /// Last day of data (scheduled only); the result is due the day after.
-    pub end: Option<NaiveDate>,
-    /// The day the result is due: the day after `end` (scheduled only).
-    pub result_date: Option<NaiveDate>,
-    /// Constant share of the pool, in (0, 1] (scheduled only).
-    pub share: Option<f64>,
-    /// Days from start to end inclusive (scheduled only).
-    pub days: Option<u32>,
+    /// Its place in the calendar: present exactly when the status is
+    /// scheduled or running ([`Status::in_calendar`]).
+    pub run: Option<Run>,
     /// Units over all arms the test needs.
     pub units_needed: u64,
-    /// Units the forecast delivers to it from start to end (scheduled only).
-    pub units_expected: Option<f64>,
     /// Why it is not scheduled, in words a planner can act on.
     pub reason: Option<String>,
+}
+
+/// The facts of one run in the calendar, as the scheduler fixed them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Run {
+    /// First day of the run.
+    pub start: NaiveDate,
+    /// Last day of data; the result is due the day after.
+    pub end: NaiveDate,
+    /// The day the result is due: the day after `end`.
+    pub result_date: NaiveDate,
+    /// Constant share of the pool, in (0, 1].
+    pub share: f64,
+    /// Days from start to end inclusive.
+    pub days: u32,
+    /// Units the forecast delivers to it from start to end.
+    pub units_expected: f64,
+}
+
+/// [`PlannedExperiment`] as it stands in JSON: the run's facts one key
+/// each, in the documented key order.
+#[derive(Serialize, Deserialize)]
+struct ExperimentJson {
+    id: String,
+    title: String,
+    owner: String,
+    pool: String,
+    priority: f64,
+    status: Status,
+    start: Option<NaiveDate>,
+    end: Option<NaiveDate>,
+    result_date: Option<NaiveDate>,
+    share: Option<f64>,
+    days: Option<u32>,
+    units_needed: u64,
+    units_expected: Option<f64>,
+    reason: Option<String>,
+}
+
+impl From<PlannedExperiment> for ExperimentJson {
+    fn from(e: PlannedExperiment) -> ExperimentJson {
+        let r = e.run;
+        ExperimentJson {
+            id: e.id,
+            title: e.title,
+            owner: e.owner,
+            pool: e.pool,
+            priority: e.priority,
+            status: e.status,
+            start: r.map(|r| r.start),
+            end: r.map(|r| r.end),
+            result_date: r.map(|r| r.result_date),
+            share: r.map(|r| r.share),
+            days: r.map(|r| r.days),
+            units_needed: e.units_needed,
+            units_expected: r.map(|r| r.units_expected),
+            reason: e.reason,
+        }
+    }
+}
+
+impl TryFrom<ExperimentJson> for PlannedExperiment {
+    type Error = String;
+
+    fn try_from(j: ExperimentJson) -> Result<PlannedExperiment, String> {
+        let facts = [
+            ("start", j.start.is_some()),
+            ("end", j.end.is_some()),
+            ("result_date", j.result_date.is_some()),
+            ("share", j.share.is_some()),
+            ("days", j.days.is_some()),
+            ("units_expected", j.units_expected.is_some()),
+        ];
+        let run = match (
+            j.start,
+            j.end,
+            j.result_date,
+            j.share,
+            j.days,
+            j.units_expected,
+        ) {
+            (
+                Some(start),
+                Some(end),
+                Some(result_date),
+                Some(share),
+                Some(days),
+                Some(units_expected),
+            ) => Some(Run {
+                start,
+                end,
+                result_date,
+                share,
+                days,
+                units_expected,
+            }),
+            _ => None,
+        };
+        let status = j.status.name();
+        match (j.status.in_calendar(), run.is_some()) {
+            (true, false) => {
+                let missing = facts.iter().find(|(_, has)| !has).map_or("start", |f| f.0);
+                return Err(format!(
+                    "experiment `{}` is {status} but has no `{missing}`",
+                    j.id
+                ));
+            }
+            (false, _) => {
+                if let Some((given, _)) = facts.iter().find(|(_, has)| *has) {
+                    return Err(format!(
+                        "experiment `{}` is {status} but has a `{given}`; only scheduled and running experiments have a run",
+                        j.id
+                    ));
+                }
+            }
+            (true, true) => {}
+        }
+        Ok(PlannedExperiment {
+            id: j.id,
+            title: j.title,
+            owner: j.owner,
+            pool: j.pool,
+            priority: j.priority,
+            status: j.status,
+            run,
+            units_needed: j.units_needed,
+            reason: j.reason,
+        })
+    }
 }
 
 /// One day of one pool.
@@ -111,8 +264,8 @@ pub struct PoolDay {
 pub struct PoolPlan {
     pub id: String,
     pub label: String,
-    /// `split` or `overlap`.
-    pub sharing: String,
+    /// `split` or `overlap` in JSON.
+    pub sharing: Sharing,
     pub max_concurrent: u32,
     pub days: Vec<PoolDay>,
 }
@@ -122,8 +275,8 @@ pub struct PoolPlan {
 pub struct PlanBlackout {
     pub from: NaiveDate,
     pub to: NaiveDate,
-    /// `no_starts` or `no_running`.
-    pub kind: String,
+    /// `no_starts` or `no_running` in JSON.
+    pub kind: BlackoutKind,
     pub note: String,
     /// Pool ids; empty for every pool.
     pub pools: Vec<String>,
@@ -175,4 +328,84 @@ pub struct RunningOutlook {
     pub detectable_effect: Option<f64>,
     /// The outlook in words, when it cannot finish as it runs.
     pub advice: Option<String>,
+}
+
+/// How one experiment's outcome changed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Movement {
+    /// Same result date and share.
+    Unchanged,
+    /// Its result arrives later.
+    Later,
+    /// Its result arrives earlier.
+    Earlier,
+    /// Same result date, another share.
+    Reshared,
+    /// It was in the calendar and is not any more.
+    NoLongerFits,
+    /// It was out and now has a place.
+    NowFits,
+    /// Out before and out now.
+    StillOut,
+    /// Finished or cancelled since the previous plan.
+    Closed,
+    /// Not in the previous plan.
+    Added,
+    /// In the previous plan only.
+    Dropped,
+}
+
+/// One experiment, before and after.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ExperimentDiff {
+    pub id: String,
+    pub pool: String,
+    pub movement: Movement,
+    pub old_status: Option<Status>,
+    pub new_status: Option<Status>,
+    pub old_result_date: Option<NaiveDate>,
+    pub new_result_date: Option<NaiveDate>,
+    /// New result date minus old, in days (+ later, - earlier); both scheduled only.
+    pub slip_days: Option<i64>,
+    pub old_share: Option<f64>,
+    pub new_share: Option<f64>,
+}
+
+/// A pool's totals in one plan.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, Default)]
+pub struct PoolTotals {
+    /// Experiments in the calendar (scheduled or running).
+    pub scheduled: u32,
+    /// Experiments out of the calendar.
+    pub unscheduled: u32,
+    /// Experiments finished or cancelled (re-plans only).
+    #[serde(default)]
+    pub closed: u32,
+    /// Units the scheduled experiments need, summed.
+    pub units_needed: u64,
+    /// Forecast units of the pool over the window.
+    pub forecast_units: f64,
+}
+
+/// A pool before and after.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PoolDiff {
+    pub id: String,
+    pub before: PoolTotals,
+    pub after: PoolTotals,
+}
+
+/// Everything that moved.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlanDiff {
+    /// In the new plan's order, then experiments only the old plan had.
+    pub experiments: Vec<ExperimentDiff>,
+    /// Ids that were scheduled and are not any more.
+    pub no_longer_fit: Vec<String>,
+    /// Ids that were unscheduled and now are.
+    pub now_fit: Vec<String>,
+    /// Ids scheduled in both with another share.
+    pub share_changed: Vec<String>,
+    pub pools: Vec<PoolDiff>,
 }

@@ -91,11 +91,12 @@ fn json_parses_back_into_the_plan_type_without_losing_a_key() {
     let fit = scheduled(&plan).len();
     assert!(fit > 20 && fit < 32, "{fit} of 32 scheduled");
     for e in scheduled(&plan) {
-        let (start, end, due) = (e.start.unwrap(), e.end.unwrap(), e.result_date.unwrap());
+        let r = e.run.unwrap();
+        let (start, end, due) = (r.start, r.end, r.result_date);
         assert!(plan.window.start <= start && start <= end && end <= plan.window.end);
         assert!(due > end, "{}: result after the run", e.id);
         assert_eq!(
-            e.days,
+            e.run.map(|r| r.days),
             Some((end - start).num_days() as u32 + 1),
             "{}",
             e.id
@@ -138,20 +139,25 @@ fn csv_has_a_header_and_one_row_per_experiment_agreeing_with_the_json() {
         assert_eq!(&row[col("title")], e.title);
         assert_eq!(&row[col("pool")], e.pool);
         assert_eq!(&row[col("status")], e.status.name(), "{}", e.id);
-        assert_eq!(date(&row[col("start")]), e.start, "{}", e.id);
-        assert_eq!(date(&row[col("end")]), e.end, "{}", e.id);
-        assert_eq!(date(&row[col("result_date")]), e.result_date, "{}", e.id);
+        assert_eq!(date(&row[col("start")]), e.run.map(|r| r.start), "{}", e.id);
+        assert_eq!(date(&row[col("end")]), e.run.map(|r| r.end), "{}", e.id);
+        assert_eq!(
+            date(&row[col("result_date")]),
+            e.run.map(|r| r.result_date),
+            "{}",
+            e.id
+        );
         let share = &row[col("share")];
         assert_eq!(
             (!share.is_empty()).then(|| share.parse::<f64>().unwrap()),
-            e.share,
+            e.run.map(|r| r.share),
             "{}",
             e.id
         );
         let days = &row[col("days")];
         assert_eq!(
             (!days.is_empty()).then(|| days.parse::<u32>().unwrap()),
-            e.days
+            e.run.map(|r| r.days)
         );
         assert_eq!(
             row[col("units_needed")].parse::<u64>().unwrap(),
@@ -270,7 +276,8 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
             .into_iter()
             .partition(|ev| unescape(&ev.get("SUMMARY")).starts_with("Result due: "));
         let (run, result) = (run[0], result[0]);
-        let (start, end, due) = (e.start.unwrap(), e.end.unwrap(), e.result_date.unwrap());
+        let r = e.run.unwrap();
+        let (start, end, due) = (r.start, r.end, r.result_date);
 
         // All day from the first day; DTEND is exclusive (RFC 5545 §3.6.1),
         // so the day after the last day of data.
@@ -288,7 +295,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
                 desc.contains(&format!("Pool: {pool_label} ({})", e.pool)),
                 "{desc}"
             );
-            let share = format!("Share of the pool: {:.0}%", e.share.unwrap() * 100.0);
+            let share = format!("Share of the pool: {:.0}%", e.run.unwrap().share * 100.0);
             assert!(desc.contains(&share), "{share} in {desc}");
             let units = format!("Units needed: {}", e.units_needed);
             assert!(desc.replace(',', "").contains(&units), "{units} in {desc}");
@@ -449,14 +456,19 @@ fn markdown_has_a_row_per_result_the_misfits_and_the_assumptions() {
     let md = text(plan_demo("md"));
     let rows: Vec<&str> = md.lines().filter(|l| l.starts_with("| ")).collect();
     for e in scheduled(&plan) {
-        let due = e.result_date.unwrap().format("%a %-d %b %Y").to_string();
+        let due = e
+            .run
+            .unwrap()
+            .result_date
+            .format("%a %-d %b %Y")
+            .to_string();
         let mine: Vec<&&str> = rows
             .iter()
             .filter(|r| r.contains(&format!("(`{}`)", e.id)))
             .collect();
         assert_eq!(mine.len(), 1, "one table row for `{}`", e.id);
         assert!(mine[0].starts_with(&format!("| {due} |")), "{}", mine[0]);
-        let runs = format!("{} to {}", e.start.unwrap(), e.end.unwrap());
+        let runs = format!("{} to {}", e.run.unwrap().start, e.run.unwrap().end);
         assert!(mine[0].contains(&runs), "{}", mine[0]);
     }
     // The result table lists the results in date order.
@@ -670,7 +682,7 @@ fn replan_with_previous_shows_what_moved_in_text_md_and_json() {
     assert_eq!(status("pdp-bundles"), Status::Cancelled);
     // Nothing new starts before the re-plan's day.
     for e in scheduled(&plan) {
-        assert!(e.start.unwrap() >= NaiveDate::from_ymd_opt(2027, 2, 3).unwrap());
+        assert!(e.run.unwrap().start >= NaiveDate::from_ymd_opt(2027, 2, 3).unwrap());
     }
     // The re-plan's other formats render too and stay well-formed.
     parse_html(&text(replan("html")));

@@ -10,7 +10,7 @@
 //! binary on the demo portfolio) arrives with the scheduler.
 
 use chrono::{Duration, NaiveDate};
-use sluice::plan::{Plan, Status};
+use sluice::plan::{Plan, Run, Status};
 use sluice::render::{render, Format, RenderOptions};
 use unicode_width::UnicodeWidthStr;
 
@@ -146,13 +146,13 @@ fn csv_parses_back_row_by_row() {
             let cell = &row[col(name)];
             (!cell.is_empty()).then(|| NaiveDate::parse_from_str(cell, "%Y-%m-%d").unwrap())
         };
-        assert_eq!(date("start"), e.start);
-        assert_eq!(date("end"), e.end);
-        assert_eq!(date("result_date"), e.result_date);
+        assert_eq!(date("start"), e.run.map(|r| r.start));
+        assert_eq!(date("end"), e.run.map(|r| r.end));
+        assert_eq!(date("result_date"), e.run.map(|r| r.result_date));
         let share = &row[col("share")];
         assert_eq!(
             (!share.is_empty()).then(|| share.parse::<f64>().unwrap()),
-            e.share
+            e.run.map(|r| r.share)
         );
         assert_eq!(
             row[col("units_needed")].parse::<u64>().unwrap(),
@@ -265,9 +265,13 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
     for (i, e) in scheduled.iter().enumerate() {
         let run = &events[2 * i];
         let result = &events[2 * i + 1];
-        let start = e.start.unwrap();
-        let end = e.end.unwrap();
-        let due = e.result_date.unwrap();
+        let Run {
+            start,
+            end,
+            result_date: due,
+            share,
+            ..
+        } = e.run.unwrap();
 
         // The run: all day from start, DTEND exclusive (RFC 5545 §3.6.1).
         assert_eq!(run.date("DTSTART"), start, "{}", e.id);
@@ -281,7 +285,7 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
         for ev in [run, result] {
             let desc = unescape_text(ev.get("DESCRIPTION"));
             assert!(desc.contains(&format!("({})", e.pool)), "pool in {desc}");
-            let share = format!("{:.0}%", e.share.unwrap() * 100.0);
+            let share = format!("{:.0}%", share * 100.0);
             assert!(desc.contains(&share), "share {share} in {desc}");
             let units = e.units_needed.to_string();
             let grouped = desc.replace(',', "");
@@ -334,10 +338,10 @@ fn ics_uids_stay_the_same_when_the_schedule_moves() {
     let plan = fixture();
     let mut moved = fixture();
     for e in &mut moved.experiments {
-        if let (Some(s), Some(en), Some(r)) = (e.start, e.end, e.result_date) {
-            e.start = Some(s + Duration::days(7));
-            e.end = Some(en + Duration::days(7));
-            e.result_date = Some(r + Duration::days(7));
+        if let Some(r) = &mut e.run {
+            r.start += Duration::days(7);
+            r.end += Duration::days(7);
+            r.result_date += Duration::days(7);
         }
     }
     let uids = |p: &Plan| -> Vec<String> {
@@ -352,9 +356,9 @@ fn renderers_read_the_result_date_rather_than_derive_it() {
     // Give one test a result date three days after its end (a plan whose
     // analysis takes longer): every format must show that date as it is.
     let mut plan = fixture();
-    let end = plan.experiments[0].end.unwrap();
-    let due = end + Duration::days(3);
-    plan.experiments[0].result_date = Some(due);
+    let run = plan.experiments[0].run.as_mut().unwrap();
+    let due = run.end + Duration::days(3);
+    run.result_date = due;
     let (_, events) = parse_ics(&render(&plan, Format::Ics, &file_opts()).unwrap());
     assert_eq!(events[1].date("DTSTART"), due);
     for format in [Format::Text, Format::Csv, Format::Html, Format::Md] {
@@ -497,8 +501,9 @@ fn html_bar_tooltips_carry_each_tests_numbers() {
         let start = start.unwrap_or_else(|| panic!("no bar for {}", e.id));
         let title_end = start + html[start..].find("</title>").unwrap();
         let tip = &html[start..title_end];
-        assert!(tip.contains(&e.result_date.unwrap().to_string()), "{tip}");
-        assert!(tip.contains(&format!("{} days", e.days.unwrap())), "{tip}");
+        let run = e.run.unwrap();
+        assert!(tip.contains(&run.result_date.to_string()), "{tip}");
+        assert!(tip.contains(&format!("{} days", run.days)), "{tip}");
     }
 }
 
@@ -550,7 +555,7 @@ fn narrow_terminal_keeps_the_essentials_and_fits() {
         .filter(|e| e.status == Status::Scheduled)
     {
         assert!(
-            text.contains(&e.result_date.unwrap().to_string()),
+            text.contains(&e.run.unwrap().result_date.to_string()),
             "{}",
             e.id
         );
@@ -620,22 +625,40 @@ fn an_empty_plan_renders_in_every_format() {
 }
 
 #[test]
-fn a_scheduled_test_missing_a_fact_is_an_error_not_a_panic() {
-    let mut plan = fixture();
-    plan.experiments[2].share = None;
-    for format in [
-        Format::Text,
-        Format::Csv,
-        Format::Ics,
-        Format::Html,
-        Format::Md,
-    ] {
-        let err = render(&plan, format, &file_opts()).unwrap_err().to_string();
-        assert!(
-            err.contains("`trust-badges`") && err.contains("`share`"),
-            "{format}: {err}"
-        );
-    }
+fn a_plan_with_half_a_run_is_refused_when_read() {
+    // A run is all six facts or none, and only scheduled and running tests
+    // have one: a plan file that breaks this does not parse, and the error
+    // names the experiment and the fact.
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/plan-small.json"
+    ))
+    .unwrap();
+    let mut value: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let read = |v: &serde_json::Value| serde_json::from_value::<Plan>(v.clone());
+    assert!(read(&value).is_ok());
+    let trust = &mut value["experiments"][2];
+    assert_eq!(trust["id"], "trust-badges");
+    trust["share"] = serde_json::Value::Null;
+    let err = read(&value).unwrap_err().to_string();
+    assert!(
+        err.contains("`trust-badges`") && err.contains("`share`"),
+        "{err}"
+    );
+    let mut value: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let out = value["experiments"]
+        .as_array_mut()
+        .unwrap()
+        .iter_mut()
+        .find(|e| e["status"] == "unscheduled")
+        .unwrap();
+    out["start"] = serde_json::json!("2027-01-04");
+    let id = out["id"].as_str().unwrap().to_string();
+    let err = read(&value).unwrap_err().to_string();
+    assert!(
+        err.contains(&format!("`{id}`")) && err.contains("`start`"),
+        "{err}"
+    );
 }
 
 // ------------------------------------------------------------------ docs

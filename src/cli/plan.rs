@@ -78,30 +78,9 @@ pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Failure> {
 }
 
 /// Renders `plan` and sends it where `out` says: the bytes for stdout, or
-/// an atomic write to `--out` (then a one-line note for stdout). `prefix`
-/// goes before the plan (a re-plan's changes) in formats that carry it.
-pub fn emit(
-    plan: Plan,
-    out: &OutputArgs,
-    input: &Path,
-    prefix: Option<Vec<u8>>,
-) -> Result<Vec<u8>, Failure> {
-    emit_with(plan, out, input, |_, rendered, _| {
-        let mut bytes = prefix.unwrap_or_default();
-        bytes.extend(rendered);
-        bytes
-    })
-}
-
-/// [`emit`], with `finish` given the plan, its rendered bytes and the
-/// render options to make the bytes written (a re-plan places its changes
-/// into the HTML report and lays its text table out for the same width).
-pub fn emit_with(
-    mut plan: Plan,
-    out: &OutputArgs,
-    input: &Path,
-    finish: impl FnOnce(&Plan, Vec<u8>, &RenderOptions) -> Vec<u8>,
-) -> Result<Vec<u8>, Failure> {
+/// an atomic write to `--out` (then a one-line note for stdout). A
+/// re-plan's changes are part of the plan, so every renderer draws them.
+pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Failure> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
     }
@@ -110,9 +89,8 @@ pub fn emit_with(
     } else {
         RenderOptions::for_stdout()
     };
-    let rendered = render::render(&plan, out.format, &opts)
+    let bytes = render::render(&plan, out.format, &opts)
         .map_err(|e| Failure::invalid(format!("cannot render the plan: {e}")))?;
-    let bytes = finish(&plan, rendered, &opts);
     match &out.out {
         None => Ok(bytes),
         Some(path) => {
@@ -164,5 +142,5 @@ pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Failure> {
         request.today = Some(today);
     }
     let plan = schedule::plan(&p, &request);
-    emit(plan, &a.output, &a.file, None)
+    emit(plan, &a.output, &a.file)
 }

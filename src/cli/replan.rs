@@ -6,7 +6,6 @@
 use super::plan::{load_portfolio, OutputArgs, SolverArgs};
 use super::Failure;
 use crate::plan::Plan;
-use crate::render::{changes, Format};
 use crate::replan::{self, progress, ScaleArg};
 use chrono::NaiveDate;
 use clap::Args;
@@ -87,23 +86,5 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
     if let Some(prev) = &previous {
         plan.changes = Some(crate::diff::diff(prev, &plan));
     }
-    let format = a.output.format;
-    super::plan::emit_with(plan, &a.output, &a.file, move |plan, rendered, opts| {
-        if !changes::has_any(plan) {
-            return rendered;
-        }
-        match format {
-            Format::Text => [
-                changes::text(plan, opts.effective_width()).into_bytes(),
-                rendered,
-            ]
-            .concat(),
-            Format::Md => [changes::markdown(plan).into_bytes(), rendered].concat(),
-            Format::Html => match String::from_utf8(rendered) {
-                Ok(report) => changes::into_html_report(plan, &report).into_bytes(),
-                Err(e) => e.into_bytes(),
-            },
-            _ => rendered,
-        }
-    })
+    super::plan::emit(plan, &a.output, &a.file)
 }

@@ -9,7 +9,7 @@
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{Correction, Design, Method, SampleSize, Sides};
 use chrono::{NaiveDate, Weekday};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// The planning window, both ends inclusive; `start <= end`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -119,13 +119,23 @@ fn serialize_weekday<S: serde::Serializer>(w: &Weekday, s: S) -> Result<S::Ok, S
 }
 
 /// How the tests of a pool share its units.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Sharing {
     /// Disjoint slices: the shares of tests running on a day add up to at most 1.
     Split,
     /// Independent randomisation: each test may see every unit.
     Overlap,
+}
+
+impl Sharing {
+    /// The name in the portfolio file and in JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Sharing::Split => "split",
+            Sharing::Overlap => "overlap",
+        }
+    }
 }
 
 /// A dated change to a pool's forecast.
@@ -220,7 +230,7 @@ pub struct Experiment {
 }
 
 /// What a blackout forbids.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum BlackoutKind {
     /// No test may start on these days (a release freeze).

@@ -1,46 +1,12 @@
 //! Helpers shared by the renderers: number and date wording, the week grid
-//! used for display, looking up a scheduled run, and the cautions text.
+//! used for display, and the cautions text.
 //!
 //! Nothing here computes a schedule fact: runs, shares and result dates are
 //! read from the plan as they are.
 
-use super::RenderError;
-use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Status};
+use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Sharing, SolverStatus, Status};
 pub use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
-
-/// The schedule facts of one scheduled experiment, read from the plan.
-#[derive(Debug, Clone, Copy)]
-pub struct Run {
-    pub start: NaiveDate,
-    pub end: NaiveDate,
-    pub result_date: NaiveDate,
-    pub share: f64,
-    pub days: u32,
-    pub units_expected: f64,
-}
-
-/// The run of `e` if it is scheduled; `None` if it is not; an error if the
-/// plan calls it scheduled but leaves a fact out.
-pub fn run_of(e: &PlannedExperiment) -> Result<Option<Run>, RenderError> {
-    if !e.status.in_calendar() {
-        return Ok(None);
-    }
-    let missing = |field: &str| {
-        RenderError::Inconsistent(format!(
-            "experiment `{}` is scheduled but has no `{field}`",
-            e.id
-        ))
-    };
-    Ok(Some(Run {
-        start: e.start.ok_or_else(|| missing("start"))?,
-        end: e.end.ok_or_else(|| missing("end"))?,
-        result_date: e.result_date.ok_or_else(|| missing("result_date"))?,
-        share: e.share.ok_or_else(|| missing("share"))?,
-        days: e.days.ok_or_else(|| missing("days"))?,
-        units_expected: e.units_expected.ok_or_else(|| missing("units_expected"))?,
-    }))
-}
 
 /// How to name an experiment with no run in this plan: "does not fit", or
 /// (in re-plans) "finished" / "cancelled".
@@ -121,7 +87,7 @@ pub fn blackout_covers(b: &PlanBlackout, pool: &str) -> bool {
 
 /// Whether the pool's capacity is a share (split) rather than a count.
 pub fn is_split(pool: &PoolPlan) -> bool {
-    pool.sharing == "split"
+    pool.sharing == Sharing::Split
 }
 
 /// One display week of the window: seven days from `start`, the last one
@@ -176,11 +142,10 @@ pub fn short_date(d: NaiveDate) -> String {
 /// The solver's numbers in one sentence.
 pub fn solver_sentence(plan: &Plan) -> String {
     let s = &plan.solver;
-    let status = match s.status.as_str() {
-        "optimal" => "proved optimal".to_string(),
-        "feasible" => "a feasible plan, not proved optimal".to_string(),
-        "greedy" => "the greedy fallback (the solver gave no plan)".to_string(),
-        other => other.to_string(),
+    let status = match s.status {
+        SolverStatus::Optimal => "proved optimal",
+        SolverStatus::Feasible => "a feasible plan, not proved optimal",
+        SolverStatus::Greedy => "the greedy fallback (the solver gave no plan)",
     };
     format!(
         "solver `{}`: {status}; plan value {:.1} against a bound of {:.1} (gap {:.1}%); greedy baseline {:.1}.",
@@ -246,16 +211,5 @@ mod tests {
         for pair in w.windows(2) {
             assert_eq!(pair[0].end + Duration::days(1), pair[1].start);
         }
-    }
-
-    #[test]
-    fn a_scheduled_experiment_without_a_start_is_an_error() {
-        let mut plan = fixture::plan();
-        plan.experiments[0].start = None;
-        let err = run_of(&plan.experiments[0]).unwrap_err().to_string();
-        assert!(
-            err.contains("`hero-copy`") && err.contains("`start`"),
-            "{err}"
-        );
     }
 }

@@ -3,9 +3,8 @@
 //! not apply (an unscheduled test's dates) are empty. Quoting is left to the
 //! `csv` crate.
 
-use super::common::run_of;
 use super::{RenderError, RenderOptions, Renderer};
-use crate::plan::Plan;
+use crate::plan::{Plan, Run};
 
 /// The CSV renderer.
 pub struct Csv;
@@ -33,9 +32,7 @@ impl Renderer for Csv {
         let mut w = csv::Writer::from_writer(Vec::new());
         w.write_record(HEADER).map_err(RenderError::Csv)?;
         for e in &plan.experiments {
-            let run = run_of(e)?;
-            let opt =
-                |f: &dyn Fn(&super::common::Run) -> String| run.as_ref().map(f).unwrap_or_default();
+            let opt = |f: &dyn Fn(&Run) -> String| e.run.as_ref().map(f).unwrap_or_default();
             let status = e.status.name();
             let row = [
                 e.id.clone(),
@@ -78,11 +75,11 @@ mod tests {
             assert_eq!(&row[1], e.title);
             assert_eq!(
                 row[6].to_string(),
-                e.start.map(|d| d.to_string()).unwrap_or_default()
+                e.run.map(|r| r.start.to_string()).unwrap_or_default()
             );
             assert_eq!(
                 row[8].to_string(),
-                e.result_date.map(|d| d.to_string()).unwrap_or_default()
+                e.run.map(|r| r.result_date.to_string()).unwrap_or_default()
             );
             assert_eq!(row[11].parse::<u64>().unwrap(), e.units_needed);
             assert_eq!(&row[13], e.reason.as_deref().unwrap_or(""));

@@ -10,9 +10,9 @@
 //! All-day events end on the day after their last day, as RFC 5545 §3.6.1
 //! defines DTEND for DATE values (exclusive).
 
-use super::common::{percent, pool_label, run_of, thousands, units, Run};
+use super::common::{percent, pool_label, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
-use crate::plan::{Plan, PlannedExperiment};
+use crate::plan::{Plan, PlannedExperiment, Run};
 use chrono::{Duration, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
 
@@ -109,7 +109,7 @@ impl Renderer for Ics {
         cal.append_property(Property::new("NAME", escape_text(&name)));
         cal.append_property(Property::new("X-WR-CALNAME", &name));
         for e in &plan.experiments {
-            let Some(run) = run_of(e)? else { continue };
+            let Some(run) = e.run else { continue };
             let desc = description(plan, e, &run);
             let mut running = Event::new();
             running

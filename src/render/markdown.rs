@@ -1,9 +1,12 @@
 //! Markdown: a short summary to paste into a document or a ticket: the
 //! result dates in a table, the tests that do not fit with their reasons,
-//! and one paragraph of assumptions. User text is escaped so that it cannot
-//! break the table or start markup of its own.
+//! and one paragraph of assumptions; a re-plan's changes and advice first.
+//! User text is escaped so that it cannot break the table or start markup
+//! of its own.
 
-use super::common::{counts, long_date, percent, pool_label, run_of, CAUTION};
+use super::common::{counts, long_date, percent, pool_label, CAUTION};
+use super::markup::{Column, MarkupTable};
+use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::Plan;
 use std::fmt::Write;
@@ -57,9 +60,69 @@ pub fn escape_keeping_code(s: &str) -> String {
     out
 }
 
+/// A table cell's text: only `|`, which would end the cell, is escaped.
+fn table_cell(x: &str) -> String {
+    x.replace('|', "\\|")
+}
+
+/// Markdown's table pieces: a pipe table, numbers right-aligned.
+impl MarkupTable for Markdown {
+    fn header_row(&self, header: &[&str], _columns: &[Column]) -> String {
+        let cells: Vec<String> = header.iter().map(|h| table_cell(h)).collect();
+        self.row(&cells)
+    }
+
+    fn divider(&self, columns: &[Column]) -> String {
+        let mut line = String::from("|");
+        for &c in columns {
+            line.push_str(if c == Column::Number { "---:|" } else { "---|" });
+        }
+        line.push('\n');
+        line
+    }
+
+    fn cell(&self, column: Column, text: &str) -> String {
+        match column {
+            Column::Code => table_cell(&format!("`{}`", text.replace('`', "'"))),
+            _ => table_cell(text),
+        }
+    }
+
+    fn row(&self, cells: &[String]) -> String {
+        format!("| {} |\n", cells.join(" | "))
+    }
+}
+
+/// A re-plan's changes and the running tests' advice, for the top of the
+/// summary; empty when the plan has neither.
+fn changes(plan: &Plan) -> String {
+    let mut s = String::new();
+    if let Some(d) = &plan.changes {
+        let _ = writeln!(s, "## {TITLE}\n");
+        let _ = writeln!(s, "{}\n", headline(d));
+        s.push_str(&Markdown.table(&HEADER, &COLUMNS, &rows(d)));
+        let _ = writeln!(s);
+        summary_lines(&mut s, d, "- ");
+        let _ = writeln!(s);
+    }
+    for (heading, group) in advice_groups(plan) {
+        let _ = writeln!(s, "## {heading}\n");
+        for o in group {
+            let _ = writeln!(
+                s,
+                "- `{}`: {}",
+                o.id.replace('`', "'"),
+                table_cell(o.advice.as_deref().unwrap_or(""))
+            );
+        }
+        let _ = writeln!(s);
+    }
+    s
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
-        let mut md = String::new();
+        let mut md = changes(plan);
         let (fit, not_fit) = counts(plan);
         let w = &mut md;
         // Writing to a String cannot fail.
@@ -75,12 +138,11 @@ impl Renderer for Markdown {
         if fit > 0 {
             let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
             let _ = writeln!(w, "|---|---|---|---|--:|---|");
-            let mut rows = Vec::new();
-            for e in &plan.experiments {
-                if let Some(run) = run_of(e)? {
-                    rows.push((run, e));
-                }
-            }
+            let mut rows: Vec<_> = plan
+                .experiments
+                .iter()
+                .filter_map(|e| e.run.map(|run| (run, e)))
+                .collect();
             // Stakeholders read this table by date; ties keep plan order.
             rows.sort_by_key(|(run, _)| run.result_date);
             for (run, e) in rows {
@@ -157,5 +219,37 @@ mod tests {
             assert!(md.contains(&format!("`{}`", e.id)), "{} missing", e.id);
         }
         assert!(md.contains("\\<label\\>"), "title escaped");
+        assert!(!md.contains(TITLE), "no changes without a previous plan");
+    }
+
+    #[test]
+    fn a_replan_starts_with_what_moved_in_a_pipe_table() {
+        let plan = fixture::replanned();
+        let md =
+            String::from_utf8(Markdown.render(&plan, &RenderOptions::default()).unwrap()).unwrap();
+        assert!(md.starts_with(&format!("## {TITLE}\n\n")), "{md}");
+        assert!(
+            md.contains("\n|---|---|---|---|---:|---:|---:|---|\n"),
+            "{md}"
+        );
+        let row_of = |id: &str| {
+            md.lines()
+                .position(|l| l.starts_with(&format!("| `{id}` |")))
+                .unwrap_or_else(|| panic!("no row for {id}:\n{md}"))
+        };
+        for pair in fixture::MOVED_ORDER.windows(2) {
+            assert!(row_of(pair[0]) < row_of(pair[1]), "{pair:?}\n{md}");
+        }
+        assert!(md.find(TITLE) < md.find("## Experiment plan: "));
+    }
+
+    #[test]
+    fn table_cells_escape_only_the_pipe_and_show_ids_as_code() {
+        assert_eq!(Markdown.cell(Column::Text, "a|b *c*"), r"a\|b *c*");
+        assert_eq!(Markdown.cell(Column::Code, "x`y"), "`x'y`");
+        assert_eq!(
+            Markdown.divider(&[Column::Code, Column::Number]),
+            "|---|---:|\n"
+        );
     }
 }

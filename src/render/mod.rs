@@ -7,14 +7,20 @@
 //! shares or result dates. Grouping days into weeks for display is the only
 //! arithmetic they do. Output is deterministic: the same plan and options
 //! give the same bytes. Writing the bytes to a file is `crate::output`'s job.
+//!
+//! A re-plan's changes (`Plan::changes`) and running tests' advice
+//! (`Plan::running`) are part of the plan: text, Markdown and HTML draw
+//! them first, in the words of `moved`; JSON carries them as they are.
+//! `markup` lays out a table once for Markdown and HTML.
 
-pub mod changes;
 mod common;
 pub mod csv;
 pub mod html;
 pub mod ics;
 pub mod json;
 pub mod markdown;
+mod markup;
+mod moved;
 pub mod text;
 
 use crate::plan::Plan;
@@ -203,9 +209,6 @@ pub enum RenderError {
     Json(serde_json::Error),
     /// CSV writing failed.
     Csv(::csv::Error),
-    /// The plan breaks a promise the renderers rely on (for example a
-    /// scheduled experiment without a start); names the experiment.
-    Inconsistent(String),
 }
 
 impl fmt::Display for RenderError {
@@ -224,10 +227,6 @@ impl fmt::Display for RenderError {
             }
             RenderError::Json(e) => write!(f, "cannot write the plan as json: {e}"),
             RenderError::Csv(e) => write!(f, "cannot write the plan as csv: {e}"),
-            RenderError::Inconsistent(what) => write!(
-                f,
-                "the plan is inconsistent: {what} (this is a bug in sluice; please report it)"
-            ),
         }
     }
 }
@@ -255,13 +254,90 @@ pub fn render(plan: &Plan, format: Format, opts: &RenderOptions) -> Result<Vec<u
 
 #[cfg(test)]
 pub(crate) mod fixture {
-    //! The small fixture plan shared by the renderer unit tests.
-    use crate::plan::Plan;
+    //! The small fixture plan shared by the renderer unit tests, and a
+    //! re-plan of it.
+    use crate::plan::{Plan, Run, RunningOutlook, Status};
+    use chrono::Duration;
 
     /// The invented plan in tests/fixtures/plan-small.json.
     pub fn plan() -> Plan {
         serde_json::from_str(include_str!("../../tests/fixtures/plan-small.json"))
             .expect("tests/fixtures/plan-small.json is a valid plan")
+    }
+
+    /// The fixture plan re-made: `hero-copy` finished, `trust-badges` a
+    /// week later, `search-synonyms` running at a new share, `recipe-cards`
+    /// in, `search-freshness` out, and the storefront's forecast 30% down.
+    pub fn replanned() -> Plan {
+        let old = plan();
+        let mut new = old.clone();
+        for e in &mut new.experiments {
+            match e.id.as_str() {
+                "hero-copy" => {
+                    e.status = Status::Finished;
+                    e.run = None;
+                }
+                "trust-badges" => {
+                    if let Some(r) = &mut e.run {
+                        r.result_date += Duration::days(7);
+                    }
+                }
+                "search-synonyms" => {
+                    e.status = Status::Running;
+                    if let Some(r) = &mut e.run {
+                        r.share = 0.5;
+                    }
+                }
+                "recipe-cards" => {
+                    e.status = Status::Scheduled;
+                    e.run = old.experiments[3].run.map(|r| Run { share: 0.2, ..r });
+                }
+                "search-freshness" => {
+                    e.status = Status::Unscheduled;
+                    e.run = None;
+                }
+                _ => {}
+            }
+        }
+        for day in &mut new.pools[0].days {
+            day.forecast *= 0.7;
+        }
+        new.changes = Some(crate::diff::diff(&old, &new));
+        new
+    }
+
+    /// The order the "what moved" table lists [`replanned`]'s experiments in.
+    pub const MOVED_ORDER: [&str; 7] = [
+        "search-freshness",
+        "trust-badges",
+        "search-synonyms",
+        "recipe-cards",
+        "free-shipping-bar",
+        "gift-wrap-upsell",
+        "hero-copy",
+    ];
+
+    /// The fixture plan with two running tests' advice: one re-shared so
+    /// that it fits, one that cannot reach its sample.
+    pub fn with_advice() -> Plan {
+        let mut plan = plan();
+        let outlook = |id: &str, fits: bool, advice: &str| RunningOutlook {
+            id: id.into(),
+            started: plan.window.start,
+            share: 0.5,
+            collected: 10,
+            units_needed: 100,
+            end: None,
+            fits_window: fits,
+            rescue_share: None,
+            detectable_effect: None,
+            advice: Some(advice.into()),
+        };
+        plan.running = vec![
+            outlook("search-synonyms", true, "re-shared from 10% to 50%"),
+            outlook("hero-copy", false, "cannot reach its sample"),
+        ];
+        plan
     }
 }
 

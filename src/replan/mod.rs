@@ -419,8 +419,11 @@ mod tests {
         assert_eq!(request.fixed[0].share, Share::from_fraction(0.1));
         assert!(request.fixed[0].end > p.window.end);
         assert_eq!(plan.experiments[0].status, Status::Running);
-        assert_eq!(plan.experiments[0].start, Some(d("2027-01-04")));
-        assert_eq!(plan.experiments[0].share, Some(0.1));
+        assert_eq!(
+            plan.experiments[0].run.map(|r| r.start),
+            Some(d("2027-01-04"))
+        );
+        assert_eq!(plan.experiments[0].run.map(|r| r.share), Some(0.1));
         assert!(!plan.running[0].fits_window);
         assert!(plan.experiments[0]
             .reason
@@ -437,8 +440,11 @@ mod tests {
         assert_eq!(fixed.start, d("2027-01-04"));
         assert_eq!(Some(fixed.end), running_end(&p, &r, rescue, today));
         assert!(fixed.end <= p.window.end);
-        assert_eq!(plan.experiments[0].share, Some(rescue));
-        assert_eq!(plan.experiments[0].start, Some(d("2027-01-04")));
+        assert_eq!(plan.experiments[0].run.map(|r| r.share), Some(rescue));
+        assert_eq!(
+            plan.experiments[0].run.map(|r| r.start),
+            Some(d("2027-01-04"))
+        );
         let o = &plan.running[0];
         assert!(o.fits_window);
         assert_eq!(o.share, rescue);

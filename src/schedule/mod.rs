@@ -28,9 +28,10 @@ pub use verify::verify;
 
 use crate::forecast::units_on;
 use crate::plan::{
-    Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, SolverSummary, Status,
+    Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, Run, SolverStatus,
+    SolverSummary, Status,
 };
-use crate::portfolio::{BlackoutKind, Portfolio, Sharing};
+use crate::portfolio::Portfolio;
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 pub(crate) use options::Instance;
@@ -187,11 +188,11 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let value = fixed_value + state.value;
     let bound = (fixed_value + bound).max(value);
     let status = if all_proved {
-        "optimal"
+        SolverStatus::Optimal
     } else if !lp_ok && !improved {
-        "greedy"
+        SolverStatus::Greedy
     } else {
-        "feasible"
+        SolverStatus::Feasible
     };
     let gap = if bound.abs() > 1e-12 {
         ((bound - value) / bound.abs()).max(0.0)
@@ -200,7 +201,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     };
     let solver = SolverSummary {
         backend: request.backend.name().to_string(),
-        status: status.to_string(),
+        status,
         seconds: clock.elapsed().as_secs_f64(),
         value,
         bound,
@@ -214,7 +215,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
         return plan;
     }
     let fallback = SolverSummary {
-        status: "greedy".to_string(),
+        status: SolverStatus::Greedy,
         value: greedy_value,
         gap: if solver.bound.abs() > 1e-12 {
             ((solver.bound - greedy_value) / solver.bound.abs()).max(0.0)
@@ -294,13 +295,8 @@ fn assemble(
                 pool: p.pools[ex.pool].id.clone(),
                 priority: ex.priority,
                 status: Status::Unscheduled,
-                start: None,
-                end: None,
-                result_date: None,
-                share: None,
-                days: None,
+                run: None,
                 units_needed: ex.need.total,
-                units_expected: None,
                 reason: None,
             };
             match run {
@@ -309,13 +305,14 @@ fn assemble(
                         Role::Fixed { .. } => Status::Running,
                         _ => Status::Scheduled,
                     };
-                    out.start = Some(start);
-                    out.end = Some(end);
-                    out.result_date = Some(end + Duration::days(1));
-                    out.share = Some(share.fraction());
-                    out.days = Some(((end - start).num_days() + 1) as u32);
-                    out.units_expected =
-                        Some(units_between(p, ex.pool, start, end, share.fraction()));
+                    out.run = Some(Run {
+                        start,
+                        end,
+                        result_date: end + Duration::days(1),
+                        share: share.fraction(),
+                        days: ((end - start).num_days() + 1) as u32,
+                        units_expected: units_between(p, ex.pool, start, end, share.fraction()),
+                    });
                 }
                 None => {
                     out.reason = why[e].clone();
@@ -345,9 +342,9 @@ fn assemble(
                         if p.experiments[e].pool != pi {
                             continue;
                         }
-                        if let (Some(s), Some(t), Some(sh)) = (pe.start, pe.end, pe.share) {
-                            if s <= date && date <= t {
-                                share_used += sh;
+                        if let Some(r) = &pe.run {
+                            if r.start <= date && date <= r.end {
+                                share_used += r.share;
                                 running += 1;
                             }
                         }
@@ -363,11 +360,7 @@ fn assemble(
             PoolPlan {
                 id: pool.id.clone(),
                 label: pool.label.clone(),
-                sharing: match pool.sharing {
-                    Sharing::Split => "split",
-                    Sharing::Overlap => "overlap",
-                }
-                .to_string(),
+                sharing: pool.sharing,
                 max_concurrent: pool.max_concurrent,
                 days,
             }
@@ -379,11 +372,7 @@ fn assemble(
         .map(|b| PlanBlackout {
             from: b.from,
             to: b.to,
-            kind: match b.kind {
-                BlackoutKind::NoStarts => "no_starts",
-                BlackoutKind::NoRunning => "no_running",
-            }
-            .to_string(),
+            kind: b.kind,
             note: b.note.clone(),
             pools: b.pools.iter().map(|&i| p.pools[i].id.clone()).collect(),
         })

@@ -84,13 +84,13 @@ fn planned(p: &Portfolio, r: &PlanRequest) -> Plan {
     assert!(plan.solver.value <= plan.solver.bound + 1e-9);
     assert!(plan.solver.value >= plan.greedy_value - 1e-9);
     // Never the fallback: the optimised plan itself passed the guard.
-    assert_ne!(plan.solver.status, "greedy");
+    assert_ne!(plan.solver.status, SolverStatus::Greedy);
     plan
 }
 
 fn run_of(plan: &Plan, id: &str) -> Option<(NaiveDate, NaiveDate, f64)> {
     let e = plan.experiments.iter().find(|e| e.id == id).unwrap();
-    Some((e.start?, e.end?, e.share?))
+    e.run.map(|r| (r.start, r.end, r.share))
 }
 
 fn reason_of(plan: &Plan, id: &str) -> String {
@@ -110,7 +110,7 @@ fn two_tests_share_one_pool_in_turn() {
     );
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.solver.value - 68.5 / 27.0).abs() < 1e-9);
-    assert_eq!(plan.solver.status, "optimal");
+    assert_eq!(plan.solver.status, SolverStatus::Optimal);
     assert_eq!(
         run_of(&plan, "a"),
         Some((d("2027-01-04"), d("2027-01-10"), 1.0))
@@ -120,9 +120,10 @@ fn two_tests_share_one_pool_in_turn() {
         Some((d("2027-01-11"), d("2027-01-17"), 1.0))
     );
     let e = &plan.experiments[0];
-    assert_eq!(e.result_date, Some(d("2027-01-11")));
-    assert_eq!(e.days, Some(7));
-    assert_eq!(e.units_expected, Some(7000.0));
+    let run = e.run.unwrap();
+    assert_eq!(run.result_date, d("2027-01-11"));
+    assert_eq!(run.days, 7);
+    assert_eq!(run.units_expected, 7000.0);
     assert_eq!(plan.pools[0].days[0].share_used, 1.0);
     assert_eq!(plan.pools[0].days[0].running, 1);
 }
@@ -404,7 +405,7 @@ fn edge_cases_give_plans_with_reasons() {
         ..PlanRequest::default()
     };
     let plan = planned(&p, &late);
-    assert!(plan.experiments.iter().all(|e| e.start.is_none()));
+    assert!(plan.experiments.iter().all(|e| e.run.is_none()));
     assert_eq!(
         reason_of(&plan, "a"),
         "its earliest possible start, 2027-02-15, is past the window"
@@ -430,19 +431,25 @@ fn the_verifier_catches_broken_plans() {
         (
             "end a day early",
             Box::new(|pl: &mut Plan| {
-                let e = &mut pl.experiments[0];
-                e.end = e.end.map(|x| x - Duration::days(1));
+                if let Some(r) = &mut pl.experiments[0].run {
+                    r.end -= Duration::days(1);
+                }
             }),
         ),
         (
             "share off the levels",
-            Box::new(|pl: &mut Plan| pl.experiments[0].share = Some(0.4)),
+            Box::new(|pl: &mut Plan| {
+                if let Some(r) = &mut pl.experiments[0].run {
+                    r.share = 0.4;
+                }
+            }),
         ),
         (
             "start off the grid",
             Box::new(|pl: &mut Plan| {
-                let e = &mut pl.experiments[0];
-                e.start = e.start.map(|x| x + Duration::days(1));
+                if let Some(r) = &mut pl.experiments[0].run {
+                    r.start += Duration::days(1);
+                }
             }),
         ),
         (
@@ -454,10 +461,14 @@ fn the_verifier_catches_broken_plans() {
             Box::new(|pl: &mut Plan| {
                 for e in pl.experiments.iter_mut() {
                     e.status = Status::Scheduled;
-                    e.start = Some(d("2027-01-04"));
-                    e.end = Some(d("2027-01-10"));
-                    e.result_date = Some(d("2027-01-11"));
-                    e.share = Some(1.0);
+                    e.run = Some(Run {
+                        start: d("2027-01-04"),
+                        end: d("2027-01-10"),
+                        result_date: d("2027-01-11"),
+                        share: 1.0,
+                        days: 7,
+                        units_expected: 7000.0,
+                    });
                     e.reason = None;
                 }
             }),
@@ -496,7 +507,13 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
         ..PlanRequest::default()
     };
     for (i, e) in first.experiments.iter().enumerate() {
-        if let (Some(s), Some(t), Some(sh)) = (e.start, e.end, e.share) {
+        if let Some(Run {
+            start: s,
+            end: t,
+            share: sh,
+            ..
+        }) = e.run
+        {
             if t < today {
                 r.excluded.push(Excluded {
                     experiment: i,
@@ -534,7 +551,7 @@ proptest! {
         }
         prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
         prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
-        prop_assert_ne!(a.solver.status.as_str(), "greedy");
+        prop_assert_ne!(a.solver.status, SolverStatus::Greedy);
         // Same input, same plan.
         let mut b = plan(&p, &r);
         b.solver.seconds = a.solver.seconds;
@@ -545,7 +562,7 @@ proptest! {
         if let Err(v) = verify(&p, &rr, &c) {
             panic!("verifier on the re-plan: {v:#?}");
         }
-        prop_assert_ne!(c.solver.status.as_str(), "greedy");
+        prop_assert_ne!(c.solver.status, SolverStatus::Greedy);
     }
 }
 
@@ -618,7 +635,7 @@ proptest! {
         if let Err(v) = verify(&p, &r, &a) {
             panic!("verifier: {v:#?}");
         }
-        prop_assert_ne!(a.solver.status.as_str(), "greedy");
+        prop_assert_ne!(a.solver.status, SolverStatus::Greedy);
         prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
         prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
     }

@@ -85,15 +85,15 @@ pub fn verify(
             ));
         }
         match pe.status {
-            Status::Scheduled | Status::Running => match (pe.start, pe.end, pe.share) {
-                (Some(s), Some(e), Some(sh)) => runs[i] = Some((s, e, sh)),
-                _ => bad.push(format!(
+            Status::Scheduled | Status::Running => match &pe.run {
+                Some(r) => runs[i] = Some((r.start, r.end, r.share)),
+                None => bad.push(format!(
                     "`{}` is scheduled without a start, end and share",
                     ex.id
                 )),
             },
             Status::Unscheduled | Status::Finished | Status::Cancelled => {
-                if pe.start.is_some() || pe.end.is_some() || pe.share.is_some() {
+                if pe.run.is_some() {
                     bad.push(format!("`{}` is unscheduled but has a run", ex.id));
                 }
                 if pe.reason.as_deref().is_none_or(|r| r.trim().is_empty()) {
@@ -204,7 +204,7 @@ pub fn verify(
             }
         }
         if let Some(pe) = plan.experiments.get(i) {
-            if pe.result_date != Some(end + Duration::days(1)) {
+            if pe.run.map(|r| r.result_date) != Some(end + Duration::days(1)) {
                 bad.push(format!(
                     "`{id}` has a result date that is not the day after its end"
                 ));

@@ -1,0 +1,59 @@
+//! The report's table of tests: a row per experiment in plan order with
+//! its pool, share, run, result date, units and owner.
+
+use super::{esc, pool_fill, RunWords};
+use crate::plan::Plan;
+use crate::render::common::{out_word, pool_label, thousands};
+use std::fmt::Write;
+
+/// The table of tests, into `s`.
+pub(super) fn tests(plan: &Plan, s: &mut String) {
+    let _ = writeln!(
+        s,
+        r#"<table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
+    );
+    for e in &plan.experiments {
+        let pool_index = plan.pools.iter().position(|p| p.id == e.pool);
+        let swatch = match pool_index {
+            Some(i) => format!(
+                r#"<span class="swatch" style="background:{}"></span>"#,
+                pool_fill(i)
+            ),
+            None => String::new(),
+        };
+        let _ = write!(
+            s,
+            r#"<tr><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
+            esc(&e.title),
+            esc(&e.id),
+            esc(pool_label(plan, &e.pool))
+        );
+        match &e.run {
+            Some(r) => {
+                let w = RunWords::of(e, r);
+                let _ = write!(s, r#"<td class="num">{}</td>"#, w.share);
+                let _ = write!(
+                    s,
+                    r#"<td class="date"><span class="nw">{}</span> to <span class="nw">{}</span><br/><span class="small">{} days</span></td>"#,
+                    w.start, w.end, w.days
+                );
+                let _ = write!(s, r#"<td class="date"><strong>{}</strong></td>"#, w.due);
+                let _ = write!(
+                    s,
+                    r#"<td class="num">{}</td><td class="num">{}</td>"#,
+                    w.needed, w.expected
+                );
+            }
+            None => {
+                let _ = write!(
+                    s,
+                    r#"<td class="num">—</td><td class="muted" colspan="2">{}</td><td class="num">{}</td><td class="num">—</td>"#,
+                    out_word(e),
+                    thousands(e.units_needed)
+                );
+            }
+        }
+        let _ = writeln!(s, "<td>{}</td></tr>", esc(&e.owner));
+    }
+    let _ = writeln!(s, "</tbody></table>");
+}
