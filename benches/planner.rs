@@ -136,7 +136,7 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
             let mut units = 0.0;
             let mut day = start;
             while day < today {
-                units += share * units_on(pool, day);
+                units += share.fraction() * units_on(pool, day);
                 day += Duration::days(1);
             }
             State::Running {

@@ -8,6 +8,7 @@
 use crate::plan::{
     ExperimentDiff, Movement, Plan, PlanDiff, PlannedExperiment, PoolDiff, PoolTotals, Status,
 };
+use crate::share::Share;
 
 fn in_calendar(e: &PlannedExperiment) -> bool {
     matches!(e.status, Status::Scheduled | Status::Running)
@@ -17,7 +18,7 @@ fn result_date(e: &PlannedExperiment) -> Option<chrono::NaiveDate> {
     e.run.map(|r| r.result_date)
 }
 
-fn share(e: &PlannedExperiment) -> Option<f64> {
+fn share(e: &PlannedExperiment) -> Option<Share> {
     e.run.map(|r| r.share)
 }
 
@@ -40,17 +41,9 @@ fn movement(old: &PlannedExperiment, new: &PlannedExperiment) -> Movement {
         (true, true) => match result_date(new).cmp(&result_date(old)) {
             std::cmp::Ordering::Greater => Movement::Later,
             std::cmp::Ordering::Less => Movement::Earlier,
-            std::cmp::Ordering::Equal if !same_share(share(old), share(new)) => Movement::Reshared,
+            std::cmp::Ordering::Equal if share(old) != share(new) => Movement::Reshared,
             std::cmp::Ordering::Equal => Movement::Unchanged,
         },
-    }
-}
-
-fn same_share(a: Option<f64>, b: Option<f64>) -> bool {
-    match (a, b) {
-        (Some(x), Some(y)) => (x - y).abs() < 1e-9,
-        (None, None) => true,
-        _ => false,
     }
 }
 
@@ -94,7 +87,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
             Movement::NowFits => now_fit.push(n.id.clone()),
             _ => {}
         }
-        if both.is_some_and(|o| !same_share(share(o), share(n))) {
+        if both.is_some_and(|o| share(o) != share(n)) {
             share_changed.push(n.id.clone());
         }
         experiments.push(ExperimentDiff {
@@ -168,14 +161,16 @@ mod tests {
             pool: "home".into(),
             priority: 1.0,
             status,
-            run: end.zip(share).map(|(end, share)| Run {
-                start: d("2027-01-04"),
-                end,
-                result_date: end.succ_opt().unwrap(),
-                share,
-                days: 1,
-                units_expected: 0.0,
-            }),
+            run: end
+                .zip(share.map(Share::from_fraction))
+                .map(|(end, share)| Run {
+                    start: d("2027-01-04"),
+                    end,
+                    result_date: end.succ_opt().unwrap(),
+                    share,
+                    days: 1,
+                    units_expected: 0.0,
+                }),
             units_needed: 1000,
             reason: None,
         }

@@ -8,6 +8,7 @@
 //! re-plan carries; `crate::diff` computes it from two plans.
 
 pub use crate::portfolio::{BlackoutKind, Sharing};
+use crate::share::Share;
 use chrono::NaiveDate;
 use serde::{Deserialize, Serialize};
 
@@ -128,7 +129,7 @@ pub struct Run {
     /// The day the result is due: the day after `end`.
     pub result_date: NaiveDate,
     /// Constant share of the pool, in (0, 1].
-    pub share: f64,
+    pub share: Share,
     /// Days from start to end inclusive.
     pub days: u32,
     /// Units the forecast delivers to it from start to end.
@@ -148,7 +149,7 @@ struct ExperimentJson {
     start: Option<NaiveDate>,
     end: Option<NaiveDate>,
     result_date: Option<NaiveDate>,
-    share: Option<f64>,
+    share: Option<Share>,
     days: Option<u32>,
     units_needed: u64,
     units_expected: Option<f64>,
@@ -313,7 +314,7 @@ pub struct RunningOutlook {
     pub id: String,
     pub started: NaiveDate,
     /// The share it runs at from today.
-    pub share: f64,
+    pub share: Share,
     /// Units collected when the counts were read, over all arms.
     pub collected: u64,
     pub units_needed: u64,
@@ -322,7 +323,7 @@ pub struct RunningOutlook {
     /// Whether `end` falls inside the window.
     pub fits_window: bool,
     /// The smallest share level that would finish it inside the window.
-    pub rescue_share: Option<f64>,
+    pub rescue_share: Option<Share>,
     /// The effect (in its MDE's kind) the units in hand by the window's end
     /// can detect at the planned power.
     pub detectable_effect: Option<f64>,
@@ -368,8 +369,8 @@ pub struct ExperimentDiff {
     pub new_result_date: Option<NaiveDate>,
     /// New result date minus old, in days (+ later, - earlier); both scheduled only.
     pub slip_days: Option<i64>,
-    pub old_share: Option<f64>,
-    pub new_share: Option<f64>,
+    pub old_share: Option<Share>,
+    pub new_share: Option<Share>,
 }
 
 /// A pool's totals in one plan.

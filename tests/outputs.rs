@@ -150,7 +150,7 @@ fn csv_has_a_header_and_one_row_per_experiment_agreeing_with_the_json() {
         let share = &row[col("share")];
         assert_eq!(
             (!share.is_empty()).then(|| share.parse::<f64>().unwrap()),
-            e.run.map(|r| r.share),
+            e.run.map(|r| r.share.fraction()),
             "{}",
             e.id
         );
@@ -295,7 +295,10 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
                 desc.contains(&format!("Pool: {pool_label} ({})", e.pool)),
                 "{desc}"
             );
-            let share = format!("Share of the pool: {:.0}%", e.run.unwrap().share * 100.0);
+            let share = format!(
+                "Share of the pool: {:.0}%",
+                e.run.unwrap().share.fraction() * 100.0
+            );
             assert!(desc.contains(&share), "{share} in {desc}");
             let units = format!("Units needed: {}", e.units_needed);
             assert!(desc.replace(',', "").contains(&units), "{units} in {desc}");

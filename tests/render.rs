@@ -152,7 +152,7 @@ fn csv_parses_back_row_by_row() {
         let share = &row[col("share")];
         assert_eq!(
             (!share.is_empty()).then(|| share.parse::<f64>().unwrap()),
-            e.run.map(|r| r.share)
+            e.run.map(|r| r.share.fraction())
         );
         assert_eq!(
             row[col("units_needed")].parse::<u64>().unwrap(),
@@ -285,7 +285,7 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
         for ev in [run, result] {
             let desc = unescape_text(ev.get("DESCRIPTION"));
             assert!(desc.contains(&format!("({})", e.pool)), "pool in {desc}");
-            let share = format!("{:.0}%", share * 100.0);
+            let share = format!("{:.0}%", share.fraction() * 100.0);
             assert!(desc.contains(&share), "share {share} in {desc}");
             let units = e.units_needed.to_string();
             let grouped = desc.replace(',', "");

@@ -5,7 +5,7 @@
 //! read from the plan as they are.
 
 use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Sharing, SolverStatus, Status};
-pub use crate::words::thousands;
+pub use crate::words::{percent, thousands, units};
 use chrono::{Duration, NaiveDate};
 
 /// How to name an experiment with no run in this plan: "does not fit", or
@@ -110,25 +110,6 @@ pub fn weeks(plan: &Plan) -> Vec<Week> {
     out
 }
 
-/// A unit count given as a float, rounded to whole units with separators.
-pub fn units(x: f64) -> String {
-    if x.is_finite() && x >= 0.0 {
-        thousands(x.round() as u64)
-    } else {
-        "?".to_string()
-    }
-}
-
-/// A share as a percentage: whole percent, or one decimal when needed.
-pub fn percent(share: f64) -> String {
-    let p = share * 100.0;
-    if (p - p.round()).abs() < 0.05 {
-        format!("{:.0}%", p)
-    } else {
-        format!("{:.1}%", p)
-    }
-}
-
 /// A date as `Mon 4 Jan 2027`.
 pub fn long_date(d: NaiveDate) -> String {
     d.format("%a %-d %b %Y").to_string()
@@ -184,22 +165,6 @@ pub fn fit_table(t: &mut comfy_table::Table, width: Option<usize>) {
 mod tests {
     use super::*;
     use crate::render::fixture;
-
-    #[test]
-    fn thousands_groups_digits() {
-        assert_eq!(thousands(0), "0");
-        assert_eq!(thousands(999), "999");
-        assert_eq!(thousands(1000), "1,000");
-        assert_eq!(thousands(2_400_000), "2,400,000");
-        assert_eq!(units(629_759.6), "629,760");
-    }
-
-    #[test]
-    fn percent_drops_needless_decimals() {
-        assert_eq!(percent(0.4), "40%");
-        assert_eq!(percent(1.0), "100%");
-        assert_eq!(percent(0.125), "12.5%");
-    }
 
     #[test]
     fn weeks_cover_the_window_exactly() {

@@ -44,7 +44,7 @@ impl Renderer for Csv {
                 opt(&|r| r.start.to_string()),
                 opt(&|r| r.end.to_string()),
                 opt(&|r| r.result_date.to_string()),
-                opt(&|r| r.share.to_string()),
+                opt(&|r| r.share.fraction().to_string()),
                 opt(&|r| r.days.to_string()),
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),

@@ -10,7 +10,7 @@
 //! All-day events end on the day after their last day, as RFC 5545 §3.6.1
 //! defines DTEND for DATE values (exclusive).
 
-use super::common::{percent, pool_label, thousands, units};
+use super::common::{pool_label, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
 use chrono::{Duration, NaiveTime};
@@ -84,7 +84,7 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         e.owner,
         pool_label(plan, &e.pool),
         e.pool,
-        percent(run.share),
+        run.share,
         run.start,
         run.end,
         run.days,

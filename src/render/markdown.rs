@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{counts, long_date, percent, pool_label, CAUTION};
+use super::common::{counts, long_date, pool_label, CAUTION};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -155,7 +155,7 @@ impl Renderer for Markdown {
                     escape(pool_label(plan, &e.pool)),
                     run.start,
                     run.end,
-                    percent(run.share),
+                    run.share,
                     escape(&e.owner)
                 );
             }

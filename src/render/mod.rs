@@ -257,6 +257,7 @@ pub(crate) mod fixture {
     //! The small fixture plan shared by the renderer unit tests, and a
     //! re-plan of it.
     use crate::plan::{Plan, Run, RunningOutlook, Status};
+    use crate::share::Share;
     use chrono::Duration;
 
     /// The invented plan in tests/fixtures/plan-small.json.
@@ -285,12 +286,15 @@ pub(crate) mod fixture {
                 "search-synonyms" => {
                     e.status = Status::Running;
                     if let Some(r) = &mut e.run {
-                        r.share = 0.5;
+                        r.share = Share::from_fraction(0.5);
                     }
                 }
                 "recipe-cards" => {
                     e.status = Status::Scheduled;
-                    e.run = old.experiments[3].run.map(|r| Run { share: 0.2, ..r });
+                    e.run = old.experiments[3].run.map(|r| Run {
+                        share: Share::from_fraction(0.2),
+                        ..r
+                    });
                 }
                 "search-freshness" => {
                     e.status = Status::Unscheduled;
@@ -324,7 +328,7 @@ pub(crate) mod fixture {
         let outlook = |id: &str, fits: bool, advice: &str| RunningOutlook {
             id: id.into(),
             started: plan.window.start,
-            share: 0.5,
+            share: Share::from_fraction(0.5),
             collected: 10,
             units_needed: 100,
             end: None,

@@ -9,16 +9,17 @@
 //! plan's order. How each format lays these out is its own module's job
 //! (`text::changes`, `html::changes`, `markdown`).
 
-use super::common::{percent, thousands, units};
+use super::common::{thousands, units};
 use super::markup::Column;
 use crate::plan::{ExperimentDiff, Movement, Plan, PlanDiff, PoolDiff, RunningOutlook, Status};
+use crate::share::Share;
 use std::fmt::Write as _;
 
 /// The heading over the table.
 pub const TITLE: &str = "What moved since the previous plan";
 
-fn share(s: Option<f64>) -> String {
-    s.map(percent).unwrap_or_default()
+fn share(s: Option<Share>) -> String {
+    s.map(|s| s.to_string()).unwrap_or_default()
 }
 
 fn date(d: Option<chrono::NaiveDate>) -> String {

@@ -21,9 +21,8 @@ pub use scale::{with_scales, ScaleArg};
 use crate::plan::{Plan, Status};
 use crate::portfolio::Portfolio;
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
-use crate::share::Share;
 use chrono::{Duration, NaiveDate};
-use outlook::{outlook, percent, Run, HORIZON_DAYS};
+use outlook::{outlook, Run, HORIZON_DAYS};
 use progress::State;
 use std::fmt;
 
@@ -80,8 +79,8 @@ pub fn replan(
                         o = outlook(portfolio, &run, s, today);
                         o.advice = Some(format!(
                             "re-shared from {} to {} from {today} so it finishes in the window; the arms' split is unchanged",
-                            percent(*share),
-                            percent(s)
+                            share,
+                            s
                         ));
                     }
                 }
@@ -92,7 +91,7 @@ pub fn replan(
                 request.fixed.push(FixedRun {
                     experiment: entry.experiment,
                     start: *started,
-                    share: Share::from_fraction(run_share),
+                    share: run_share,
                     end,
                 });
                 outlooks.push(o);
@@ -146,6 +145,7 @@ mod tests {
     use super::progress::Entry;
     use super::*;
     use crate::forecast::units_on;
+    use crate::share::Share;
     use crate::sizing;
 
     fn d(s: &str) -> NaiveDate {
@@ -174,7 +174,7 @@ mod tests {
         Run {
             experiment: 0,
             start: d(start),
-            share,
+            share: Share::from_fraction(share),
             collected,
             as_of: d(as_of),
         }
@@ -202,14 +202,14 @@ mod tests {
         let p = flat(false, 1, false);
         let r = run("2027-01-04", 0.5, need(&p) - 5000, "2027-02-01");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-10"))
         );
         // Whole weeks: 38 days round up to 42, the last on 2027-02-14.
         let p = flat(true, 14, false);
         let r = run("2027-01-04", 0.5, need(&p) - 5000, "2027-02-01");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-14"))
         );
     }
@@ -221,13 +221,13 @@ mod tests {
         let p = flat(false, 1, false);
         let r = run("2027-01-04", 0.5, need(&p) - 2500, "2027-01-30");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-03"))
         );
         // The same counts read on the day of the re-plan end two days later.
         let r = run("2027-01-04", 0.5, need(&p) - 2500, "2027-02-01");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-05"))
         );
     }
@@ -239,7 +239,7 @@ mod tests {
         let p = flat(false, 1, false);
         let r = run("2027-01-04", 0.5, need(&p) - 4000, "2027-01-30");
         assert_eq!(
-            running_end(&p, &r, 1.0, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(1.0), d("2027-02-01")),
             Some(d("2027-02-03"))
         );
     }
@@ -251,7 +251,7 @@ mod tests {
         let p = flat(false, 14, false);
         let r = run("2027-01-25", 0.5, need(&p) - 100, "2027-02-01");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-01")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-07"))
         );
     }
@@ -263,7 +263,7 @@ mod tests {
         let p = flat(false, 1, false);
         let r = run("2027-01-04", 0.5, need(&p) + 10, "2027-02-03");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-03")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
             Some(d("2027-02-03"))
         );
         // Whole weeks from its Monday start: today (Wednesday, day 31) is in
@@ -271,13 +271,13 @@ mod tests {
         let p = flat(true, 14, false);
         let r = run("2027-01-04", 0.5, need(&p) + 10, "2027-02-03");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-03")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
             Some(d("2027-02-07"))
         );
         // Exactly at its need: the same.
         let r = run("2027-01-04", 0.5, need(&p), "2027-02-03");
         assert_eq!(
-            running_end(&p, &r, 0.5, d("2027-02-03")),
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
             Some(d("2027-02-07"))
         );
     }
@@ -291,8 +291,11 @@ mod tests {
         )
         .unwrap();
         let r = run("2027-01-04", 0.5, need(&p) / 2, "2027-02-01");
-        assert_eq!(running_end(&p, &r, 0.5, d("2027-02-01")), None);
-        let o = outlook(&p, &r, 0.5, d("2027-02-01"));
+        assert_eq!(
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
+            None
+        );
+        let o = outlook(&p, &r, Share::from_fraction(0.5), d("2027-02-01"));
         assert!(!o.fits_window);
         assert_eq!(o.rescue_share, None);
         let advice = o.advice.unwrap();
@@ -315,7 +318,7 @@ mod tests {
         let today = d("2027-02-01");
         let r = slow();
         let remaining = need(&p) - 2800;
-        let o = outlook(&p, &r, 0.1, today);
+        let o = outlook(&p, &r, Share::from_fraction(0.1), today);
         assert!(!o.fits_window);
         // At 100 a day, the need is in after ceil(remaining / 100) days.
         let days = remaining.div_ceil(100) as i64;
@@ -328,16 +331,16 @@ mod tests {
             .share_levels
             .all()
             .iter()
-            .map(|s| s.fraction())
-            .find(|s| s * left >= remaining as f64)
+            .copied()
+            .find(|s| s.fraction() * left >= remaining as f64)
             .expect("some level fits");
         assert_eq!(o.rescue_share, Some(rescue));
-        let below: Vec<f64> = p
+        let below: Vec<Share> = p
             .share_levels
             .all()
             .iter()
-            .map(|s| s.fraction())
-            .filter(|s| *s > 0.1 && *s < rescue)
+            .copied()
+            .filter(|s| s.fraction() > 0.1 && *s < rescue)
             .collect();
         for s in below {
             assert!(running_end(&p, &r, s, today).unwrap() > p.window.end, "{s}");
@@ -370,7 +373,7 @@ mod tests {
         assert!(
             advice.contains(&format!(
                 "a share of {:.0}% from today would finish it in time",
-                rescue * 100.0
+                rescue.fraction() * 100.0
             )),
             "{advice}"
         );
@@ -385,7 +388,7 @@ mod tests {
     fn a_test_that_fits_gets_no_advice() {
         let p = flat(false, 1, false);
         let r = run("2027-01-04", 0.5, need(&p) - 5000, "2027-02-01");
-        let o = outlook(&p, &r, 0.5, d("2027-02-01"));
+        let o = outlook(&p, &r, Share::from_fraction(0.5), d("2027-02-01"));
         assert!(o.fits_window);
         assert_eq!(o.advice, None);
         assert_eq!(o.rescue_share, None);
@@ -414,7 +417,9 @@ mod tests {
         // Not allowed: the test keeps 10% and runs past the window.
         let p = flat(false, 1, false);
         let r = slow();
-        let rescue = outlook(&p, &r, 0.1, today).rescue_share.unwrap();
+        let rescue = outlook(&p, &r, Share::from_fraction(0.1), today)
+            .rescue_share
+            .unwrap();
         let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
         assert_eq!(request.fixed[0].share, Share::from_fraction(0.1));
         assert!(request.fixed[0].end > p.window.end);
@@ -423,7 +428,10 @@ mod tests {
             plan.experiments[0].run.map(|r| r.start),
             Some(d("2027-01-04"))
         );
-        assert_eq!(plan.experiments[0].run.map(|r| r.share), Some(0.1));
+        assert_eq!(
+            plan.experiments[0].run.map(|r| r.share),
+            Some(Share::from_fraction(0.1))
+        );
         assert!(!plan.running[0].fits_window);
         assert!(plan.experiments[0]
             .reason
@@ -436,7 +444,7 @@ mod tests {
         let p = flat(false, 1, true);
         let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
         let fixed = &request.fixed[0];
-        assert_eq!(fixed.share.fraction(), rescue);
+        assert_eq!(fixed.share, rescue);
         assert_eq!(fixed.start, d("2027-01-04"));
         assert_eq!(Some(fixed.end), running_end(&p, &r, rescue, today));
         assert!(fixed.end <= p.window.end);
@@ -450,7 +458,7 @@ mod tests {
         assert_eq!(o.share, rescue);
         assert!(o.advice.as_deref().unwrap().contains(&format!(
             "re-shared from 10% to {:.0}% from 2027-02-01",
-            rescue * 100.0
+            rescue.fraction() * 100.0
         )));
         schedule::verify(&p, &request, &plan).unwrap();
     }

@@ -22,7 +22,7 @@ pub(super) struct Run {
     pub experiment: usize,
     pub start: NaiveDate,
     /// The share it has run at so far.
-    pub share: f64,
+    pub share: Share,
     /// Units over all arms collected up to the end of the day before `as_of`.
     pub collected: u64,
     pub as_of: NaiveDate,
@@ -30,11 +30,11 @@ pub(super) struct Run {
 
 impl Run {
     /// Its share on `day` when it runs at `from_today` from `today` on.
-    fn share_on(&self, day: NaiveDate, from_today: f64, today: NaiveDate) -> f64 {
+    fn share_on(&self, day: NaiveDate, from_today: Share, today: NaiveDate) -> f64 {
         if day < today {
-            self.share
+            self.share.fraction()
         } else {
-            from_today
+            from_today.fraction()
         }
     }
 }
@@ -48,7 +48,7 @@ impl Run {
 pub(super) fn running_end(
     portfolio: &Portfolio,
     run: &Run,
-    share: f64,
+    share: Share,
     today: NaiveDate,
 ) -> Option<NaiveDate> {
     let e = &portfolio.experiments[run.experiment];
@@ -79,7 +79,7 @@ pub(super) fn running_end(
 }
 
 /// Units a running test will have by the window's end at `share` from today.
-fn units_by_window_end(portfolio: &Portfolio, run: &Run, share: f64, today: NaiveDate) -> f64 {
+fn units_by_window_end(portfolio: &Portfolio, run: &Run, share: Share, today: NaiveDate) -> f64 {
     let e = &portfolio.experiments[run.experiment];
     let pool = &portfolio.pools[e.pool];
     let mut day = run.as_of.max(run.start);
@@ -91,16 +91,12 @@ fn units_by_window_end(portfolio: &Portfolio, run: &Run, share: f64, today: Naiv
     total
 }
 
-pub(super) fn percent(share: f64) -> String {
-    format!("{:.0}%", share * 100.0)
-}
-
 /// The outlook of one running test at `share` from today, and a rescue
 /// when it cannot finish inside the window.
 pub(super) fn outlook(
     portfolio: &Portfolio,
     run: &Run,
-    share: f64,
+    share: Share,
     today: NaiveDate,
 ) -> RunningOutlook {
     let e = &portfolio.experiments[run.experiment];
@@ -125,8 +121,7 @@ pub(super) fn outlook(
     outlook.rescue_share = portfolio
         .share_levels
         .up_to(e.max_share)
-        .map(Share::fraction)
-        .filter(|&s| Share::from_fraction(s) > Share::from_fraction(share))
+        .filter(|&s| s > share)
         .find(|&s| {
             running_end(portfolio, run, s, today).is_some_and(|d| d <= portfolio.window.end)
         });
@@ -138,12 +133,12 @@ pub(super) fn outlook(
     let when = match end {
         Some(day) => format!(
             "at {} it would reach its {} units on {day}",
-            percent(share),
+            share,
             thousands(e.need.total)
         ),
         None => format!(
             "at {} it would not reach its {} units within ten years",
-            percent(share),
+            share,
             thousands(e.need.total)
         ),
     };
@@ -153,8 +148,7 @@ pub(super) fn outlook(
     );
     match outlook.rescue_share {
         Some(s) => advice.push_str(&format!(
-            "; a share of {} from today would finish it in time",
-            percent(s)
+            "; a share of {s} from today would finish it in time",
         )),
         None => advice.push_str(&format!(
             "; no share up to its maximum of {} finishes it in time",

@@ -13,6 +13,7 @@ use crate::diagnostic::{self, Diagnostic};
 use crate::forecast;
 use crate::portfolio::raw::{fields_of, Text};
 use crate::portfolio::{from_serde, index_of, unknown_keys, Checker, LoadError, Portfolio};
+use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use serde::Deserialize;
 use std::path::Path;
@@ -23,7 +24,7 @@ pub enum State {
     /// Started on `started` at `share` and still collecting.
     Running {
         started: NaiveDate,
-        share: f64,
+        share: Share,
         /// Units collected so far over all arms.
         units: u64,
         /// Per arm, control first, when the file gives them.
@@ -340,7 +341,9 @@ impl ProgressCheck<'_> {
             return None;
         };
         let share = match e.share {
-            Some(s) if s > 0.0 && s <= 1.0 => s,
+            Some(s) if s > 0.0 && s <= 1.0 && !Share::from_fraction(s).is_zero() => {
+                Share::from_fraction(s)
+            }
             Some(s) => {
                 self.ck.err(
                     &format!("{at}.share"),
@@ -424,14 +427,13 @@ impl ProgressCheck<'_> {
         let last = entry.as_of - Duration::days(1);
         if last >= started {
             let series = forecast::Series::new(pool, started, last);
-            let could = series.total(0, series.len() - 1) * share;
+            let could = series.total(0, series.len() - 1) * share.fraction();
             if units as f64 > could * 1.05 + 1.0 {
                 self.ck.warn(
                     &format!("{at}.units"),
                     format!(
-                        "`{id}` reports {units} units, more than the forecast of `{}` could deliver at {:.0}% from {started} to {last} ({:.0})",
+                        "`{id}` reports {units} units, more than the forecast of `{}` could deliver at {share} from {started} to {last} ({:.0})",
                         pool.id,
-                        share * 100.0,
                         could
                     ),
                     "the count is kept; check it, or raise the pool's forecast if traffic runs above it",
@@ -476,7 +478,7 @@ mod tests {
             p.entries[0].state,
             State::Running {
                 started: d("2027-01-04"),
-                share: 0.5,
+                share: Share::from_fraction(0.5),
                 units: 80100,
                 units_per_arm: Some(vec![40000, 40100]),
             }

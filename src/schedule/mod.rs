@@ -309,7 +309,7 @@ fn assemble(
                         start,
                         end,
                         result_date: end + Duration::days(1),
-                        share: share.fraction(),
+                        share,
                         days: ((end - start).num_days() + 1) as u32,
                         units_expected: units_between(p, ex.pool, start, end, share.fraction()),
                     });
@@ -344,7 +344,7 @@ fn assemble(
                         }
                         if let Some(r) = &pe.run {
                             if r.start <= date && date <= r.end {
-                                share_used += r.share;
+                                share_used += r.share.fraction();
                                 running += 1;
                             }
                         }

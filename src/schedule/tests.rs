@@ -10,7 +10,7 @@ use crate::portfolio::{
     after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
-use crate::share::ShareLevels;
+use crate::share::{Share, ShareLevels};
 use crate::sizing::{Design, Effect, Metric};
 use chrono::Weekday;
 use proptest::prelude::*;
@@ -90,7 +90,7 @@ fn planned(p: &Portfolio, r: &PlanRequest) -> Plan {
 
 fn run_of(plan: &Plan, id: &str) -> Option<(NaiveDate, NaiveDate, f64)> {
     let e = plan.experiments.iter().find(|e| e.id == id).unwrap();
-    e.run.map(|r| (r.start, r.end, r.share))
+    e.run.map(|r| (r.start, r.end, r.share.fraction()))
 }
 
 fn reason_of(plan: &Plan, id: &str) -> String {
@@ -440,7 +440,7 @@ fn the_verifier_catches_broken_plans() {
             "share off the levels",
             Box::new(|pl: &mut Plan| {
                 if let Some(r) = &mut pl.experiments[0].run {
-                    r.share = 0.4;
+                    r.share = Share::from_fraction(0.4);
                 }
             }),
         ),
@@ -465,7 +465,7 @@ fn the_verifier_catches_broken_plans() {
                         start: d("2027-01-04"),
                         end: d("2027-01-10"),
                         result_date: d("2027-01-11"),
-                        share: 1.0,
+                        share: Share::WHOLE,
                         days: 7,
                         units_expected: 7000.0,
                     });
@@ -524,7 +524,7 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
                 r.fixed.push(FixedRun {
                     experiment: i,
                     start: s,
-                    share: Share::from_fraction(sh),
+                    share: sh,
                     end: t,
                 });
             }

@@ -86,7 +86,7 @@ pub fn verify(
         }
         match pe.status {
             Status::Scheduled | Status::Running => match &pe.run {
-                Some(r) => runs[i] = Some((r.start, r.end, r.share)),
+                Some(r) => runs[i] = Some((r.start, r.end, r.share.fraction())),
                 None => bad.push(format!(
                     "`{}` is scheduled without a start, end and share",
                     ex.id

@@ -23,7 +23,7 @@ mod svg;
 mod table;
 
 use super::common::{
-    counts, is_split, long_date, percent, pool_label, solver_sentence, thousands, units, CAUTION,
+    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTION,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -138,7 +138,7 @@ struct RunWords {
 impl RunWords {
     fn of(e: &PlannedExperiment, r: &Run) -> RunWords {
         RunWords {
-            share: percent(r.share),
+            share: r.share.to_string(),
             start: r.start,
             end: r.end,
             days: r.days,

@@ -311,7 +311,7 @@ fn bar(
         } else {
             ""
         },
-        percent(r.share),
+        r.share,
         short_date(r.result_date)
     );
     let text_w = label.chars().count() as f64 * CHAR_W;

@@ -122,7 +122,7 @@ fn table_for(
         }
         match &run {
             Some(r) => {
-                row.push(Cell::new(percent(r.share)).set_alignment(CellAlignment::Right));
+                row.push(Cell::new(r.share.to_string()).set_alignment(CellAlignment::Right));
                 row.push(Cell::new(r.start));
                 if layout >= Layout::Wide {
                     row.push(Cell::new(r.end));
