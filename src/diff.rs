@@ -38,16 +38,25 @@ pub enum Movement {
 /// One experiment, before and after.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ExperimentDiff {
+    /// The experiment's id.
     pub id: String,
+    /// Its pool's id (in the new plan, else the old).
     pub pool: String,
+    /// How it moved.
     pub movement: Movement,
+    /// Its status in the old plan; `None` when it was not in it.
     pub old_status: Option<Status>,
+    /// Its status in the new plan; `None` when it is not in it.
     pub new_status: Option<Status>,
+    /// The old plan's result date.
     pub old_result_date: Option<NaiveDate>,
+    /// The new plan's result date.
     pub new_result_date: Option<NaiveDate>,
     /// New result date minus old, in days (+ later, - earlier); both scheduled only.
     pub slip_days: Option<i64>,
+    /// The old plan's share.
     pub old_share: Option<f64>,
+    /// The new plan's share.
     pub new_share: Option<f64>,
 }
 
@@ -70,8 +79,11 @@ pub struct PoolTotals {
 /// A pool before and after.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolDiff {
+    /// The pool's id.
     pub id: String,
+    /// Its totals in the old plan.
     pub before: PoolTotals,
+    /// Its totals in the new plan.
     pub after: PoolTotals,
 }
 
@@ -86,6 +98,7 @@ pub struct PlanDiff {
     pub now_fit: Vec<String>,
     /// Ids scheduled in both with another share.
     pub share_changed: Vec<String>,
+    /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
 }
 

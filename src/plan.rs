@@ -11,7 +11,9 @@ use serde::{Deserialize, Serialize};
 /// The planning window, both ends inclusive.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct PlanWindow {
+    /// First day.
     pub start: NaiveDate,
+    /// Last day.
     pub end: NaiveDate,
 }
 
@@ -69,12 +71,17 @@ impl Status {
 /// One experiment's outcome.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlannedExperiment {
+    /// The experiment's id.
     pub id: String,
+    /// Its title.
     pub title: String,
+    /// Who owns it.
     pub owner: String,
     /// The pool's id.
     pub pool: String,
+    /// Its weight in the objective.
     pub priority: f64,
+    /// Whether it got a place in the calendar.
     pub status: Status,
     /// First day of the run (scheduled only).
     pub start: Option<NaiveDate>,
@@ -97,6 +104,7 @@ pub struct PlannedExperiment {
 /// One day of one pool.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolDay {
+    /// The day.
     pub date: NaiveDate,
     /// Forecast eligible units.
     pub forecast: f64,
@@ -109,21 +117,28 @@ pub struct PoolDay {
 /// One pool over the window.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolPlan {
+    /// The pool's id.
     pub id: String,
+    /// Its label.
     pub label: String,
     /// `split` or `overlap`.
     pub sharing: String,
+    /// Most tests running at once.
     pub max_concurrent: u32,
+    /// Every day of the window, in order.
     pub days: Vec<PoolDay>,
 }
 
 /// A blackout span, as the renderers show it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlanBlackout {
+    /// First day.
     pub from: NaiveDate,
+    /// Last day.
     pub to: NaiveDate,
     /// `no_starts` or `no_running`.
     pub kind: String,
+    /// Why, in the portfolio's words.
     pub note: String,
     /// Pool ids; empty for every pool.
     pub pools: Vec<String>,
@@ -134,7 +149,9 @@ pub struct PlanBlackout {
 pub struct Plan {
     /// The portfolio's name.
     pub portfolio: String,
+    /// The planning window.
     pub window: PlanWindow,
+    /// How the optimiser did.
     pub solver: SolverSummary,
     /// Value of the greedy baseline on the same portfolio.
     pub greedy_value: f64,
@@ -142,6 +159,7 @@ pub struct Plan {
     pub experiments: Vec<PlannedExperiment>,
     /// In portfolio order.
     pub pools: Vec<PoolPlan>,
+    /// In portfolio order.
     pub blackouts: Vec<PlanBlackout>,
     /// The date the plan was made for (`--today`, or the window's start);
     /// renderers draw it as today's line.
@@ -157,12 +175,15 @@ pub struct Plan {
 /// Re-plans only: where a running test stands and when it will finish.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RunningOutlook {
+    /// The experiment's id.
     pub id: String,
+    /// Its first day.
     pub started: NaiveDate,
     /// The share it runs at from today.
     pub share: f64,
     /// Units collected when the counts were read, over all arms.
     pub collected: u64,
+    /// Units it needs over all arms.
     pub units_needed: u64,
     /// Its last day of data from the forecast; `None` beyond ten years.
     pub end: Option<NaiveDate>,

@@ -16,7 +16,7 @@ use crate::portfolio::progress::{Progress, State};
 use crate::portfolio::{Portfolio, Scale};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
 use crate::sizing::{self, round_days};
-pub use crate::words::thousands;
+pub(crate) use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
 use std::fmt;
 
@@ -26,7 +26,9 @@ const HORIZON_DAYS: i64 = 3653;
 /// `--scale POOL=FACTOR[@FROM]`: a lasting change of a pool's traffic.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ScaleArg {
+    /// The pool's id.
     pub pool: String,
+    /// The multiplier, >= 0; 0.7 is a 30% drop.
     pub factor: f64,
     /// From this day on; the re-plan's today when not given.
     pub from: Option<NaiveDate>,

@@ -4,6 +4,7 @@
 mod util;
 
 mod check;
+mod commands;
 mod outputs;
 mod plan;
 mod render;

@@ -13,7 +13,6 @@ use crate::util::{cmd, demo, repo, sluice};
 use chrono::{Duration, NaiveDate};
 use sluice::plan::{Plan, PlannedExperiment, Status};
 use std::collections::BTreeSet;
-use std::path::Path;
 use std::process::Output;
 use unicode_width::UnicodeWidthStr;
 

@@ -3,10 +3,10 @@
 //! against demand. The report comes from [`crate::check`]; this file only
 //! formats it.
 
-use super::{Failure, TextOrJson};
+use super::{Error, TextOrJson};
 use crate::check::{self, trim, CheckReport};
 use crate::portfolio;
-pub use crate::words::thousands as units;
+use crate::words::thousands as units;
 use clap::Args;
 use comfy_table::{presets, CellAlignment, Table};
 use std::path::PathBuf;
@@ -26,7 +26,7 @@ pub struct CheckArgs {
 }
 
 /// `sluice check`.
-pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Failure> {
+pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Error> {
     let p = super::plan::load_portfolio(&a.file)?;
     let report = check::check(&p);
     match a.format {

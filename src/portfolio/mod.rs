@@ -11,7 +11,7 @@ mod load;
 pub mod model;
 pub mod position;
 pub mod progress;
-pub mod raw;
+pub(crate) mod raw;
 mod validate;
 
 pub use load::{load, load_str, LoadError};

@@ -328,7 +328,7 @@ fn moved_table_at(d: &PlanDiff, width: usize) -> comfy_table::Table {
 }
 
 /// The changes and outlooks as terminal text (no colour), the table laid
-/// out for `width` columns (see [`moved_table_at`]). The sentences around
+/// out for `width` columns (see `moved_table_at`). The sentences around
 /// it are not wrapped.
 pub fn text(plan: &Plan, width: usize) -> String {
     let mut s = String::new();

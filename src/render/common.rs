@@ -6,7 +6,7 @@
 
 use super::RenderError;
 use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Status};
-pub use crate::words::thousands;
+pub(crate) use crate::words::thousands;
 use chrono::{Duration, NaiveDate};
 
 /// The schedule facts of one scheduled experiment, read from the plan.
