@@ -49,6 +49,6 @@ fn run() -> Result<(), String> {
             .write_all(&bytes)
             .map_err(|e| format!("cannot write to standard output: {e}"))
     } else {
-        sluice::output::write_atomic(std::path::Path::new(out), &bytes).map_err(|e| e.to_string())
+        std::fs::write(out, &bytes).map_err(|e| format!("cannot write `{out}`: {e}"))
     }
 }

@@ -9,7 +9,7 @@
 //! `schedule::Instance::earliest_solo`, so `check` and `plan` apply one
 //! start grid and one set of blackout rules. Per pool: the units the
 //! window offers against the units its experiments need. Durations come day by day from
-//! [`forecast::Series::run_end`]. No formatting here: the CLI renders the
+//! [`crate::forecast::Series::run_end`]. No formatting here: the CLI renders the
 //! [`CheckReport`].
 
 use crate::forecast::Series;
@@ -27,12 +27,17 @@ pub const HORIZON_DAYS: i64 = 5 * 365 + 1;
 /// The whole report; `sluice check --format json` prints it as is.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct CheckReport {
+    /// The portfolio's name.
     pub name: String,
+    /// The window's first day.
     pub window_start: NaiveDate,
+    /// The window's last day.
     pub window_end: NaiveDate,
     /// Days in the window, both ends counted.
     pub window_days: usize,
+    /// In portfolio order.
     pub experiments: Vec<ExperimentCheck>,
+    /// In portfolio order.
     pub pools: Vec<PoolCheck>,
     /// How many experiments fit the window on their own.
     pub fit_alone: usize,
@@ -43,12 +48,15 @@ pub struct CheckReport {
 /// One experiment's size and solo fit.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ExperimentCheck {
+    /// The experiment's id.
     pub id: String,
+    /// Its title.
     pub title: String,
     /// The pool's id.
     pub pool: String,
     /// `rate` or `mean`.
     pub metric: String,
+    /// Control plus treatments.
     pub arms: u32,
     /// Units in the control arm.
     pub control_units: u64,
@@ -67,8 +75,9 @@ pub struct ExperimentCheck {
     pub end_from_window_start: Option<NaiveDate>,
     /// Whether some start fits the window alone (see `reason` when not).
     pub fits_alone: bool,
-    /// The earliest solo run that fits: first and last day.
+    /// The earliest solo run that fits: first day.
     pub solo_start: Option<NaiveDate>,
+    /// The earliest solo run that fits: last day.
     pub solo_end: Option<NaiveDate>,
     /// Why it cannot fit even alone.
     pub reason: Option<String>,
@@ -77,10 +86,15 @@ pub struct ExperimentCheck {
 /// One pool's supply against demand over the window.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PoolCheck {
+    /// The pool's id.
     pub id: String,
+    /// Its label.
     pub label: String,
+    /// How its tests share its units.
     pub sharing: Sharing,
+    /// Most tests running at once.
     pub max_concurrent: u32,
+    /// How many experiments use it.
     pub experiments: usize,
     /// Forecast units over the window.
     pub offered_units: f64,

@@ -1,6 +1,8 @@
 //! Diagnostics: problems found in a file the user wrote, each pointing at
 //! the file, line, column and key, with a hint, and rendered like a
 //! compiler error (the source line with a caret under the offending value).
+//! A diagnostic's [`Severity`] decides the word it opens with: `error` for
+//! a problem that stops the command, `warning` for one that does not.
 //!
 //! This module knows nothing about YAML or portfolios: loaders (the
 //! portfolio loader, later the progress loader) build [`Diagnostic`]s and
@@ -10,9 +12,31 @@
 use serde::Serialize;
 use std::fmt;
 
+/// Whether a diagnostic stops the command; decides the word it prints with.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Severity {
+    /// The file cannot be used: the command stops with exit code 2.
+    Error,
+    /// The file is used as it is; the problem is worth a look.
+    Warning,
+}
+
+impl Severity {
+    /// The word a diagnostic of this severity opens with.
+    pub fn word(self) -> &'static str {
+        match self {
+            Severity::Error => "error",
+            Severity::Warning => "warning",
+        }
+    }
+}
+
 /// One problem in a file.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct Diagnostic {
+    /// An error (the default) or a warning.
+    pub severity: Severity,
     /// The file as the user named it.
     pub file: String,
     /// 1-based line, when known.
@@ -36,6 +60,7 @@ impl Diagnostic {
     /// A problem with no position yet.
     pub fn new(file: &str, key: impl Into<String>, message: impl Into<String>) -> Diagnostic {
         Diagnostic {
+            severity: Severity::Error,
             file: file.to_string(),
             line: None,
             column: None,
@@ -45,6 +70,12 @@ impl Diagnostic {
             source_line: None,
             width: 1,
         }
+    }
+
+    /// The same problem as a warning: it prints with `warning:`.
+    pub fn warning(mut self) -> Diagnostic {
+        self.severity = Severity::Warning;
+        self
     }
 
     /// Adds a hint.
@@ -97,7 +128,7 @@ impl fmt::Display for Diagnostic {
     ///    = hint: defined pools, closest first: check-out, home
     /// ```
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        writeln!(f, "error: {}", self.message)?;
+        writeln!(f, "{}: {}", self.severity.word(), self.message)?;
         let gutter = self.line.map(|l| l.to_string().len()).unwrap_or(1);
         let pad = " ".repeat(gutter);
         writeln!(f, "{pad}--> {}", self.location())?;
@@ -133,8 +164,8 @@ pub fn render_all(diagnostics: &[Diagnostic]) -> String {
     let n = diagnostics.len();
     let file = diagnostics.first().map(|d| d.file.as_str()).unwrap_or("");
     out.push_str(&format!(
-        "{n} problem{} in `{file}`\n",
-        if n == 1 { "" } else { "s" }
+        "{n} {} in `{file}`\n",
+        crate::words::Count("problem", n)
     ));
     out
 }
@@ -209,6 +240,15 @@ mod tests {
     fn without_position_names_the_file_only() {
         let d = Diagnostic::new("f.yaml", "", "the file is empty");
         assert_eq!(d.to_string(), "error: the file is empty\n --> f.yaml\n");
+    }
+
+    #[test]
+    fn a_warning_opens_with_its_word() {
+        let d = Diagnostic::new("f.yaml", "", "the count looks high").warning();
+        assert_eq!(
+            d.to_string(),
+            "warning: the count looks high\n --> f.yaml\n"
+        );
     }
 
     #[test]

@@ -74,6 +74,7 @@ impl Series {
         self.units.len()
     }
 
+    /// Whether no day is covered.
     pub fn is_empty(&self) -> bool {
         self.units.is_empty()
     }

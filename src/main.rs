@@ -3,5 +3,5 @@
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
-    sluice::cli::main()
+    sluice::cli_main()
 }

@@ -15,7 +15,9 @@ use serde::{Deserialize, Serialize};
 /// The planning window, both ends inclusive.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct PlanWindow {
+    /// First day.
     pub start: NaiveDate,
+    /// Last day.
     pub end: NaiveDate,
 }
 
@@ -24,6 +26,7 @@ pub struct PlanWindow {
 pub struct SolverSummary {
     /// The LP/MILP backend, e.g. `microlp` or `highs`.
     pub backend: String,
+    /// Whether the plan is proved optimal, feasible, or the greedy fallback.
     pub status: SolverStatus,
     /// Wall-clock seconds spent planning.
     pub seconds: f64,
@@ -103,12 +106,17 @@ impl Status {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(into = "ExperimentJson", try_from = "ExperimentJson")]
 pub struct PlannedExperiment {
+    /// The experiment's id.
     pub id: String,
+    /// Its title.
     pub title: String,
+    /// Who owns it.
     pub owner: String,
     /// The pool's id.
     pub pool: String,
+    /// Its weight in the objective.
     pub priority: f64,
+    /// Whether it got a place in the calendar.
     pub status: Status,
     /// Its place in the calendar: present exactly when the status is
     /// scheduled or running ([`Status::in_calendar`]).
@@ -251,6 +259,7 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
 /// One day of one pool.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolDay {
+    /// The day.
     pub date: NaiveDate,
     /// Forecast eligible units.
     pub forecast: f64,
@@ -263,21 +272,28 @@ pub struct PoolDay {
 /// One pool over the window.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolPlan {
+    /// The pool's id.
     pub id: String,
+    /// Its label.
     pub label: String,
     /// `split` or `overlap` in JSON.
     pub sharing: Sharing,
+    /// Most tests running at once.
     pub max_concurrent: u32,
+    /// Every day of the window, in order.
     pub days: Vec<PoolDay>,
 }
 
 /// A blackout span, as the renderers show it.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PlanBlackout {
+    /// First day.
     pub from: NaiveDate,
+    /// Last day.
     pub to: NaiveDate,
     /// `no_starts` or `no_running` in JSON.
     pub kind: BlackoutKind,
+    /// Why, in the portfolio's words.
     pub note: String,
     /// Pool ids; empty for every pool.
     pub pools: Vec<String>,
@@ -288,7 +304,9 @@ pub struct PlanBlackout {
 pub struct Plan {
     /// The portfolio's name.
     pub portfolio: String,
+    /// The planning window.
     pub window: PlanWindow,
+    /// How the optimiser did.
     pub solver: SolverSummary,
     /// Value of the greedy baseline on the same portfolio.
     pub greedy_value: f64,
@@ -296,6 +314,7 @@ pub struct Plan {
     pub experiments: Vec<PlannedExperiment>,
     /// In portfolio order.
     pub pools: Vec<PoolPlan>,
+    /// In portfolio order.
     pub blackouts: Vec<PlanBlackout>,
     /// The date the plan was made for (`--today`, or the window's start);
     /// renderers draw it as today's line.
@@ -311,12 +330,15 @@ pub struct Plan {
 /// Re-plans only: where a running test stands and when it will finish.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RunningOutlook {
+    /// The experiment's id.
     pub id: String,
+    /// Its first day.
     pub started: NaiveDate,
     /// The share it runs at from today.
     pub share: Share,
     /// Units collected when the counts were read, over all arms.
     pub collected: u64,
+    /// Units it needs over all arms.
     pub units_needed: u64,
     /// Its last day of data from the forecast; `None` beyond ten years.
     pub end: Option<NaiveDate>,
@@ -360,16 +382,25 @@ pub enum Movement {
 /// One experiment, before and after.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ExperimentDiff {
+    /// The experiment's id.
     pub id: String,
+    /// Its pool's id (in the new plan, else the old).
     pub pool: String,
+    /// How it moved.
     pub movement: Movement,
+    /// Its status in the old plan; `None` when it was not in it.
     pub old_status: Option<Status>,
+    /// Its status in the new plan; `None` when it is not in it.
     pub new_status: Option<Status>,
+    /// The old plan's result date.
     pub old_result_date: Option<NaiveDate>,
+    /// The new plan's result date.
     pub new_result_date: Option<NaiveDate>,
     /// New result date minus old, in days (+ later, - earlier); both scheduled only.
     pub slip_days: Option<i64>,
+    /// The old plan's share.
     pub old_share: Option<Share>,
+    /// The new plan's share.
     pub new_share: Option<Share>,
 }
 
@@ -392,8 +423,11 @@ pub struct PoolTotals {
 /// A pool before and after.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolDiff {
+    /// The pool's id.
     pub id: String,
+    /// Its totals in the old plan.
     pub before: PoolTotals,
+    /// Its totals in the new plan.
     pub after: PoolTotals,
 }
 
@@ -408,5 +442,6 @@ pub struct PlanDiff {
     pub now_fit: Vec<String>,
     /// Ids scheduled in both with another share.
     pub share_changed: Vec<String>,
+    /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
 }

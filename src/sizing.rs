@@ -43,9 +43,17 @@ use std::fmt;
 #[serde(tag = "kind", rename_all = "lowercase")]
 pub enum Metric {
     /// A rate (conversion): the control's baseline probability, in (0, 1).
-    Rate { baseline: f64 },
+    Rate {
+        /// The control's probability.
+        baseline: f64,
+    },
     /// A mean: the control's baseline mean and the per-unit standard deviation.
-    Mean { mean: f64, sd: f64 },
+    Mean {
+        /// The control's mean.
+        mean: f64,
+        /// The standard deviation of one unit's value.
+        sd: f64,
+    },
 }
 
 /// The minimum detectable effect: the smallest true change worth finding.
@@ -132,11 +140,14 @@ impl fmt::Display for Method {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Sides {
+    /// One-sided: the alternative lies in the effect's direction.
     One,
+    /// Two-sided: a change either way.
     Two,
 }
 
 impl Sides {
+    /// 1 or 2: how many tails alpha is split over.
     pub fn count(self) -> u32 {
         match self {
             Sides::One => 1,
@@ -149,14 +160,19 @@ impl Sides {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Correction {
+    /// No correction.
     None,
+    /// alpha / k for k treatment arms.
     Bonferroni,
+    /// 1 - (1 - alpha)^(1/k) for k treatment arms.
     Sidak,
 }
 
 impl Correction {
+    /// Every correction.
     pub const ALL: [Correction; 3] = [Correction::None, Correction::Bonferroni, Correction::Sidak];
 
+    /// The name in files, flags and JSON.
     pub fn name(self) -> &'static str {
         match self {
             Correction::None => "none",
@@ -165,6 +181,7 @@ impl Correction {
         }
     }
 
+    /// The correction called `s`.
     pub fn parse(s: &str) -> Option<Correction> {
         Correction::ALL.into_iter().find(|c| c.name() == s)
     }
@@ -173,18 +190,23 @@ impl Correction {
 /// Everything that fixes a test's sample size.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Design {
+    /// What the test measures.
     pub metric: Metric,
+    /// The smallest change worth finding.
     pub effect: Effect,
     /// Type I error rate of the whole test (before the multi-arm correction).
     pub alpha: f64,
     /// 1 - beta, for each treatment-versus-control comparison.
     pub power: f64,
+    /// One- or two-sided.
     pub sides: Sides,
     /// Control plus treatments; at least 2.
     pub arms: u32,
     /// Treatment units per control unit; 1 for an even split.
     pub ratio: f64,
+    /// The sample-size formula.
     pub method: Method,
+    /// Correction for several treatment arms.
     pub correction: Correction,
     /// Correlation of the metric with its pre-period value (CUPED); 0 for none.
     pub rho: f64,
@@ -312,19 +334,30 @@ impl Design {
 /// Why a design cannot be sized.
 #[derive(Debug, Clone, PartialEq)]
 pub enum SizingError {
+    /// A field outside its range.
     OutOfRange {
+        /// The field, as a portfolio names it.
         field: &'static str,
+        /// The value given.
         value: f64,
+        /// The range, in words.
         expected: &'static str,
     },
+    /// The effect moves a rate outside (0, 1).
     TreatmentRateOutside {
+        /// The control's rate.
         baseline: f64,
+        /// The treatment's rate the effect gives.
         treatment: f64,
     },
+    /// A method for rates on a mean, or for means on a rate.
     MethodMismatch {
+        /// The method asked for.
         method: Method,
+        /// `rate` or `mean`.
         metric: &'static str,
     },
+    /// A relative effect of a zero mean.
     RelativeOfZero,
     /// An inverse found no answer: e.g. no effect inside (0,1) reaches the power.
     NoSolution(String),
@@ -378,6 +411,7 @@ pub struct SampleSize {
     pub control: u64,
     /// Units in each treatment arm, rounded up.
     pub treatment: u64,
+    /// Control plus treatments.
     pub arms: u32,
     /// Units over all arms: control + (arms - 1) x treatment.
     pub total: u64,
@@ -1139,46 +1173,31 @@ mod tests {
 
     #[test]
     fn invalid_inputs_are_errors_not_panics() {
+        let changes: [fn(&mut Design); 8] = [
+            |d| d.alpha = 0.0,
+            |d| d.alpha = 0.6,
+            |d| d.power = 0.04,
+            |d| d.power = 1.0,
+            |d| d.rho = 1.0,
+            |d| d.arms = 1,
+            |d| d.ratio = 0.0,
+            |d| d.method = Method::T,
+        ];
+        let changed = changes.into_iter().map(|change| {
+            let mut d = rate(0.1, 0.1);
+            change(&mut d);
+            d
+        });
         let bad = [
             rate(0.0, 0.1),
             rate(1.0, 0.1),
             rate(0.95, 0.1),
             rate(0.1, 0.0),
-            Design {
-                alpha: 0.0,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                alpha: 0.6,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                power: 0.04,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                power: 1.0,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                rho: 1.0,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                arms: 1,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                ratio: 0.0,
-                ..rate(0.1, 0.1)
-            },
-            Design {
-                method: Method::T,
-                ..rate(0.1, 0.1)
-            },
             rate(f64::NAN, 0.1),
             rate(0.1, f64::INFINITY),
-        ];
+        ]
+        .into_iter()
+        .chain(changed);
         for d in bad {
             assert!(sample_size(&d).is_err(), "{d:?} should be rejected");
         }

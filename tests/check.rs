@@ -2,16 +2,9 @@
 //! invalid portfolio whose error must name its line and key and exit 2;
 //! the shipped portfolios must pass with exit 0.
 
+use crate::util::{cmd, sluice};
 use std::path::Path;
-use std::process::{Command, Output};
-
-fn sluice(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sluice"))
-        .args(args)
-        .current_dir(env!("CARGO_MANIFEST_DIR"))
-        .output()
-        .expect("the sluice binary runs")
-}
+use std::process::Output;
 
 fn text(bytes: &[u8]) -> String {
     String::from_utf8(bytes.to_vec()).expect("utf-8 output")
@@ -330,9 +323,8 @@ fn all_problems_are_reported_in_one_run() {
         "name: many\nwindow: {start: 2027-01-04, end: 2027-04-04}\npools:\n  - {id: home, daily: 1000, max_concurrent: 0}\nexperiments:\n  - {id: a, pool: nowhere, baseline: 2, mde: 0.1, priority: -1}\n  - {id: b, pool: home, baseline: 0.1, mde: 0.1, not_with: [c]}\n",
     )
     .unwrap();
-    let out = sluice(&["check", file.to_str().unwrap()]);
+    let out = cmd(&["check", file.to_str().unwrap()]).assert_exit_code(2);
     let stderr = text(&out.stderr);
-    assert_eq!(out.status.code(), Some(2));
     for part in [
         "`max_concurrent` is 0",
         "pool `nowhere` is not defined",
@@ -352,8 +344,7 @@ fn all_problems_are_reported_in_one_run() {
 
 #[test]
 fn a_missing_file_is_an_error_not_a_panic() {
-    let out = sluice(&["check", "tests/fixtures/no-such-file.yaml"]);
-    assert_eq!(out.status.code(), Some(2));
+    let out = cmd(&["check", "tests/fixtures/no-such-file.yaml"]).assert_exit_code(2);
     assert!(text(&out.stderr).contains("cannot read the file"));
 }
 

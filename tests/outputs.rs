@@ -9,34 +9,21 @@
 //!
 //! The library-level snapshots of each format live in tests/render.rs.
 
+use crate::util::{cmd, demo, repo, sluice};
 use chrono::{Duration, NaiveDate};
 use sluice::plan::{Plan, PlannedExperiment, Status};
 use std::collections::BTreeSet;
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Output;
 use unicode_width::UnicodeWidthStr;
-
-fn repo(rel: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
-}
-
-fn demo() -> String {
-    repo("portfolios/demo.yaml").display().to_string()
-}
 
 /// Runs the binary with `env` set and `COLUMNS` and `NO_COLOR` removed
 /// unless `env` names them, so the caller's shell does not leak in.
 fn sluice_env(args: &[&str], env: &[(&str, &str)]) -> Output {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_sluice"));
-    cmd.args(args).env_remove("COLUMNS").env_remove("NO_COLOR");
+    let mut c = cmd(args);
     for (k, v) in env {
-        cmd.env(k, v);
+        c.env(k, v);
     }
-    cmd.output().expect("the binary runs")
-}
-
-fn sluice(args: &[&str]) -> Output {
-    sluice_env(args, &[])
+    c.output()
 }
 
 /// Runs and insists on success; returns stdout.

@@ -3,25 +3,8 @@
 //! with `--no-timing`, the independent verifier on the JSON it prints, and
 //! clear errors on bad input.
 
+use crate::util::{cmd, demo, repo, sluice};
 use serde_json::Value;
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
-
-fn repo(rel: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
-}
-
-fn sluice(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sluice"))
-        .args(args)
-        .env_remove("COLUMNS")
-        .output()
-        .expect("the binary runs")
-}
-
-fn demo() -> String {
-    repo("portfolios/demo.yaml").display().to_string()
-}
 
 fn json_plan() -> (Vec<u8>, Value) {
     let out = sluice(&["plan", &demo(), "--format", "json", "--no-timing"]);
@@ -171,18 +154,15 @@ fn the_quick_start_plans_too() {
 
 #[test]
 fn bad_input_gets_a_clear_error_and_exit_code_2() {
-    let out = sluice(&["plan", "no/such/portfolio.yaml"]);
-    assert_eq!(out.status.code(), Some(2));
+    let out = cmd(&["plan", "no/such/portfolio.yaml"]).assert_exit_code(2);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("no/such/portfolio.yaml"), "{err}");
 
-    let out = sluice(&["plan", &demo(), "--backend", "simplex-9000"]);
-    assert_eq!(out.status.code(), Some(2));
+    let out = cmd(&["plan", &demo(), "--backend", "simplex-9000"]).assert_exit_code(2);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("backend `simplex-9000`"), "{err}");
     assert!(err.contains("microlp"), "{err}");
 
-    let out = sluice(&["plan", &demo(), "--time-limit", "0"]);
-    assert_eq!(out.status.code(), Some(2));
+    let out = cmd(&["plan", &demo(), "--time-limit", "0"]).assert_exit_code(2);
     assert!(String::from_utf8_lossy(&out.stderr).contains("`--time-limit`"));
 }

@@ -5,37 +5,23 @@
 //! and the edge cases: today outside the window, every test finished, a
 //! pool without traffic, a test already past its need, bad progress files.
 
+use crate::util::{cmd, demo, repo, sluice};
 use chrono::NaiveDate;
 use serde_json::Value;
 use sluice::replan::{self, load_progress, ScaleArg};
 use sluice::schedule::{self, PlanRequest};
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Output;
 use std::sync::OnceLock;
 
 /// Day 30 of the demo's window (which starts on 2027-01-04).
 const DAY30: &str = "2027-02-03";
 
-fn repo(rel: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
-}
-
-fn demo() -> String {
-    repo("portfolios/demo.yaml").display().to_string()
-}
-
 fn scratch(name: &str) -> PathBuf {
     let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("replan");
     std::fs::create_dir_all(&dir).unwrap();
     dir.join(name)
-}
-
-fn sluice(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sluice"))
-        .args(args)
-        .output()
-        .expect("the binary runs")
 }
 
 fn ok(out: &Output) -> String {
@@ -348,15 +334,15 @@ fn today_before_the_window_plans_from_its_start() {
 
 #[test]
 fn today_after_the_window_is_a_clear_error() {
-    let out = sluice(&[
+    let out = cmd(&[
         "replan",
         &demo(),
         "--progress",
         day30_progress(),
         "--today",
         "2027-04-05",
-    ]);
-    assert_eq!(out.status.code(), Some(2));
+    ])
+    .assert_exit_code(2);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
         err.contains("`--today` 2027-04-05 is after the window's end 2027-04-04"),
@@ -501,8 +487,8 @@ fn bad_progress_files_name_the_file_line_key_and_a_hint() {
         "progress-bad.yaml",
         "experiments:\n  - id: pdp-bundle\n    state: finished\n  - id: search-ranking-v2\n    state: running\n    started: 2027-02-10\n    share: 1\n    units: 10\n",
     );
-    let out = sluice(&["replan", &demo(), "--progress", &progress, "--today", DAY30]);
-    assert_eq!(out.status.code(), Some(2));
+    let out =
+        cmd(&["replan", &demo(), "--progress", &progress, "--today", DAY30]).assert_exit_code(2);
     assert!(out.stdout.is_empty());
     let err = String::from_utf8_lossy(&out.stderr);
     for want in [

@@ -5,15 +5,8 @@
 //! flags, and byte-for-byte determinism. The wider comparison with scipy and
 //! statsmodels is tests/reference/run.sh.
 
+use crate::util::{cmd, sluice};
 use serde_json::Value;
-use std::process::{Command, Output};
-
-fn sluice(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sluice"))
-        .args(args)
-        .output()
-        .expect("the sluice binary runs")
-}
 
 fn json(args: &[&str]) -> Value {
     let mut all = vec!["size"];
@@ -224,10 +217,10 @@ fn bad_flags_exit_2_naming_the_flag() {
 
 #[test]
 fn a_rate_method_on_a_mean_is_refused() {
-    let out = sluice(&[
+    let out = cmd(&[
         "size", "--mean", "10", "--sd", "2", "--mde", "0.1", "--method", "pooled",
-    ]);
-    assert_eq!(out.status.code(), Some(2));
+    ])
+    .assert_exit_code(2);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("`pooled`") && err.contains("t, z"), "{err}");
 }

@@ -8,22 +8,15 @@
 //! number that the cross-check did not confirm is left out rather than
 //! loosened to fit.
 
+use crate::util::cmd;
 use serde_json::Value;
-use std::process::Command;
 
 fn size(args: &[&str]) -> Value {
-    let out = Command::new(env!("CARGO_BIN_EXE_sluice"))
-        .arg("size")
+    let out = cmd(&["size"])
         .args(args)
         .args(["--format", "json"])
-        .output()
-        .expect("the sluice binary runs");
-    assert!(
-        out.status.success(),
-        "sluice size {args:?} failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).expect("stdout is one JSON object")
+        .stdout();
+    serde_json::from_str(&out).expect("stdout is one JSON object")
 }
 
 fn control(v: &Value) -> u64 {

@@ -3,10 +3,11 @@
 //! against demand. The report comes from [`crate::check`]; this file only
 //! formats it.
 
-use super::{Failure, TextOrJson};
+use super::{Error, TextOrJson};
 use crate::check::{self, CheckReport};
 use crate::portfolio;
-pub use crate::words::thousands as units;
+use crate::words::thousands as units;
+use crate::words::Count;
 use clap::Args;
 use comfy_table::{presets, CellAlignment, Table};
 use std::path::PathBuf;
@@ -26,7 +27,7 @@ pub struct CheckArgs {
 }
 
 /// `sluice check`.
-pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Failure> {
+pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Error> {
     let p = super::plan::load_portfolio(&a.file)?;
     let report = check::check(&p);
     match a.format {
@@ -53,13 +54,13 @@ fn right(t: &mut Table, columns: &[usize]) {
 pub fn text(r: &CheckReport) -> String {
     let mut out = String::new();
     out.push_str(&format!(
-        "{}: window {} to {} ({} days), {} experiment{}\n\n",
+        "{}: window {} to {} ({} days), {} {}\n\n",
         r.name,
         r.window_start,
         r.window_end,
         r.window_days,
         r.experiments.len(),
-        if r.experiments.len() == 1 { "" } else { "s" }
+        Count("experiment", r.experiments.len())
     ));
     let mut t = table();
     t.set_header(vec![

@@ -1,25 +1,19 @@
 //! The command line: argument definitions (clap) and one function per
 //! command. Commands turn library results into bytes for stdout; they hold
-//! no statistics or scheduling logic of their own. One module per command.
+//! no statistics or scheduling logic of their own. One module per command;
+//! [`error`] words every failure and picks its exit code.
 
 mod check;
+mod error;
 mod plan;
 mod replan;
 mod size;
 
-pub use check::CheckArgs;
-pub use plan::PlanArgs;
-pub use replan::ReplanArgs;
-pub use size::SizeArgs;
+pub(crate) use error::Error;
 
-use clap::{Parser, Subcommand, ValueEnum};
+use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
 use std::io::Write;
 use std::process::ExitCode;
-
-/// Exit code for input the user can fix (bad flags, invalid files).
-pub const EXIT_INVALID: u8 = 2;
-/// Exit code for any other failure.
-pub const EXIT_FAILURE: u8 = 1;
 
 #[derive(Parser, Debug)]
 #[command(
@@ -48,6 +42,19 @@ pub enum Command {
     Plan(plan::PlanArgs),
     /// Plan again mid-quarter around the running tests, and show what moved
     Replan(replan::ReplanArgs),
+    /// Print a shell completion script, e.g. `sluice completions bash`
+    #[command(after_help = "Examples:\n  \
+        sluice completions bash > ~/.local/share/bash-completion/completions/sluice\n  \
+        sluice completions zsh > ~/.zfunc/_sluice\n  \
+        sluice completions fish > ~/.config/fish/completions/sluice.fish")]
+    Completions {
+        /// The shell to complete for
+        #[arg(value_enum)]
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff), e.g. `sluice man > sluice.1`
+    #[command(hide = true)]
+    Man,
 }
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -56,28 +63,9 @@ pub enum TextOrJson {
     Json,
 }
 
-/// A failure that ends a command, with the exit code it deserves.
-#[derive(Debug)]
-pub struct Failure {
-    pub code: u8,
-    pub message: String,
-}
-
-impl Failure {
-    pub fn invalid(message: impl Into<String>) -> Failure {
-        Failure {
-            code: EXIT_INVALID,
-            message: message.into(),
-        }
-    }
-}
-
 /// A value as pretty JSON with a closing newline, for `--format json`.
-pub fn json_bytes(value: &impl serde::Serialize) -> Result<Vec<u8>, Failure> {
-    let mut s = serde_json::to_string_pretty(value).map_err(|e| Failure {
-        code: EXIT_FAILURE,
-        message: format!("cannot write JSON: {e}"),
-    })?;
+pub fn json_bytes(value: &impl serde::Serialize) -> Result<Vec<u8>, Error> {
+    let mut s = serde_json::to_string_pretty(value).map_err(|error| Error::Json { error })?;
     s.push('\n');
     Ok(s.into_bytes())
 }
@@ -87,46 +75,59 @@ pub fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(e) => {
-            let code = if e.use_stderr() { EXIT_INVALID } else { 0 };
+            let code = if e.use_stderr() {
+                error::EXIT_INVALID
+            } else {
+                0
+            };
             let _ = e.print();
             return ExitCode::from(code);
         }
     };
-    match run(cli) {
-        Ok(bytes) => write_stdout(&bytes),
-        // Messages that are already rendered diagnostics (one or more
-        // `error: ...` blocks, as from a portfolio that fails to load)
-        // print as they are. A closed stderr is not worth a panic.
-        Err(f) if f.message.starts_with("error: ") => {
-            let _ = write!(std::io::stderr(), "{}", f.message);
-            ExitCode::from(f.code)
-        }
-        Err(f) => {
-            let _ = writeln!(std::io::stderr(), "error: {}", f.message);
-            ExitCode::from(f.code)
+    match run(cli).and_then(|bytes| write_stdout(&bytes)) {
+        Ok(()) => ExitCode::SUCCESS,
+        // A closed stderr is not worth a panic.
+        Err(e) => {
+            let _ = writeln!(std::io::stderr(), "{e}");
+            ExitCode::from(e.exit_code())
         }
     }
 }
 
 /// Writes the output; a closed pipe (e.g. `| head`) is not an error.
-fn write_stdout(bytes: &[u8]) -> ExitCode {
+fn write_stdout(bytes: &[u8]) -> Result<(), Error> {
     let mut out = std::io::stdout().lock();
     match out.write_all(bytes).and_then(|_| out.flush()) {
-        Ok(()) => ExitCode::SUCCESS,
-        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => ExitCode::SUCCESS,
-        Err(e) => {
-            eprintln!("error: cannot write the output: {e}");
-            ExitCode::from(EXIT_FAILURE)
-        }
+        Ok(()) => Ok(()),
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        Err(io_error) => Err(Error::Stdout { io_error }),
     }
 }
 
 /// Runs a parsed command and returns the bytes for stdout.
-pub fn run(cli: Cli) -> Result<Vec<u8>, Failure> {
+pub fn run(cli: Cli) -> Result<Vec<u8>, Error> {
     match cli.command {
         Command::Size(args) => size::run(&args),
         Command::Check(args) => check::run(&args),
         Command::Plan(args) => plan::run(&args),
         Command::Replan(args) => replan::run(&args),
+        Command::Completions { shell } => Ok(completions(shell)),
+        Command::Man => man(),
     }
+}
+
+/// The completion script for `shell`, from the same definitions as `--help`.
+fn completions(shell: clap_complete::Shell) -> Vec<u8> {
+    let mut bytes = Vec::new();
+    clap_complete::generate(shell, &mut Cli::command(), "sluice", &mut bytes);
+    bytes
+}
+
+/// The manual page in roff, from the same definitions as `--help`.
+fn man() -> Result<Vec<u8>, Error> {
+    let mut bytes = Vec::new();
+    clap_mangen::Man::new(Cli::command())
+        .render(&mut bytes)
+        .map_err(|io_error| Error::Stdout { io_error })?;
+    Ok(bytes)
 }

@@ -4,7 +4,7 @@
 //! [`crate::schedule`], formatting is [`crate::render`]; this file parses
 //! flags and wires them together. `replan` shares its output flags.
 
-use super::Failure;
+use super::Error;
 use crate::output;
 use crate::plan::Plan;
 use crate::portfolio;
@@ -41,25 +41,14 @@ pub struct SolverArgs {
 
 impl SolverArgs {
     /// The request these flags describe (no re-plan facts yet).
-    pub fn request(&self) -> Result<PlanRequest, Failure> {
+    pub fn request(&self) -> Result<PlanRequest, Error> {
         if !(self.time_limit.is_finite() && self.time_limit > 0.0) {
-            return Err(Failure::invalid(format!(
-                "`--time-limit` must be a positive number of seconds, not {}",
-                self.time_limit
-            )));
+            return Err(Error::TimeLimit {
+                seconds: self.time_limit,
+            });
         }
-        let backend = Backend::from_name(&self.backend).ok_or_else(|| {
-            let names: Vec<&str> = Backend::available().iter().map(|b| b.name()).collect();
-            Failure::invalid(format!(
-                "backend `{}` is not in this build; available: {}{}",
-                self.backend,
-                names.join(", "),
-                if self.backend == "highs" {
-                    " (build with `--features highs` for HiGHS)"
-                } else {
-                    ""
-                }
-            ))
+        let backend = Backend::from_name(&self.backend).ok_or_else(|| Error::UnknownBackend {
+            name: self.backend.clone(),
         })?;
         Ok(PlanRequest {
             time_limit: self.time_limit,
@@ -70,17 +59,14 @@ impl SolverArgs {
 }
 
 /// Loads a portfolio, turning its problems into an exit-2 failure.
-pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Failure> {
-    portfolio::load(path).map_err(|e| Failure {
-        code: super::EXIT_INVALID,
-        message: e.to_string(),
-    })
+pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Error> {
+    Ok(portfolio::load(path)?)
 }
 
 /// Renders `plan` and sends it where `out` says: the bytes for stdout, or
 /// an atomic write to `--out` (then a one-line note for stdout). A
 /// re-plan's changes are part of the plan, so every renderer draws them.
-pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Failure> {
+pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Error> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
     }
@@ -89,15 +75,11 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, F
     } else {
         RenderOptions::for_stdout()
     };
-    let bytes = render::render(&plan, out.format, &opts)
-        .map_err(|e| Failure::invalid(format!("cannot render the plan: {e}")))?;
+    let bytes = render::render(&plan, out.format, &opts)?;
     match &out.out {
         None => Ok(bytes),
         Some(path) => {
-            output::write_output(path, &bytes, input).map_err(|e| Failure {
-                code: super::EXIT_FAILURE,
-                message: e.to_string(),
-            })?;
+            output::write_output(path, &bytes, input)?;
             eprintln!(
                 "wrote the plan ({}) to {}",
                 out.format.name(),
@@ -129,15 +111,16 @@ pub struct PlanArgs {
 }
 
 /// `sluice plan`.
-pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Failure> {
+pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Error> {
     let mut request = a.solver.request()?;
     let p = load_portfolio(&a.file)?;
     if let Some(today) = a.today {
         if !p.window.contains(today) {
-            return Err(Failure::invalid(format!(
-                "`--today` {today} lies outside the window {} to {}",
-                p.window.start, p.window.end
-            )));
+            return Err(Error::TodayOutsideWindow {
+                today,
+                start: p.window.start,
+                end: p.window.end,
+            });
         }
         request.today = Some(today);
     }

@@ -4,7 +4,7 @@
 //! [`crate::replan`]; this file parses flags and wires them together.
 
 use super::plan::{load_portfolio, OutputArgs, SolverArgs};
-use super::Failure;
+use super::Error;
 use crate::plan::Plan;
 use crate::replan::{self, progress, ScaleArg};
 use chrono::NaiveDate;
@@ -42,47 +42,36 @@ pub struct ReplanArgs {
     pub solver: SolverArgs,
 }
 
-fn read_previous(path: &PathBuf) -> Result<Plan, Failure> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        Failure::invalid(format!(
-            "cannot read the previous plan `{}`: {e}",
-            path.display()
-        ))
+fn read_previous(path: &PathBuf) -> Result<Plan, Error> {
+    let text = std::fs::read_to_string(path).map_err(|io_error| Error::PreviousRead {
+        path: path.clone(),
+        io_error,
     })?;
-    serde_json::from_str(&text).map_err(|e| {
-        Failure::invalid(format!(
-            "`{}` is not a plan in JSON ({e}); write one with `sluice plan FILE --format json --out {}`",
-            path.display(),
-            path.display()
-        ))
+    serde_json::from_str(&text).map_err(|json_error| Error::PreviousParse {
+        path: path.clone(),
+        json_error,
     })
 }
 
 /// `sluice replan`.
-pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Failure> {
+pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     let base = a.solver.request()?;
     let portfolio = load_portfolio(&a.file)?;
     let w = portfolio.window;
     if a.today > w.end {
-        return Err(Failure::invalid(format!(
-            "`--today` {} is after the window's end {}; there is nothing left to plan (give the portfolio a new window to plan the next quarter)",
-            a.today, w.end
-        )));
+        return Err(Error::TodayAfterWindow {
+            today: a.today,
+            end: w.end,
+        });
     }
     let today = a.today.max(w.start);
-    let portfolio = replan::with_scales(&portfolio, &a.scale, today)
-        .map_err(|e| Failure::invalid(e.to_string()))?;
-    let progress =
-        progress::load_progress(&a.progress, &portfolio, a.today).map_err(|e| Failure {
-            code: super::EXIT_INVALID,
-            message: e.to_string(),
-        })?;
+    let portfolio = replan::with_scales(&portfolio, &a.scale, today)?;
+    let progress = progress::load_progress(&a.progress, &portfolio, a.today)?;
     for w in &progress.warnings {
-        eprint!("{}", w.to_string().replacen("error:", "warning:", 1));
+        eprint!("{w}");
     }
     let previous = a.previous.as_ref().map(read_previous).transpose()?;
-    let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)
-        .map_err(|e| Failure::invalid(e.to_string()))?;
+    let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)?;
     if let Some(prev) = &previous {
         plan.changes = Some(crate::diff::diff(prev, &plan));
     }

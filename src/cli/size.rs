@@ -1,6 +1,6 @@
 //! `sluice size`: the size, power and duration of one test.
 
-use super::{Failure, TextOrJson};
+use super::{Error, TextOrJson};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
 use crate::words::thousands as fmt_units;
 use clap::{Args, ValueEnum};
@@ -187,24 +187,16 @@ pub struct SizeReport {
     pub days: Option<u64>,
 }
 
-fn design_from_args(a: &SizeArgs) -> Result<Design, Failure> {
+fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
     let metric = match (a.baseline, a.mean, a.sd) {
         (Some(p), None, None) => Metric::Rate { baseline: p },
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
-        _ => {
-            return Err(Failure::invalid(
-                "give the metric: `--baseline P` for a rate, or `--mean M --sd S` for a mean",
-            ))
-        }
+        _ => return Err(Error::SizeMetric),
     };
     let effect = match (a.mde, a.mde_abs) {
         (Some(x), None) => Effect::Relative(x),
         (None, Some(x)) => Effect::Absolute(x),
-        _ => {
-            return Err(Failure::invalid(
-                "give the effect: `--mde X` for a relative lift (0.05 = 5%), or `--mde-abs X` for an absolute difference",
-            ))
-        }
+        _ => return Err(Error::SizeEffect),
     };
     let method = a
         .method
@@ -222,18 +214,19 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Failure> {
         correction: a.correction.into(),
         rho: a.rho,
     };
-    design
-        .validate()
-        .map_err(|e| Failure::invalid(flag_message(&e, &design)))?;
+    design.validate().map_err(|error| Error::Design {
+        error,
+        effect: design.effect,
+    })?;
     Ok(design)
 }
 
 /// The library's message for a design built from flags: an effect that
 /// moves the rate outside (0, 1) is put down to the flag that set it, and
 /// every field is named as its flag.
-fn flag_message(e: &SizingError, d: &Design) -> String {
+pub(super) fn flag_message(e: &SizingError, effect: Effect) -> String {
     let text = e.to_string();
-    let text = match (e, d.effect) {
+    let text = match (e, effect) {
         (SizingError::TreatmentRateOutside { .. }, Effect::Relative(_)) => format!("`mde`: {text}"),
         (SizingError::TreatmentRateOutside { .. }, Effect::Absolute(_)) => {
             format!("`mde_abs`: {text}")
@@ -245,7 +238,7 @@ fn flag_message(e: &SizingError, d: &Design) -> String {
 
 /// Library messages name fields as in a portfolio (`mde_abs`); on the
 /// command line they are flags (`--mde-abs`).
-fn flagify(message: String) -> String {
+pub(super) fn flagify(message: String) -> String {
     let mut out = message;
     for field in [
         "alpha", "power", "arms", "ratio", "rho", "mde_abs", "mde", "baseline", "mean", "sd",
@@ -260,16 +253,18 @@ fn flagify(message: String) -> String {
 }
 
 /// `sluice size`.
-pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Failure> {
+pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
     let design = design_from_args(a)?;
-    let n =
-        sizing::sample_size(&design).map_err(|e| Failure::invalid(flag_message(&e, &design)))?;
+    let n = sizing::sample_size(&design).map_err(|error| Error::Design {
+        error,
+        effect: design.effect,
+    })?;
     let achieved = sizing::achieved_power(&design, n.control as f64)
-        .map_err(|e| Failure::invalid(e.to_string()))?;
+        .map_err(|error| Error::Power { error })?;
     let days = match a.daily {
         Some(daily) => Some(
             sizing::days_needed(n.total, daily, a.share, a.min_days, !a.no_whole_weeks)
-                .map_err(|e| Failure::invalid(flagify(e.to_string())))?,
+                .map_err(|error| Error::Duration { error })?,
         ),
         None => None,
     };
@@ -388,7 +383,5 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
 }
 
 fn trim_float(x: f64) -> String {
-    let s = format!("{x:.6}");
-    let s = s.trim_end_matches('0').trim_end_matches('.');
-    s.to_string()
+    crate::words::trimmed(x, 6)
 }

@@ -73,7 +73,9 @@ impl<'a> Checker<'a> {
 
     /// A warning about the value at `key`.
     pub fn warn(&mut self, key: &str, message: impl Into<String>, hint: impl Into<String>) {
-        let d = self.diagnostic(key, message.into(), Some(hint.into()), false);
+        let d = self
+            .diagnostic(key, message.into(), Some(hint.into()), false)
+            .warning();
         self.warnings.push(d);
     }
 

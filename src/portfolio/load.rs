@@ -23,6 +23,7 @@ use std::path::Path;
 /// Why a portfolio file could not be loaded: every problem found.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LoadError {
+    /// In file order; never empty.
     pub diagnostics: Vec<Diagnostic>,
 }
 

@@ -13,7 +13,7 @@ mod checker;
 mod load;
 pub mod model;
 pub mod position;
-pub mod raw;
+pub(crate) mod raw;
 mod validate;
 
 pub(crate) use checker::Checker;

@@ -14,7 +14,9 @@ use serde::{Deserialize, Serialize};
 /// The planning window, both ends inclusive; `start <= end`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub struct Window {
+    /// First day.
     pub start: NaiveDate,
+    /// Last day.
     pub end: NaiveDate,
 }
 
@@ -44,13 +46,17 @@ impl Window {
 /// Portfolio-wide defaults each experiment may override.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Defaults {
+    /// Type I error rate (default 0.05).
     pub alpha: f64,
+    /// 1 - beta (default 0.8).
     pub power: f64,
+    /// One- or two-sided (default two).
     pub sides: Sides,
     /// Method for rate metrics (one of pooled, unpooled, corrected, arcsine).
     pub rate_method: Method,
     /// Method for mean metrics (t or z).
     pub mean_method: Method,
+    /// Correction for several treatment arms (default Bonferroni).
     pub correction: Correction,
     /// Shortest run in days (default 14).
     pub min_days: u32,
@@ -88,6 +94,7 @@ pub enum StartGrid {
 /// Settings of the optimiser.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Planning {
+    /// Where tests may start.
     pub grid: StartGrid,
     /// The weekday tests start on with the weekly grid (default Monday).
     #[serde(serialize_with = "serialize_weekday")]
@@ -141,10 +148,13 @@ impl Sharing {
 /// A dated change to a pool's forecast.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Adjustment {
-    /// First and last day it applies to, inclusive.
+    /// First day it applies to.
     pub from: NaiveDate,
+    /// Last day it applies to, inclusive.
     pub to: NaiveDate,
+    /// What it does to those days.
     pub change: Change,
+    /// Why, in the file's words.
     pub note: String,
 }
 
@@ -175,6 +185,7 @@ pub struct Forecast {
 /// A lasting change of a pool's traffic from a date on (a what-if).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Scale {
+    /// The first day it applies to.
     pub from: NaiveDate,
     /// >= 0; 0.7 is a 30% drop.
     pub factor: f64,
@@ -183,9 +194,13 @@ pub struct Scale {
 /// A page, surface or audience whose traffic tests share.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Pool {
+    /// The id experiments name it by.
     pub id: String,
+    /// A name for people.
     pub label: String,
+    /// Units per day.
     pub forecast: Forecast,
+    /// How its tests share its units.
     pub sharing: Sharing,
     /// Most tests running at once; >= 1.
     pub max_concurrent: u32,
@@ -204,8 +219,11 @@ pub struct Prerequisite {
 /// One queued A/B test, sized.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Experiment {
+    /// The id other experiments and the progress file name it by.
     pub id: String,
+    /// A name for people.
     pub title: String,
+    /// Who owns it.
     pub owner: String,
     /// Index into `Portfolio::pools`.
     pub pool: usize,
@@ -221,8 +239,11 @@ pub struct Experiment {
     pub deadline: Option<NaiveDate>,
     /// Largest share of the pool it may take, in (0, 1].
     pub max_share: Share,
+    /// Shortest run in days.
     pub min_days: u32,
+    /// Whether runs are rounded up to whole weeks.
     pub whole_weeks: bool,
+    /// Experiments it must start after.
     pub after: Vec<Prerequisite>,
     /// Indices of experiments it must never run alongside; symmetric
     /// (if a lists b, b lists a), sorted and without duplicates.
@@ -242,15 +263,20 @@ pub enum BlackoutKind {
 /// A span of the calendar with a restriction.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Blackout {
+    /// First day, inclusive.
     pub from: NaiveDate,
+    /// Last day, inclusive.
     pub to: NaiveDate,
+    /// What it forbids.
     pub kind: BlackoutKind,
+    /// Why, in the file's words.
     pub note: String,
     /// Pool indices it applies to; empty means every pool.
     pub pools: Vec<usize>,
 }
 
 impl Blackout {
+    /// Whether it restricts `pool` on `date`.
     pub fn covers(&self, date: NaiveDate, pool: usize) -> bool {
         self.from <= date
             && date <= self.to
@@ -261,14 +287,21 @@ impl Blackout {
 /// The whole validated queue.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Portfolio {
+    /// A name for the plan's title.
     pub name: String,
+    /// The planning window.
     pub window: Window,
+    /// Defaults each experiment may override.
     pub defaults: Defaults,
     /// Shares the planner may give a test, ascending, each in (0, 1].
     pub share_levels: ShareLevels,
+    /// Settings of the optimiser.
     pub planning: Planning,
+    /// In file order.
     pub pools: Vec<Pool>,
+    /// In file order.
     pub experiments: Vec<Experiment>,
+    /// In file order.
     pub blackouts: Vec<Blackout>,
     /// Every experiment index once, each `after` prerequisite before its
     /// dependants, ties in file order: [`after_order`] of `experiments`,
@@ -278,10 +311,12 @@ pub struct Portfolio {
 }
 
 impl Portfolio {
+    /// The index of the pool called `id`.
     pub fn pool_index(&self, id: &str) -> Option<usize> {
         self.pools.iter().position(|p| p.id == id)
     }
 
+    /// The index of the experiment called `id`.
     pub fn experiment_index(&self, id: &str) -> Option<usize> {
         self.experiments.iter().position(|e| e.id == id)
     }

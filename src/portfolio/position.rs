@@ -17,8 +17,11 @@ use yaml_rust2::scanner::{Marker, TScalarStyle};
 /// how many characters the token spans on its line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Span {
+    /// 1-based line.
     pub line: usize,
+    /// 1-based column, in characters.
     pub column: usize,
+    /// Characters the token spans on its line (at least 1).
     pub width: usize,
 }
 
@@ -176,8 +179,11 @@ struct Builder {
 /// What [`PositionIndex::scan`] found.
 #[derive(Debug)]
 pub enum Scan {
+    /// Every key and value, with its position.
     Indexed(PositionIndex),
+    /// Nested deeper than [`MAX_DEPTH`]: where the limit was passed.
     TooDeep(Span),
+    /// Not YAML the scanner can read; serde's error says where.
     Unparsable,
 }
 

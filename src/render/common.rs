@@ -5,7 +5,7 @@
 //! read from the plan as they are.
 
 use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Sharing, SolverStatus, Status};
-pub use crate::words::{percent, thousands, units};
+pub(crate) use crate::words::{percent, thousands, units};
 use chrono::{Duration, NaiveDate};
 
 /// How to name an experiment with no run in this plan: "does not fit", or
@@ -28,11 +28,7 @@ pub fn closed_count(plan: &Plan) -> usize {
 
 /// "do not" or, for one test, "does not".
 pub fn do_not(n: usize) -> &'static str {
-    if n == 1 {
-        "does not"
-    } else {
-        "do not"
-    }
+    crate::words::agree("does not", "do not", n)
 }
 
 /// ", 3 finished or cancelled" when any did, else "".

@@ -23,7 +23,9 @@ use std::path::Path;
 pub enum State {
     /// Started on `started` at `share` and still collecting.
     Running {
+        /// Its first day.
         started: NaiveDate,
+        /// Its share of the pool.
         share: Share,
         /// Units collected so far over all arms.
         units: u64,
@@ -32,11 +34,16 @@ pub enum State {
     },
     /// Done: it holds no traffic any more.
     Finished {
+        /// Its first day, when the file gives it.
         started: Option<NaiveDate>,
+        /// Its last day of data, when the file gives it.
         ended: Option<NaiveDate>,
     },
     /// Stopped for good: it holds no traffic any more.
-    Cancelled { note: String },
+    Cancelled {
+        /// Why, in the file's words.
+        note: String,
+    },
 }
 
 /// One line of the progress file, resolved.
@@ -44,6 +51,7 @@ pub enum State {
 pub struct Entry {
     /// Index into `Portfolio::experiments`.
     pub experiment: usize,
+    /// Where it stands.
     pub state: State,
 }
 
@@ -53,6 +61,7 @@ pub struct Progress {
     /// The day the counts were read: units up to the end of the day before.
     /// Defaults to the re-plan's `today`.
     pub as_of: NaiveDate,
+    /// In file order, one per experiment named.
     pub entries: Vec<Entry>,
     /// Problems worth a look that do not stop the re-plan.
     pub warnings: Vec<Diagnostic>,

@@ -9,7 +9,9 @@ use chrono::NaiveDate;
 /// `--scale POOL=FACTOR[@FROM]`: a lasting change of a pool's traffic.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ScaleArg {
+    /// The pool's id.
     pub pool: String,
+    /// The multiplier, >= 0; 0.7 is a 30% drop.
     pub factor: f64,
     /// From this day on; the re-plan's today when not given.
     pub from: Option<NaiveDate>,

@@ -17,13 +17,13 @@ mod options;
 mod reasons;
 mod search;
 mod state;
+#[cfg(any(test, feature = "bench"))]
 pub mod synthetic;
 #[cfg(test)]
 mod tests;
 mod verify;
 
 pub use lp::Backend;
-pub use search::SplitMix64;
 pub use verify::verify;
 
 use crate::forecast::units_on;
@@ -43,7 +43,9 @@ use std::time::Instant;
 pub struct FixedRun {
     /// Index into `Portfolio::experiments`.
     pub experiment: usize,
+    /// Its first day.
     pub start: NaiveDate,
+    /// Its share of the pool.
     pub share: Share,
     /// Last day of data, as the caller computed it (it may lie past the window).
     pub end: NaiveDate,
@@ -75,6 +77,7 @@ pub struct PlanRequest {
     /// Wall-clock safety net in seconds; the search is otherwise bounded
     /// by iteration counts, so results do not depend on timing.
     pub time_limit: f64,
+    /// The LP backend.
     pub backend: Backend,
     /// Multiplier of the search's iteration budget (1 = default).
     pub effort: u32,

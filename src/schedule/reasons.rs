@@ -9,12 +9,9 @@ use crate::share::Share;
 pub(crate) use crate::words::thousands;
 use chrono::{Datelike, Duration, NaiveDate};
 
+/// A priority as people read it: at most three decimals, no trailing zeros.
 fn number(x: f64) -> String {
-    if (x - x.round()).abs() < 1e-9 {
-        format!("{}", x.round() as i64)
-    } else {
-        format!("{x}")
-    }
+    crate::words::trimmed(x, 3)
 }
 
 /// The reason of every unscheduled test; `None` for the scheduled.

@@ -20,9 +20,13 @@ use chrono::{Duration, NaiveDate};
 /// The size and seed of a synthetic portfolio.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Spec {
+    /// Experiments in the queue.
     pub tests: usize,
+    /// Traffic pools.
     pub pools: usize,
+    /// Weeks in the window.
     pub weeks: usize,
+    /// The random seed: the same spec gives the same portfolio.
     pub seed: u64,
 }
 

@@ -1,0 +1,14 @@
+//! The integration tests, in one binary (one link, one run): each module
+//! below is one area, and `util` holds the test command they share.
+
+mod util;
+
+mod check;
+mod commands;
+mod outputs;
+mod plan;
+mod render;
+mod replan;
+mod size_cli;
+mod sizing_properties;
+mod sizing_published;

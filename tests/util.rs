@@ -1,0 +1,89 @@
+//! What the integration tests share: the `sluice` binary as a test command
+//! and the paths of the shipped portfolios.
+//!
+//! Every command runs from the crate root with the caller's `COLUMNS` and
+//! `NO_COLOR` removed (unless the test sets them), so the shell that runs
+//! `cargo test` does not leak into what the binary prints.
+
+use std::ffi::OsStr;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// The `sluice` binary with its arguments, environment and working folder.
+pub struct TestCommand {
+    cmd: Command,
+}
+
+impl TestCommand {
+    /// The binary with no arguments yet.
+    pub fn new() -> TestCommand {
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_sluice"));
+        cmd.current_dir(env!("CARGO_MANIFEST_DIR"))
+            .env_remove("COLUMNS")
+            .env_remove("NO_COLOR");
+        TestCommand { cmd }
+    }
+
+    /// Adds arguments.
+    pub fn args<I, S>(&mut self, args: I) -> &mut TestCommand
+    where
+        I: IntoIterator<Item = S>,
+        S: AsRef<OsStr>,
+    {
+        self.cmd.args(args);
+        self
+    }
+
+    /// Sets an environment variable for the run.
+    pub fn env(&mut self, key: &str, value: &str) -> &mut TestCommand {
+        self.cmd.env(key, value);
+        self
+    }
+
+    /// Runs the binary and returns what it did, whatever its exit code.
+    pub fn output(&mut self) -> Output {
+        self.cmd.output().expect("the sluice binary runs")
+    }
+
+    /// Runs the binary, insists on exit code 0, and returns stdout.
+    pub fn stdout(&mut self) -> String {
+        let out = self.assert_exit_code(0);
+        String::from_utf8(out.stdout).expect("UTF-8 on stdout")
+    }
+
+    /// Runs the binary and insists on exit code `expected`; the panic shows
+    /// the command and its stderr.
+    pub fn assert_exit_code(&mut self, expected: i32) -> Output {
+        let out = self.output();
+        assert_eq!(
+            out.status.code(),
+            Some(expected),
+            "{:?}: exit code\nstderr:\n{}",
+            self.cmd,
+            String::from_utf8_lossy(&out.stderr)
+        );
+        out
+    }
+}
+
+/// A test command with these arguments.
+pub fn cmd(args: &[&str]) -> TestCommand {
+    let mut c = TestCommand::new();
+    c.args(args);
+    c
+}
+
+/// Runs the binary with these arguments, whatever its exit code.
+pub fn sluice(args: &[&str]) -> Output {
+    cmd(args).output()
+}
+
+/// A path relative to the crate root.
+pub fn repo(rel: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
+}
+
+/// The demo portfolio's path.
+pub fn demo() -> String {
+    repo("portfolios/demo.yaml").display().to_string()
+}
