@@ -968,34 +968,19 @@ mod tests {
 
     #[test]
     fn noncentral_t_matches_reference_values() {
-        // scipy.stats.nct.cdf(t, df, nc), computed with scipy 1.17.1.
-        assert_abs_diff_eq!(
-            noncentral_t_cdf(2.0, 10.0, 1.0),
-            0.8076115625303752,
-            epsilon = 1e-9
-        );
-        assert_abs_diff_eq!(
-            noncentral_t_cdf(-1.5, 4.0, 0.5),
-            0.04337356266476112,
-            epsilon = 1e-9
-        );
-        assert_abs_diff_eq!(
-            noncentral_t_cdf(3.0, 30.0, 2.5),
-            0.6709221372818337,
-            epsilon = 1e-9
-        );
-        // Millions of degrees of freedom (scipy 1.17.1, t = its 0.975
-        // quantile): the plain (1 - x)^b and ln Gamma difference lost 1e-8.
-        assert_abs_diff_eq!(
-            noncentral_t_cdf(1.9599642217672055, 1e7, 2.8),
-            0.20044417208466286,
-            epsilon = 2e-9
-        );
-        assert_abs_diff_eq!(
-            noncentral_t_cdf(1.9599663568141072, 1e6, 2.8),
-            0.2004448505306511,
-            epsilon = 1e-10
-        );
+        // (t, df, ncp, scipy.stats.nct.cdf(t, df, ncp) with scipy 1.17.1, tolerance).
+        // The last two: millions of degrees of freedom, t = its 0.975
+        // quantile, where the plain (1 - x)^b and ln Gamma difference lost 1e-8.
+        let cases = [
+            (2.0, 10.0, 1.0, 0.8076115625303752, 1e-9),
+            (-1.5, 4.0, 0.5, 0.04337356266476112, 1e-9),
+            (3.0, 30.0, 2.5, 0.6709221372818337, 1e-9),
+            (1.9599642217672055, 1e7, 2.8, 0.20044417208466286, 2e-9),
+            (1.9599663568141072, 1e6, 2.8, 0.2004448505306511, 1e-10),
+        ];
+        for (t, df, ncp, want, eps) in cases {
+            assert_abs_diff_eq!(noncentral_t_cdf(t, df, ncp), want, epsilon = eps);
+        }
         // Large df approaches the normal: P(T <= 3) with ncp 1 ~ Phi(2).
         assert_abs_diff_eq!(
             noncentral_t_cdf(3.0, 1e6, 1.0),
