@@ -272,7 +272,7 @@ fn solo_fit(
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
     let need = e.need.total as f64;
-    let solo = inst.earliest_solo(i, share, w.offset(first).max(0) as usize);
+    let solo = inst.earliest_solo(i, share, w.offset(first).offset().max(0) as usize);
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
     }
@@ -299,7 +299,7 @@ fn solo_fit(
             (None, true) => format!(" even from its earliest start {first}"),
             (None, false) => String::new(),
         };
-        let i = w.offset(first) as usize;
+        let i = w.offset(first).offset() as usize;
         match series.run_end(i, share.fraction(), need, e.min_days, e.whole_weeks) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",

@@ -31,6 +31,7 @@
 
 pub mod check;
 pub(crate) mod cli;
+pub mod day;
 pub mod diagnostic;
 pub mod diff;
 pub mod forecast;

@@ -2,7 +2,7 @@
 //!
 //! A [`Share`] is held in whole millionths, so sums and comparisons of
 //! shares are exact (no tolerance to pick per file) and one share always
-//! prints the same way: its `Display` is [`crate::words::percent`]. In JSON
+//! prints the same way: its `Display` is the crate's one percentage wording. In JSON
 //! a share is the plain fraction (`0.25`), as the plan's documentation says.
 
 use serde::{Deserialize, Deserializer, Serialize, Serializer};

@@ -6,6 +6,7 @@
 //! field (ids resolved to indices, dates inside the window, numbers in
 //! range, the `after` graph acyclic, every experiment sized).
 
+use crate::day::Day;
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{Correction, Design, Method, SampleSize, Sides};
 use chrono::{NaiveDate, Weekday};
@@ -31,15 +32,15 @@ impl Window {
         self.start <= date && date <= self.end
     }
 
-    /// Index of `date` counted from the window's first day (may be negative
-    /// or past the end for dates outside).
-    pub fn offset(&self, date: NaiveDate) -> i64 {
-        (date - self.start).num_days()
+    /// The day `date` is, counted from the window's first day (negative
+    /// before the window, past its last index after it).
+    pub fn offset(&self, date: NaiveDate) -> Day {
+        Day::new((date - self.start).num_days())
     }
 
     /// The date `offset` days after the window's first day.
-    pub fn date(&self, offset: i64) -> NaiveDate {
-        self.start + chrono::Duration::days(offset)
+    pub fn date(&self, day: impl Into<Day>) -> NaiveDate {
+        self.start + chrono::Duration::days(day.into().offset())
     }
 }
 

@@ -13,6 +13,7 @@
 
 use super::state::{micro, WHOLE};
 use super::{FixedRun, PlanRequest};
+use crate::day::Day;
 use crate::forecast::Series;
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};
 use crate::share::Share;
@@ -39,9 +40,9 @@ pub(crate) enum Role {
     /// The planner decides.
     Free,
     /// Running: holds its traffic as given (offsets may lie outside the window).
-    Fixed { start: i64, end: i64, share: Share },
+    Fixed { start: Day, end: Day, share: Share },
     /// Left out by request; `ended` is the last day of a finished run.
-    Excluded { ended: Option<i64>, reason: String },
+    Excluded { ended: Option<Day>, reason: String },
 }
 
 /// The portfolio as the planner sees it.
@@ -133,7 +134,7 @@ impl<'a> Instance<'a> {
                 share: *share,
             };
             let pool = portfolio.experiments[*experiment].pool;
-            for d in s.max(0)..=e.min(days as i64 - 1) {
+            for d in s.offset().max(0)..=e.offset().min(days as i64 - 1) {
                 base_share[pool][d as usize] += micro(*share);
                 base_count[pool][d as usize] += 1;
             }
@@ -151,7 +152,7 @@ impl<'a> Instance<'a> {
                 }
             }
         }
-        let today = request.today.map(|t| w.offset(t)).unwrap_or(0).max(0);
+        let today = request.today.map_or(0, |t| w.offset(t).offset()).max(0);
         let mut inst = Instance {
             portfolio,
             days,
@@ -193,8 +194,8 @@ impl<'a> Instance<'a> {
             if let Role::Fixed { start, end, .. } = role {
                 let pool = p.experiments[e].pool;
                 for c in [*start, *end + 1] {
-                    if c > 0 && c < self.days as i64 {
-                        cuts[pool].push(c as usize);
+                    if let Some(i) = c.index(self.days).filter(|&i| i > 0) {
+                        cuts[pool].push(i);
                     }
                 }
             }
@@ -226,13 +227,13 @@ impl<'a> Instance<'a> {
         let ex = &p.experiments[e];
         let mut lo = today;
         if let Some(d) = ex.earliest_start {
-            lo = lo.max(p.window.offset(d));
+            lo = lo.max(p.window.offset(d).offset());
         }
         for pre in &ex.after {
             let gap = pre.gap_days as i64;
             let end = match &self.roles[pre.experiment] {
-                Role::Fixed { end, .. } => Some(*end),
-                Role::Excluded { ended, .. } => *ended,
+                Role::Fixed { end, .. } => Some(end.offset()),
+                Role::Excluded { ended, .. } => ended.map(Day::offset),
                 Role::Free => self.options[pre.experiment]
                     .iter()
                     .map(|o| o.end as i64)
@@ -258,8 +259,7 @@ impl<'a> Instance<'a> {
         let p = self.portfolio;
         p.experiments[e]
             .deadline
-            .map(|d| p.window.offset(d))
-            .unwrap_or(i64::MAX)
+            .map_or(i64::MAX, |d| p.window.offset(d).offset())
             .min(self.days as i64 - 1)
     }
 
@@ -447,7 +447,7 @@ impl<'a> Instance<'a> {
                     p.experiments[e].priority,
                     p.planning.lateness_weight,
                     self.days,
-                    *end,
+                    end.offset(),
                 ),
                 _ => 0.0,
             })

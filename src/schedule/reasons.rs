@@ -5,6 +5,7 @@
 
 use super::options::{Instance, Role};
 use super::state::State;
+use crate::day::Day;
 use crate::share::Share;
 pub(crate) use crate::words::thousands;
 use chrono::{Datelike, Duration, NaiveDate};
@@ -152,7 +153,9 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         span_hi = span_hi.max(o.end);
         for &b in &ex.not_with {
             let overlap = match &inst.roles[b] {
-                Role::Fixed { start, end, .. } => *start <= o.end as i64 && o.start as i64 <= *end,
+                Role::Fixed { start, end, .. } => {
+                    *start <= Day::from(o.end) && Day::from(o.start) <= *end
+                }
                 Role::Free => state
                     .opt(inst, b)
                     .is_some_and(|bo| bo.start <= o.end && o.start <= bo.end),
@@ -197,7 +200,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         };
         let runs_on = |b: usize, d: usize| -> bool {
             match &inst.roles[b] {
-                Role::Fixed { start, end, .. } => *start <= d as i64 && d as i64 <= *end,
+                Role::Fixed { start, end, .. } => *start <= Day::from(d) && Day::from(d) <= *end,
                 Role::Free => state
                     .opt(inst, b)
                     .is_some_and(|bo| bo.start <= d && d <= bo.end),

@@ -69,7 +69,7 @@ impl State {
     /// The days test `e` occupies (fixed or chosen), as window offsets.
     fn span(&self, inst: &Instance, e: usize) -> Option<(i64, i64)> {
         match &inst.roles[e] {
-            Role::Fixed { start, end, .. } => Some((*start, *end)),
+            Role::Fixed { start, end, .. } => Some((start.offset(), end.offset())),
             Role::Free => self.opt(inst, e).map(|o| (o.start as i64, o.end as i64)),
             Role::Excluded { .. } => None,
         }
