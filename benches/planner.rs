@@ -1,4 +1,4 @@
-//! `cargo bench --bench planner`: plans seeded synthetic portfolios of three
+//! `cargo bench --bench planner --features bench`: plans seeded synthetic portfolios of three
 //! sizes with every backend this build has, prints a table and writes it to
 //! `target/bench-planner.json`.
 //!

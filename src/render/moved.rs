@@ -122,11 +122,7 @@ pub fn headline(d: &PlanDiff) -> String {
         parts.push(format!(
             "{} {} later (by up to {most} days)",
             later.len(),
-            if later.len() == 1 {
-                "result"
-            } else {
-                "results"
-            }
+            crate::words::Count("result", later.len())
         ));
     }
     let n = count(Movement::Earlier);

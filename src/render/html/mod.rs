@@ -204,11 +204,7 @@ impl Renderer for Html {
             s,
             r#"<li class="{}"><span class="big">{not_fit}</span><span class="small">{} not fit (reasons below)</span></li>"#,
             if not_fit > 0 { "warn" } else { "" },
-            if not_fit == 1 {
-                "test does"
-            } else {
-                "tests do"
-            }
+            crate::words::agree("test does", "tests do", not_fit)
         );
         let _ = writeln!(
             s,
