@@ -344,7 +344,7 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
                 if b.note.is_empty() {
                     format!("{}..{}", b.from, b.to)
                 } else {
-                    format!("{}..{} ({})", b.from, b.to, b.note)
+                    format!("{}..{}, {}", b.from, b.to, b.note)
                 }
             })
             .collect()
@@ -370,14 +370,14 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
     if solo.crossed {
         return format!(
             "every run that ends by {limit} meets a no-running blackout ({}){help}",
-            spans(BlackoutKind::NoRunning).join(", ")
+            spans(BlackoutKind::NoRunning).join("; ")
         );
     }
     if !solo.any_start {
         return format!(
             "no start day from {} is free of the no-starts blackouts ({}) in time for {limit}",
             w.date(first as i64),
-            spans(BlackoutKind::NoStarts).join(", ")
+            spans(BlackoutKind::NoStarts).join("; ")
         );
     }
     format!("no run from an allowed start ends by {limit} at its largest share of {top}{help}")
