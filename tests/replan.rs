@@ -803,7 +803,10 @@ fn reasons_name_the_real_cause_and_never_suggest_a_change_at_its_limit() {
     }
     // Blocked by a no-running span with a deadline, at 100% already: a later
     // deadline may help, a larger share cannot.
-    let one = "  - {id: d, pool: shop, baseline: 0.1, mde: 0.2, deadline: 2027-02-20}\n";
+    // `d` needs about 8 days at 100%: from 2027-01-04 it meets the sale,
+    // from 2027-01-11 it ends 2027-01-18, after its deadline. A later
+    // deadline may help; a larger share cannot (it is at 100%).
+    let one = "  - {id: d, pool: shop, baseline: 0.1, mde: 0.2, deadline: 2027-01-15}\n";
     let sale = "blackouts:\n  - {from: 2027-01-08, to: 2027-01-10, kind: no_running, note: sale}\n";
     let portfolio = flat_portfolio("blocked.yaml", false, one, sale);
     let v: Value = serde_json::from_str(&ok(&sluice(&[
@@ -815,11 +818,11 @@ fn reasons_name_the_real_cause_and_never_suggest_a_change_at_its_limit() {
     ])))
     .unwrap();
     let d_ = by_id(&v, "d");
-    if d_["status"] == "unscheduled" {
-        let reason = d_["reason"].as_str().unwrap();
-        assert!(reason.contains("2027-01-08..2027-01-10"), "{reason}");
-        assert!(!reason.contains("larger share"), "{reason}");
-    }
+    assert_eq!(d_["status"], "unscheduled", "{d_}");
+    let reason = d_["reason"].as_str().unwrap();
+    assert!(reason.contains("2027-01-08..2027-01-10"), "{reason}");
+    assert!(reason.contains("a later deadline"), "{reason}");
+    assert!(!reason.contains("share"), "{reason}");
 }
 
 #[test]
