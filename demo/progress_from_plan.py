@@ -40,7 +40,12 @@ def main() -> int:
             continue
         lines.append(f"  - id: {e['id']}")
         if end < today:
-            lines += ["    state: finished", f"    started: {start}", f"    ended: {end}"]
+            lines += [
+                "    state: finished",
+                f"    started: {start}",
+                f"    ended: {end}",
+                f"    share: {e['share']}",
+            ]
             continue
         days = forecast[e["pool"]]
         units = sum(v for d, v in days.items() if start <= d < today)

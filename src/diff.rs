@@ -71,9 +71,16 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
     let mut no_longer_fit = Vec::new();
     let mut now_fit = Vec::new();
     let mut share_changed = Vec::new();
+    let mut needs_decision = Vec::new();
     for n in &new.experiments {
         let o = old.experiments.iter().find(|o| o.id == n.id);
+        let decide = n.status == Status::Running
+            && new
+                .running
+                .iter()
+                .any(|r| r.id == n.id && r.needs_decision());
         let mv = match o {
+            _ if decide => Movement::NeedsDecision,
             Some(o) => movement(o, n),
             None => Movement::Added,
         };
@@ -85,6 +92,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         match mv {
             Movement::NoLongerFits => no_longer_fit.push(n.id.clone()),
             Movement::NowFits => now_fit.push(n.id.clone()),
+            Movement::NeedsDecision => needs_decision.push(n.id.clone()),
             _ => {}
         }
         if both.is_some_and(|o| share(o) != share(n)) {
@@ -138,6 +146,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         no_longer_fit,
         now_fit,
         share_changed,
+        needs_decision,
         pools,
     }
 }
@@ -173,6 +182,7 @@ mod tests {
                 }),
             units_needed: 1000,
             reason: None,
+            ran: None,
         }
     }
 

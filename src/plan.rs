@@ -125,6 +125,22 @@ pub struct PlannedExperiment {
     pub units_needed: u64,
     /// Why it is not scheduled, in words a planner can act on.
     pub reason: Option<String>,
+    /// Re-plans only: what a finished or cancelled test ran, as the
+    /// progress file gives it; `None` for every other test, and for a
+    /// finished or cancelled test whose `started` the file does not give.
+    pub ran: Option<Ran>,
+}
+
+/// What a finished or cancelled test ran before today: kept in a re-plan
+/// so every format can still show it, marked by its status.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Ran {
+    /// Its first day of data.
+    pub start: NaiveDate,
+    /// Its last day of data.
+    pub end: NaiveDate,
+    /// The share of its pool it ran at, when the progress file gives it.
+    pub share: Option<Share>,
 }
 
 /// The facts of one run in the calendar, as the scheduler fixed them.
@@ -162,6 +178,8 @@ struct ExperimentJson {
     units_needed: u64,
     units_expected: Option<f64>,
     reason: Option<String>,
+    #[serde(default)]
+    ran: Option<Ran>,
 }
 
 impl From<PlannedExperiment> for ExperimentJson {
@@ -182,6 +200,7 @@ impl From<PlannedExperiment> for ExperimentJson {
             units_needed: e.units_needed,
             units_expected: r.map(|r| r.units_expected),
             reason: e.reason,
+            ran: e.ran,
         }
     }
 }
@@ -252,6 +271,7 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
             run,
             units_needed: j.units_needed,
             reason: j.reason,
+            ran: j.ran,
         })
     }
 }
@@ -349,8 +369,79 @@ pub struct RunningOutlook {
     /// The effect (in its MDE's kind) the units in hand by the window's end
     /// can detect at the planned power.
     pub detectable_effect: Option<f64>,
-    /// The outlook in words, when it cannot finish as it runs.
+    /// The outlook in words, when it cannot finish as it runs, needs a
+    /// decision, was re-shared or is ready to read.
     pub advice: Option<String>,
+    /// The share it ran at before today, as the progress file gives it
+    /// (differs from `share` only when the re-plan re-shared it).
+    #[serde(default)]
+    pub share_before: Option<Share>,
+    /// What stands out about it, in the order of [`RunningFlag`].
+    #[serde(default)]
+    pub flags: Vec<RunningFlag>,
+    /// The first `no_running` span of its pool its run reaches, with the
+    /// choice it leaves; `None` when its run reaches none.
+    #[serde(default)]
+    pub no_running: Option<NoRunningChoice>,
+}
+
+impl RunningOutlook {
+    /// Whether the planner has to decide something about it: it cannot
+    /// finish inside the window, or its run reaches a `no_running` span.
+    pub fn needs_decision(&self) -> bool {
+        self.flags
+            .iter()
+            .any(|f| matches!(f, RunningFlag::CannotFinish | RunningFlag::CrossesNoRunning))
+    }
+
+    /// Whether it has collected its sample.
+    pub fn past_need(&self) -> bool {
+        self.flags.contains(&RunningFlag::PastNeed)
+    }
+}
+
+/// What stands out about a running test; in JSON the snake_case code.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum RunningFlag {
+    /// No end inside the window as it runs.
+    CannotFinish,
+    /// Its run reaches a `no_running` span of its pool.
+    CrossesNoRunning,
+    /// It has collected its sample.
+    PastNeed,
+    /// The running tests alone already overload its pool at the shares
+    /// the progress file gives them.
+    InputOverload,
+}
+
+impl RunningFlag {
+    /// The code in JSON.
+    pub fn code(self) -> &'static str {
+        match self {
+            RunningFlag::CannotFinish => "cannot_finish",
+            RunningFlag::CrossesNoRunning => "crosses_no_running",
+            RunningFlag::PastNeed => "past_need",
+            RunningFlag::InputOverload => "input_overload",
+        }
+    }
+}
+
+/// A running test whose run reaches a `no_running` span: stop before it,
+/// or leave its days out and end later.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NoRunningChoice {
+    /// The span's first day.
+    pub from: NaiveDate,
+    /// The span's last day.
+    pub to: NaiveDate,
+    /// Why, in the portfolio's words.
+    pub note: String,
+    /// Its last day of data if it stops at the span's start.
+    pub stop_end: NaiveDate,
+    /// The effect (in its MDE's kind) it can detect at the planned power if
+    /// it stops then; `None` when too few units for any.
+    pub stop_effect: Option<f64>,
 }
 
 /// How one experiment's outcome changed.
@@ -375,6 +466,9 @@ pub enum Movement {
     Closed,
     /// Not in the previous plan.
     Added,
+    /// Running, and needs a decision: it cannot finish inside the window,
+    /// or its run reaches a `no_running` span.
+    NeedsDecision,
     /// In the previous plan only.
     Dropped,
 }
@@ -442,6 +536,9 @@ pub struct PlanDiff {
     pub now_fit: Vec<String>,
     /// Ids scheduled in both with another share.
     pub share_changed: Vec<String>,
+    /// Running ids that need a decision (see [`Movement::NeedsDecision`]).
+    #[serde(default)]
+    pub needs_decision: Vec<String>,
     /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
 }

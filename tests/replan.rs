@@ -79,7 +79,8 @@ fn progress_from(plan: &Value, today: NaiveDate) -> String {
         let id = e["id"].as_str().unwrap();
         if end < today {
             s += &format!(
-                "  - id: {id}\n    state: finished\n    started: {start}\n    ended: {end}\n"
+                "  - id: {id}\n    state: finished\n    started: {start}\n    ended: {end}\n    share: {}\n",
+                e["share"]
             );
             continue;
         }
@@ -448,9 +449,388 @@ fn a_pool_without_traffic_schedules_nothing_new_and_advises_its_running_tests() 
 }
 
 #[test]
-fn a_test_past_its_need_ends_at_the_end_of_its_week_and_big_counts_warn() {
-    // home-static-hero needs 625,218 units; 700,000 is past its need, and
-    // more than the forecast could have delivered at 50% since 2027-01-18.
+fn bad_progress_files_name_the_file_line_key_and_a_hint() {
+    let progress = write(
+        "progress-bad.yaml",
+        "experiments:\n  - id: pdp-bundle\n    state: finished\n  - id: search-ranking-v2\n    state: running\n    started: 2027-02-10\n    share: 1\n    units: 10\n",
+    );
+    let out =
+        cmd(&["replan", &demo(), "--progress", &progress, "--today", DAY30]).assert_exit_code(2);
+    assert!(out.stdout.is_empty());
+    let err = String::from_utf8_lossy(&out.stderr);
+    for want in [
+        "experiment `pdp-bundle` is not in the portfolio",
+        "progress-bad.yaml:2:",
+        "key: experiments[0].id",
+        "hint: defined experiments, closest first: `pdp-bundles`",
+        "`search-ranking-v2` is marked running but starts on 2027-02-10",
+        "progress-bad.yaml:6:",
+        "key: experiments[1].started",
+        "hint: a running test started before today",
+    ] {
+        assert!(err.contains(want), "missing {want:?} in:\n{err}");
+    }
+}
+
+// ---------------------------------------------------------------------
+// Re-planning faults (issue 9): small invented portfolios on one flat
+// pool of 1,000 units a day, so every date below is plain arithmetic.
+
+/// A flat split pool `shop` of 1,000 a day over 2027-01-04..2027-03-28 (84
+/// days), no whole weeks, a one-day minimum run, the daily grid; `extra`
+/// adds experiments (indented list items) and top-level keys.
+fn flat_portfolio(name: &str, reshare: bool, experiments: &str, extra: &str) -> String {
+    write(
+        name,
+        &format!(
+            "name: flat\nwindow: {{start: 2027-01-04, end: 2027-03-28}}\n\
+             defaults: {{min_days: 1, whole_weeks: false}}\n\
+             planning: {{reshare_running: {reshare}, start_grid: daily}}\n\
+             pools:\n  - {{id: shop, daily: 1000, sharing: split, max_concurrent: 4}}\n\
+             experiments:\n{experiments}{extra}"
+        ),
+    )
+}
+
+/// The units `id` needs, from a plain plan of `portfolio`.
+fn need_of(portfolio: &str, id: &str) -> u64 {
+    let v: Value = serde_json::from_str(&ok(&sluice(&[
+        "plan",
+        portfolio,
+        "--format",
+        "json",
+        "--no-timing",
+    ])))
+    .unwrap();
+    by_id(&v, id)["units_needed"].as_u64().unwrap()
+}
+
+fn replan_json(portfolio: &str, progress: &str, today: &str, more: &[&str]) -> Value {
+    let mut args = vec![
+        "replan",
+        portfolio,
+        "--progress",
+        progress,
+        "--today",
+        today,
+        "--format",
+        "json",
+        "--no-timing",
+    ];
+    args.extend_from_slice(more);
+    serde_json::from_str(&ok(&sluice(&args))).unwrap()
+}
+
+fn replan_text(portfolio: &str, progress: &str, today: &str, more: &[&str]) -> String {
+    let mut args = vec![
+        "replan",
+        portfolio,
+        "--progress",
+        progress,
+        "--today",
+        today,
+        "--no-timing",
+    ];
+    args.extend_from_slice(more);
+    ok(&sluice(&args))
+}
+
+fn outlook_of<'a>(plan: &'a Value, id: &str) -> &'a Value {
+    plan["running"]
+        .as_array()
+        .expect("a running[] list")
+        .iter()
+        .find(|o| o["id"] == id)
+        .unwrap_or_else(|| panic!("`{id}` is in running[]"))
+}
+
+fn flags(o: &Value) -> Vec<String> {
+    o["flags"]
+        .as_array()
+        .unwrap_or_else(|| panic!("no flags in {o}"))
+        .iter()
+        .map(|f| f.as_str().unwrap().to_string())
+        .collect()
+}
+
+fn pool_day<'a>(plan: &'a Value, pool: &str, day: &str) -> &'a Value {
+    plan["pools"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["id"] == pool)
+        .unwrap()["days"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["date"] == day)
+        .unwrap()
+}
+
+fn max_share_used(plan: &Value, pool: &str, from: &str) -> f64 {
+    plan["pools"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["id"] == pool)
+        .unwrap()["days"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|x| x["date"].as_str().unwrap() >= from)
+        .map(|x| x["share_used"].as_f64().unwrap())
+        .fold(0.0, f64::max)
+}
+
+const TWO: &str = "  - {id: a, pool: shop, baseline: 0.1, mde: 0.08, priority: 2}\n  - {id: b, pool: shop, baseline: 0.1, mde: 0.08}\n";
+
+/// Two tests at 50% each from 2027-01-04, read on 2027-02-01 with 35,000
+/// units still to go: 56 days at 500 a day give 28,000, too few; 75% from
+/// today would finish either one alone.
+fn two_halves(name: &str, reshare: bool, share_b: f64) -> (String, String) {
+    let portfolio = flat_portfolio(&format!("{name}.yaml"), reshare, TWO, "");
+    let need = need_of(&portfolio, "a");
+    assert!(need > 35_000, "{need}");
+    let units = need - 35_000;
+    let progress = write(
+        &format!("{name}-progress.yaml"),
+        &format!(
+            "experiments:\n  - {{id: a, state: running, started: 2027-01-04, share: 0.5, units: {units}}}\n  - {{id: b, state: running, started: 2027-01-04, share: {share_b}, units: {units}}}\n"
+        ),
+    );
+    (portfolio, progress)
+}
+
+#[test]
+fn resharing_never_overloads_a_pool_and_says_when_there_is_no_room() {
+    // Point 1: 50% + 50% of a split pool, both short: no room to grow.
+    let (portfolio, progress) = two_halves("reshare-full", true, 0.5);
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    assert!(max_share_used(&v, "shop", "2027-02-01") <= 1.0 + 1e-9);
+    for id in ["a", "b"] {
+        let o = outlook_of(&v, id);
+        assert_eq!(o["share"].as_f64(), Some(0.5), "{o}");
+        assert_eq!(by_id(&v, id)["share"].as_f64(), Some(0.5));
+        let advice = o["advice"].as_str().unwrap();
+        assert!(advice.contains("no room"), "{advice}");
+        assert!(!advice.contains("re-shared"), "{advice}");
+    }
+    // 50% + 25%: the room there is (25%) goes to one of them, by priority.
+    let (portfolio, progress) = two_halves("reshare-some", true, 0.25);
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    assert!(max_share_used(&v, "shop", "2027-02-01") <= 1.0 + 1e-9);
+    assert_eq!(outlook_of(&v, "a")["share"].as_f64(), Some(0.75));
+    assert_eq!(outlook_of(&v, "b")["share"].as_f64(), Some(0.25));
+    assert!(outlook_of(&v, "a")["advice"]
+        .as_str()
+        .unwrap()
+        .contains("re-shared from 50% to 75%"));
+}
+
+#[test]
+fn the_verifier_flags_an_overload_the_replan_made_and_reports_one_the_input_had() {
+    let (portfolio, progress) = two_halves("verify-reshare", true, 0.5);
+    let p = sluice::portfolio::load(Path::new(&portfolio)).unwrap();
+    let today = d("2027-02-01");
+    let prog = load_progress(Path::new(&progress), &p, today).unwrap();
+    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default()).unwrap();
+    let facts = schedule::verify(&p, &request, &plan).expect("the re-plan verifies");
+    assert!(facts.is_empty(), "{facts:?}");
+    // Both raised to 75% from today: the re-plan made 150%, never excused.
+    let mut bad = request.clone();
+    for f in &mut bad.fixed {
+        f.share = sluice::share::Share::from_fraction(0.75);
+    }
+    let plan2 = schedule::plan(&p, &bad);
+    let problems = schedule::verify(&p, &bad, &plan2).unwrap_err();
+    assert!(
+        problems.iter().any(|m| m.contains("`shop` is shared 1.5")),
+        "{problems:?}"
+    );
+    // Given at 75% + 50% in the progress file: a fact of the input.
+    let (portfolio, progress) = two_halves("verify-input", false, 0.75);
+    let p = sluice::portfolio::load(Path::new(&portfolio)).unwrap();
+    let prog = load_progress(Path::new(&progress), &p, today).unwrap();
+    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default()).unwrap();
+    let facts = schedule::verify(&p, &request, &plan).expect("an input overload is excused");
+    assert!(
+        facts
+            .iter()
+            .any(|m| m.contains("`shop`") && m.contains("input")),
+        "{facts:?}"
+    );
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    for id in ["a", "b"] {
+        assert!(
+            flags(outlook_of(&v, id)).contains(&"input_overload".to_string()),
+            "{v}"
+        );
+    }
+}
+
+#[test]
+fn a_running_test_that_meets_a_no_running_span_is_a_decision_with_numbers() {
+    // Point 2: one test at 50%, 20,000 to go from 2027-02-01: 40 days at
+    // 500 a day, to 2027-03-12. A sale 2027-03-01..2027-03-07 stops all
+    // running: its units never count, so excluding those days ends it 7
+    // days later, on 2027-03-19; or it stops on 2027-02-28.
+    let one = "  - {id: a, pool: shop, baseline: 0.1, mde: 0.08}\n";
+    let sale =
+        "blackouts:\n  - {from: 2027-03-01, to: 2027-03-07, kind: no_running, note: spring sale}\n";
+    let plain = flat_portfolio("sale-none.yaml", false, one, "");
+    let with_sale = flat_portfolio("sale.yaml", false, one, sale);
+    let need = need_of(&plain, "a");
+    let progress = write(
+        "sale-progress.yaml",
+        &format!(
+            "experiments:\n  - {{id: a, state: running, started: 2027-01-04, share: 0.5, units: {}}}\n",
+            need - 20_000
+        ),
+    );
+    let v = replan_json(&plain, &progress, "2027-02-01", &[]);
+    assert_eq!(outlook_of(&v, "a")["end"], "2027-03-12");
+    assert!(flags(outlook_of(&v, "a")).is_empty());
+    let v = replan_json(&with_sale, &progress, "2027-02-01", &[]);
+    let o = outlook_of(&v, "a");
+    assert_eq!(o["end"], "2027-03-19", "{o}");
+    assert_eq!(by_id(&v, "a")["end"], "2027-03-19");
+    assert_eq!(flags(o), vec!["crosses_no_running"]);
+    let advice = o["advice"].as_str().unwrap();
+    for want in [
+        "2027-03-01..2027-03-07",
+        "spring sale",
+        "stopped on 2027-02-28",
+        "can detect a relative effect of",
+        "2027-03-19",
+    ] {
+        assert!(advice.contains(want), "{want:?} missing: {advice}");
+    }
+    let text = replan_text(&with_sale, &progress, "2027-02-01", &[]);
+    assert!(text.contains("1 running test needs a decision"), "{text}");
+}
+
+#[test]
+fn running_tests_that_cannot_finish_are_counted_apart() {
+    // Point 3: the plan at the window's start, then the two tests short.
+    let (portfolio, progress) = two_halves("apart", false, 0.5);
+    let prev = scratch("apart-plan.json");
+    ok(&sluice(&[
+        "plan",
+        &portfolio,
+        "--format",
+        "json",
+        "--no-timing",
+        "--out",
+        prev.to_str().unwrap(),
+    ]));
+    let more = ["--previous", prev.to_str().unwrap()];
+    let text = replan_text(&portfolio, &progress, "2027-02-01", &more);
+    assert!(text.contains("2 running tests need a decision"), "{text}");
+    assert!(!text.contains("2 of 2 tests fit"), "{text}");
+    assert!(!text.contains("no longer fit: none"), "{text}");
+    assert!(text.contains("need a decision: a, b"), "{text}");
+    for line in text
+        .lines()
+        .filter(|l| l.starts_with("a ") || l.starts_with("b "))
+    {
+        assert!(!line.trim_end().ends_with("later, running"), "{line}");
+    }
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &more);
+    let rows = v["changes"]["experiments"].as_array().unwrap();
+    for row in rows {
+        assert_eq!(row["movement"], "needs_decision", "{row}");
+    }
+    assert_eq!(
+        v["changes"]["needs_decision"],
+        serde_json::json!(["a", "b"])
+    );
+}
+
+#[test]
+fn rescue_advice_for_one_pool_can_all_be_followed() {
+    // Point 4: without re-sharing, each would be told 75% finishes it; both
+    // cannot have it. The advice says one would have to stop, and what
+    // each can detect.
+    let (portfolio, progress) = two_halves("joint", false, 0.5);
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    for id in ["a", "b"] {
+        let o = outlook_of(&v, id);
+        assert!(o["rescue_share"].is_null(), "{o}");
+        let advice = o["advice"].as_str().unwrap();
+        assert!(!advice.contains("would finish it in time"), "{advice}");
+        assert!(
+            advice.contains("one of them would have to stop"),
+            "{advice}"
+        );
+        assert!(
+            advice.contains("can detect a relative effect of"),
+            "{advice}"
+        );
+        let other = if id == "a" { "`b`" } else { "`a`" };
+        assert!(advice.contains(other), "{advice}");
+        assert_eq!(flags(o), vec!["cannot_finish"]);
+    }
+    // 50% + 25%: the 25% left goes to one (the higher priority), and the
+    // other is told the room is taken.
+    let (portfolio, progress) = two_halves("joint-some", false, 0.25);
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    assert_eq!(outlook_of(&v, "a")["rescue_share"].as_f64(), Some(0.75));
+    assert!(outlook_of(&v, "b")["rescue_share"].is_null());
+    assert!(outlook_of(&v, "b")["advice"]
+        .as_str()
+        .unwrap()
+        .contains("no room"));
+}
+
+#[test]
+fn reasons_name_the_real_cause_and_never_suggest_a_change_at_its_limit() {
+    // Point 5: `c` (no deadline, up to 100%) is blocked only because `a`
+    // and `b` hold all of `shop` past the window's end; a no-starts span
+    // elsewhere in the window must not be blamed.
+    let three = format!("{TWO}  - {{id: c, pool: shop, baseline: 0.1, mde: 0.2}}\n");
+    let freeze = "blackouts:\n  - {from: 2027-03-01, to: 2027-03-07, kind: no_starts, note: release freeze}\n";
+    let portfolio = flat_portfolio("held.yaml", false, &three, freeze);
+    let progress = write(
+        "held-progress.yaml",
+        "experiments:\n  - {id: a, state: running, started: 2027-01-04, share: 0.5, units: 100}\n  - {id: b, state: running, started: 2027-01-04, share: 0.5, units: 100}\n",
+    );
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    let reason = by_id(&v, "c")["reason"].as_str().unwrap().to_string();
+    assert!(reason.contains("`a`") && reason.contains("`b`"), "{reason}");
+    assert!(reason.contains("running"), "{reason}");
+    for never in ["blackout", "larger share", "deadline"] {
+        assert!(!reason.contains(never), "{never:?} in: {reason}");
+    }
+    // Blocked by a no-running span with a deadline, at 100% already: a later
+    // deadline may help, a larger share cannot.
+    // `d` needs about 8 days at 100%: from 2027-01-04 it meets the sale,
+    // from 2027-01-11 it ends 2027-01-18, after its deadline. A later
+    // deadline may help; a larger share cannot (it is at 100%).
+    let one = "  - {id: d, pool: shop, baseline: 0.1, mde: 0.2, deadline: 2027-01-15}\n";
+    let sale = "blackouts:\n  - {from: 2027-01-08, to: 2027-01-10, kind: no_running, note: sale}\n";
+    let portfolio = flat_portfolio("blocked.yaml", false, one, sale);
+    let v: Value = serde_json::from_str(&ok(&sluice(&[
+        "plan",
+        &portfolio,
+        "--format",
+        "json",
+        "--no-timing",
+    ])))
+    .unwrap();
+    let d_ = by_id(&v, "d");
+    assert_eq!(d_["status"], "unscheduled", "{d_}");
+    let reason = d_["reason"].as_str().unwrap();
+    assert!(reason.contains("2027-01-08..2027-01-10"), "{reason}");
+    assert!(reason.contains("a later deadline"), "{reason}");
+    assert!(!reason.contains("share"), "{reason}");
+}
+
+#[test]
+fn a_running_test_past_its_sample_is_ready_to_read_and_frees_its_pool_today() {
+    // Point 6: home-static-hero needs 625,218 units; 700,000 is past its
+    // need, and more than the forecast could have delivered at 50% since
+    // 2027-01-18 (a warning, not a refusal). It has run 16 days, past its
+    // 14-day minimum: ready to read, its last day of data yesterday.
     let progress = write(
         "progress-past-need.yaml",
         "experiments:\n  - id: home-static-hero\n    state: running\n    started: 2027-01-18\n    share: 0.5\n    units: 700000\n",
@@ -473,34 +853,148 @@ fn a_test_past_its_need_ends_at_the_end_of_its_week_and_big_counts_warn() {
     assert!(err.contains("progress-past-need.yaml:6"), "{err}");
     let e = by_id(&v, "home-static-hero");
     assert!(e["units_needed"].as_u64().unwrap() < 700_000);
-    // Today, Wednesday 2027-02-03, is day 17 from its Monday start; whole
-    // weeks (the demo's default) end it on day 21, Sunday 2027-02-07.
     assert_eq!(e["status"], "running");
     assert_eq!(e["start"], "2027-01-18");
-    assert_eq!(e["end"], "2027-02-07");
-    assert_eq!(e["result_date"], "2027-02-08");
+    assert_eq!(e["end"], "2027-02-02");
+    assert_eq!(e["result_date"], DAY30);
+    let o = outlook_of(&v, "home-static-hero");
+    assert_eq!(flags(o), vec!["past_need"]);
+    assert!(
+        o["advice"].as_str().unwrap().contains("ready to read"),
+        "{o}"
+    );
+    // Its half of `home` is free from today.
+    let before = pool_day(&v, "home", "2027-02-02")["share_used"]
+        .as_f64()
+        .unwrap();
+    let today = pool_day(&v, "home", DAY30)["share_used"].as_f64().unwrap();
+    assert!(before >= 0.5, "{before}");
+    let holders_today: f64 = v["experiments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|x| x["pool"] == "home" && in_calendar(x))
+        .filter(|x| x["start"].as_str().unwrap() <= DAY30 && x["end"].as_str().unwrap() >= DAY30)
+        .map(|x| x["share"].as_f64().unwrap())
+        .sum();
+    assert!((today - holders_today).abs() < 1e-9);
+    let text = replan_text(&demo(), &progress, DAY30, &[]);
+    assert!(text.contains("ready to read"), "{text}");
 }
 
 #[test]
-fn bad_progress_files_name_the_file_line_key_and_a_hint() {
+fn units_expected_of_a_running_test_starts_from_what_it_collected() {
+    // Point 7: 20,000 to go at 500 a day from 2027-02-01: 40 days, so
+    // units_expected is the count so far plus 40 x 500.
+    let one = "  - {id: a, pool: shop, baseline: 0.1, mde: 0.08}\n";
+    let portfolio = flat_portfolio("expected.yaml", false, one, "");
+    let need = need_of(&portfolio, "a");
+    let units = need - 20_000;
     let progress = write(
-        "progress-bad.yaml",
-        "experiments:\n  - id: pdp-bundle\n    state: finished\n  - id: search-ranking-v2\n    state: running\n    started: 2027-02-10\n    share: 1\n    units: 10\n",
+        "expected-progress.yaml",
+        &format!(
+            "experiments:\n  - {{id: a, state: running, started: 2027-01-04, share: 0.5, units: {units}}}\n"
+        ),
     );
-    let out =
-        cmd(&["replan", &demo(), "--progress", &progress, "--today", DAY30]).assert_exit_code(2);
-    assert!(out.stdout.is_empty());
-    let err = String::from_utf8_lossy(&out.stderr);
-    for want in [
-        "experiment `pdp-bundle` is not in the portfolio",
-        "progress-bad.yaml:2:",
-        "key: experiments[0].id",
-        "hint: defined experiments, closest first: `pdp-bundles`",
-        "`search-ranking-v2` is marked running but starts on 2027-02-10",
-        "progress-bad.yaml:6:",
-        "key: experiments[1].started",
-        "hint: a running test started before today",
-    ] {
-        assert!(err.contains(want), "missing {want:?} in:\n{err}");
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    let e = by_id(&v, "a");
+    assert_eq!(e["end"], "2027-03-12");
+    assert_eq!(e["units_expected"].as_f64(), Some((units + 20_000) as f64));
+}
+
+#[test]
+fn a_replan_keeps_history_in_every_format() {
+    // Point 8: `a` finished, `b` cancelled after a week, `c` re-shared.
+    let three = format!("{TWO}  - {{id: c, pool: shop, baseline: 0.1, mde: 0.08}}\n");
+    // `c` needs 40,000 more from 2027-02-01 (it has 5,000 of about 45,700):
+    // 56 days at 25% give 14,000, at 75% 42,000.
+    let portfolio = flat_portfolio("history.yaml", true, &three, "");
+    assert!(need_of(&portfolio, "c") > 45_000);
+    let progress = write(
+        "history-progress.yaml",
+        "experiments:\n  - {id: a, state: finished, started: 2027-01-04, ended: 2027-01-24, share: 0.25}\n  - {id: b, state: cancelled, started: 2027-01-04, ended: 2027-01-10, share: 0.25, note: broken tracking}\n  - {id: c, state: running, started: 2027-01-11, share: 0.25, units: 5000}\n",
+    );
+    let v = replan_json(&portfolio, &progress, "2027-02-01", &[]);
+    let a = by_id(&v, "a");
+    assert_eq!(a["status"], "finished");
+    assert_eq!(a["ran"]["start"], "2027-01-04");
+    assert_eq!(a["ran"]["end"], "2027-01-24");
+    let b = by_id(&v, "b");
+    assert_eq!(b["status"], "cancelled");
+    assert_eq!(b["ran"]["end"], "2027-01-10");
+    // The past as it ran: 25% + 25% in the first week, 25% (a) + 25% (c)
+    // on 2027-01-20, and `c` at its old 25% until it was re-shared.
+    assert_eq!(
+        pool_day(&v, "shop", "2027-01-05")["share_used"].as_f64(),
+        Some(0.5)
+    );
+    assert_eq!(
+        pool_day(&v, "shop", "2027-01-20")["share_used"].as_f64(),
+        Some(0.5)
+    );
+    assert_eq!(
+        pool_day(&v, "shop", "2027-01-31")["share_used"].as_f64(),
+        Some(0.25)
+    );
+    let c = outlook_of(&v, "c");
+    assert!(c["share"].as_f64().unwrap() > 0.25, "{c}");
+    assert_eq!(c["share_before"].as_f64(), Some(0.25));
+    assert_eq!(
+        pool_day(&v, "shop", "2027-02-01")["share_used"].as_f64(),
+        c["share"].as_f64()
+    );
+    // Every other format shows the finished and the cancelled test with
+    // their real dates.
+    for format in ["text", "md", "csv", "html"] {
+        let mut args = vec!["--format", format];
+        if format == "text" {
+            args.clear();
+        }
+        let out = replan_text(&portfolio, &progress, "2027-02-01", &args);
+        for want in ["2027-01-24", "2027-01-10", "finished", "cancelled"] {
+            assert!(out.contains(want), "{format}: {want:?} missing:\n{out}");
+        }
     }
+}
+
+#[test]
+fn running_flags_are_exactly_the_documented_codes() {
+    // Point 9: every flag sluice writes is one of the four, and each is
+    // documented in docs/plan-json.md.
+    let doc = std::fs::read_to_string(repo("docs/plan-json.md")).unwrap();
+    let codes = [
+        "cannot_finish",
+        "crosses_no_running",
+        "past_need",
+        "input_overload",
+    ];
+    for code in codes {
+        assert!(doc.contains(&format!("`{code}`")), "{code} undocumented");
+    }
+    let (prev_path, _) = previous();
+    let v = replan_json(
+        &demo(),
+        day30_progress(),
+        DAY30,
+        &[
+            "--scale",
+            "product=0",
+            "--previous",
+            prev_path.to_str().unwrap(),
+        ],
+    );
+    let mut seen = BTreeSet::new();
+    for o in v["running"].as_array().unwrap() {
+        for f in flags(o) {
+            assert!(codes.contains(&f.as_str()), "{f}");
+            seen.insert(f);
+        }
+        let fits = o["fits_window"].as_bool().unwrap();
+        assert_eq!(
+            !fits,
+            flags(o).contains(&"cannot_finish".to_string()),
+            "{o}"
+        );
+    }
+    assert!(seen.contains("cannot_finish"), "{seen:?}");
 }

@@ -18,6 +18,40 @@ pub fn out_word(e: &PlannedExperiment) -> &'static str {
     }
 }
 
+/// A finished or cancelled test's past run as a [`Run`], for drawing its
+/// bar where it ran (re-plans): `None` unless the plan keeps what it ran.
+/// Its share is the one the progress file gives, else the whole pool
+/// (only the dates are drawn); its result date is the day after its end.
+pub fn past_run(e: &PlannedExperiment) -> Option<crate::plan::Run> {
+    let r = e.ran?;
+    if e.run.is_some() {
+        return None;
+    }
+    Some(crate::plan::Run {
+        start: r.start,
+        end: r.end,
+        result_date: r.end + Duration::days(1),
+        share: r.share.unwrap_or(crate::share::Share::WHOLE),
+        days: ((r.end - r.start).num_days() + 1) as u32,
+        units_expected: 0.0,
+    })
+}
+
+/// "finished, ran 2027-01-04 to 2027-01-24 at 25%" for a finished or
+/// cancelled test whose run the plan keeps; else [`out_word`].
+pub fn closed_words(e: &PlannedExperiment) -> String {
+    match (e.run, e.ran) {
+        (None, Some(r)) => format!(
+            "{}, ran {} to {}{}",
+            out_word(e),
+            r.start,
+            r.end,
+            r.share.map(|s| format!(" at {s}")).unwrap_or_default()
+        ),
+        _ => out_word(e).to_string(),
+    }
+}
+
 /// How many experiments left the queue (finished or cancelled; re-plans).
 pub fn closed_count(plan: &Plan) -> usize {
     plan.experiments
@@ -39,15 +73,49 @@ pub fn closed_note(plan: &Plan) -> String {
     }
 }
 
+/// Whether `e` is a running test that needs a decision (re-plans): it
+/// cannot finish inside the window, or its run reaches a `no_running` span.
+pub fn needs_decision(plan: &Plan, e: &PlannedExperiment) -> bool {
+    e.status == Status::Running
+        && plan
+            .running
+            .iter()
+            .any(|o| o.id == e.id && o.needs_decision())
+}
+
+/// How many running tests need a decision (re-plans).
+pub fn decision_count(plan: &Plan) -> usize {
+    plan.experiments
+        .iter()
+        .filter(|e| needs_decision(plan, e))
+        .count()
+}
+
+/// ", 2 running tests need a decision" when any do, else "".
+pub fn decision_note(plan: &Plan) -> String {
+    match decision_count(plan) {
+        0 => String::new(),
+        1 => ", 1 running test needs a decision".to_string(),
+        n => format!(", {n} running tests need a decision"),
+    }
+}
+
 /// Counts of experiments in the calendar (scheduled or running) and of
-/// those left out; finished and cancelled ones (re-plans) count in neither.
+/// those left out; finished and cancelled ones (re-plans) count in
+/// neither, nor do running tests that need a decision (see
+/// [`decision_count`]): they are counted apart.
 pub fn counts(plan: &Plan) -> (usize, usize) {
-    let count =
-        |f: &dyn Fn(Status) -> bool| plan.experiments.iter().filter(|e| f(e.status)).count();
-    (
-        count(&|s| s.in_calendar()),
-        count(&|s| s == Status::Unscheduled),
-    )
+    let fit = plan
+        .experiments
+        .iter()
+        .filter(|e| e.status.in_calendar() && !needs_decision(plan, e))
+        .count();
+    let out = plan
+        .experiments
+        .iter()
+        .filter(|e| e.status == Status::Unscheduled)
+        .count();
+    (fit, out)
 }
 
 /// The experiments of `pool`, in plan order.

@@ -33,6 +33,10 @@ impl Renderer for Csv {
         w.write_record(HEADER).map_err(RenderError::Csv)?;
         for e in &plan.experiments {
             let opt = |f: &dyn Fn(&Run) -> String| e.run.as_ref().map(f).unwrap_or_default();
+            // A finished or cancelled test keeps the days it ran (re-plans).
+            let ran = |f: &dyn Fn(&crate::plan::Ran) -> String| {
+                e.ran.as_ref().filter(|_| e.run.is_none()).map(f)
+            };
             let status = e.status.name();
             let row = [
                 e.id.clone(),
@@ -41,11 +45,17 @@ impl Renderer for Csv {
                 e.pool.clone(),
                 e.priority.to_string(),
                 status.to_string(),
-                opt(&|r| r.start.to_string()),
-                opt(&|r| r.end.to_string()),
+                ran(&|r| r.start.to_string()).unwrap_or_else(|| opt(&|r| r.start.to_string())),
+                ran(&|r| r.end.to_string()).unwrap_or_else(|| opt(&|r| r.end.to_string())),
                 opt(&|r| r.result_date.to_string()),
-                opt(&|r| r.share.fraction().to_string()),
-                opt(&|r| r.days.to_string()),
+                ran(&|r| {
+                    r.share
+                        .map(|s| s.fraction().to_string())
+                        .unwrap_or_default()
+                })
+                .unwrap_or_else(|| opt(&|r| r.share.fraction().to_string())),
+                ran(&|r| ((r.end - r.start).num_days() + 1).to_string())
+                    .unwrap_or_else(|| opt(&|r| r.days.to_string())),
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),

@@ -129,11 +129,12 @@ impl Renderer for Markdown {
         let _ = writeln!(w, "## Experiment plan: {}\n", escape(&plan.portfolio));
         let _ = writeln!(
             w,
-            "Window {} to {}. {fit} of {} tests fit; {not_fit} {}.\n",
+            "Window {} to {}. {fit} of {} tests fit; {not_fit} {}{}.\n",
             long_date(plan.window.start),
             long_date(plan.window.end),
             plan.experiments.len(),
-            super::common::do_not(not_fit)
+            super::common::do_not(not_fit),
+            super::common::decision_note(plan)
         );
         if fit > 0 {
             let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
@@ -175,6 +176,30 @@ impl Renderer for Markdown {
                     e.id.replace('`', "'"),
                     escape(pool_label(plan, &e.pool)),
                     escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
+                );
+            }
+            let _ = writeln!(w);
+        }
+        let closed: Vec<_> = plan
+            .experiments
+            .iter()
+            .filter(|e| {
+                matches!(
+                    e.status,
+                    crate::plan::Status::Finished | crate::plan::Status::Cancelled
+                )
+            })
+            .collect();
+        if !closed.is_empty() {
+            let _ = writeln!(w, "### Finished and cancelled\n");
+            for e in closed {
+                let _ = writeln!(
+                    w,
+                    "- **{}** (`{}`, {}): {}",
+                    escape(&e.title),
+                    e.id.replace('`', "'"),
+                    escape(pool_label(plan, &e.pool)),
+                    escape(&super::common::closed_words(e))
                 );
             }
             let _ = writeln!(w);

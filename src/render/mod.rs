@@ -336,6 +336,13 @@ pub(crate) mod fixture {
             rescue_share: None,
             detectable_effect: None,
             advice: Some(advice.into()),
+            share_before: Some(Share::from_fraction(if fits { 0.1 } else { 0.5 })),
+            flags: if fits {
+                Vec::new()
+            } else {
+                vec![crate::plan::RunningFlag::CannotFinish]
+            },
+            no_running: None,
         };
         plan.running = vec![
             outlook("search-synonyms", true, "re-shared from 10% to 50%"),

@@ -51,10 +51,11 @@ fn movement(e: &ExperimentDiff) -> String {
             None => "finished or cancelled",
         },
         Movement::Added => "new in the portfolio",
+        Movement::NeedsDecision => "needs a decision",
         Movement::Dropped => "gone from the portfolio",
     };
     // A running test cannot be moved, only re-read: say which rows those are.
-    if e.new_status == Some(Status::Running) {
+    if e.new_status == Some(Status::Running) && e.movement != Movement::NeedsDecision {
         format!("{word}, running")
     } else {
         word.to_string()
@@ -78,6 +79,7 @@ fn status_word(s: Status) -> &'static str {
 /// Display rank: what moved first, then what did not.
 fn rank(m: Movement) -> u8 {
     match m {
+        Movement::NeedsDecision => 0,
         Movement::NoLongerFits => 0,
         Movement::Later => 1,
         Movement::Earlier => 2,
@@ -117,6 +119,11 @@ pub fn headline(d: &PlanDiff) -> String {
         .filter_map(|e| e.slip_days)
         .collect();
     let mut parts = Vec::new();
+    match d.needs_decision.len() {
+        0 => {}
+        1 => parts.push("1 running test needs a decision".to_string()),
+        n => parts.push(format!("{n} running tests need a decision")),
+    }
     if !later.is_empty() {
         let most = later.iter().copied().max().unwrap_or(0);
         parts.push(format!(
@@ -201,19 +208,41 @@ pub fn pool_line(p: &PoolDiff) -> String {
     )
 }
 
-/// The running tests with advice, in two groups (each only when not
-/// empty): those that cannot finish inside the window, then those a
-/// re-plan gave a new share so that they do.
+/// The running tests with advice, in groups (each only when not empty):
+/// those that need a decision (they cannot finish inside the window, or
+/// their run reaches a `no_running` span), those ready to read, those a
+/// re-plan gave a new share so that they finish, and those on a pool the
+/// running tests alone overload.
 pub fn advice_groups(plan: &Plan) -> Vec<(&'static str, Vec<&RunningOutlook>)> {
-    let with_advice = |fits: bool| -> Vec<&RunningOutlook> {
+    let group = |f: &dyn Fn(&RunningOutlook) -> bool| -> Vec<&RunningOutlook> {
         plan.running
             .iter()
-            .filter(|o| o.advice.is_some() && o.fits_window == fits)
+            .filter(|o| o.advice.is_some() && f(o))
             .collect()
     };
+    let reshared = |o: &RunningOutlook| o.share_before.is_some_and(|b| b != o.share);
     [
-        ("Running tests that need a decision", with_advice(false)),
-        ("Running tests given a new share", with_advice(true)),
+        (
+            "Running tests that need a decision",
+            group(&|o| o.needs_decision()),
+        ),
+        (
+            "Running tests ready to read",
+            group(&|o| !o.needs_decision() && o.past_need() && !reshared(o)),
+        ),
+        (
+            "Running tests given a new share",
+            group(&|o| !o.needs_decision() && reshared(o)),
+        ),
+        (
+            "Running tests on an overloaded pool",
+            group(&|o| {
+                !o.needs_decision()
+                    && !o.past_need()
+                    && !reshared(o)
+                    && o.flags.contains(&crate::plan::RunningFlag::InputOverload)
+            }),
+        ),
     ]
     .into_iter()
     .filter(|(_, g)| !g.is_empty())
@@ -264,10 +293,17 @@ pub fn rows(d: &PlanDiff) -> Vec<Vec<String>> {
     ordered(d).into_iter().map(|e| cells(e).to_vec()).collect()
 }
 
-/// The lines under the table (which ids no longer fit, now fit, changed
-/// share; each pool's totals), each after `bullet`.
+/// The lines under the table (which running ids need a decision, which
+/// ids no longer fit, now fit, changed share; each pool's totals), each
+/// after `bullet`. "no longer fit: none" is left out when running tests
+/// need a decision: those are what no longer fits as planned.
 pub fn summary_lines(s: &mut String, d: &PlanDiff, bullet: &str) {
-    let _ = writeln!(s, "{bullet}no longer fit: {}", ids(&d.no_longer_fit));
+    if !d.needs_decision.is_empty() {
+        let _ = writeln!(s, "{bullet}need a decision: {}", ids(&d.needs_decision));
+    }
+    if !d.no_longer_fit.is_empty() || d.needs_decision.is_empty() {
+        let _ = writeln!(s, "{bullet}no longer fit: {}", ids(&d.no_longer_fit));
+    }
     let _ = writeln!(s, "{bullet}now fit: {}", ids(&d.now_fit));
     let _ = writeln!(s, "{bullet}share changed: {}", ids(&d.share_changed));
     for p in &d.pools {

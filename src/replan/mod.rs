@@ -18,11 +18,12 @@ pub mod scale;
 pub use progress::{load_progress, load_progress_str, Progress};
 pub use scale::{with_scales, ScaleArg};
 
-use crate::plan::{Plan, Status};
-use crate::portfolio::Portfolio;
+use crate::plan::{Plan, Ran, RunningFlag, RunningOutlook, Status};
+use crate::portfolio::{Portfolio, Sharing};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
+use crate::share::Share;
 use chrono::{Duration, NaiveDate};
-use outlook::{outlook, Run, HORIZON_DAYS};
+use outlook::{advise, outlook, running_end, units_by, Overload, Rescue, Run, HORIZON_DAYS};
 use progress::State;
 use std::fmt;
 
@@ -38,11 +39,88 @@ impl fmt::Display for ReplanError {
 
 impl std::error::Error for ReplanError {}
 
+/// One running test on its way through [`replan`].
+struct Live {
+    /// Index into `Progress::entries`.
+    entry: usize,
+    run: Run,
+    outlook: RunningOutlook,
+    rescue: Rescue,
+}
+
+/// The day index of `date` in the window, clamped to `0..=days`.
+fn index(portfolio: &Portfolio, date: NaiveDate) -> usize {
+    let days = portfolio.window.days() as i64;
+    portfolio.window.offset(date).offset().clamp(0, days) as usize
+}
+
+/// The last day a running test holds its pool: its end, or past the
+/// horizon the window's end plus the horizon.
+fn held_to(portfolio: &Portfolio, o: &RunningOutlook) -> NaiveDate {
+    o.end
+        .unwrap_or(portfolio.window.end + Duration::days(HORIZON_DAYS))
+}
+
+/// Share (in millionths) the running tests of `pool` hold on each window
+/// day from `today`, at their outlooks' shares.
+fn held(portfolio: &Portfolio, live: &[Live], pool: usize, today: NaiveDate) -> Vec<i64> {
+    let days = portfolio.window.days();
+    let mut held = vec![0i64; days];
+    for l in live {
+        if portfolio.experiments[l.run.experiment].pool != pool {
+            continue;
+        }
+        let from = index(portfolio, today.max(l.run.start));
+        let to = index(
+            portfolio,
+            held_to(portfolio, &l.outlook) + Duration::days(1),
+        );
+        for h in &mut held[from..to] {
+            *h += i64::from(l.outlook.share.millionths());
+        }
+    }
+    held
+}
+
+/// How the running tests of `pool`, at the shares the progress file gives
+/// them, overload it on their own: `None` when they do not.
+fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<Overload> {
+    let p = &portfolio.pools[pool];
+    let w = portfolio.window;
+    let mut out: Option<Overload> = None;
+    for d in 0..w.days() {
+        let date = w.date(d as i64);
+        let (mut share, mut count) = (0.0, 0u32);
+        for l in live {
+            if portfolio.experiments[l.run.experiment].pool == pool
+                && l.run.start <= date
+                && date <= held_to(portfolio, &l.outlook)
+            {
+                share += l.run.share.fraction();
+                count += 1;
+            }
+        }
+        let over = (p.sharing == Sharing::Split && share > 1.0 + 1e-9) || count > p.max_concurrent;
+        if over {
+            let o = out.get_or_insert(Overload {
+                from: date,
+                peak_share: 0.0,
+                peak_count: 0,
+            });
+            o.peak_share = o.peak_share.max(share);
+            o.peak_count = o.peak_count.max(count);
+        }
+    }
+    out
+}
+
 /// Re-plans `portfolio` (from [`with_scales`] when there are `--scale`s) from `today`
 /// given `progress`. Running tests keep their start and share, unless the
 /// portfolio allows re-sharing running tests: then a test that cannot
 /// finish in the window takes the smallest share level that rescues it,
-/// from today, where its pool has room.
+/// from today, where its pool has room beside the other running tests.
+/// The rescue advice of one pool is worked out jointly, in priority order,
+/// so that all of it can be followed at once.
 pub fn replan(
     portfolio: &Portfolio,
     progress: &Progress,
@@ -55,8 +133,16 @@ pub fn replan(
         excluded: Vec::new(),
         ..base.clone()
     };
-    let mut outlooks = Vec::new();
-    for entry in &progress.entries {
+    let mut live: Vec<Live> = Vec::new();
+    for (k, entry) in progress.entries.iter().enumerate() {
+        let ran =
+            |started: &Option<NaiveDate>, ended: &Option<NaiveDate>, share: &Option<Share>| {
+                started.map(|start| Ran {
+                    start,
+                    end: ended.unwrap_or(today - Duration::days(1)).max(start),
+                    share: *share,
+                })
+            };
         match &entry.state {
             State::Running {
                 started,
@@ -71,32 +157,18 @@ pub fn replan(
                     collected: *units,
                     as_of: progress.as_of,
                 };
-                let mut o = outlook(portfolio, &run, *share, today);
-                let mut run_share = *share;
-                if !o.fits_window && portfolio.planning.reshare_running {
-                    if let Some(s) = o.rescue_share {
-                        run_share = s;
-                        o = outlook(portfolio, &run, s, today);
-                        o.advice = Some(format!(
-                            "re-shared from {} to {} from {today} so it finishes in the window; the arms' split is unchanged",
-                            share,
-                            s
-                        ));
-                    }
-                }
-                // Past the horizon it still holds its traffic to the window's end.
-                let end = o
-                    .end
-                    .unwrap_or(portfolio.window.end + Duration::days(HORIZON_DAYS));
-                request.fixed.push(FixedRun {
-                    experiment: entry.experiment,
-                    start: *started,
-                    share: run_share,
-                    end,
+                live.push(Live {
+                    entry: k,
+                    outlook: outlook(portfolio, &run, *share, today),
+                    run,
+                    rescue: Rescue::None,
                 });
-                outlooks.push(o);
             }
-            State::Finished { ended, .. } => request.excluded.push(Excluded {
+            State::Finished {
+                started,
+                ended,
+                share,
+            } => request.excluded.push(Excluded {
                 experiment: entry.experiment,
                 ended: Some(ended.unwrap_or(today - Duration::days(1))),
                 reason: format!(
@@ -106,8 +178,14 @@ pub fn replan(
                         None => String::new(),
                     }
                 ),
+                ran: ran(started, ended, share),
             }),
-            State::Cancelled { note } => request.excluded.push(Excluded {
+            State::Cancelled {
+                note,
+                started,
+                ended,
+                share,
+            } => request.excluded.push(Excluded {
                 experiment: entry.experiment,
                 ended: None,
                 reason: if note.is_empty() {
@@ -115,8 +193,118 @@ pub fn replan(
                 } else {
                     format!("cancelled: {note}")
                 },
+                ran: ran(started, ended, share),
             }),
         }
+    }
+    // Rescues, pool by pool, in priority order: each takes only the room
+    // its pool has beside the other running tests as they stand (and the
+    // rescues before it), so the advice of one pool can all be followed.
+    let mut order: Vec<usize> = (0..live.len())
+        .filter(|&i| live[i].outlook.flags.contains(&RunningFlag::CannotFinish))
+        .collect();
+    let prio = |i: usize| portfolio.experiments[live[i].run.experiment].priority;
+    order.sort_by(|&a, &b| {
+        prio(b)
+            .total_cmp(&prio(a))
+            .then(live[a].run.experiment.cmp(&live[b].run.experiment))
+    });
+    let today_i = index(portfolio, today);
+    for i in order {
+        let e = live[i].run.experiment;
+        let pool = portfolio.experiments[e].pool;
+        let split = portfolio.pools[pool].sharing == Sharing::Split;
+        let mut others = held(portfolio, &live, pool, today);
+        let mine_to = index(
+            portfolio,
+            held_to(portfolio, &live[i].outlook) + Duration::days(1),
+        );
+        for h in &mut others[today_i.min(mine_to)..mine_to] {
+            *h -= i64::from(live[i].outlook.share.millionths());
+        }
+        let run = live[i].run;
+        let current = live[i].outlook.share;
+        let room_for = |s: Share, end: NaiveDate| {
+            let to = index(portfolio, end + Duration::days(1));
+            !split
+                || others[today_i.min(to)..to]
+                    .iter()
+                    .all(|h| h + i64::from(s.millionths()) <= i64::from(Share::MILLION))
+        };
+        let found = portfolio
+            .share_levels
+            .up_to(portfolio.experiments[e].max_share)
+            .filter(|&s| s > current)
+            .find_map(|s| {
+                running_end(portfolio, &run, s, today)
+                    .filter(|&end| end <= portfolio.window.end && room_for(s, end))
+                    .map(|_| s)
+            });
+        let l = &mut live[i];
+        match (found, l.outlook.rescue_share) {
+            (Some(s), _) if portfolio.planning.reshare_running => {
+                l.outlook = outlook(portfolio, &run, s, today);
+                l.rescue = Rescue::Reshared { from: current };
+            }
+            (Some(s), _) => {
+                l.rescue = Rescue::Advise(s);
+                l.outlook.rescue_share = Some(s);
+                // Reserve the room it would take, so the next advice on this
+                // pool leaves it be.
+                l.outlook.share = s;
+                l.outlook.end = running_end(portfolio, &run, s, today);
+            }
+            (None, Some(needed)) => {
+                l.outlook.rescue_share = None;
+                l.rescue = Rescue::NoRoom {
+                    needed,
+                    holders: Vec::new(),
+                };
+            }
+            (None, None) => l.rescue = Rescue::Nothing,
+        }
+    }
+    // Advice that reserved room gets its own share and end back.
+    for l in &mut live {
+        if let Rescue::Advise(_) = l.rescue {
+            let fresh = outlook(portfolio, &l.run, l.run.share, today);
+            l.outlook.share = fresh.share;
+            l.outlook.end = fresh.end;
+        }
+    }
+    // Who holds a full pool from today, for the advice that found no room.
+    let holders_of = |live: &[Live], pool: usize| -> Vec<(String, Share)> {
+        live.iter()
+            .filter(|l| portfolio.experiments[l.run.experiment].pool == pool)
+            .filter(|l| held_to(portfolio, &l.outlook) >= today)
+            .map(|l| (l.outlook.id.clone(), l.outlook.share))
+            .collect()
+    };
+    let mut outlooks = Vec::new();
+    for i in 0..live.len() {
+        let pool = portfolio.experiments[live[i].run.experiment].pool;
+        if let Rescue::NoRoom { needed, .. } = live[i].rescue {
+            live[i].rescue = Rescue::NoRoom {
+                needed,
+                holders: holders_of(&live, pool),
+            };
+        }
+        let overload = input_overload(portfolio, &live, pool);
+        let l = &mut live[i];
+        if overload.is_some_and(|x| {
+            x.from <= held_to(portfolio, &l.outlook) && l.run.start <= portfolio.window.end
+        }) {
+            l.outlook.flags.push(RunningFlag::InputOverload);
+        }
+        l.outlook.advice = advise(portfolio, &l.run, &l.outlook, &l.rescue, today, overload);
+        request.fixed.push(FixedRun {
+            experiment: l.run.experiment,
+            start: l.run.start,
+            share: l.outlook.share,
+            share_before: l.run.share,
+            end: held_to(portfolio, &l.outlook),
+        });
+        outlooks.push(l.outlook.clone());
     }
     let mut plan = schedule::plan(portfolio, &request);
     for entry in &progress.entries {
@@ -126,14 +314,17 @@ pub fn replan(
             State::Finished { .. } => Status::Finished,
             State::Cancelled { .. } => Status::Cancelled,
         };
-        let id = &portfolio.experiments[entry.experiment].id;
-        if let Some(advice) = outlooks
-            .iter()
-            .find(|o| &o.id == id)
-            .and_then(|o| o.advice.clone())
-        {
-            pe.reason = Some(advice);
+    }
+    for l in &live {
+        let pe = &mut plan.experiments[l.run.experiment];
+        if let Some(advice) = &l.outlook.advice {
+            pe.reason = Some(advice.clone());
         }
+        // What it collected, plus the forecast from the day the counts were read.
+        if let Some(r) = &mut pe.run {
+            r.units_expected = units_by(portfolio, &l.run, l.outlook.share, today, r.end);
+        }
+        let _ = l.entry;
     }
     plan.running = outlooks;
     Ok((plan, request))
@@ -257,29 +448,37 @@ mod tests {
     }
 
     #[test]
-    fn a_test_past_its_need_ends_today_or_at_the_end_of_its_week() {
-        // docs/progress.md: "A test already past its need therefore ends
-        // today, or at the end of the week it is in."
-        let p = flat(false, 1, false);
-        let r = run("2027-01-04", 0.5, need(&p) + 10, "2027-02-03");
-        assert_eq!(
-            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
-            Some(d("2027-02-03"))
-        );
-        // Whole weeks from its Monday start: today (Wednesday, day 31) is in
-        // its fifth week, which ends on Sunday 2027-02-07.
-        let p = flat(true, 14, false);
-        let r = run("2027-01-04", 0.5, need(&p) + 10, "2027-02-03");
+    fn a_test_past_its_need_is_ready_to_read_unless_its_minimum_run_is_ahead() {
+        // Past its need and past its minimum run: ready to read, its last
+        // day of data yesterday, whole weeks or not (docs/progress.md).
+        for p in [flat(false, 1, false), flat(true, 14, false)] {
+            for collected in [need(&p), need(&p) + 10] {
+                let r = run("2027-01-04", 0.5, collected, "2027-02-03");
+                assert_eq!(
+                    running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
+                    Some(d("2027-02-02"))
+                );
+                let o = outlook(&p, &r, Share::from_fraction(0.5), d("2027-02-03"));
+                assert_eq!(o.flags, vec![RunningFlag::PastNeed]);
+                assert!(o.fits_window);
+            }
+        }
+        // Started 2027-01-25 with a 14-day minimum: it runs to 2027-02-07.
+        let p = flat(false, 14, false);
+        let r = run("2027-01-25", 0.5, need(&p) + 10, "2027-02-03");
         assert_eq!(
             running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
             Some(d("2027-02-07"))
         );
-        // Exactly at its need: the same.
-        let r = run("2027-01-04", 0.5, need(&p), "2027-02-03");
-        assert_eq!(
-            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-03")),
-            Some(d("2027-02-07"))
-        );
+    }
+
+    /// The advice for one running test alone on its pool.
+    fn advice_alone(p: &Portfolio, r: &Run, o: &RunningOutlook, today: NaiveDate) -> String {
+        let rescue = match o.rescue_share {
+            Some(s) => Rescue::Advise(s),
+            None => Rescue::Nothing,
+        };
+        advise(p, r, o, &rescue, today, None).unwrap()
     }
 
     #[test]
@@ -298,7 +497,7 @@ mod tests {
         let o = outlook(&p, &r, Share::from_fraction(0.5), d("2027-02-01"));
         assert!(!o.fits_window);
         assert_eq!(o.rescue_share, None);
-        let advice = o.advice.unwrap();
+        let advice = advice_alone(&p, &r, &o, d("2027-02-01"));
         assert!(advice.contains("within ten years"), "{advice}");
         assert!(
             advice.contains("no share up to its maximum of 100%"),
@@ -365,7 +564,7 @@ mod tests {
             "sample_size of the detectable effect gives {} an arm",
             back.control
         );
-        let advice = o.advice.unwrap();
+        let advice = advice_alone(&p, &r, &o, today);
         assert!(
             advice.contains(&format!("on {}", o.end.unwrap())),
             "{advice}"
@@ -390,7 +589,11 @@ mod tests {
         let r = run("2027-01-04", 0.5, need(&p) - 5000, "2027-02-01");
         let o = outlook(&p, &r, Share::from_fraction(0.5), d("2027-02-01"));
         assert!(o.fits_window);
-        assert_eq!(o.advice, None);
+        assert!(o.flags.is_empty());
+        assert_eq!(
+            advise(&p, &r, &o, &Rescue::None, d("2027-02-01"), None),
+            None
+        );
         assert_eq!(o.rescue_share, None);
         assert_eq!(o.detectable_effect, None);
     }
@@ -475,12 +678,16 @@ mod tests {
                     state: State::Finished {
                         started: Some(d("2027-01-04")),
                         ended: None,
+                        share: Some(Share::from_fraction(0.5)),
                     },
                 },
                 Entry {
                     experiment: 1,
                     state: State::Cancelled {
                         note: "legal review".into(),
+                        started: None,
+                        ended: None,
+                        share: None,
                     },
                 },
             ],
@@ -491,7 +698,22 @@ mod tests {
         assert_eq!(plan.experiments[1].status, Status::Cancelled);
         assert_eq!(request.excluded[0].ended, Some(d("2027-01-31")));
         assert_eq!(request.excluded[1].reason, "cancelled: legal review");
-        assert!(plan.pools[0].days.iter().all(|day| day.running == 0));
+        // Nothing holds the pool from today; before today the finished
+        // test is drawn as it ran (the cancelled one never started).
+        for day in &plan.pools[0].days {
+            let ran = day.date < today;
+            assert_eq!(day.running, u32::from(ran), "{}", day.date);
+            assert_eq!(day.share_used, if ran { 0.5 } else { 0.0 }, "{}", day.date);
+        }
+        assert_eq!(
+            plan.experiments[0].ran,
+            Some(Ran {
+                start: d("2027-01-04"),
+                end: d("2027-01-31"),
+                share: Some(Share::from_fraction(0.5)),
+            })
+        );
+        assert_eq!(plan.experiments[1].ran, None);
         schedule::verify(&p, &request, &plan).unwrap();
     }
 }

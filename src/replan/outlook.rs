@@ -1,12 +1,18 @@
 //! The outlook of each running test in a re-plan: its new end from the
 //! units still needed and the forecast from the day the counts were read,
-//! and, when it can no longer finish inside the window, the rescue advice
-//! (a larger share, or the effect it can still detect by the window's end,
-//! the sizing inverse).
+//! what stands out about it (the flags of [`RunningFlag`]), and the advice
+//! in words: when it can no longer finish inside the window, the rescue
+//! (a larger share where its pool has room, or the effect it can still
+//! detect by the window's end, the sizing inverse); when its run reaches a
+//! `no_running` span, the choice of stopping before it or ending later;
+//! when it has its sample, that it is ready to read.
+//!
+//! Units on a `no_running` day of its pool never count towards a test: the
+//! traffic of such a day does not represent normal behaviour.
 
 use crate::forecast::units_on;
-use crate::plan::RunningOutlook;
-use crate::portfolio::Portfolio;
+use crate::plan::{NoRunningChoice, RunningFlag, RunningOutlook};
+use crate::portfolio::{BlackoutKind, Portfolio};
 use crate::share::Share;
 use crate::sizing::{self, round_days};
 use crate::words::thousands;
@@ -39,12 +45,64 @@ impl Run {
     }
 }
 
+/// Whether a `no_running` blackout covers `day` on `pool`.
+fn no_running(portfolio: &Portfolio, pool: usize, day: NaiveDate) -> bool {
+    portfolio
+        .blackouts
+        .iter()
+        .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(day, pool))
+}
+
+/// Units that count towards `run` on `day` at `share` from `today`: none
+/// on a `no_running` day of its pool.
+fn units_counted(
+    portfolio: &Portfolio,
+    run: &Run,
+    day: NaiveDate,
+    share: Share,
+    today: NaiveDate,
+) -> f64 {
+    let pool = portfolio.experiments[run.experiment].pool;
+    if no_running(portfolio, pool, day) {
+        return 0.0;
+    }
+    run.share_on(day, share, today) * units_on(&portfolio.pools[pool], day)
+}
+
+/// Units `run` will have at the end of `last` at `share` from today: the
+/// count in hand plus the forecast from `as_of` on.
+pub(super) fn units_by(
+    portfolio: &Portfolio,
+    run: &Run,
+    share: Share,
+    today: NaiveDate,
+    last: NaiveDate,
+) -> f64 {
+    let mut day = run.as_of.max(run.start);
+    let mut total = run.collected as f64;
+    while day <= last {
+        total += units_counted(portfolio, run, day, share, today);
+        day += Duration::days(1);
+    }
+    total
+}
+
+/// Whether it has collected its sample and run its minimum before today:
+/// then its result can be read now.
+fn ready_to_read(portfolio: &Portfolio, run: &Run, today: NaiveDate) -> bool {
+    let e = &portfolio.experiments[run.experiment];
+    run.collected >= e.need.total && (today - run.start).num_days() >= i64::from(e.min_days)
+}
+
 /// A running test's last day of data when it runs at `share` from `today`
 /// on (at its old share before): counted from `as_of` with the units
 /// already collected, never before `today`, at least its minimum run from
-/// its start, and whole weeks from its start when asked. A test already
-/// past its need therefore ends today, or on the last day of the week (from
-/// its start) that today falls in. `None` past the ten-year horizon.
+/// its start, and whole weeks from its start when asked; units on its
+/// pool's `no_running` days do not count. A test already past its need
+/// that has run its minimum is ready to read: its last day of data was
+/// yesterday, and its share is free from today (whole weeks are not asked
+/// of a sample already in). One past its need that has not ends at its
+/// minimum run. `None` past the ten-year horizon.
 pub(super) fn running_end(
     portfolio: &Portfolio,
     run: &Run,
@@ -52,7 +110,9 @@ pub(super) fn running_end(
     today: NaiveDate,
 ) -> Option<NaiveDate> {
     let e = &portfolio.experiments[run.experiment];
-    let pool = &portfolio.pools[e.pool];
+    if ready_to_read(portfolio, run, today) {
+        return Some((today - Duration::days(1)).max(run.start));
+    }
     let need = e.need.total.saturating_sub(run.collected) as f64;
     let first = run.as_of.max(run.start);
     let mut reached = first - Duration::days(1);
@@ -61,7 +121,7 @@ pub(super) fn running_end(
         let mut day = first;
         let limit = first + Duration::days(HORIZON_DAYS);
         loop {
-            total += run.share_on(day, share, today) * units_on(pool, day);
+            total += units_counted(portfolio, run, day, share, today);
             if total >= need * (1.0 - 1e-9) {
                 break;
             }
@@ -78,21 +138,59 @@ pub(super) fn running_end(
     Some(run.start + Duration::days(days as i64 - 1))
 }
 
-/// Units a running test will have by the window's end at `share` from today.
-fn units_by_window_end(portfolio: &Portfolio, run: &Run, share: Share, today: NaiveDate) -> f64 {
-    let e = &portfolio.experiments[run.experiment];
-    let pool = &portfolio.pools[e.pool];
-    let mut day = run.as_of.max(run.start);
-    let mut total = run.collected as f64;
-    while day <= portfolio.window.end {
-        total += run.share_on(day, share, today) * units_on(pool, day);
-        day += Duration::days(1);
-    }
-    total
+/// The effect the design can detect with `units` over all arms at the
+/// planned power (the sizing inverse); `None` when too few for any.
+fn detectable(portfolio: &Portfolio, experiment: usize, units: f64) -> Option<f64> {
+    let d = &portfolio.experiments[experiment].design;
+    let per_control = units / (1.0 + f64::from(d.arms - 1) * d.ratio);
+    sizing::minimum_detectable_effect(d, per_control).ok()
 }
 
-/// The outlook of one running test at `share` from today, and a rescue
-/// when it cannot finish inside the window.
+/// "it can detect a relative effect of 8.7% (planned MDE: 8.0%)", or that
+/// it has too few units for any.
+fn can_detect(portfolio: &Portfolio, experiment: usize, effect: Option<f64>) -> String {
+    let d = &portfolio.experiments[experiment].design;
+    match effect {
+        Some(effect) => {
+            let (kind, planned) = match d.effect {
+                sizing::Effect::Relative(x) => (
+                    format!("a relative effect of {:.1}%", effect * 100.0),
+                    format!("{:.1}%", x * 100.0),
+                ),
+                sizing::Effect::Absolute(x) => {
+                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
+                }
+            };
+            format!("it can detect {kind} (planned MDE: {planned})")
+        }
+        None => "it has too few units to detect any effect at the planned power".to_string(),
+    }
+}
+
+/// The first `no_running` span of its pool that its run from today to
+/// `reach` meets.
+fn first_no_running<'p>(
+    portfolio: &'p Portfolio,
+    run: &Run,
+    today: NaiveDate,
+    reach: NaiveDate,
+) -> Option<&'p crate::portfolio::Blackout> {
+    let pool = portfolio.experiments[run.experiment].pool;
+    let from = today.max(run.start);
+    portfolio
+        .blackouts
+        .iter()
+        .filter(|b| b.kind == BlackoutKind::NoRunning)
+        .filter(|b| b.pools.is_empty() || b.pools.contains(&pool))
+        .filter(|b| b.from <= reach && from <= b.to)
+        .min_by_key(|b| (b.from, b.to))
+}
+
+/// The facts of one running test at `share` from today: its end, its
+/// flags (all but `input_overload`, which needs the whole pool), the
+/// `no_running` choice, the smallest share level that would finish it in
+/// the window were its pool's room no limit, and the effect it can detect
+/// by the window's end. No advice yet: see [`advise`].
 pub(super) fn outlook(
     portfolio: &Portfolio,
     run: &Run,
@@ -113,11 +211,32 @@ pub(super) fn outlook(
         rescue_share: None,
         detectable_effect: None,
         advice: None,
+        share_before: Some(run.share),
+        flags: Vec::new(),
+        no_running: None,
     };
+    if !fits {
+        outlook.flags.push(RunningFlag::CannotFinish);
+    }
+    let reach = end.unwrap_or(portfolio.window.end + Duration::days(HORIZON_DAYS));
+    if let Some(b) = first_no_running(portfolio, run, today, reach) {
+        outlook.flags.push(RunningFlag::CrossesNoRunning);
+        let stop_end = (b.from - Duration::days(1)).max(today - Duration::days(1));
+        let units = units_by(portfolio, run, share, today, stop_end);
+        outlook.no_running = Some(NoRunningChoice {
+            from: b.from,
+            to: b.to,
+            note: b.note.clone(),
+            stop_end,
+            stop_effect: detectable(portfolio, run.experiment, units),
+        });
+    }
+    if run.collected >= e.need.total {
+        outlook.flags.push(RunningFlag::PastNeed);
+    }
     if fits {
         return outlook;
     }
-    // The smallest allowed share level above the current one that ends in time.
     outlook.rescue_share = portfolio
         .share_levels
         .up_to(e.max_share)
@@ -125,55 +244,147 @@ pub(super) fn outlook(
         .find(|&s| {
             running_end(portfolio, run, s, today).is_some_and(|d| d <= portfolio.window.end)
         });
-    // The effect the units in hand by the window's end can detect.
-    let by_end = units_by_window_end(portfolio, run, share, today);
-    let d = &e.design;
-    let per_control = by_end / (1.0 + f64::from(d.arms - 1) * d.ratio);
-    outlook.detectable_effect = sizing::minimum_detectable_effect(d, per_control).ok();
-    let when = match end {
-        Some(day) => format!(
-            "at {} it would reach its {} units on {day}",
-            share,
-            thousands(e.need.total)
-        ),
-        None => format!(
-            "at {} it would not reach its {} units within ten years",
-            share,
-            thousands(e.need.total)
-        ),
-    };
-    let mut advice = format!(
-        "cannot reach its sample by the window's end ({}): {when}",
-        portfolio.window.end
-    );
-    match outlook.rescue_share {
-        Some(s) => advice.push_str(&format!(
-            "; a share of {s} from today would finish it in time",
-        )),
-        None => advice.push_str(&format!(
-            "; no share up to its maximum of {} finishes it in time",
-            e.max_share
-        )),
-    }
-    match outlook.detectable_effect {
-        Some(effect) => {
-            let (kind, planned) = match d.effect {
-                sizing::Effect::Relative(x) => (
-                    format!("a relative effect of {:.1}%", effect * 100.0),
-                    format!("{:.1}%", x * 100.0),
-                ),
-                sizing::Effect::Absolute(x) => {
-                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
-                }
-            };
-            advice.push_str(&format!(
-                "; stopped at the window's end it can detect {kind} (planned MDE: {planned})"
-            ));
-        }
-        None => advice.push_str(
-            "; stopped at the window's end it has too few units to detect any effect at the planned power",
-        ),
-    }
-    outlook.advice = Some(advice);
+    let by_end = units_by(portfolio, run, share, today, portfolio.window.end);
+    outlook.detectable_effect = detectable(portfolio, run.experiment, by_end);
     outlook
+}
+
+/// How the running tests alone, at the shares the progress file gives
+/// them, overload a pool.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) struct Overload {
+    /// The first day over.
+    pub from: NaiveDate,
+    /// The largest sum of shares on a day (split pools; else the largest sum).
+    pub peak_share: f64,
+    /// The most tests on a day.
+    pub peak_count: u32,
+}
+
+/// What the joint pass over a pool decided about a running test's share.
+#[derive(Debug, Clone, PartialEq)]
+pub(super) enum Rescue {
+    /// It finishes as it runs: nothing to rescue.
+    None,
+    /// Re-shared from its old share (`planning.reshare_running`).
+    Reshared { from: Share },
+    /// The pool has room for this share, which would finish it in time.
+    Advise(Share),
+    /// This share would finish it, but the pool has no room for it: the
+    /// running tests holding the pool from today, with their shares.
+    NoRoom {
+        needed: Share,
+        holders: Vec<(String, Share)>,
+    },
+    /// No share up to its maximum finishes it in time.
+    Nothing,
+}
+
+/// The advice in words for one running test, from its facts, the joint
+/// rescue, and the pool's overload by the input (its peak and a day).
+pub(super) fn advise(
+    portfolio: &Portfolio,
+    run: &Run,
+    o: &RunningOutlook,
+    rescue: &Rescue,
+    today: NaiveDate,
+    overload: Option<Overload>,
+) -> Option<String> {
+    let e = &portfolio.experiments[run.experiment];
+    let pool = &portfolio.pools[e.pool].id;
+    let mut parts: Vec<String> = Vec::new();
+    if let Rescue::Reshared { from } = rescue {
+        parts.push(format!(
+            "re-shared from {from} to {} from {today} so it finishes in the window; the arms' split is unchanged",
+            o.share
+        ));
+    }
+    if o.past_need() {
+        match o.end {
+            Some(end) if end < today => parts.push(format!(
+                "ready to read: {} of its {} units are in; its last day of data was {end}, and its {} of `{pool}` is free from today",
+                thousands(o.collected),
+                thousands(o.units_needed),
+                o.share
+            )),
+            Some(end) => parts.push(format!(
+                "has its sample ({} of {} units) but runs to its minimum of {} days, to {end}",
+                thousands(o.collected),
+                thousands(o.units_needed),
+                e.min_days
+            )),
+            None => {}
+        }
+    }
+    if o.flags.contains(&RunningFlag::CannotFinish) {
+        let when = match o.end {
+            Some(day) => format!(
+                "at {} it would reach its {} units on {day}",
+                o.share,
+                thousands(e.need.total)
+            ),
+            None => format!(
+                "at {} it would not reach its {} units within ten years",
+                o.share,
+                thousands(e.need.total)
+            ),
+        };
+        let mut text = format!(
+            "cannot reach its sample by the window's end ({}): {when}",
+            portfolio.window.end
+        );
+        match rescue {
+            Rescue::Advise(s) => text.push_str(&format!(
+                "; a share of {s} from today would finish it in time"
+            )),
+            Rescue::NoRoom { needed, holders } => {
+                let held: Vec<String> = holders
+                    .iter()
+                    .map(|(id, s)| format!("`{id}` {s}"))
+                    .collect();
+                text.push_str(&format!(
+                    "; a share of {needed} from today would finish it, but `{pool}` has no room for it (running from today: {}); one of them would have to stop to make room",
+                    held.join(", ")
+                ));
+            }
+            Rescue::Nothing => text.push_str(&format!(
+                "; no share up to its maximum of {} finishes it in time",
+                e.max_share
+            )),
+            Rescue::None | Rescue::Reshared { .. } => {}
+        }
+        text.push_str(&format!(
+            "; stopped at the window's end {}",
+            can_detect(portfolio, run.experiment, o.detectable_effect)
+        ));
+        parts.push(text);
+    }
+    if let Some(c) = &o.no_running {
+        let note = if c.note.is_empty() {
+            String::new()
+        } else {
+            format!(" ({})", c.note)
+        };
+        let later = match o.end {
+            Some(end) => format!("ends on {end}"),
+            None => "does not end within ten years".to_string(),
+        };
+        parts.push(format!(
+            "its run reaches the no-running span {}..{} of `{pool}`{note}, whose units do not count: stopped on {}, {}; or, with those days left out, it {later}",
+            c.from,
+            c.to,
+            c.stop_end,
+            can_detect(portfolio, run.experiment, c.stop_effect)
+        ));
+    }
+    if let Some(x) = overload {
+        parts.push(format!(
+            "the running tests on `{pool}` alone already overload it from {}, at the shares the progress file gives them (up to {} of it and {} tests; at most {} may run)",
+            x.from,
+            crate::words::percent(x.peak_share),
+            x.peak_count,
+            portfolio.pools[e.pool].max_concurrent
+        ));
+    }
+    (!parts.is_empty()).then(|| parts.join("; "))
 }

@@ -38,11 +38,19 @@ pub enum State {
         started: Option<NaiveDate>,
         /// Its last day of data, when the file gives it.
         ended: Option<NaiveDate>,
+        /// The share of its pool it ran at, when the file gives it.
+        share: Option<Share>,
     },
     /// Stopped for good: it holds no traffic any more.
     Cancelled {
         /// Why, in the file's words.
         note: String,
+        /// Its first day, when it had started and the file gives it.
+        started: Option<NaiveDate>,
+        /// Its last day of data, when the file gives it.
+        ended: Option<NaiveDate>,
+        /// The share of its pool it ran at, when the file gives it.
+        share: Option<Share>,
     },
 }
 
@@ -330,10 +338,36 @@ impl ProgressCheck<'_> {
             }
         }
         match kind.as_str() {
-            "finished" => Some(State::Finished { started, ended }),
-            "cancelled" => Some(State::Cancelled {
-                note: e.note.map(|t| t.0).unwrap_or_default(),
-            }),
+            "finished" | "cancelled" => {
+                let share = match e.share {
+                    None => None,
+                    Some(s) if s > 0.0 && s <= 1.0 && !Share::from_fraction(s).is_zero() => {
+                        Some(Share::from_fraction(s))
+                    }
+                    Some(s) => {
+                        self.ck.err(
+                            &format!("{at}.share"),
+                            format!("`{id}`: `share` is {s}; it must be in (0, 1]"),
+                            "the share of the pool it ran at: 0.5 for half",
+                        );
+                        return None;
+                    }
+                };
+                Some(if kind == "finished" {
+                    State::Finished {
+                        started,
+                        ended,
+                        share,
+                    }
+                } else {
+                    State::Cancelled {
+                        note: e.note.map(|t| t.0).unwrap_or_default(),
+                        started,
+                        ended,
+                        share,
+                    }
+                })
+            }
             _ => self.running(entry, e, started),
         }
     }
@@ -496,7 +530,10 @@ mod tests {
         assert_eq!(
             p.entries[2].state,
             State::Cancelled {
-                note: "legal review".into()
+                note: "legal review".into(),
+                started: None,
+                ended: None,
+                share: None,
             }
         );
         assert!(p.warnings.is_empty());

@@ -45,10 +45,25 @@ pub struct FixedRun {
     pub experiment: usize,
     /// Its first day.
     pub start: NaiveDate,
-    /// Its share of the pool.
+    /// Its share of the pool from today on.
     pub share: Share,
-    /// Last day of data, as the caller computed it (it may lie past the window).
+    /// Its share before today, as the progress file gives it; differs
+    /// from `share` only when a re-plan re-shared it.
+    pub share_before: Share,
+    /// Last day of data, as the caller computed it (it may lie past the
+    /// window, or before today for a test ready to read).
     pub end: NaiveDate,
+}
+
+impl FixedRun {
+    /// Its share on `day`, given the plan's `today`.
+    pub fn share_on(&self, day: NaiveDate, today: NaiveDate) -> Share {
+        if day < today {
+            self.share_before
+        } else {
+            self.share
+        }
+    }
 }
 
 /// A test that left the queue (finished or cancelled).
@@ -62,6 +77,9 @@ pub struct Excluded {
     pub ended: Option<NaiveDate>,
     /// Shown as the test's reason in the plan.
     pub reason: String,
+    /// What it ran before today, when known; kept in the plan as history
+    /// and drawn in the pool's past days.
+    pub ran: Option<crate::plan::Ran>,
 }
 
 /// What to plan, beyond the portfolio.
@@ -279,6 +297,7 @@ fn assemble(
     let p = inst.portfolio;
     let w = p.window;
     let why = reasons::explain(inst, state);
+    let today = request.today.unwrap_or(w.start);
     let experiments: Vec<PlannedExperiment> = p
         .experiments
         .iter()
@@ -301,6 +320,7 @@ fn assemble(
                 run: None,
                 units_needed: ex.need.total,
                 reason: None,
+                ran: None,
             };
             match run {
                 Some((start, end, share)) => {
@@ -319,6 +339,11 @@ fn assemble(
                 }
                 None => {
                     out.reason = why[e].clone();
+                    out.ran = request
+                        .excluded
+                        .iter()
+                        .find(|x| x.experiment == e)
+                        .and_then(|x| x.ran);
                     if let Role::Excluded { ended, .. } = &inst.roles[e] {
                         out.status = if ended.is_some() {
                             Status::Finished
@@ -347,7 +372,19 @@ fn assemble(
                         }
                         if let Some(r) = &pe.run {
                             if r.start <= date && date <= r.end {
-                                share_used += r.share.fraction();
+                                // A re-shared running test at its old share before today.
+                                let share = request
+                                    .fixed
+                                    .iter()
+                                    .find(|f| f.experiment == e)
+                                    .map_or(r.share, |f| f.share_on(date, today));
+                                share_used += share.fraction();
+                                running += 1;
+                            }
+                        } else if let Some(r) = &pe.ran {
+                            // The past as it ran: finished and cancelled tests.
+                            if r.start <= date && date <= r.end {
+                                share_used += r.share.map_or(0.0, Share::fraction);
                                 running += 1;
                             }
                         }
@@ -391,7 +428,7 @@ fn assemble(
         experiments,
         pools,
         blackouts,
-        today: request.today.unwrap_or(w.start),
+        today,
         running: Vec::new(),
         changes: None,
     }

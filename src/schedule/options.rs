@@ -70,6 +70,9 @@ pub(crate) struct Instance<'a> {
     /// days on which no option starts or ends and no fixed run changes, so
     /// occupancy can be kept per segment (per week on the weekly grid).
     pub segments: Vec<Vec<usize>>,
+    /// Today's day index (0 for a plan from the window's start): a
+    /// re-shared running test changes its share there.
+    pub today: usize,
 }
 
 /// What [`Instance::earliest_solo`] found.
@@ -117,13 +120,15 @@ impl<'a> Instance<'a> {
         }
         let mut base_share = vec![vec![0i64; days]; portfolio.pools.len()];
         let mut base_count = vec![vec![0u32; days]; portfolio.pools.len()];
-        for FixedRun {
-            experiment,
-            start,
-            share,
-            end,
-        } in &request.fixed
-        {
+        let today_date = request.today.unwrap_or(w.start);
+        for f in &request.fixed {
+            let FixedRun {
+                experiment,
+                start,
+                share,
+                end,
+                ..
+            } = f;
             if *experiment >= n {
                 continue;
             }
@@ -135,7 +140,7 @@ impl<'a> Instance<'a> {
             };
             let pool = portfolio.experiments[*experiment].pool;
             for d in s.offset().max(0)..=e.offset().min(days as i64 - 1) {
-                base_share[pool][d as usize] += micro(*share);
+                base_share[pool][d as usize] += micro(f.share_on(w.date(d), today_date));
                 base_count[pool][d as usize] += 1;
             }
         }
@@ -165,6 +170,7 @@ impl<'a> Instance<'a> {
             preds,
             succs,
             segments: Vec::new(),
+            today: (today as usize).min(days),
         };
         // Options in topological order so a test's bound can use its free
         // predecessors' earliest ends.
@@ -182,7 +188,7 @@ impl<'a> Instance<'a> {
     /// the segments it covers.
     fn segment(&mut self) {
         let p = self.portfolio;
-        let mut cuts: Vec<Vec<usize>> = vec![vec![0, self.days]; p.pools.len()];
+        let mut cuts: Vec<Vec<usize>> = vec![vec![0, self.today, self.days]; p.pools.len()];
         for (e, opts) in self.options.iter().enumerate() {
             let pool = p.experiments[e].pool;
             for o in opts {

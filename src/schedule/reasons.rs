@@ -1,7 +1,11 @@
 //! Why each test left out of the calendar is out, in words a planner can
 //! act on: a missing predecessor, a run longer than the window, a deadline
-//! that cannot be met, blackouts in the way, a `not_with` partner, or a
-//! pool full of tests the plan preferred (named, with their priorities).
+//! that cannot be met, running tests that hold its pool, blackouts in the
+//! way, a `not_with` partner, or a pool full of tests the plan preferred
+//! (named, with their priorities). Each names the real cause, and
+//! suggests only changes that are not already at their limit (no larger
+//! share for a test at the largest level, no later deadline for a test
+//! without one).
 
 use super::options::{Instance, Role};
 use super::state::State;
@@ -120,28 +124,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         }
     }
     if inst.options[e].is_empty() {
-        let blocking: Vec<String> = p
-            .blackouts
-            .iter()
-            .filter(|b| b.pools.is_empty() || b.pools.contains(&ex.pool))
-            .map(|b| {
-                let kind = match b.kind {
-                    crate::portfolio::BlackoutKind::NoStarts => "no starts",
-                    crate::portfolio::BlackoutKind::NoRunning => "nothing running",
-                };
-                format!("{kind} {}..{}", b.from, b.to)
-            })
-            .collect();
-        if !blocking.is_empty() {
-            return format!(
-                "every run that finishes in time meets a blackout ({}); a larger share or a later deadline would help",
-                blocking.join(", ")
-            );
-        }
-        return format!(
-            "the tests already running on `{}` leave no room for it in time",
-            pool.id
-        );
+        return why_no_option(inst, e, first, top);
     }
     // It fits alone: find what blocks each option now.
     let mut partners: Vec<usize> = Vec::new();
@@ -302,4 +285,100 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     // Nothing above applies: say what was tried.
     let _ = start.weekday();
     "no run fits beside the scheduled tests".to_string()
+}
+
+/// Why test `e` has no option at all although a run at its largest share
+/// `top` is short enough for the window: the real cause, and only changes
+/// that are not already at their limit.
+fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String {
+    use crate::portfolio::BlackoutKind;
+    let p = inst.portfolio;
+    let w = p.window;
+    let ex = &p.experiments[e];
+    let pool = &p.pools[ex.pool];
+    let solo = inst.earliest_solo(e, top, first);
+    if let Some((s, _)) = solo.run {
+        // It fits alone: the running tests hold the pool.
+        let holders: Vec<usize> = (0..inst.roles.len())
+            .filter(|&b| p.experiments[b].pool == ex.pool)
+            .filter(|&b| match &inst.roles[b] {
+                Role::Fixed { end, .. } => Day::from(s) <= *end,
+                _ => false,
+            })
+            .collect();
+        let until = holders
+            .iter()
+            .filter_map(|&b| match &inst.roles[b] {
+                Role::Fixed { end, .. } => Some(w.date(*end)),
+                _ => None,
+            })
+            .max();
+        let names: Vec<String> = holders
+            .iter()
+            .map(|&b| format!("`{}`", p.experiments[b].id))
+            .collect();
+        let when = match until {
+            Some(u) if u > w.end => format!("past the window's end (until {u})"),
+            Some(u) => format!("until {u}"),
+            None => String::new(),
+        };
+        return if names.is_empty() {
+            format!(
+                "the tests already running on `{}` leave no room for it in time",
+                pool.id
+            )
+        } else {
+            format!(
+                "the running tests {} hold `{}` {when}, leaving no room for it in time; alone it could run from {}",
+                names.join(", "),
+                pool.id,
+                w.date(s as i64)
+            )
+        };
+    }
+    let spans = |kind: BlackoutKind| -> Vec<String> {
+        p.blackouts
+            .iter()
+            .filter(|b| b.kind == kind && (b.pools.is_empty() || b.pools.contains(&ex.pool)))
+            .map(|b| {
+                if b.note.is_empty() {
+                    format!("{}..{}", b.from, b.to)
+                } else {
+                    format!("{}..{}, {}", b.from, b.to, b.note)
+                }
+            })
+            .collect()
+    };
+    // Changes that could help, only where not already at their limit.
+    let mut helps: Vec<String> = Vec::new();
+    let largest = p.share_levels.all().last().copied();
+    if largest.is_some_and(|l| l > top) {
+        helps.push(format!("a larger `max_share` than {top}"));
+    }
+    if ex.deadline.is_some() {
+        helps.push("a later deadline".to_string());
+    }
+    let help = if helps.is_empty() {
+        String::new()
+    } else {
+        format!("; {} would help", helps.join(" or "))
+    };
+    let limit = match ex.deadline {
+        Some(dl) => format!("its deadline {dl}"),
+        None => format!("the window's end {}", w.end),
+    };
+    if solo.crossed {
+        return format!(
+            "every run that ends by {limit} meets a no-running blackout ({}){help}",
+            spans(BlackoutKind::NoRunning).join("; ")
+        );
+    }
+    if !solo.any_start {
+        return format!(
+            "no start day from {} is free of the no-starts blackouts ({}) in time for {limit}",
+            w.date(first as i64),
+            spans(BlackoutKind::NoStarts).join("; ")
+        );
+    }
+    format!("no run from an allowed start ends by {limit} at its largest share of {top}{help}")
 }

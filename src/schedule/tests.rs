@@ -344,6 +344,7 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
             experiment: 0,
             start: d("2027-01-04"),
             share: Share::WHOLE,
+            share_before: Share::WHOLE,
             end: d("2027-01-17"),
         }],
         excluded: vec![
@@ -351,11 +352,13 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
                 experiment: 2,
                 ended: Some(d("2027-01-08")),
                 reason: "finished".into(),
+                ran: None,
             },
             Excluded {
                 experiment: 5,
                 ended: None,
                 reason: "cancelled".into(),
+                ran: None,
             },
         ],
         ..PlanRequest::default()
@@ -519,12 +522,18 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
                     experiment: i,
                     ended: Some(t),
                     reason: "finished".into(),
+                    ran: Some(crate::plan::Ran {
+                        start: s,
+                        end: t,
+                        share: Some(sh),
+                    }),
                 });
             } else if s < today {
                 r.fixed.push(FixedRun {
                     experiment: i,
                     start: s,
                     share: sh,
+                    share_before: sh,
                     end: t,
                 });
             }

@@ -52,11 +52,14 @@ fn own_end(
 }
 
 /// Checks `plan` against every rule; `Err` lists each violation found.
+/// `Ok` lists the facts of the input worth a look that are not the plan's
+/// doing: a pool its running tests alone overload at the shares the
+/// progress file gives them.
 pub fn verify(
     portfolio: &Portfolio,
     request: &PlanRequest,
     plan: &Plan,
-) -> Result<(), Vec<String>> {
+) -> Result<Vec<String>, Vec<String>> {
     let p = portfolio;
     let w = p.window;
     let mut bad: Vec<String> = Vec::new();
@@ -104,16 +107,42 @@ pub fn verify(
     }
     let fixed = |i: usize| request.fixed.iter().find(|f| f.experiment == i);
     let excluded = |i: usize| request.excluded.iter().find(|x| x.experiment == i);
+    let today = request.today.unwrap_or(w.start);
     for (i, ex) in p.experiments.iter().enumerate() {
         if let Some(f) = fixed(i) {
             if runs[i] != Some((f.start, f.end, f.share.fraction())) {
                 bad.push(format!("running `{}` was not kept as given", ex.id));
             }
+            if f.share != f.share_before {
+                // A re-share: only where the portfolio allows it, upwards,
+                // to a share level within the test's maximum.
+                if !p.planning.reshare_running {
+                    bad.push(format!(
+                        "running `{}` was re-shared, which the portfolio does not allow",
+                        ex.id
+                    ));
+                }
+                if f.share < f.share_before
+                    || !p.share_levels.contains(f.share)
+                    || f.share > ex.max_share
+                {
+                    bad.push(format!(
+                        "running `{}` was re-shared from {} to {}, not a larger share level within its maximum",
+                        ex.id, f.share_before, f.share
+                    ));
+                }
+            }
             continue;
         }
-        if excluded(i).is_some() {
+        if let Some(x) = excluded(i) {
             if runs[i].is_some() {
                 bad.push(format!("`{}` left the queue but is scheduled", ex.id));
+            }
+            if plan.experiments.get(i).map(|pe| pe.ran) != Some(x.ran) {
+                bad.push(format!(
+                    "`{}` does not show what it ran as the progress gives it",
+                    ex.id
+                ));
             }
             continue;
         }
@@ -227,16 +256,21 @@ pub fn verify(
             }
         }
     }
-    // Pools day by day.
+    // Pools day by day. Running tests of a re-plan are facts, not
+    // choices: a day their shares as given overload on their own is the
+    // input's doing (reported in `Ok`); any more than that, whether from a
+    // planned test or from a re-share, is the plan's.
+    let mut facts: Vec<String> = Vec::new();
     for (pi, pool) in p.pools.iter().enumerate() {
         let pp = plan.pools.get(pi);
         let mut day = w.start;
         let mut k = 0usize;
+        // First and last day of the input's overload, and its peak.
+        let mut input_over: Option<(NaiveDate, NaiveDate, f64, u32)> = None;
         while day <= w.end {
             let mut used = 0.0;
+            let mut given = 0.0;
             let mut count = 0u32;
-            // Running tests of a re-plan are facts, not choices: a day they
-            // overload on their own is not the plan's fault.
             let mut planned = false;
             for (i, ex) in p.experiments.iter().enumerate() {
                 if ex.pool != pi {
@@ -244,23 +278,48 @@ pub fn verify(
                 }
                 if let Some((s, e, sh)) = runs[i] {
                     if s <= day && day <= e {
-                        used += sh;
                         count += 1;
-                        planned |= fixed(i).is_none();
+                        match fixed(i) {
+                            Some(f) => {
+                                used += f.share_on(day, today).fraction();
+                                given += f.share_before.fraction();
+                            }
+                            None => {
+                                used += sh;
+                                planned = true;
+                            }
+                        }
+                    }
+                } else if let Some(r) = excluded(i).and_then(|x| x.ran) {
+                    if r.start <= day && day <= r.end {
+                        let sh = r.share.map_or(0.0, Share::fraction);
+                        used += sh;
+                        given += sh;
+                        count += 1;
                     }
                 }
             }
-            if planned && pool.sharing == Sharing::Split && used > 1.0 + TOL {
+            let over_share = pool.sharing == Sharing::Split && used > 1.0 + TOL;
+            let over_count = count > pool.max_concurrent;
+            let excused = !planned && used <= given + TOL;
+            if over_share && !excused {
                 bad.push(format!(
                     "`{}` is shared {:.4} on {day}, over 1",
                     pool.id, used
                 ));
             }
-            if planned && count > pool.max_concurrent {
+            if over_count && planned {
                 bad.push(format!(
                     "`{}` runs {count} tests on {day}, over its cap {}",
                     pool.id, pool.max_concurrent
                 ));
+            }
+            if (over_share || over_count) && excused {
+                let (from, peak, most) = match input_over {
+                    Some((from, _, peak, most)) => (from, peak.max(used), most.max(count)),
+                    None => (day, used, count),
+                };
+                input_over = Some((from, day, peak, most));
             }
             match pp.and_then(|pp| pp.days.get(k)) {
                 Some(pd)
@@ -274,6 +333,12 @@ pub fn verify(
             }
             day += Duration::days(1);
             k += 1;
+        }
+        if let Some((from, to, peak, most)) = input_over {
+            facts.push(format!(
+                "`{}` is overloaded by its running tests as the input gives them, on days from {from} to {to} (up to {peak:.4} of it, {most} tests; cap {}): a fact of the input, not of the plan",
+                pool.id, pool.max_concurrent
+            ));
         }
     }
     // The objective.
@@ -303,7 +368,7 @@ pub fn verify(
         ));
     }
     if bad.is_empty() {
-        Ok(())
+        Ok(facts)
     } else {
         Err(bad)
     }

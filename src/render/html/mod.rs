@@ -157,6 +157,7 @@ impl Renderer for Html {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut s = String::new();
         let (fit, not_fit) = counts(plan);
+        let decide = crate::render::common::decision_count(plan);
         let title = format!("Experiment plan: {}", plan.portfolio);
         let _ = writeln!(s, "<!DOCTYPE html>");
         let _ = writeln!(
@@ -192,9 +193,14 @@ impl Renderer for Html {
         );
         let _ = writeln!(
             s,
-            r#"<li><span class="big">{fit} of {}</span><span class="small">tests fit in the window{}</span></li>"#,
-            fit + not_fit,
-            match plan.experiments.len() - fit - not_fit {
+            r#"<li><span class="big">{fit} of {}</span><span class="small">tests fit in the window{}{}</span></li>"#,
+            fit + not_fit + decide,
+            match decide {
+                0 => String::new(),
+                1 => "; 1 running test needs a decision".to_string(),
+                n => format!("; {n} running tests need a decision"),
+            },
+            match plan.experiments.len() - fit - not_fit - decide {
                 0 => String::new(),
                 1 => "; 1 more has finished or been cancelled".to_string(),
                 done => format!("; {done} more have finished or been cancelled"),

@@ -6,8 +6,8 @@
 use super::{esc, pool_fill, RunWords};
 use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use crate::render::common::{
-    blackout_covers, counts, experiments_in, is_split, long_date, orphans, out_word, percent,
-    pool_label, short_date, units, weeks,
+    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pool_label,
+    short_date, units, weeks,
 };
 use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
@@ -225,9 +225,9 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
                 Some(r) => bar(plan, &scale, e, r, y, pool_fill(gi), s),
                 None => {
                     let word = if e.status == crate::plan::Status::Unscheduled {
-                        "does not fit: see the list below"
+                        "does not fit: see the list below".to_string()
                     } else {
-                        out_word(e)
+                        esc(&crate::render::common::closed_words(e))
                     };
                     let _ = writeln!(
                         s,

@@ -3,7 +3,7 @@
 
 use super::{esc, pool_fill, RunWords};
 use crate::plan::Plan;
-use crate::render::common::{out_word, pool_label, thousands};
+use crate::render::common::{pool_label, thousands};
 use std::fmt::Write;
 
 /// The table of tests, into `s`.
@@ -48,7 +48,7 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
                 let _ = write!(
                     s,
                     r#"<td class="num">—</td><td class="muted" colspan="2">{}</td><td class="num">{}</td><td class="num">—</td>"#,
-                    out_word(e),
+                    esc(&crate::render::common::closed_words(e)),
                     thousands(e.units_needed)
                 );
             }

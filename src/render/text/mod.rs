@@ -171,9 +171,10 @@ impl Renderer for Text {
             "{}",
             wrap(
                 &format!(
-                    "{fit_n} of {} tests fit, {not_n} {}{}.",
+                    "{fit_n} of {} tests fit, {not_n} {}{}{}.",
                     plan.experiments.len(),
                     super::common::do_not(not_n),
+                    super::common::decision_note(plan),
                     super::common::closed_note(plan)
                 ),
                 width,

@@ -113,6 +113,8 @@ fn table_for(
     t.set_header(header.iter().map(Cell::new));
     for e in &plan.experiments {
         let run = e.run;
+        // A finished or cancelled test shows the days it ran (re-plans).
+        let past = crate::render::common::past_run(e);
         let mut row = vec![Cell::new(&e.id)];
         if layout >= Layout::Widest {
             row.push(Cell::new(fit(&e.title, title_room)));
@@ -120,14 +122,27 @@ fn table_for(
         if layout >= Layout::Compact {
             row.push(Cell::new(&e.pool));
         }
-        match &run {
+        match run.as_ref().or(past.as_ref()) {
             Some(r) => {
-                row.push(Cell::new(r.share.to_string()).set_alignment(CellAlignment::Right));
+                let share = match e.ran {
+                    Some(ran) if run.is_none() => {
+                        ran.share.map_or("—".to_string(), |s| s.to_string())
+                    }
+                    _ => r.share.to_string(),
+                };
+                row.push(Cell::new(share).set_alignment(CellAlignment::Right));
                 row.push(Cell::new(r.start));
                 if layout >= Layout::Wide {
                     row.push(Cell::new(r.end));
                 }
-                row.push(Cell::new(r.result_date));
+                // A past run shows when it ended, not a result to come.
+                row.push(match (run, e.status) {
+                    (None, crate::plan::Status::Cancelled) => {
+                        Cell::new(format!("stopped {}", r.end))
+                    }
+                    (None, _) => Cell::new(format!("ended {}", r.end)),
+                    _ => Cell::new(r.result_date),
+                });
                 if layout >= Layout::Medium {
                     row.push(Cell::new(r.days).set_alignment(CellAlignment::Right));
                 }

@@ -183,6 +183,7 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
         };
         let sgr = POOL_COLOURS[gi % POOL_COLOURS.len()];
         for e in exps {
+            let past = crate::render::common::past_run(e);
             let run = e.run;
             let label = format!("  {}", fit(&e.id, label_w - 3));
             let label = format!(
@@ -203,6 +204,15 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
                         }
                     }
                     s.trim_end().to_string()
+                }
+                None if past.is_some() => {
+                    // Drawn where it ran, dim, and marked.
+                    let glyphs: String = track.row(past.as_ref(), &blackout).into_iter().collect();
+                    format!(
+                        "{} {}",
+                        paint(glyphs.trim_end(), "2", colour),
+                        paint(out_word(e), "2", colour)
+                    )
                 }
                 None if e.status == crate::plan::Status::Unscheduled => {
                     paint("does not fit (see below)", "2", colour)
