@@ -130,6 +130,7 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
             State::Finished {
                 started: Some(start),
                 ended: Some(end),
+                share: Some(share),
             }
         } else {
             let pool = &portfolio.pools[portfolio.experiments[i].pool];
