@@ -31,7 +31,7 @@
 //! tables do. The inflation factor is the maximum information over the
 //! fixed test's: `(drift / (z_{a_s} + z_beta))^2`.
 
-use super::{Sides, SizingError};
+use super::{round_up, SampleSize, Sides, SizingError, MAX_UNITS};
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};
 use statrs::function::erf::erfc;
@@ -265,7 +265,11 @@ fn carry(prev: Option<&Carried>, c: f64, t: f64, sides: Sides, drift: f64) -> Ca
     let (lo, hi) = region(c, sides, mean);
     let (z, w) = grid(mean, lo, hi);
     let h = match prev {
-        None => z.iter().zip(&w).map(|(&x, &wi)| wi * phi(x - mean)).collect(),
+        None => z
+            .iter()
+            .zip(&w)
+            .map(|(&x, &wi)| wi * phi(x - mean))
+            .collect(),
         Some(p) => {
             let dt = t - p.t;
             let sd = dt.sqrt();
@@ -413,6 +417,33 @@ fn boundaries(p: &Plan, info: &[f64]) -> Vec<f64> {
             out
         }
     }
+}
+
+/// The maximum sample of a design with looks: the fixed size `fixed` times
+/// the inflation factor, each arm rounded up.
+pub fn inflate(fixed: &SampleSize, ratio: f64, inflation: f64) -> Result<SampleSize, SizingError> {
+    let control_exact = fixed.control_exact * inflation;
+    let treatment_exact = control_exact * ratio;
+    let control = round_up(control_exact).max(1);
+    let treatment = round_up(treatment_exact).max(1);
+    let total = u64::from(fixed.arms - 1)
+        .checked_mul(treatment)
+        .and_then(|t| t.checked_add(control))
+        .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())
+        .ok_or_else(|| {
+            SizingError::NoSolution(format!(
+                "with its looks the design needs {control_exact:.0} units in the control arm, \
+                 beyond any traffic; use a larger MDE"
+            ))
+        })?;
+    Ok(SampleSize {
+        control_exact,
+        treatment_exact,
+        control,
+        treatment,
+        total,
+        ..*fixed
+    })
 }
 
 /// Solves a group-sequential design: boundaries, inflation factor,
