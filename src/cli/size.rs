@@ -63,7 +63,7 @@ pub enum BoundaryArg {
     ObrienFleming,
     /// Pocock: the same z at every look
     Pocock,
-    /// Lan-DeMets spending, O'Brien-Fleming type (the usual choice)
+    /// Lan-DeMets spending, O'Brien-Fleming type (the default)
     SpendingObrienFleming,
     /// Lan-DeMets spending, Pocock type
     SpendingPocock,

@@ -310,8 +310,9 @@ fn total_alpha(bounds: &[f64], info: &[f64], sides: Sides) -> f64 {
         .sum()
 }
 
-/// Root of a function that decreases in x (or increases: `rising`) on
-/// [lo, hi] by the Illinois variant of false position, to `tol` in x.
+/// A root of `f` on [lo, hi], where `f(lo)` and `f(hi)` differ in sign, by
+/// the Illinois variant of false position, to `tol` in x. Without a sign
+/// change it returns the end nearer a root.
 fn solve(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, tol: f64) -> f64 {
     let mut flo = f(lo);
     let mut fhi = f(hi);
