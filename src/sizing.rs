@@ -27,10 +27,17 @@
 //!   same factor (Deng, Xu, Kohavi & Walker 2013, "Improving the sensitivity
 //!   of online controlled experiments by utilizing pre-experiment data",
 //!   WSDM '13).
+//! * Non-inferiority (guardrail) tests: [`noninferiority`] (Blackwelder
+//!   1982 for rates; Chow, Shao & Wang 2008 for means).
+//! * Interim looks (group-sequential designs): [`sequential`] (Jennison &
+//!   Turnbull 2000; Lan & DeMets 1983; Armitage, McPherson & Rowe 1969).
 //!
 //! Conventions: `ratio` is treatment units per control unit; a design with
 //! `arms` arms has one control and `arms - 1` treatments, each of the
 //! treatment size. All sizes are per arm; `total` sums every arm.
+
+pub mod noninferiority;
+pub mod sequential;
 
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};

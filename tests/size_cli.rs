@@ -224,3 +224,186 @@ fn a_rate_method_on_a_mean_is_refused() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("`pooled`") && err.contains("t, z"), "{err}");
 }
+
+/// The command issue 11 names prints every field of a design with looks.
+#[test]
+fn looks_add_the_promised_fields() {
+    let v = json(&[
+        "--baseline",
+        "0.1",
+        "--mde",
+        "0.1",
+        "--looks",
+        "3",
+        "--boundary",
+        "obrien-fleming",
+    ]);
+    let fixed = json(&["--baseline", "0.1", "--mde", "0.1"]);
+    let f = float(&v, "fixed_control_exact");
+    assert!((f - float(&fixed, "control_exact")).abs() < 1e-9 * f);
+    let inflation = float(&v, "inflation");
+    assert!(inflation > 1.0 && inflation < 1.1, "{inflation}");
+    let max = float(&v, "control_exact");
+    assert!((max - f * inflation).abs() < 1e-9 * max);
+    assert_eq!(int(&v, "control"), max.ceil() as u64);
+    let list = |key: &str| -> Vec<f64> {
+        v[key]
+            .as_array()
+            .unwrap_or_else(|| panic!("`{key}` is not a list"))
+            .iter()
+            .map(|x| x.as_f64().unwrap())
+            .collect()
+    };
+    let boundaries = list("boundaries");
+    assert_eq!(boundaries.len(), 3);
+    assert!(boundaries.windows(2).all(|w| w[0] > w[1]), "{boundaries:?}");
+    let stops = list("stop_probabilities");
+    assert_eq!(stops.len(), 3);
+    let power: f64 = stops.iter().sum();
+    assert!((power - 0.8).abs() < 1e-9, "the stops sum to {power}");
+    let h1 = float(&v, "expected_control_exact_h1");
+    let h0 = float(&v, "expected_control_exact_h0");
+    assert!(h1 < h0 && h0 < max && h1 > f / 2.0, "{h1} {h0} {max}");
+    assert_eq!(v["boundary"], "obrien-fleming");
+    assert!(float(&v, "achieved_power") >= 0.8);
+}
+
+#[test]
+fn one_look_is_the_fixed_test_and_bad_looks_are_refused() {
+    let one = json(&["--baseline", "0.1", "--mde", "0.1", "--looks", "1"]);
+    let fixed = json(&["--baseline", "0.1", "--mde", "0.1"]);
+    assert_eq!(int(&one, "control"), int(&fixed, "control"));
+    assert!((float(&one, "inflation") - 1.0).abs() < 1e-9);
+    for looks in ["0", "11"] {
+        let out = cmd(&[
+            "size",
+            "--baseline",
+            "0.1",
+            "--mde",
+            "0.1",
+            "--looks",
+            looks,
+        ])
+        .assert_exit_code(2);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains("`--looks`"), "{err}");
+    }
+    cmd(&[
+        "size",
+        "--baseline",
+        "0.1",
+        "--mde",
+        "0.1",
+        "--boundary",
+        "pocock",
+    ])
+    .assert_exit_code(2);
+}
+
+/// A guardrail: p = 0.2, a 5% relative margin (0.01 absolute), one-sided
+/// 0.05, power 0.8. Blackwelder (1982): (z_.95 + z_.8)^2 x 0.16 x 2 /
+/// 0.01^2 = 19784.183 per arm, with z from scipy.stats.norm.
+#[test]
+fn a_margin_sizes_a_one_sided_non_inferiority_test() {
+    let v = json(&["--baseline", "0.2", "--margin", "0.05"]);
+    assert!((float(&v, "control_exact") - 19784.18314).abs() < 1e-3);
+    assert_eq!(int(&v, "control"), 19785);
+    assert_eq!(v["sides"], "one");
+    assert_eq!(v["method"], "unpooled");
+    assert!((float(&v, "null_value") - 0.19).abs() < 1e-12);
+    assert_eq!(v["margin"]["value"], 0.05);
+    // The same fields as a superiority size.
+    let sup = json(&["--baseline", "0.2", "--mde", "0.05"]);
+    for key in sup.as_object().unwrap().keys() {
+        assert!(v.get(key).is_some(), "`{key}` is missing");
+    }
+    // A harm upward (a negative margin) costs the same here.
+    let up = json(&["--baseline", "0.2", "--margin-abs=-0.01"]);
+    assert!((float(&up, "control_exact") - 19784.18314).abs() < 1e-3);
+    assert!((float(&up, "null_value") - 0.21).abs() < 1e-12);
+}
+
+#[test]
+fn bad_margins_are_refused_naming_the_flag() {
+    let cases: &[(&[&str], &str)] = &[
+        (&["--baseline", "0.1", "--margin", "0"], "--margin"),
+        (
+            &["--baseline", "0.1", "--margin-abs", "0.2"],
+            "--margin-abs",
+        ),
+        (
+            &["--baseline", "0.1", "--margin", "0.1", "--method", "pooled"],
+            "Blackwelder",
+        ),
+        (
+            &["--baseline", "0.1", "--margin", "0.1", "--mde", "0.1"],
+            "--mde",
+        ),
+    ];
+    for (args, needle) in cases {
+        let mut all = vec!["size"];
+        all.extend_from_slice(args);
+        let out = cmd(&all).assert_exit_code(2);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(needle), "{all:?}: {err}");
+    }
+}
+
+fn detect(args: &[&str]) -> Value {
+    let mut all = vec!["detect"];
+    all.extend_from_slice(args);
+    all.extend_from_slice(&["--format", "json"]);
+    let out = cmd(&all).stdout();
+    serde_json::from_str(&out).expect("stdout is one JSON object")
+}
+
+#[test]
+fn detect_inverts_size() {
+    // The default rate design needs 14,751 per arm for a 10% lift.
+    let v = detect(&["--baseline", "0.1", "--n", "14751"]);
+    let mde = float(&v, "mde");
+    assert!(mde > 0.0999 && mde < 0.1, "{mde}");
+    assert!((float(&v, "mde_abs") - 0.1 * mde).abs() < 1e-15);
+    assert_eq!(float(&v, "power"), 0.8);
+    assert_eq!(float(&v, "control"), 14751.0);
+    let back = json(&["--baseline", "0.1", &format!("--mde={mde}")]);
+    assert!(int(&back, "control").abs_diff(14751) <= 1);
+    // The power for the effect `size` was asked for.
+    let p = detect(&["--baseline", "0.1", "--n", "14751", "--mde", "0.1"]);
+    let power = float(&p, "power");
+    assert!(power > 0.8 && power < 0.8001, "{power}");
+    // A fall is detectable too, and a larger one is needed on a rate below 0.5.
+    let down = detect(&["--baseline", "0.1", "--n", "14751", "--decrease"]);
+    assert!(float(&down, "mde") < 0.0 && -float(&down, "mde") > mde * 0.9);
+}
+
+#[test]
+fn detect_from_days_splits_the_units_over_the_arms() {
+    // 8,000 a day x 50% x 28 days = 112,000 units; ratio 1.5 and 3 arms:
+    // control = 112,000 / (1 + 2 x 1.5) = 28,000.
+    let v = detect(&[
+        "--mean", "38.5", "--sd", "61", "--daily", "8000", "--share", "0.5", "--days", "28",
+        "--ratio", "1.5", "--arms", "3",
+    ]);
+    assert_eq!(float(&v, "control"), 28_000.0);
+    assert_eq!(float(&v, "treatment"), 42_000.0);
+    let n = detect(&[
+        "--mean", "38.5", "--sd", "61", "--n", "28000", "--ratio", "1.5", "--arms", "3",
+    ]);
+    assert_eq!(float(&v, "mde_abs"), float(&n, "mde_abs"));
+    let out = cmd(&["detect", "--baseline", "0.1"]).assert_exit_code(2);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--n"));
+    let out = cmd(&["detect", "--baseline", "0.1", "--n", "0"]).assert_exit_code(2);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("`--n`"));
+}
+
+#[test]
+fn help_warns_against_reading_a_fixed_test_early() {
+    for command in ["size", "detect"] {
+        let help = cmd(&[command, "--help"]).stdout();
+        assert!(
+            help.contains("inflates false positives") && help.contains("--looks"),
+            "{command} --help: {help}"
+        );
+    }
+}

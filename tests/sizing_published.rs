@@ -190,3 +190,96 @@ fn kohavi_2009_rule_of_thumb_example() {
     assert!((control_exact(&v) - 122123.46528317548).abs() < 1e-4);
     assert!((control_exact(&v) / rule - 1.0).abs() < 0.005);
 }
+
+/// `sluice size --looks K --boundary NAME` as JSON (a 10% lift on a 10%
+/// baseline; the boundaries and the inflation do not depend on the metric).
+fn looks(k: u32, boundary: &str, power: &str) -> Value {
+    size(&[
+        "--baseline",
+        "0.1",
+        "--mde",
+        "0.1",
+        "--looks",
+        &k.to_string(),
+        "--boundary",
+        boundary,
+        "--power",
+        power,
+    ])
+}
+
+fn numbers(v: &Value, key: &str) -> Vec<f64> {
+    v[key]
+        .as_array()
+        .unwrap_or_else(|| panic!("`{key}` is not a list: {v}"))
+        .iter()
+        .map(|x| x.as_f64().expect("a number"))
+        .collect()
+}
+
+/// Jennison & Turnbull (2000), *Group Sequential Methods with Applications
+/// to Clinical Trials*, Tables 2.1 to 2.4, two-sided alpha 0.05 (FROM
+/// MEMORY): Pocock's C_P(K) and O'Brien & Fleming's C_B(K) for K = 2..5,
+/// and the inflation factors R_P, R_B at power 0.8 and 0.9. Each remembered
+/// value was cross-checked in tests/reference/check_stats.py against the
+/// constant solved with scipy 1.17.1's multivariate_normal.cdf over the
+/// looks' joint normal law: all 24 within 0.0005 of it.
+#[test]
+fn jennison_turnbull_tables_2_1_to_2_4() {
+    // (K, C, R at power 0.8, R at power 0.9)
+    let pocock = [
+        (2, 2.178, 1.110, 1.100),
+        (3, 2.289, 1.166, 1.151),
+        (4, 2.361, 1.202, 1.183),
+        (5, 2.413, 1.229, 1.207),
+    ];
+    let obrien_fleming = [
+        (2, 1.977, 1.008, 1.007),
+        (3, 2.004, 1.017, 1.016),
+        (4, 2.024, 1.024, 1.022),
+        (5, 2.040, 1.028, 1.026),
+    ];
+    for (name, table) in [("pocock", pocock), ("obrien-fleming", obrien_fleming)] {
+        for (k, c, r8, r9) in table {
+            let v8 = looks(k, name, "0.8");
+            let b = numbers(&v8, "boundaries");
+            // C_P is every look's z; C_B the final look's (c_k = C_B sqrt(K / k)).
+            let constant = if name == "pocock" {
+                b[0]
+            } else {
+                b[b.len() - 1]
+            };
+            assert!(
+                (constant - c).abs() < 1e-3,
+                "{name} K={k}: C {constant} vs {c}"
+            );
+            let inflation = v8["inflation"].as_f64().unwrap();
+            assert!(
+                (inflation - r8).abs() < 1e-3,
+                "{name} K={k}: R {inflation} vs {r8}"
+            );
+            let v9 = looks(k, name, "0.9");
+            let inflation = v9["inflation"].as_f64().unwrap();
+            assert!(
+                (inflation - r9).abs() < 1e-3,
+                "{name} K={k}: R {inflation} vs {r9}"
+            );
+        }
+    }
+}
+
+/// Lan & DeMets (1983) spending with the O'Brien-Fleming-type function,
+/// K = 5 equal looks, alpha 0.05 two-sided: the boundaries commonly printed
+/// as 4.88, 3.36, 2.68, 2.29, 2.03 (FROM MEMORY, as issue 11 quotes them).
+/// Cross-check (tests/reference/check_stats.py): the alpha scipy's
+/// multivariate_normal.cdf finds spent by sluice's boundaries 4.8769,
+/// 3.3570, 2.6803, 2.2898, 2.0310 equals the spending function at every
+/// look within 1e-7.
+#[test]
+fn lan_demets_obrien_fleming_type_k5() {
+    let v = looks(5, "spending-obrien-fleming", "0.8");
+    let want = [4.88, 3.36, 2.68, 2.29, 2.03];
+    for (got, want) in numbers(&v, "boundaries").iter().zip(want) {
+        assert!((got - want).abs() <= 0.005, "{got} vs {want}");
+    }
+}

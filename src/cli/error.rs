@@ -170,7 +170,7 @@ impl fmt::Display for Error {
                 "give the metric: `--baseline P` for a rate, or `--mean M --sd S` for a mean",
             ),
             Error::SizeEffect => f.write_str(
-                "give the effect: `--mde X` for a relative lift (0.05 = 5%), or `--mde-abs X` for an absolute difference",
+                "give the effect: `--mde X` for a relative lift (0.05 = 5%), or `--mde-abs X` for an absolute difference (for a guardrail: `--margin X` or `--margin-abs X`)",
             ),
             Error::Design { error, effect } => {
                 f.write_str(&size::flag_message(error, *effect))

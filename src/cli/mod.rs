@@ -4,6 +4,7 @@
 //! [`error`] words every failure and picks its exit code.
 
 mod check;
+mod detect;
 mod error;
 mod plan;
 mod replan;
@@ -36,6 +37,8 @@ pub struct Cli {
 pub enum Command {
     /// Size one test: units per arm, power, and (with --daily) days to run
     Size(size::SizeArgs),
+    /// What one test can detect with a given sample, or its power for an effect
+    Detect(detect::DetectArgs),
     /// Validate a portfolio file and show which tests could fit the window
     Check(check::CheckArgs),
     /// Plan the portfolio: a start, share and end for every test that fits
@@ -108,6 +111,7 @@ fn write_stdout(bytes: &[u8]) -> Result<(), Error> {
 pub fn run(cli: Cli) -> Result<Vec<u8>, Error> {
     match cli.command {
         Command::Size(args) => size::run(&args),
+        Command::Detect(args) => detect::run(&args),
         Command::Check(args) => check::run(&args),
         Command::Plan(args) => plan::run(&args),
         Command::Replan(args) => replan::run(&args),

@@ -1,6 +1,8 @@
 //! `sluice size`: the size, power and duration of one test.
 
 use super::{Error, TextOrJson};
+use crate::sizing::noninferiority;
+use crate::sizing::sequential::{self, Boundary};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
 use crate::words::thousands as fmt_units;
 use clap::{Args, ValueEnum};
@@ -55,14 +57,57 @@ impl From<CorrectionArg> for Correction {
     }
 }
 
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+pub enum BoundaryArg {
+    /// O'Brien-Fleming: strict early, near the fixed test's z at the end
+    ObrienFleming,
+    /// Pocock: the same z at every look
+    Pocock,
+    /// Lan-DeMets spending, O'Brien-Fleming type (the default)
+    SpendingObrienFleming,
+    /// Lan-DeMets spending, Pocock type
+    SpendingPocock,
+}
+
+impl From<BoundaryArg> for Boundary {
+    fn from(b: BoundaryArg) -> Boundary {
+        match b {
+            BoundaryArg::ObrienFleming => Boundary::ObrienFleming,
+            BoundaryArg::Pocock => Boundary::Pocock,
+            BoundaryArg::SpendingObrienFleming => Boundary::SpendingObrienFleming,
+            BoundaryArg::SpendingPocock => Boundary::SpendingPocock,
+        }
+    }
+}
+
+/// The caution about reading a test early, for `--help` of `size` and
+/// `detect` (common practice; the inflation is Armitage, McPherson & Rowe
+/// 1969's finding). A macro so `concat!` can put it into help texts.
+macro_rules! early_reading {
+    () => {
+        "Reading a test early: a fixed-horizon test (no --looks) is valid only \
+         at its planned size. Checking it before then and stopping when it \
+         looks significant inflates false positives well beyond alpha. Only a \
+         design with planned looks (sluice size --looks K --boundary NAME) \
+         allows stopping early, and only at its boundaries."
+    };
+}
+pub(super) use early_reading;
+
 #[derive(Args, Debug)]
 // Negative numbers are values, not flags: `--mean -50` is a real metric, and
 // `--alpha -0.1` should reach the range check that names `--alpha`.
 #[command(allow_negative_numbers = true)]
-#[command(after_help = "Examples:\n  \
+#[command(after_help = concat!("Examples:\n  \
     sluice size --baseline 0.04 --mde 0.10\n  \
     sluice size --baseline 0.04 --mde-abs 0.005 --arms 3 --daily 20000 --share 0.5\n  \
-    sluice size --mean 38.5 --sd 61 --mde 0.03 --rho 0.4 --format json")]
+    sluice size --mean 38.5 --sd 61 --mde 0.03 --rho 0.4 --format json\n  \
+    sluice size --baseline 0.2 --margin 0.05\n  \
+    sluice size --baseline 0.1 --mde 0.1 --looks 3 --boundary obrien-fleming\n\n\
+    Guardrails: --margin sizes a one-sided non-inferiority test (true \
+    difference 0) that the treatment is not worse than the control by more \
+    than the margin; a positive margin makes a fall the harm, a negative one \
+    a rise.\n\n", early_reading!()))]
 pub struct SizeArgs {
     /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
     #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
@@ -91,6 +136,25 @@ pub struct SizeArgs {
         help_heading = "Effect"
     )]
     pub mde_abs: Option<f64>,
+    /// Guardrail: the largest acceptable harm, relative (0.02 = a 2% fall);
+    /// sizes a one-sided non-inferiority test instead
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with_all = ["mde", "mde_abs", "margin_abs"],
+        help_heading = "Effect"
+    )]
+    pub margin: Option<f64>,
+    /// Guardrail: the largest acceptable harm as an absolute difference
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with_all = ["mde", "mde_abs"],
+        help_heading = "Effect"
+    )]
+    pub margin_abs: Option<f64>,
 
     /// Type I error rate of the whole test
     #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
@@ -126,6 +190,19 @@ pub struct SizeArgs {
     /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
     #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
     pub rho: f64,
+
+    /// Planned looks, equally spaced in information (1 = fixed horizon)
+    #[arg(long, value_name = "K", help_heading = "Interim looks")]
+    pub looks: Option<u32>,
+    /// Stopping boundary of the looks
+    #[arg(
+        long,
+        value_enum,
+        requires = "looks",
+        default_value_t = BoundaryArg::SpendingObrienFleming,
+        help_heading = "Interim looks"
+    )]
+    pub boundary: BoundaryArg,
 
     /// Eligible units per day, to compute the days the test needs
     #[arg(long, value_name = "N", help_heading = "Duration")]
@@ -179,6 +256,14 @@ pub struct SizeReport {
     pub total: u64,
     /// Power at the rounded sizes.
     pub achieved_power: f64,
+    /// A guardrail's margin (then `effect` is the assumed true difference, 0).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub margin: Option<Effect>,
+    /// A guardrail's treatment value under H0: the baseline less the margin.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub null_value: Option<f64>,
+    #[serde(flatten)]
+    pub looks: Option<LooksReport>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub daily: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -187,34 +272,73 @@ pub struct SizeReport {
     pub days: Option<u64>,
 }
 
+/// The fields a design with interim looks adds to the JSON.
+#[derive(Serialize, Debug)]
+pub struct LooksReport {
+    pub looks: u32,
+    pub boundary: Boundary,
+    /// The fixed-horizon control arm, before rounding.
+    pub fixed_control_exact: f64,
+    /// Maximum over fixed.
+    pub inflation: f64,
+    /// Information fraction of each look.
+    pub information: Vec<f64>,
+    /// The efficacy boundary (z) at each look.
+    pub boundaries: Vec<f64>,
+    /// Type I error spent by each look, cumulative.
+    pub alpha_spent: Vec<f64>,
+    /// Probability of stopping for efficacy (planned direction) at each look
+    /// under the planned effect; they sum to the power.
+    pub stop_probabilities: Vec<f64>,
+    pub expected_control_exact_h1: f64,
+    pub expected_control_exact_h0: f64,
+}
+
+/// Whether the flags size a guardrail (non-inferiority) test.
+fn is_guardrail(a: &SizeArgs) -> bool {
+    a.margin.is_some() || a.margin_abs.is_some()
+}
+
 fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
     let metric = match (a.baseline, a.mean, a.sd) {
         (Some(p), None, None) => Metric::Rate { baseline: p },
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
         _ => return Err(Error::SizeMetric),
     };
-    let effect = match (a.mde, a.mde_abs) {
-        (Some(x), None) => Effect::Relative(x),
-        (None, Some(x)) => Effect::Absolute(x),
+    // A guardrail's `effect` is its margin (see sizing::noninferiority).
+    let effect = match (a.mde, a.mde_abs, a.margin, a.margin_abs) {
+        (Some(x), None, None, None) | (None, None, Some(x), None) => Effect::Relative(x),
+        (None, Some(x), None, None) | (None, None, None, Some(x)) => Effect::Absolute(x),
         _ => return Err(Error::SizeEffect),
     };
-    let method = a
-        .method
-        .map(Method::from)
-        .unwrap_or_else(|| Method::default_for(&metric));
+    let guardrail = is_guardrail(a);
+    let method = a.method.map(Method::from).unwrap_or(match metric {
+        // Blackwelder's variance is the unpooled one at the assumed rates.
+        Metric::Rate { .. } if guardrail => Method::Unpooled,
+        _ => Method::default_for(&metric),
+    });
     let design = Design {
         metric,
         effect,
         alpha: a.alpha,
         power: a.power,
-        sides: if a.one_sided { Sides::One } else { Sides::Two },
+        sides: if a.one_sided || guardrail {
+            Sides::One
+        } else {
+            Sides::Two
+        },
         arms: a.arms,
         ratio: a.ratio,
         method,
         correction: a.correction.into(),
         rho: a.rho,
     };
-    design.validate().map_err(|error| Error::Design {
+    let checked = if guardrail {
+        noninferiority::equivalent(&design).map(|_| ())
+    } else {
+        design.validate()
+    };
+    checked.map_err(|error| Error::Design {
         error,
         effect: design.effect,
     })?;
@@ -241,8 +365,23 @@ pub(super) fn flag_message(e: &SizingError, effect: Effect) -> String {
 pub(super) fn flagify(message: String) -> String {
     let mut out = message;
     for field in [
-        "alpha", "power", "arms", "ratio", "rho", "mde_abs", "mde", "baseline", "mean", "sd",
-        "share", "daily",
+        "alpha",
+        "power",
+        "arms",
+        "ratio",
+        "rho",
+        "mde_abs",
+        "mde",
+        "margin_abs",
+        "margin",
+        "looks",
+        "baseline",
+        "mean",
+        "sd",
+        "share",
+        "daily",
+        "days",
+        "n",
     ] {
         out = out.replace(
             &format!("`{field}`"),
@@ -255,12 +394,54 @@ pub(super) fn flagify(message: String) -> String {
 /// `sluice size`.
 pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
     let design = design_from_args(a)?;
-    let n = sizing::sample_size(&design).map_err(|error| Error::Design {
+    let guardrail = is_guardrail(a);
+    let as_design_error = |error| Error::Design {
         error,
         effect: design.effect,
-    })?;
-    let achieved = sizing::achieved_power(&design, n.control as f64)
-        .map_err(|error| Error::Power { error })?;
+    };
+    let fixed = if guardrail {
+        noninferiority::size(&design)
+    } else {
+        sizing::sample_size(&design)
+    }
+    .map_err(as_design_error)?;
+    let (n, looks, achieved) = match a.looks {
+        None => {
+            let achieved = if guardrail {
+                noninferiority::power(&design, fixed.control as f64)
+            } else {
+                sizing::achieved_power(&design, fixed.control as f64)
+            }
+            .map_err(|error| Error::Power { error })?;
+            (fixed, None, achieved)
+        }
+        Some(k) => {
+            let plan = sequential::Plan {
+                looks: k,
+                boundary: a.boundary.into(),
+                alpha: design.comparison_alpha(),
+                power: design.power,
+                sides: design.sides,
+            };
+            let s = sequential::solve_plan(&plan).map_err(as_design_error)?;
+            let n =
+                sequential::inflate(&fixed, design.ratio, s.inflation).map_err(as_design_error)?;
+            let achieved = s.power_at(n.control as f64 / n.control_exact, design.sides);
+            let looks = LooksReport {
+                looks: k,
+                boundary: plan.boundary,
+                fixed_control_exact: fixed.control_exact,
+                inflation: s.inflation,
+                expected_control_exact_h1: n.control_exact * s.expected_fraction_h1,
+                expected_control_exact_h0: n.control_exact * s.expected_fraction_h0,
+                information: s.information,
+                boundaries: s.boundaries,
+                alpha_spent: s.alpha_spent,
+                stop_probabilities: s.stop_probabilities,
+            };
+            (n, Some(looks), achieved)
+        }
+    };
     let days = match a.daily {
         Some(daily) => Some(
             sizing::days_needed(n.total, daily, a.share, a.min_days, !a.no_whole_weeks)
@@ -268,10 +449,24 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
         ),
         None => None,
     };
+    let (effect, treatment_value, margin, null_value) = if guardrail {
+        let zero = match design.effect {
+            Effect::Relative(_) => Effect::Relative(0.0),
+            Effect::Absolute(_) => Effect::Absolute(0.0),
+        };
+        let base = match design.metric {
+            Metric::Rate { baseline } => baseline,
+            Metric::Mean { mean, .. } => mean,
+        };
+        let null = noninferiority::null_value(&design);
+        (zero, base, Some(design.effect), Some(null))
+    } else {
+        (design.effect, design.treatment_value(), None, None)
+    };
     let report = SizeReport {
         metric: design.metric,
-        effect: design.effect,
-        treatment_value: design.treatment_value(),
+        effect,
+        treatment_value,
         method: design.method,
         alpha: design.alpha,
         comparison_alpha: n.comparison_alpha,
@@ -287,6 +482,9 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
         treatment_exact: n.treatment_exact,
         total: n.total,
         achieved_power: achieved,
+        margin,
+        null_value,
+        looks,
         daily: a.daily,
         share: a.daily.map(|_| a.share),
         days,
@@ -311,12 +509,37 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
             r.treatment_value
         ),
     };
-    let effect = match r.effect {
+    let effect = |e: Effect| match e {
         Effect::Relative(x) => format!("{:+}% relative", x * 100.0),
         Effect::Absolute(x) => format!("{x:+} absolute"),
     };
-    let _ = writeln!(s, "metric      {metric}");
-    let _ = writeln!(s, "effect      {effect}");
+    match (r.margin, r.null_value) {
+        (Some(margin), Some(null)) => {
+            let metric = match r.metric {
+                Metric::Rate { baseline } => format!("rate, baseline {:.4}%", baseline * 100.0),
+                Metric::Mean { mean, sd } => format!("mean, baseline {mean} (sd {sd})"),
+            };
+            let harm = match margin {
+                Effect::Relative(x) | Effect::Absolute(x) if x < 0.0 => "a rise",
+                _ => "a fall",
+            };
+            let null = match r.metric {
+                Metric::Rate { .. } => format!("{:.4}%", null * 100.0),
+                Metric::Mean { .. } => trim_float(null),
+            };
+            let _ = writeln!(s, "metric      {metric}");
+            let _ = writeln!(
+                s,
+                "guardrail   non-inferiority: margin {} ({harm} is the harm), \
+                 H0 treatment at {null}, true difference 0",
+                effect(margin).trim_start_matches(['+', '-'])
+            );
+        }
+        _ => {
+            let _ = writeln!(s, "metric      {metric}");
+            let _ = writeln!(s, "effect      {}", effect(r.effect));
+        }
+    }
     let sides = match r.sides {
         Sides::One => "one-sided",
         Sides::Two => "two-sided",
@@ -365,6 +588,9 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         r.arms
     );
     let _ = writeln!(s, "power       {:.4} at these sizes", r.achieved_power);
+    if let Some(l) = &r.looks {
+        looks_text(&mut s, l, r.ratio);
+    }
     if let (Some(days), Some(daily)) = (r.days, r.daily) {
         let weeks = if a.no_whole_weeks {
             String::new()
@@ -380,6 +606,48 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         );
     }
     s
+}
+
+/// The looks of a group-sequential design: boundaries, stop chances and
+/// the expected sizes.
+fn looks_text(s: &mut String, l: &LooksReport, ratio: f64) {
+    use std::fmt::Write as _;
+    let _ = writeln!(
+        s,
+        "looks       {} ({}), maximum {:.4} x the fixed {} units per control arm",
+        l.looks,
+        l.boundary,
+        l.inflation,
+        fmt_units(l.fixed_control_exact.ceil() as u64)
+    );
+    let _ = writeln!(
+        s,
+        "            look  information  control units  boundary z  stop chance"
+    );
+    let control_max = l.fixed_control_exact * l.inflation;
+    for (j, ((t, c), p)) in l
+        .information
+        .iter()
+        .zip(&l.boundaries)
+        .zip(&l.stop_probabilities)
+        .enumerate()
+    {
+        let _ = writeln!(
+            s,
+            "            {:>4}  {:>10.1}%  {:>13}  {:>10.3}  {:>10.1}%",
+            j + 1,
+            t * 100.0,
+            fmt_units((control_max * t).ceil() as u64),
+            c,
+            p * 100.0
+        );
+    }
+    let _ = writeln!(
+        s,
+        "expected    {} control units with the planned effect, {} with none (ratio {ratio})",
+        fmt_units(l.expected_control_exact_h1.ceil() as u64),
+        fmt_units(l.expected_control_exact_h0.ceil() as u64)
+    );
 }
 
 fn trim_float(x: f64) -> String {

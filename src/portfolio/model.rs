@@ -8,6 +8,7 @@
 
 use crate::day::Day;
 use crate::share::{Share, ShareLevels};
+use crate::sizing::sequential::{Boundary, Sequential};
 use crate::sizing::{Correction, Design, Method, SampleSize, Sides};
 use chrono::{NaiveDate, Weekday};
 use serde::{Deserialize, Serialize};
@@ -63,6 +64,12 @@ pub struct Defaults {
     pub min_days: u32,
     /// Round runs up to whole weeks (default true).
     pub whole_weeks: bool,
+    /// Planned looks, equally spaced in information (default 1: a fixed
+    /// horizon).
+    pub looks: u32,
+    /// The boundary of tests with looks (default Lan-DeMets spending of the
+    /// O'Brien-Fleming type).
+    pub boundary: Boundary,
 }
 
 impl Default for Defaults {
@@ -78,6 +85,8 @@ impl Default for Defaults {
             correction: Correction::Bonferroni,
             min_days: 14,
             whole_weeks: true,
+            looks: 1,
+            boundary: Boundary::SpendingObrienFleming,
         }
     }
 }
@@ -230,8 +239,11 @@ pub struct Experiment {
     pub pool: usize,
     /// The statistics with defaults applied.
     pub design: Design,
-    /// Units per arm and in total.
+    /// Units per arm and in total; with looks, the maximum sample.
     pub need: SampleSize,
+    /// The planned interim looks; None for a fixed horizon (one look).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub looks: Option<Looks>,
     /// Positive weight in the objective.
     pub priority: f64,
     /// Inside the window when given.
@@ -249,6 +261,18 @@ pub struct Experiment {
     /// Indices of experiments it must never run alongside; symmetric
     /// (if a lists b, b lists a), sorted and without duplicates.
     pub not_with: Vec<usize>,
+}
+
+/// A test read at planned interim looks (a group-sequential design, see
+/// `sizing::sequential`); its `need` is the maximum sample.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Looks {
+    /// The boundary family.
+    pub boundary: Boundary,
+    /// The fixed-horizon size the maximum inflates.
+    pub fixed: SampleSize,
+    /// Boundaries, inflation, stop probabilities and expected samples.
+    pub design: Sequential,
 }
 
 /// What a blackout forbids.
@@ -367,6 +391,7 @@ mod tests {
                 pool: 0,
                 design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
                 need: crate::schedule::synthetic::two_arm_need(1000),
+                looks: None,
                 priority: 1.0,
                 earliest_start: None,
                 deadline: None,

@@ -89,6 +89,8 @@ pub struct RawDefaults {
     pub correction: Option<Text>,
     pub min_days: Option<f64>,
     pub whole_weeks: Option<bool>,
+    pub looks: Option<f64>,
+    pub boundary: Option<Text>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -148,6 +150,8 @@ pub struct RawExperiment {
     pub max_share: Option<f64>,
     pub min_days: Option<f64>,
     pub whole_weeks: Option<bool>,
+    pub looks: Option<f64>,
+    pub boundary: Option<Text>,
     pub after: Option<Vec<RawAfter>>,
     pub not_with: Option<Vec<Text>>,
 }

@@ -13,7 +13,9 @@ use super::raw::*;
 use crate::diagnostic::{self, Diagnostic};
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{
-    self, Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
+    self,
+    sequential::{self, Boundary},
+    Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
 };
 use chrono::{NaiveDate, Weekday};
 use std::collections::{BTreeMap, BTreeSet, HashMap};
@@ -386,6 +388,14 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
             fallback.min_days
         },
         whole_weeks: d.whole_weeks.unwrap_or(fallback.whole_weeks),
+        looks: looks_count(cx, "defaults.looks", "", d.looks).unwrap_or(fallback.looks),
+        boundary: cx.choice(
+            "defaults.boundary",
+            "",
+            &d.boundary,
+            &BOUNDARIES,
+            fallback.boundary,
+        ),
     };
     (defaults, cx.errors.len() == before)
 }
@@ -735,6 +745,59 @@ fn inside(
 }
 
 #[allow(clippy::too_many_arguments)]
+/// Every boundary by its name in a file.
+const BOUNDARIES: [(&str, Boundary); 4] = [
+    ("obrien-fleming", Boundary::ObrienFleming),
+    ("pocock", Boundary::Pocock),
+    ("spending-obrien-fleming", Boundary::SpendingObrienFleming),
+    ("spending-pocock", Boundary::SpendingPocock),
+];
+
+/// A `looks` key: a whole number from 1 to 10, or None (reported) when not.
+fn looks_count(cx: &mut Ctx, key: &str, who: &str, v: Option<f64>) -> Option<u32> {
+    let v = v?;
+    cx.number(
+        key,
+        who,
+        v,
+        whole(v, 1.0, f64::from(sequential::MAX_LOOKS)),
+        "a whole number from 1 to 10",
+        "looks equally spaced in information; 1 reads the test once, at its end",
+    )
+    .then_some(v as u32)
+}
+
+/// A design with `count` looks: the maximum sample (the fixed size times
+/// the inflation factor) and the looks' design; the fixed size itself for
+/// one look.
+fn with_looks(
+    design: &Design,
+    fixed: SampleSize,
+    count: u32,
+    boundary: Boundary,
+) -> Result<(SampleSize, Option<Looks>), SizingError> {
+    if count <= 1 {
+        return Ok((fixed, None));
+    }
+    let plan = sequential::Plan {
+        looks: count,
+        boundary,
+        alpha: design.comparison_alpha(),
+        power: design.power,
+        sides: design.sides,
+    };
+    let solved = sequential::solve_plan(&plan)?;
+    let max = sequential::inflate(&fixed, design.ratio, solved.inflation)?;
+    Ok((
+        max,
+        Some(Looks {
+            boundary,
+            fixed,
+            design: solved,
+        }),
+    ))
+}
+
 fn experiments(
     cx: &mut Ctx,
     raw: Vec<RawExperiment>,
@@ -768,16 +831,21 @@ fn experiments(
             }
         };
         let (design, design_ok) = design(cx, e, i, &who, &what, d);
-        let need = if design_ok && defaults_ok {
-            match size(&design) {
-                Ok(n) => Some(n),
-                Err(err) => {
-                    sizing_error(cx, e, i, &who, &err);
-                    None
+        let looks_given = e.looks.is_some();
+        let count = looks_count(cx, &at("looks"), &who, e.looks);
+        let boundary = cx.choice(&at("boundary"), &who, &e.boundary, &BOUNDARIES, d.boundary);
+        let count = if looks_given { count } else { Some(d.looks) };
+        let (need, looks) = match (design_ok && defaults_ok, count) {
+            (true, Some(count)) => {
+                match size(&design).and_then(|n| with_looks(&design, n, count, boundary)) {
+                    Ok((n, looks)) => (Some(n), looks),
+                    Err(err) => {
+                        sizing_error(cx, e, i, &who, &err);
+                        (None, None)
+                    }
                 }
             }
-        } else {
-            None
+            _ => (None, None),
         };
         let priority = e.priority.unwrap_or(1.0);
         cx.number(
@@ -917,6 +985,7 @@ fn experiments(
                 total: 0,
                 comparison_alpha: 0.0,
             }),
+            looks,
             priority,
             earliest_start: earliest,
             deadline,
@@ -1378,4 +1447,62 @@ fn blackouts(
         }
     }
     out
+}
+
+#[cfg(test)]
+mod looks_tests {
+    use super::super::load::load_str;
+    use crate::sizing::sequential::Boundary;
+
+    fn file(defaults: &str, experiment: &str) -> String {
+        format!(
+            "name: looks\nwindow: {{start: 2027-01-04, end: 2027-03-28}}\n{defaults}\
+             pools:\n  - {{id: home, daily: 10000, max_concurrent: 2}}\n\
+             experiments:\n  - id: fixed\n    pool: home\n    baseline: 0.1\n    mde: 0.1\n\
+             \x20 - id: looked\n    pool: home\n    baseline: 0.1\n    mde: 0.1\n{experiment}"
+        )
+    }
+
+    #[test]
+    fn looks_inflate_the_need_and_keep_the_fixed_size() {
+        let text = file("", "    looks: 3\n    boundary: obrien-fleming\n");
+        let p = load_str(&text, "looks.yaml").unwrap_or_else(|e| panic!("{e}"));
+        let (fixed, looked) = (&p.experiments[0], &p.experiments[1]);
+        assert!(fixed.looks.is_none());
+        let looks = looked.looks.as_ref().expect("three looks");
+        assert_eq!(looks.boundary, Boundary::ObrienFleming);
+        assert_eq!(looks.fixed, fixed.need);
+        assert_eq!(looks.design.boundaries.len(), 3);
+        // Jennison & Turnbull (2000) Table 2.4, from memory: R_B(3) = 1.017
+        // at power 0.8 (cross-checked in tests/reference/check_stats.py).
+        let r = looks.design.inflation;
+        assert!((r - 1.017).abs() < 1e-3, "{r}");
+        let want = (fixed.need.control_exact * r).ceil() as u64;
+        assert_eq!(looked.need.control, want);
+        assert_eq!(looked.need.total, 2 * want);
+    }
+
+    #[test]
+    fn defaults_give_every_test_its_looks() {
+        let text = file("defaults: {looks: 4, boundary: pocock}\n", "    looks: 1\n");
+        let p = load_str(&text, "looks.yaml").unwrap_or_else(|e| panic!("{e}"));
+        let looks = p.experiments[0].looks.as_ref().expect("the default looks");
+        assert_eq!(looks.boundary, Boundary::Pocock);
+        assert_eq!(looks.design.information.len(), 4);
+        // One look written on the test overrides the default.
+        assert!(p.experiments[1].looks.is_none());
+        assert_eq!(p.experiments[1].need, looks.fixed);
+    }
+
+    #[test]
+    fn bad_looks_and_boundaries_name_the_key_and_line() {
+        let text = file("", "    looks: 12\n    boundary: pocok\n");
+        let err = load_str(&text, "looks.yaml").unwrap_err().to_string();
+        assert!(err.contains("`looks` is 12"), "{err}");
+        assert!(err.contains("looks.yaml:14"), "{err}");
+        assert!(err.contains("did you mean `pocock`?"), "{err}");
+        let text = file("defaults: {looks: 2.5}\n", "");
+        let err = load_str(&text, "looks.yaml").unwrap_err().to_string();
+        assert!(err.contains("a whole number from 1 to 10"), "{err}");
+    }
 }

@@ -155,6 +155,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             pool,
             design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
             need: two_arm_need(total),
+            looks: None,
             priority: (1 + rng.below(10)) as f64,
             earliest_start,
             deadline,

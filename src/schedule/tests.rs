@@ -42,6 +42,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         pool,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
         need: super::synthetic::two_arm_need(need),
+        looks: None,
         priority,
         earliest_start: None,
         deadline: None,

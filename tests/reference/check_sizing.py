@@ -45,6 +45,9 @@ rate outside (0, 1), alpha, power, rho, ratio, arms or sd out of range, a
 rate method on a mean, a total beyond any traffic) must exit 2 and name
 the flag.
 
+Then the checks of check_stats.py: non-inferiority (guardrail) sizes,
+group-sequential designs and `sluice detect` (see its docstring).
+
 Prints one line `N passed, M failed` and exits 1 on any failure.
 """
 
@@ -58,6 +61,7 @@ import warnings
 from concurrent.futures import ThreadPoolExecutor
 from types import SimpleNamespace
 
+import check_stats
 from scipy.optimize import brentq
 from scipy.stats import norm
 from statsmodels.stats.power import NormalIndPower, TTestIndPower, normal_power_het
@@ -654,6 +658,13 @@ def main():
     for d, needle in refused:
         check_refused(tally, d, needle, results[i])
         i += 1
+
+    # Non-inferiority sizes, interim looks and `sluice detect`: check_stats.py.
+    check_stats.check_noninferiority(args.bin, tally, record, design, comparison_alpha)
+    check_stats.check_sequential(args.bin, tally, record)
+    check_stats.check_detect(
+        args.bin, tally, record, design, comparison_alpha, tail_alpha, ref_mde, ref_power
+    )
 
     print(
         f"designs: {len(designs)} sized, {len(mde)} MDE inverses, "

@@ -1,0 +1,352 @@
+//! `sluice detect`: what one test can detect with a given sample, or the
+//! power it has for a given effect. The inverse of `sluice size`, from the
+//! same formulas (see `sizing`).
+
+use super::size::{early_reading, CorrectionArg, MethodArg};
+use super::{Error, TextOrJson};
+use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
+use crate::words::{thousands as fmt_units, Count};
+use clap::{ArgGroup, Args};
+use serde::Serialize;
+
+#[derive(Args, Debug)]
+#[command(allow_negative_numbers = true)]
+#[command(group(ArgGroup::new("sample").required(true).args(["n", "daily"])))]
+#[command(after_help = concat!("Examples:\n  \
+    sluice detect --baseline 0.04 --n 20000\n  \
+    sluice detect --baseline 0.04 --n 20000 --mde 0.1\n  \
+    sluice detect --mean 38.5 --sd 61 --daily 8000 --share 0.5 --days 28 --format json\n\n\
+    With --n alone: the smallest effect the test detects at --power. With \
+    --n and --mde (or --mde-abs): the power for that effect. With --daily, \
+    --share and --days: the smallest effect reachable in that many days, \
+    the units split over the arms by --ratio.\n\n", early_reading!()))]
+pub struct DetectArgs {
+    /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
+    #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
+    pub baseline: Option<f64>,
+    /// Baseline mean of a mean metric (needs --sd)
+    #[arg(long, value_name = "M", requires = "sd", help_heading = "Metric")]
+    pub mean: Option<f64>,
+    /// Standard deviation per unit of a mean metric (needs --mean)
+    #[arg(long, value_name = "S", requires = "mean", help_heading = "Metric")]
+    pub sd: Option<f64>,
+
+    /// Units in the control arm (each treatment arm has ratio x as many)
+    #[arg(
+        long,
+        value_name = "N",
+        conflicts_with = "daily",
+        help_heading = "Sample"
+    )]
+    pub n: Option<f64>,
+    /// Eligible units per day
+    #[arg(long, value_name = "D", requires = "days", help_heading = "Sample")]
+    pub daily: Option<f64>,
+    /// Share of the daily units that enter the test
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 1.0,
+        requires = "daily",
+        help_heading = "Sample"
+    )]
+    pub share: f64,
+    /// Days the test runs
+    #[arg(long, value_name = "T", requires = "daily", help_heading = "Sample")]
+    pub days: Option<f64>,
+
+    /// The effect to find the power for, as a relative lift (needs --n or --daily)
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with_all = ["mde_abs", "decrease"],
+        help_heading = "Effect"
+    )]
+    pub mde: Option<f64>,
+    /// The effect to find the power for, as an absolute difference
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with = "decrease",
+        help_heading = "Effect"
+    )]
+    pub mde_abs: Option<f64>,
+    /// Find the smallest detectable fall instead of rise
+    #[arg(long, help_heading = "Effect")]
+    pub decrease: bool,
+
+    /// Type I error rate of the whole test
+    #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
+    pub alpha: f64,
+    /// Power of each treatment-versus-control comparison
+    #[arg(long, default_value_t = 0.8, help_heading = "Test settings")]
+    pub power: f64,
+    /// Test one direction only (default: two-sided)
+    #[arg(long, help_heading = "Test settings")]
+    pub one_sided: bool,
+    /// Number of arms, control included
+    #[arg(
+        long,
+        default_value_t = 2,
+        value_name = "K",
+        help_heading = "Test settings"
+    )]
+    pub arms: u32,
+    /// Treatment units per control unit (1 = even split)
+    #[arg(
+        long,
+        default_value_t = 1.0,
+        value_name = "R",
+        help_heading = "Test settings"
+    )]
+    pub ratio: f64,
+    /// Sample-size method [default: pooled for rates, t for means]
+    #[arg(long, value_enum, help_heading = "Test settings")]
+    pub method: Option<MethodArg>,
+    /// Multiple-comparison correction when there are several treatment arms
+    #[arg(long, value_enum, default_value_t = CorrectionArg::Bonferroni, help_heading = "Test settings")]
+    pub correction: CorrectionArg,
+    /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
+    #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
+    pub rho: f64,
+
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
+    pub format: TextOrJson,
+}
+
+/// The JSON object `sluice detect --format json` prints.
+#[derive(Serialize, Debug)]
+pub struct DetectReport {
+    pub metric: Metric,
+    /// The detectable (or given) effect, relative to the baseline; absent
+    /// for a mean of zero.
+    pub mde: Option<f64>,
+    /// The same effect as an absolute difference.
+    pub mde_abs: f64,
+    /// The treatment's rate or mean at that effect.
+    pub treatment_value: f64,
+    /// The power at that effect: `--power` when the effect was solved for.
+    pub power: f64,
+    /// Units in the control arm.
+    pub control: f64,
+    /// Units in each treatment arm.
+    pub treatment: f64,
+    pub method: Method,
+    pub alpha: f64,
+    pub comparison_alpha: f64,
+    pub sides: Sides,
+    pub arms: u32,
+    pub ratio: f64,
+    pub correction: Correction,
+    pub rho: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub daily: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub share: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub days: Option<f64>,
+}
+
+/// The control arm's units: `--n`, or the units `--daily x --share x
+/// --days` bring, split over the arms (whole units, rounded down: the ones
+/// that have arrived).
+fn control_units(a: &DetectArgs) -> Result<f64, Error> {
+    let bad = |field: &'static str, value: f64, expected: &'static str| Error::Design {
+        error: sizing::SizingError::OutOfRange {
+            field,
+            value,
+            expected,
+        },
+        effect: Effect::Absolute(1.0),
+    };
+    if let Some(n) = a.n {
+        return if n > 0.0 && n.is_finite() {
+            Ok(n)
+        } else {
+            Err(bad("n", n, "> 0 units in the control arm"))
+        };
+    }
+    let (Some(daily), Some(days)) = (a.daily, a.days) else {
+        return Err(bad("n", f64::NAN, "given, or --daily with --days"));
+    };
+    if !(daily > 0.0 && daily.is_finite()) {
+        return Err(bad("daily", daily, "> 0 units per day"));
+    }
+    if !(a.share > 0.0 && a.share <= 1.0) {
+        return Err(bad("share", a.share, "in (0, 1]"));
+    }
+    if !(days > 0.0 && days.is_finite()) {
+        return Err(bad("days", days, "> 0"));
+    }
+    if !(a.ratio > 0.0 && a.ratio.is_finite()) || a.arms < 2 {
+        // The design check names the field.
+        return Ok(1.0);
+    }
+    let per_control = 1.0 + f64::from(a.arms - 1) * a.ratio;
+    let n = (daily * a.share * days / per_control).floor();
+    if n < 1.0 {
+        return Err(bad(
+            "days",
+            days,
+            "long enough for at least one unit in the control arm",
+        ));
+    }
+    Ok(n)
+}
+
+/// `sluice detect`.
+pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
+    let metric = match (a.baseline, a.mean, a.sd) {
+        (Some(p), None, None) => Metric::Rate { baseline: p },
+        (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
+        _ => return Err(Error::SizeMetric),
+    };
+    let base = match metric {
+        Metric::Rate { baseline } => baseline,
+        Metric::Mean { mean, .. } => mean,
+    };
+    let n = control_units(a)?;
+    let method = a
+        .method
+        .map(Method::from)
+        .unwrap_or_else(|| Method::default_for(&metric));
+    let sign = if a.decrease { -1.0 } else { 1.0 };
+    // Solving for the effect, the design carries only its direction; an
+    // absolute effect keeps a mean of zero meaningful.
+    let given = match (a.mde, a.mde_abs) {
+        (Some(x), _) => Some(Effect::Relative(x)),
+        (None, Some(x)) => Some(Effect::Absolute(x)),
+        (None, None) => None,
+    };
+    let design = Design {
+        metric,
+        effect: given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
+        alpha: a.alpha,
+        power: a.power,
+        sides: if a.one_sided { Sides::One } else { Sides::Two },
+        arms: a.arms,
+        ratio: a.ratio,
+        method,
+        correction: a.correction.into(),
+        rho: a.rho,
+    };
+    let as_error = |error| Error::Design {
+        error,
+        effect: design.effect,
+    };
+    let (mde_abs, power) = match given {
+        Some(_) => {
+            design.validate().map_err(as_error)?;
+            let power = sizing::achieved_power(&design, n).map_err(as_error)?;
+            (design.treatment_value() - base, power)
+        }
+        None => {
+            let e = sizing::minimum_detectable_effect(&design, n).map_err(as_error)?;
+            (e, design.power)
+        }
+    };
+    let report = DetectReport {
+        metric,
+        mde: (base != 0.0).then(|| mde_abs / base.abs()),
+        mde_abs,
+        treatment_value: base + mde_abs,
+        power,
+        control: n,
+        treatment: n * a.ratio,
+        method,
+        alpha: a.alpha,
+        comparison_alpha: design.comparison_alpha(),
+        sides: design.sides,
+        arms: a.arms,
+        ratio: a.ratio,
+        correction: design.correction,
+        rho: a.rho,
+        daily: a.daily,
+        share: a.daily.map(|_| a.share),
+        days: a.days,
+    };
+    match a.format {
+        TextOrJson::Json => super::json_bytes(&report),
+        TextOrJson::Text => Ok(detect_text(&report, given.is_some()).into_bytes()),
+    }
+}
+
+fn detect_text(r: &DetectReport, power_asked: bool) -> String {
+    use std::fmt::Write as _;
+    let trim = |x: f64| crate::words::trimmed(x, 6);
+    let mut s = String::new();
+    let (metric, value) = match r.metric {
+        Metric::Rate { baseline } => (
+            format!("rate, baseline {:.4}%", baseline * 100.0),
+            format!("{:.4}%", r.treatment_value * 100.0),
+        ),
+        Metric::Mean { mean, sd } => (
+            format!("mean, baseline {mean} (sd {sd})"),
+            trim(r.treatment_value),
+        ),
+    };
+    let _ = writeln!(s, "metric      {metric}");
+    let sides = match r.sides {
+        Sides::One => "one-sided",
+        Sides::Two => "two-sided",
+    };
+    let _ = write!(s, "test        alpha {} {sides}", r.alpha);
+    if r.arms > 2 {
+        let _ = write!(
+            s,
+            " ({} per comparison, {})",
+            trim(r.comparison_alpha),
+            r.correction.name()
+        );
+    }
+    let _ = writeln!(s, ", method {}", r.method);
+    let _ = write!(
+        s,
+        "sample      {} control, {} in {}",
+        fmt_units(r.control.round() as u64),
+        fmt_units(r.treatment.round() as u64),
+        if r.arms == 2 {
+            "the treatment arm".to_string()
+        } else {
+            format!(
+                "each of {} {}",
+                r.arms - 1,
+                Count("treatment arm", r.arms as usize - 1)
+            )
+        }
+    );
+    if let (Some(daily), Some(share), Some(days)) = (r.daily, r.share, r.days) {
+        let _ = write!(
+            s,
+            " ({} days at {} units a day x {}% share)",
+            trim(days),
+            fmt_units(daily.round() as u64),
+            trim(share * 100.0)
+        );
+    }
+    let _ = writeln!(s);
+    let relative = match r.mde {
+        Some(m) => format!("{:+.2}% relative, ", m * 100.0),
+        None => String::new(),
+    };
+    let absolute = match r.metric {
+        Metric::Rate { .. } => format!("{:+.4} points absolute", r.mde_abs * 100.0),
+        Metric::Mean { .. } => format!("{} absolute", trim(r.mde_abs)),
+    };
+    let label = if power_asked { "effect" } else { "detects" };
+    let _ = writeln!(s, "{label:<11} {relative}{absolute} (treatment {value})");
+    let _ = writeln!(
+        s,
+        "power       {:.4}{}",
+        r.power,
+        if power_asked {
+            " for this effect"
+        } else {
+            ": the smallest effect found this often"
+        }
+    );
+    s
+}
