@@ -3,6 +3,7 @@
 use super::{Error, TextOrJson};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
 use crate::words::thousands as fmt_units;
+use crate::words::trimmed;
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
@@ -302,18 +303,20 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
     let mut s = String::new();
     let metric = match r.metric {
         Metric::Rate { baseline } => format!(
-            "rate, baseline {:.4}% -> treatment {:.4}%",
-            baseline * 100.0,
-            r.treatment_value * 100.0
+            "rate, baseline {}% -> treatment {}%",
+            trimmed(baseline * 100.0, 4),
+            trimmed(r.treatment_value * 100.0, 4)
         ),
         Metric::Mean { mean, sd } => format!(
-            "mean, baseline {mean} (sd {sd}) -> treatment {:.6}",
-            r.treatment_value
+            "mean, baseline {} (sd {}) -> treatment {}",
+            trim_float(mean),
+            trim_float(sd),
+            trim_float(r.treatment_value)
         ),
     };
     let effect = match r.effect {
-        Effect::Relative(x) => format!("{:+}% relative", x * 100.0),
-        Effect::Absolute(x) => format!("{x:+} absolute"),
+        Effect::Relative(x) => format!("{}% relative", signed(x * 100.0)),
+        Effect::Absolute(x) => format!("{} absolute", signed(x)),
     };
     let _ = writeln!(s, "metric      {metric}");
     let _ = writeln!(s, "effect      {effect}");
@@ -321,7 +324,7 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         Sides::One => "one-sided",
         Sides::Two => "two-sided",
     };
-    let _ = write!(s, "test        alpha {} {sides}", r.alpha);
+    let _ = write!(s, "test        alpha {} {sides}", trim_float(r.alpha));
     if r.arms > 2 {
         let _ = write!(
             s,
@@ -330,13 +333,13 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
             r.correction.name()
         );
     }
-    let _ = writeln!(s, ", power {}, method {}", r.power, r.method);
+    let _ = writeln!(s, ", power {}, method {}", trim_float(r.power), r.method);
     if r.rho > 0.0 {
         let _ = writeln!(
             s,
-            "covariate   rho {} (size x {:.4})",
-            r.rho,
-            1.0 - r.rho * r.rho
+            "covariate   rho {} (size x {})",
+            trim_float(r.rho),
+            trimmed(1.0 - r.rho * r.rho, 4)
         );
     }
     let _ = writeln!(s);
@@ -356,7 +359,7 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         "{label:<11} {:>12} units  ({:.2} before rounding, ratio {})",
         fmt_units(r.treatment),
         r.treatment_exact,
-        r.ratio
+        trim_float(r.ratio)
     );
     let _ = writeln!(
         s,
@@ -382,6 +385,17 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
     s
 }
 
+/// A number as people read it: at most six decimals, no trailing zeros.
 fn trim_float(x: f64) -> String {
-    crate::words::trimmed(x, 6)
+    trimmed(x, 6)
+}
+
+/// [`trim_float`] with its sign always shown: `+7`, `-0.5`.
+fn signed(x: f64) -> String {
+    let t = trim_float(x);
+    if t.starts_with('-') || t == "0" {
+        t
+    } else {
+        format!("+{t}")
+    }
 }
