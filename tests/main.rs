@@ -3,6 +3,7 @@
 
 mod util;
 
+mod calendar;
 mod check;
 mod commands;
 mod outputs;

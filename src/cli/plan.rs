@@ -31,8 +31,9 @@ pub struct OutputArgs {
 /// Flags of the solver.
 #[derive(Args, Debug)]
 pub struct SolverArgs {
-    /// Most seconds to spend; the best verified plan so far is returned
-    #[arg(long, value_name = "SECONDS", default_value_t = 10.0)]
+    /// A safety net in seconds: the search ends on its fixed work budget; if the clock
+    /// stops it first, the plan says it was cut short
+    #[arg(long, value_name = "SECONDS", default_value_t = crate::schedule::DEFAULT_TIME_LIMIT)]
     pub time_limit: f64,
     /// The LP backend (`microlp`; `highs` in builds with the `highs` feature)
     #[arg(long, value_name = "NAME", default_value = "microlp")]
@@ -69,6 +70,10 @@ pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Error> {
 pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Error> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
+    }
+    // Said on stderr too, for formats with no place for prose (CSV).
+    if let Some(note) = crate::render::common::cut_short_note(&plan) {
+        eprintln!("warning: {}", note.replace('`', ""));
     }
     let opts = if out.out.is_some() {
         RenderOptions::for_file()

@@ -74,6 +74,7 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)?;
     if let Some(prev) = &previous {
         plan.changes = Some(crate::diff::diff(prev, &plan));
+        plan.calendar = Some(crate::render::ics::calendar_history(prev, &plan));
     }
     super::plan::emit(plan, &a.output, &a.file)
 }

@@ -205,6 +205,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         });
     }
     Portfolio {
+        id: format!("synthetic-{}", spec.seed),
         name: format!(
             "synthetic-{}x{}x{}-{}",
             spec.tests, spec.pools, spec.weeks, spec.seed
