@@ -10,6 +10,7 @@ mod outputs;
 mod plan;
 mod render;
 mod replan;
+mod safe_files;
 mod size_cli;
 mod sizing_properties;
 mod sizing_published;

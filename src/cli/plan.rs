@@ -20,7 +20,7 @@ pub struct OutputArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
-    /// Write to this file (atomically) instead of stdout; never over the portfolio
+    /// Write to this file (atomically) instead of stdout; never over a file the command reads
     #[arg(long, value_name = "PATH")]
     pub out: Option<PathBuf>,
     /// Write 0 as the solver's seconds, so outputs compare byte for byte
@@ -67,7 +67,7 @@ pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Error> {
 /// Renders `plan` and sends it where `out` says: the bytes for stdout, or
 /// an atomic write to `--out` (then a one-line note for stdout). A
 /// re-plan's changes are part of the plan, so every renderer draws them.
-pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Error> {
+pub fn emit(mut plan: Plan, out: &OutputArgs, inputs: &[&Path]) -> Result<Vec<u8>, Error> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
     }
@@ -84,7 +84,7 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, E
     match &out.out {
         None => Ok(bytes),
         Some(path) => {
-            output::write_output(path, &bytes, input)?;
+            output::write_output(path, &bytes, inputs)?;
             eprintln!(
                 "wrote the plan ({}) to {}",
                 out.format.name(),
@@ -130,5 +130,5 @@ pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Error> {
         request.today = Some(today);
     }
     let plan = schedule::plan(&p, &request);
-    emit(plan, &a.output, &a.file)
+    emit(plan, &a.output, &[&a.file])
 }
