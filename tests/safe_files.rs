@@ -166,6 +166,9 @@ fn a_nul_or_control_byte_is_reported_at_its_line_and_column() {
         let err = stderr_of(&["check", &path], 2);
         assert!(err.contains(name), "{err}");
         assert_eq!(position(&err), (9, 15), "{err}");
+        // The line is shown, but not the byte itself.
+        assert!(err.contains("label: Pro\u{fffd}duct pages"), "{err}");
+        assert!(!err.contains(byte), "{err:?}");
     }
 }
 

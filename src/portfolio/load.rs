@@ -103,7 +103,20 @@ pub(crate) fn prepare<'t>(
         .find(|&(_, c)| c.is_control() && !matches!(c, '\t' | '\n' | '\r' | '\u{85}'));
     if let Some((offset, c)) = bad {
         let (line, column) = line_column(body, offset);
-        let normal = body.replace("\r\n", "\n").replace('\r', "\n");
+        // The source line is shown with each such character as U+FFFD, so
+        // the terminal does not act on it and the caret stays in place.
+        let normal: String = body
+            .replace("\r\n", "\n")
+            .replace('\r', "\n")
+            .chars()
+            .map(|c| {
+                if c.is_control() && !matches!(c, '\t' | '\n') {
+                    '\u{fffd}'
+                } else {
+                    c
+                }
+            })
+            .collect();
         let name = match c {
             '\0' => "a NUL byte".to_string(),
             c => format!("the control character U+{:04X}", c as u32),
