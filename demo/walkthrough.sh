@@ -52,6 +52,9 @@ replan=("$sluice" replan "$portfolio" --progress "$out/progress-day30.yaml"
 "${replan[@]}" --format md --out "$out/replan.md"
 "${replan[@]}" --format html --out "$out/replan.html"
 "${replan[@]}" --format json --out "$out/replan.json"
+# Imported over results.ics, it moves the changed events (a higher SEQUENCE)
+# and cancels those of tests that stopped or no longer fit.
+"${replan[@]}" --format ics --out "$out/replan.ics"
 
 written=$(cd "$out" && ls | tr '\n' ' ')
 heading "done"

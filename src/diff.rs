@@ -189,6 +189,7 @@ mod tests {
     fn plan(experiments: Vec<PlannedExperiment>, daily: f64) -> Plan {
         Plan {
             portfolio: "t".into(),
+            id: "t".into(),
             window: PlanWindow {
                 start: d("2027-01-04"),
                 end: d("2027-01-06"),
@@ -200,6 +201,7 @@ mod tests {
                 value: 0.0,
                 bound: 0.0,
                 gap: 0.0,
+                cut_short: false,
             },
             greedy_value: 0.0,
             experiments,
@@ -221,6 +223,7 @@ mod tests {
             today: d("2027-01-04"),
             running: vec![],
             changes: None,
+            calendar: None,
         }
     }
 

@@ -1,7 +1,17 @@
 //! Writing rendered output to files: atomically (a temporary file in the
 //! same folder, then a rename, so a reader never sees half a file and a
-//! failed write leaves the old file as it was), and never over the file the
-//! command read its input from.
+//! failed write leaves the old file as it was), and never over a file the
+//! command read (portfolio, progress file, previous plan).
+//!
+//! What is already at the path decides how:
+//! - nothing, or a regular file that may be written: the atomic write (a
+//!   link to a regular file is followed, so the link stays a link);
+//! - a regular file without write permission (for its owner by its mode
+//!   bits, which bind even root, or for this process): refused;
+//! - a character device or a FIFO (`/dev/null`, `/dev/stdout`, a named
+//!   pipe): written straight into, as a shell's `>` would, never replaced
+//!   by a regular file;
+//! - a block device, a socket or a folder: refused.
 
 use std::fmt;
 use std::io::Write;
@@ -16,6 +26,10 @@ pub enum OutputError {
     NotAFile { path: PathBuf },
     /// The folder the output would go in does not exist (or is a file).
     MissingFolder { path: PathBuf, folder: PathBuf },
+    /// The file exists and its permissions forbid writing it.
+    ReadOnly { path: PathBuf },
+    /// A block device or a socket: not a place for a plan.
+    NotWritable { path: PathBuf, kind: &'static str },
     /// Creating, writing or renaming failed.
     Io {
         path: PathBuf,
@@ -42,6 +56,16 @@ impl fmt::Display for OutputError {
                 "cannot write `{}`: the folder `{}` does not exist; create it first or choose another path",
                 path.display(),
                 folder.display()
+            ),
+            OutputError::ReadOnly { path } => write!(
+                f,
+                "refusing to write `{}`: the file is read-only; make it writable (`chmod u+w`) or choose another path",
+                path.display()
+            ),
+            OutputError::NotWritable { path, kind } => write!(
+                f,
+                "refusing to write `{}`: it is {kind}, not a file; choose a file path",
+                path.display()
             ),
             OutputError::Io { path, source } => {
                 write!(f, "cannot write `{}`: {source}", path.display())
@@ -152,11 +176,118 @@ pub fn guard_input(output: &Path, input: &Path) -> Result<(), OutputError> {
     Ok(())
 }
 
-/// What `--out PATH` does: refuses `output` if it is the `input` file, then
-/// writes `bytes` to it atomically.
-pub fn write_output(output: &Path, bytes: &[u8], input: &Path) -> Result<(), OutputError> {
-    guard_input(output, input)?;
-    write_atomic(output, bytes)
+/// What `--out PATH` does: refuses `output` if it is one of the `inputs`,
+/// then writes `bytes` there as the module documentation says.
+pub fn write_output(output: &Path, bytes: &[u8], inputs: &[&Path]) -> Result<(), OutputError> {
+    for input in inputs {
+        guard_input(output, input)?;
+    }
+    let Ok(meta) = std::fs::metadata(output) else {
+        return write_atomic(output, bytes);
+    };
+    let io = |source| OutputError::Io {
+        path: output.to_path_buf(),
+        source,
+    };
+    match kind(&meta) {
+        Kind::File => {
+            if mode_forbids_writing(&meta) || open_for_writing(output).is_err() {
+                return Err(OutputError::ReadOnly {
+                    path: output.to_path_buf(),
+                });
+            }
+            // A link to a file: replace the file it points to, keep the link.
+            let target = if std::fs::symlink_metadata(output).is_ok_and(|m| m.is_symlink()) {
+                std::fs::canonicalize(output).map_err(io)?
+            } else {
+                output.to_path_buf()
+            };
+            write_atomic(&target, bytes)
+        }
+        Kind::Stream => {
+            let mut f = open_for_writing(output).map_err(io)?;
+            f.write_all(bytes).and_then(|_| f.flush()).map_err(io)
+        }
+        Kind::Folder => Err(OutputError::NotAFile {
+            path: output.to_path_buf(),
+        }),
+        Kind::Other(kind) => Err(OutputError::NotWritable {
+            path: output.to_path_buf(),
+            kind,
+        }),
+    }
+}
+
+/// What an existing output path is.
+enum Kind {
+    File,
+    Folder,
+    /// A character device or a FIFO: written into as it is.
+    Stream,
+    Other(&'static str),
+}
+
+#[cfg(unix)]
+fn kind(meta: &std::fs::Metadata) -> Kind {
+    use std::os::unix::fs::FileTypeExt;
+    let t = meta.file_type();
+    if t.is_file() {
+        Kind::File
+    } else if t.is_dir() {
+        Kind::Folder
+    } else if t.is_char_device() || t.is_fifo() {
+        Kind::Stream
+    } else if t.is_block_device() {
+        Kind::Other("a block device")
+    } else if t.is_socket() {
+        Kind::Other("a socket")
+    } else {
+        Kind::Other("not a regular file")
+    }
+}
+
+#[cfg(not(unix))]
+fn kind(meta: &std::fs::Metadata) -> Kind {
+    if meta.is_file() {
+        Kind::File
+    } else if meta.is_dir() {
+        Kind::Folder
+    } else {
+        Kind::Stream
+    }
+}
+
+/// Opens an existing file for writing without changing it (no truncation):
+/// fails when this process may not write it.
+fn open_for_writing(path: &Path) -> std::io::Result<std::fs::File> {
+    std::fs::OpenOptions::new().write(true).open(path)
+}
+
+/// Whether the mode bits mark the file read-only: no write permission for
+/// its owner (as `chmod a-w` or `chmod 444` leave it). This binds every
+/// user, root included, for whom the permission bits do not stop a write.
+fn mode_forbids_writing(meta: &std::fs::Metadata) -> bool {
+    mode_is_read_only(permission_bits(meta))
+}
+
+#[cfg(unix)]
+fn permission_bits(meta: &std::fs::Metadata) -> u32 {
+    use std::os::unix::fs::PermissionsExt;
+    meta.permissions().mode()
+}
+
+#[cfg(not(unix))]
+fn permission_bits(meta: &std::fs::Metadata) -> u32 {
+    if meta.permissions().readonly() {
+        0o444
+    } else {
+        0o644
+    }
+}
+
+/// [`mode_forbids_writing`] on the mode bits alone.
+fn mode_is_read_only(mode: u32) -> bool {
+    mode & 0o200 == 0
 }
 
 #[cfg(unix)]
@@ -249,11 +380,54 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let input = dir.path().join("portfolio.yaml");
         std::fs::write(&input, "name: x\n").unwrap();
-        assert!(write_output(&input, b"<html/>", &input).is_err());
+        assert!(write_output(&input, b"<html/>", &[&input]).is_err());
         assert_eq!(std::fs::read_to_string(&input).unwrap(), "name: x\n");
         let out = dir.path().join("plan.html");
-        write_output(&out, b"<html/>", &input).unwrap();
+        write_output(&out, b"<html/>", &[&input]).unwrap();
         assert_eq!(std::fs::read(&out).unwrap(), b"<html/>");
+    }
+
+    #[test]
+    fn a_file_without_its_owner_write_bit_is_read_only() {
+        for (mode, read_only) in [
+            (0o644, false),
+            (0o600, false),
+            (0o200, false),
+            (0o444, true),
+            (0o400, true),
+            (0o466, true),
+            (0o100644, false),
+            (0o100444, true),
+        ] {
+            assert_eq!(mode_is_read_only(mode), read_only, "{mode:o}");
+        }
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_read_only_file_is_refused_and_kept() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("plan.html");
+        std::fs::write(&path, "old").unwrap();
+        std::fs::set_permissions(&path, std::fs::Permissions::from_mode(0o444)).unwrap();
+        let err = write_output(&path, b"new", &[]).unwrap_err();
+        assert!(matches!(err, OutputError::ReadOnly { .. }), "{err}");
+        assert!(err.to_string().contains("read-only"), "{err}");
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "old");
+    }
+
+    #[cfg(unix)]
+    #[test]
+    fn a_link_to_a_file_stays_a_link() {
+        let dir = tempfile::tempdir().unwrap();
+        let target = dir.path().join("real.csv");
+        std::fs::write(&target, "old").unwrap();
+        let link = dir.path().join("link.csv");
+        std::os::unix::fs::symlink(&target, &link).unwrap();
+        write_output(&link, b"new", &[]).unwrap();
+        assert!(std::fs::symlink_metadata(&link).unwrap().is_symlink());
+        assert_eq!(std::fs::read_to_string(&target).unwrap(), "new");
     }
 
     #[cfg(unix)]

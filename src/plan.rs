@@ -36,6 +36,11 @@ pub struct SolverSummary {
     pub bound: f64,
     /// (bound - value) / bound; 0 when proved optimal.
     pub gap: f64,
+    /// Whether the time limit stopped the search before its work budget
+    /// was spent: then, and only then, the plan may depend on the
+    /// machine's speed and load. Absent in older plans (read as `false`).
+    #[serde(default)]
+    pub cut_short: bool,
 }
 
 /// How far the optimiser got; in JSON `optimal`, `feasible` or `greedy`.
@@ -324,6 +329,11 @@ pub struct PlanBlackout {
 pub struct Plan {
     /// The portfolio's name.
     pub portfolio: String,
+    /// The portfolio's `id` (its file's stem unless the file sets one):
+    /// with the experiment ids, the key of every calendar event's UID.
+    /// Absent in older plans (read as empty).
+    #[serde(default)]
+    pub id: String,
     /// The planning window.
     pub window: PlanWindow,
     /// How the optimiser did.
@@ -345,6 +355,57 @@ pub struct Plan {
     /// Re-plans with `--previous` only: what moved since the previous plan.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub changes: Option<PlanDiff>,
+    /// Re-plans with `--previous` only: the versions of the calendar
+    /// events that earlier plans published, so that a re-imported
+    /// calendar updates them (`crate::render::ics::calendar_history`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calendar: Option<CalendarHistory>,
+}
+
+/// The calendar events earlier plans published and how often each changed,
+/// carried from plan to plan through `--previous`.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct CalendarHistory {
+    /// The SEQUENCE (RFC 5545 §3.8.7.4) of each experiment's events in
+    /// this plan's calendar, in plan order; experiments not listed are at 0.
+    pub sequences: Vec<EventSequence>,
+    /// Experiments an earlier plan put in the calendar that this plan does
+    /// not: their events as last published, kept in the calendar, and
+    /// cancelled unless the test finished as planned.
+    pub kept: Vec<KeptEvents>,
+}
+
+/// One experiment's event version.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct EventSequence {
+    /// The experiment's id.
+    pub id: String,
+    /// The SEQUENCE of its run and result events.
+    pub sequence: u32,
+}
+
+/// The events of an experiment that left the calendar, as last published.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct KeptEvents {
+    /// The experiment's id.
+    pub id: String,
+    /// Its title.
+    pub title: String,
+    /// Why it left: `finished` (as planned: its result date had come),
+    /// `finished_early`, `cancelled`, `unscheduled` or `dropped` (no
+    /// longer in the portfolio).
+    pub why: String,
+    /// Whether its events are published as cancelled (every reason but
+    /// `finished`).
+    pub cancelled: bool,
+    /// The first day of the run last published.
+    pub start: NaiveDate,
+    /// Its last day.
+    pub end: NaiveDate,
+    /// Its result date.
+    pub result_date: NaiveDate,
+    /// The SEQUENCE the cancelled events carry.
+    pub sequence: u32,
 }
 
 /// Re-plans only: where a running test stands and when it will finish.

@@ -16,7 +16,9 @@
 //!   independent proportions", *Biometrics* 36, 343-346.
 //! * Arcsine transform: Cohen (1988), *Statistical Power Analysis for the
 //!   Behavioral Sciences*, 2nd ed., chapter 6 (effect size h).
-//! * Two means, z: the normal approximation (Chow, Shao & Wang 2008, 3.2).
+//! * Two means, z: the normal approximation (Chow, Shao & Wang 2008, 3.2),
+//!   counting both tails of a two-sided test as the t method does (and as
+//!   statsmodels' `NormalIndPower`); the rate methods count the near tail.
 //! * Two means, t: the two-sample t-test with the noncentral t distribution
 //!   (Cohen 1988, chapter 2), its CDF by Lenth (1989), Algorithm AS 243,
 //!   *Applied Statistics* 38, 185-189.
@@ -708,6 +710,28 @@ fn t_power(d: &Design, n_control: f64) -> f64 {
     power.clamp(0.0, 1.0)
 }
 
+/// Power of the two-sample z-test on means with `n_control` control units
+/// and `ratio x n_control` treatment units. Both tails count when the test
+/// is two-sided, as for the t-test (Cohen 1988, chapter 2) and as
+/// statsmodels' `NormalIndPower` computes it:
+/// Phi(ncp - z) + Phi(-ncp - z), ncp = |delta| / (sd sqrt(1/n1 + 1/n2)).
+fn z_power(d: &Design, n_control: f64) -> f64 {
+    let Metric::Mean { sd, .. } = d.metric else {
+        return f64::NAN;
+    };
+    let sd = sd * (1.0 - d.rho * d.rho).sqrt();
+    let n1 = n_control;
+    let n2 = n_control * d.ratio;
+    let delta = (d.treatment_value() - mean_of(d)).abs();
+    let ncp = delta / (sd * (1.0 / n1 + 1.0 / n2).sqrt());
+    let za = z_alpha(d);
+    let near = std_normal().cdf(ncp - za);
+    match d.sides {
+        Sides::Two => (near + std_normal().cdf(-ncp - za)).clamp(0.0, 1.0),
+        Sides::One => near,
+    }
+}
+
 /// Control-arm units before rounding, for a design assumed valid.
 fn control_exact(d: &Design) -> Result<f64, SizingError> {
     let reduction = 1.0 - d.rho * d.rho;
@@ -717,6 +741,16 @@ fn control_exact(d: &Design) -> Result<f64, SizingError> {
     let n_normal = (za * nf.a + zb * nf.b).powi(2) / (nf.delta * nf.delta) * reduction;
     match d.method {
         Method::Corrected => Ok(continuity_correct(n_normal, d.ratio, nf.delta)),
+        // Both tails count for z on means, as for t: the closed form
+        // leaves out the far tail, so it is an upper end for the root.
+        Method::Z if d.sides == Sides::Two => {
+            let f = |n: f64| z_power(d, n) - d.power;
+            let lo = f64::MIN_POSITIVE;
+            if !(n_normal.is_finite() && n_normal > 0.0) || f(n_normal) < 0.0 {
+                return Ok(n_normal);
+            }
+            Ok(bisect(f, lo, n_normal, 1e-12))
+        }
         Method::T => {
             // Smallest real n with t power >= target: bracket from the z answer.
             let f = |n: f64| t_power(d, n) - d.power;
@@ -831,6 +865,7 @@ pub fn achieved_power(d: &Design, n_control: f64) -> Result<f64, SizingError> {
     let za = z_alpha(d);
     let power = match d.method {
         Method::T => t_power(d, n_control),
+        Method::Z => z_power(d, n_control),
         _ => {
             let n_for_normal = match d.method {
                 Method::Corrected => continuity_uncorrect(n_control, d.ratio, nf.delta),

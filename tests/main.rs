@@ -3,12 +3,14 @@
 
 mod util;
 
+mod calendar;
 mod check;
 mod commands;
 mod outputs;
 mod plan;
 mod render;
 mod replan;
+mod safe_files;
 mod size_cli;
 mod sizing_properties;
 mod sizing_published;

@@ -407,3 +407,51 @@ fn help_warns_against_reading_a_fixed_test_early() {
         );
     }
 }
+/// statsmodels 0.15.0: NormalIndPower().solve_power(effect_size=0.2,
+/// alpha=0.05, power=0.8, ratio=1, alternative='two-sided') =
+/// 392.4430232577885, and for effect_size=1/3000 (a 1% lift on a mean of
+/// 100 with sd 3,000) 141279489.16787153. Both tails of the two-sided test
+/// count, as for the t method (issue 9). statsmodels' root finder stops
+/// about 6e-9 (relative) from the root (its power at 392.44302 is 2e-9 short
+/// of 0.8), so the tolerance is 1e-7: well inside the 2.5e-6 that leaving
+/// out the far tail adds.
+#[test]
+fn z_on_means_counts_both_tails_as_normal_ind_power() {
+    for (sd, mde, reference) in [
+        ("20", "0.04", 392.4430232577885),
+        ("3000", "0.01", 141279489.16787153),
+    ] {
+        let v = json(&["--mean", "100", "--sd", sd, "--mde", mde, "--method", "z"]);
+        let exact = float(&v, "control_exact");
+        assert!(
+            (exact - reference).abs() < 1e-7 * reference,
+            "sd {sd}: {exact} against {reference}"
+        );
+        assert_eq!(int(&v, "control"), reference.ceil() as u64);
+    }
+}
+
+#[test]
+fn the_text_summary_prints_numbers_rounded_for_people() {
+    let text = cmd(&["size", "--baseline", "0.05", "--mde", "0.07"]).stdout();
+    assert!(text.contains("effect      +7% relative\n"), "{text}");
+    assert!(
+        text.contains("rate, baseline 5% -> treatment 5.35%"),
+        "{text}"
+    );
+    let text = cmd(&[
+        "size",
+        "--mean",
+        "0.3",
+        "--sd",
+        "0.1",
+        "--mde-abs",
+        "-0.07",
+        "--method",
+        "z",
+    ])
+    .stdout();
+    assert!(text.contains("effect      -0.07 absolute\n"), "{text}");
+    assert!(text.contains("-> treatment 0.23\n"), "{text}");
+    assert!(!text.contains("00000"), "{text}");
+}

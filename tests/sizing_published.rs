@@ -140,8 +140,9 @@ fn fleiss_continuity_corrected_table_entry() {
 /// van Belle (2008), *Statistical Rules of Thumb*, 2nd ed., ch. 2: for
 /// two-sided alpha 0.05 and power 0.80, n per group ~ 16 sigma^2 / delta^2
 /// (a fact of the trade; the 16 is 2 (z_.975 + z_.80)^2 = 15.698 rounded
-/// up). So the normal-approximation size is exactly 15.698/16 = 0.9811 of
-/// the rule, and the t-test size within a few percent of it while n is
+/// up). So the normal-approximation size is 15.698/16 = 0.9811 of the rule
+/// (a hair less, as the z method also counts the far tail of the two-sided
+/// test, which the closed form leaves out: under 1e-5 of the size here), and the t-test size within a few percent of it while n is
 /// not tiny (at d = 0.5 the t size is 0.996 of the rule).
 #[test]
 fn van_belle_rule_of_sixteen() {
@@ -161,7 +162,7 @@ fn van_belle_rule_of_sixteen() {
         ]);
         let ratio_z = control_exact(&z) / rule;
         assert!(
-            (ratio_z - two_z_squared / 16.0).abs() < 1e-9,
+            ratio_z <= two_z_squared / 16.0 && ratio_z > two_z_squared / 16.0 * (1.0 - 1e-5),
             "d {d}: z size / rule = {ratio_z}"
         );
         let t = size(&["--mean", "100", "--sd", "1", "--mde-abs", &mde]);

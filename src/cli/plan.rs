@@ -20,7 +20,7 @@ pub struct OutputArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
-    /// Write to this file (atomically) instead of stdout; never over the portfolio
+    /// Write to this file (atomically) instead of stdout; never over a file the command reads
     #[arg(long, value_name = "PATH")]
     pub out: Option<PathBuf>,
     /// Write 0 as the solver's seconds, so outputs compare byte for byte
@@ -31,8 +31,9 @@ pub struct OutputArgs {
 /// Flags of the solver.
 #[derive(Args, Debug)]
 pub struct SolverArgs {
-    /// Most seconds to spend; the best verified plan so far is returned
-    #[arg(long, value_name = "SECONDS", default_value_t = 10.0)]
+    /// A safety net in seconds: the search ends on its fixed work budget; if the clock
+    /// stops it first, the plan says it was cut short
+    #[arg(long, value_name = "SECONDS", default_value_t = crate::schedule::DEFAULT_TIME_LIMIT)]
     pub time_limit: f64,
     /// The LP backend (`microlp`; `highs` in builds with the `highs` feature)
     #[arg(long, value_name = "NAME", default_value = "microlp")]
@@ -66,9 +67,13 @@ pub fn load_portfolio(path: &Path) -> Result<portfolio::Portfolio, Error> {
 /// Renders `plan` and sends it where `out` says: the bytes for stdout, or
 /// an atomic write to `--out` (then a one-line note for stdout). A
 /// re-plan's changes are part of the plan, so every renderer draws them.
-pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, Error> {
+pub fn emit(mut plan: Plan, out: &OutputArgs, inputs: &[&Path]) -> Result<Vec<u8>, Error> {
     if out.no_timing {
         plan.solver.seconds = 0.0;
+    }
+    // Said on stderr too, for formats with no place for prose (CSV).
+    if let Some(note) = crate::render::common::cut_short_note(&plan) {
+        eprintln!("warning: {}", note.replace('`', ""));
     }
     let opts = if out.out.is_some() {
         RenderOptions::for_file()
@@ -79,7 +84,7 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, input: &Path) -> Result<Vec<u8>, E
     match &out.out {
         None => Ok(bytes),
         Some(path) => {
-            output::write_output(path, &bytes, input)?;
+            output::write_output(path, &bytes, inputs)?;
             eprintln!(
                 "wrote the plan ({}) to {}",
                 out.format.name(),
@@ -125,5 +130,5 @@ pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Error> {
         request.today = Some(today);
     }
     let plan = schedule::plan(&p, &request);
-    emit(plan, &a.output, &a.file)
+    emit(plan, &a.output, &[&a.file])
 }

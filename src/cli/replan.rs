@@ -64,7 +64,15 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
             end: w.end,
         });
     }
-    let today = a.today.max(w.start);
+    // Before the window there is nothing to re-plan: an error, as for `plan`.
+    if a.today < w.start {
+        return Err(Error::TodayOutsideWindow {
+            today: a.today,
+            start: w.start,
+            end: w.end,
+        });
+    }
+    let today = a.today;
     let portfolio = replan::with_scales(&portfolio, &a.scale, today)?;
     let progress = progress::load_progress(&a.progress, &portfolio, a.today)?;
     for w in &progress.warnings {
@@ -74,6 +82,9 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)?;
     if let Some(prev) = &previous {
         plan.changes = Some(crate::diff::diff(prev, &plan));
+        plan.calendar = Some(crate::render::ics::calendar_history(prev, &plan));
     }
-    super::plan::emit(plan, &a.output, &a.file)
+    let mut inputs = vec![a.file.as_path(), a.progress.as_path()];
+    inputs.extend(a.previous.as_deref());
+    super::plan::emit(plan, &a.output, &inputs)
 }

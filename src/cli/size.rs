@@ -5,6 +5,7 @@ use crate::sizing::noninferiority;
 use crate::sizing::sequential::{self, Boundary};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
 use crate::words::thousands as fmt_units;
+use crate::words::trimmed;
 use clap::{Args, ValueEnum};
 use serde::Serialize;
 
@@ -500,31 +501,39 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
     let mut s = String::new();
     let metric = match r.metric {
         Metric::Rate { baseline } => format!(
-            "rate, baseline {:.4}% -> treatment {:.4}%",
-            baseline * 100.0,
-            r.treatment_value * 100.0
+            "rate, baseline {}% -> treatment {}%",
+            trimmed(baseline * 100.0, 4),
+            trimmed(r.treatment_value * 100.0, 4)
         ),
         Metric::Mean { mean, sd } => format!(
-            "mean, baseline {mean} (sd {sd}) -> treatment {:.6}",
-            r.treatment_value
+            "mean, baseline {} (sd {}) -> treatment {}",
+            trim_float(mean),
+            trim_float(sd),
+            trim_float(r.treatment_value)
         ),
     };
     let effect = |e: Effect| match e {
-        Effect::Relative(x) => format!("{:+}% relative", x * 100.0),
-        Effect::Absolute(x) => format!("{x:+} absolute"),
+        Effect::Relative(x) => format!("{}% relative", signed(x * 100.0)),
+        Effect::Absolute(x) => format!("{} absolute", signed(x)),
     };
     match (r.margin, r.null_value) {
         (Some(margin), Some(null)) => {
             let metric = match r.metric {
-                Metric::Rate { baseline } => format!("rate, baseline {:.4}%", baseline * 100.0),
-                Metric::Mean { mean, sd } => format!("mean, baseline {mean} (sd {sd})"),
+                Metric::Rate { baseline } => {
+                    format!("rate, baseline {}%", trimmed(baseline * 100.0, 4))
+                }
+                Metric::Mean { mean, sd } => format!(
+                    "mean, baseline {} (sd {})",
+                    trim_float(mean),
+                    trim_float(sd)
+                ),
             };
             let harm = match margin {
                 Effect::Relative(x) | Effect::Absolute(x) if x < 0.0 => "a rise",
                 _ => "a fall",
             };
             let null = match r.metric {
-                Metric::Rate { .. } => format!("{:.4}%", null * 100.0),
+                Metric::Rate { .. } => format!("{}%", trimmed(null * 100.0, 4)),
                 Metric::Mean { .. } => trim_float(null),
             };
             let _ = writeln!(s, "metric      {metric}");
@@ -544,7 +553,7 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         Sides::One => "one-sided",
         Sides::Two => "two-sided",
     };
-    let _ = write!(s, "test        alpha {} {sides}", r.alpha);
+    let _ = write!(s, "test        alpha {} {sides}", trim_float(r.alpha));
     if r.arms > 2 {
         let _ = write!(
             s,
@@ -553,13 +562,13 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
             r.correction.name()
         );
     }
-    let _ = writeln!(s, ", power {}, method {}", r.power, r.method);
+    let _ = writeln!(s, ", power {}, method {}", trim_float(r.power), r.method);
     if r.rho > 0.0 {
         let _ = writeln!(
             s,
-            "covariate   rho {} (size x {:.4})",
-            r.rho,
-            1.0 - r.rho * r.rho
+            "covariate   rho {} (size x {})",
+            trim_float(r.rho),
+            trimmed(1.0 - r.rho * r.rho, 4)
         );
     }
     let _ = writeln!(s);
@@ -579,7 +588,7 @@ fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
         "{label:<11} {:>12} units  ({:.2} before rounding, ratio {})",
         fmt_units(r.treatment),
         r.treatment_exact,
-        r.ratio
+        trim_float(r.ratio)
     );
     let _ = writeln!(
         s,
@@ -650,6 +659,17 @@ fn looks_text(s: &mut String, l: &LooksReport, ratio: f64) {
     );
 }
 
+/// A number as people read it: at most six decimals, no trailing zeros.
 fn trim_float(x: f64) -> String {
-    crate::words::trimmed(x, 6)
+    trimmed(x, 6)
+}
+
+/// [`trim_float`] with its sign always shown: `+7`, `-0.5`.
+fn signed(x: f64) -> String {
+    let t = trim_float(x);
+    if t.starts_with('-') || t == "0" {
+        t
+    } else {
+        format!("+{t}")
+    }
 }

@@ -38,32 +38,161 @@ impl std::error::Error for LoadError {}
 /// Reads and validates the portfolio file at `path`.
 pub fn load(path: &Path) -> Result<Portfolio, LoadError> {
     let name = path.display().to_string();
+    let text = read_text(path, "the file", "save the portfolio as UTF-8")?;
+    load_str(&text, &name)
+}
+
+/// Reads a YAML file as UTF-8 text; an unreadable file or one that is not
+/// UTF-8 is an error naming the file (and the line and column of the first
+/// byte that is not UTF-8). `what` names the file in the message.
+pub(crate) fn read_text(path: &Path, what: &str, utf8_hint: &str) -> Result<String, LoadError> {
+    let name = path.display().to_string();
     let bytes = std::fs::read(path).map_err(|e| LoadError {
         diagnostics: vec![
-            Diagnostic::new(&name, "", format!("cannot read the file: {e}"))
+            Diagnostic::new(&name, "", format!("cannot read {what}: {e}"))
                 .with_hint("check the path and that the file is readable"),
         ],
     })?;
-    let text = String::from_utf8(bytes).map_err(|e| {
+    String::from_utf8(bytes).map_err(|e| {
         let offset = e.utf8_error().valid_up_to();
         let before = String::from_utf8_lossy(&e.into_bytes()[..offset]).into_owned();
-        let line = before.matches('\n').count() + 1;
-        let column = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
-        let mut d = Diagnostic::new(&name, "", "the file is not UTF-8 text")
-            .with_hint("save the portfolio as UTF-8");
+        let (line, column) = line_column(&before, before.len());
+        let mut d =
+            Diagnostic::new(&name, "", format!("{what} is not UTF-8 text")).with_hint(utf8_hint);
         d.line = Some(line);
         d.column = Some(column);
         LoadError {
             diagnostics: vec![d],
         }
-    })?;
-    load_str(&text, &name)
+    })
+}
+
+/// The 1-based line and column (in characters) of byte `offset` of `text`,
+/// counting LF, CR LF and a lone CR each as one line break, as YAML does.
+fn line_column(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset];
+    let mut line = 1;
+    let mut column = 1;
+    let mut chars = before.chars().peekable();
+    while let Some(c) = chars.next() {
+        match c {
+            '\r' if chars.peek() == Some(&'\n') => {}
+            '\r' | '\n' => {
+                line += 1;
+                column = 1;
+            }
+            _ => column += 1,
+        }
+    }
+    (line, column)
+}
+
+/// What every YAML loader checks before parsing, on text without its BOM:
+/// a control character YAML does not allow (reported at its own line and
+/// column), and old Mac line ends (a CR alone), which are read as line
+/// breaks. Returns the text to parse, with each lone CR made an LF so that
+/// every line-based step agrees with the YAML parser on the line numbers.
+pub(crate) fn prepare<'t>(
+    body: &'t str,
+    file_name: &str,
+    hint: &str,
+) -> Result<std::borrow::Cow<'t, str>, LoadError> {
+    // YAML 1.2 §5.1: printable characters, plus tab, LF, CR and NEL.
+    let bad = body
+        .char_indices()
+        .find(|&(_, c)| c.is_control() && !matches!(c, '\t' | '\n' | '\r' | '\u{85}'));
+    if let Some((offset, c)) = bad {
+        let (line, column) = line_column(body, offset);
+        // The source line is shown with each such character as U+FFFD, so
+        // the terminal does not act on it and the caret stays in place.
+        let normal: String = body
+            .replace("\r\n", "\n")
+            .replace('\r', "\n")
+            .chars()
+            .map(|c| {
+                if c.is_control() && !matches!(c, '\t' | '\n') {
+                    '\u{fffd}'
+                } else {
+                    c
+                }
+            })
+            .collect();
+        let name = match c {
+            '\0' => "a NUL byte".to_string(),
+            c => format!("the control character U+{:04X}", c as u32),
+        };
+        return Err(LoadError {
+            diagnostics: vec![Diagnostic::new(
+                file_name,
+                "",
+                format!("the file holds {name}, which YAML does not allow"),
+            )
+            .with_hint(hint)
+            .at(&normal, line, column, 1)],
+        });
+    }
+    if body.contains('\r') {
+        let mut out = String::with_capacity(body.len());
+        let mut chars = body.chars().peekable();
+        while let Some(c) = chars.next() {
+            match c {
+                '\r' if chars.peek() == Some(&'\n') => {}
+                '\r' => out.push('\n'),
+                c => out.push(c),
+            }
+        }
+        return Ok(std::borrow::Cow::Owned(out));
+    }
+    Ok(std::borrow::Cow::Borrowed(body))
+}
+
+/// The line of the `---` that starts a second YAML document, if any: a
+/// line that is `---` or starts with `--- `, after the first document's
+/// content or marker (a `---` before any content opens the first one).
+pub(crate) fn second_document(body: &str) -> Option<usize> {
+    let mut opened = false;
+    for (i, line) in body.lines().enumerate() {
+        let marker = line == "---" || line.starts_with("--- ") || line.starts_with("---\t");
+        if marker {
+            if opened {
+                return Some(i + 1);
+            }
+            opened = true;
+            continue;
+        }
+        let t = line.trim();
+        if !t.is_empty() && !t.starts_with('#') && !line.starts_with('%') && line != "..." {
+            opened = true;
+        }
+    }
+    None
+}
+
+/// The diagnostic for a file with more than one YAML document, at the
+/// second document's `---`.
+pub(crate) fn two_documents(body: &str, file_name: &str, what: &str) -> Option<Diagnostic> {
+    let line = second_document(body)?;
+    Some(
+        Diagnostic::new(
+            file_name,
+            "",
+            format!("{what} holds a second YAML document; only one is read"),
+        )
+        .with_hint("remove this `---` and what follows it, or merge it into the first document")
+        .at(body, line, 1, 3),
+    )
 }
 
 /// Validates portfolio text; `file_name` is used in messages only.
 pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
     let fail = |diagnostics: Vec<Diagnostic>| Err(LoadError { diagnostics });
     let body = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let body = prepare(
+        body,
+        file_name,
+        "remove it; save the portfolio as plain text",
+    )?;
+    let body = body.as_ref();
     if body
         .lines()
         .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
@@ -82,6 +211,9 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
         if !unknown.is_empty() {
             return fail(unknown);
         }
+    }
+    if let Some(d) = two_documents(body, file_name, "the file") {
+        return fail(vec![d]);
     }
     let raw: RawPortfolio = match serde_yaml::from_str(body) {
         Ok(raw) => raw,
@@ -588,7 +720,7 @@ blackouts:
                 "window: {start: 2027-01-04\npools: []",
                 "did not find expected",
             ),
-            ("name: x\n---\nname: y\n", "more than one document"),
+            ("name: x\n---\nname: y\n", "t.yaml:2:1"),
             ("\u{feff}name: x\n", "has no `window`"),
             (
                 "window: {start: 0001-01-01, end: 9999-12-31}",

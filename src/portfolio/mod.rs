@@ -17,7 +17,7 @@ pub(crate) mod raw;
 mod validate;
 
 pub(crate) use checker::Checker;
-pub(crate) use load::{from_serde, index_of, unknown_keys};
+pub(crate) use load::{from_serde, index_of, prepare, read_text, two_documents, unknown_keys};
 pub use load::{load, load_str, LoadError};
 pub use model::*;
 pub use validate::DEFAULT_SHARE_LEVELS;

@@ -312,6 +312,10 @@ impl Blackout {
 /// The whole validated queue.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Portfolio {
+    /// The portfolio's stable id (the `id` key, else the file's stem):
+    /// with the experiment ids, the key of the calendar events' UIDs, so
+    /// that renaming the portfolio keeps them.
+    pub id: String,
     /// A name for the plan's title.
     pub name: String,
     /// The planning window.

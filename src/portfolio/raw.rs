@@ -61,6 +61,7 @@ impl Text {
 #[derive(Debug, Deserialize, Default)]
 #[serde(deny_unknown_fields)]
 pub struct RawPortfolio {
+    pub id: Option<Text>,
     pub name: Option<Text>,
     pub window: Option<RawWindow>,
     pub defaults: Option<RawDefaults>,

@@ -236,16 +236,34 @@ pub fn validate(
         ck: Checker::new(file, text, index),
         ranked: 0,
     };
+    let stem = std::path::Path::new(file)
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let name = raw
         .name
         .as_ref()
         .map(|t| t.as_str().to_string())
-        .unwrap_or_else(|| {
-            std::path::Path::new(file)
-                .file_stem()
-                .map(|s| s.to_string_lossy().into_owned())
-                .unwrap_or_default()
-        });
+        .unwrap_or_else(|| stem.clone());
+    let id = match raw.id.as_ref().map(|t| t.as_str().trim().to_string()) {
+        None => stem,
+        Some(id) => {
+            if id.is_empty() {
+                cx.err(
+                    "id",
+                    "the portfolio's `id` is empty",
+                    "leave `id` out to use the file name's stem, or give a short fixed name such as `shop-q1`",
+                );
+            } else if id.chars().any(char::is_control) {
+                cx.err(
+                    "id",
+                    "the portfolio's `id` contains a line break or another control character",
+                    "write the id on one line with letters, digits and dashes, e.g. `shop-q1`",
+                );
+            }
+            id
+        }
+    };
     let window = window(&mut cx, raw.window.as_ref());
     let (defaults, defaults_ok) = defaults(&mut cx, raw.defaults.unwrap_or_default());
     let share_levels = share_levels(&mut cx, raw.share_levels);
@@ -275,6 +293,7 @@ pub fn validate(
     let window = window.expect("a window without diagnostics is valid");
     let after_order = after_order.expect("an `after` graph without diagnostics is acyclic");
     Ok(Portfolio {
+        id,
         name,
         window,
         defaults,
@@ -508,6 +527,15 @@ fn ids(cx: &mut Ctx, section: &str, what: &str, raw: Vec<Option<&Text>>) -> Vec<
                 &key,
                 format!("{what} number {} has an empty `id`", i + 1),
                 format!("give every {what} a unique `id`"),
+            );
+        } else if id.chars().any(char::is_control) {
+            cx.err(
+                &key,
+                format!(
+                    "{what} number {} has an `id` with a line break or another control character",
+                    i + 1
+                ),
+                "write the id on one line, e.g. `hero-copy`; every output format shows it",
             );
         } else if let Some(&first) = seen.get(&id) {
             let first_line = cx

@@ -184,7 +184,16 @@ pub fn short_date(d: NaiveDate) -> String {
     d.format("%-d %b").to_string()
 }
 
-/// The solver's numbers in one sentence.
+/// What every format says of a plan the time limit cut short
+/// (`solver.cut_short`); `None` for a plan the work budget decided.
+pub fn cut_short_note(plan: &Plan) -> Option<&'static str> {
+    plan.solver.cut_short.then_some(
+        "The time limit cut the search short before its work budget was spent, so this plan \
+         may differ from run to run on a busy machine; plan again with a larger `--time-limit`.",
+    )
+}
+
+/// The solver's numbers in one sentence (two when the search was cut short).
 pub fn solver_sentence(plan: &Plan) -> String {
     let s = &plan.solver;
     let status = match s.status {
@@ -192,14 +201,18 @@ pub fn solver_sentence(plan: &Plan) -> String {
         SolverStatus::Feasible => "a feasible plan, not proved optimal",
         SolverStatus::Greedy => "the greedy fallback (the solver gave no plan)",
     };
-    format!(
+    let sentence = format!(
         "solver `{}`: {status}; plan value {:.1} against a bound of {:.1} (gap {:.1}%); greedy baseline {:.1}.",
         s.backend,
         s.value,
         s.bound,
         s.gap * 100.0,
         plan.greedy_value
-    )
+    );
+    match cut_short_note(plan) {
+        Some(note) => format!("{sentence} {note}"),
+        None => sentence,
+    }
 }
 
 /// The cautions every output carries, as one paragraph.

@@ -5,15 +5,25 @@
 //! crate. Everything that calendar clients use to match events is derived
 //! from the plan alone, so the same plan always gives the same bytes and a
 //! re-imported calendar updates its events rather than duplicating them:
-//! UIDs come from the portfolio name, the experiment id and the event kind,
-//! and DTSTAMP is the plan's `today` at midnight UTC (not the clock).
+//! UIDs come from the portfolio's `id` (not its display name), the
+//! experiment id and the event kind, and DTSTAMP is the plan's `today` at
+//! midnight UTC (not the clock).
+//!
+//! A re-plan with `--previous` carries a [`CalendarHistory`]
+//! ([`calendar_history`]): each changed event gets a higher SEQUENCE
+//! (RFC 5545 §3.8.7.4), and the events of tests that left the calendar
+//! (cancelled, finished early, no longer fitting, dropped) are published
+//! again with STATUS:CANCELLED (§3.8.1.11), so that importing the re-plan
+//! updates calendars that imported an earlier plan.
 //! All-day events end on the day after their last day, as RFC 5545 §3.6.1
 //! defines DTEND for DATE values (exclusive).
 
-use super::common::{pool_label, thousands, units};
+use super::common::{cut_short_note, pool_label, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
-use crate::plan::{Plan, PlannedExperiment, Run};
-use chrono::{Duration, NaiveTime};
+use crate::plan::{
+    CalendarHistory, EventSequence, KeptEvents, Plan, PlannedExperiment, Run, Status,
+};
+use chrono::{Duration, NaiveDate, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
 
 /// The iCalendar renderer.
@@ -68,7 +78,7 @@ fn uid_part(s: &str) -> String {
 }
 
 fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
-    format!(
+    let mut text = format!(
         "Experiment: {} ({})\n\
          Owner: {}\n\
          Pool: {} ({})\n\
@@ -92,7 +102,221 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         thousands(e.units_needed),
         units(run.units_expected),
         plan.portfolio,
-    )
+    );
+    if let Some(note) = cut_short_note(plan) {
+        text.push('\n');
+        text.push_str(&note.replace('`', ""));
+    }
+    text
+}
+
+/// What a calendar shows of one event; two plans that give an event the
+/// same content leave it unchanged.
+#[derive(Debug, Clone, PartialEq, Eq)]
+struct Content {
+    summary: String,
+    description: String,
+    /// First day.
+    start: NaiveDate,
+    /// Last day (inclusive; DTEND is the day after).
+    end: NaiveDate,
+}
+
+/// One event as written: its content, UID, status and SEQUENCE.
+struct Spec {
+    uid: String,
+    content: Content,
+    status: EventStatus,
+    sequence: u32,
+}
+
+/// The run and result events of an experiment in the calendar.
+fn contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
+    if !e.status.in_calendar() {
+        return None;
+    }
+    let run = e.run?;
+    let description = description(plan, e, &run);
+    Some([
+        Content {
+            summary: format!("Test running: {} [{}]", e.title, e.id),
+            description: description.clone(),
+            start: run.start,
+            end: run.end,
+        },
+        Content {
+            summary: format!("Result due: {} [{}]", e.title, e.id),
+            description,
+            start: run.result_date,
+            end: run.result_date,
+        },
+    ])
+}
+
+/// The events of a test that left the calendar, as kept.
+fn kept_contents(plan: &Plan, k: &KeptEvents) -> [Content; 2] {
+    let why = match k.why.as_str() {
+        "finished" => "It has finished.",
+        "finished_early" => "It finished early; these dates no longer hold.",
+        "cancelled" => "It was cancelled.",
+        "unscheduled" => "It no longer fits the calendar.",
+        "dropped" => "It is no longer in the portfolio.",
+        _ => "It is no longer in the calendar.",
+    };
+    let description = format!(
+        "Experiment: {} ({})\nRan from {} to {}; result due {}.\n{why}\nPortfolio: {}",
+        k.title, k.id, k.start, k.end, k.result_date, plan.portfolio
+    );
+    [
+        Content {
+            summary: format!("Test running: {} [{}]", k.title, k.id),
+            description: description.clone(),
+            start: k.start,
+            end: k.end,
+        },
+        Content {
+            summary: format!("Result due: {} [{}]", k.title, k.id),
+            description,
+            start: k.result_date,
+            end: k.result_date,
+        },
+    ]
+}
+
+/// The SEQUENCE of an experiment's events in `plan` (0 unless a re-plan's
+/// calendar history raised it).
+fn sequence_of(plan: &Plan, id: &str) -> u32 {
+    plan.calendar.as_ref().map_or(0, |c| {
+        c.sequences
+            .iter()
+            .find(|s| s.id == id)
+            .map(|s| s.sequence)
+            .or_else(|| c.kept.iter().find(|k| k.id == id).map(|k| k.sequence))
+            .unwrap_or(0)
+    })
+}
+
+/// Every event of the plan's calendar, in plan order, then the kept ones.
+fn specs(plan: &Plan) -> Vec<Spec> {
+    let mut out = Vec::new();
+    for e in &plan.experiments {
+        let Some(cs) = contents(plan, e) else {
+            continue;
+        };
+        let sequence = sequence_of(plan, &e.id);
+        for (content, kind) in cs.into_iter().zip([EventKind::Run, EventKind::Result]) {
+            out.push(Spec {
+                uid: uid(&plan.id, &e.id, kind),
+                content,
+                status: EventStatus::Tentative,
+                sequence,
+            });
+        }
+    }
+    for k in plan.calendar.iter().flat_map(|c| &c.kept) {
+        for (content, kind) in kept_contents(plan, k)
+            .into_iter()
+            .zip([EventKind::Run, EventKind::Result])
+        {
+            out.push(Spec {
+                uid: uid(&plan.id, &k.id, kind),
+                content,
+                status: if k.cancelled {
+                    EventStatus::Cancelled
+                } else {
+                    EventStatus::Confirmed
+                },
+                sequence: k.sequence,
+            });
+        }
+    }
+    out
+}
+
+/// The calendar history of `plan`, a re-plan of `previous`: which events
+/// changed, and which tests left the calendar.
+///
+/// SEQUENCE (RFC 5545 §3.8.7.4) counts the re-plans at which an event
+/// changed. A plan without `--previous` writes every event at 0. A re-plan
+/// of `previous` gives each experiment's two events the sequence they had
+/// there (from its `calendar`, else 0), plus one when what a calendar
+/// shows of them differs (summary, description, first and last day,
+/// status) or when they come back after leaving. A test that was in the
+/// previous calendar and is not in this one is kept with its last dates:
+/// cancelled (sequence plus one) unless it finished as planned, i.e. its
+/// last planned day came before this plan's today (then it stays as it
+/// was, its sequence plus one for the new wording). Tests already kept by
+/// `previous` stay kept as they were. So the sequence is a function of
+/// the two plans alone, and strictly increases for every changed event
+/// along a chain of re-plans.
+pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
+    let prev_kept: Vec<&KeptEvents> = previous.calendar.iter().flat_map(|c| &c.kept).collect();
+    let now_in = |id: &str| {
+        plan.experiments
+            .iter()
+            .any(|e| e.id == id && contents(plan, e).is_some())
+    };
+    let mut history = CalendarHistory::default();
+    for e in &plan.experiments {
+        let Some(now) = contents(plan, e) else {
+            continue;
+        };
+        let base = sequence_of(previous, &e.id);
+        let before = previous
+            .experiments
+            .iter()
+            .find(|o| o.id == e.id)
+            .and_then(|o| contents(previous, o));
+        let sequence = match before {
+            Some(before) if before == now => base,
+            Some(_) => base + 1,
+            // Back after leaving: the kept events are replaced.
+            None if prev_kept.iter().any(|k| k.id == e.id) => base + 1,
+            None => base,
+        };
+        if sequence > 0 {
+            history.sequences.push(EventSequence {
+                id: e.id.clone(),
+                sequence,
+            });
+        }
+    }
+    for o in &previous.experiments {
+        let Some(run) = o.run.filter(|_| o.status.in_calendar()) else {
+            continue;
+        };
+        if now_in(&o.id) {
+            continue;
+        }
+        let status = plan
+            .experiments
+            .iter()
+            .find(|e| e.id == o.id)
+            .map(|e| e.status);
+        let why = match status {
+            Some(Status::Finished) if run.end < plan.today => "finished",
+            Some(Status::Finished) => "finished_early",
+            Some(Status::Cancelled) => "cancelled",
+            Some(_) => "unscheduled",
+            None => "dropped",
+        };
+        history.kept.push(KeptEvents {
+            id: o.id.clone(),
+            title: o.title.clone(),
+            why: why.to_string(),
+            cancelled: why != "finished",
+            start: run.start,
+            end: run.end,
+            result_date: run.result_date,
+            sequence: sequence_of(previous, &o.id) + 1,
+        });
+    }
+    for k in prev_kept {
+        if !now_in(&k.id) && history.kept.iter().all(|h| h.id != k.id) {
+            history.kept.push(k.clone());
+        }
+    }
+    history
 }
 
 impl Renderer for Ics {
@@ -108,31 +332,20 @@ impl Renderer for Ics {
         let name = format!("Experiment plan: {}", plan.portfolio);
         cal.append_property(Property::new("NAME", escape_text(&name)));
         cal.append_property(Property::new("X-WR-CALNAME", &name));
-        for e in &plan.experiments {
-            let Some(run) = e.run else { continue };
-            let desc = description(plan, e, &run);
-            let mut running = Event::new();
-            running
-                .uid(&uid(&plan.portfolio, &e.id, EventKind::Run))
+        for spec in specs(plan) {
+            let c = &spec.content;
+            let mut event = Event::new();
+            event
+                .uid(&spec.uid)
                 .timestamp(stamp)
-                .summary(&format!("Test running: {} [{}]", e.title, e.id))
-                .description(&desc)
-                .starts(run.start)
-                .ends(run.end + Duration::days(1))
-                .status(EventStatus::Tentative)
+                .summary(&c.summary)
+                .description(&c.description)
+                .starts(c.start)
+                .ends(c.end + Duration::days(1))
+                .status(spec.status)
+                .add_property("SEQUENCE", spec.sequence.to_string())
                 .add_property("TRANSP", "TRANSPARENT");
-            cal.push(running.done());
-            let mut result = Event::new();
-            result
-                .uid(&uid(&plan.portfolio, &e.id, EventKind::Result))
-                .timestamp(stamp)
-                .summary(&format!("Result due: {} [{}]", e.title, e.id))
-                .description(&desc)
-                .starts(run.result_date)
-                .ends(run.result_date + Duration::days(1))
-                .status(EventStatus::Tentative)
-                .add_property("TRANSP", "TRANSPARENT");
-            cal.push(result.done());
+            cal.push(event.done());
         }
         Ok(refold(&cal.to_string()).into_bytes())
     }

@@ -136,6 +136,9 @@ impl Renderer for Markdown {
             super::common::do_not(not_fit),
             super::common::decision_note(plan)
         );
+        if let Some(note) = super::common::cut_short_note(plan) {
+            let _ = writeln!(w, "> **Cut short.** {}\n", escape_keeping_code(note));
+        }
         if fit > 0 {
             let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
             let _ = writeln!(w, "|---|---|---|---|--:|---|");

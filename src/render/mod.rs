@@ -13,7 +13,7 @@
 //! them first, in the words of `moved`; JSON carries them as they are.
 //! `markup` lays out a table once for Markdown and HTML.
 
-mod common;
+pub(crate) mod common;
 pub mod csv;
 pub mod html;
 pub mod ics;

@@ -12,7 +12,10 @@
 use crate::diagnostic::{self, Diagnostic};
 use crate::forecast;
 use crate::portfolio::raw::{fields_of, Text};
-use crate::portfolio::{from_serde, index_of, unknown_keys, Checker, LoadError, Portfolio};
+use crate::portfolio::{
+    from_serde, index_of, prepare, read_text, two_documents, unknown_keys, Checker, LoadError,
+    Portfolio,
+};
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use serde::Deserialize;
@@ -117,14 +120,7 @@ pub fn load_progress(
     today: NaiveDate,
 ) -> Result<Progress, LoadError> {
     let name = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|e| LoadError {
-        diagnostics: vec![Diagnostic::new(
-            &name,
-            "",
-            format!("cannot read the progress file: {e}"),
-        )
-        .with_hint("check the path; docs/progress.md shows the format")],
-    })?;
+    let text = read_text(path, "the progress file", "save the progress file as UTF-8")?;
     load_progress_str(&text, &name, portfolio, today)
 }
 
@@ -137,6 +133,12 @@ pub fn load_progress_str(
 ) -> Result<Progress, LoadError> {
     let fail = |diagnostics: Vec<Diagnostic>| Err(LoadError { diagnostics });
     let body = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let body = prepare(
+        body,
+        file_name,
+        "remove it; save the progress file as plain text",
+    )?;
+    let body = body.as_ref();
     if body
         .lines()
         .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
@@ -153,6 +155,9 @@ pub fn load_progress_str(
         if !unknown.is_empty() {
             return fail(unknown);
         }
+    }
+    if let Some(d) = two_documents(body, file_name, "the progress file") {
+        return fail(vec![d]);
     }
     let raw: RawProgress = match serde_yaml::from_str(body) {
         Ok(raw) => raw,
@@ -434,7 +439,7 @@ impl ProgressCheck<'_> {
             None => None,
         };
         let units = match (e.units, &per_arm) {
-            (Some(u), _) if !(0.0..1e15).contains(&u) => {
+            (Some(u), _) if !(0.0..1e15).contains(&u) || u.fract() != 0.0 => {
                 self.ck.err(
                     &format!("{at}.units"),
                     format!("`{id}`: `units` is {u}; it must be a whole number >= 0"),

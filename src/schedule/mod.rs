@@ -82,6 +82,12 @@ pub struct Excluded {
     pub ran: Option<crate::plan::Ran>,
 }
 
+/// The default wall-clock safety net in seconds: twenty times the largest
+/// benchmark case measured on a loaded two-core machine (the large
+/// portfolio, 15 s; docs/planning.md), so that in ordinary use the work
+/// budgets, not the clock, end every search and decide the plan.
+pub const DEFAULT_TIME_LIMIT: f64 = 300.0;
+
 /// What to plan, beyond the portfolio.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PlanRequest {
@@ -107,7 +113,7 @@ impl Default for PlanRequest {
             today: None,
             fixed: Vec::new(),
             excluded: Vec::new(),
-            time_limit: 10.0,
+            time_limit: DEFAULT_TIME_LIMIT,
             backend: Backend::default(),
             effort: 1,
         }
@@ -162,7 +168,11 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
 /// one), with the bound and gap that could be proved.
 pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let clock = Instant::now();
-    let deadline = clock + std::time::Duration::from_secs_f64(request.time_limit.max(0.0));
+    let cut = std::cell::Cell::new(false);
+    let deadline = search::Deadline::new(
+        clock + std::time::Duration::from_secs_f64(request.time_limit.max(0.0)),
+        &cut,
+    );
     let inst = Instance::new(portfolio, request);
     let greedy_state = greedy::greedy(&inst);
     let mut state = greedy_state.clone();
@@ -186,11 +196,9 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     };
     let mut weight_left: f64 = comps.iter().map(weight).sum();
     for (comp, lp) in comps.iter().zip(&relaxed) {
-        let now = Instant::now();
-        let left = deadline.saturating_duration_since(now).as_secs_f64();
         let share = weight(comp) / weight_left.max(1.0);
         weight_left -= weight(comp);
-        let comp_deadline = now + std::time::Duration::from_secs_f64(left * share.min(1.0));
+        let comp_deadline = deadline.share(share);
         let out = search::solve_component(
             &inst,
             comp,
@@ -227,6 +235,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
         value,
         bound,
         gap: if all_proved { 0.0 } else { gap },
+        cut_short: cut.get(),
     };
     let greedy_value = fixed_value + greedy_state.value;
     let plan = assemble(&inst, &state, solver.clone(), greedy_value, request);
@@ -419,6 +428,7 @@ fn assemble(
         .collect();
     Plan {
         portfolio: p.name.clone(),
+        id: p.id.clone(),
         window: PlanWindow {
             start: w.start,
             end: w.end,
@@ -431,5 +441,6 @@ fn assemble(
         today,
         running: Vec::new(),
         changes: None,
+        calendar: None,
     }
 }

@@ -13,6 +13,7 @@ use super::lp::{self, Sub};
 use super::options::Instance;
 use super::state::State;
 use super::Backend;
+use std::cell::Cell;
 use std::time::Instant;
 
 /// A small seeded generator (splitmix64; Steele, Lea & Flood 2014,
@@ -61,10 +62,63 @@ fn tol(v: f64) -> f64 {
     1e-7 * v.abs().max(1.0)
 }
 
-fn remaining(deadline: Instant) -> f64 {
-    deadline
-        .saturating_duration_since(Instant::now())
-        .as_secs_f64()
+/// The wall-clock safety net: the moment the search must stop by, and a
+/// flag that records whether it ever did stop for it. The work budgets
+/// decide every plan that finishes them; only a plan this flag marks may
+/// depend on the machine's speed (`SolverSummary::cut_short`).
+#[derive(Clone, Copy)]
+pub(crate) struct Deadline<'a> {
+    at: Instant,
+    cut: &'a Cell<bool>,
+}
+
+impl<'a> Deadline<'a> {
+    /// Stops at `at`; marks `cut` when it does.
+    pub(crate) fn new(at: Instant, cut: &'a Cell<bool>) -> Deadline<'a> {
+        Deadline { at, cut }
+    }
+
+    /// The same flag, stopping after `fraction` of the time left from now.
+    pub(crate) fn share(self, fraction: f64) -> Deadline<'a> {
+        let left = self.seconds_left() * fraction.clamp(0.0, 1.0);
+        Deadline {
+            at: Instant::now() + std::time::Duration::from_secs_f64(left),
+            cut: self.cut,
+        }
+    }
+
+    /// Whether the time is up; if so, the search is marked cut short.
+    pub(crate) fn passed(self) -> bool {
+        let passed = Instant::now() >= self.at;
+        if passed {
+            self.cut.set(true);
+        }
+        passed
+    }
+
+    /// Seconds left, for a solver's own time limit.
+    pub(crate) fn seconds_left(self) -> f64 {
+        self.at
+            .saturating_duration_since(Instant::now())
+            .as_secs_f64()
+    }
+
+    /// Records an LP solve that failed or stopped short of optimal once the
+    /// time was up: the solver's time limit, not the model, ended it.
+    fn after_lp(self, solved: &Result<lp::Solved, lp::Failed>) {
+        let short = match solved {
+            Ok(s) => !s.optimal,
+            Err(lp::Failed::Infeasible) => false,
+            Err(_) => true,
+        };
+        if short {
+            self.passed();
+        }
+    }
+}
+
+fn remaining(deadline: Deadline) -> f64 {
+    deadline.seconds_left()
 }
 
 /// The LP relaxation of one component: one LP, or one per pool (links
@@ -74,21 +128,22 @@ pub(crate) fn relax(
     inst: &Instance,
     exps: &[usize],
     backend: Backend,
-    deadline: Instant,
+    deadline: Deadline,
 ) -> Option<lp::Solved> {
     let nopt: usize = exps.iter().map(|&e| inst.options[e].len()).sum();
     if nopt > LP_SPLIT_OPTIONS {
         return relax_by_pool(inst, exps, backend, deadline);
     }
-    lp::solve(
+    let solved = lp::solve(
         inst,
         &Sub::all(inst, exps),
         backend,
         false,
         remaining(deadline),
         None,
-    )
-    .ok()
+    );
+    deadline.after_lp(&solved);
+    solved.ok()
 }
 
 /// Optimises the tests `exps` of one component in `state` (which holds the
@@ -101,7 +156,7 @@ pub(crate) fn solve_component(
     state: &mut State,
     relaxed: Option<&lp::Solved>,
     backend: Backend,
-    deadline: Instant,
+    deadline: Deadline,
     effort: u32,
 ) -> Outcome {
     let greedy_value = comp_value(inst, exps, state);
@@ -160,7 +215,7 @@ fn relax_by_pool(
     inst: &Instance,
     exps: &[usize],
     backend: Backend,
-    deadline: Instant,
+    deadline: Deadline,
 ) -> Option<lp::Solved> {
     let p = inst.portfolio;
     let mut pools: Vec<usize> = exps.iter().map(|&e| p.experiments[e].pool).collect();
@@ -177,7 +232,9 @@ fn relax_by_pool(
             .collect();
         let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
         let sub = Sub::all(inst, &sub_exps);
-        let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None).ok()?;
+        let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None);
+        deadline.after_lp(&solved);
+        let solved = solved.ok()?;
         value += solved.value;
         for (k, &i) in members.iter().enumerate() {
             x[i] = solved.x[k].clone();
@@ -206,13 +263,15 @@ fn exact_milp(
     exps: &[usize],
     best: &mut State,
     backend: Backend,
-    deadline: Instant,
+    deadline: Deadline,
     comps_left: usize,
 ) -> Option<(f64, bool)> {
     let sub = Sub::all(inst, exps);
     let start: Vec<Option<usize>> = exps.iter().map(|&e| best.choice[e]).collect();
     let seconds = remaining(deadline) / comps_left.max(1) as f64;
-    let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start)).ok()?;
+    let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start));
+    deadline.after_lp(&solved);
+    let solved = solved.ok()?;
     let mut cand = best.clone();
     for &e in exps {
         cand.remove(inst, e);
@@ -255,7 +314,7 @@ fn branch_and_bound(
     exps: &[usize],
     best: &mut State,
     backend: Backend,
-    deadline: Instant,
+    deadline: Deadline,
     budget: usize,
 ) -> Option<f64> {
     struct Node<'s> {
@@ -289,12 +348,14 @@ fn branch_and_bound(
         if node.parent <= incumbent + tol(incumbent) {
             continue;
         }
-        if nodes >= budget || Instant::now() >= deadline {
+        if nodes >= budget || deadline.passed() {
             stack.push(node);
             break;
         }
         nodes += 1;
-        let lp = match lp::solve(inst, &node.sub, backend, false, remaining(deadline), None) {
+        let lp = lp::solve(inst, &node.sub, backend, false, remaining(deadline), None);
+        deadline.after_lp(&lp);
+        let lp = match lp {
             Ok(lp) => lp,
             Err(lp::Failed::Infeasible) => continue,
             Err(lp::Failed::Other) => return None,
@@ -523,7 +584,7 @@ fn lns(
     state: &mut State,
     iters: usize,
     rng: &mut SplitMix64,
-    deadline: Instant,
+    deadline: Deadline,
 ) {
     let p = inst.portfolio;
     let eff = chain_priority(inst);
@@ -531,7 +592,7 @@ fn lns(
     let mut best_value = best.value;
     let mut removed: Vec<usize> = Vec::new();
     for it in 0..iters {
-        if it % 32 == 0 && Instant::now() >= deadline {
+        if it % 32 == 0 && deadline.passed() {
             break;
         }
         removed.clear();

@@ -206,6 +206,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         });
     }
     Portfolio {
+        id: format!("synthetic-{}", spec.seed),
         name: format!(
             "synthetic-{}x{}x{}-{}",
             spec.tests, spec.pools, spec.weeks, spec.seed

@@ -58,6 +58,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
 /// day index e earns priority x (1 - 0.5 e / 27). Share levels 50% and 100%.
 fn portfolio(pools: Vec<Pool>, experiments: Vec<Experiment>) -> Portfolio {
     Portfolio {
+        id: "hand-built".into(),
         name: "hand-built".into(),
         window: Window {
             start: d("2027-01-04"),
@@ -688,4 +689,72 @@ fn highs_and_microlp_agree_within_their_gaps() {
             }
         }
     }
+}
+
+/// The plan's bytes with the one measured number left out.
+fn untimed(mut plan: Plan) -> Plan {
+    plan.solver.seconds = 0.0;
+    plan
+}
+
+/// The work budget, not the clock, decides the plan (issue 9): a medium
+/// portfolio (a search with LP bounds, branch and bound and the
+/// neighbourhood search; about a third of a second in a release build) gives
+/// the same plan with a safety net of ten minutes and of a hundred days,
+/// and neither is marked cut short.
+#[test]
+fn the_work_budget_decides_the_plan_whatever_the_time_limit() {
+    let p = synthetic::portfolio(&synthetic::Spec::medium(5));
+    let with = |time_limit: f64| {
+        untimed(plan(
+            &p,
+            &PlanRequest {
+                time_limit,
+                ..PlanRequest::default()
+            },
+        ))
+    };
+    let roomy = with(600.0);
+    let huge = with(8_640_000.0);
+    assert!(!roomy.solver.cut_short && !huge.solver.cut_short);
+    assert_eq!(roomy, huge);
+    assert!(
+        roomy.solver.value > roomy.greedy_value,
+        "the search did work"
+    );
+}
+
+/// A time limit too short for any search marks the plan cut short, and
+/// every format says so.
+#[test]
+fn a_plan_the_clock_cut_short_says_so_in_every_format() {
+    use crate::render::{render, Format, RenderOptions};
+    let p = synthetic::portfolio(&synthetic::Spec::medium(5));
+    let request = PlanRequest {
+        time_limit: 1e-9,
+        ..PlanRequest::default()
+    };
+    let cut = plan(&p, &request);
+    assert!(cut.solver.cut_short);
+    assert!(verify(&p, &request, &cut).is_ok());
+    let json: serde_json::Value =
+        serde_json::from_slice(&render(&cut, Format::Json, &RenderOptions::for_file()).unwrap())
+            .unwrap();
+    assert_eq!(json["solver"]["cut_short"], serde_json::Value::Bool(true));
+    for format in [Format::Text, Format::Html, Format::Md, Format::Ics] {
+        let bytes = render(&cut, format, &RenderOptions::for_file()).unwrap();
+        // iCalendar folds long lines: unfold before reading.
+        let text = String::from_utf8(bytes).unwrap().replace("\r\n ", "");
+        assert!(
+            text.contains("cut the search short"),
+            "{}: {text}",
+            format.name()
+        );
+    }
+    let fine = plan(&p, &PlanRequest::default());
+    assert!(!fine.solver.cut_short);
+    let text = render(&fine, Format::Text, &RenderOptions::for_file()).unwrap();
+    assert!(!String::from_utf8(text)
+        .unwrap()
+        .contains("cut the search short"));
 }

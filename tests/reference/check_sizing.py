@@ -29,9 +29,10 @@ design the check asserts:
   reference's power at that size, and at least the target.
 
 Conventions shared with the references, each stated where it is used:
-two-sided normal-approximation sizes count only the near tail (as
-samplesize_proportions_2indep_onetail; the far tail is measured and
-reported), the t test counts both tails (as TTestIndPower), and CUPED
+two-sided normal-approximation sizes of rates count only the near tail
+(as samplesize_proportions_2indep_onetail; the far tail is measured and
+reported), both tests on means count both tails (t as TTestIndPower, z as
+NormalIndPower with alternative='two-sided'), and CUPED
 scales the variance by 1 - rho^2 (Deng, Xu, Kohavi & Walker 2013).
 
 Then the minimum-detectable-effect inverse on a subset: the reference
@@ -279,8 +280,9 @@ def ref_control(d):
         # m and r m. CUPED shrinks the variance terms, so it enters m; the
         # correction term depends only on delta and r.
         return corrected_from_zb(d, z_b)
-    # NormalIndPower counts both tails of a two-sided test; sluice, like
-    # samplesize_proportions_2indep_onetail, only the near one. The far tail
+    # NormalIndPower counts both tails of a two-sided test; sluice's rate
+    # methods, like samplesize_proportions_2indep_onetail, only the near one
+    # (its z on means counts both, checked below). The far tail
     # shifts n by about 2.6e-6 of itself at power 0.8 (40 units at 15
     # million), so the normal references solve the near tail alone:
     # one-sided ('larger', |effect|) at the tail alpha. ref_power reports
@@ -294,12 +296,13 @@ def ref_control(d):
         )
         return float(n)
     es = abs(treatment_value(d) - d["mean"]) / (d["sd"] * math.sqrt(vf))
+    alt = "larger" if d["one_sided"] else "two-sided"
     if m == "z":
+        # Both tails when two-sided, as sluice's z on means.
         n = NormalIndPower().solve_power(
-            effect_size=es, alpha=a_tail, power=power, ratio=r, alternative="larger"
+            effect_size=es, alpha=ca, power=power, ratio=r, alternative=alt
         )
         return float(n)
-    alt = "larger" if d["one_sided"] else "two-sided"
     n = TTestIndPower().solve_power(effect_size=es, alpha=ca, power=power, ratio=r, alternative=alt)
     return float(n)
 
@@ -327,7 +330,8 @@ def ref_power(d, n_control):
     effect's direction, so the reference is statsmodels' one-sided power at
     alpha/2 (the near tail). `far_tail` returns what the two-sided
     statsmodels power adds on top (reported, and asserted tiny).
-    The t test counts both tails in sluice and in TTestIndPower.
+    The t and z tests on means count both tails in sluice, as in
+    TTestIndPower and NormalIndPower.
     """
     m = d["method"]
     ca = comparison_alpha(d)
@@ -364,12 +368,14 @@ def ref_power(d, n_control):
             lo -= 10.0
         zb = brentq(lambda z: corrected_from_zb(d, z) - n_control, lo, 40.0, xtol=1e-13)
         return float(norm.cdf(zb)), 0.0
-    if m in ("arcsine", "z"):
-        if m == "arcsine":
-            pc, pt = d["baseline"], treatment_value(d)
-            es = abs(proportion_effectsize(pt, pc))
-        else:
-            es = abs(treatment_value(d) - d["mean"]) / d["sd"]
+    if m == "z":
+        es = abs(treatment_value(d) - d["mean"]) / (d["sd"] * math.sqrt(vf))
+        alt = "larger" if d["one_sided"] else "two-sided"
+        pw = NormalIndPower().power(es, n_control, ca, ratio=r, alternative=alt)
+        return float(pw), 0.0
+    if m == "arcsine":
+        pc, pt = d["baseline"], treatment_value(d)
+        es = abs(proportion_effectsize(pt, pc))
         es /= math.sqrt(vf)
         near = NormalIndPower().power(es, n_control, a_tail, ratio=r, alternative="larger")
         both = (
@@ -516,9 +522,10 @@ def ref_mde(d, n, sign):
     function (solve_power for the effect stops at a loose tolerance, about
     1e-4 relative at large n, so we solve to 1e-14 ourselves).
 
-    Normal-approximation methods: the near tail only, as sluice and
-    samplesize_proportions_2indep_onetail (one-sided at the tail alpha).
-    t: TTestIndPower counts both tails of a two-sided test, as sluice."""
+    Normal-approximation methods on rates: the near tail only, as sluice
+    and samplesize_proportions_2indep_onetail (one-sided at the tail
+    alpha). t and z on means: TTestIndPower and NormalIndPower count both
+    tails of a two-sided test, as sluice."""
     m = d["method"]
     ca = comparison_alpha(d)
     a_tail = tail_alpha(d)
@@ -531,6 +538,14 @@ def ref_mde(d, n, sign):
 
             def excess(es):
                 return TTestIndPower().power(es, n, ca, ratio=r, alternative=alt) - target
+
+        elif m == "z":
+            alt = "larger" if d["one_sided"] else "two-sided"
+
+            def excess(es):
+                return (
+                    NormalIndPower().power(es, n / vf, ca, ratio=r, alternative=alt) - target
+                )
 
         else:
 

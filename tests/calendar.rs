@@ -1,0 +1,245 @@
+//! Calendars that update (issue 9): a re-plan's iCalendar file, imported
+//! over an earlier plan's, must update every event that changed (a higher
+//! SEQUENCE, RFC 5545 §3.8.7.4) and cancel the events of tests that left
+//! the calendar (STATUS:CANCELLED, §3.8.1.11); event UIDs follow the
+//! portfolio's `id`, not its display name. Read back with the independent
+//! `ical` parser.
+
+use crate::util::{cmd, demo};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+/// What a calendar shows of one event, by UID.
+#[derive(Debug, Clone, PartialEq)]
+struct Ev {
+    summary: String,
+    description: String,
+    start: String,
+    end: String,
+    status: String,
+    sequence: u32,
+}
+
+impl Ev {
+    fn content(&self) -> (&str, &str, &str, &str, &str) {
+        (
+            &self.summary,
+            &self.description,
+            &self.start,
+            &self.end,
+            &self.status,
+        )
+    }
+}
+
+fn events(bytes: &[u8]) -> BTreeMap<String, Ev> {
+    let mut parser = ical::IcalParser::new(std::io::BufReader::new(bytes));
+    let cal = parser.next().expect("a calendar").expect("it parses");
+    let mut out = BTreeMap::new();
+    for e in cal.events {
+        let get = |name: &str| {
+            e.properties
+                .iter()
+                .find(|p| p.name == name)
+                .and_then(|p| p.value.clone())
+                .unwrap_or_default()
+        };
+        let sequence = get("SEQUENCE").parse().expect("SEQUENCE is a whole number");
+        let ev = Ev {
+            summary: get("SUMMARY"),
+            description: get("DESCRIPTION"),
+            start: get("DTSTART"),
+            end: get("DTEND"),
+            status: get("STATUS"),
+            sequence,
+        };
+        assert!(out.insert(get("UID"), ev).is_none(), "UIDs are unique");
+    }
+    out
+}
+
+const PROGRESS: &str = "\
+as_of: 2027-02-03
+experiments:
+  - id: search-ranking-v2
+    state: running
+    started: 2027-01-04
+    share: 1.0
+    units: 1000000
+  - id: home-personal-recs
+    state: finished
+    started: 2027-01-04
+    ended: 2027-01-17
+  - id: home-static-hero
+    state: finished
+    started: 2027-01-18
+    ended: 2027-01-31
+  - id: pdp-bundles
+    state: cancelled
+    note: the bundle supplier pulled out
+";
+
+fn write(dir: &Path, name: &str, bytes: &[u8]) -> String {
+    let path = dir.join(name);
+    std::fs::write(&path, bytes).unwrap();
+    path.to_str().unwrap().to_string()
+}
+
+fn replan(portfolio: &str, progress: &str, today: &str, previous: &str, format: &str) -> Vec<u8> {
+    cmd(&[
+        "replan",
+        portfolio,
+        "--progress",
+        progress,
+        "--today",
+        today,
+        "--previous",
+        previous,
+        "--format",
+        format,
+        "--no-timing",
+    ])
+    .assert_exit_code(0)
+    .stdout
+}
+
+#[test]
+fn a_replan_calendar_cancels_what_left_and_raises_the_sequence_of_what_changed() {
+    let dir = tempfile::tempdir().unwrap();
+    let plan = |format: &str| {
+        cmd(&["plan", &demo(), "--format", format, "--no-timing"])
+            .assert_exit_code(0)
+            .stdout
+    };
+    let plan_json = write(dir.path(), "plan.json", &plan("json"));
+    let old = events(&plan("ics"));
+    assert!(old
+        .values()
+        .all(|e| e.sequence == 0 && e.status == "TENTATIVE"));
+    let progress = write(dir.path(), "progress.yaml", PROGRESS.as_bytes());
+    let new = events(&replan(&demo(), &progress, "2027-02-03", &plan_json, "ics"));
+
+    // Every event the previous calendar held is published again: none is
+    // left behind in people's calendars.
+    for uid in old.keys() {
+        assert!(
+            new.contains_key(uid),
+            "{uid} is not in the re-plan's calendar"
+        );
+    }
+    let mut changed = 0;
+    for (uid, o) in &old {
+        let n = &new[uid];
+        if n.content() == o.content() {
+            assert_eq!(n.sequence, o.sequence, "{uid}: unchanged, same SEQUENCE");
+        } else {
+            changed += 1;
+            assert!(n.sequence > o.sequence, "{uid}: changed, {n:?} after {o:?}");
+        }
+    }
+    assert!(changed > 0, "the re-plan moved something");
+
+    // The cancelled test and the test that finished early (planned to run
+    // to 2027-02-07, ended on 2027-01-31) are cancelled, at their old
+    // dates; the test that finished as planned (its last planned day before
+    // 2027-02-03) stays, confirmed.
+    let json: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(&plan_json).unwrap()).unwrap();
+    for (id, status) in [
+        ("pdp-bundles", "CANCELLED"),
+        ("home-static-hero", "CANCELLED"),
+        ("home-personal-recs", "CONFIRMED"),
+    ] {
+        let before = json["experiments"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|e| e["id"] == id)
+            .unwrap();
+        let end = before["end"].as_str().unwrap();
+        assert_eq!(end < "2027-02-03", status == "CONFIRMED", "{id} ends {end}");
+        let mine: Vec<(&String, &Ev)> = new.iter().filter(|(u, _)| u.contains(id)).collect();
+        assert_eq!(mine.len(), 2, "{id}: its run and result events");
+        for (uid, ev) in mine {
+            assert_eq!(ev.status, status, "{uid}");
+            assert_eq!(ev.start, old[uid].start, "{uid} keeps its dates");
+            assert!(ev.sequence > old[uid].sequence, "{uid}");
+        }
+    }
+    // Events still in the calendar are not cancelled.
+    assert!(new
+        .iter()
+        .filter(|(u, _)| u.contains("search-ranking-v2"))
+        .all(|(_, e)| e.status == "TENTATIVE"));
+
+    // A re-plan of the re-plan keeps the history: the cancelled events stay
+    // published, and no SEQUENCE ever goes down; the same inputs again
+    // change nothing, so nothing moves up either.
+    let replan_json = write(
+        dir.path(),
+        "replan.json",
+        &replan(&demo(), &progress, "2027-02-03", &plan_json, "json"),
+    );
+    let again = events(&replan(
+        &demo(),
+        &progress,
+        "2027-02-03",
+        &replan_json,
+        "ics",
+    ));
+    assert_eq!(again, new, "the same re-plan twice is the same calendar");
+    let later = events(&replan(
+        &demo(),
+        &progress,
+        "2027-02-10",
+        &replan_json,
+        "ics",
+    ));
+    for (uid, n) in &new {
+        let l = later.get(uid).unwrap_or_else(|| panic!("{uid} dropped"));
+        if l.content() == n.content() {
+            assert_eq!(l.sequence, n.sequence, "{uid}");
+        } else {
+            assert!(l.sequence > n.sequence, "{uid}: {l:?} after {n:?}");
+        }
+    }
+    assert!(later
+        .iter()
+        .filter(|(u, _)| u.contains("pdp-bundles"))
+        .all(|(_, e)| e.status == "CANCELLED"));
+}
+
+fn uids(portfolio: &str) -> Vec<String> {
+    let bytes = cmd(&["plan", portfolio, "--format", "ics"])
+        .assert_exit_code(0)
+        .stdout;
+    events(&bytes).into_keys().collect()
+}
+
+#[test]
+fn uids_follow_the_portfolio_id_not_its_name() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(demo()).unwrap();
+    let base = uids(&demo());
+    assert!(base.iter().all(|u| u.ends_with(".demo@sluice")), "{base:?}");
+
+    // A new display name keeps every UID.
+    let renamed = text.replace(
+        "name: Larkspur & Loom, Q1 2027",
+        "name: Larkspur and Loom - spring",
+    );
+    assert_ne!(renamed, text);
+    let path = write(dir.path(), "demo.yaml", renamed.as_bytes());
+    assert_eq!(uids(&path), base);
+
+    // An `id` key keeps them when the file moves.
+    let with_id = format!("id: demo\n{renamed}");
+    let moved = write(dir.path(), "q1-final.yaml", with_id.as_bytes());
+    assert_eq!(uids(&moved), base);
+    let other = write(
+        dir.path(),
+        "other.yaml",
+        format!("id: shop-q1\n{text}").as_bytes(),
+    );
+    assert!(uids(&other).iter().all(|u| u.ends_with(".shop-q1@sluice")));
+}
