@@ -5,6 +5,7 @@ mod util;
 
 mod check;
 mod commands;
+mod forecast;
 mod outputs;
 mod plan;
 mod render;

@@ -8,9 +8,11 @@
 //! that value, a level replaces it. Last, every what-if scale whose date
 //! has come multiplies the result. Every later computation (check, plan,
 //! re-plan, renderers) reads traffic through this module. [`fit`] fits the
-//! level, pattern and trend from a pool's daily history.
+//! level, pattern and trend from a pool's daily history; [`report`] is
+//! what `sluice forecast` shows of it.
 
 pub mod fit;
+pub mod report;
 
 use crate::portfolio::{Change, Pool};
 use chrono::{Datelike, Duration, NaiveDate};

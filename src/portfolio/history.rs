@@ -156,7 +156,7 @@ pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
             }
         };
         let value = match r[1].parse::<f64>() {
-            Ok(u) if u.is_finite() && u >= 0.0 && u < 1e12 => Some(u),
+            Ok(u) if (0.0..1e12).contains(&u) => Some(u),
             _ => {
                 problems.push(at(
                     line,
