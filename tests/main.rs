@@ -6,6 +6,7 @@ mod util;
 mod calendar;
 mod check;
 mod commands;
+mod forecast;
 mod outputs;
 mod plan;
 mod render;

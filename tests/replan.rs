@@ -353,7 +353,7 @@ fn today_after_the_window_is_a_clear_error() {
 #[test]
 fn every_test_finished_leaves_an_empty_calendar() {
     let portfolio = std::fs::read_to_string(repo("portfolios/demo.yaml")).unwrap();
-    let p = sluice::portfolio::load_str(&portfolio, "demo.yaml").unwrap();
+    let p = sluice::portfolio::load_str(&portfolio, &demo()).unwrap();
     let mut s = String::from("experiments:\n");
     for e in &p.experiments {
         s += &format!("  - id: {}\n    state: finished\n", e.id);

@@ -69,6 +69,8 @@ pub(crate) enum Error {
     Json { error: serde_json::Error },
     /// Standard output cannot be written (other than a closed pipe).
     Stdout { io_error: std::io::Error },
+    /// `forecast --pool` names a pool the portfolio does not define.
+    UnknownPool { id: String, defined: Vec<String> },
 }
 
 impl Error {
@@ -89,7 +91,8 @@ impl Error {
             | Error::Design { .. }
             | Error::Power { .. }
             | Error::Duration { .. }
-            | Error::Render { .. } => EXIT_INVALID,
+            | Error::Render { .. }
+            | Error::UnknownPool { .. } => EXIT_INVALID,
         }
     }
 }
@@ -130,6 +133,17 @@ impl fmt::Display for Error {
         f.write_str("error: ")?;
         match self {
             Error::Load { .. } => Ok(()),
+            Error::UnknownPool { id, defined } => {
+                let ranked = crate::diagnostic::closest_first(
+                    id,
+                    &defined.iter().map(String::as_str).collect::<Vec<_>>(),
+                );
+                write!(
+                    f,
+                    "`--pool` {id} is not a pool of the portfolio; defined pools, closest first: {}",
+                    crate::diagnostic::list(&ranked)
+                )
+            }
             Error::TimeLimit { seconds } => write!(
                 f,
                 "`--time-limit` must be a positive number of seconds, not {seconds}"

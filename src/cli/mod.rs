@@ -6,6 +6,7 @@
 mod check;
 mod detect;
 mod error;
+mod forecast;
 mod plan;
 mod replan;
 mod size;
@@ -45,6 +46,8 @@ pub enum Command {
     Plan(plan::PlanArgs),
     /// Plan again mid-quarter around the running tests, and show what moved
     Replan(replan::ReplanArgs),
+    /// Show each pool's traffic model: fitted from its history, held-out error, a sparkline
+    Forecast(forecast::ForecastArgs),
     /// Print a shell completion script, e.g. `sluice completions bash`
     #[command(after_help = "Examples:\n  \
         sluice completions bash > ~/.local/share/bash-completion/completions/sluice\n  \
@@ -115,6 +118,7 @@ pub fn run(cli: Cli) -> Result<Vec<u8>, Error> {
         Command::Check(args) => check::run(&args),
         Command::Plan(args) => plan::run(&args),
         Command::Replan(args) => replan::run(&args),
+        Command::Forecast(args) => forecast::run(&args),
         Command::Completions { shell } => Ok(completions(shell)),
         Command::Man => man(),
     }

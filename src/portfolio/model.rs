@@ -190,6 +190,42 @@ pub struct Forecast {
     /// What-if scalings from the command line (`--scale POOL=FACTOR@DATE`):
     /// each multiplies every day from its date on, on top of the rest.
     pub scales: Vec<Scale>,
+    /// A linear trend of the level (`trend: true` with a `history`).
+    pub trend: Option<Trend>,
+    /// The history the level, pattern and trend were fitted from, if any.
+    pub history: Option<History>,
+}
+
+/// A linear trend: on `date` the level is `daily x (1 + per_week x weeks
+/// since from)`, never below 0.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Trend {
+    /// The day the level is `daily` (the history's last day).
+    pub from: NaiveDate,
+    /// The relative change of the level per week.
+    pub per_week: f64,
+}
+
+/// A pool's daily history (`history: FILE.csv`) and the model fitted to it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct History {
+    /// The file as the portfolio names it.
+    pub file: String,
+    /// The first day of the history.
+    pub start: NaiveDate,
+    /// Units per day from `start`, one per day, without gaps.
+    pub units: Vec<f64>,
+    /// Whether a trend was fitted (`trend: true`).
+    pub trend: bool,
+    /// The fitted model (before `daily` or `weekday_pattern` override it).
+    pub fit: crate::forecast::fit::Fit,
+}
+
+impl History {
+    /// The history's last day.
+    pub fn end(&self) -> NaiveDate {
+        self.start + chrono::Duration::days(self.units.len() as i64 - 1)
+    }
 }
 
 /// A lasting change of a pool's traffic from a date on (a what-if).

@@ -110,6 +110,8 @@ pub struct RawPool {
     pub label: Option<Text>,
     pub daily: Option<f64>,
     pub weekday_pattern: Option<Vec<f64>>,
+    pub history: Option<Text>,
+    pub trend: Option<bool>,
     pub adjustments: Option<Vec<RawAdjustment>>,
     pub sharing: Option<Text>,
     pub max_concurrent: Option<f64>,

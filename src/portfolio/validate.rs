@@ -287,7 +287,8 @@ pub fn validate(
     );
     if !cx.errors.is_empty() {
         let mut diags = cx.ck.errors;
-        diags.sort_by_key(|d| (d.line.is_none(), d.line, d.column));
+        // The portfolio's own problems first, then those in history files.
+        diags.sort_by_key(|d| (d.file != file, d.line.is_none(), d.line, d.column));
         return Err(diags);
     }
     let window = window.expect("a window without diagnostics is valid");
@@ -570,6 +571,13 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
     for (i, (p, id)) in raw.into_iter().zip(ids).enumerate() {
         let at = |k: &str| format!("pools[{i}].{k}");
         let who = format!("pool `{id}`: ");
+        let history = super::history::pool_history(
+            &mut cx.ck,
+            &format!("pools[{i}]"),
+            &who,
+            p.history.as_ref(),
+            p.trend,
+        );
         let daily = match p.daily {
             Some(d) => {
                 cx.number(
@@ -582,16 +590,17 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                 );
                 d
             }
+            None if p.history.is_some() => history.as_ref().map_or(0.0, |h| h.fit.level),
             None => {
                 cx.missing(
                     &at("daily"),
                     &format!("pool `{id}`"),
-                    "give the eligible units on an average day, e.g. `daily: 20000`",
+                    "give the eligible units on an average day, e.g. `daily: 20000`, or a `history` file",
                 );
                 0.0
             }
         };
-        let mut weekday = [1.0; 7];
+        let mut weekday = history.as_ref().map_or([1.0; 7], |h| h.fit.weekday_pattern);
         if let Some(pattern) = p.weekday_pattern {
             if pattern.len() != 7 {
                 cx.err(
@@ -734,6 +743,11 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                 weekday,
                 adjustments,
                 scales: Vec::new(),
+                trend: history.as_ref().filter(|h| h.trend).map(|h| Trend {
+                    from: h.end(),
+                    per_week: h.fit.trend_per_week,
+                }),
+                history,
             },
             sharing,
             max_concurrent,

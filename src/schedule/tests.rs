@@ -28,6 +28,8 @@ fn pool(id: &str, daily: f64, sharing: Sharing, cap: u32) -> Pool {
             weekday: [1.0; 7],
             adjustments: Vec::new(),
             scales: Vec::new(),
+            trend: None,
+            history: None,
         },
         sharing,
         max_concurrent: cap,

@@ -1,10 +1,13 @@
 #!/usr/bin/env bash
-# Checks sluice's sizing engine against scipy and statsmodels (PyPI).
+# Checks sluice's sizing engine against scipy and statsmodels (PyPI), and
+# the forecast fitted from a history against statsmodels' STL and
+# Holt-Winters (check_forecast.py).
 #
 # Creates (or reuses) a virtual environment in tests/reference/.venv, installs
 # the pinned references from requirements.txt, builds the release binary if
-# it is missing or older than the sources, and runs check_sizing.py, which
-# prints `N passed, M failed` and exits non-zero on any failure.
+# it is missing or older than the sources, and runs check_sizing.py and
+# check_forecast.py, each of which prints `N passed, M failed`; exits
+# non-zero when either fails.
 #
 # Needs python3 with the venv module (on Debian's own python3: the
 # `python3-venv` package). Environment: PYTHON (default python3),
@@ -47,4 +50,7 @@ if [ -z "${SLUICE_BIN:-}" ]; then
     (cd "$root" && cargo build --release --quiet --bin sluice)
 fi
 
-exec "$venv/bin/python" "$here/check_sizing.py" --bin "$bin"
+status=0
+"$venv/bin/python" "$here/check_sizing.py" --bin "$bin" || status=1
+"$venv/bin/python" "$here/check_forecast.py" --bin "$bin" || status=1
+exit $status

@@ -2,11 +2,17 @@
 //! day-by-day run length of a test that takes a constant share of them.
 //!
 //! Pure functions of a [`Pool`] and dates. The rule for a day: the pool's
-//! daily level times the weekday multiplier (Monday first), then the last
+//! daily level (grown or shrunk by its linear trend, if it has one) times
+//! the weekday multiplier (Monday first), then the last
 //! adjustment in file order that covers the day, if any: a multiplier scales
 //! that value, a level replaces it. Last, every what-if scale whose date
 //! has come multiplies the result. Every later computation (check, plan,
-//! re-plan, renderers) reads traffic through this module.
+//! re-plan, renderers) reads traffic through this module. [`fit`] fits the
+//! level, pattern and trend from a pool's daily history; [`report`] is
+//! what `sluice forecast` shows of it.
+
+pub mod fit;
+pub mod report;
 
 use crate::portfolio::{Change, Pool};
 use chrono::{Datelike, Duration, NaiveDate};
@@ -14,7 +20,11 @@ use chrono::{Datelike, Duration, NaiveDate};
 /// Eligible units of `pool` on `date`.
 pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     let f = &pool.forecast;
-    let base = f.daily * f.weekday[date.weekday().num_days_from_monday() as usize];
+    let level = match f.trend {
+        Some(t) => f.daily * (1.0 + t.per_week * (date - t.from).num_days() as f64 / 7.0).max(0.0),
+        None => f.daily,
+    };
+    let base = level * f.weekday[date.weekday().num_days_from_monday() as usize];
     let scale: f64 = f
         .scales
         .iter()
@@ -154,6 +164,8 @@ mod tests {
                 weekday,
                 adjustments,
                 scales: Vec::new(),
+                trend: None,
+                history: None,
             },
             sharing: Sharing::Split,
             max_concurrent: 3,

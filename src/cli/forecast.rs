@@ -1,0 +1,189 @@
+//! `sluice forecast FILE`: each pool's traffic model: the level, weekday
+//! pattern, trend and spread fitted from its history (or the typed
+//! forecast), the error on four held-out weeks, and a sparkline of the
+//! last weeks of history and the first weeks of forecast. The facts come
+//! from [`crate::forecast::report`]; this file words them.
+
+use super::{Error, TextOrJson};
+use crate::forecast::report::{self, Chart, ForecastReport, PoolForecast};
+use crate::words::{percent, trimmed, units};
+use clap::Args;
+use std::path::PathBuf;
+
+#[derive(Args, Debug)]
+#[command(after_help = "Examples:\n  \
+    sluice forecast portfolios/demo.yaml\n  \
+    sluice forecast portfolios/demo.yaml --pool product --format json\n\n\
+    A pool with `history: FILE.csv` shows the model fitted from it; \
+    docs/portfolio.md describes the file and the fit.")]
+pub struct ForecastArgs {
+    /// The portfolio file (YAML; docs/portfolio.md lists every key)
+    pub file: PathBuf,
+    /// Show only this pool
+    #[arg(long, value_name = "ID")]
+    pub pool: Option<String>,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
+    pub format: TextOrJson,
+}
+
+/// `sluice forecast`.
+pub fn run(a: &ForecastArgs) -> Result<Vec<u8>, Error> {
+    let p = super::plan::load_portfolio(&a.file)?;
+    let pool = match &a.pool {
+        Some(id) => Some(p.pool_index(id).ok_or_else(|| Error::UnknownPool {
+            id: id.clone(),
+            defined: p.pools.iter().map(|p| p.id.clone()).collect(),
+        })?),
+        None => None,
+    };
+    let r = report::report(&p, pool);
+    match a.format {
+        TextOrJson::Json => super::json_bytes(&r),
+        TextOrJson::Text => Ok(text(&r).into_bytes()),
+    }
+}
+
+const WEEKDAYS: [&str; 7] = ["Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun"];
+
+/// The text report: one block per pool.
+pub fn text(r: &ForecastReport) -> String {
+    let blocks: Vec<String> = r.pools.iter().map(pool_text).collect();
+    blocks.join("\n")
+}
+
+fn pool_text(p: &PoolForecast) -> String {
+    let mut out = format!("{} ({})\n", p.id, p.label);
+    let pattern = p
+        .weekday_pattern
+        .iter()
+        .zip(WEEKDAYS)
+        .map(|(m, d)| format!("{d} {m:.2}"))
+        .collect::<Vec<_>>()
+        .join("  ");
+    let Some(h) = &p.history else {
+        out.push_str(&format!(
+            "  no history: the forecast is typed in the portfolio\n  \
+             level            {} units a day\n  weekday pattern  {pattern}\n",
+            units(p.level)
+        ));
+        return out;
+    };
+    let row = |out: &mut String, name: &str, value: String| {
+        out.push_str(&format!("  {name:<16} {value}\n"));
+    };
+    row(
+        &mut out,
+        "history",
+        format!("{}, {} to {} ({} days)", h.file, h.from, h.to, h.days),
+    );
+    row(
+        &mut out,
+        "level",
+        format!("{} units on an average day at {}", units(p.level), h.to),
+    );
+    row(&mut out, "weekday pattern", pattern);
+    row(
+        &mut out,
+        "trend",
+        if p.trend_per_week == 0.0 {
+            "none".to_string()
+        } else {
+            format!(
+                "{}{}% a week",
+                sign(p.trend_per_week),
+                trimmed(p.trend_per_week.abs() * 100.0, 2)
+            )
+        },
+    );
+    if let (Some(d), Some(l)) = (p.daily_cv, p.level_cv) {
+        row(
+            &mut out,
+            "spread",
+            format!(
+                "{} day to day (daily_cv), {} on the level over four weeks (level_cv)",
+                percent(d),
+                percent(l)
+            ),
+        );
+    }
+    row(
+        &mut out,
+        "held-out error",
+        match p.mape {
+            Some(m) => format!(
+                "{} MAPE on the last four weeks, fitted without them",
+                percent(m)
+            ),
+            None => "needs eight weeks of history (four to fit, four to hold out)".to_string(),
+        },
+    );
+    if !p.overridden.is_empty() {
+        let keys: Vec<String> = p.overridden.iter().map(|k| format!("`{k}`")).collect();
+        row(
+            &mut out,
+            "overridden",
+            format!(
+                "the portfolio's {} replace the fitted values in plans",
+                keys.join(" and ")
+            ),
+        );
+    }
+    if let Some(c) = &p.chart {
+        row(&mut out, "chart", chart(c));
+        row(
+            &mut out,
+            "",
+            format!(
+                "{} days of history | {} days of forecast, one bar a day, lowest to highest day",
+                c.history.len(),
+                c.forecast.len()
+            ),
+        );
+    }
+    out
+}
+
+fn sign(x: f64) -> &'static str {
+    if x < 0.0 {
+        "-"
+    } else {
+        "+"
+    }
+}
+
+/// History and forecast as one sparkline on a common scale from the
+/// smallest to the largest day shown, split by `|`.
+fn chart(c: &Chart) -> String {
+    let all = || c.history.iter().chain(&c.forecast).copied();
+    let min = all().fold(f64::INFINITY, f64::min);
+    let max = all().fold(f64::NEG_INFINITY, f64::max);
+    let bars = |xs: &[f64]| -> String { xs.iter().map(|&x| bar(x, min, max)).collect() };
+    format!("{}|{}", bars(&c.history), bars(&c.forecast))
+}
+
+/// One of eight block heights for `x` on a scale from `min` to `max`.
+fn bar(x: f64, min: f64, max: f64) -> char {
+    const BARS: [char; 8] = ['▁', '▂', '▃', '▄', '▅', '▆', '▇', '█'];
+    if max <= min || !x.is_finite() {
+        return BARS[0];
+    }
+    let k = ((x - min) / (max - min) * 7.0).round().clamp(0.0, 7.0) as usize;
+    BARS[k]
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bars_span_zero_to_the_largest_day() {
+        let c = Chart {
+            history: vec![10.0, 60.0, 110.0],
+            forecast: vec![110.0, 10.0],
+        };
+        assert_eq!(chart(&c), "▁▅█|█▁");
+        // A flat chart is a flat line.
+        assert_eq!(bar(5.0, 5.0, 5.0), '▁');
+    }
+}

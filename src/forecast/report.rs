@@ -1,0 +1,140 @@
+//! The `forecast` report: each pool's fitted model, its error on the last
+//! four weeks held out, and the days a chart of history and forecast
+//! draws. Facts only; `cli::forecast` words them.
+
+use super::fit;
+use crate::portfolio::{Pool, Portfolio};
+use chrono::{Duration, NaiveDate};
+use serde::Serialize;
+
+/// Weeks of history the chart shows.
+pub const CHART_HISTORY_WEEKS: usize = 8;
+/// Weeks of forecast the chart shows.
+pub const CHART_FORECAST_WEEKS: usize = 4;
+
+/// The report: every pool in file order.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ForecastReport {
+    /// One per pool (or the one asked for).
+    pub pools: Vec<PoolForecast>,
+}
+
+/// One pool's forecast model.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PoolForecast {
+    /// The pool's id.
+    pub id: String,
+    /// The pool's label.
+    pub label: String,
+    /// The history file, when the forecast was fitted from one.
+    pub history: Option<HistorySpan>,
+    /// Units on an average day: fitted at the history's last day, or the
+    /// portfolio's `daily`.
+    pub level: f64,
+    /// Multipliers, Monday first: fitted (averaging 1) or the portfolio's.
+    pub weekday_pattern: [f64; 7],
+    /// Relative change of the level per week; 0 without a trend.
+    pub trend_per_week: f64,
+    /// Day-to-day noise as a coefficient of variation (with a history).
+    pub daily_cv: Option<f64>,
+    /// The level's error over four weeks as a coefficient of variation
+    /// (with a history).
+    pub level_cv: Option<f64>,
+    /// Mean absolute percentage error of a fit on all but the last four
+    /// weeks, over those weeks (with at least eight weeks of history).
+    pub mape: Option<f64>,
+    /// Portfolio keys that replace fitted values (`daily`,
+    /// `weekday_pattern`).
+    pub overridden: Vec<&'static str>,
+    /// The chart: the last weeks of history and the first weeks of the
+    /// forecast after them (with a history).
+    #[serde(skip)]
+    pub chart: Option<Chart>,
+}
+
+/// Where a pool's history came from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct HistorySpan {
+    /// The file as the portfolio names it.
+    pub file: String,
+    /// The first day.
+    pub from: NaiveDate,
+    /// The last day.
+    pub to: NaiveDate,
+    /// Days in the file.
+    pub days: usize,
+}
+
+/// Daily units for a chart: history up to its last day, then the
+/// pool's forecast (weekday pattern, trend and adjustments).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Chart {
+    /// The history's last days.
+    pub history: Vec<f64>,
+    /// The forecast's first days after the history.
+    pub forecast: Vec<f64>,
+}
+
+/// The report for `p`'s pools, or only `pool` when given (which must exist).
+pub fn report(p: &Portfolio, pool: Option<usize>) -> ForecastReport {
+    let pools = p
+        .pools
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| pool.is_none_or(|k| k == *i))
+        .map(|(_, pool)| pool_forecast(pool))
+        .collect();
+    ForecastReport { pools }
+}
+
+fn pool_forecast(pool: &Pool) -> PoolForecast {
+    let f = &pool.forecast;
+    let Some(h) = &f.history else {
+        return PoolForecast {
+            id: pool.id.clone(),
+            label: pool.label.clone(),
+            history: None,
+            level: f.daily,
+            weekday_pattern: f.weekday,
+            trend_per_week: 0.0,
+            daily_cv: None,
+            level_cv: None,
+            mape: None,
+            overridden: Vec::new(),
+            chart: None,
+        };
+    };
+    let mut overridden = Vec::new();
+    if f.daily != h.fit.level {
+        overridden.push("daily");
+    }
+    if f.weekday != h.fit.weekday_pattern {
+        overridden.push("weekday_pattern");
+    }
+    let end = h.end();
+    let shown = (CHART_HISTORY_WEEKS * 7).min(h.units.len());
+    let chart = Chart {
+        history: h.units[h.units.len() - shown..].to_vec(),
+        forecast: (1..=CHART_FORECAST_WEEKS as i64 * 7)
+            .map(|k| super::units_on(pool, end + Duration::days(k)))
+            .collect(),
+    };
+    PoolForecast {
+        id: pool.id.clone(),
+        label: pool.label.clone(),
+        history: Some(HistorySpan {
+            file: h.file.clone(),
+            from: h.start,
+            to: end,
+            days: h.units.len(),
+        }),
+        level: h.fit.level,
+        weekday_pattern: h.fit.weekday_pattern,
+        trend_per_week: h.fit.trend_per_week,
+        daily_cv: Some(h.fit.daily_cv),
+        level_cv: Some(h.fit.level_cv),
+        mape: fit::holdout_mape(h.start, &h.units, h.trend),
+        overridden,
+        chart: Some(chart),
+    }
+}
