@@ -219,6 +219,7 @@ fn uids(portfolio: &str) -> Vec<String> {
 #[test]
 fn uids_follow_the_portfolio_id_not_its_name() {
     let dir = tempfile::tempdir().unwrap();
+    crate::util::demo_history_into(dir.path());
     let text = std::fs::read_to_string(demo()).unwrap();
     let base = uids(&demo());
     assert!(base.iter().all(|u| u.ends_with(".demo@sluice")), "{base:?}");

@@ -564,11 +564,7 @@ fn out_never_overwrites_the_portfolio() {
     let portfolio = dir.path().join("demo.yaml");
     std::fs::copy(repo("portfolios/demo.yaml"), &portfolio).unwrap();
     // The demo's pools read their history next to it.
-    std::fs::create_dir(dir.path().join("history")).unwrap();
-    for f in std::fs::read_dir(repo("portfolios/history")).unwrap() {
-        let f = f.unwrap().path();
-        std::fs::copy(&f, dir.path().join("history").join(f.file_name().unwrap())).unwrap();
-    }
+    crate::util::demo_history_into(dir.path());
     let before = std::fs::read(&portfolio).unwrap();
     let same = portfolio.to_str().unwrap().to_string();
     let dotted = dir.path().join(".").join("demo.yaml");

@@ -83,6 +83,16 @@ pub fn repo(rel: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
 }
 
+/// Copies the demo's traffic histories into `dir/history`, so a copy of
+/// the demo portfolio written to `dir` finds them beside it.
+pub fn demo_history_into(dir: &Path) {
+    std::fs::create_dir_all(dir.join("history")).unwrap();
+    for f in std::fs::read_dir(repo("portfolios/history")).unwrap() {
+        let f = f.unwrap().path();
+        std::fs::copy(&f, dir.join("history").join(f.file_name().unwrap())).unwrap();
+    }
+}
+
 /// The demo portfolio's path.
 pub fn demo() -> String {
     repo("portfolios/demo.yaml").display().to_string()
