@@ -953,6 +953,23 @@ fn a_replan_keeps_history_in_every_format() {
             assert!(out.contains(want), "{format}: {want:?} missing:\n{out}");
         }
     }
+    // The calendar, even without `--previous`: the finished run stands
+    // confirmed at its real dates, the cancelled one is cancelled.
+    let ics = replan_text(&portfolio, &progress, "2027-02-01", &["--format", "ics"]);
+    let events: Vec<&str> = ics.split("BEGIN:VEVENT").skip(1).collect();
+    let run_of = |id: &str| {
+        events
+            .iter()
+            .find(|e| e.contains(&format!("SUMMARY:Test running: {id} [{id}]")))
+            .unwrap_or_else(|| panic!("no run event for `{id}`:\n{ics}"))
+    };
+    let a_run = run_of("a");
+    assert!(a_run.contains("DTSTART;VALUE=DATE:20270104"), "{a_run}");
+    assert!(a_run.contains("DTEND;VALUE=DATE:20270125"), "{a_run}");
+    assert!(a_run.contains("STATUS:CONFIRMED"), "{a_run}");
+    let b_run = run_of("b");
+    assert!(b_run.contains("DTEND;VALUE=DATE:20270111"), "{b_run}");
+    assert!(b_run.contains("STATUS:CANCELLED"), "{b_run}");
 }
 
 #[test]

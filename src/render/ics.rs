@@ -183,6 +183,37 @@ fn kept_contents(plan: &Plan, k: &KeptEvents) -> [Content; 2] {
     ]
 }
 
+/// The events of a finished or cancelled test at the dates it really ran,
+/// when the re-plan knows them: a finished test's run and the day its
+/// result came due; a cancelled test's run, whose result never comes.
+fn closed_contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
+    let ran = e.ran?;
+    let why = match e.status {
+        Status::Finished => "It has finished.",
+        Status::Cancelled => "It was cancelled; no result will come.",
+        _ => return None,
+    };
+    let result_date = ran.end.succ_opt().unwrap_or(ran.end);
+    let description = format!(
+        "Experiment: {} ({})\nRan from {} to {}.\n{why}\nPortfolio: {}",
+        e.title, e.id, ran.start, ran.end, plan.portfolio
+    );
+    Some([
+        Content {
+            summary: format!("Test running: {} [{}]", e.title, e.id),
+            description: description.clone(),
+            start: ran.start,
+            end: ran.end,
+        },
+        Content {
+            summary: format!("Result due: {} [{}]", e.title, e.id),
+            description,
+            start: result_date,
+            end: result_date,
+        },
+    ])
+}
+
 /// The SEQUENCE of an experiment's events in `plan` (0 unless a re-plan's
 /// calendar history raised it).
 fn sequence_of(plan: &Plan, id: &str) -> u32 {
@@ -210,6 +241,31 @@ fn specs(plan: &Plan) -> Vec<Spec> {
                 content,
                 status: EventStatus::Tentative,
                 sequence,
+            });
+        }
+    }
+    // Finished and cancelled tests at their real dates, unless a re-plan's
+    // calendar history already keeps their events.
+    let kept = |id: &str| {
+        plan.calendar
+            .iter()
+            .flat_map(|c| &c.kept)
+            .any(|k| k.id == id)
+    };
+    for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
+        let Some(cs) = closed_contents(plan, e) else {
+            continue;
+        };
+        for (content, kind) in cs.into_iter().zip([EventKind::Run, EventKind::Result]) {
+            out.push(Spec {
+                uid: uid(&plan.id, &e.id, kind),
+                content,
+                status: if e.status == Status::Cancelled {
+                    EventStatus::Cancelled
+                } else {
+                    EventStatus::Confirmed
+                },
+                sequence: sequence_of(plan, &e.id),
             });
         }
     }
