@@ -280,11 +280,14 @@ fn detect_text(r: &DetectReport, power_asked: bool) -> String {
     let mut s = String::new();
     let (metric, value) = match r.metric {
         Metric::Rate { baseline } => (
-            format!("rate, baseline {:.4}%", baseline * 100.0),
-            format!("{:.4}%", r.treatment_value * 100.0),
+            format!(
+                "rate, baseline {}%",
+                crate::words::trimmed(baseline * 100.0, 4)
+            ),
+            format!("{}%", crate::words::trimmed(r.treatment_value * 100.0, 4)),
         ),
         Metric::Mean { mean, sd } => (
-            format!("mean, baseline {mean} (sd {sd})"),
+            format!("mean, baseline {} (sd {})", trim(mean), trim(sd)),
             trim(r.treatment_value),
         ),
     };
