@@ -2,7 +2,7 @@
 //! power it has for a given effect. The inverse of `sluice size`, from the
 //! same formulas (see `sizing`).
 
-use super::size::{early_reading, CorrectionArg, MethodArg};
+use super::size::{early_reading, MetricArgs, TestArgs};
 use super::{Error, TextOrJson};
 use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
 use crate::words::{thousands as fmt_units, Count};
@@ -21,15 +21,8 @@ use serde::Serialize;
     --share and --days: the smallest effect reachable in that many days, \
     the units split over the arms by --ratio.\n\n", early_reading!()))]
 pub struct DetectArgs {
-    /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
-    #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
-    pub baseline: Option<f64>,
-    /// Baseline mean of a mean metric (needs --sd)
-    #[arg(long, value_name = "M", requires = "sd", help_heading = "Metric")]
-    pub mean: Option<f64>,
-    /// Standard deviation per unit of a mean metric (needs --mean)
-    #[arg(long, value_name = "S", requires = "mean", help_heading = "Metric")]
-    pub sd: Option<f64>,
+    #[command(flatten)]
+    pub metric: MetricArgs,
 
     /// Units in the control arm (each treatment arm has ratio x as many)
     #[arg(
@@ -77,40 +70,8 @@ pub struct DetectArgs {
     #[arg(long, help_heading = "Effect")]
     pub decrease: bool,
 
-    /// Type I error rate of the whole test
-    #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
-    pub alpha: f64,
-    /// Power of each treatment-versus-control comparison
-    #[arg(long, default_value_t = 0.8, help_heading = "Test settings")]
-    pub power: f64,
-    /// Test one direction only (default: two-sided)
-    #[arg(long, help_heading = "Test settings")]
-    pub one_sided: bool,
-    /// Number of arms, control included
-    #[arg(
-        long,
-        default_value_t = 2,
-        value_name = "K",
-        help_heading = "Test settings"
-    )]
-    pub arms: u32,
-    /// Treatment units per control unit (1 = even split)
-    #[arg(
-        long,
-        default_value_t = 1.0,
-        value_name = "R",
-        help_heading = "Test settings"
-    )]
-    pub ratio: f64,
-    /// Sample-size method [default: pooled for rates, t for means]
-    #[arg(long, value_enum, help_heading = "Test settings")]
-    pub method: Option<MethodArg>,
-    /// Multiple-comparison correction when there are several treatment arms
-    #[arg(long, value_enum, default_value_t = CorrectionArg::Bonferroni, help_heading = "Test settings")]
-    pub correction: CorrectionArg,
-    /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
-    #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
-    pub rho: f64,
+    #[command(flatten)]
+    pub test: TestArgs,
 
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
@@ -181,11 +142,11 @@ fn control_units(a: &DetectArgs) -> Result<f64, Error> {
     if !(days > 0.0 && days.is_finite()) {
         return Err(bad("days", days, "> 0"));
     }
-    if !(a.ratio > 0.0 && a.ratio.is_finite()) || a.arms < 2 {
+    if !(a.test.ratio > 0.0 && a.test.ratio.is_finite()) || a.test.arms < 2 {
         // The design check names the field.
         return Ok(1.0);
     }
-    let per_control = 1.0 + f64::from(a.arms - 1) * a.ratio;
+    let per_control = 1.0 + f64::from(a.test.arms - 1) * a.test.ratio;
     let n = (daily * a.share * days / per_control).floor();
     if n < 1.0 {
         return Err(bad(
@@ -199,7 +160,7 @@ fn control_units(a: &DetectArgs) -> Result<f64, Error> {
 
 /// `sluice detect`.
 pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
-    let metric = match (a.baseline, a.mean, a.sd) {
+    let metric = match (a.metric.baseline, a.metric.mean, a.metric.sd) {
         (Some(p), None, None) => Metric::Rate { baseline: p },
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
         _ => return Err(Error::SizeMetric),
@@ -210,6 +171,7 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
     };
     let n = control_units(a)?;
     let method = a
+        .test
         .method
         .map(Method::from)
         .unwrap_or_else(|| Method::default_for(&metric));
@@ -224,14 +186,18 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
     let design = Design {
         metric,
         effect: given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
-        alpha: a.alpha,
-        power: a.power,
-        sides: if a.one_sided { Sides::One } else { Sides::Two },
-        arms: a.arms,
-        ratio: a.ratio,
+        alpha: a.test.alpha,
+        power: a.test.power,
+        sides: if a.test.one_sided {
+            Sides::One
+        } else {
+            Sides::Two
+        },
+        arms: a.test.arms,
+        ratio: a.test.ratio,
         method,
-        correction: a.correction.into(),
-        rho: a.rho,
+        correction: a.test.correction.into(),
+        rho: a.test.rho,
     };
     let as_error = |error| Error::Design {
         error,
@@ -255,15 +221,15 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         treatment_value: base + mde_abs,
         power,
         control: n,
-        treatment: n * a.ratio,
+        treatment: n * a.test.ratio,
         method,
-        alpha: a.alpha,
+        alpha: a.test.alpha,
         comparison_alpha: design.comparison_alpha(),
         sides: design.sides,
-        arms: a.arms,
-        ratio: a.ratio,
+        arms: a.test.arms,
+        ratio: a.test.ratio,
         correction: design.correction,
-        rho: a.rho,
+        rho: a.test.rho,
         daily: a.daily,
         share: a.daily.map(|_| a.share),
         days: a.days,

@@ -110,15 +110,8 @@ pub(super) use early_reading;
     than the margin; a positive margin makes a fall the harm, a negative one \
     a rise.\n\n", early_reading!()))]
 pub struct SizeArgs {
-    /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
-    #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
-    pub baseline: Option<f64>,
-    /// Baseline mean of a mean metric (needs --sd)
-    #[arg(long, value_name = "M", requires = "sd", help_heading = "Metric")]
-    pub mean: Option<f64>,
-    /// Standard deviation per unit of a mean metric (needs --mean)
-    #[arg(long, value_name = "S", requires = "mean", help_heading = "Metric")]
-    pub sd: Option<f64>,
+    #[command(flatten)]
+    pub metric: MetricArgs,
 
     /// Minimum detectable effect as a relative lift: 0.05 = 5% above baseline
     #[arg(
@@ -157,40 +150,8 @@ pub struct SizeArgs {
     )]
     pub margin_abs: Option<f64>,
 
-    /// Type I error rate of the whole test
-    #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
-    pub alpha: f64,
-    /// Power of each treatment-versus-control comparison
-    #[arg(long, default_value_t = 0.8, help_heading = "Test settings")]
-    pub power: f64,
-    /// Test one direction only (default: two-sided)
-    #[arg(long, help_heading = "Test settings")]
-    pub one_sided: bool,
-    /// Number of arms, control included
-    #[arg(
-        long,
-        default_value_t = 2,
-        value_name = "K",
-        help_heading = "Test settings"
-    )]
-    pub arms: u32,
-    /// Treatment units per control unit (1 = even split)
-    #[arg(
-        long,
-        default_value_t = 1.0,
-        value_name = "R",
-        help_heading = "Test settings"
-    )]
-    pub ratio: f64,
-    /// Sample-size method [default: pooled for rates, t for means]
-    #[arg(long, value_enum, help_heading = "Test settings")]
-    pub method: Option<MethodArg>,
-    /// Multiple-comparison correction when there are several treatment arms
-    #[arg(long, value_enum, default_value_t = CorrectionArg::Bonferroni, help_heading = "Test settings")]
-    pub correction: CorrectionArg,
-    /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
-    #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
-    pub rho: f64,
+    #[command(flatten)]
+    pub test: TestArgs,
 
     /// Planned looks, equally spaced in information (1 = fixed horizon)
     #[arg(long, value_name = "K", help_heading = "Interim looks")]
@@ -232,6 +193,59 @@ pub struct SizeArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
     pub format: TextOrJson,
+}
+
+/// The metric flags `size` and `detect` share.
+#[derive(Args, Debug)]
+pub struct MetricArgs {
+    /// Baseline rate of a rate metric, e.g. 0.04 for 4% conversion
+    #[arg(long, value_name = "P", conflicts_with_all = ["mean", "sd"], help_heading = "Metric")]
+    pub baseline: Option<f64>,
+    /// Baseline mean of a mean metric (needs --sd)
+    #[arg(long, value_name = "M", requires = "sd", help_heading = "Metric")]
+    pub mean: Option<f64>,
+    /// Standard deviation per unit of a mean metric (needs --mean)
+    #[arg(long, value_name = "S", requires = "mean", help_heading = "Metric")]
+    pub sd: Option<f64>,
+}
+
+/// The test-settings flags `size` and `detect` share.
+#[derive(Args, Debug)]
+pub struct TestArgs {
+    /// Type I error rate of the whole test
+    #[arg(long, default_value_t = 0.05, help_heading = "Test settings")]
+    pub alpha: f64,
+    /// Power of each treatment-versus-control comparison
+    #[arg(long, default_value_t = 0.8, help_heading = "Test settings")]
+    pub power: f64,
+    /// Test one direction only (default: two-sided)
+    #[arg(long, help_heading = "Test settings")]
+    pub one_sided: bool,
+    /// Number of arms, control included
+    #[arg(
+        long,
+        default_value_t = 2,
+        value_name = "K",
+        help_heading = "Test settings"
+    )]
+    pub arms: u32,
+    /// Treatment units per control unit (1 = even split)
+    #[arg(
+        long,
+        default_value_t = 1.0,
+        value_name = "R",
+        help_heading = "Test settings"
+    )]
+    pub ratio: f64,
+    /// Sample-size method [default: pooled for rates, t for means]
+    #[arg(long, value_enum, help_heading = "Test settings")]
+    pub method: Option<MethodArg>,
+    /// Multiple-comparison correction when there are several treatment arms
+    #[arg(long, value_enum, default_value_t = CorrectionArg::Bonferroni, help_heading = "Test settings")]
+    pub correction: CorrectionArg,
+    /// Correlation with a pre-period covariate (CUPED): size x (1 - rho^2)
+    #[arg(long, default_value_t = 0.0, help_heading = "Test settings")]
+    pub rho: f64,
 }
 
 /// The JSON object `sluice size --format json` prints.
@@ -301,7 +315,7 @@ fn is_guardrail(a: &SizeArgs) -> bool {
 }
 
 fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
-    let metric = match (a.baseline, a.mean, a.sd) {
+    let metric = match (a.metric.baseline, a.metric.mean, a.metric.sd) {
         (Some(p), None, None) => Metric::Rate { baseline: p },
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
         _ => return Err(Error::SizeMetric),
@@ -313,7 +327,7 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
         _ => return Err(Error::SizeEffect),
     };
     let guardrail = is_guardrail(a);
-    let method = a.method.map(Method::from).unwrap_or(match metric {
+    let method = a.test.method.map(Method::from).unwrap_or(match metric {
         // Blackwelder's variance is the unpooled one at the assumed rates.
         Metric::Rate { .. } if guardrail => Method::Unpooled,
         _ => Method::default_for(&metric),
@@ -321,18 +335,18 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
     let design = Design {
         metric,
         effect,
-        alpha: a.alpha,
-        power: a.power,
-        sides: if a.one_sided || guardrail {
+        alpha: a.test.alpha,
+        power: a.test.power,
+        sides: if a.test.one_sided || guardrail {
             Sides::One
         } else {
             Sides::Two
         },
-        arms: a.arms,
-        ratio: a.ratio,
+        arms: a.test.arms,
+        ratio: a.test.ratio,
         method,
-        correction: a.correction.into(),
-        rho: a.rho,
+        correction: a.test.correction.into(),
+        rho: a.test.rho,
     };
     let checked = if guardrail {
         noninferiority::equivalent(&design).map(|_| ())
