@@ -2040,6 +2040,23 @@ mod metrics_tests {
     }
 
     #[test]
+    fn guardrail_alpha_comes_from_the_experiment_or_the_defaults() {
+        let guard = "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.008}\n";
+        let text = file(guard).replace("pools:", "defaults: {guardrail_alpha: 0.025}\npools:");
+        let p = load_str(&text, "m.yaml").unwrap_or_else(|e| panic!("{e}"));
+        let g = &p.experiments[0].metrics[1];
+        assert_eq!(g.design.alpha, 0.025);
+        // (1.959964 + 0.841621)^2 x 0.09 x 2 / 0.008^2 = 22,074.97.
+        assert_eq!(g.need.map(|n| n.control), Some(22_075));
+        let p = load(&format!("    guardrail_alpha: 0.1\n{guard}"));
+        assert_eq!(p.experiments[0].metrics[1].design.alpha, 0.1);
+        // The primaries' alpha is not touched.
+        assert_eq!(p.experiments[0].metrics[0].design.alpha, 0.05);
+    }
+
+    #[test]
     fn two_primaries_split_alpha_by_the_correction() {
         let two = "    metrics:\n\
              \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
