@@ -56,6 +56,9 @@ pub struct ExperimentCheck {
     pub pool: String,
     /// `rate` or `mean`.
     pub metric: String,
+    /// The name of the metric whose need is the test's (`primary` for the
+    /// short form; see `metrics` in docs/portfolio.md).
+    pub driver: String,
     /// Control plus treatments.
     pub arms: u32,
     /// Units in the control arm.
@@ -243,6 +246,7 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
             Metric::Rate { .. } => "rate".into(),
             Metric::Mean { .. } => "mean".into(),
         },
+        driver: e.driver.clone(),
         arms: e.need.arms,
         control_units: e.need.control,
         treatment_units: e.need.treatment,

@@ -398,3 +398,30 @@ fn output_is_deterministic() {
     let b = sluice(&["check", "portfolios/demo.yaml", "--format", "json"]);
     assert_eq!(a.stdout, b.stdout);
 }
+
+#[test]
+fn the_json_names_the_metric_that_drives_each_test() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("metrics.yaml");
+    std::fs::write(
+        &path,
+        "name: metrics\nwindow: {start: 2027-01-04, end: 2027-03-28}\n\
+         pools:\n  - {id: home, daily: 10000, max_concurrent: 2}\n\
+         experiments:\n\
+         \x20 - id: guarded\n    pool: home\n    metrics:\n\
+         \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+         \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.008}\n\
+         \x20 - id: short\n    pool: home\n    baseline: 0.1\n    mde: 0.1\n",
+    )
+    .unwrap();
+    let out = sluice(&["check", path.to_str().unwrap(), "--format", "json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let exps = v["experiments"].as_array().unwrap();
+    // The guardrail (Blackwelder, one-sided 0.05, margin 0.008: 17,389 per
+    // arm) needs more than the primary (14,751), so it drives.
+    assert_eq!(exps[0]["driver"], "refunds");
+    assert_eq!(exps[0]["control_units"], 17_389);
+    assert_eq!(exps[1]["driver"], "primary");
+    assert_eq!(exps[1]["control_units"], 14_751);
+}

@@ -70,6 +70,9 @@ pub struct Defaults {
     /// The boundary of tests with looks (default Lan-DeMets spending of the
     /// O'Brien-Fleming type).
     pub boundary: Boundary,
+    /// The one-sided alpha of guardrail (non-inferiority) tests (default
+    /// 0.05).
+    pub guardrail_alpha: f64,
 }
 
 impl Default for Defaults {
@@ -87,6 +90,7 @@ impl Default for Defaults {
             whole_weeks: true,
             looks: 1,
             boundary: Boundary::SpendingObrienFleming,
+            guardrail_alpha: 0.05,
         }
     }
 }
@@ -280,6 +284,12 @@ pub struct Experiment {
     /// The planned interim looks; None for a fixed horizon (one look).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub looks: Option<Looks>,
+    /// Every metric of the test in file order; the short form (the metric
+    /// keys written on the experiment) is one primary named `primary`.
+    pub metrics: Vec<MetricPlan>,
+    /// The name of the metric whose need is `need` (the largest over the
+    /// primary and guardrail metrics; the first of equals in file order).
+    pub driver: String,
     /// Positive weight in the objective.
     pub priority: f64,
     /// Inside the window when given.
@@ -297,6 +307,51 @@ pub struct Experiment {
     /// Indices of experiments it must never run alongside; symmetric
     /// (if a lists b, b lists a), sorted and without duplicates.
     pub not_with: Vec<usize>,
+}
+
+/// What a metric does in its test.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Role {
+    /// Sized as a superiority test; several primaries split alpha.
+    Primary,
+    /// Sized as a one-sided non-inferiority test at the guardrail alpha.
+    Guardrail,
+    /// Not sized; read at the test's sample.
+    Secondary,
+}
+
+impl Role {
+    /// The name in the portfolio file and in JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Role::Primary => "primary",
+            Role::Guardrail => "guardrail",
+            Role::Secondary => "secondary",
+        }
+    }
+}
+
+/// One metric of a test with what sizing made of it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MetricPlan {
+    /// Its name, unique within the test.
+    pub name: String,
+    /// What it does in the test.
+    pub role: Role,
+    /// The design it is sized or read with. A primary's `alpha` is its
+    /// share of the experiment's alpha (split by `correction` when there
+    /// are several primaries); a guardrail's `effect` is its margin, its
+    /// `alpha` the guardrail alpha and its `sides` one; a secondary's
+    /// `effect` gives only the kind (relative or absolute) and direction.
+    pub design: Design,
+    /// Units it needs on its own (with looks, the maximum sample); None
+    /// for a secondary metric.
+    pub need: Option<SampleSize>,
+    /// A secondary metric's smallest detectable effect at the test's
+    /// sample (`need.control_exact`), in its design's kind (relative or
+    /// absolute), read once at the end; None for the other roles.
+    pub detectable: Option<f64>,
 }
 
 /// A test read at planned interim looks (a group-sequential design, see
@@ -432,6 +487,8 @@ mod tests {
                 design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
                 need: crate::schedule::synthetic::two_arm_need(1000),
                 looks: None,
+                metrics: Vec::new(),
+                driver: String::new(),
                 priority: 1.0,
                 earliest_start: None,
                 deadline: None,

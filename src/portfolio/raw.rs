@@ -92,6 +92,7 @@ pub struct RawDefaults {
     pub whole_weeks: Option<bool>,
     pub looks: Option<f64>,
     pub boundary: Option<Text>,
+    pub guardrail_alpha: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -157,6 +158,25 @@ pub struct RawExperiment {
     pub boundary: Option<Text>,
     pub after: Option<Vec<RawAfter>>,
     pub not_with: Option<Vec<Text>>,
+    pub metrics: Option<Vec<RawMetric>>,
+    pub guardrail_alpha: Option<f64>,
+}
+
+/// A `metrics` entry: one metric of a test and its role.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawMetric {
+    pub name: Option<Text>,
+    pub role: Option<Text>,
+    pub metric: Option<Text>,
+    pub baseline: Option<f64>,
+    pub sd: Option<f64>,
+    pub mde: Option<f64>,
+    pub mde_abs: Option<f64>,
+    pub rho: Option<f64>,
+    pub method: Option<Text>,
+    pub margin: Option<f64>,
+    pub margin_abs: Option<f64>,
 }
 
 /// An `after` entry: an id, or an id with a gap.
@@ -250,6 +270,7 @@ pub fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
         "pools[].adjustments[]" => fields_of::<RawAdjustment>(),
         "experiments[]" => fields_of::<RawExperiment>(),
         "experiments[].after[]" => fields_of::<RawAfterGap>(),
+        "experiments[].metrics[]" => fields_of::<RawMetric>(),
         "blackouts[]" => fields_of::<RawBlackout>(),
         _ => return None,
     })
@@ -301,6 +322,7 @@ mod tests {
             "pools[].adjustments[]",
             "experiments[]",
             "experiments[].after[]",
+            "experiments[].metrics[]",
             "blackouts[]",
         ] {
             for key in allowed_keys(shape).unwrap() {

@@ -13,7 +13,7 @@ use super::raw::*;
 use crate::diagnostic::{self, Diagnostic};
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{
-    self,
+    self, noninferiority,
     sequential::{self, Boundary},
     Correction, Design, Effect, Method, Metric, SampleSize, Sides, SizingError,
 };
@@ -395,7 +395,17 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "a whole number of days from 1 to 366",
         "two weeks (14) is common practice",
     );
+    let guardrail_alpha = d.guardrail_alpha.unwrap_or(fallback.guardrail_alpha);
+    cx.number(
+        "defaults.guardrail_alpha",
+        "",
+        guardrail_alpha,
+        guardrail_alpha > 0.0 && guardrail_alpha <= 0.5,
+        "in (0, 0.5]",
+        "the one-sided alpha of the guardrails; 0.05 is the default",
+    );
     let defaults = Defaults {
+        guardrail_alpha,
         alpha,
         power,
         sides,
@@ -872,23 +882,25 @@ fn experiments(
                 None
             }
         };
-        let (design, design_ok) = design(cx, e, i, &who, &what, d);
         let looks_given = e.looks.is_some();
         let count = looks_count(cx, &at("looks"), &who, e.looks);
         let boundary = cx.choice(&at("boundary"), &who, &e.boundary, &BOUNDARIES, d.boundary);
         let count = if looks_given { count } else { Some(d.looks) };
-        let (need, looks) = match (design_ok && defaults_ok, count) {
-            (true, Some(count)) => {
-                match size(&design).and_then(|n| with_looks(&design, n, count, boundary)) {
-                    Ok((n, looks)) => (Some(n), looks),
-                    Err(err) => {
-                        sizing_error(cx, e, i, &who, &err);
-                        (None, None)
-                    }
-                }
+        let sized = metrics(cx, e, i, &who, &what, d, defaults_ok);
+        let (design, need, looks, metrics, driver) = match (sized, count) {
+            (Some(m), Some(count)) => size_metrics(cx, m, count, boundary, &who),
+            (Some(m), None) => {
+                let design = m.first().map(|(_, plan)| plan.design);
+                (design, None, None, Vec::new(), String::new())
             }
-            _ => (None, None),
+            (None, _) => (None, None, None, Vec::new(), String::new()),
         };
+        let design = design.unwrap_or_else(|| {
+            Design::new(
+                Metric::Rate { baseline: f64::NAN },
+                Effect::Relative(f64::NAN),
+            )
+        });
         let priority = e.priority.unwrap_or(1.0);
         cx.number(
             &at("priority"),
@@ -1028,6 +1040,8 @@ fn experiments(
                 comparison_alpha: 0.0,
             }),
             looks,
+            metrics,
+            driver,
             priority,
             earliest_start: earliest,
             deadline,
@@ -1059,128 +1073,308 @@ fn experiments(
     (out, order)
 }
 
-/// The design of one experiment: its overrides over the defaults, each
-/// field range-checked here so that every bad field is reported.
-fn design(
+/// Every role by its name in a file.
+const ROLES: [(&str, Role); 3] = [
+    ("primary", Role::Primary),
+    ("guardrail", Role::Guardrail),
+    ("secondary", Role::Secondary),
+];
+
+/// The metric keys written on an experiment (the short form of one
+/// primary metric), with the names they have in the file.
+fn short_form_keys(e: &RawExperiment) -> Vec<&'static str> {
+    [
+        ("metric", e.metric.is_some()),
+        ("baseline", e.baseline.is_some()),
+        ("sd", e.sd.is_some()),
+        ("mde", e.mde.is_some()),
+        ("mde_abs", e.mde_abs.is_some()),
+        ("rho", e.rho.is_some()),
+        ("method", e.method.is_some()),
+    ]
+    .into_iter()
+    .filter_map(|(k, given)| given.then_some(k))
+    .collect()
+}
+
+/// An experiment's metrics, each with its keys and its design (the need
+/// still unset); None when any key was wrong (every problem reported).
+fn metrics<'r>(
     cx: &mut Ctx,
-    e: &RawExperiment,
+    e: &'r RawExperiment,
     i: usize,
     who: &str,
     what: &str,
     d: &Defaults,
-) -> (Design, bool) {
+    defaults_ok: bool,
+) -> Option<Vec<(MetricKeys<'r>, MetricPlan)>> {
     let before = cx.errors.len();
-    let at = |k: &str| format!("experiments[{i}].{k}");
-    let kind = cx.choice(
-        &at("metric"),
+    let (s, _) = shared(cx, e, i, who, d);
+    let guardrail_alpha = e.guardrail_alpha.unwrap_or(d.guardrail_alpha);
+    let key = format!("experiments[{i}].guardrail_alpha");
+    cx.number(
+        &key,
         who,
-        &e.metric,
-        &[("rate", "rate"), ("mean", "mean")],
-        if e.sd.is_some() { "mean" } else { "rate" },
+        guardrail_alpha,
+        guardrail_alpha > 0.0 && guardrail_alpha <= 0.5,
+        "in (0, 0.5]",
+        "the one-sided alpha of the guardrails; 0.05 is the default",
     );
-    let baseline = e.baseline.unwrap_or(f64::NAN);
-    let metric = if kind == "rate" {
-        if e.sd.is_some() {
-            cx.err(
-                &at("sd"),
-                format!("{who}`sd` applies only to mean metrics"),
-                "remove `sd`, or set `metric: mean`",
-            );
-        }
-        match e.baseline {
-            None => cx.missing(
-                &at("baseline"),
-                what,
-                "give the control's conversion rate, e.g. `baseline: 0.04` for 4%",
-            ),
-            Some(b) => {
-                let hint = if b > 1.0 && b < 100.0 {
-                    format!(
-                        "{b} looks like a percentage: {b}% is `{}`; for a mean metric set `metric: mean` and give `sd`",
-                        b / 100.0
-                    )
-                } else {
-                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`".to_string()
-                };
-                cx.number(
-                    &at("baseline"),
-                    who,
-                    b,
-                    b > 0.0 && b < 1.0,
-                    "a rate strictly inside (0, 1)",
-                    &hint,
-                );
-            }
-        }
-        Metric::Rate { baseline }
-    } else {
-        match e.baseline {
-            None => cx.missing(
-                &at("baseline"),
-                what,
-                "give the control's mean, e.g. `baseline: 38.5`",
-            ),
-            Some(b) => {
-                cx.number(
-                    &at("baseline"),
-                    who,
-                    b,
-                    b.is_finite() && b.abs() < 1e12,
-                    "a finite number",
-                    "the control arm's mean per unit",
-                );
-            }
-        }
-        let sd = e.sd.unwrap_or(f64::NAN);
-        match e.sd {
-            None => cx.missing(
-                &at("sd"),
-                what,
-                "a mean metric needs its standard deviation per unit, e.g. `sd: 61`",
-            ),
-            Some(s) => {
-                cx.number(
-                    &at("sd"),
-                    who,
-                    s,
-                    s > 0.0 && s.is_finite() && s < 1e12,
-                    "> 0",
-                    "the standard deviation of the metric per unit",
-                );
-            }
-        }
-        Metric::Mean { mean: baseline, sd }
+    let Some(list) = &e.metrics else {
+        let keys = MetricKeys::short(e, i);
+        let (design, _) = design(cx, &keys, Role::Primary, who, what, d, &s, s.alpha);
+        let plan = MetricPlan {
+            name: "primary".into(),
+            role: Role::Primary,
+            design,
+            need: None,
+            detectable: None,
+        };
+        return (cx.errors.len() == before && defaults_ok).then(|| vec![(keys, plan)]);
     };
-    let effect = match (e.mde, e.mde_abs) {
-        (Some(x), None) => Effect::Relative(x),
-        (None, Some(x)) => Effect::Absolute(x),
-        (Some(x), Some(_)) => {
-            cx.err(
-                &at("mde_abs"),
-                format!("{who}both `mde` and `mde_abs` are given"),
-                "give one: `mde` is relative (0.05 = 5% lift), `mde_abs` absolute",
-            );
-            Effect::Relative(x)
-        }
-        (None, None) => {
-            cx.missing(&at("mde"), what, "give the smallest effect worth detecting: `mde: 0.05` (5% relative) or `mde_abs: 0.002`");
-            Effect::Relative(f64::NAN)
-        }
-    };
-    let (ek, ev) = match effect {
-        Effect::Relative(x) => ("mde", x),
-        Effect::Absolute(x) => ("mde_abs", x),
-    };
-    if e.mde.is_some() || e.mde_abs.is_some() {
-        cx.number(
-            &at(ek),
-            who,
-            ev,
-            ev.is_finite() && ev != 0.0,
-            "a finite non-zero number",
-            "0.05 is a 5% relative lift",
+    let short = short_form_keys(e);
+    if let Some(first) = short.first() {
+        cx.err(
+            &format!("experiments[{i}].{first}"),
+            format!(
+                "{who}both `metrics` and the short form's {} are given",
+                diagnostic::list(&short)
+            ),
+            "the metric keys on the experiment are the short form of one primary metric; \
+             move them into a `metrics` entry with `role: primary`",
         );
     }
+    // Roles and names first: the primaries' count splits alpha.
+    let mut roles = Vec::new();
+    let mut names: Vec<String> = Vec::new();
+    for (j, m) in list.iter().enumerate() {
+        let at = |k: &str| format!("experiments[{i}].metrics[{j}].{k}");
+        let entry = format!("metric {} of {what}", j + 1);
+        let name = match &m.name {
+            Some(n) => n.as_str().trim().to_string(),
+            None => {
+                cx.missing(
+                    &at("name"),
+                    &entry,
+                    "name the metric, e.g. `name: revenue per visitor`",
+                );
+                format!("metric {}", j + 1)
+            }
+        };
+        if m.name.is_some() && name.is_empty() {
+            cx.err(
+                &at("name"),
+                format!("{who}a metric's `name` is empty"),
+                "name the metric, e.g. `name: conversion`",
+            );
+        } else if m.name.is_some() && names.contains(&name) {
+            cx.err(
+                &at("name"),
+                format!("{who}two metrics are named `{name}`"),
+                "give each metric of a test its own name",
+            );
+        }
+        names.push(name);
+        let role = match &m.role {
+            Some(_) => cx.choice(&at("role"), who, &m.role, &ROLES, Role::Secondary),
+            None => {
+                cx.missing(
+                    &at("role"),
+                    &entry,
+                    "say what the metric does: `role: primary`, `guardrail` or `secondary`",
+                );
+                Role::Secondary
+            }
+        };
+        roles.push(role);
+    }
+    let primaries = roles.iter().filter(|r| **r == Role::Primary).count();
+    if primaries == 0 && !list.is_empty() && roles.len() == list.len() {
+        cx.err(
+            &format!("experiments[{i}].metrics"),
+            format!("{what} has no primary metric"),
+            "give one entry `role: primary`: the effect the test is run to detect",
+        );
+    } else if list.is_empty() {
+        cx.err(
+            &format!("experiments[{i}].metrics"),
+            format!("{what} lists no metrics"),
+            "list at least one metric with `role: primary`, or write its keys on the experiment",
+        );
+    }
+    let alpha = primary_alpha(s.alpha, s.correction, primaries);
+    let mut out = Vec::new();
+    for (j, (m, (name, role))) in list.iter().zip(names.into_iter().zip(roles)).enumerate() {
+        let keys = MetricKeys::entry(m, i, j);
+        let mwho = format!("{who}metric `{name}`: ");
+        let mwhat = format!("metric `{name}` of {what}");
+        let alpha = match role {
+            Role::Primary => alpha,
+            Role::Guardrail => guardrail_alpha,
+            Role::Secondary => s.alpha,
+        };
+        let (design, _) = design(cx, &keys, role, &mwho, &mwhat, d, &s, alpha);
+        out.push((
+            keys,
+            MetricPlan {
+                name,
+                role,
+                design,
+                need: None,
+                detectable: None,
+            },
+        ));
+    }
+    (cx.errors.len() == before && defaults_ok).then_some(out)
+}
+
+/// What sizing makes of an experiment's metrics: the primary design, the
+/// need (the largest over the primary and guardrail metrics, with looks),
+/// its looks, every metric's plan and the driving metric's name.
+#[allow(clippy::type_complexity)]
+fn size_metrics(
+    cx: &mut Ctx,
+    list: Vec<(MetricKeys, MetricPlan)>,
+    count: u32,
+    boundary: Boundary,
+    who: &str,
+) -> (
+    Option<Design>,
+    Option<SampleSize>,
+    Option<Looks>,
+    Vec<MetricPlan>,
+    String,
+) {
+    let primary = list
+        .iter()
+        .find(|(_, p)| p.role == Role::Primary)
+        .map(|(_, p)| p.design);
+    let mut ok = true;
+    let mut best: Option<(SampleSize, Option<Looks>, String)> = None;
+    let mut plans = Vec::new();
+    for (keys, mut plan) in list {
+        let mwho = if keys.prefix.contains(".metrics[") {
+            format!("{who}metric `{}`: ", plan.name)
+        } else {
+            who.to_string()
+        };
+        let fixed = match plan.role {
+            Role::Primary => size(&plan.design),
+            Role::Guardrail => noninferiority::size(&plan.design),
+            Role::Secondary => {
+                plans.push((keys, plan));
+                continue;
+            }
+        };
+        let sized = fixed.and_then(|n| {
+            // Looks inflate by the design the sample is sized with: a
+            // guardrail's one-sided equivalent.
+            let at = match plan.role {
+                Role::Guardrail => noninferiority::equivalent(&plan.design)?,
+                _ => plan.design,
+            };
+            with_looks(&at, n, count, boundary)
+        });
+        match sized {
+            Ok((n, looks)) => {
+                plan.need = Some(n);
+                let larger = best
+                    .as_ref()
+                    .is_none_or(|(b, _, _)| (n.total, n.control) > (b.total, b.control));
+                if larger {
+                    best = Some((n, looks, plan.name.clone()));
+                }
+            }
+            Err(err) => {
+                sizing_error(cx, &keys, &mwho, &err);
+                ok = false;
+            }
+        }
+        plans.push((keys, plan));
+    }
+    let Some((need, looks, driver)) = best.filter(|_| ok) else {
+        let plans = plans.into_iter().map(|(_, p)| p).collect();
+        return (primary, None, None, plans, String::new());
+    };
+    let mut out = Vec::new();
+    for (keys, mut plan) in plans {
+        if plan.role == Role::Secondary {
+            match sizing::minimum_detectable_effect(&plan.design, need.control_exact) {
+                Ok(x) => plan.detectable = Some(x),
+                Err(err) => {
+                    let mwho = format!("{who}metric `{}`: ", plan.name);
+                    sizing_error(cx, &keys, &mwho, &err);
+                }
+            }
+        }
+        out.push(plan);
+    }
+    (primary, Some(need), looks, out, driver)
+}
+
+/// The settings every metric of an experiment shares.
+#[derive(Clone, Copy)]
+struct Shared {
+    alpha: f64,
+    power: f64,
+    sides: Sides,
+    arms: u32,
+    ratio: f64,
+    correction: Correction,
+}
+
+/// The metric keys of one metric: the experiment's own (the short form)
+/// or a `metrics` entry's, with the path its keys are reported at.
+struct MetricKeys<'r> {
+    /// `experiments[0]` or `experiments[0].metrics[1]`.
+    prefix: String,
+    metric: &'r Option<Text>,
+    baseline: Option<f64>,
+    sd: Option<f64>,
+    mde: Option<f64>,
+    mde_abs: Option<f64>,
+    rho: Option<f64>,
+    method: &'r Option<Text>,
+    margin: Option<f64>,
+    margin_abs: Option<f64>,
+}
+
+impl<'r> MetricKeys<'r> {
+    fn short(e: &'r RawExperiment, i: usize) -> MetricKeys<'r> {
+        MetricKeys {
+            prefix: format!("experiments[{i}]"),
+            metric: &e.metric,
+            baseline: e.baseline,
+            sd: e.sd,
+            mde: e.mde,
+            mde_abs: e.mde_abs,
+            rho: e.rho,
+            method: &e.method,
+            margin: None,
+            margin_abs: None,
+        }
+    }
+
+    fn entry(m: &'r RawMetric, i: usize, j: usize) -> MetricKeys<'r> {
+        MetricKeys {
+            prefix: format!("experiments[{i}].metrics[{j}]"),
+            metric: &m.metric,
+            baseline: m.baseline,
+            sd: m.sd,
+            mde: m.mde,
+            mde_abs: m.mde_abs,
+            rho: m.rho,
+            method: &m.method,
+            margin: m.margin,
+            margin_abs: m.margin_abs,
+        }
+    }
+}
+
+/// The settings an experiment's metrics share, each range-checked here.
+fn shared(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, d: &Defaults) -> (Shared, bool) {
+    let before = cx.errors.len();
+    let at = |k: &str| format!("experiments[{i}].{k}");
     let alpha = e.alpha.unwrap_or(d.alpha);
     cx.number(
         &at("alpha"),
@@ -1217,7 +1411,207 @@ fn design(
         "in [0.001, 1000]",
         "treatment units per control unit; 1 is an even split",
     );
-    let rho = e.rho.unwrap_or(0.0);
+    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES, d.sides);
+    let correction = cx.choice(
+        &at("correction"),
+        who,
+        &e.correction,
+        &CORRECTIONS,
+        d.correction,
+    );
+    let shared = Shared {
+        alpha,
+        power,
+        sides,
+        arms: if arms_ok { arms as u32 } else { 2 },
+        ratio,
+        correction,
+    };
+    (shared, cx.errors.len() == before)
+}
+
+/// The alpha of each of `primaries` primary metrics: the experiment's
+/// alpha split by its correction, as across arms (Bonferroni alpha / m,
+/// Sidak 1 - (1 - alpha)^(1/m), none alpha).
+pub fn primary_alpha(alpha: f64, correction: Correction, primaries: usize) -> f64 {
+    let m = primaries.max(1) as f64;
+    match correction {
+        Correction::None => alpha,
+        Correction::Bonferroni => alpha / m,
+        Correction::Sidak => 1.0 - (1.0 - alpha).powf(1.0 / m),
+    }
+}
+
+/// The design of one metric: its keys over the defaults and the shared
+/// settings, each field range-checked here so that every bad field is
+/// reported. A guardrail's effect is its margin, at `guardrail_alpha`,
+/// one-sided; a primary's alpha is `alpha` (its share of the split).
+#[allow(clippy::too_many_arguments)]
+fn design(
+    cx: &mut Ctx,
+    k: &MetricKeys,
+    role: Role,
+    who: &str,
+    what: &str,
+    d: &Defaults,
+    s: &Shared,
+    alpha: f64,
+) -> (Design, bool) {
+    let before = cx.errors.len();
+    let at = |key: &str| format!("{}.{key}", k.prefix);
+    let kind = cx.choice(
+        &at("metric"),
+        who,
+        k.metric,
+        &[("rate", "rate"), ("mean", "mean")],
+        if k.sd.is_some() { "mean" } else { "rate" },
+    );
+    let baseline = k.baseline.unwrap_or(f64::NAN);
+    let metric = if kind == "rate" {
+        if k.sd.is_some() {
+            cx.err(
+                &at("sd"),
+                format!("{who}`sd` applies only to mean metrics"),
+                "remove `sd`, or set `metric: mean`",
+            );
+        }
+        match k.baseline {
+            None => cx.missing(
+                &at("baseline"),
+                what,
+                "give the control's conversion rate, e.g. `baseline: 0.04` for 4%",
+            ),
+            Some(b) => {
+                let hint = if b > 1.0 && b < 100.0 {
+                    format!(
+                        "{b} looks like a percentage: {b}% is `{}`; for a mean metric set `metric: mean` and give `sd`",
+                        b / 100.0
+                    )
+                } else {
+                    "write rates as fractions: 0.04 for 4%; for a mean metric set `metric: mean` and give `sd`".to_string()
+                };
+                cx.number(
+                    &at("baseline"),
+                    who,
+                    b,
+                    b > 0.0 && b < 1.0,
+                    "a rate strictly inside (0, 1)",
+                    &hint,
+                );
+            }
+        }
+        Metric::Rate { baseline }
+    } else {
+        match k.baseline {
+            None => cx.missing(
+                &at("baseline"),
+                what,
+                "give the control's mean, e.g. `baseline: 38.5`",
+            ),
+            Some(b) => {
+                cx.number(
+                    &at("baseline"),
+                    who,
+                    b,
+                    b.is_finite() && b.abs() < 1e12,
+                    "a finite number",
+                    "the control arm's mean per unit",
+                );
+            }
+        }
+        let sd = k.sd.unwrap_or(f64::NAN);
+        match k.sd {
+            None => cx.missing(
+                &at("sd"),
+                what,
+                "a mean metric needs its standard deviation per unit, e.g. `sd: 61`",
+            ),
+            Some(v) => {
+                cx.number(
+                    &at("sd"),
+                    who,
+                    v,
+                    v > 0.0 && v.is_finite() && v < 1e12,
+                    "> 0",
+                    "the standard deviation of the metric per unit",
+                );
+            }
+        }
+        Metric::Mean { mean: baseline, sd }
+    };
+    // A guardrail's effect is its margin; the others' their MDE.
+    let (rel, abs, rk, ak) = if role == Role::Guardrail {
+        for (v, key) in [(k.mde, "mde"), (k.mde_abs, "mde_abs")] {
+            if v.is_some() {
+                cx.err(
+                    &at(key),
+                    format!("{who}a guardrail has no `{key}`"),
+                    "a guardrail is sized by the largest harm it accepts: write `margin` (relative) or `margin_abs`",
+                );
+            }
+        }
+        (k.margin, k.margin_abs, "margin", "margin_abs")
+    } else {
+        for (v, key) in [(k.margin, "margin"), (k.margin_abs, "margin_abs")] {
+            if v.is_some() {
+                cx.err(
+                    &at(key),
+                    format!("{who}`{key}` applies only to a guardrail metric"),
+                    format!(
+                        "a {} metric is sized by its effect: write `mde` or `mde_abs`, or set `role: guardrail`",
+                        role.name()
+                    ),
+                );
+            }
+        }
+        (k.mde, k.mde_abs, "mde", "mde_abs")
+    };
+    let effect = match (rel, abs) {
+        (Some(x), None) => Effect::Relative(x),
+        (None, Some(x)) => Effect::Absolute(x),
+        (Some(x), Some(_)) => {
+            cx.err(
+                &at(ak),
+                format!("{who}both `{rk}` and `{ak}` are given"),
+                if role == Role::Guardrail {
+                    "give one: `margin` is relative (0.02 = a 2% harm), `margin_abs` absolute"
+                } else {
+                    "give one: `mde` is relative (0.05 = 5% lift), `mde_abs` absolute"
+                },
+            );
+            Effect::Relative(x)
+        }
+        // A secondary metric is not sized: the effect only sets the kind
+        // and direction of the detectable effect reported.
+        (None, None) if role == Role::Secondary => Effect::Relative(1e-6),
+        (None, None) if role == Role::Guardrail => {
+            cx.missing(
+                &at("margin"),
+                what,
+                "give the largest harm that is acceptable: `margin: 0.02` (2% relative) or `margin_abs: 0.001`",
+            );
+            Effect::Relative(f64::NAN)
+        }
+        (None, None) => {
+            cx.missing(&at("mde"), what, "give the smallest effect worth detecting: `mde: 0.05` (5% relative) or `mde_abs: 0.002`");
+            Effect::Relative(f64::NAN)
+        }
+    };
+    let (ek, ev) = match effect {
+        Effect::Relative(x) => (rk, x),
+        Effect::Absolute(x) => (ak, x),
+    };
+    if rel.is_some() || abs.is_some() {
+        cx.number(
+            &at(ek),
+            who,
+            ev,
+            ev.is_finite() && ev != 0.0,
+            "a finite non-zero number",
+            "0.05 is 5% relative",
+        );
+    }
+    let rho = k.rho.unwrap_or(0.0);
     cx.number(
         &at("rho"),
         who,
@@ -1226,19 +1620,19 @@ fn design(
         "in [0, 1)",
         "the correlation of the metric with its pre-period value; 0 for none",
     );
-    let sides = cx.choice(&at("sides"), who, &e.sides, &SIDES, d.sides);
-    let default_method = if matches!(metric, Metric::Rate { .. }) {
-        d.rate_method
-    } else {
-        d.mean_method
+    // Blackwelder's guardrail formula for rates is the unpooled one.
+    let default_method = match metric {
+        Metric::Rate { .. } if role == Role::Guardrail => Method::Unpooled,
+        Metric::Rate { .. } => d.rate_method,
+        Metric::Mean { .. } => d.mean_method,
     };
     let all_methods: Vec<(&str, Method)> = RATE_METHODS
         .iter()
         .chain(MEAN_METHODS.iter())
         .copied()
         .collect();
-    let method = cx.choice(&at("method"), who, &e.method, &all_methods, default_method);
-    if e.method.is_some() && method.is_for_rates() != matches!(metric, Metric::Rate { .. }) {
+    let method = cx.choice(&at("method"), who, k.method, &all_methods, default_method);
+    if k.method.is_some() && method.is_for_rates() != matches!(metric, Metric::Rate { .. }) {
         let (kind, allowed) = if matches!(metric, Metric::Rate { .. }) {
             ("rate", "`pooled`, `unpooled`, `corrected`, `arcsine`")
         } else {
@@ -1250,23 +1644,20 @@ fn design(
             format!("use one of {allowed}"),
         );
     }
-    let correction = cx.choice(
-        &at("correction"),
-        who,
-        &e.correction,
-        &CORRECTIONS,
-        d.correction,
-    );
     let design = Design {
         metric,
         effect,
         alpha,
-        power,
-        sides,
-        arms: if arms_ok { arms as u32 } else { 2 },
-        ratio,
+        power: s.power,
+        sides: if role == Role::Guardrail {
+            Sides::One
+        } else {
+            s.sides
+        },
+        arms: s.arms,
+        ratio: s.ratio,
         method,
-        correction,
+        correction: s.correction,
         rho,
     };
     (design, cx.errors.len() == before)
@@ -1279,11 +1670,12 @@ fn size(design: &Design) -> Result<SampleSize, SizingError> {
 
 /// A sizing failure after the range checks passed (an effect that leaves
 /// (0, 1), a size beyond any traffic), pointed at the key to change.
-fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &SizingError) {
-    let effect_key = if e.mde_abs.is_some() {
-        "mde_abs"
-    } else {
-        "mde"
+fn sizing_error(cx: &mut Ctx, e: &MetricKeys, who: &str, err: &SizingError) {
+    let effect_key = match (e.margin, e.margin_abs) {
+        (_, Some(_)) => "margin_abs",
+        (Some(_), None) => "margin",
+        _ if e.mde_abs.is_some() => "mde_abs",
+        _ => "mde",
     };
     let key = match err {
         SizingError::OutOfRange { field, .. } => match *field {
@@ -1335,7 +1727,7 @@ fn sizing_error(cx: &mut Ctx, e: &RawExperiment, i: usize, who: &str, err: &Sizi
         }
         _ => format!("{who}{err}"),
     };
-    cx.err(&format!("experiments[{i}].{key}"), message, hint);
+    cx.err(&format!("{}.{key}", e.prefix), message, hint);
 }
 
 /// Reports every cycle of the `after` graph once, as `a -> b -> a`.
@@ -1546,5 +1938,231 @@ mod looks_tests {
         let text = file("defaults: {looks: 2.5}\n", "");
         let err = load_str(&text, "looks.yaml").unwrap_err().to_string();
         assert!(err.contains("a whole number from 1 to 10"), "{err}");
+    }
+}
+
+#[cfg(test)]
+mod metrics_tests {
+    use super::super::load::load_str;
+    use super::*;
+
+    /// A file whose one experiment ends with `experiment` (its keys at
+    /// four spaces, starting on line 6).
+    fn file(experiment: &str) -> String {
+        format!(
+            "name: metrics\nwindow: {{start: 2027-01-04, end: 2027-03-28}}\n\
+             pools:\n  - {{id: home, daily: 10000, max_concurrent: 2}}\n\
+             experiments:\n  - id: t\n    pool: home\n{experiment}"
+        )
+    }
+
+    fn load(experiment: &str) -> Portfolio {
+        load_str(&file(experiment), "m.yaml").unwrap_or_else(|e| panic!("{e}"))
+    }
+
+    fn error(experiment: &str) -> String {
+        load_str(&file(experiment), "m.yaml")
+            .unwrap_err()
+            .to_string()
+    }
+
+    #[test]
+    fn the_short_form_is_one_primary_that_drives() {
+        let p = load("    baseline: 0.1\n    mde: 0.1\n");
+        let e = &p.experiments[0];
+        assert_eq!(e.driver, "primary");
+        assert_eq!(e.metrics.len(), 1);
+        assert_eq!(e.metrics[0].role, Role::Primary);
+        assert_eq!(e.metrics[0].need, Some(e.need));
+        // `sluice size --baseline 0.1 --mde 0.1`: 14,751 per arm.
+        assert_eq!(e.need.control, 14_751);
+    }
+
+    #[test]
+    fn a_guardrail_with_a_tight_margin_drives_the_need() {
+        let p = load(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.008}\n",
+        );
+        let e = &p.experiments[0];
+        // Blackwelder (1982), one-sided at 0.05, power 0.8:
+        // (1.644854 + 0.841621)^2 x 0.1 x 0.9 x 2 / 0.008^2 = 17,388.4.
+        let want = (1.644854f64 + 0.841621).powi(2) * 0.09 * 2.0 / 0.008f64.powi(2);
+        assert!(
+            (e.need.control_exact - want).abs() < 0.5,
+            "{}",
+            e.need.control_exact
+        );
+        assert_eq!(e.need.control, 17_389);
+        assert_eq!(e.driver, "refunds");
+        let guard = &e.metrics[1];
+        assert_eq!(guard.design.sides, Sides::One);
+        assert_eq!(guard.design.alpha, 0.05);
+        assert_eq!(guard.design.method, Method::Unpooled);
+        // The primary keeps its own, smaller need and the model's design.
+        assert_eq!(e.metrics[0].need.map(|n| n.control), Some(14_751));
+        assert_eq!(e.design, e.metrics[0].design);
+        // A wide margin leaves the primary in charge.
+        let p = load(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.01}\n",
+        );
+        assert_eq!(p.experiments[0].driver, "orders");
+        assert_eq!(p.experiments[0].need.control, 14_751);
+        assert_eq!(
+            p.experiments[0].metrics[1].need.map(|n| n.control),
+            Some(11_129)
+        );
+    }
+
+    #[test]
+    fn looks_inflate_every_sized_metric() {
+        let p = load(
+            "    looks: 3\n    boundary: pocock\n    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.008}\n",
+        );
+        let e = &p.experiments[0];
+        // Each above its fixed size (14,751 and 17,389 per arm).
+        for (m, fixed) in e.metrics.iter().zip([14_751, 17_389]) {
+            let n = m.need.expect("sized");
+            assert!(n.control > fixed, "{}: {}", m.name, n.control);
+        }
+        let driving = e.metrics.iter().find(|m| m.name == e.driver).unwrap();
+        assert_eq!(driving.need, Some(e.need));
+        let looks = e.looks.as_ref().expect("looks");
+        assert_eq!(
+            e.need.control,
+            (looks.fixed.control_exact * looks.design.inflation).ceil() as u64
+        );
+    }
+
+    #[test]
+    fn guardrail_alpha_comes_from_the_experiment_or_the_defaults() {
+        let guard = "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin_abs: 0.008}\n";
+        let text = file(guard).replace("pools:", "defaults: {guardrail_alpha: 0.025}\npools:");
+        let p = load_str(&text, "m.yaml").unwrap_or_else(|e| panic!("{e}"));
+        let g = &p.experiments[0].metrics[1];
+        assert_eq!(g.design.alpha, 0.025);
+        // (1.959964 + 0.841621)^2 x 0.09 x 2 / 0.008^2 = 22,074.97.
+        assert_eq!(g.need.map(|n| n.control), Some(22_075));
+        let p = load(&format!("    guardrail_alpha: 0.1\n{guard}"));
+        assert_eq!(p.experiments[0].metrics[1].design.alpha, 0.1);
+        // The primaries' alpha is not touched.
+        assert_eq!(p.experiments[0].metrics[0].design.alpha, 0.05);
+    }
+
+    #[test]
+    fn two_primaries_split_alpha_by_the_correction() {
+        let two = "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: signups, role: primary, baseline: 0.2, mde: 0.1}\n";
+        let p = load(two);
+        let e = &p.experiments[0];
+        // Bonferroni: each at 0.05 / 2 = 0.025, as `sluice size --alpha
+        // 0.025` sizes them: 17,864 and 7,884 per arm.
+        assert_eq!(e.metrics[0].design.alpha, 0.025);
+        assert_eq!(e.metrics[1].design.alpha, 0.025);
+        assert_eq!(e.metrics[0].need.map(|n| n.control), Some(17_864));
+        assert_eq!(e.metrics[1].need.map(|n| n.control), Some(7_884));
+        assert_eq!(e.driver, "orders");
+        assert_eq!(e.need.control, 17_864);
+        // Sidak: 1 - 0.95^(1/2) = 0.0253206; none: the full 0.05.
+        let p = load(&format!("    correction: sidak\n{two}"));
+        let a = p.experiments[0].metrics[1].design.alpha;
+        assert!((a - 0.025_320_6).abs() < 1e-7, "{a}");
+        let p = load(&format!("    correction: none\n{two}"));
+        assert_eq!(p.experiments[0].metrics[0].design.alpha, 0.05);
+        assert_eq!(p.experiments[0].need.control, 14_751);
+    }
+
+    #[test]
+    fn a_secondary_keeps_what_the_tests_sample_detects() {
+        let p = load(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: basket, role: secondary, metric: mean, baseline: 38.5, sd: 61, method: z, mde_abs: 1}\n",
+        );
+        let e = &p.experiments[0];
+        assert_eq!(e.driver, "orders");
+        let s = &e.metrics[1];
+        assert_eq!(s.need, None);
+        // The z test's MDE at n per arm: (z_0.975 + z_0.8) x sd x sqrt(2 / n).
+        let n = e.need.control_exact;
+        let want = (1.959_964 + 0.841_621) * 61.0 * (2.0 / n).sqrt();
+        let got = s.detectable.expect("a detectable effect");
+        assert!((got - want).abs() < 1e-4, "{got} vs {want}");
+        assert!((got - 1.99).abs() < 0.01, "{got}");
+        // Without an MDE the effect is relative: the same over the mean.
+        let p = load(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: basket, role: secondary, metric: mean, baseline: 38.5, sd: 61, method: z}\n",
+        );
+        let rel = p.experiments[0].metrics[1].detectable.unwrap();
+        assert!((rel - want / 38.5).abs() < 1e-5, "{rel}");
+    }
+
+    #[test]
+    fn bad_metrics_name_the_key_and_line() {
+        let err = error(
+            "    baseline: 0.1\n    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n",
+        );
+        assert!(err.contains("m.yaml:8:"), "{err}");
+        assert!(
+            err.contains("both `metrics` and the short form's `baseline` are given"),
+            "{err}"
+        );
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primry, baseline: 0.1, mde: 0.1}\n",
+        );
+        assert!(err.contains("m.yaml:9:"), "{err}");
+        assert!(err.contains("`role` is `primry`"), "{err}");
+        assert!(err.contains("did you mean `primary`?"), "{err}");
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1}\n",
+        );
+        assert!(err.contains("m.yaml:10:"), "{err}");
+        assert!(err.contains("has no `margin`"), "{err}");
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1, margin: 0.02}\n",
+        );
+        assert!(
+            err.contains("metric `orders`: `margin` applies only to a guardrail metric"),
+            "{err}"
+        );
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: orders, role: secondary, baseline: 0.1}\n",
+        );
+        assert!(err.contains("m.yaml:10:"), "{err}");
+        assert!(err.contains("two metrics are named `orders`"), "{err}");
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin: 0.1}\n",
+        );
+        assert!(err.contains("has no primary metric"), "{err}");
+        let err = error(
+            "    guardrail_alpha: 0.7\n    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n",
+        );
+        assert!(err.contains("`guardrail_alpha` is 0.7"), "{err}");
+        let err = error(
+            "    metrics:\n\
+             \x20     - {name: orders, role: primary, baseline: 0.1, mde: 0.1}\n\
+             \x20     - {name: refunds, role: guardrail, baseline: 0.1, margin: 0.02, method: pooled}\n",
+        );
+        assert!(err.contains("metric `refunds`:"), "{err}");
+        assert!(err.contains("unpooled"), "{err}");
     }
 }

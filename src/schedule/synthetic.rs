@@ -158,6 +158,8 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
             need: two_arm_need(total),
             looks: None,
+            metrics: Vec::new(),
+            driver: String::new(),
             priority: (1 + rng.below(10)) as f64,
             earliest_start,
             deadline,

@@ -45,6 +45,8 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
         need: super::synthetic::two_arm_need(need),
         looks: None,
+        metrics: Vec::new(),
+        driver: String::new(),
         priority,
         earliest_start: None,
         deadline: None,
