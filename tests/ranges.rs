@@ -2,7 +2,7 @@
 //! pool's forecast carries an error, the same bytes for the same seed,
 //! and clear errors on bad keys.
 
-use crate::util::{cmd, repo, sluice};
+use crate::util::{cmd, demo, demo_history_into, repo, sluice};
 use serde_json::Value;
 use std::path::{Path, PathBuf};
 
@@ -131,4 +131,47 @@ fn a_bad_spread_is_an_error_at_its_key() {
     let out = cmd(&["plan", path.to_str().unwrap()]).assert_exit_code(2);
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(stderr.contains("level"), "{stderr}");
+}
+
+#[test]
+fn history_pools_get_ranges_from_their_fit_and_a_given_uncertainty_replaces_it() {
+    let (_, v) = plan_json(Path::new(&demo()));
+    let has_range = |v: &Value, pool: &str| {
+        v["experiments"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|e| e["pool"] == pool && e["status"] == "scheduled")
+            .map(|e| e.get("result_range").is_some())
+            .collect::<Vec<_>>()
+    };
+    let home = has_range(&v, "home");
+    assert!(!home.is_empty() && home.iter().all(|&h| h), "{home:?}");
+    // A zero spread on the home pool replaces its fitted one: point dates.
+    let dir = tempfile::tempdir().unwrap();
+    demo_history_into(dir.path());
+    let text = std::fs::read_to_string(demo()).unwrap();
+    let line = "    history: history/home.csv";
+    assert!(text.contains(line));
+    let text = text.replacen(
+        line,
+        "    uncertainty: {level_cv: 0, daily_cv: 0}\n    history: history/home.csv",
+        1,
+    );
+    let path = dir.path().join("demo.yaml");
+    std::fs::write(&path, text).unwrap();
+    let (_, v) = plan_json(&path);
+    assert!(has_range(&v, "home").iter().all(|&h| !h));
+    assert!(has_range(&v, "search").iter().all(|&h| h));
+}
+
+#[test]
+fn too_few_paths_is_an_error_at_its_key() {
+    let (_dir, path) = quickstart_with("", "planning: {paths: 5}\n");
+    let out = cmd(&["plan", path.to_str().unwrap()]).assert_exit_code(2);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("`paths` is 5; it must be a whole number from 100 to 100000"),
+        "{stderr}"
+    );
 }
