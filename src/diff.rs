@@ -183,6 +183,7 @@ mod tests {
             units_needed: 1000,
             reason: None,
             ran: None,
+            result_range: None,
         }
     }
 

@@ -134,6 +134,25 @@ pub struct PlannedExperiment {
     /// progress file gives it; `None` for every other test, and for a
     /// finished or cancelled test whose `started` the file does not give.
     pub ran: Option<Ran>,
+    /// Scheduled tests on a pool with an uncertain forecast: when the
+    /// result may come, over simulated traffic; `None` otherwise.
+    pub result_range: Option<ResultRange>,
+}
+
+/// When a scheduled test's result may come, over simulated traffic paths
+/// (see [`crate::forecast::uncertainty`]).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct ResultRange {
+    /// The result date (the day after the last day of data) by which 10%
+    /// of paths have it; `None` when that falls past the simulated span.
+    pub p10: Option<NaiveDate>,
+    /// The median result date.
+    pub p50: Option<NaiveDate>,
+    /// The result date by which 90% of paths have it.
+    pub p90: Option<NaiveDate>,
+    /// The share of paths whose run ends by its deadline, or by the
+    /// window's last day without one.
+    pub on_time: f64,
 }
 
 /// What a finished or cancelled test ran before today: kept in a re-plan
@@ -185,6 +204,8 @@ struct ExperimentJson {
     reason: Option<String>,
     #[serde(default)]
     ran: Option<Ran>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    result_range: Option<ResultRange>,
 }
 
 impl From<PlannedExperiment> for ExperimentJson {
@@ -206,6 +227,7 @@ impl From<PlannedExperiment> for ExperimentJson {
             units_expected: r.map(|r| r.units_expected),
             reason: e.reason,
             ran: e.ran,
+            result_range: e.result_range,
         }
     }
 }
@@ -277,6 +299,7 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
             units_needed: j.units_needed,
             reason: j.reason,
             ran: j.ran,
+            result_range: j.result_range,
         })
     }
 }

@@ -9,6 +9,7 @@ mod commands;
 mod forecast;
 mod outputs;
 mod plan;
+mod ranges;
 mod render;
 mod replan;
 mod safe_files;

@@ -13,6 +13,7 @@
 
 pub mod fit;
 pub mod report;
+pub mod uncertainty;
 
 use crate::portfolio::{Change, Pool};
 use chrono::{Datelike, Duration, NaiveDate};
@@ -166,6 +167,7 @@ mod tests {
                 scales: Vec::new(),
                 trend: None,
                 history: None,
+                uncertainty: None,
             },
             sharing: Sharing::Split,
             max_concurrent: 3,

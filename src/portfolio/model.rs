@@ -119,6 +119,10 @@ pub struct Planning {
     pub lateness_weight: f64,
     /// Whether a re-plan may change the share of a running test.
     pub reshare_running: bool,
+    /// The seed of the simulated traffic behind result ranges.
+    pub seed: u64,
+    /// How many traffic paths result ranges are simulated over.
+    pub paths: u32,
 }
 
 impl Default for Planning {
@@ -131,6 +135,8 @@ impl Default for Planning {
             start_weekday: Weekday::Mon,
             lateness_weight: 0.5,
             reshare_running: false,
+            seed: 1,
+            paths: 2_000,
         }
     }
 }
@@ -198,6 +204,42 @@ pub struct Forecast {
     pub trend: Option<Trend>,
     /// The history the level, pattern and trend were fitted from, if any.
     pub history: Option<History>,
+    /// The forecast's error as the portfolio gives it (`uncertainty`);
+    /// `None` takes it from the history's fit, or none at all
+    /// (see [`Forecast::uncertainty`]).
+    pub uncertainty: Option<Uncertainty>,
+}
+
+impl Forecast {
+    /// The forecast's error behind result ranges: the `uncertainty` key
+    /// when given, else the history's fit, else none (point dates).
+    pub fn uncertainty(&self) -> Uncertainty {
+        self.uncertainty
+            .or_else(|| {
+                self.history.as_ref().map(|h| Uncertainty {
+                    level_cv: h.fit.level_cv,
+                    daily_cv: h.fit.daily_cv,
+                })
+            })
+            .unwrap_or_default()
+    }
+}
+
+/// How far a pool's traffic may stray from its forecast, as coefficients
+/// of variation of two mean-1 lognormal factors.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+pub struct Uncertainty {
+    /// One factor per pool and path: the forecast's bias over the run.
+    pub level_cv: f64,
+    /// One factor per day: day-to-day noise, independent across days.
+    pub daily_cv: f64,
+}
+
+impl Uncertainty {
+    /// Whether both spreads are 0 (dates are points).
+    pub fn is_none(&self) -> bool {
+        self.level_cv == 0.0 && self.daily_cv == 0.0
+    }
 }
 
 /// A linear trend: on `date` the level is `daily x (1 + per_week x weeks

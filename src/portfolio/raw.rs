@@ -102,6 +102,8 @@ pub struct RawPlanning {
     pub start_weekday: Option<Text>,
     pub lateness_weight: Option<f64>,
     pub reshare_running: Option<bool>,
+    pub seed: Option<f64>,
+    pub paths: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -116,6 +118,14 @@ pub struct RawPool {
     pub adjustments: Option<Vec<RawAdjustment>>,
     pub sharing: Option<Text>,
     pub max_concurrent: Option<f64>,
+    pub uncertainty: Option<RawUncertainty>,
+}
+
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawUncertainty {
+    pub level_cv: Option<f64>,
+    pub daily_cv: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -268,6 +278,7 @@ pub fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
         "planning" => fields_of::<RawPlanning>(),
         "pools[]" => fields_of::<RawPool>(),
         "pools[].adjustments[]" => fields_of::<RawAdjustment>(),
+        "pools[].uncertainty" => fields_of::<RawUncertainty>(),
         "experiments[]" => fields_of::<RawExperiment>(),
         "experiments[].after[]" => fields_of::<RawAfterGap>(),
         "experiments[].metrics[]" => fields_of::<RawMetric>(),
@@ -320,6 +331,7 @@ mod tests {
             "planning",
             "pools[]",
             "pools[].adjustments[]",
+            "pools[].uncertainty",
             "experiments[]",
             "experiments[].after[]",
             "experiments[].metrics[]",

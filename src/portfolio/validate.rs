@@ -508,11 +508,39 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         "in [0, 1)",
         "0 ignores when results arrive; 0.5 (the default) halves the value of a result on the window's last day",
     );
+    let seed = p.seed.unwrap_or(fallback.seed as f64);
+    let seed = if cx.number(
+        "planning.seed",
+        "",
+        seed,
+        whole(seed, 0.0, 4_294_967_295.0),
+        "a whole number from 0 to 4294967295",
+        "any number picks the simulated traffic behind result ranges; the same seed gives the same ranges",
+    ) {
+        seed as u64
+    } else {
+        fallback.seed
+    };
+    let paths = p.paths.unwrap_or(f64::from(fallback.paths));
+    let paths = if cx.number(
+        "planning.paths",
+        "",
+        paths,
+        whole(paths, 100.0, 100_000.0),
+        "a whole number from 100 to 100000",
+        "how many simulated traffic paths result ranges rest on; 2000 (the default) is plenty",
+    ) {
+        paths as u32
+    } else {
+        fallback.paths
+    };
     Planning {
         grid,
         start_weekday,
         lateness_weight,
         reshare_running: p.reshare_running.unwrap_or(fallback.reshare_running),
+        seed,
+        paths,
     }
 }
 
@@ -745,6 +773,27 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                 1
             }
         };
+        let uncertainty = p.uncertainty.as_ref().map(|u| {
+            let mut cv = |name: &str, v: Option<f64>| {
+                let v = v.unwrap_or(0.0);
+                if cx.number(
+                    &at(&format!("uncertainty.{name}")),
+                    &who,
+                    v,
+                    v.is_finite() && (0.0..=10.0).contains(&v),
+                    "from 0 to 10",
+                    "a coefficient of variation: 0.1 means traffic typically strays 10% from the forecast",
+                ) {
+                    v
+                } else {
+                    0.0
+                }
+            };
+            Uncertainty {
+                level_cv: cv("level_cv", u.level_cv),
+                daily_cv: cv("daily_cv", u.daily_cv),
+            }
+        });
         out.push(Pool {
             label: text_or(&p.label, &id),
             id,
@@ -758,6 +807,7 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                     per_week: h.fit.trend_per_week,
                 }),
                 history,
+                uncertainty,
             },
             sharing,
             max_concurrent,

@@ -307,7 +307,7 @@ fn assemble(
     let w = p.window;
     let why = reasons::explain(inst, state);
     let today = request.today.unwrap_or(w.start);
-    let experiments: Vec<PlannedExperiment> = p
+    let mut experiments: Vec<PlannedExperiment> = p
         .experiments
         .iter()
         .enumerate()
@@ -330,6 +330,7 @@ fn assemble(
                 units_needed: ex.need.total,
                 reason: None,
                 ran: None,
+                result_range: None,
             };
             match run {
                 Some((start, end, share)) => {
@@ -365,6 +366,7 @@ fn assemble(
             out
         })
         .collect();
+    crate::forecast::uncertainty::fill_ranges(p, &mut experiments);
     let pools = p
         .pools
         .iter()

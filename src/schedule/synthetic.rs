@@ -108,6 +108,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
                     scales: Vec::new(),
                     trend: None,
                     history: None,
+                    uncertainty: None,
                 },
                 sharing: if split {
                     Sharing::Split

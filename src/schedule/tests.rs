@@ -30,6 +30,7 @@ fn pool(id: &str, daily: f64, sharing: Sharing, cap: u32) -> Pool {
             scales: Vec::new(),
             trend: None,
             history: None,
+            uncertainty: None,
         },
         sharing,
         max_concurrent: cap,

@@ -104,6 +104,12 @@ fn table_for(
         header.push("end");
     }
     header.push("result due");
+    // Only plans whose forecasts carry an error have ranges.
+    let ranges =
+        layout >= Layout::Compact && plan.experiments.iter().any(|e| e.result_range.is_some());
+    if ranges {
+        header.push("result due (P10–P90)");
+    }
     if layout >= Layout::Medium {
         header.extend(["days", "units needed"]);
     }
@@ -143,6 +149,9 @@ fn table_for(
                     (None, _) => Cell::new(format!("ended {}", r.end)),
                     _ => Cell::new(r.result_date),
                 });
+                if ranges {
+                    row.push(Cell::new(e.result_range.map_or(String::new(), range_words)));
+                }
                 if layout >= Layout::Medium {
                     row.push(Cell::new(r.days).set_alignment(CellAlignment::Right));
                 }
@@ -162,6 +171,9 @@ fn table_for(
                     row.push(Cell::new(""));
                 }
                 row.push(Cell::new(""));
+                if ranges {
+                    row.push(Cell::new(""));
+                }
                 if layout >= Layout::Medium {
                     row.push(Cell::new(""));
                 }
@@ -188,6 +200,17 @@ fn table_for(
         t.add_row(row);
     }
     t
+}
+
+/// A result range in words: `P10 – P90`, one date when they agree, and
+/// `later` for a quantile past the simulated span.
+fn range_words(r: crate::plan::ResultRange) -> String {
+    let day = |d: Option<chrono::NaiveDate>| d.map_or("later".to_string(), |d| d.to_string());
+    if r.p10 == r.p90 {
+        day(r.p10)
+    } else {
+        format!("{} – {}", day(r.p10), day(r.p90))
+    }
 }
 
 /// A bar of `cells` characters filled to `fraction` (clamped to 0..=1),
