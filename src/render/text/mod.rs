@@ -134,6 +134,33 @@ fn for_terminal(plan: &Plan) -> Plan {
         b.pools = b.pools.iter().map(|x| clean(x)).collect();
     }
     p.solver.backend = clean(&p.solver.backend);
+    // A re-plan's outlooks and changes may come from a `--previous` file.
+    for o in &mut p.running {
+        o.id = clean(&o.id);
+        o.advice = o.advice.as_deref().map(clean);
+        if let Some(n) = &mut o.no_running {
+            n.note = clean(&n.note);
+        }
+    }
+    if let Some(c) = &mut p.changes {
+        for e in &mut c.experiments {
+            e.id = clean(&e.id);
+            e.pool = clean(&e.pool);
+        }
+        for list in [
+            &mut c.no_longer_fit,
+            &mut c.now_fit,
+            &mut c.share_changed,
+            &mut c.needs_decision,
+        ] {
+            for id in list.iter_mut() {
+                *id = clean(id);
+            }
+        }
+        for pool in &mut c.pools {
+            pool.id = clean(&pool.id);
+        }
+    }
     p
 }
 
@@ -264,5 +291,27 @@ mod tests {
         let text = String::from_utf8(Text.render(&plan, &opts).unwrap()).unwrap();
         assert!(!text.contains('\x1b') && !text.contains('\x07') && !text.contains('\r'));
         assert!(text.contains("line break"));
+    }
+
+    /// A `--previous` file is read as it is: its ids reach the changes
+    /// section and the advice, and must not reach the terminal raw.
+    #[test]
+    fn a_previous_plan_cannot_carry_terminal_escapes() {
+        let mut plan = fixture::replanned();
+        plan.running = fixture::with_advice().running;
+        let changes = plan.changes.as_mut().expect("the fixture has changes");
+        changes.experiments[0].id = "old\x1b[2Jid".to_string();
+        changes.no_longer_fit.push("gone\x1b]0;t\x07".to_string());
+        plan.running[0].advice = Some("stop\x1b[31m now".to_string());
+        let opts = RenderOptions {
+            width: Some(160),
+            colour: false,
+        };
+        let text = String::from_utf8(Text.render(&plan, &opts).unwrap()).unwrap();
+        assert!(!text.contains('\x1b') && !text.contains('\x07'), "{text}");
+        assert!(
+            text.contains("old [2Jid") && text.contains("stop [31m now"),
+            "{text}"
+        );
     }
 }
