@@ -166,3 +166,60 @@ fn bad_input_gets_a_clear_error_and_exit_code_2() {
     let out = cmd(&["plan", &demo(), "--time-limit", "0"]).assert_exit_code(2);
     assert!(String::from_utf8_lossy(&out.stderr).contains("`--time-limit`"));
 }
+
+/// `plan --scale`: a what-if before the quarter (issue 12). Halving the
+/// product pages from 1 February halves their forecast from that day on and
+/// leaves the days before and the other pools alone.
+#[test]
+fn scale_is_a_what_if_on_the_forecast() {
+    let plan = |extra: &[&str]| -> Value {
+        let mut args = vec![
+            "plan",
+            "portfolios/demo.yaml",
+            "--format",
+            "json",
+            "--no-timing",
+        ];
+        args.extend_from_slice(extra);
+        serde_json::from_str(&cmd(&args).stdout()).unwrap()
+    };
+    let base = plan(&[]);
+    let half = plan(&["--scale", "product=0.5@2027-02-01"]);
+    let days = |v: &Value, pool: &str| -> Vec<(String, f64)> {
+        let p = v["pools"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|p| p["id"] == pool)
+            .unwrap();
+        p["days"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|d| {
+                (
+                    d["date"].as_str().unwrap().to_string(),
+                    d["forecast"].as_f64().unwrap(),
+                )
+            })
+            .collect()
+    };
+    for ((date, before), (_, after)) in days(&base, "product")
+        .into_iter()
+        .zip(days(&half, "product"))
+    {
+        let want = if date.as_str() >= "2027-02-01" {
+            before * 0.5
+        } else {
+            before
+        };
+        assert!(
+            (after - want).abs() < 1e-6 * want.max(1.0),
+            "{date}: {after} against {want}"
+        );
+    }
+    assert_eq!(days(&base, "home"), days(&half, "home"));
+    let out = cmd(&["plan", "portfolios/demo.yaml", "--scale", "nope=0.5"]).assert_exit_code(2);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("`--scale`") && err.contains("`nope`"), "{err}");
+}

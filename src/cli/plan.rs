@@ -9,6 +9,7 @@ use crate::output;
 use crate::plan::Plan;
 use crate::portfolio;
 use crate::render::{self, Format, RenderOptions};
+use crate::replan::{self, ScaleArg};
 use crate::schedule::{self, Backend, PlanRequest};
 use chrono::NaiveDate;
 use clap::Args;
@@ -100,7 +101,10 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, inputs: &[&Path]) -> Result<Vec<u8
     sluice plan portfolios/demo.yaml\n  \
     sluice plan portfolios/demo.yaml --format html --out plan.html\n  \
     sluice plan portfolios/demo.yaml --format ics --out results.ics\n  \
-    sluice plan portfolios/demo.yaml --format json --no-timing --out plan.json\n\n\
+    sluice plan portfolios/demo.yaml --format json --no-timing --out plan.json\n  \
+    sluice plan portfolios/demo.yaml --scale product=0.8 --scale search=0.9@2027-02-01\n\n\
+    --scale multiplies a pool's forecast from a day on (the window's first day \
+    when none is given): a what-if before the quarter starts. \
     The search runs a fixed amount of work, so the same file gives the same \
     plan; --time-limit only cuts it short on a slow machine.")]
 pub struct PlanArgs {
@@ -109,6 +113,9 @@ pub struct PlanArgs {
     /// Plan as of this day: no test starts before it (default: the window's first day)
     #[arg(long, value_name = "YYYY-MM-DD")]
     pub today: Option<NaiveDate>,
+    /// A traffic what-if, repeatable: POOL=FACTOR[@FROM], e.g. product=0.8@2027-02-01
+    #[arg(long, value_name = "POOL=FACTOR[@DATE]")]
+    pub scale: Vec<ScaleArg>,
     #[command(flatten)]
     pub output: OutputArgs,
     #[command(flatten)]
@@ -129,6 +136,11 @@ pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Error> {
         }
         request.today = Some(today);
     }
+    let p = if a.scale.is_empty() {
+        p
+    } else {
+        replan::with_scales(&p, &a.scale, a.today.unwrap_or(p.window.start))?
+    };
     let plan = schedule::plan(&p, &request);
     emit(plan, &a.output, &[&a.file])
 }
