@@ -130,6 +130,32 @@ struct Spec {
     sequence: u32,
 }
 
+/// The two events of a test: its run from `start` to `end`, and the day its
+/// result is due.
+fn event_pair(
+    title: &str,
+    id: &str,
+    description: String,
+    start: NaiveDate,
+    end: NaiveDate,
+    result_date: NaiveDate,
+) -> [Content; 2] {
+    [
+        Content {
+            summary: format!("Test running: {title} [{id}]"),
+            description: description.clone(),
+            start,
+            end,
+        },
+        Content {
+            summary: format!("Result due: {title} [{id}]"),
+            description,
+            start: result_date,
+            end: result_date,
+        },
+    ]
+}
+
 /// The run and result events of an experiment in the calendar.
 fn contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
     if !e.status.in_calendar() {
@@ -137,20 +163,14 @@ fn contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
     }
     let run = e.run?;
     let description = description(plan, e, &run);
-    Some([
-        Content {
-            summary: format!("Test running: {} [{}]", e.title, e.id),
-            description: description.clone(),
-            start: run.start,
-            end: run.end,
-        },
-        Content {
-            summary: format!("Result due: {} [{}]", e.title, e.id),
-            description,
-            start: run.result_date,
-            end: run.result_date,
-        },
-    ])
+    Some(event_pair(
+        &e.title,
+        &e.id,
+        description,
+        run.start,
+        run.end,
+        run.result_date,
+    ))
 }
 
 /// The events of a test that left the calendar, as kept.
@@ -167,20 +187,7 @@ fn kept_contents(plan: &Plan, k: &KeptEvents) -> [Content; 2] {
         "Experiment: {} ({})\nRan from {} to {}; result due {}.\n{why}\nPortfolio: {}",
         k.title, k.id, k.start, k.end, k.result_date, plan.portfolio
     );
-    [
-        Content {
-            summary: format!("Test running: {} [{}]", k.title, k.id),
-            description: description.clone(),
-            start: k.start,
-            end: k.end,
-        },
-        Content {
-            summary: format!("Result due: {} [{}]", k.title, k.id),
-            description,
-            start: k.result_date,
-            end: k.result_date,
-        },
-    ]
+    event_pair(&k.title, &k.id, description, k.start, k.end, k.result_date)
 }
 
 /// The events of a finished or cancelled test at the dates it really ran,
@@ -198,20 +205,14 @@ fn closed_contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
         "Experiment: {} ({})\nRan from {} to {}.\n{why}\nPortfolio: {}",
         e.title, e.id, ran.start, ran.end, plan.portfolio
     );
-    Some([
-        Content {
-            summary: format!("Test running: {} [{}]", e.title, e.id),
-            description: description.clone(),
-            start: ran.start,
-            end: ran.end,
-        },
-        Content {
-            summary: format!("Result due: {} [{}]", e.title, e.id),
-            description,
-            start: result_date,
-            end: result_date,
-        },
-    ])
+    Some(event_pair(
+        &e.title,
+        &e.id,
+        description,
+        ran.start,
+        ran.end,
+        result_date,
+    ))
 }
 
 /// The SEQUENCE of an experiment's events in `plan` (0 unless a re-plan's
@@ -230,18 +231,19 @@ fn sequence_of(plan: &Plan, id: &str) -> u32 {
 /// Every event of the plan's calendar, in plan order, then the kept ones.
 fn specs(plan: &Plan) -> Vec<Spec> {
     let mut out = Vec::new();
-    for e in &plan.experiments {
-        let Some(cs) = contents(plan, e) else {
-            continue;
-        };
-        let sequence = sequence_of(plan, &e.id);
-        for (content, kind) in cs.into_iter().zip([EventKind::Run, EventKind::Result]) {
+    let mut push = |id: &str, events: [Content; 2], status: EventStatus, sequence: u32| {
+        for (content, kind) in events.into_iter().zip([EventKind::Run, EventKind::Result]) {
             out.push(Spec {
-                uid: uid(&plan.id, &e.id, kind),
+                uid: uid(&plan.id, id, kind),
                 content,
-                status: EventStatus::Tentative,
+                status,
                 sequence,
             });
+        }
+    };
+    for e in &plan.experiments {
+        if let Some(cs) = contents(plan, e) {
+            push(&e.id, cs, EventStatus::Tentative, sequence_of(plan, &e.id));
         }
     }
     // Finished and cancelled tests at their real dates, unless a re-plan's
@@ -253,38 +255,22 @@ fn specs(plan: &Plan) -> Vec<Spec> {
             .any(|k| k.id == id)
     };
     for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
-        let Some(cs) = closed_contents(plan, e) else {
-            continue;
-        };
-        for (content, kind) in cs.into_iter().zip([EventKind::Run, EventKind::Result]) {
-            out.push(Spec {
-                uid: uid(&plan.id, &e.id, kind),
-                content,
-                status: if e.status == Status::Cancelled {
-                    EventStatus::Cancelled
-                } else {
-                    EventStatus::Confirmed
-                },
-                sequence: sequence_of(plan, &e.id),
-            });
+        if let Some(cs) = closed_contents(plan, e) {
+            let status = if e.status == Status::Cancelled {
+                EventStatus::Cancelled
+            } else {
+                EventStatus::Confirmed
+            };
+            push(&e.id, cs, status, sequence_of(plan, &e.id));
         }
     }
     for k in plan.calendar.iter().flat_map(|c| &c.kept) {
-        for (content, kind) in kept_contents(plan, k)
-            .into_iter()
-            .zip([EventKind::Run, EventKind::Result])
-        {
-            out.push(Spec {
-                uid: uid(&plan.id, &k.id, kind),
-                content,
-                status: if k.cancelled {
-                    EventStatus::Cancelled
-                } else {
-                    EventStatus::Confirmed
-                },
-                sequence: k.sequence,
-            });
-        }
+        let status = if k.cancelled {
+            EventStatus::Cancelled
+        } else {
+            EventStatus::Confirmed
+        };
+        push(&k.id, kept_contents(plan, k), status, k.sequence);
     }
     out
 }
