@@ -184,6 +184,9 @@ mod tests {
             reason: None,
             ran: None,
             result_range: None,
+            statistics: None,
+            looks: None,
+            detectable: None,
         }
     }
 

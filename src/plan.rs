@@ -137,6 +137,115 @@ pub struct PlannedExperiment {
     /// Scheduled tests on a pool with an uncertain forecast: when the
     /// result may come, over simulated traffic; `None` otherwise.
     pub result_range: Option<ResultRange>,
+    /// The statistics behind its size (see [`TestStatistics`]); `None`
+    /// only in plans written before they were recorded.
+    pub statistics: Option<TestStatistics>,
+    /// Tests with interim looks that hold a run: each look's date and the
+    /// earliest, expected and latest result dates; `None` otherwise.
+    pub looks: Option<LookDates>,
+    /// Unscheduled tests only: what the traffic left by the window's end
+    /// could detect at its maximum share; `None` otherwise, and when no
+    /// day is left.
+    pub detectable: Option<Detectable>,
+}
+
+/// The statistics behind a test's size, from its first primary metric,
+/// as every format shows them.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TestStatistics {
+    /// The primary metric's name (`primary` for the short form).
+    pub metric: String,
+    /// `rate` or `mean`.
+    pub kind: String,
+    /// The control's rate or mean.
+    pub baseline: f64,
+    /// A mean's standard deviation per unit; `None` for a rate.
+    pub sd: Option<f64>,
+    /// The MDE as a relative change (0.04 = 4%); `None` for an absolute
+    /// MDE of a zero baseline.
+    pub mde: Option<f64>,
+    /// The MDE in the metric's own units.
+    pub mde_abs: f64,
+    /// The primary's alpha (its share of the test's alpha when several
+    /// primaries split it), before the multi-arm correction.
+    pub alpha: f64,
+    /// The planned power.
+    pub power: f64,
+    /// `one` or `two`.
+    pub sides: crate::sizing::Sides,
+    /// Control plus treatments.
+    pub arms: u32,
+    /// Treatment units per control unit.
+    pub ratio: f64,
+    /// Planned looks; 1 for a single read at the end.
+    pub looks: u32,
+    /// The boundary of a test with looks; `None` for one look.
+    pub boundary: Option<crate::sizing::sequential::Boundary>,
+    /// The metric whose need sizes the test.
+    pub driver: String,
+    /// Each secondary metric with the effect it can detect at the test's
+    /// sample, in file order.
+    pub secondary: Vec<SecondaryEffect>,
+}
+
+/// A secondary metric and the effect the test's sample can detect on it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SecondaryEffect {
+    /// The metric's name.
+    pub name: String,
+    /// Detectable relative change; `None` for a zero baseline.
+    pub mde: Option<f64>,
+    /// Detectable change in the metric's units; `None` when the sample is
+    /// too small for any at the planned power.
+    pub mde_abs: Option<f64>,
+}
+
+/// The dates of a test read at planned interim looks.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LookDates {
+    /// Every look in order, the last at the run's end.
+    pub dates: Vec<LookDate>,
+    /// The earliest possible result: the first look's date.
+    pub earliest: NaiveDate,
+    /// The result date expected under the planned effect: the day after
+    /// the expected sample is collected.
+    pub expected: NaiveDate,
+    /// The latest result date: the run's `result_date`.
+    pub latest: NaiveDate,
+}
+
+/// One planned look.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LookDate {
+    /// 1 to the number of looks.
+    pub look: u32,
+    /// The information fraction it reads at (k / K).
+    pub information: f64,
+    /// The day its data is in and it can be read: the day after the run
+    /// has collected that fraction of its maximum sample.
+    pub date: NaiveDate,
+    /// Under the planned effect, the probability that the test stops for
+    /// efficacy at this look.
+    pub stop_probability: f64,
+}
+
+/// What an unscheduled test could detect with the traffic left.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Detectable {
+    /// The first day it could run.
+    pub from: NaiveDate,
+    /// The last day of data: its deadline or the window's end.
+    pub to: NaiveDate,
+    /// The share it assumes: its largest share level.
+    pub share: Share,
+    /// Units over all arms the forecast gives it from `from` to `to`.
+    pub units: f64,
+    /// The detectable relative effect; `None` for a zero baseline, or too
+    /// few units for any.
+    pub mde: Option<f64>,
+    /// The detectable effect in the metric's units; `None` when too few
+    /// units for any at the planned power.
+    pub mde_abs: Option<f64>,
 }
 
 /// When a scheduled test's result may come, over simulated traffic paths
@@ -206,6 +315,12 @@ struct ExperimentJson {
     ran: Option<Ran>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     result_range: Option<ResultRange>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    statistics: Option<TestStatistics>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    looks: Option<LookDates>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    detectable: Option<Detectable>,
 }
 
 impl From<PlannedExperiment> for ExperimentJson {
@@ -228,6 +343,9 @@ impl From<PlannedExperiment> for ExperimentJson {
             reason: e.reason,
             ran: e.ran,
             result_range: e.result_range,
+            statistics: e.statistics,
+            looks: e.looks,
+            detectable: e.detectable,
         }
     }
 }
@@ -300,6 +418,9 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
             reason: j.reason,
             ran: j.ran,
             result_range: j.result_range,
+            statistics: j.statistics,
+            looks: j.looks,
+            detectable: j.detectable,
         })
     }
 }

@@ -146,7 +146,7 @@ impl fmt::Display for Method {
 }
 
 /// One- or two-sided test.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Sides {
     /// One-sided: the alternative lies in the effect's direction.

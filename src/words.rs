@@ -56,6 +56,19 @@ pub fn trimmed(x: f64, decimals: usize) -> String {
     }
 }
 
+/// A number to `digits` significant digits, without trailing zeros and
+/// never in exponent form: `significant(0.012345, 3)` is `0.0123`,
+/// `significant(14.8, 3)` is `14.8`, `significant(1234.5, 3)` is `1235`
+/// (whole numbers keep every digit).
+pub fn significant(x: f64, digits: usize) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return trimmed(x, 0);
+    }
+    let magnitude = x.abs().log10().floor() as i64;
+    let decimals = (digits as i64 - 1 - magnitude).clamp(0, 12) as usize;
+    trimmed(x, decimals)
+}
+
 /// A noun that agrees with a count, after just's `Count`: `Count("test", 1)`
 /// shows `test`, `Count("test", 3)` shows `tests`. For a word whose plural
 /// is not a plain `s`, use [`agree`].
@@ -84,6 +97,15 @@ pub fn agree<'a>(one: &'a str, many: &'a str, n: usize) -> &'a str {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn significant_digits_without_exponents() {
+        assert_eq!(significant(0.012345, 3), "0.0123");
+        assert_eq!(significant(14.8, 3), "14.8");
+        assert_eq!(significant(1234.5, 3), "1235");
+        assert_eq!(significant(-0.094, 2), "-0.094");
+        assert_eq!(significant(0.0, 3), "0");
+    }
 
     #[test]
     fn groups_digits_in_threes() {

@@ -207,7 +207,7 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
         Err(d) => return fail(d),
     };
     if let Some(ix) = &index {
-        let unknown = unknown_keys(ix, body, file_name, raw::allowed_keys);
+        let unknown = unknown_keys(ix, body, file_name, raw::allowed_keys, raw::trade_word_hint);
         if !unknown.is_empty() {
             return fail(unknown);
         }
@@ -243,12 +243,15 @@ pub(crate) fn index_of(
 }
 
 /// Pass 1: keys no raw struct accepts, all of them. `allowed_keys` maps a
-/// path shape (`pools[].adjustments[]`) to the keys its struct accepts.
+/// path shape (`pools[].adjustments[]`) to the keys its struct accepts;
+/// `trade_words` gives the hint for a shape's unknown key that is a common
+/// word of the trade for one of the file's keys.
 pub(crate) fn unknown_keys(
     ix: &PositionIndex,
     text: &str,
     file: &str,
     allowed_keys: fn(&str) -> Option<&'static [&'static str]>,
+    trade_words: fn(&str, &str) -> Option<&'static str>,
 ) -> Vec<Diagnostic> {
     let mut out = Vec::new();
     for (path, keys) in ix.mappings() {
@@ -280,12 +283,14 @@ pub(crate) fn unknown_keys(
             } else {
                 format!("in `{path}`")
             };
-            let hint = match diagnostic::suggestion(key, allowed) {
-                Some(s) => format!(
+            let trade = trade_words(&position::shape(path), key);
+            let hint = match (trade, diagnostic::suggestion(key, allowed)) {
+                (Some(t), _) => format!("{t}; allowed keys: {}", diagnostic::list(allowed)),
+                (None, Some(s)) => format!(
                     "did you mean `{s}`? allowed keys: {}",
                     diagnostic::list(allowed)
                 ),
-                None => format!("allowed keys: {}", diagnostic::list(allowed)),
+                (None, None) => format!("allowed keys: {}", diagnostic::list(allowed)),
             };
             out.push(
                 Diagnostic::new(file, full, format!("unknown key `{key}` {place}"))

@@ -287,9 +287,84 @@ pub fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
     })
 }
 
+/// The trade's common words for what a sluice key holds, at the mapping
+/// shape where sluice has the key: an unknown key found here gets a hint
+/// naming sluice's key instead of the closest spelling.
+const TRADE_WORDS: &[(&[&str], &[&str], &str)] = &[
+    (
+        &["experiments[]"],
+        &["traffic_split", "traffic_allocation", "allocation", "traffic", "exposure"],
+        "sluice chooses each test's share of its pool; `max_share` caps it (e.g. `max_share: 0.5`)",
+    ),
+    (
+        &["experiments[]"],
+        &["mutually_exclusive", "exclusive_with", "exclusion_group", "conflicts_with"],
+        "tests that must never run at the same time are listed in `not_with` (e.g. `not_with: [other-test]`)",
+    ),
+    (
+        &["experiments[]"],
+        &[
+            "sample_size_per_variant",
+            "sample_size_per_arm",
+            "users_per_variant",
+            "sample_per_variant",
+        ],
+        "sluice sizes the test from the sizing keys: `baseline`, `mde` or `mde_abs`, `alpha`, `power`, `arms` (and `sd` for a mean)",
+    ),
+    (
+        &["experiments[]", "defaults"],
+        &["variants", "variations", "num_variants", "groups"],
+        "the number of arms, control included, is `arms` (e.g. `arms: 3` for control and two treatments)",
+    ),
+    (
+        &["experiments[]", "defaults"],
+        &["confidence", "confidence_level", "significance", "significance_level"],
+        "the type I error is `alpha` (a confidence of 95% is `alpha: 0.05`)",
+    ),
+    (
+        &["experiments[]", "experiments[].metrics[]"],
+        &["minimum_detectable_effect", "lift", "uplift"],
+        "the smallest effect worth finding is `mde` (relative, 0.05 = 5%) or `mde_abs` (in the metric's units)",
+    ),
+    (
+        &["experiments[]", "experiments[].metrics[]"],
+        &["conversion_rate", "baseline_rate", "control_rate"],
+        "the control's rate or mean is `baseline`",
+    ),
+];
+
+/// The hint for an unknown `key` at `shape` that is one of the trade's
+/// common words for a sluice key, if it is one.
+pub fn trade_word_hint(shape: &str, key: &str) -> Option<&'static str> {
+    let key = key.to_ascii_lowercase().replace('-', "_");
+    TRADE_WORDS
+        .iter()
+        .find(|(shapes, words, _)| shapes.contains(&shape) && words.contains(&key.as_str()))
+        .map(|(_, _, hint)| *hint)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_trades_words_point_at_sluices_keys() {
+        let hint = |shape, key| trade_word_hint(shape, key).unwrap_or("");
+        assert!(hint("experiments[]", "traffic_split").contains("`max_share`"));
+        assert!(hint("experiments[]", "Mutually-Exclusive").contains("`not_with`"));
+        assert!(hint("experiments[]", "sample_size_per_variant").contains("`mde`"));
+        assert!(hint("defaults", "variants").contains("`arms`"));
+        // Only where sluice has the key, and never for a key it accepts.
+        assert_eq!(trade_word_hint("pools[]", "variants"), None);
+        for (shapes, words, _) in TRADE_WORDS {
+            for shape in *shapes {
+                let allowed = allowed_keys(shape).unwrap();
+                for w in *words {
+                    assert!(!allowed.contains(w), "{w} is a key of {shape}");
+                }
+            }
+        }
+    }
 
     #[test]
     fn field_lists_come_from_the_structs() {

@@ -21,6 +21,7 @@ pub mod json;
 pub mod markdown;
 mod markup;
 mod moved;
+pub mod numbers;
 pub mod text;
 
 use crate::plan::Plan;

@@ -141,9 +141,7 @@ pub(super) fn running_end(
 /// The effect the design can detect with `units` over all arms at the
 /// planned power (the sizing inverse); `None` when too few for any.
 fn detectable(portfolio: &Portfolio, experiment: usize, units: f64) -> Option<f64> {
-    let d = &portfolio.experiments[experiment].design;
-    let per_control = units / (1.0 + f64::from(d.arms - 1) * d.ratio);
-    sizing::minimum_detectable_effect(d, per_control).ok()
+    crate::schedule::statistics::detectable_effect(&portfolio.experiments[experiment], units)
 }
 
 /// "it can detect a relative effect of 8.7% (planned MDE: 8.0%)", or that

@@ -151,7 +151,7 @@ pub fn load_progress_str(
         Err(d) => return fail(d),
     };
     if let Some(ix) = &index {
-        let unknown = unknown_keys(ix, body, file_name, allowed_keys);
+        let unknown = unknown_keys(ix, body, file_name, allowed_keys, |_, _| None);
         if !unknown.is_empty() {
             return fail(unknown);
         }

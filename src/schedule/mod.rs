@@ -17,6 +17,7 @@ mod options;
 mod reasons;
 mod search;
 mod state;
+pub mod statistics;
 #[cfg(any(test, feature = "bench"))]
 pub mod synthetic;
 #[cfg(test)]
@@ -331,6 +332,9 @@ fn assemble(
                 reason: None,
                 ran: None,
                 result_range: None,
+                statistics: None,
+                looks: None,
+                detectable: None,
             };
             match run {
                 Some((start, end, share)) => {
@@ -367,6 +371,10 @@ fn assemble(
         })
         .collect();
     crate::forecast::uncertainty::fill_ranges(p, &mut experiments);
+    let first_start: Vec<NaiveDate> = (0..p.experiments.len())
+        .map(|e| w.date(inst.lo_start[e].max(0)))
+        .collect();
+    statistics::fill(p, &mut experiments, &first_start);
     let pools = p
         .pools
         .iter()

@@ -41,7 +41,7 @@ use std::fmt;
 pub const MAX_LOOKS: u32 = 10;
 
 /// The boundary family of a group-sequential design.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, serde::Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Boundary {
     /// O'Brien & Fleming (1979): `c_k = C sqrt(K / k)`.

@@ -124,6 +124,13 @@ fn for_terminal(plan: &Plan) -> Plan {
         e.owner = clean(&e.owner);
         e.pool = clean(&e.pool);
         e.reason = e.reason.as_deref().map(clean);
+        if let Some(s) = &mut e.statistics {
+            s.metric = clean(&s.metric);
+            s.driver = clean(&s.driver);
+            for m in &mut s.secondary {
+                m.name = clean(&m.name);
+            }
+        }
     }
     for pool in &mut p.pools {
         pool.id = clean(&pool.id);
@@ -162,6 +169,39 @@ fn for_terminal(plan: &Plan) -> Plan {
         }
     }
     p
+}
+
+/// The numbers behind each test with a run, one block a test: its
+/// design, its look dates and its secondary metrics, wrapped to the width.
+fn numbers(plan: &Plan, width: usize, colour: bool, out: &mut String) {
+    let blocks: Vec<(&str, Vec<String>)> = plan
+        .experiments
+        .iter()
+        .filter(|e| e.run.is_some())
+        .map(|e| (e.id.as_str(), super::numbers::sentences(e)))
+        .filter(|(_, s)| !s.is_empty())
+        .collect();
+    if blocks.is_empty() {
+        return;
+    }
+    let _ = write!(
+        out,
+        "{}",
+        heading("The numbers behind each test", width, colour)
+    );
+    for (id, sentences) in blocks {
+        let mut sentences = sentences.into_iter();
+        let first = sentences.next().unwrap_or_default();
+        let _ = write!(
+            out,
+            "{}",
+            wrap_hanging("- ", &format!("{id}: {first}"), width)
+        );
+        for s in sentences {
+            let _ = write!(out, "{}", wrap(&s, width, "  "));
+        }
+    }
+    let _ = writeln!(out);
 }
 
 impl Renderer for Text {
@@ -211,6 +251,7 @@ impl Renderer for Text {
         let _ = writeln!(out);
         let _ = writeln!(out, "{}", table::experiments(plan, width, colour));
         let _ = writeln!(out);
+        numbers(plan, width, colour, &mut out);
         timeline::draw(plan, width, colour, &mut out);
         let _ = writeln!(out);
         let title = "Pool use per week (peak day: share in use for split pools, tests running for overlap pools)";
@@ -226,6 +267,13 @@ impl Renderer for Text {
                 let reason = e.reason.as_deref().unwrap_or("no reason given");
                 let line = format!("{} ({}, {}): {reason}", e.id, e.title, e.pool);
                 let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
+                if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
+                    let _ = write!(
+                        out,
+                        "{}",
+                        wrap(&super::numbers::detectable(d, s), width, "  ")
+                    );
+                }
             }
         }
         let _ = writeln!(out);
