@@ -84,6 +84,12 @@ pub struct ExperimentCheck {
     pub solo_end: Option<NaiveDate>,
     /// Why it cannot fit even alone.
     pub reason: Option<String>,
+    /// The statistics behind its size, as a plan records them.
+    pub statistics: crate::plan::TestStatistics,
+    /// A test that cannot fit even alone: what its pool's traffic from
+    /// its earliest start to its deadline (or the window's end) could
+    /// detect at `share`; `None` otherwise, and when no day is left.
+    pub detectable: Option<crate::plan::Detectable>,
 }
 
 /// One pool's supply against demand over the window.
@@ -229,6 +235,10 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
         None => (None, None),
     };
     let pool = &p.pools[e.pool];
+    let first = match &start {
+        Earliest::From(first, _) => Some(*first),
+        Earliest::Blocked(_) => None,
+    };
     let (solo, reason) = match start {
         Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
         Earliest::Blocked(pre) => (
@@ -258,6 +268,10 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
         solo_start: solo.map(|s| s.0),
         solo_end: solo.map(|s| s.1),
         reason,
+        statistics: crate::schedule::statistics::statistics(e),
+        detectable: first
+            .filter(|_| solo.is_none())
+            .and_then(|first| crate::schedule::statistics::detectable(p, i, first, share)),
     }
 }
 

@@ -113,6 +113,22 @@ pub fn text(r: &CheckReport) -> String {
         if let Some(why) = &e.reason {
             out.push_str(&format!("  `{}`: {why}\n", e.id));
         }
+        if let Some(d) = &e.detectable {
+            let line = crate::render::numbers::detectable(d, &e.statistics);
+            out.push_str(&format!("    {line}\n"));
+        }
+    }
+    let secondary: Vec<String> = r
+        .experiments
+        .iter()
+        .filter_map(|e| {
+            let line = crate::render::numbers::secondaries(&e.statistics)?;
+            Some(format!("  `{}`: {line}\n", e.id))
+        })
+        .collect();
+    if !secondary.is_empty() {
+        out.push_str("\nSecondary metrics (not sized):\n");
+        out.extend(secondary);
     }
     out.push('\n');
     let mut t = table();

@@ -215,13 +215,24 @@ pub fn solver_sentence(plan: &Plan) -> String {
     }
 }
 
-/// The cautions every output carries, as one paragraph.
-pub const CAUTION: &str = "This calendar is an estimate. The sample sizes assume independent \
-randomisation units and a fixed horizon: each result is read once, at its planned end, not \
-checked daily. The dates assume the traffic forecast holds, and real traffic always differs \
-from a forecast, so leave a margin and re-plan when traffic moves. Tests that touch pricing, \
-health or vulnerable users go through your organisation's own review, whatever this plan \
-says fits.";
+/// The cautions every output carries, one sentence group each: HTML lists
+/// them, the other formats print [`caution`]'s paragraph.
+pub const CAUTIONS: [&str; 4] = [
+    "This calendar is an estimate. The sample sizes assume independent randomisation units: \
+     each unit is counted once and does not affect the others.",
+    "A test planned with one look is read once, at its planned end: reading it earlier, or \
+     checking it daily and stopping when it first looks significant, inflates false positives; \
+     only a test planned with interim looks may stop early, and only at those looks.",
+    "The dates assume the traffic forecast holds, and real traffic always differs from a \
+     forecast, so leave a margin and re-plan when traffic moves.",
+    "Tests that touch pricing, health or vulnerable users go through your organisation's own \
+     review, whatever this plan says fits.",
+];
+
+/// The cautions as one paragraph.
+pub fn caution() -> String {
+    CAUTIONS.join(" ")
+}
 
 /// Lays `t` out to fit `width` columns (comfy-table's dynamic arrangement),
 /// or at its natural width when there is no width to fit.

@@ -1,7 +1,9 @@
 //! CSV: one row per experiment in plan order, with a header row. Dates are
 //! ISO 8601 (`YYYY-MM-DD`); shares are fractions in (0, 1]; cells that do
 //! not apply (an unscheduled test's dates) are empty. Quoting is left to the
-//! `csv` crate.
+//! `csv` crate. The numbers behind each test (its design, look dates and,
+//! when it does not fit, its detectable effect) follow the plan's columns,
+//! under [`super::numbers::CSV_HEADER`].
 
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, Run};
@@ -30,7 +32,8 @@ pub const HEADER: [&str; 14] = [
 impl Renderer for Csv {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut w = csv::Writer::from_writer(Vec::new());
-        w.write_record(HEADER).map_err(RenderError::Csv)?;
+        w.write_record(HEADER.iter().chain(&super::numbers::CSV_HEADER))
+            .map_err(RenderError::Csv)?;
         for e in &plan.experiments {
             let opt = |f: &dyn Fn(&Run) -> String| e.run.as_ref().map(f).unwrap_or_default();
             // A finished or cancelled test keeps the days it ran (re-plans).
@@ -60,7 +63,9 @@ impl Renderer for Csv {
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),
             ];
-            w.write_record(&row).map_err(RenderError::Csv)?;
+            let numbers = super::numbers::csv_cells(e);
+            w.write_record(row.iter().chain(&numbers))
+                .map_err(RenderError::Csv)?;
         }
         w.into_inner()
             .map_err(|e| RenderError::Csv(csv::Error::from(e.into_error())))
@@ -77,7 +82,12 @@ mod tests {
         let plan = fixture::plan();
         let bytes = Csv.render(&plan, &RenderOptions::default()).unwrap();
         let mut r = csv::Reader::from_reader(bytes.as_slice());
-        assert_eq!(r.headers().unwrap(), HEADER.as_slice());
+        let header: Vec<&str> = HEADER
+            .iter()
+            .chain(&crate::render::numbers::CSV_HEADER)
+            .copied()
+            .collect();
+        assert_eq!(r.headers().unwrap(), header.as_slice());
         let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
         assert_eq!(rows.len(), plan.experiments.len());
         for (row, e) in rows.iter().zip(&plan.experiments) {

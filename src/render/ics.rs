@@ -32,20 +32,24 @@ pub struct Ics;
 /// PRODID of every calendar sluice writes (RFC 5545 §3.7.3).
 pub const PRODID: &str = "-//sluice//experiment plan//EN";
 
-/// The two kinds of event per scheduled experiment.
+/// The kinds of event per scheduled experiment: its run and result, and
+/// one for each interim look of a test with looks.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum EventKind {
     /// The span the test runs, first to last day.
     Run,
     /// The day its result is due.
     Result,
+    /// The day its interim look `k` (from 1) can be read.
+    Look(u32),
 }
 
 impl EventKind {
-    fn tag(self) -> &'static str {
+    fn tag(self) -> String {
         match self {
-            EventKind::Run => "run",
-            EventKind::Result => "result",
+            EventKind::Run => "run".into(),
+            EventKind::Result => "result".into(),
+            EventKind::Look(k) => format!("look-{k}"),
         }
     }
 }
@@ -87,6 +91,7 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
          Result due: {}\n\
          Units needed: {}\n\
          Units expected: {}\n\
+         {}\
          Portfolio: {}\n\
          Planned by sluice; dates are estimates from a traffic forecast.",
         e.title,
@@ -101,6 +106,7 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         run.result_date,
         thousands(e.units_needed),
         units(run.units_expected),
+        numbers_lines(e),
         plan.portfolio,
     );
     if let Some(note) = cut_short_note(plan) {
@@ -108,6 +114,55 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         text.push_str(&note.replace('`', ""));
     }
     text
+}
+
+/// The numbers behind the test (its design, its looks), a line each with
+/// its line end; backticks dropped.
+fn numbers_lines(e: &PlannedExperiment) -> String {
+    super::numbers::sentences(e)
+        .iter()
+        .map(|line| format!("{}\n", line.replace('`', "")))
+        .collect()
+}
+
+/// The events of a scheduled test's interim looks (every look but the
+/// last, which is its result): one all-day event each on the look's date.
+fn look_contents(e: &PlannedExperiment) -> Vec<(u32, Content)> {
+    let (Some(l), true) = (&e.looks, e.status.in_calendar()) else {
+        return Vec::new();
+    };
+    let n = l.dates.len();
+    l.dates
+        .iter()
+        .take(n.saturating_sub(1))
+        .map(|d| {
+            (
+                d.look,
+                Content {
+                    summary: format!(
+                        "Interim look {} of {n}, may stop early: {} [{}]",
+                        d.look, e.title, e.id
+                    ),
+                    description: format!(
+                        "Experiment: {} ({})\nInterim look {} of {n}, at {} of the maximum sample. \
+                         The test stops early only if it crosses its planned boundary here \
+                         (chance under the planned effect: {}); otherwise it runs on.\n\
+                         Earliest result {}, expected {}, latest {}.",
+                        e.title,
+                        e.id,
+                        d.look,
+                        crate::words::percent(d.information),
+                        crate::words::percent(d.stop_probability),
+                        l.earliest,
+                        l.expected,
+                        l.latest
+                    ),
+                    start: d.date,
+                    end: d.date,
+                },
+            )
+        })
+        .collect()
 }
 
 /// What a calendar shows of one event; two plans that give an event the
@@ -271,6 +326,17 @@ fn specs(plan: &Plan) -> Vec<Spec> {
             EventStatus::Confirmed
         };
         push(&k.id, kept_contents(plan, k), status, k.sequence);
+    }
+    // Interim looks last, so the run and result events keep their places.
+    for e in &plan.experiments {
+        for (k, content) in look_contents(e) {
+            out.push(Spec {
+                uid: uid(&plan.id, &e.id, EventKind::Look(k)),
+                content,
+                status: EventStatus::Tentative,
+                sequence: sequence_of(plan, &e.id),
+            });
+        }
     }
     out
 }

@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{counts, long_date, pool_label, CAUTION};
+use super::common::{caution, counts, long_date, pool_label};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -120,6 +120,35 @@ fn changes(plan: &Plan) -> String {
     s
 }
 
+/// The numbers behind each test with a run: a table of its design and
+/// results, then its look dates and secondary metrics where it has them.
+fn numbers(plan: &Plan, w: &mut String) {
+    use super::markup::{Column, MarkupTable};
+    use super::numbers::{look_dates, secondaries, table_rows, TABLE_HEADER};
+    let rows = table_rows(&plan.experiments);
+    if rows.is_empty() {
+        return;
+    }
+    let _ = writeln!(w, "### The numbers behind each test\n");
+    let mut columns = vec![Column::Code];
+    columns.extend([Column::Text; TABLE_HEADER.len() - 1]);
+    w.push_str(&Markdown.table(&TABLE_HEADER, &columns, &rows));
+    let _ = writeln!(w);
+    for e in plan.experiments.iter().filter(|e| e.run.is_some()) {
+        let looks = e.looks.as_ref().map(look_dates);
+        let more = e.statistics.as_ref().and_then(secondaries);
+        for line in looks.iter().chain(&more) {
+            let _ = writeln!(
+                w,
+                "- `{}`: {}",
+                e.id.replace('`', "'"),
+                escape_keeping_code(line)
+            );
+        }
+    }
+    let _ = writeln!(w);
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut md = changes(plan);
@@ -164,6 +193,7 @@ impl Renderer for Markdown {
                 );
             }
             let _ = writeln!(w);
+            numbers(plan, w);
         }
         if not_fit > 0 {
             let _ = writeln!(w, "### Tests that do not fit\n");
@@ -180,6 +210,13 @@ impl Renderer for Markdown {
                     escape(pool_label(plan, &e.pool)),
                     escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
+                if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
+                    let _ = writeln!(
+                        w,
+                        "  {}",
+                        escape_keeping_code(&super::numbers::detectable(d, s))
+                    );
+                }
             }
             let _ = writeln!(w);
         }
@@ -207,7 +244,7 @@ impl Renderer for Markdown {
             }
             let _ = writeln!(w);
         }
-        let _ = writeln!(w, "### Assumptions\n\n{CAUTION}");
+        let _ = writeln!(w, "### Assumptions\n\n{}", caution());
         Ok(md.into_bytes())
     }
 }

@@ -17,7 +17,7 @@ use crate::forecast::Series;
 use crate::plan::{
     Detectable, LookDate, LookDates, PlannedExperiment, Run, SecondaryEffect, TestStatistics,
 };
-use crate::portfolio::{Experiment, Portfolio, Role};
+use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Role};
 use crate::share::Share;
 use crate::sizing::{self, Design, Effect, Metric};
 use chrono::{Duration, NaiveDate};
@@ -152,8 +152,9 @@ pub fn look_dates(p: &Portfolio, ex: &Experiment, run: &Run) -> Option<LookDates
 }
 
 /// What experiment `e` could detect with its pool's traffic from `from`
-/// to its deadline (or the window's end) at `share`; `None` when no day
-/// is left.
+/// to its deadline (or the window's end) at `share`, in the longest
+/// stretch of those days that no `no_running` blackout of its pool
+/// interrupts; `None` when no day is left.
 pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Option<Detectable> {
     let ex = &p.experiments[e];
     let to = ex.deadline.unwrap_or(p.window.end).min(p.window.end);
@@ -161,7 +162,37 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
         return None;
     }
     let series = Series::new(&p.pools[ex.pool], from, to);
-    let units = share.fraction() * series.total(0, series.len().saturating_sub(1));
+    // A run is one contiguous span and never crosses a no-running
+    // blackout: the longest stretch between them, by units.
+    let blocked = |i: usize| {
+        let date = from + Duration::days(i as i64);
+        p.blackouts
+            .iter()
+            .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(date, ex.pool))
+    };
+    let mut best: Option<(usize, usize, f64)> = None;
+    let mut i = 0;
+    while i < series.len() {
+        if blocked(i) {
+            i += 1;
+            continue;
+        }
+        let mut j = i;
+        while j + 1 < series.len() && !blocked(j + 1) {
+            j += 1;
+        }
+        let total = series.total(i, j);
+        if best.is_none_or(|(_, _, t)| total > t) {
+            best = Some((i, j, total));
+        }
+        i = j + 1;
+    }
+    let (first, last, total) = best?;
+    let (from, to) = (
+        from + Duration::days(first as i64),
+        from + Duration::days(last as i64),
+    );
+    let units = share.fraction() * total;
     let effect = (units > 0.0)
         .then(|| detectable_effect(ex, units))
         .flatten();
@@ -330,5 +361,15 @@ mod tests {
             detectable(&p, 0, d("2027-01-18"), Share::from_fraction(0.5)),
             None
         );
+    }
+
+    #[test]
+    fn detectable_takes_the_longest_stretch_between_no_running_blackouts() {
+        let p = portfolio(
+            "blackouts:\n  - {from: 2027-01-11, to: 2027-01-17, kind: no_running, note: sale}\n",
+        );
+        let got = detectable(&p, 0, d("2027-01-04"), Share::WHOLE).unwrap();
+        assert_eq!((got.from, got.to), (d("2027-01-18"), d("2027-04-04")));
+        assert!((got.units - 77.0 * 10_000.0).abs() < 1e-6);
     }
 }

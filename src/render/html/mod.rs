@@ -23,7 +23,7 @@ mod svg;
 mod table;
 
 use super::common::{
-    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTION,
+    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTIONS,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -111,6 +111,9 @@ td .small { color: #4a525c; font-size: 13px; }
 td.muted { color: #4a525c; }
 .swatch { display: inline-block; width: 10px; height: 10px; margin-right: 6px; vertical-align: baseline; }
 ul.reasons li { margin-bottom: 6px; }
+ul.legend { display: flex; flex-wrap: wrap; gap: 6px 18px; list-style: none; padding: 0; margin: 6px 0 0; color: #4a525c; font-size: 13px; }
+ul.legend .icon { display: inline-block; vertical-align: middle; }
+p.note { color: #4a525c; font-size: 13px; }
 code { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; font-size: 0.92em; }
 footer { margin-top: 36px; color: #4a525c; font-size: 13px; border-top: 1px solid #d5d9de; padding-top: 8px; }
 @media print {
@@ -153,6 +156,73 @@ fn pool_fill(index: usize) -> &'static str {
     POOL_FILLS[index % POOL_FILLS.len()]
 }
 
+/// The summary tile of the results: the first result due, and how many
+/// tests may stop early at an interim look.
+fn results_tile(plan: &Plan, s: &mut String) {
+    let with_looks = plan
+        .experiments
+        .iter()
+        .filter(|e| e.run.is_some() && e.looks.is_some())
+        .count();
+    let _ = writeln!(
+        s,
+        r#"<li><span class="big">{with_looks}</span><span class="small">{} with interim looks that may stop early (dates below)</span></li>"#,
+        crate::words::Count("test", with_looks)
+    );
+}
+
+/// The numbers behind each test with a run: a table of its design and
+/// results, then the look dates and secondary metrics where it has them.
+fn numbers(plan: &Plan, s: &mut String) {
+    use crate::render::markup::{Column, MarkupTable};
+    use crate::render::numbers::{look_dates, secondaries, table_rows, TABLE_HEADER};
+    let rows = table_rows(&plan.experiments);
+    if rows.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        s,
+        r#"<section><h2 id="numbers">The numbers behind each test</h2>"#
+    );
+    let mut columns = vec![Column::Code];
+    columns.extend([Column::Text; TABLE_HEADER.len() - 1]);
+    s.push_str(&Html.table(&TABLE_HEADER, &columns, &rows));
+    let notes: Vec<String> = plan
+        .experiments
+        .iter()
+        .filter(|e| e.run.is_some())
+        .flat_map(|e| {
+            let looks = e.looks.as_ref().map(look_dates);
+            let more = e.statistics.as_ref().and_then(secondaries);
+            looks
+                .into_iter()
+                .chain(more)
+                .map(|line| {
+                    format!(
+                        "<li><code>{}</code>: {}</li>",
+                        esc(&e.id),
+                        esc_with_code(&line)
+                    )
+                })
+                .collect::<Vec<_>>()
+        })
+        .collect();
+    if !notes.is_empty() {
+        let _ = writeln!(s, r#"<ul class="reasons">{}</ul>"#, notes.join(""));
+    }
+    let _ = writeln!(s, "</section>");
+}
+
+/// The closing note on how the plan was made: the solver's words, kept
+/// out of the summary.
+fn how_made(plan: &Plan, s: &mut String) {
+    let _ = writeln!(
+        s,
+        r#"<section><h2 id="how-made">How this plan was made</h2><p class="note">{} The plan value counts each test's priority, less a part for a late result; the bound is the most any plan could reach, and the simple priority-order plan is there for comparison.</p></section>"#,
+        esc_with_code(&solver_sentence(plan))
+    );
+}
+
 impl Renderer for Html {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut s = String::new();
@@ -186,7 +256,6 @@ impl Renderer for Html {
         }
 
         // Summary.
-        let sv = &plan.solver;
         let _ = writeln!(
             s,
             r#"<section><h2 id="summary">Summary</h2><ul class="summary">"#
@@ -212,18 +281,7 @@ impl Renderer for Html {
             if not_fit > 0 { "warn" } else { "" },
             crate::words::agree("test does", "tests do", not_fit)
         );
-        let _ = writeln!(
-            s,
-            r#"<li><span class="big">{:.1} of {:.1}</span><span class="small">plan value against the best possible bound (gap {:.1}%)</span></li>"#,
-            sv.value,
-            sv.bound,
-            sv.gap * 100.0
-        );
-        let _ = writeln!(
-            s,
-            r#"<li><span class="big">{:.1}</span><span class="small">value of the simple priority-order plan, for comparison</span></li>"#,
-            plan.greedy_value
-        );
+        results_tile(plan, &mut s);
         let _ = writeln!(s, "</ul>");
         let next = plan
             .experiments
@@ -246,8 +304,10 @@ impl Renderer for Html {
         svg::calendar(plan, &mut s);
         let _ = writeln!(
             s,
-            "<figcaption>Each bar is one test's run; its label gives the share of the pool and the day the result is due (the diamond). Shaded: blackouts (dense: nothing runs; light: no new starts). Dashed red line: today. Hover a bar for its numbers.</figcaption></figure></section>"
+            "<figcaption>One row per test: its id, its title under it, and its run. Hover a bar for its numbers.</figcaption></figure>"
         );
+        svg::legend(&mut s);
+        let _ = writeln!(s, "</section>");
 
         // Pool use.
         let _ = writeln!(
@@ -276,6 +336,7 @@ impl Renderer for Html {
         let _ = writeln!(s, r#"<section><h2 id="tests">Tests</h2>"#);
         table::tests(plan, &mut s);
         let _ = writeln!(s, "</section>");
+        numbers(plan, &mut s);
 
         // Unscheduled.
         let _ = writeln!(s, r#"<section><h2 id="not-fit">Tests that do not fit</h2>"#);
@@ -295,6 +356,15 @@ impl Renderer for Html {
                     esc(pool_label(plan, &e.pool)),
                     esc_with_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
+                if let (Some(d), Some(st)) = (&e.detectable, &e.statistics) {
+                    // Inside the item: drop its closing tag and reopen it.
+                    s.truncate(s.len() - "</li>\n".len());
+                    let _ = writeln!(
+                        s,
+                        "<br/><span class=\"small\">{}</span></li>",
+                        esc_with_code(&crate::render::numbers::detectable(d, st))
+                    );
+                }
             }
             let _ = writeln!(s, "</ul>");
         }
@@ -303,20 +373,18 @@ impl Renderer for Html {
         // Assumptions.
         let _ = writeln!(
             s,
-            r#"<section><h2 id="assumptions">Assumptions and cautions</h2><ul>
-<li>The sample sizes assume independent randomisation units: each unit is counted once and does not affect the others.</li>
-<li>Each result is read once, at the planned end (a fixed horizon). Reading results early and stopping on a good day inflates false positives.</li>
-<li>Every date is an estimate from the traffic forecast. Real traffic differs from any forecast; leave a margin and re-plan when it moves.</li>
-<li>Tests that touch pricing, health or vulnerable users go through your organisation's own review, whatever this plan says fits.</li>
-</ul><p>{}</p></section>"#,
-            esc(CAUTION)
+            r#"<section><h2 id="assumptions">Assumptions and cautions</h2><ul>{}</ul></section>"#,
+            CAUTIONS
+                .iter()
+                .map(|c| format!("<li>{}</li>", esc(c)))
+                .collect::<String>()
         );
+        how_made(plan, &mut s);
 
         let _ = writeln!(
             s,
-            "<footer>Made by sluice from the portfolio <code>{}</code>. {}</footer>",
-            esc(&plan.portfolio),
-            esc_with_code(&solver_sentence(plan))
+            "<footer>Made by sluice from the portfolio <code>{}</code>.</footer>",
+            esc(&plan.portfolio)
         );
         let _ = writeln!(s, "</main></body></html>");
         Ok(s.into_bytes())

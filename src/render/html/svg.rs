@@ -18,8 +18,11 @@ const SVG_W: f64 = 1040.0;
 const PLOT_X0: f64 = 210.0;
 /// Right edge of the plotting area.
 const PLOT_X1: f64 = 1024.0;
-/// Height of one experiment row in the calendar chart.
-const ROW_H: f64 = 26.0;
+/// Height of one experiment row in the calendar chart: its id over its
+/// title beside a bar.
+const ROW_H: f64 = 34.0;
+/// Height of a run's bar.
+const BAR_H: f64 = 18.0;
 /// Height of the pool heading row in the calendar chart.
 const GROUP_H: f64 = 28.0;
 /// Height of the axis band above the calendar chart.
@@ -134,6 +137,86 @@ fn bar_tooltip(plan: &Plan, e: &PlannedExperiment, r: &Run) -> String {
     )
 }
 
+/// A calendar row's label: the test's id, its title under it in grey.
+fn row_label(e: &PlannedExperiment, y: f64, s: &mut String) {
+    let _ = writeln!(
+        s,
+        r##"<text x="12" y="{:.1}" font-size="12" fill="#1c2127">{}</text><text x="12" y="{:.1}" font-size="10" fill="#4a525c">{}</text>"##,
+        y + 14.0,
+        esc(&clip(&e.id, 27)),
+        y + 27.0,
+        esc(&clip(&e.title, 33))
+    );
+}
+
+/// A white tick across the bar on the last day of data of each interim
+/// look (the day before the look's date).
+fn look_marks(scale: &Scale, e: &PlannedExperiment, top: f64, h: f64, s: &mut String) {
+    let Some(l) = &e.looks else {
+        return;
+    };
+    let n = l.dates.len();
+    for d in l.dates.iter().take(n.saturating_sub(1)) {
+        let x = scale.x(d.date).clamp(PLOT_X0, PLOT_X1);
+        let _ = writeln!(
+            s,
+            r##"<line class="look" x1="{x:.1}" y1="{:.1}" x2="{x:.1}" y2="{:.1}" stroke="#ffffff" stroke-width="3"><title>{}</title></line>"##,
+            top - 2.0,
+            top + h + 2.0,
+            esc(&format!(
+                "interim look {} of {n} on {}: may stop early",
+                d.look, d.date
+            ))
+        );
+    }
+}
+
+/// The calendar's legend: what each mark means, as a list under it.
+pub(super) fn legend(s: &mut String) {
+    let icon = |body: &str| {
+        format!(
+            r#"<svg class="icon" viewBox="0 0 28 16" width="28" height="16" aria-hidden="true">{body}</svg>"#
+        )
+    };
+    let items = [
+        (
+            icon(r##"<rect x="1" y="3" width="26" height="10" rx="2" fill="#1f5f8b"/>"##),
+            "a test's run, labelled with its share of the pool and its result date",
+        ),
+        (
+            icon(
+                r##"<path d="M9,8 l5,-5 l5,5 l-5,5 z" fill="#ffffff" stroke="#1f5f8b" stroke-width="2"/>"##,
+            ),
+            "the day its result is due",
+        ),
+        (
+            icon(
+                r##"<rect x="1" y="3" width="26" height="10" rx="2" fill="#1f5f8b"/><line x1="14" y1="1" x2="14" y2="15" stroke="#ffffff" stroke-width="3"/>"##,
+            ),
+            "an interim look: the test may stop early there",
+        ),
+        (
+            icon(r##"<rect x="1" y="1" width="26" height="14" fill="url(#shade-stop)"/>"##),
+            "blackout: nothing runs",
+        ),
+        (
+            icon(r##"<rect x="1" y="1" width="26" height="14" fill="url(#shade-nostart)"/>"##),
+            "blackout: no new starts",
+        ),
+        (
+            icon(
+                r##"<line x1="14" y1="0" x2="14" y2="16" stroke="#b3261e" stroke-width="2" stroke-dasharray="5 3"/>"##,
+            ),
+            "today",
+        ),
+    ];
+    let _ = writeln!(s, r#"<ul class="legend">"#);
+    for (icon, words) in items {
+        let _ = writeln!(s, "<li>{icon} {words}</li>");
+    }
+    let _ = writeln!(s, "</ul>");
+}
+
 /// The calendar chart, into `s`.
 pub(super) fn calendar(plan: &Plan, s: &mut String) {
     let scale = Scale::new(plan);
@@ -215,12 +298,7 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
         let mut y = group_top + GROUP_H;
         for e in exps {
             let mid = y + ROW_H / 2.0;
-            let _ = writeln!(
-                s,
-                r##"<text x="12" y="{:.1}" font-size="12" fill="#1c2127">{}</text>"##,
-                mid + 4.0,
-                esc(&clip(&e.id, 27))
-            );
+            row_label(e, y, s);
             match &e.run {
                 Some(r) => bar(plan, &scale, e, r, y, pool_fill(gi), s),
                 None => {
@@ -301,8 +379,8 @@ fn bar(
 ) {
     let (x0, x1) = scale.span(r.start, r.end);
     let w = (x1 - x0).max(2.0);
-    let top = y + 4.0;
-    let h = ROW_H - 8.0;
+    let top = y + (ROW_H - BAR_H) / 2.0;
+    let h = BAR_H;
     // A test already running says so: its start is a fact, not a plan.
     let label = format!(
         "{}{} · result {}",
@@ -334,6 +412,7 @@ fn bar(
             top + h / 2.0
         );
     }
+    look_marks(scale, e, top, h, s);
     let baseline = top + h / 2.0 + 4.0;
     if text_w + 12.0 <= w {
         let _ = writeln!(
