@@ -517,6 +517,21 @@ pub struct CalendarHistory {
     /// not: their events as last published, kept in the calendar, and
     /// cancelled unless the test finished as planned.
     pub kept: Vec<KeptEvents>,
+    /// The SEQUENCE of each interim look's event in this plan's calendar,
+    /// in plan order; looks not listed are at 0.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub looks: Vec<LookSequence>,
+}
+
+/// One interim look's event version.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct LookSequence {
+    /// The experiment's id.
+    pub id: String,
+    /// The look, from 1.
+    pub look: u32,
+    /// The SEQUENCE of its event.
+    pub sequence: u32,
 }
 
 /// One experiment's event version.
@@ -550,6 +565,10 @@ pub struct KeptEvents {
     pub result_date: NaiveDate,
     /// The SEQUENCE the cancelled events carry.
     pub sequence: u32,
+    /// The dates of its interim looks as last published (their events
+    /// are kept with the run's); empty without looks.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub looks: Vec<NaiveDate>,
 }
 
 /// Re-plans only: where a running test stands and when it will finish.

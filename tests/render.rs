@@ -260,7 +260,31 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
         .iter()
         .filter(|e| e.status == Status::Scheduled)
         .collect();
-    assert_eq!(events.len(), 2 * scheduled.len());
+    // Each test's run and result in plan order, then each interim look
+    // (every look but the last) of the tests with looks.
+    let looks: Vec<(&str, usize, NaiveDate)> = scheduled
+        .iter()
+        .flat_map(|e| {
+            let l = e.looks.as_ref();
+            let dates = l.map_or(&[][..], |l| &l.dates[..l.dates.len() - 1]);
+            let n = l.map_or(0, |l| l.dates.len());
+            dates.iter().map(move |d| (e.id.as_str(), n, d.date))
+        })
+        .collect();
+    assert!(!looks.is_empty(), "the fixture has a test with looks");
+    assert_eq!(events.len(), 2 * scheduled.len() + looks.len());
+    for (k, (id, n, date)) in looks.iter().enumerate() {
+        let ev = &events[2 * scheduled.len() + k];
+        let summary = unescape_text(ev.get("SUMMARY"));
+        assert!(
+            summary.starts_with(&format!("Interim look {} of {n}, may stop early: ", k + 1)),
+            "{summary}"
+        );
+        assert!(summary.ends_with(&format!("[{id}]")), "{summary}");
+        assert_eq!(ev.date("DTSTART"), *date);
+        assert_eq!(ev.date("DTEND"), *date + Duration::days(1));
+        assert!(ev.get("UID").starts_with(&format!("look-{}.{id}.", k + 1)));
+    }
     let mut uids = std::collections::BTreeSet::new();
     for (i, e) in scheduled.iter().enumerate() {
         let run = &events[2 * i];
@@ -328,7 +352,8 @@ fn ics_lines_are_crlf_and_folded_to_75_octets() {
         format!("Test running: {} [hero-copy]", plan.experiments[0].title)
     );
     let (_, events) = parse_ics(&bytes);
-    assert_eq!(events.len(), 10);
+    // Five runs, five results, two interim looks.
+    assert_eq!(events.len(), 12);
 }
 
 #[test]
@@ -455,8 +480,10 @@ fn html_is_well_formed_xml_with_the_expected_parts() {
         .iter()
         .filter(|e| e.status == Status::Scheduled)
         .count();
-    // One calendar chart plus one chart per pool.
-    assert_eq!(count("svg"), 1 + plan.pools.len());
+    // One calendar chart plus one chart per pool, and the legend's six
+    // small icons.
+    assert_eq!(with_class("icon"), 6, "the legend's marks");
+    assert_eq!(count("svg"), 1 + plan.pools.len() + 6);
     assert_eq!(
         with_class("bar"),
         scheduled,
@@ -473,9 +500,11 @@ fn html_is_well_formed_xml_with_the_expected_parts() {
                     .any(|(k, v)| k == "fill" && v.starts_with("url(#shade"))
         })
         .count();
-    assert_eq!(shades, 2 * 2 + 2);
-    // Table: a row per experiment.
-    assert_eq!(count("tr"), 1 + plan.experiments.len());
+    // The legend shows both kinds of shade once more.
+    assert_eq!(shades, 2 * 2 + 2 + 2);
+    // Tables: a row per experiment, and a row of numbers per test with a run.
+    let with_run = plan.experiments.iter().filter(|e| e.run.is_some()).count();
+    assert_eq!(count("tr"), 1 + plan.experiments.len() + 1 + with_run);
     // Each unscheduled test is listed with its reason.
     for e in plan.experiments.iter().filter(|e| e.reason.is_some()) {
         assert!(html.contains(&format!("<code>{}</code>", e.id)), "{}", e.id);

@@ -122,12 +122,12 @@ pub fn text(r: &CheckReport) -> String {
         .experiments
         .iter()
         .filter_map(|e| {
-            let line = crate::render::numbers::secondaries(&e.statistics)?;
+            let line = crate::render::numbers::secondary_list(&e.statistics)?;
             Some(format!("  `{}`: {line}\n", e.id))
         })
         .collect();
     if !secondary.is_empty() {
-        out.push_str("\nSecondary metrics (not sized):\n");
+        out.push_str("\nSecondary metrics are not sized; each test's sample can detect on them:\n");
         out.extend(secondary);
     }
     out.push('\n');

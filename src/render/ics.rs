@@ -21,7 +21,7 @@
 use super::common::{cut_short_note, pool_label, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{
-    CalendarHistory, EventSequence, KeptEvents, Plan, PlannedExperiment, Run, Status,
+    CalendarHistory, EventSequence, KeptEvents, LookSequence, Plan, PlannedExperiment, Run, Status,
 };
 use chrono::{Duration, NaiveDate, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
@@ -283,6 +283,77 @@ fn sequence_of(plan: &Plan, id: &str) -> u32 {
     })
 }
 
+/// The SEQUENCE of an interim look's event in `plan` (0 unless a re-plan's
+/// calendar history raised it).
+fn look_sequence_of(plan: &Plan, id: &str, look: u32) -> u32 {
+    plan.calendar.as_ref().map_or(0, |c| {
+        c.looks
+            .iter()
+            .find(|s| s.id == id && s.look == look)
+            .map_or(0, |s| s.sequence)
+    })
+}
+
+/// The interim looks' part of [`calendar_history`]: each look event of
+/// `plan` keeps its sequence when its content is unchanged and gains one
+/// when it changed, came back or is kept (cancelled or confirmed).
+fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
+    let before = |id: &str, look: u32| {
+        previous
+            .experiments
+            .iter()
+            .find(|o| o.id == id)
+            .and_then(|o| look_contents(o).into_iter().find(|(k, _)| *k == look))
+            .map(|(_, c)| c)
+    };
+    let was_kept = |id: &str, look: u32| {
+        previous
+            .calendar
+            .iter()
+            .flat_map(|c| &c.kept)
+            .any(|k| k.id == id && k.looks.len() >= look as usize)
+    };
+    let mut push = |id: &str, look: u32, sequence: u32| {
+        if sequence > 0 {
+            history.looks.push(LookSequence {
+                id: id.to_string(),
+                look,
+                sequence,
+            });
+        }
+    };
+    for e in &plan.experiments {
+        for (look, now) in look_contents(e) {
+            let base = look_sequence_of(previous, &e.id, look);
+            let sequence = match before(&e.id, look) {
+                Some(b) if b == now => base,
+                Some(_) => base + 1,
+                None if was_kept(&e.id, look) => base + 1,
+                None => base,
+            };
+            push(&e.id, look, sequence);
+        }
+    }
+    let kept: Vec<(String, usize, bool)> = history
+        .kept
+        .iter()
+        .map(|k| {
+            let new = !previous
+                .calendar
+                .iter()
+                .flat_map(|c| &c.kept)
+                .any(|p| p.id == k.id);
+            (k.id.clone(), k.looks.len(), new)
+        })
+        .collect();
+    for (id, n, new) in kept {
+        for look in 1..=n as u32 {
+            let base = look_sequence_of(previous, &id, look);
+            push(&id, look, if new { base + 1 } else { base });
+        }
+    }
+}
+
 /// Every event of the plan's calendar, in plan order, then the kept ones.
 fn specs(plan: &Plan) -> Vec<Spec> {
     let mut out = Vec::new();
@@ -327,14 +398,51 @@ fn specs(plan: &Plan) -> Vec<Spec> {
         };
         push(&k.id, kept_contents(plan, k), status, k.sequence);
     }
-    // Interim looks last, so the run and result events keep their places.
+    // Interim looks last, so the run and result events keep their places;
+    // a kept test's looks go as its run and result do.
+    for k in plan.calendar.iter().flat_map(|c| &c.kept) {
+        let status = if k.cancelled {
+            EventStatus::Cancelled
+        } else {
+            EventStatus::Confirmed
+        };
+        let n = k.looks.len() + 1;
+        for (i, &date) in k.looks.iter().enumerate() {
+            out.push(Spec {
+                uid: uid(&plan.id, &k.id, EventKind::Look(i as u32 + 1)),
+                content: Content {
+                    summary: format!(
+                        "Interim look {} of {n}, may stop early: {} [{}]",
+                        i + 1,
+                        k.title,
+                        k.id
+                    ),
+                    description: format!(
+                        "Experiment: {} ({})\n{}\nPortfolio: {}",
+                        k.title,
+                        k.id,
+                        if k.cancelled {
+                            "This look no longer holds."
+                        } else {
+                            "The test has finished."
+                        },
+                        plan.portfolio
+                    ),
+                    start: date,
+                    end: date,
+                },
+                status,
+                sequence: look_sequence_of(plan, &k.id, i as u32 + 1),
+            });
+        }
+    }
     for e in &plan.experiments {
         for (k, content) in look_contents(e) {
             out.push(Spec {
                 uid: uid(&plan.id, &e.id, EventKind::Look(k)),
                 content,
                 status: EventStatus::Tentative,
-                sequence: sequence_of(plan, &e.id),
+                sequence: look_sequence_of(plan, &e.id, k),
             });
         }
     }
@@ -417,6 +525,10 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             end: run.end,
             result_date: run.result_date,
             sequence: sequence_of(previous, &o.id) + 1,
+            looks: o.looks.as_ref().map_or_else(Vec::new, |l| {
+                let n = l.dates.len().saturating_sub(1);
+                l.dates.iter().take(n).map(|d| d.date).collect()
+            }),
         });
     }
     for k in prev_kept {
@@ -424,6 +536,7 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             history.kept.push(k.clone());
         }
     }
+    look_history(previous, plan, &mut history);
     history
 }
 

@@ -141,9 +141,9 @@ pub fn detectable(d: &Detectable, s: &TestStatistics) -> String {
     }
 }
 
-/// Its secondary metrics' detectable effects in one sentence; `None`
-/// without secondary metrics.
-pub fn secondaries(s: &TestStatistics) -> Option<String> {
+/// Its secondary metrics with the effect each can detect, as a list
+/// (`` `returns` +12% (0.0072)``); `None` without secondary metrics.
+pub fn secondary_list(s: &TestStatistics) -> Option<String> {
     if s.secondary.is_empty() {
         return None;
     }
@@ -159,10 +159,14 @@ pub fn secondaries(s: &TestStatistics) -> Option<String> {
             format!("`{}` {eff}", m.name)
         })
         .collect();
-    Some(format!(
-        "Secondary metrics, read once at the end, can detect: {}.",
-        parts.join(", ")
-    ))
+    Some(parts.join(", "))
+}
+
+/// Its secondary metrics' detectable effects in one sentence; `None`
+/// without secondary metrics.
+pub fn secondaries(s: &TestStatistics) -> Option<String> {
+    secondary_list(s)
+        .map(|list| format!("Secondary metrics, read once at the end, can detect: {list}."))
 }
 
 /// Every sentence about `e`'s numbers, in order: its design, its looks,

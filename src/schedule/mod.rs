@@ -372,7 +372,7 @@ fn assemble(
         .collect();
     crate::forecast::uncertainty::fill_ranges(p, &mut experiments);
     let first_start: Vec<NaiveDate> = (0..p.experiments.len())
-        .map(|e| w.date(inst.lo_start[e].max(0)))
+        .map(|e| w.date(inst.lo_start[e].clamp(0, inst.days as i64)))
         .collect();
     statistics::fill(p, &mut experiments, &first_start);
     let pools = p

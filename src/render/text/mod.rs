@@ -277,9 +277,11 @@ impl Renderer for Text {
             }
         }
         let _ = writeln!(out);
-        let _ = write!(out, "{}", wrap(&solver_sentence(plan), width, ""));
-        let _ = writeln!(out);
         let _ = write!(out, "{}", wrap(&caution(), width, ""));
+        // Solver words close the report, apart from the plan's facts.
+        let _ = writeln!(out);
+        let how = format!("How this plan was made: {}", solver_sentence(plan));
+        let _ = write!(out, "{}", wrap(&how, width, ""));
         Ok(out.into_bytes())
     }
 }
