@@ -91,7 +91,15 @@ pub fn text(r: &CheckReport) -> String {
             e.arms.to_string(),
             per_arm,
             units(e.total_units),
-            e.share.to_string(),
+            if e.eligible < 1.0 {
+                format!(
+                    "{} ({} eligible)",
+                    e.share,
+                    crate::words::percent(e.eligible)
+                )
+            } else {
+                e.share.to_string()
+            },
             days,
             if let (true, Some(start)) = (e.fits_alone, e.solo_start) {
                 format!("fits alone from {start}")

@@ -100,7 +100,8 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split && share > 1.0 + 1e-9) || count > p.max_concurrent;
+        let over = (p.sharing == Sharing::Split && share > p.capacity().fraction() + 1e-9)
+            || count > p.max_concurrent;
         if over {
             let o = out.get_or_insert(Overload {
                 from: date,
@@ -229,7 +230,10 @@ pub fn replan(
             !split
                 || others[today_i.min(to)..to]
                     .iter()
-                    .all(|h| h + i64::from(s.millionths()) <= i64::from(Share::MILLION))
+                    .all(|h| {
+                        h + i64::from(s.millionths())
+                            <= i64::from(portfolio.pools[pool].capacity().millionths())
+                    })
         };
         let found = portfolio
             .share_levels

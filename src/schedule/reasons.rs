@@ -40,7 +40,7 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
     crate::forecast::run_end(
         &p.pools[ex.pool],
         start,
-        share.fraction(),
+        share.fraction() * p.entering_fraction(e, ex.pool),
         ex.need.total as f64,
         ex.min_days,
         ex.whole_weeks,
@@ -161,7 +161,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
             state.count_on(inst, ex.pool, d) >= cap
                 || (split
                     && state.share_on(inst, ex.pool, d) + super::state::micro(o.share)
-                        > super::state::WHOLE)
+                        > super::state::room(pool))
         });
         pool_blocked |= full;
     }
@@ -174,7 +174,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let full: Vec<usize> = (span_lo..=span_hi)
             .filter(|&d| {
                 state.count_on(inst, ex.pool, d) >= cap
-                    || (split && state.share_on(inst, ex.pool, d) + least > super::state::WHOLE)
+                    || (split && state.share_on(inst, ex.pool, d) + least > super::state::room(pool))
             })
             .collect();
         let (from_d, to_d) = match (full.first(), full.last()) {

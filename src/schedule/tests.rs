@@ -34,6 +34,7 @@ fn pool(id: &str, daily: f64, sharing: Sharing, cap: u32) -> Pool {
         },
         sharing,
         max_concurrent: cap,
+        holdout: 0.0,
     }
 }
 
@@ -45,6 +46,8 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         pool,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
         need: super::synthetic::two_arm_need(need),
+        sample_size_given: false,
+        eligible: 1.0,
         looks: None,
         metrics: Vec::new(),
         driver: String::new(),
