@@ -10,7 +10,7 @@ use crate::plan::{Plan, Run};
 pub struct Csv;
 
 /// The header row, in column order.
-pub const HEADER: [&str; 14] = [
+pub const HEADER: [&str; 16] = [
     "id",
     "title",
     "owner",
@@ -25,6 +25,8 @@ pub const HEADER: [&str; 14] = [
     "units_needed",
     "units_expected",
     "reason",
+    "eligible",
+    "sample_size_given",
 ];
 
 impl Renderer for Csv {
@@ -59,6 +61,8 @@ impl Renderer for Csv {
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),
+                e.eligible.to_string(),
+                e.sample_size_given.to_string(),
             ];
             w.write_record(&row).map_err(RenderError::Csv)?;
         }

@@ -94,7 +94,7 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         e.owner,
         pool_label(plan, &e.pool),
         e.pool,
-        run.share,
+        super::common::share_words(e, run.share),
         run.start,
         run.end,
         run.days,

@@ -204,6 +204,10 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
             Some(p) => format!("{label} · overlap · up to {} at once", p.max_concurrent),
             None => label.clone(),
         };
+        let heading = match pool.and_then(crate::render::common::holdout_words) {
+            Some(h) => format!("{heading} · {h}"),
+            None => heading,
+        };
         let _ = writeln!(
             s,
             r##"<rect x="0" y="{group_top:.1}" width="{SVG_W:.0}" height="{GROUP_H:.1}" fill="#f3f5f7"/><rect x="0" y="{group_top:.1}" width="5" height="{:.1}" fill="{}"/><text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text>"##,
