@@ -170,6 +170,30 @@ const FIXTURES: &[(&str, usize, &str, &str)] = &[
         "moves the rate from 0.8 to 1.2, outside (0, 1)",
     ),
     (
+        "sample-size-with-mde",
+        12,
+        "experiments[0].baseline",
+        "both `sample_size` and `baseline`, `mde` are given",
+    ),
+    (
+        "eligible-range",
+        11,
+        "experiments[0].eligible",
+        "`eligible` is 30; it must be in (0, 1]",
+    ),
+    (
+        "holdout-range",
+        8,
+        "pools[0].holdout",
+        "`holdout` is 1; it must be in [0, 1)",
+    ),
+    (
+        "holdout-no-room",
+        10,
+        "pools[0].holdout",
+        "a `holdout` of 0.8 leaves 20% of the pool, less than the smallest share level 25%",
+    ),
+    (
         "both-mde",
         13,
         "experiments[0].mde_abs",

@@ -7,6 +7,7 @@ mod calendar;
 mod check;
 mod commands;
 mod forecast;
+mod keys;
 mod outputs;
 mod plan;
 mod ranges;

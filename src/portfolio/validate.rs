@@ -867,6 +867,10 @@ fn pool_holdout(
     }
     let room = Share::from_fraction(1.0 - holdout);
     if let (Sharing::Split, Some(lowest)) = (sharing, levels.lowest()) {
+        let told = cx.errors.iter().any(|e| e.key == key);
+        if lowest > room && told {
+            return 0.0;
+        }
         if lowest > room {
             cx.err(
                 key,
@@ -2186,6 +2190,64 @@ mod metrics_tests {
         load_str(&file(experiment), "m.yaml")
             .unwrap_err()
             .to_string()
+    }
+
+    #[test]
+    fn a_given_sample_size_is_the_control_and_ratio_times_it_each_treatment() {
+        // 40,000 control units, two treatment arms at ratio 0.5: 20,000
+        // each, 80,000 in total.
+        let p = load("    sample_size: 40000\n    arms: 3\n    ratio: 0.5\n");
+        let e = &p.experiments[0];
+        assert!(e.sample_size_given);
+        assert_eq!(
+            (e.need.control, e.need.treatment, e.need.total),
+            (40_000, 20_000, 80_000)
+        );
+        assert!(e.metrics.is_empty());
+        // Ratio 1/3 of 30 units is 10, not 11: no unit from rounding noise.
+        let p = load("    sample_size: 30\n    ratio: 0.3333333333333333\n");
+        assert_eq!(p.experiments[0].need.treatment, 10);
+        let p = load("    baseline: 0.1\n    mde: 0.1\n    eligible: 0.3\n");
+        assert_eq!(p.experiments[0].eligible, 0.3);
+        assert!(!p.experiments[0].sample_size_given);
+    }
+
+    #[test]
+    fn a_given_sample_size_refuses_the_keys_it_replaces() {
+        let err = error("    sample_size: 40000\n    mde: 0.1\n");
+        assert!(
+            err.contains("both `sample_size` and `mde` are given"),
+            "{err}"
+        );
+        let err = error("    sample_size: 40000\n    power: 0.9\n    looks: 2\n");
+        assert!(
+            err.contains("both `sample_size` and `power`, `looks` are given"),
+            "{err}"
+        );
+        for bad in ["0", "12.5", "-3"] {
+            let err = error(&format!("    sample_size: {bad}\n"));
+            assert!(err.contains("`sample_size` is"), "{err}");
+        }
+        let err = error("    baseline: 0.1\n    mde: 0.1\n    eligible: 0\n");
+        assert!(err.contains("`eligible` is 0; it must be in (0, 1]"), "{err}");
+    }
+
+    #[test]
+    fn holdouts_come_from_the_pool_or_the_defaults() {
+        let text = "name: h\nwindow: {start: 2027-01-04, end: 2027-03-28}\n\
+                    defaults: {holdout: 0.1}\n\
+                    pools:\n  - {id: a, daily: 100, max_concurrent: 2}\n\
+                    \x20 - {id: b, daily: 100, max_concurrent: 2, holdout: 0.05}\n\
+                    \x20 - {id: c, daily: 100, max_concurrent: 2}\n";
+        let p = load_str(text, "h.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!((p.pools[0].holdout, p.pools[1].holdout), (0.1, 0.05));
+        assert_eq!(p.pools[1].capacity(), Share::from_fraction(0.95));
+        // A default that leaves no room is reported once, at `defaults`.
+        let text = text.replace("holdout: 0.1", "holdout: 0.95");
+        let err = load_str(&text, "h.yaml").unwrap_err().to_string();
+        assert!(err.contains("key: defaults.holdout"), "{err}");
+        assert!(err.contains("leaves 5% of the pool"), "{err}");
+        assert_eq!(err.matches("key: defaults.holdout").count(), 1, "{err}");
     }
 
     #[test]
