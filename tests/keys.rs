@@ -111,8 +111,14 @@ fn a_holdout_caps_a_split_pool_at_0_95() {
     assert_eq!(held["days"], 14);
     assert_eq!(short["days"], 7);
     let (a, b) = (
-        (held["start"].as_str().unwrap(), held["end"].as_str().unwrap()),
-        (short["start"].as_str().unwrap(), short["end"].as_str().unwrap()),
+        (
+            held["start"].as_str().unwrap(),
+            held["end"].as_str().unwrap(),
+        ),
+        (
+            short["start"].as_str().unwrap(),
+            short["end"].as_str().unwrap(),
+        ),
     );
     assert!(a.1 < b.0 || b.1 < a.0, "they must not overlap: {a:?} {b:?}");
     for day in club["days"].as_array().unwrap() {
@@ -218,16 +224,25 @@ fn the_new_facts_reach_every_format() {
         String::from_utf8(out.stdout).unwrap().replace("\r\n ", "")
     };
     let text = render("text");
-    assert!(text.contains("logged-in admits 30% of members's units"), "{text}");
+    assert!(
+        text.contains("logged-in admits 30% of members's units"),
+        "{text}"
+    );
     assert!(text.contains("up to 3 at once · 5% held out"), "{text}");
     let md = render("md");
     assert!(md.contains("100% (30% eligible)"), "{md}");
-    assert!(md.contains("Held out of every test: 5% of club; 20% of news."), "{md}");
+    assert!(
+        md.contains("Held out of every test: 5% of club; 20% of news."),
+        "{md}"
+    );
     let html = render("html");
     assert!(html.contains("5% held out"), "{html}");
     assert!(html.contains("100% (30% eligible)"), "{html}");
     let ics = render("ics");
-    assert!(ics.contains("Share of the pool: 100% (30% eligible)"), "{ics}");
+    assert!(
+        ics.contains("Share of the pool: 100% (30% eligible)"),
+        "{ics}"
+    );
     let csv = render("csv");
     let mut r = csv::Reader::from_reader(csv.as_bytes());
     let headers = r.headers().unwrap().clone();

@@ -41,11 +41,11 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
             .filter(move |a| a.from <= date && date <= a.to)
     };
     let value = covering()
-        .filter_map(|a| match a.change {
+        .rev()
+        .find_map(|a| match a.change {
             Change::Level(level) => Some(level),
             Change::Multiply(_) => None,
         })
-        .last()
         .unwrap_or(base);
     let value = covering()
         .filter_map(|a| match a.change {

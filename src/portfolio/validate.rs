@@ -852,7 +852,11 @@ fn pool_holdout(
 ) -> f64 {
     let holdout = given.unwrap_or(d.holdout);
     // A bad default is reported once, at `defaults.holdout`.
-    let key = if given.is_some() { key } else { "defaults.holdout" };
+    let key = if given.is_some() {
+        key
+    } else {
+        "defaults.holdout"
+    };
     if given.is_some()
         && !cx.number(
             key,
@@ -2229,7 +2233,10 @@ mod metrics_tests {
             assert!(err.contains("`sample_size` is"), "{err}");
         }
         let err = error("    baseline: 0.1\n    mde: 0.1\n    eligible: 0\n");
-        assert!(err.contains("`eligible` is 0; it must be in (0, 1]"), "{err}");
+        assert!(
+            err.contains("`eligible` is 0; it must be in (0, 1]"),
+            "{err}"
+        );
     }
 
     #[test]

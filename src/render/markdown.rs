@@ -178,11 +178,7 @@ impl Renderer for Markdown {
             })
             .collect();
         if !held.is_empty() {
-            let _ = writeln!(
-                w,
-                "Held out of every test: {}.\n",
-                held.join("; ")
-            );
+            let _ = writeln!(w, "Held out of every test: {}.\n", held.join("; "));
         }
         if not_fit > 0 {
             let _ = writeln!(w, "### Tests that do not fit\n");

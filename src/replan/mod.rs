@@ -228,12 +228,10 @@ pub fn replan(
         let room_for = |s: Share, end: NaiveDate| {
             let to = index(portfolio, end + Duration::days(1));
             !split
-                || others[today_i.min(to)..to]
-                    .iter()
-                    .all(|h| {
-                        h + i64::from(s.millionths())
-                            <= i64::from(portfolio.pools[pool].capacity().millionths())
-                    })
+                || others[today_i.min(to)..to].iter().all(|h| {
+                    h + i64::from(s.millionths())
+                        <= i64::from(portfolio.pools[pool].capacity().millionths())
+                })
         };
         let found = portfolio
             .share_levels

@@ -897,3 +897,30 @@ fn an_overlap_holdout_scales_every_tests_units() {
         Some((d("2027-01-04"), d("2027-01-13"), 1.0))
     );
 }
+
+#[test]
+fn the_reason_names_eligibility_and_the_holdout() {
+    // 10,000 units at 300 a day (30% of 1,000 eligible): 34 days, 35 in
+    // whole weeks, more than the window's 28.
+    let mut a = exp("a", 0, 10_000, 1.0);
+    a.eligible = 0.3;
+    let p = portfolio(vec![pool("home", 1000.0, Sharing::Overlap, 2)], vec![a]);
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        reason_of(&plan, "a"),
+        "needs 35 days at 100% of `home` (30% of its units eligible); the window has 28"
+    );
+    // A split pool with a 5% holdout caps the share at 50% (the levels are
+    // 50% and 100%): 10,000 at 500 a day is 20 days, 21 in whole weeks,
+    // past a deadline of 2027-01-17.
+    let mut b = exp("b", 0, 10_000, 1.0);
+    b.deadline = Some(d("2027-01-17"));
+    let mut shop = pool("shop", 1000.0, Sharing::Split, 2);
+    shop.holdout = 0.05;
+    let p = portfolio(vec![shop], vec![b]);
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        reason_of(&plan, "b"),
+        "deadline 2027-01-17 cannot be met: at its maximum share of 50% (5% held out) the earliest end is 2027-01-24"
+    );
+}
