@@ -54,8 +54,9 @@ fn plan() -> Value {
     run(&["plan", "--format", "json", "--no-timing"])
 }
 
-fn experiment<'v>(v: &'v Value, id: &str) -> &'v Value {
-    v["experiments"]
+/// The entry of `section` (`experiments` or `pools`) with this id.
+fn entry<'v>(v: &'v Value, section: &str, id: &str) -> &'v Value {
+    v[section]
         .as_array()
         .unwrap()
         .iter()
@@ -63,13 +64,12 @@ fn experiment<'v>(v: &'v Value, id: &str) -> &'v Value {
         .unwrap()
 }
 
+fn experiment<'v>(v: &'v Value, id: &str) -> &'v Value {
+    entry(v, "experiments", id)
+}
+
 fn pool<'v>(v: &'v Value, id: &str) -> &'v Value {
-    v["pools"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|p| p["id"] == id)
-        .unwrap()
+    entry(v, "pools", id)
 }
 
 #[test]
@@ -161,15 +161,7 @@ fn an_overlap_holdout_scales_units_and_adjustments_compose() {
 #[test]
 fn check_counts_eligibility_and_holdouts_in_solo_runs_and_supply() {
     let v = run(&["check", "--format", "json"]);
-    let exp = |id: &str| {
-        v["experiments"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|e| e["id"] == id)
-            .unwrap()
-            .clone()
-    };
+    let exp = |id: &str| experiment(&v, id);
     assert_eq!(exp("everyone")["days_from_window_start"], 7);
     assert_eq!(exp("everyone")["metric"], "given");
     assert_eq!(exp("logged-in")["days_from_window_start"], 14);
@@ -177,22 +169,13 @@ fn check_counts_eligibility_and_holdouts_in_solo_runs_and_supply() {
     // The largest share beside the 5% holdout is 50%: 7,000 / 500 = 14 days.
     assert_eq!(exp("held")["share"], 0.5);
     assert_eq!(exp("held")["days_from_window_start"], 14);
-    let pool = |id: &str| {
-        v["pools"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|p| p["id"] == id)
-            .unwrap()
-            .clone()
-    };
     // 84 days x 1,000 less 5%: 79,800 offered; 7,000 + 3,500 needed.
-    let club = pool("club");
+    let club = pool(&v, "club");
     assert!((club["offered_units"].as_f64().unwrap() - 79_800.0).abs() < 1e-6);
     assert_eq!(club["needed_units"], 10_500);
     assert_eq!(club["holdout"], 0.05);
     // 4,200 units at 30% eligible take up 4,200 / 0.3 = 14,000 of the pool.
-    assert_eq!(pool("members")["needed_units"], 14_000);
+    assert_eq!(pool(&v, "members")["needed_units"], 14_000);
     let text = String::from_utf8({
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("keys.yaml");

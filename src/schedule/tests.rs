@@ -563,26 +563,33 @@ proptest! {
         seed in 0u64..1_000_000,
     ) {
         let p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
-        let r = PlanRequest::default();
-        let a = plan(&p, &r);
-        if let Err(v) = verify(&p, &r, &a) {
-            panic!("verifier: {v:#?}");
-        }
-        prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
-        prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
-        prop_assert_ne!(a.solver.status, SolverStatus::Greedy);
-        // Same input, same plan.
-        let mut b = plan(&p, &r);
-        b.solver.seconds = a.solver.seconds;
-        prop_assert_eq!(&a, &b);
-        // A re-plan from a few weeks in keeps the running tests.
-        let rr = replan_request(&p, &a, (seed % 3) as i64 + 1);
-        let c = plan(&p, &rr);
-        if let Err(v) = verify(&p, &rr, &c) {
-            panic!("verifier on the re-plan: {v:#?}");
-        }
-        prop_assert_ne!(c.solver.status, SolverStatus::Greedy);
+        plans_and_replans_verified(&p, seed);
     }
+}
+
+/// Plans `p`, verifies the plan (value between greedy and the bound, not
+/// the fallback, the same plan twice) and a re-plan from a few weeks in
+/// that keeps the running tests; returns the first plan.
+fn plans_and_replans_verified(p: &Portfolio, seed: u64) -> Plan {
+    let r = PlanRequest::default();
+    let a = plan(p, &r);
+    if let Err(v) = verify(p, &r, &a) {
+        panic!("verifier: {v:#?}");
+    }
+    assert!(a.solver.value <= a.solver.bound + 1e-9);
+    assert!(a.solver.value >= a.greedy_value - 1e-9);
+    assert_ne!(a.solver.status, SolverStatus::Greedy);
+    // Same input, same plan.
+    let mut b = plan(p, &r);
+    b.solver.seconds = a.solver.seconds;
+    assert_eq!(&a, &b);
+    let rr = replan_request(p, &a, (seed % 3) as i64 + 1);
+    let c = plan(p, &rr);
+    if let Err(v) = verify(p, &rr, &c) {
+        panic!("verifier on the re-plan: {v:#?}");
+    }
+    assert_ne!(c.solver.status, SolverStatus::Greedy);
+    a
 }
 
 proptest! {
@@ -782,14 +789,7 @@ proptest! {
     ) {
         let mut p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
         synthetic::with_keys(&mut p, seed);
-        let r = PlanRequest::default();
-        let a = plan(&p, &r);
-        if let Err(v) = verify(&p, &r, &a) {
-            panic!("verifier: {v:#?}");
-        }
-        prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
-        prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
-        prop_assert_ne!(a.solver.status, SolverStatus::Greedy);
+        let a = plans_and_replans_verified(&p, seed);
         for (pool, pp) in p.pools.iter().zip(&a.pools) {
             if pool.sharing == Sharing::Split {
                 for day in &pp.days {
@@ -797,12 +797,6 @@ proptest! {
                 }
             }
         }
-        let rr = replan_request(&p, &a, (seed % 3) as i64 + 1);
-        let c = plan(&p, &rr);
-        if let Err(v) = verify(&p, &rr, &c) {
-            panic!("verifier on the re-plan: {v:#?}");
-        }
-        prop_assert_ne!(c.solver.status, SolverStatus::Greedy);
     }
 }
 
