@@ -408,6 +408,27 @@ mod tests {
     }
 
     #[test]
+    fn a_running_test_counts_only_its_eligible_units_and_an_overlap_holdout() {
+        // 30% eligible at 50% of 1,000 a day: 150 units a day. 3,000 left
+        // from 2027-02-01 take 20 days, in on 2027-02-20.
+        let mut p = flat(false, 1, false);
+        p.experiments[0].eligible = 0.3;
+        let r = run("2027-01-04", 0.5, need(&p) - 3000, "2027-02-01");
+        assert_eq!(
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
+            Some(d("2027-02-20"))
+        );
+        // On an overlap pool with a 25% holdout as well: 0.5 x 0.3 x 0.75
+        // x 1,000 = 112.5 a day, 3,000 in 26.7 days, in on 2027-02-27.
+        p.pools[0].sharing = crate::portfolio::Sharing::Overlap;
+        p.pools[0].holdout = 0.25;
+        assert_eq!(
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
+            Some(d("2027-02-27"))
+        );
+    }
+
+    #[test]
     fn running_end_projects_from_the_day_the_counts_were_read() {
         // Counts read on 2027-01-30 with 5 days left: in on 2027-02-03,
         // even though the re-plan is made on 2027-02-01.
