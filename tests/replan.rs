@@ -65,7 +65,7 @@ fn previous() -> &'static (PathBuf, Value) {
 /// A progress file at `today` from a plan, as demo/progress_from_plan.py
 /// writes it: tests that ended before today are finished, tests that
 /// started before today are running with 90% of the units their pool's
-/// forecast gave them so far.
+/// forecast gave them so far (at their share, eligibility and holdout).
 fn progress_from(plan: &Value, today: NaiveDate) -> String {
     let mut s = format!("as_of: {today}\nexperiments:\n");
     for e in plan["experiments"].as_array().unwrap() {
@@ -97,8 +97,16 @@ fn progress_from(plan: &Value, today: NaiveDate) -> String {
             .filter(|day| (start..today).contains(&date(&day["date"]).unwrap()))
             .map(|day| day["forecast"].as_f64().unwrap())
             .sum();
+        // Of the units under its share, what its targeting admits and what
+        // an overlap pool's holdout leaves.
+        let open = if pool["sharing"] == "overlap" {
+            1.0 - pool["holdout"].as_f64().unwrap()
+        } else {
+            1.0
+        };
+        let entering = e["eligible"].as_f64().unwrap() * open;
         let share = e["share"].as_f64().unwrap();
-        let units = (delivered * share * 0.9) as u64;
+        let units = (delivered * share * entering * 0.9) as u64;
         s += &format!(
             "  - id: {id}\n    state: running\n    started: {start}\n    share: {share}\n    units: {units}\n"
         );
