@@ -650,3 +650,29 @@ pub struct PlanDiff {
     /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A plan written before `eligible`, `sample_size_given` and
+    /// `holdout` existed reads as every unit admitted, sized here, and no
+    /// holdout.
+    #[test]
+    fn an_older_plan_reads_with_every_unit_eligible_and_no_holdout() {
+        let mut v: serde_json::Value =
+            serde_json::from_str(include_str!("../tests/fixtures/plan-small.json")).unwrap();
+        for e in v["experiments"].as_array_mut().unwrap() {
+            let e = e.as_object_mut().unwrap();
+            e.remove("eligible");
+            e.remove("sample_size_given");
+        }
+        for p in v["pools"].as_array_mut().unwrap() {
+            p.as_object_mut().unwrap().remove("holdout");
+        }
+        let plan: Plan = serde_json::from_value(v).unwrap();
+        assert!(plan.experiments.iter().all(|e| e.eligible == 1.0));
+        assert!(plan.experiments.iter().all(|e| !e.sample_size_given));
+        assert!(plan.pools.iter().all(|p| p.holdout == 0.0));
+    }
+}
