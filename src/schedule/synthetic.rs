@@ -280,3 +280,36 @@ pub fn with_keys(p: &mut Portfolio, seed: u64) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Over a few medium portfolios every key appears: holdouts within
+    /// each split pool's room, eligibility below 1, given sample sizes,
+    /// and days where a campaign and a dip cover the same day.
+    #[test]
+    fn with_keys_uses_every_key_and_keeps_room_for_the_smallest_share() {
+        let (mut holdouts, mut eligible, mut given, mut composed) = (0, 0, 0, 0);
+        for seed in 0..10 {
+            let mut p = portfolio(&Spec::medium(seed));
+            let before = p.clone();
+            with_keys(&mut p, seed);
+            assert_eq!(p.experiments.len(), before.experiments.len());
+            for pool in &p.pools {
+                assert!(pool.capacity() >= p.share_levels.lowest().unwrap());
+                holdouts += usize::from(pool.holdout > 0.0);
+                let a = &pool.forecast.adjustments;
+                composed +=
+                    usize::from(a.len() > 1 && a[1].from >= a[0].from && a[1].to <= a[0].to);
+            }
+            eligible += p.experiments.iter().filter(|e| e.eligible < 1.0).count();
+            given += p.experiments.iter().filter(|e| e.sample_size_given).count();
+            // Same seed, same portfolio.
+            let mut again = before.clone();
+            with_keys(&mut again, seed);
+            assert_eq!(again, p);
+        }
+        assert!(holdouts > 5 && eligible > 30 && given > 20 && composed > 3);
+    }
+}
