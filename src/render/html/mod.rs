@@ -269,9 +269,11 @@ impl Renderer for Html {
                 )
             };
             let caption = match crate::render::common::holdout_words(p) {
-                Some(h) if is_split(p) => format!(
-                    "{caption} {h}: the tests' shares add up to at most {}.",
-                    crate::words::percent(1.0 - p.holdout)
+                Some(_) if is_split(p) => format!(
+                    "{}: each day's bar is the sum of the shares of the tests running; the dashed line is the {} of the pool they may share ({} is held out of every test).",
+                    p.label,
+                    crate::words::percent(1.0 - p.holdout),
+                    crate::words::percent(p.holdout)
                 ),
                 Some(h) => format!(
                     "{caption} {h}: each test gets {} of the units under its share.",

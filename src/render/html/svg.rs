@@ -365,7 +365,7 @@ fn bar(
 }
 
 /// One pool's daily use against its capacity: the share in use for split
-/// pools (capacity 100%), the number of tests running for overlap pools
+/// pools (capacity 100% less the holdout), the number of tests running for overlap pools
 /// (capacity: how many may run at once).
 pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String) {
     let scale = Scale::new(plan);
@@ -377,8 +377,9 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
             f64::from(d.running)
         }
     };
+    // A split pool's room is what its holdout leaves.
     let capacity = if split {
-        1.0
+        1.0 - p.holdout
     } else {
         f64::from(p.max_concurrent.max(1))
     };
@@ -389,7 +390,10 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
     let y = |v: f64| bottom - (v / top_value) * (bottom - top);
     let id = format!("pool-{index}");
     let what = if split {
-        "share of the pool's units in use each day, against 100%".to_string()
+        format!(
+            "share of the pool's units in use each day, against {}",
+            percent(capacity)
+        )
     } else {
         format!(
             "tests running each day, against the limit of {} at once",
@@ -442,7 +446,7 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
         (
             capacity,
             if split {
-                "100%".to_string()
+                percent(capacity)
             } else {
                 format!("{} at once", p.max_concurrent)
             },
