@@ -226,6 +226,11 @@ fn the_new_facts_reach_every_format() {
         ics.contains("Share of the pool: 100% (30% eligible)"),
         "{ics}"
     );
+    // iCalendar escapes the comma of 4,200.
+    assert!(
+        ics.contains("Units needed: 4\\,200 (a given sample size)"),
+        "{ics}"
+    );
     let csv = render("csv");
     let mut r = csv::Reader::from_reader(csv.as_bytes());
     let headers = r.headers().unwrap().clone();

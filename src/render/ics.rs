@@ -99,7 +99,11 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         run.end,
         run.days,
         run.result_date,
-        thousands(e.units_needed),
+        if e.sample_size_given {
+            format!("{} (a given sample size)", thousands(e.units_needed))
+        } else {
+            thousands(e.units_needed)
+        },
         units(run.units_expected),
         plan.portfolio,
     );
