@@ -5,7 +5,9 @@ Usage: progress_from_plan.py PLAN.json TODAY [DELIVERED]
 
 Every test the plan started before TODAY is recorded: `finished` when its
 planned run ended before TODAY, else `running` with the units its pool's
-forecast gave it from its start to the day before TODAY, times DELIVERED
+forecast gave it from its start to the day before TODAY (its share, times
+the share of units its targeting admits, times what an overlap pool's
+holdout leaves), times DELIVERED
 (default 0.9: traffic ran 10% under the forecast). A stand-in for the counts
 an experimentation platform would report; the data is the demo's own.
 """
@@ -23,6 +25,12 @@ def main() -> int:
     delivered = float(sys.argv[3]) if len(sys.argv) > 3 else 0.9
     forecast = {
         p["id"]: {date.fromisoformat(d["date"]): d["forecast"] for d in p["days"]}
+        for p in plan["pools"]
+    }
+    # What enters a test of the units under its share: the overlap pools'
+    # holdouts thin every test; a split pool's holdout is a slice no test has.
+    open_to_tests = {
+        p["id"]: 1.0 - p.get("holdout", 0.0) if p["sharing"] == "overlap" else 1.0
         for p in plan["pools"]
     }
     lines = [
@@ -49,7 +57,8 @@ def main() -> int:
             continue
         days = forecast[e["pool"]]
         units = sum(v for d, v in days.items() if start <= d < today)
-        units = int(units * e["share"] * delivered)
+        entering = e.get("eligible", 1.0) * open_to_tests[e["pool"]]
+        units = int(units * e["share"] * entering * delivered)
         lines += [
             "    state: running",
             f"    started: {start}",

@@ -54,8 +54,10 @@ pub struct ExperimentCheck {
     pub title: String,
     /// The pool's id.
     pub pool: String,
-    /// `rate` or `mean`.
+    /// `rate` or `mean`; `given` when the portfolio gives its sample size.
     pub metric: String,
+    /// The fraction of its pool's units its targeting admits.
+    pub eligible: f64,
     /// The name of the metric whose need is the test's (`primary` for the
     /// short form; see `metrics` in docs/portfolio.md).
     pub driver: String,
@@ -68,7 +70,8 @@ pub struct ExperimentCheck {
     /// Units over all arms.
     pub total_units: u64,
     /// The share the durations assume: the largest share level not above
-    /// the experiment's `max_share`.
+    /// the experiment's `max_share` (nor, on a split pool, its room
+    /// beside the holdout).
     pub share: Share,
     /// Days the run takes at `share` when started on the window's first
     /// day (minimum run and whole weeks included); `None` when it would
@@ -84,8 +87,9 @@ pub struct ExperimentCheck {
     pub solo_end: Option<NaiveDate>,
     /// Why it cannot fit even alone.
     pub reason: Option<String>,
-    /// The statistics behind its size, as a plan records them.
-    pub statistics: crate::plan::TestStatistics,
+    /// The statistics behind its size, as a plan records them; `None` for
+    /// a sample size given from elsewhere.
+    pub statistics: Option<crate::plan::TestStatistics>,
     /// A test that cannot fit even alone: what its pool's traffic from
     /// its earliest start to its deadline (or the window's end) could
     /// detect at `share`; `None` otherwise, and when no day is left.
@@ -103,11 +107,16 @@ pub struct PoolCheck {
     pub sharing: Sharing,
     /// Most tests running at once.
     pub max_concurrent: u32,
+    /// The fraction of its units no test may receive.
+    pub holdout: f64,
     /// How many experiments use it.
     pub experiments: usize,
-    /// Forecast units over the window.
+    /// Forecast units over the window that tests may receive: the
+    /// forecast less the holdout.
     pub offered_units: f64,
-    /// Units its experiments need, summed.
+    /// Units of the pool its experiments take up, summed: each test's need
+    /// divided by its `eligible` (a test that admits 30% of the units
+    /// under its share takes up the other 70% too), rounded up.
     pub needed_units: u64,
     /// `needed_units / offered_units` (infinite when the pool offers none).
     pub ratio: f64,
@@ -133,15 +142,20 @@ pub fn check(p: &Portfolio) -> CheckReport {
         let start = earliest(p, e, &done);
         done[i] = Some(experiment(&inst, i, &series[e.pool], start));
     }
+    let mut needed = vec![0.0f64; p.pools.len()];
+    for e in &p.experiments {
+        needed[e.pool] += e.need.total as f64 / e.eligible;
+    }
     let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
         .pools
         .iter()
         .enumerate()
         .map(|(i, pool)| {
-            let offered = series[i].total(0, w.days().saturating_sub(1));
+            let offered = series[i].total(0, w.days().saturating_sub(1)) * (1.0 - pool.holdout);
             let mine: Vec<&Experiment> = p.experiments.iter().filter(|e| e.pool == i).collect();
-            let needed: u64 = mine.iter().map(|e| e.need.total).sum();
+            // Rounding noise must not add a unit.
+            let needed = (needed[i] - 1e-9 * needed[i]).ceil() as u64;
             let ratio = if offered > 0.0 {
                 needed as f64 / offered
             } else if needed == 0 {
@@ -149,7 +163,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
             } else {
                 f64::INFINITY
             };
-            let note = match pool.sharing {
+            let mut note = match pool.sharing {
                 Sharing::Split => {
                     "split: tests take disjoint slices, so above 1 not all can finish in the window"
                         .to_string()
@@ -159,11 +173,18 @@ pub fn check(p: &Portfolio) -> CheckReport {
                     pool.max_concurrent, pool.max_concurrent
                 ),
             };
+            if pool.holdout > 0.0 {
+                note.push_str(&format!(
+                    "; {} of its units are held out of every test and not offered",
+                    crate::words::percent(pool.holdout)
+                ));
+            }
             PoolCheck {
                 id: pool.id.clone(),
                 label: pool.label.clone(),
                 sharing: pool.sharing,
                 max_concurrent: pool.max_concurrent,
+                holdout: pool.holdout,
                 experiments: mine.len(),
                 offered_units: offered,
                 needed_units: needed,
@@ -185,11 +206,11 @@ pub fn check(p: &Portfolio) -> CheckReport {
     }
 }
 
-/// The largest share level not above `max_share` (validation guarantees one).
+/// The largest share level not above `max_share` nor, on a split pool,
+/// the pool's capacity (validation guarantees one).
 pub fn share_for(p: &Portfolio, e: &Experiment) -> Share {
-    p.share_levels
-        .largest_up_to(e.max_share)
-        .unwrap_or(e.max_share)
+    let most = e.max_share.min(p.pools[e.pool].capacity());
+    p.share_levels.largest_up_to(most).unwrap_or(most)
 }
 
 /// The first day a solo run of `e` may start, and why not earlier.
@@ -229,7 +250,14 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     let w = p.window;
     let share = share_for(p, e);
     let need = e.need.total as f64;
-    let from_start = series.run_end(0, share.fraction(), need, e.min_days, e.whole_weeks);
+    let entering = p.entering_fraction(i, e.pool);
+    let from_start = series.run_end(
+        0,
+        share.fraction() * entering,
+        need,
+        e.min_days,
+        e.whole_weeks,
+    );
     let (days, end) = match from_start {
         Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
@@ -253,9 +281,11 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
         title: e.title.clone(),
         pool: pool.id.clone(),
         metric: match e.design.metric {
+            _ if e.sample_size_given => "given".into(),
             Metric::Rate { .. } => "rate".into(),
             Metric::Mean { .. } => "mean".into(),
         },
+        eligible: e.eligible,
         driver: e.driver.clone(),
         arms: e.need.arms,
         control_units: e.need.control,
@@ -268,9 +298,9 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
         solo_start: solo.map(|s| s.0),
         solo_end: solo.map(|s| s.1),
         reason,
-        statistics: crate::schedule::statistics::statistics(e),
+        statistics: (!e.sample_size_given).then(|| crate::schedule::statistics::statistics(e)),
         detectable: first
-            .filter(|_| solo.is_none())
+            .filter(|_| solo.is_none() && !e.sample_size_given)
             .and_then(|first| crate::schedule::statistics::detectable(p, i, first, share)),
     }
 }
@@ -290,6 +320,7 @@ fn solo_fit(
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
     let need = e.need.total as f64;
+    let entering = p.entering_fraction(i, e.pool);
     let solo = inst.earliest_solo(i, share, w.offset(first).offset().max(0) as usize);
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
@@ -318,7 +349,13 @@ fn solo_fit(
             (None, false) => String::new(),
         };
         let i = w.offset(first).offset() as usize;
-        match series.run_end(i, share.fraction(), need, e.min_days, e.whole_weeks) {
+        match series.run_end(
+            i,
+            share.fraction() * entering,
+            need,
+            e.min_days,
+            e.whole_weeks,
+        ) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",
                 j - i + 1,

@@ -181,6 +181,8 @@ mod tests {
                     units_expected: 0.0,
                 }),
             units_needed: 1000,
+            sample_size_given: false,
+            eligible: 1.0,
             reason: None,
             ran: None,
             result_range: None,
@@ -214,6 +216,7 @@ mod tests {
                 label: "Home".into(),
                 sharing: Sharing::Split,
                 max_concurrent: 2,
+                holdout: 0.0,
                 days: (4..=6)
                     .map(|i| PoolDay {
                         date: d(&format!("2027-01-0{i}")),

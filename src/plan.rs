@@ -128,6 +128,12 @@ pub struct PlannedExperiment {
     pub run: Option<Run>,
     /// Units over all arms the test needs.
     pub units_needed: u64,
+    /// Whether the portfolio gave its control arm's units (`sample_size`)
+    /// rather than sizing it from a baseline and an MDE.
+    pub sample_size_given: bool,
+    /// The fraction of its pool's units its targeting admits, in (0, 1];
+    /// it still holds its whole share of a split pool.
+    pub eligible: f64,
     /// Why it is not scheduled, in words a planner can act on.
     pub reason: Option<String>,
     /// Re-plans only: what a finished or cancelled test ran, as the
@@ -310,6 +316,10 @@ struct ExperimentJson {
     days: Option<u32>,
     units_needed: u64,
     units_expected: Option<f64>,
+    #[serde(default)]
+    sample_size_given: bool,
+    #[serde(default = "whole_pool")]
+    eligible: f64,
     reason: Option<String>,
     #[serde(default)]
     ran: Option<Ran>,
@@ -321,6 +331,11 @@ struct ExperimentJson {
     looks: Option<LookDates>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     detectable: Option<Detectable>,
+}
+
+/// What a plan without `eligible` means: every unit is admitted.
+fn whole_pool() -> f64 {
+    1.0
 }
 
 impl From<PlannedExperiment> for ExperimentJson {
@@ -340,6 +355,8 @@ impl From<PlannedExperiment> for ExperimentJson {
             days: r.map(|r| r.days),
             units_needed: e.units_needed,
             units_expected: r.map(|r| r.units_expected),
+            sample_size_given: e.sample_size_given,
+            eligible: e.eligible,
             reason: e.reason,
             ran: e.ran,
             result_range: e.result_range,
@@ -415,6 +432,8 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
             status: j.status,
             run,
             units_needed: j.units_needed,
+            sample_size_given: j.sample_size_given,
+            eligible: j.eligible,
             reason: j.reason,
             ran: j.ran,
             result_range: j.result_range,
@@ -449,6 +468,11 @@ pub struct PoolPlan {
     pub sharing: Sharing,
     /// Most tests running at once.
     pub max_concurrent: u32,
+    /// The fraction of its units no test may receive, in [0, 1): a split
+    /// pool's shares add up to at most `1 - holdout` on a day; an overlap
+    /// pool's tests get `1 - holdout` of the units under their share.
+    #[serde(default)]
+    pub holdout: f64,
     /// Every day of the window, in order.
     pub days: Vec<PoolDay>,
 }
@@ -765,4 +789,30 @@ pub struct PlanDiff {
     pub needs_decision: Vec<String>,
     /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A plan written before `eligible`, `sample_size_given` and
+    /// `holdout` existed reads as every unit admitted, sized here, and no
+    /// holdout.
+    #[test]
+    fn an_older_plan_reads_with_every_unit_eligible_and_no_holdout() {
+        let mut v: serde_json::Value =
+            serde_json::from_str(include_str!("../tests/fixtures/plan-small.json")).unwrap();
+        for e in v["experiments"].as_array_mut().unwrap() {
+            let e = e.as_object_mut().unwrap();
+            e.remove("eligible");
+            e.remove("sample_size_given");
+        }
+        for p in v["pools"].as_array_mut().unwrap() {
+            p.as_object_mut().unwrap().remove("holdout");
+        }
+        let plan: Plan = serde_json::from_value(v).unwrap();
+        assert!(plan.experiments.iter().all(|e| e.eligible == 1.0));
+        assert!(plan.experiments.iter().all(|e| !e.sample_size_given));
+        assert!(plan.pools.iter().all(|p| p.holdout == 0.0));
+    }
 }

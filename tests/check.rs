@@ -170,6 +170,30 @@ const FIXTURES: &[(&str, usize, &str, &str)] = &[
         "moves the rate from 0.8 to 1.2, outside (0, 1)",
     ),
     (
+        "sample-size-with-mde",
+        12,
+        "experiments[0].baseline",
+        "both `sample_size` and `baseline`, `mde` are given",
+    ),
+    (
+        "eligible-range",
+        11,
+        "experiments[0].eligible",
+        "`eligible` is 30; it must be in (0, 1]",
+    ),
+    (
+        "holdout-range",
+        8,
+        "pools[0].holdout",
+        "`holdout` is 1; it must be in [0, 1)",
+    ),
+    (
+        "holdout-no-room",
+        10,
+        "pools[0].holdout",
+        "a `holdout` of 0.8 leaves 20% of the pool, less than the smallest share level 25%",
+    ),
+    (
         "both-mde",
         13,
         "experiments[0].mde_abs",
@@ -353,7 +377,7 @@ fn the_demo_portfolio_passes_and_shows_both_tables() {
     let out = sluice(&["check", "portfolios/demo.yaml"]);
     let stdout = text(&out.stdout);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
-    assert!(stdout.contains("32 experiments"), "{stdout}");
+    assert!(stdout.contains("34 experiments"), "{stdout}");
     assert!(stdout.contains("fits alone"));
     assert!(stdout.contains("cannot fit even alone"));
     assert!(stdout.contains("needed / offered"));
@@ -366,7 +390,7 @@ fn the_demo_report_as_json() {
     assert_eq!(out.status.code(), Some(0));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let exps = v["experiments"].as_array().unwrap();
-    assert_eq!(exps.len(), 32);
+    assert_eq!(exps.len(), 34);
     let mega = exps.iter().find(|e| e["id"] == "home-mega-menu").unwrap();
     assert_eq!(mega["fits_alone"], false);
     assert_eq!(mega["arms"], 3);
@@ -378,7 +402,7 @@ fn the_demo_report_as_json() {
     assert_eq!(pools.len(), 5);
     assert_eq!(
         v["fit_alone"].as_u64().unwrap() + v["cannot_fit"].as_u64().unwrap(),
-        32
+        34
     );
     insta::assert_snapshot!("demo-json", text(&out.stdout));
 }

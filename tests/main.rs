@@ -8,6 +8,7 @@ mod check;
 mod commands;
 mod forecast;
 mod numbers;
+mod keys;
 mod outputs;
 mod plan;
 mod ranges;

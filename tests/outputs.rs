@@ -70,13 +70,13 @@ fn json_parses_back_into_the_plan_type_without_losing_a_key() {
     let plan: Plan = serde_json::from_value(value.clone()).unwrap();
     // Nothing the binary printed is dropped or invented by the type.
     assert_eq!(serde_json::to_value(&plan).unwrap(), value);
-    assert_eq!(plan.experiments.len(), 32);
+    assert_eq!(plan.experiments.len(), 34);
     assert_eq!(plan.pools.len(), 5);
     assert_eq!(plan.solver.seconds, 0.0);
     assert!(plan.portfolio.contains("Larkspur"), "{}", plan.portfolio);
     // The demo has both kinds, so every later format check sees both.
     let fit = scheduled(&plan).len();
-    assert!(fit > 20 && fit < 32, "{fit} of 32 scheduled");
+    assert!(fit > 20 && fit < 34, "{fit} of 34 scheduled");
     for e in scheduled(&plan) {
         let r = e.run.unwrap();
         let (start, end, due) = (r.start, r.end, r.result_date);

@@ -91,7 +91,15 @@ pub fn text(r: &CheckReport) -> String {
             e.arms.to_string(),
             per_arm,
             units(e.total_units),
-            e.share.to_string(),
+            if e.eligible < 1.0 {
+                format!(
+                    "{} ({} eligible)",
+                    e.share,
+                    crate::words::percent(e.eligible)
+                )
+            } else {
+                e.share.to_string()
+            },
             days,
             if let (true, Some(start)) = (e.fits_alone, e.solo_start) {
                 format!("fits alone from {start}")
@@ -113,8 +121,8 @@ pub fn text(r: &CheckReport) -> String {
         if let Some(why) = &e.reason {
             out.push_str(&format!("  `{}`: {why}\n", e.id));
         }
-        if let Some(d) = &e.detectable {
-            let line = crate::render::numbers::detectable(d, &e.statistics);
+        if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
+            let line = crate::render::numbers::detectable(d, s);
             out.push_str(&format!("    {line}\n"));
         }
     }
@@ -122,7 +130,7 @@ pub fn text(r: &CheckReport) -> String {
         .experiments
         .iter()
         .filter_map(|e| {
-            let line = crate::render::numbers::secondary_list(&e.statistics)?;
+            let line = crate::render::numbers::secondary_list(e.statistics.as_ref()?)?;
             Some(format!("  `{}`: {line}\n", e.id))
         })
         .collect();

@@ -3,10 +3,11 @@
 //!
 //! Pure functions of a [`Pool`] and dates. The rule for a day: the pool's
 //! daily level (grown or shrunk by its linear trend, if it has one) times
-//! the weekday multiplier (Monday first), then the last
-//! adjustment in file order that covers the day, if any: a multiplier scales
-//! that value, a level replaces it. Last, every what-if scale whose date
-//! has come multiplies the result. Every later computation (check, plan,
+//! the weekday multiplier (Monday first); then the adjustments covering
+//! the day compose: the last `level` among them (in file order) replaces
+//! that value, and every `multiply` among them scales it, all multiplied
+//! together (a campaign x1.3 inside a seasonal dip x0.8 gives x1.04). Last,
+//! every what-if scale whose date has come multiplies the result. Every later computation (check, plan,
 //! re-plan, renderers) reads traffic through this module. [`fit`] fits the
 //! level, pattern and trend from a pool's daily history; [`report`] is
 //! what `sluice forecast` shows of it.
@@ -32,18 +33,26 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
         .filter(|s| s.from <= date)
         .map(|s| s.factor)
         .product();
-    let value = match f
-        .adjustments
-        .iter()
-        .rev()
-        .find(|a| a.from <= date && date <= a.to)
-    {
-        Some(a) => match a.change {
-            Change::Multiply(m) => base * m,
-            Change::Level(level) => level,
-        },
-        None => base,
+    // Adjustments compose: the last `level` covering the day replaces the
+    // weekday forecast, then every `multiply` covering it applies.
+    let covering = || {
+        f.adjustments
+            .iter()
+            .filter(move |a| a.from <= date && date <= a.to)
     };
+    let value = covering()
+        .rev()
+        .find_map(|a| match a.change {
+            Change::Level(level) => Some(level),
+            Change::Multiply(_) => None,
+        })
+        .unwrap_or(base);
+    let value = covering()
+        .filter_map(|a| match a.change {
+            Change::Multiply(m) => Some(m),
+            Change::Level(_) => None,
+        })
+        .fold(value, |v, m| v * m);
     value * scale
 }
 
@@ -171,6 +180,7 @@ mod tests {
             },
             sharing: Sharing::Split,
             max_concurrent: 3,
+            holdout: 0.0,
         }
     }
 
@@ -184,7 +194,7 @@ mod tests {
     }
 
     #[test]
-    fn later_adjustments_win_where_they_overlap() {
+    fn a_level_replaces_the_forecast_and_multipliers_still_apply() {
         let adj = vec![
             Adjustment {
                 from: d("2026-12-20"),
@@ -198,14 +208,49 @@ mod tests {
                 change: Change::Level(100.0),
                 note: "new year".into(),
             },
+            Adjustment {
+                from: d("2027-01-01"),
+                to: d("2027-01-01"),
+                change: Change::Level(300.0),
+                note: "the later level wins".into(),
+            },
         ];
         let p = pool(1000.0, [1.0; 7], adj);
         assert_eq!(units_on(&p, d("2026-12-19")), 1000.0);
         assert_eq!(units_on(&p, d("2026-12-30")), 500.0);
-        assert_eq!(units_on(&p, d("2026-12-31")), 100.0);
-        assert_eq!(units_on(&p, d("2027-01-01")), 100.0);
+        // 100 units replace the forecast; the dip still halves them.
+        assert_eq!(units_on(&p, d("2026-12-31")), 50.0);
+        // Two levels: the later (300) replaces, then x0.5.
+        assert_eq!(units_on(&p, d("2027-01-01")), 150.0);
         assert_eq!(units_on(&p, d("2027-01-02")), 500.0);
         assert_eq!(units_on(&p, d("2027-01-04")), 1000.0);
+    }
+
+    #[test]
+    fn multipliers_covering_a_day_compose() {
+        // A campaign x1.3 during a seasonal dip x0.8: 1.3 x 0.8 = 1.04, so
+        // a Friday of the 2,000-unit pool with weekday factor 0.9 gets
+        // 2,000 x 0.9 x 1.04 = 1,872 units; outside the campaign
+        // 2,000 x 0.9 x 0.8 = 1,440.
+        let adj = vec![
+            Adjustment {
+                from: d("2027-02-01"),
+                to: d("2027-02-28"),
+                change: Change::Multiply(0.8),
+                note: "seasonal dip".into(),
+            },
+            Adjustment {
+                from: d("2027-02-08"),
+                to: d("2027-02-14"),
+                change: Change::Multiply(1.3),
+                note: "campaign".into(),
+            },
+        ];
+        let p = pool(2000.0, [1.0, 1.0, 1.0, 1.0, 0.9, 1.0, 1.0], adj);
+        // 2027-02-12 and 2027-02-05 are Fridays.
+        assert!((units_on(&p, d("2027-02-12")) - 1872.0).abs() < 1e-9);
+        assert!((units_on(&p, d("2027-02-05")) - 1440.0).abs() < 1e-9);
+        assert!((units_on(&p, d("2027-03-05")) - 1800.0).abs() < 1e-9);
     }
 
     #[test]

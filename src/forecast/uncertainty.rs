@@ -46,7 +46,8 @@ pub struct RunRule {
     pub pool: usize,
     /// Day index of its first day.
     pub start: usize,
-    /// Its constant share of the pool, in (0, 1].
+    /// The constant fraction of the pool's units that enter it: its share
+    /// times its entering fraction, in (0, 1].
     pub share: f64,
     /// Units it needs over all arms.
     pub need: f64,
@@ -149,7 +150,7 @@ pub fn fill_ranges(portfolio: &Portfolio, experiments: &mut [PlannedExperiment])
         runs.push(RunRule {
             pool: ex.pool,
             start: w.offset(run.start).offset() as usize,
-            share: run.share.fraction(),
+            share: run.share.fraction() * portfolio.entering_fraction(e, ex.pool),
             need: ex.need.total as f64,
             min_days: ex.min_days,
             whole_weeks: ex.whole_weeks,

@@ -73,6 +73,8 @@ pub struct Defaults {
     /// The one-sided alpha of guardrail (non-inferiority) tests (default
     /// 0.05).
     pub guardrail_alpha: f64,
+    /// The holdout of pools that give none, in [0, 1) (default 0).
+    pub holdout: f64,
 }
 
 impl Default for Defaults {
@@ -91,6 +93,7 @@ impl Default for Defaults {
             looks: 1,
             boundary: Boundary::SpendingObrienFleming,
             guardrail_alpha: 0.05,
+            holdout: 0.0,
         }
     }
 }
@@ -184,7 +187,8 @@ pub struct Adjustment {
 pub enum Change {
     /// Multiply the day's forecast (after the weekday pattern); >= 0.
     Multiply(f64),
-    /// Replace the day's forecast with this many units; >= 0.
+    /// Replace the day's weekday forecast with this many units (the last
+    /// level covering a day wins; multipliers covering it still apply); >= 0.
     Level(f64),
 }
 
@@ -195,7 +199,8 @@ pub struct Forecast {
     pub daily: f64,
     /// Multipliers Monday first; all 1.0 when none was given.
     pub weekday: [f64; 7],
-    /// In file order; where several cover a day, the last one wins.
+    /// In file order; where several cover a day they compose: the last
+    /// `level` replaces the weekday forecast, every `multiply` scales it.
     pub adjustments: Vec<Adjustment>,
     /// What-if scalings from the command line (`--scale POOL=FACTOR@DATE`):
     /// each multiplies every day from its date on, on top of the rest.
@@ -296,6 +301,34 @@ pub struct Pool {
     pub sharing: Sharing,
     /// Most tests running at once; >= 1.
     pub max_concurrent: u32,
+    /// The fraction of its units no test may receive, in [0, 1): on a
+    /// split pool the shares running on a day add up to at most
+    /// [`Pool::capacity`]; on an overlap pool every test's units are
+    /// scaled by `1 - holdout`.
+    pub holdout: f64,
+}
+
+impl Pool {
+    /// The most its tests' shares may add up to on a day when it is split
+    /// (`1 - holdout`, in whole millionths); the whole pool otherwise.
+    /// The one place a pool's room is worked out.
+    pub fn capacity(&self) -> Share {
+        match self.sharing {
+            Sharing::Split => Share::from_fraction(1.0 - self.holdout),
+            Sharing::Overlap => Share::WHOLE,
+        }
+    }
+
+    /// The fraction of the units under a share that may enter a test
+    /// before targeting: `1 - holdout` on an overlap pool (the held-out
+    /// units are spread over every test's slice), 1 on a split pool (its
+    /// holdout is a slice no test may take, see [`Pool::capacity`]).
+    pub fn open_fraction(&self) -> f64 {
+        match self.sharing {
+            Sharing::Split => 1.0,
+            Sharing::Overlap => 1.0 - self.holdout,
+        }
+    }
 }
 
 /// `after`: this experiment starts only once `experiment` has ended, plus a gap.
@@ -321,8 +354,17 @@ pub struct Experiment {
     pub pool: usize,
     /// The statistics with defaults applied.
     pub design: Design,
-    /// Units per arm and in total; with looks, the maximum sample.
+    /// Units per arm and in total; with looks, the maximum sample. With
+    /// `sample_size_given`, the given control units, each treatment arm
+    /// `ratio` x that, and a `comparison_alpha` of 0 (none was given).
     pub need: SampleSize,
+    /// Whether the file gave the control arm's units (`sample_size`)
+    /// instead of the sizing keys: then `design` holds only the arms and
+    /// ratio, and `metrics` is empty.
+    pub sample_size_given: bool,
+    /// The fraction of its pool's units its targeting admits, in (0, 1]
+    /// (default 1). It takes its whole share of the pool either way.
+    pub eligible: f64,
     /// The planned interim looks; None for a fixed horizon (one look).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub looks: Option<Looks>,
@@ -482,6 +524,14 @@ impl Portfolio {
     pub fn experiment_index(&self, id: &str) -> Option<usize> {
         self.experiments.iter().position(|e| e.id == id)
     }
+
+    /// The fraction of the units under experiment `experiment`'s share of
+    /// pool `pool` that enter the test: its `eligible` times the pool's
+    /// [`Pool::open_fraction`]. Units entering = share x this x forecast.
+    /// The one place this product is formed.
+    pub fn entering_fraction(&self, experiment: usize, pool: usize) -> f64 {
+        self.experiments[experiment].eligible * self.pools[pool].open_fraction()
+    }
 }
 
 /// Experiment indices ordered so every `after` prerequisite comes before
@@ -528,6 +578,8 @@ mod tests {
                 pool: 0,
                 design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
                 need: crate::schedule::synthetic::two_arm_need(1000),
+                sample_size_given: false,
+                eligible: 1.0,
                 looks: None,
                 metrics: Vec::new(),
                 driver: String::new(),

@@ -93,6 +93,7 @@ pub struct RawDefaults {
     pub looks: Option<f64>,
     pub boundary: Option<Text>,
     pub guardrail_alpha: Option<f64>,
+    pub holdout: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -119,6 +120,7 @@ pub struct RawPool {
     pub sharing: Option<Text>,
     pub max_concurrent: Option<f64>,
     pub uncertainty: Option<RawUncertainty>,
+    pub holdout: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -170,6 +172,8 @@ pub struct RawExperiment {
     pub not_with: Option<Vec<Text>>,
     pub metrics: Option<Vec<RawMetric>>,
     pub guardrail_alpha: Option<f64>,
+    pub eligible: Option<f64>,
+    pub sample_size: Option<f64>,
 }
 
 /// A `metrics` entry: one metric of a test and its role.

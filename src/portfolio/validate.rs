@@ -268,7 +268,12 @@ pub fn validate(
     let (defaults, defaults_ok) = defaults(&mut cx, raw.defaults.unwrap_or_default());
     let share_levels = share_levels(&mut cx, raw.share_levels);
     let planning = planning(&mut cx, raw.planning.unwrap_or_default(), &defaults);
-    let pools = pools(&mut cx, raw.pools.unwrap_or_default());
+    let pools = pools(
+        &mut cx,
+        raw.pools.unwrap_or_default(),
+        &defaults,
+        &share_levels,
+    );
     let pool_ids = Names::new(pools.iter().map(|p| p.id.as_str()));
     let (experiments, after_order) = experiments(
         &mut cx,
@@ -404,7 +409,17 @@ fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         "in (0, 0.5]",
         "the one-sided alpha of the guardrails; 0.05 is the default",
     );
+    let holdout = d.holdout.unwrap_or(fallback.holdout);
+    let holdout_ok = cx.number(
+        "defaults.holdout",
+        "",
+        holdout,
+        is_holdout(holdout),
+        "in [0, 1)",
+        "the fraction of every pool's units kept out of all tests, e.g. 0.05; 0 keeps none",
+    );
     let defaults = Defaults {
+        holdout: if holdout_ok { holdout } else { 0.0 },
         guardrail_alpha,
         alpha,
         power,
@@ -459,6 +474,11 @@ fn share_levels(cx: &mut Ctx, raw: Option<Vec<f64>>) -> ShareLevels {
 }
 
 /// A share the model can hold: in (0, 1] and not below one millionth.
+/// Whether `h` is a holdout: in [0, 1) and leaving at least a millionth.
+fn is_holdout(h: f64) -> bool {
+    (0.0..1.0).contains(&h) && !Share::from_fraction(1.0 - h).is_zero()
+}
+
 fn is_share(s: f64) -> bool {
     s > 0.0 && s <= 1.0 && !Share::from_fraction(s).is_zero()
 }
@@ -598,7 +618,7 @@ fn ids(cx: &mut Ctx, section: &str, what: &str, raw: Vec<Option<&Text>>) -> Vec<
     out
 }
 
-fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
+fn pools(cx: &mut Ctx, raw: Vec<RawPool>, d: &Defaults, levels: &ShareLevels) -> Vec<Pool> {
     let ids = ids(
         cx,
         "pools",
@@ -794,7 +814,9 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
                 daily_cv: cv("daily_cv", u.daily_cv),
             }
         });
+        let holdout = pool_holdout(cx, &at("holdout"), &who, p.holdout, d, sharing, levels);
         out.push(Pool {
+            holdout,
             label: text_or(&p.label, &id),
             id,
             forecast: Forecast {
@@ -814,6 +836,60 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>) -> Vec<Pool> {
         });
     }
     out
+}
+
+/// A pool's holdout (its own or the defaults'), checked: in [0, 1), and
+/// on a split pool leaving room for the smallest share level.
+#[allow(clippy::too_many_arguments)]
+fn pool_holdout(
+    cx: &mut Ctx,
+    key: &str,
+    who: &str,
+    given: Option<f64>,
+    d: &Defaults,
+    sharing: Sharing,
+    levels: &ShareLevels,
+) -> f64 {
+    let holdout = given.unwrap_or(d.holdout);
+    // A bad default is reported once, at `defaults.holdout`.
+    let key = if given.is_some() {
+        key
+    } else {
+        "defaults.holdout"
+    };
+    if given.is_some()
+        && !cx.number(
+            key,
+            who,
+            holdout,
+            is_holdout(holdout),
+            "in [0, 1)",
+            "the fraction of the pool's units kept out of every test, e.g. 0.05; 0 keeps none",
+        )
+    {
+        return 0.0;
+    }
+    let room = Share::from_fraction(1.0 - holdout);
+    if let (Sharing::Split, Some(lowest)) = (sharing, levels.lowest()) {
+        let told = cx.errors.iter().any(|e| e.key == key);
+        if lowest > room && told {
+            return 0.0;
+        }
+        if lowest > room {
+            cx.err(
+                key,
+                format!(
+                    "{who}a `holdout` of {} leaves {room} of the pool, less than the smallest share level {lowest}; no test could run on it",
+                    show(holdout)
+                ),
+                format!(
+                    "lower the holdout so at least {lowest} of the pool stays open, or add a share level of at most {room} to `share_levels`"
+                ),
+            );
+            return 0.0;
+        }
+    }
+    holdout
 }
 
 /// A date that must lie inside the window.
@@ -936,8 +1012,22 @@ fn experiments(
         let count = looks_count(cx, &at("looks"), &who, e.looks);
         let boundary = cx.choice(&at("boundary"), &who, &e.boundary, &BOUNDARIES, d.boundary);
         let count = if looks_given { count } else { Some(d.looks) };
-        let sized = metrics(cx, e, i, &who, &what, d, defaults_ok);
+        let given = e
+            .sample_size
+            .and_then(|n| given_size(cx, e, i, &who, n, d, defaults_ok));
+        let sized = if e.sample_size.is_some() {
+            None
+        } else {
+            metrics(cx, e, i, &who, &what, d, defaults_ok)
+        };
         let (design, need, looks, metrics, driver) = match (sized, count) {
+            _ if e.sample_size.is_some() => (
+                given.map(|g| g.0),
+                given.map(|g| g.1),
+                None,
+                Vec::new(),
+                String::new(),
+            ),
             (Some(m), Some(count)) => size_metrics(cx, m, count, boundary, &who),
             (Some(m), None) => {
                 let design = m.first().map(|(_, plan)| plan.design);
@@ -951,6 +1041,15 @@ fn experiments(
                 Effect::Relative(f64::NAN),
             )
         });
+        let eligible = e.eligible.unwrap_or(1.0);
+        let eligible_ok = cx.number(
+            &at("eligible"),
+            &who,
+            eligible,
+            eligible > 0.0 && eligible <= 1.0,
+            "in (0, 1]",
+            "the fraction of the pool's units its targeting admits, e.g. 0.3 for logged-in visitors only; 1 admits all",
+        );
         let priority = e.priority.unwrap_or(1.0);
         cx.number(
             &at("priority"),
@@ -1089,6 +1188,8 @@ fn experiments(
                 total: 0,
                 comparison_alpha: 0.0,
             }),
+            sample_size_given: e.sample_size.is_some(),
+            eligible: if eligible_ok { eligible } else { 1.0 },
             looks,
             metrics,
             driver,
@@ -1121,6 +1222,85 @@ fn experiments(
         cycles(cx, &out);
     }
     (out, order)
+}
+
+/// The keys `sample_size` replaces, as the file names them.
+fn sizing_keys(e: &RawExperiment) -> Vec<&'static str> {
+    let mut keys = short_form_keys(e);
+    keys.extend(
+        [
+            ("metrics", e.metrics.is_some()),
+            ("alpha", e.alpha.is_some()),
+            ("power", e.power.is_some()),
+            ("sides", e.sides.is_some()),
+            ("correction", e.correction.is_some()),
+            ("looks", e.looks.is_some()),
+            ("boundary", e.boundary.is_some()),
+            ("guardrail_alpha", e.guardrail_alpha.is_some()),
+        ]
+        .into_iter()
+        .filter_map(|(k, given)| given.then_some(k)),
+    );
+    keys
+}
+
+/// A test whose control arm's units are given (`sample_size`): the
+/// design (only its arms and ratio mean anything) and the need, each
+/// treatment arm `ratio` x the control; None after a problem.
+fn given_size(
+    cx: &mut Ctx,
+    e: &RawExperiment,
+    i: usize,
+    who: &str,
+    n: f64,
+    d: &Defaults,
+    defaults_ok: bool,
+) -> Option<(Design, SampleSize)> {
+    let before = cx.errors.len();
+    let key = format!("experiments[{i}].sample_size");
+    cx.number(
+        &key,
+        who,
+        n,
+        whole(n, 1.0, 1e12),
+        "a whole number of units from 1 to a trillion",
+        "the control arm's units, known from elsewhere, e.g. `sample_size: 40000`",
+    );
+    let conflicts = sizing_keys(e);
+    if let Some(first) = conflicts.first() {
+        cx.err(
+            &format!("experiments[{i}].{first}"),
+            format!(
+                "{who}both `sample_size` and {} are given",
+                diagnostic::list(&conflicts)
+            ),
+            "`sample_size` gives the control arm's units and replaces the sizing keys; \
+             remove the sizing keys, or remove `sample_size` to size the test from them",
+        );
+    }
+    let (s, _) = shared(cx, e, i, who, d);
+    if cx.errors.len() != before || !defaults_ok {
+        return None;
+    }
+    let mut design = Design::new(
+        Metric::Rate { baseline: f64::NAN },
+        Effect::Relative(f64::NAN),
+    );
+    design.arms = s.arms;
+    design.ratio = s.ratio;
+    let treatment_exact = s.ratio * n;
+    // Rounding noise must not add a unit: 0.1 x 30 is 3, not 4.
+    let treatment = (treatment_exact - 1e-9 * treatment_exact).ceil() as u64;
+    let need = SampleSize {
+        control_exact: n,
+        treatment_exact,
+        control: n as u64,
+        treatment,
+        arms: s.arms,
+        total: n as u64 + u64::from(s.arms - 1) * treatment,
+        comparison_alpha: 0.0,
+    };
+    Some((design, need))
 }
 
 /// Every role by its name in a file.
@@ -2014,6 +2194,67 @@ mod metrics_tests {
         load_str(&file(experiment), "m.yaml")
             .unwrap_err()
             .to_string()
+    }
+
+    #[test]
+    fn a_given_sample_size_is_the_control_and_ratio_times_it_each_treatment() {
+        // 40,000 control units, two treatment arms at ratio 0.5: 20,000
+        // each, 80,000 in total.
+        let p = load("    sample_size: 40000\n    arms: 3\n    ratio: 0.5\n");
+        let e = &p.experiments[0];
+        assert!(e.sample_size_given);
+        assert_eq!(
+            (e.need.control, e.need.treatment, e.need.total),
+            (40_000, 20_000, 80_000)
+        );
+        assert!(e.metrics.is_empty());
+        // Ratio 1/3 of 30 units is 10, not 11: no unit from rounding noise.
+        let p = load("    sample_size: 30\n    ratio: 0.3333333333333333\n");
+        assert_eq!(p.experiments[0].need.treatment, 10);
+        let p = load("    baseline: 0.1\n    mde: 0.1\n    eligible: 0.3\n");
+        assert_eq!(p.experiments[0].eligible, 0.3);
+        assert!(!p.experiments[0].sample_size_given);
+    }
+
+    #[test]
+    fn a_given_sample_size_refuses_the_keys_it_replaces() {
+        let err = error("    sample_size: 40000\n    mde: 0.1\n");
+        assert!(
+            err.contains("both `sample_size` and `mde` are given"),
+            "{err}"
+        );
+        let err = error("    sample_size: 40000\n    power: 0.9\n    looks: 2\n");
+        assert!(
+            err.contains("both `sample_size` and `power`, `looks` are given"),
+            "{err}"
+        );
+        for bad in ["0", "12.5", "-3"] {
+            let err = error(&format!("    sample_size: {bad}\n"));
+            assert!(err.contains("`sample_size` is"), "{err}");
+        }
+        let err = error("    baseline: 0.1\n    mde: 0.1\n    eligible: 0\n");
+        assert!(
+            err.contains("`eligible` is 0; it must be in (0, 1]"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn holdouts_come_from_the_pool_or_the_defaults() {
+        let text = "name: h\nwindow: {start: 2027-01-04, end: 2027-03-28}\n\
+                    defaults: {holdout: 0.1}\n\
+                    pools:\n  - {id: a, daily: 100, max_concurrent: 2}\n\
+                    \x20 - {id: b, daily: 100, max_concurrent: 2, holdout: 0.05}\n\
+                    \x20 - {id: c, daily: 100, max_concurrent: 2}\n";
+        let p = load_str(text, "h.yaml").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!((p.pools[0].holdout, p.pools[1].holdout), (0.1, 0.05));
+        assert_eq!(p.pools[1].capacity(), Share::from_fraction(0.95));
+        // A default that leaves no room is reported once, at `defaults`.
+        let text = text.replace("holdout: 0.1", "holdout: 0.95");
+        let err = load_str(&text, "h.yaml").unwrap_err().to_string();
+        assert!(err.contains("key: defaults.holdout"), "{err}");
+        assert!(err.contains("leaves 5% of the pool"), "{err}");
+        assert_eq!(err.matches("key: defaults.holdout").count(), 1, "{err}");
     }
 
     #[test]

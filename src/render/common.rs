@@ -149,6 +149,21 @@ pub fn blackout_covers(b: &PlanBlackout, pool: &str) -> bool {
     b.pools.is_empty() || b.pools.iter().any(|p| p == pool)
 }
 
+/// A test's share in words, with the fraction its targeting admits when
+/// that is not all of the pool: `50%`, or `50% (30% eligible)`.
+pub fn share_words(e: &PlannedExperiment, share: crate::share::Share) -> String {
+    if e.eligible < 1.0 {
+        format!("{share} ({} eligible)", crate::words::percent(e.eligible))
+    } else {
+        share.to_string()
+    }
+}
+
+/// A pool's holdout in words (`5% held out`), or `None` without one.
+pub fn holdout_words(pool: &PoolPlan) -> Option<String> {
+    (pool.holdout > 0.0).then(|| format!("{} held out", crate::words::percent(pool.holdout)))
+}
+
 /// Whether the pool's capacity is a share (split) rather than a count.
 pub fn is_split(pool: &PoolPlan) -> bool {
     pool.sharing == Sharing::Split

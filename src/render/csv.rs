@@ -12,7 +12,7 @@ use crate::plan::{Plan, Run};
 pub struct Csv;
 
 /// The header row, in column order.
-pub const HEADER: [&str; 14] = [
+pub const HEADER: [&str; 16] = [
     "id",
     "title",
     "owner",
@@ -27,6 +27,8 @@ pub const HEADER: [&str; 14] = [
     "units_needed",
     "units_expected",
     "reason",
+    "eligible",
+    "sample_size_given",
 ];
 
 impl Renderer for Csv {
@@ -62,6 +64,8 @@ impl Renderer for Csv {
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),
+                e.eligible.to_string(),
+                e.sample_size_given.to_string(),
             ];
             let numbers = super::numbers::csv_cells(e);
             w.write_record(row.iter().chain(&numbers))

@@ -99,12 +99,16 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         e.owner,
         pool_label(plan, &e.pool),
         e.pool,
-        run.share,
+        super::common::share_words(e, run.share),
         run.start,
         run.end,
         run.days,
         run.result_date,
-        thousands(e.units_needed),
+        if e.sample_size_given {
+            format!("{} (a given sample size)", thousands(e.units_needed))
+        } else {
+            thousands(e.units_needed)
+        },
         units(run.units_expected),
         numbers_lines(e),
         plan.portfolio,

@@ -188,12 +188,27 @@ impl Renderer for Markdown {
                     escape(pool_label(plan, &e.pool)),
                     run.start,
                     run.end,
-                    run.share,
+                    super::common::share_words(e, run.share),
                     escape(&e.owner)
                 );
             }
             let _ = writeln!(w);
             numbers(plan, w);
+        }
+        let held: Vec<String> = plan
+            .pools
+            .iter()
+            .filter(|p| p.holdout > 0.0)
+            .map(|p| {
+                format!(
+                    "{} of {}",
+                    crate::words::percent(p.holdout),
+                    escape(&p.label)
+                )
+            })
+            .collect();
+        if !held.is_empty() {
+            let _ = writeln!(w, "Held out of every test: {}.\n", held.join("; "));
         }
         if not_fit > 0 {
             let _ = writeln!(w, "### Tests that do not fit\n");

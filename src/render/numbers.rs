@@ -86,7 +86,7 @@ pub fn design(s: &TestStatistics) -> String {
         format!(" `{}`", s.metric)
     };
     format!(
-        "{}{name}, baseline {}, MDE {}, alpha {} {}, power {}, {}, {}; size set by `{}`.",
+        "{}{name}, baseline {}, MDE {}, alpha {} {}, power {}, {}, {}; size set by {}.",
         s.kind,
         baseline(s),
         effect(s, s.mde, s.mde_abs),
@@ -95,8 +95,18 @@ pub fn design(s: &TestStatistics) -> String {
         percent(s.power),
         arms(s),
         looks(s),
-        s.driver
+        driver(s)
     )
+}
+
+/// The metric that sets the size: `the primary metric` for the short form,
+/// else its name in backticks.
+pub fn driver(s: &TestStatistics) -> String {
+    if s.driver == "primary" {
+        "the primary metric".to_string()
+    } else {
+        format!("`{}`", s.driver)
+    }
 }
 
 /// The look dates in one sentence.
@@ -169,11 +179,22 @@ pub fn secondaries(s: &TestStatistics) -> Option<String> {
         .map(|list| format!("Secondary metrics, read once at the end, can detect: {list}."))
 }
 
+/// The sentence for a test whose sample size was given rather than sized;
+/// `None` for any other test.
+pub fn given(e: &PlannedExperiment) -> Option<String> {
+    e.sample_size_given.then(|| {
+        format!(
+            "sample size given: {} units over all arms, no effect sized here.",
+            units(e.units_needed as f64)
+        )
+    })
+}
+
 /// Every sentence about `e`'s numbers, in order: its design, its looks,
 /// its secondary metrics (tests with a run).
 pub fn sentences(e: &PlannedExperiment) -> Vec<String> {
     let Some(s) = &e.statistics else {
-        return Vec::new();
+        return given(e).into_iter().collect();
     };
     let mut out = vec![design(s)];
     if let Some(l) = &e.looks {
@@ -262,8 +283,22 @@ pub fn table_rows(tests: &[PlannedExperiment]) -> Vec<Vec<String>> {
     tests
         .iter()
         .filter_map(|e| {
-            let s = e.statistics.as_ref()?;
             let run = e.run.as_ref()?;
+            let Some(s) = e.statistics.as_ref() else {
+                let dash = || "—".to_string();
+                return e.sample_size_given.then(|| {
+                    vec![
+                        e.id.clone(),
+                        dash(),
+                        "given sample size".to_string(),
+                        dash(),
+                        dash(),
+                        "one look".to_string(),
+                        dash(),
+                        format!("{}", run.result_date),
+                    ]
+                });
+            };
             let results = match &e.looks {
                 Some(l) => format!(
                     "earliest {}, expected {}, latest {}",
@@ -327,7 +362,7 @@ mod tests {
         assert_eq!(
             design(&s),
             "rate, baseline 3.1%, MDE +4% (+0.124 points), alpha 0.05 two-sided, \
-             power 80%, 2 arms 1:1, one look; size set by `primary`."
+             power 80%, 2 arms 1:1, one look; size set by the primary metric."
         );
         let mean = TestStatistics {
             kind: "mean".into(),

@@ -100,7 +100,8 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split && share > 1.0 + 1e-9) || count > p.max_concurrent;
+        let over = (p.sharing == Sharing::Split && share > p.capacity().fraction() + 1e-9)
+            || count > p.max_concurrent;
         if over {
             let o = out.get_or_insert(Overload {
                 from: date,
@@ -227,9 +228,10 @@ pub fn replan(
         let room_for = |s: Share, end: NaiveDate| {
             let to = index(portfolio, end + Duration::days(1));
             !split
-                || others[today_i.min(to)..to]
-                    .iter()
-                    .all(|h| h + i64::from(s.millionths()) <= i64::from(Share::MILLION))
+                || others[today_i.min(to)..to].iter().all(|h| {
+                    h + i64::from(s.millionths())
+                        <= i64::from(portfolio.pools[pool].capacity().millionths())
+                })
         };
         let found = portfolio
             .share_levels
@@ -402,6 +404,27 @@ mod tests {
         assert_eq!(
             running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
             Some(d("2027-02-14"))
+        );
+    }
+
+    #[test]
+    fn a_running_test_counts_only_its_eligible_units_and_an_overlap_holdout() {
+        // 30% eligible at 50% of 1,000 a day: 150 units a day. 3,000 left
+        // from 2027-02-01 take 20 days, in on 2027-02-20.
+        let mut p = flat(false, 1, false);
+        p.experiments[0].eligible = 0.3;
+        let r = run("2027-01-04", 0.5, need(&p) - 3000, "2027-02-01");
+        assert_eq!(
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
+            Some(d("2027-02-20"))
+        );
+        // On an overlap pool with a 25% holdout as well: 0.5 x 0.3 x 0.75
+        // x 1,000 = 112.5 a day, 3,000 in 26.7 days, in on 2027-02-27.
+        p.pools[0].sharing = crate::portfolio::Sharing::Overlap;
+        p.pools[0].holdout = 0.25;
+        assert_eq!(
+            running_end(&p, &r, Share::from_fraction(0.5), d("2027-02-01")),
+            Some(d("2027-02-27"))
         );
     }
 

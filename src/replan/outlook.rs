@@ -66,7 +66,9 @@ fn units_counted(
     if no_running(portfolio, pool, day) {
         return 0.0;
     }
-    run.share_on(day, share, today) * units_on(&portfolio.pools[pool], day)
+    run.share_on(day, share, today)
+        * portfolio.entering_fraction(run.experiment, pool)
+        * units_on(&portfolio.pools[pool], day)
 }
 
 /// Units `run` will have at the end of `last` at `share` from today: the
@@ -148,6 +150,9 @@ fn detectable(portfolio: &Portfolio, experiment: usize, units: f64) -> Option<f6
 /// it has too few units for any.
 fn can_detect(portfolio: &Portfolio, experiment: usize, effect: Option<f64>) -> String {
     let d = &portfolio.experiments[experiment].design;
+    if portfolio.experiments[experiment].sample_size_given {
+        return "its sample size was given, not sized from an effect, so no detectable effect is worked out".to_string();
+    }
     match effect {
         Some(effect) => {
             let (kind, planned) = match d.effect {

@@ -475,7 +475,9 @@ impl ProgressCheck<'_> {
         let last = entry.as_of - Duration::days(1);
         if last >= started {
             let series = forecast::Series::new(pool, started, last);
-            let could = series.total(0, series.len() - 1) * share.fraction();
+            let could = series.total(0, series.len() - 1)
+                * share.fraction()
+                * p.entering_fraction(entry.index, exp.pool);
             if units as f64 > could * 1.05 + 1.0 {
                 self.ck.warn(
                     &format!("{at}.units"),

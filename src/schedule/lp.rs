@@ -186,8 +186,9 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
                 })
                 .min()
                 .unwrap_or(0) as f64;
+            let capacity = super::state::room(pool_def);
             let share_left = days
-                .map(|d| WHOLE - inst.base_share[pool][d])
+                .map(|d| capacity - inst.base_share[pool][d])
                 .min()
                 .unwrap_or(0) as f64
                 / WHOLE as f64;

@@ -280,7 +280,8 @@ pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -
     Some(total)
 }
 
-/// Units the pool delivers to a run at `share` from `start` to `end`.
+/// Units the pool delivers to a run at `share` from `start` to `end`
+/// (`share` already times the test's entering fraction).
 fn units_between(
     portfolio: &Portfolio,
     pool: usize,
@@ -329,6 +330,8 @@ fn assemble(
                 status: Status::Unscheduled,
                 run: None,
                 units_needed: ex.need.total,
+                sample_size_given: ex.sample_size_given,
+                eligible: ex.eligible,
                 reason: None,
                 ran: None,
                 result_range: None,
@@ -348,7 +351,13 @@ fn assemble(
                         result_date: end + Duration::days(1),
                         share,
                         days: ((end - start).num_days() + 1) as u32,
-                        units_expected: units_between(p, ex.pool, start, end, share.fraction()),
+                        units_expected: units_between(
+                            p,
+                            ex.pool,
+                            start,
+                            end,
+                            share.fraction() * p.entering_fraction(e, ex.pool),
+                        ),
                     });
                 }
                 None => {
@@ -421,6 +430,7 @@ fn assemble(
                 label: pool.label.clone(),
                 sharing: pool.sharing,
                 max_concurrent: pool.max_concurrent,
+                holdout: pool.holdout,
                 days,
             }
         })

@@ -11,7 +11,7 @@
 //! options (same start, a larger share but no earlier end) are dropped.
 //! Every end comes from [`Series::run_end`].
 
-use super::state::{micro, WHOLE};
+use super::state::{micro, room};
 use super::{FixedRun, PlanRequest};
 use crate::day::Day;
 use crate::forecast::Series;
@@ -291,6 +291,7 @@ impl<'a> Instance<'a> {
         let last = self.last_end(e);
         let before = self.no_running_before(pool);
         let need = ex.need.total as f64;
+        let entering = self.portfolio.entering_fraction(e, pool);
         let mut solo = Solo::default();
         for start in first..self.days {
             if start as i64 > last {
@@ -302,7 +303,7 @@ impl<'a> Instance<'a> {
             solo.any_start = true;
             match self.series[pool].run_end(
                 start,
-                share.fraction(),
+                share.fraction() * entering,
                 need,
                 ex.min_days,
                 ex.whole_weeks,
@@ -354,9 +355,11 @@ impl<'a> Instance<'a> {
             .collect()
     }
 
-    /// Share levels test `e` may take, ascending.
+    /// Share levels test `e` may take, ascending: up to its maximum and,
+    /// on a split pool, the pool's capacity beside its holdout.
     pub fn shares(&self, e: usize) -> Vec<Share> {
-        let max = self.portfolio.experiments[e].max_share;
+        let ex = &self.portfolio.experiments[e];
+        let max = ex.max_share.min(self.portfolio.pools[ex.pool].capacity());
         self.portfolio.share_levels.up_to(max).collect()
     }
 
@@ -373,7 +376,9 @@ impl<'a> Instance<'a> {
         let shares = self.shares(e);
         let split = p.pools[pool].sharing == Sharing::Split;
         let cap = p.pools[pool].max_concurrent;
+        let capacity = room(&p.pools[pool]);
         let need = ex.need.total as f64;
+        let entering = p.entering_fraction(e, pool);
         let mut out = Vec::new();
         for start in lo.max(0) as usize..self.days {
             let blocked = blocked_before[start + 1] > blocked_before[start];
@@ -386,7 +391,7 @@ impl<'a> Instance<'a> {
             for &share in shares.iter().rev() {
                 let Some(end) = self.series[pool].run_end(
                     start,
-                    share.fraction(),
+                    share.fraction() * entering,
                     need,
                     ex.min_days,
                     ex.whole_weeks,
@@ -407,7 +412,7 @@ impl<'a> Instance<'a> {
                 }
                 let fits_fixed = (start..=end).all(|d| {
                     self.base_count[pool][d] < cap
-                        && (!split || self.base_share[pool][d] + micro(share) <= WHOLE)
+                        && (!split || self.base_share[pool][d] + micro(share) <= capacity)
                 });
                 if !fits_fixed {
                     continue;

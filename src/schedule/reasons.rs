@@ -40,13 +40,44 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
     crate::forecast::run_end(
         &p.pools[ex.pool],
         start,
-        share.fraction(),
+        share.fraction() * p.entering_fraction(e, ex.pool),
         ex.need.total as f64,
         ex.min_days,
         ex.whole_weeks,
         limit,
     )
     .map(|end| (end - start).num_days() + 1)
+}
+
+/// What limits the units test `e` collects beside its share, as
+/// ` (30% of its units eligible, 5% held out)`, or nothing: the share of
+/// its units its targeting admits, and its pool's holdout, which caps the
+/// share of a split pool and thins every test's units on an overlap pool.
+fn limits(inst: &Instance, e: usize) -> String {
+    let p = inst.portfolio;
+    let ex = &p.experiments[e];
+    let mut notes = Vec::new();
+    if ex.eligible < 1.0 {
+        notes.push(format!(
+            "{} of its units eligible",
+            crate::words::percent(ex.eligible)
+        ));
+    }
+    let holdout = p.pools[ex.pool].holdout;
+    if holdout > 0.0 {
+        notes.push(format!("{} held out", crate::words::percent(holdout)));
+    }
+    if notes.is_empty() {
+        String::new()
+    } else {
+        format!(" ({})", notes.join(", "))
+    }
+}
+
+/// `75% of `product``, with its [`limits`].
+fn share_of(inst: &Instance, e: usize, share: Share) -> String {
+    let pool = &inst.portfolio.pools[inst.portfolio.experiments[e].pool];
+    format!("{share} of `{}`{}", pool.id, limits(inst, e))
 }
 
 fn why(inst: &Instance, state: &State, e: usize) -> String {
@@ -91,23 +122,21 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     match days_needed(inst, e, start, top) {
         None => {
             return format!(
-            "needs {} units; at {} of `{}` the forecast does not deliver them within three years",
-            thousands(ex.need.total),
-            top,
-            pool.id
-        )
+                "needs {} units; at {} the forecast does not deliver them within three years",
+                thousands(ex.need.total),
+                share_of(inst, e, top)
+            )
         }
         Some(n) if n > left as i64 => {
             return if first == 0 {
                 format!(
-                    "needs {n} days at {} of `{}`; the window has {left}",
-                    top, pool.id
+                    "needs {n} days at {}; the window has {left}",
+                    share_of(inst, e, top)
                 )
             } else {
                 format!(
-                    "needs {n} days at {} of `{}`; from its earliest start on {start} the window has {left}",
-                    top,
-                    pool.id
+                    "needs {n} days at {}; from its earliest start on {start} the window has {left}",
+                    share_of(inst, e, top)
                 )
             };
         }
@@ -116,8 +145,8 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 let end = start + Duration::days(n - 1);
                 if end > dl {
                     return format!(
-                        "deadline {dl} cannot be met: at its maximum share of {} the earliest end is {end}",
-                        top
+                        "deadline {dl} cannot be met: at its maximum share of {top}{} the earliest end is {end}",
+                        limits(inst, e)
                     );
                 }
             }
@@ -161,7 +190,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
             state.count_on(inst, ex.pool, d) >= cap
                 || (split
                     && state.share_on(inst, ex.pool, d) + super::state::micro(o.share)
-                        > super::state::WHOLE)
+                        > super::state::room(pool))
         });
         pool_blocked |= full;
     }
@@ -174,7 +203,8 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let full: Vec<usize> = (span_lo..=span_hi)
             .filter(|&d| {
                 state.count_on(inst, ex.pool, d) >= cap
-                    || (split && state.share_on(inst, ex.pool, d) + least > super::state::WHOLE)
+                    || (split
+                        && state.share_on(inst, ex.pool, d) + least > super::state::room(pool))
             })
             .collect();
         let (from_d, to_d) = match (full.first(), full.last()) {

@@ -13,6 +13,12 @@ use crate::share::Share;
 /// One whole pool in millionths, as sums of [`Share`]s are kept.
 pub(crate) const WHOLE: i64 = Share::MILLION as i64;
 
+/// The most the shares on a split pool may add up to on a day, in
+/// millionths: its [`Pool::capacity`](crate::portfolio::Pool::capacity).
+pub(crate) fn room(pool: &crate::portfolio::Pool) -> i64 {
+    micro(pool.capacity())
+}
+
 /// A share in millionths, for sums that may pass one whole pool.
 pub(crate) fn micro(share: Share) -> i64 {
     i64::from(share.millionths())
@@ -89,7 +95,7 @@ impl State {
             let s = micro(o.share);
             if self.share[ex.pool][o.seg_lo..=o.seg_hi]
                 .iter()
-                .any(|&u| u + s > WHOLE)
+                .any(|&u| u + s > room(pool))
             {
                 return false;
             }

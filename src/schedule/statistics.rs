@@ -104,6 +104,10 @@ pub fn statistics(ex: &Experiment) -> TestStatistics {
 /// arms detect at the planned power; `None` when too few for any. Looks
 /// deflate the units by their inflation factor (see the module doc).
 pub fn detectable_effect(ex: &Experiment, units: f64) -> Option<f64> {
+    if ex.sample_size_given {
+        // A given sample size carries no effect to invert.
+        return None;
+    }
     let d = &ex.design;
     let inflation = ex.looks.as_ref().map_or(1.0, |l| l.design.inflation);
     let per_control = units / (1.0 + f64::from(d.arms - 1) * d.ratio) / inflation;
@@ -112,16 +116,21 @@ pub fn detectable_effect(ex: &Experiment, units: f64) -> Option<f64> {
 
 /// The day after the run from `run.start` at its share has collected
 /// `need` units under the plan's run rule, never after its result date.
-fn read_on(series: &Series, ex: &Experiment, run: &Run, need: f64) -> NaiveDate {
-    match series.run_end(0, run.share.fraction(), need, ex.min_days, ex.whole_weeks) {
+/// `entering` is the fraction of the share's units that enter the test
+/// ([`Portfolio::entering_fraction`]).
+fn read_on(series: &Series, ex: &Experiment, run: &Run, entering: f64, need: f64) -> NaiveDate {
+    let rate = run.share.fraction() * entering;
+    match series.run_end(0, rate, need, ex.min_days, ex.whole_weeks) {
         Some(i) => (run.start + Duration::days(i as i64 + 1)).min(run.result_date),
         None => run.result_date,
     }
 }
 
 /// The dates of `ex`'s looks in `run`; `None` for a single read at the end.
-pub fn look_dates(p: &Portfolio, ex: &Experiment, run: &Run) -> Option<LookDates> {
+pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
+    let ex = &p.experiments[e];
     let looks = ex.looks.as_ref()?;
+    let entering = p.entering_fraction(e, ex.pool);
     let series = Series::new(&p.pools[ex.pool], run.start, run.end);
     let max = ex.need.total as f64;
     let count = looks.design.information.len();
@@ -137,12 +146,18 @@ pub fn look_dates(p: &Portfolio, ex: &Experiment, run: &Run) -> Option<LookDates
             date: if k + 1 == count {
                 run.result_date
             } else {
-                read_on(&series, ex, run, t * max)
+                read_on(&series, ex, run, entering, t * max)
             },
             stop_probability: stop,
         })
         .collect();
-    let expected = read_on(&series, ex, run, looks.design.expected_fraction_h1 * max);
+    let expected = read_on(
+        &series,
+        ex,
+        run,
+        entering,
+        looks.design.expected_fraction_h1 * max,
+    );
     Some(LookDates {
         earliest: dates.first().map_or(run.result_date, |l| l.date),
         expected,
@@ -192,7 +207,7 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
         from + Duration::days(first as i64),
         from + Duration::days(last as i64),
     );
-    let units = share.fraction() * total;
+    let units = share.fraction() * p.entering_fraction(e, ex.pool) * total;
     let effect = (units > 0.0)
         .then(|| detectable_effect(ex, units))
         .flatten();
@@ -213,7 +228,8 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
     })
 }
 
-/// Fills every experiment's statistics, the look dates of those with a
+/// Fills every sized experiment's statistics (a given sample size has
+/// none), the look dates of those with a
 /// run, and the detectable effect of the unscheduled ones, which may start
 /// from `first_start[e]` on.
 pub(crate) fn fill(
@@ -223,9 +239,13 @@ pub(crate) fn fill(
 ) {
     for (e, out) in experiments.iter_mut().enumerate() {
         let ex = &p.experiments[e];
+        if ex.sample_size_given {
+            // No design behind the size: nothing to state or invert.
+            continue;
+        }
         out.statistics = Some(statistics(ex));
         if let Some(run) = &out.run {
-            out.looks = look_dates(p, ex, run);
+            out.looks = look_dates(p, e, run);
         } else if out.status == crate::plan::Status::Unscheduled {
             let share = crate::check::share_for(p, ex);
             out.detectable = detectable(p, e, first_start[e], share);
@@ -292,7 +312,7 @@ mod tests {
         );
         let ex = &p.experiments[0];
         let r = run(&p, 1.0);
-        let l = look_dates(&p, ex, &r).expect("looks");
+        let l = look_dates(&p, 0, &r).expect("looks");
         assert_eq!(l.dates.len(), 4);
         let max = ex.need.total as f64;
         for (k, look) in l.dates.iter().enumerate().take(3) {
@@ -319,7 +339,7 @@ mod tests {
     fn whole_weeks_put_looks_on_whole_weeks() {
         let p = portfolio("    looks: 3\n");
         let r = run(&p, 0.5);
-        let l = look_dates(&p, &p.experiments[0], &r).unwrap();
+        let l = look_dates(&p, 0, &r).unwrap();
         for look in &l.dates {
             assert_eq!((look.date - r.start).num_days() % 7, 0, "{look:?}");
         }
@@ -329,7 +349,7 @@ mod tests {
     #[test]
     fn a_fixed_horizon_test_has_no_look_dates() {
         let p = portfolio("");
-        assert_eq!(look_dates(&p, &p.experiments[0], &run(&p, 1.0)), None);
+        assert_eq!(look_dates(&p, 0, &run(&p, 1.0)), None);
     }
 
     #[test]

@@ -6,6 +6,9 @@
 //! integer priorities 1-10, and now and then an earliest start, a deadline,
 //! an `after` link or a `not_with` pair (mostly within one pool), plus a
 //! week with no starts and sometimes a week with nothing running on a pool.
+//! [`with_keys`] adds, from its own seed, what the second round of the
+//! model brought: pool holdouts, tests that admit only part of a pool,
+//! given sample sizes and adjustments that compose.
 //! The scenario is invented; nothing here models a real site.
 
 use super::search::SplitMix64;
@@ -120,6 +123,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
                 } else {
                     2 + rng.below(3) as u32
                 },
+                holdout: 0.0,
             }
         })
         .collect();
@@ -158,6 +162,8 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             pool,
             design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
             need: two_arm_need(total),
+            sample_size_given: false,
+            eligible: 1.0,
             looks: None,
             metrics: Vec::new(),
             driver: String::new(),
@@ -224,5 +230,86 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         after_order: after_order(&experiments).expect("`after` links point back, so never round"),
         experiments,
         blackouts,
+    }
+}
+
+/// Adds the keys of eligibility, holdouts, given sample sizes and
+/// composed adjustments to `p`, drawn from `seed` alone (so the rest of
+/// the portfolio stays as [`portfolio`] made it): about half the pools
+/// hold out 5%, 10% or 25% of their units (never so much that the
+/// smallest share level has no room), a third of the tests admit only
+/// 30%, 60% or 90% of their pool (their need shrinks with it, so runs
+/// stay about as long), a fifth have a given sample size, and pools with
+/// a dip get a campaign x1.3 inside it and now and then a fixed level.
+pub fn with_keys(p: &mut Portfolio, seed: u64) {
+    let mut rng = SplitMix64::new(seed.wrapping_mul(0x2545_F491).wrapping_add(101));
+    let lowest = p.share_levels.lowest().map_or(0.0, Share::fraction);
+    for pool in &mut p.pools {
+        if rng.unit() < 0.5 {
+            let h = [0.05, 0.1, 0.25][rng.below(3)];
+            if 1.0 - h >= lowest {
+                pool.holdout = h;
+            }
+        }
+        let dip = pool.forecast.adjustments.first().cloned();
+        if let Some(dip) = dip {
+            let from = dip.from + Duration::days(rng.below(4) as i64);
+            pool.forecast.adjustments.push(Adjustment {
+                from,
+                to: from + Duration::days(2),
+                change: Change::Multiply(1.3),
+                note: "campaign".into(),
+            });
+            if rng.unit() < 0.3 {
+                pool.forecast.adjustments.push(Adjustment {
+                    from: dip.to,
+                    to: dip.to,
+                    change: Change::Level(pool.forecast.daily * 0.5),
+                    note: "outage".into(),
+                });
+            }
+        }
+    }
+    for e in &mut p.experiments {
+        if rng.unit() < 0.33 {
+            e.eligible = [0.3, 0.6, 0.9][rng.below(3)];
+            e.need = two_arm_need(((e.need.total as f64 * e.eligible).round() as u64).max(2));
+        }
+        if rng.unit() < 0.2 {
+            e.sample_size_given = true;
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Over a few medium portfolios every key appears: holdouts within
+    /// each split pool's room, eligibility below 1, given sample sizes,
+    /// and days where a campaign and a dip cover the same day.
+    #[test]
+    fn with_keys_uses_every_key_and_keeps_room_for_the_smallest_share() {
+        let (mut holdouts, mut eligible, mut given, mut composed) = (0, 0, 0, 0);
+        for seed in 0..10 {
+            let mut p = portfolio(&Spec::medium(seed));
+            let before = p.clone();
+            with_keys(&mut p, seed);
+            assert_eq!(p.experiments.len(), before.experiments.len());
+            for pool in &p.pools {
+                assert!(pool.capacity() >= p.share_levels.lowest().unwrap());
+                holdouts += usize::from(pool.holdout > 0.0);
+                let a = &pool.forecast.adjustments;
+                composed +=
+                    usize::from(a.len() > 1 && a[1].from >= a[0].from && a[1].to <= a[0].to);
+            }
+            eligible += p.experiments.iter().filter(|e| e.eligible < 1.0).count();
+            given += p.experiments.iter().filter(|e| e.sample_size_given).count();
+            // Same seed, same portfolio.
+            let mut again = before.clone();
+            with_keys(&mut again, seed);
+            assert_eq!(again, p);
+        }
+        assert!(holdouts > 5 && eligible > 30 && given > 20 && composed > 3);
     }
 }

@@ -34,6 +34,7 @@ fn pool(id: &str, daily: f64, sharing: Sharing, cap: u32) -> Pool {
         },
         sharing,
         max_concurrent: cap,
+        holdout: 0.0,
     }
 }
 
@@ -45,6 +46,8 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         pool,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
         need: super::synthetic::two_arm_need(need),
+        sample_size_given: false,
+        eligible: 1.0,
         looks: None,
         metrics: Vec::new(),
         driver: String::new(),
@@ -560,26 +563,33 @@ proptest! {
         seed in 0u64..1_000_000,
     ) {
         let p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
-        let r = PlanRequest::default();
-        let a = plan(&p, &r);
-        if let Err(v) = verify(&p, &r, &a) {
-            panic!("verifier: {v:#?}");
-        }
-        prop_assert!(a.solver.value <= a.solver.bound + 1e-9);
-        prop_assert!(a.solver.value >= a.greedy_value - 1e-9);
-        prop_assert_ne!(a.solver.status, SolverStatus::Greedy);
-        // Same input, same plan.
-        let mut b = plan(&p, &r);
-        b.solver.seconds = a.solver.seconds;
-        prop_assert_eq!(&a, &b);
-        // A re-plan from a few weeks in keeps the running tests.
-        let rr = replan_request(&p, &a, (seed % 3) as i64 + 1);
-        let c = plan(&p, &rr);
-        if let Err(v) = verify(&p, &rr, &c) {
-            panic!("verifier on the re-plan: {v:#?}");
-        }
-        prop_assert_ne!(c.solver.status, SolverStatus::Greedy);
+        plans_and_replans_verified(&p, seed);
     }
+}
+
+/// Plans `p`, verifies the plan (value between greedy and the bound, not
+/// the fallback, the same plan twice) and a re-plan from a few weeks in
+/// that keeps the running tests; returns the first plan.
+fn plans_and_replans_verified(p: &Portfolio, seed: u64) -> Plan {
+    let r = PlanRequest::default();
+    let a = plan(p, &r);
+    if let Err(v) = verify(p, &r, &a) {
+        panic!("verifier: {v:#?}");
+    }
+    assert!(a.solver.value <= a.solver.bound + 1e-9);
+    assert!(a.solver.value >= a.greedy_value - 1e-9);
+    assert_ne!(a.solver.status, SolverStatus::Greedy);
+    // Same input, same plan.
+    let mut b = plan(p, &r);
+    b.solver.seconds = a.solver.seconds;
+    assert_eq!(&a, &b);
+    let rr = replan_request(p, &a, (seed % 3) as i64 + 1);
+    let c = plan(p, &rr);
+    if let Err(v) = verify(p, &rr, &c) {
+        panic!("verifier on the re-plan: {v:#?}");
+    }
+    assert_ne!(c.solver.status, SolverStatus::Greedy);
+    a
 }
 
 proptest! {
@@ -762,4 +772,149 @@ fn a_plan_the_clock_cut_short_says_so_in_every_format() {
     assert!(!String::from_utf8(text)
         .unwrap()
         .contains("cut the search short"));
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 200, ..ProptestConfig::default() })]
+
+    /// Random portfolios with holdouts, eligibility, given sample sizes
+    /// and composed adjustments ([`synthetic::with_keys`]) plan to
+    /// calendars the independent verifier passes, and so do their re-plans.
+    #[test]
+    fn random_portfolios_with_the_new_keys_plan_to_verified_calendars(
+        tests in 1usize..8,
+        pools in 1usize..4,
+        weeks in 3usize..9,
+        seed in 0u64..1_000_000,
+    ) {
+        let mut p = synthetic::portfolio(&synthetic::Spec { tests, pools, weeks, seed });
+        synthetic::with_keys(&mut p, seed);
+        let a = plans_and_replans_verified(&p, seed);
+        for (pool, pp) in p.pools.iter().zip(&a.pools) {
+            if pool.sharing == Sharing::Split {
+                for day in &pp.days {
+                    prop_assert!(day.share_used <= 1.0 - pool.holdout + 1e-9);
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn eligibility_lengthens_a_run_by_its_own_arithmetic() {
+    // 1,000 units a day at 100%; 4,200 units: 5 days, the 7-day minimum,
+    // ends day 6. At 30% eligible 300 a day enter: 14 days, ends day 13.
+    let mut b = exp("b", 1, 4200, 1.0);
+    b.eligible = 0.3;
+    let p = portfolio(
+        vec![
+            pool("a", 1000.0, Sharing::Split, 3),
+            pool("b", 1000.0, Sharing::Split, 3),
+        ],
+        vec![exp("a", 0, 4200, 1.0), b],
+    );
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        run_of(&plan, "a"),
+        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
+    );
+    assert_eq!(
+        run_of(&plan, "b"),
+        Some((d("2027-01-04"), d("2027-01-17"), 1.0))
+    );
+    let e = plan.experiments.iter().find(|e| e.id == "b").unwrap();
+    assert!((e.run.unwrap().units_expected - 4200.0).abs() < 1e-9);
+    // The verifier re-derives the end: one day short is refused.
+    let mut bad = plan.clone();
+    let run = bad.experiments[1].run.as_mut().unwrap();
+    run.end = d("2027-01-10");
+    run.result_date = d("2027-01-11");
+    run.days = 7;
+    assert!(verify(&p, &PlanRequest::default(), &bad).is_err());
+}
+
+#[test]
+fn a_split_holdout_keeps_the_shares_under_its_capacity() {
+    // 5% held out: 100% does not fit, nor 50% + 50%; two 50% tests of a
+    // week each (3,500 units at 500 a day) run one after the other.
+    let mut home = pool("home", 1000.0, Sharing::Split, 3);
+    home.holdout = 0.05;
+    assert_eq!(home.capacity(), Share::from_fraction(0.95));
+    let p = portfolio(
+        vec![home],
+        vec![exp("a", 0, 3500, 2.0), exp("b", 0, 3500, 1.0)],
+    );
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        run_of(&plan, "a"),
+        Some((d("2027-01-04"), d("2027-01-10"), 0.5))
+    );
+    assert_eq!(
+        run_of(&plan, "b"),
+        Some((d("2027-01-11"), d("2027-01-17"), 0.5))
+    );
+    assert_eq!(plan.pools[0].holdout, 0.05);
+    // Side by side they would use 100% of a pool whose room is 95%.
+    let mut bad = plan.clone();
+    let run = bad.experiments[1].run.as_mut().unwrap();
+    (run.start, run.end, run.result_date) = (d("2027-01-04"), d("2027-01-10"), d("2027-01-11"));
+    for day in &mut bad.pools[0].days[..7] {
+        day.share_used = 1.0;
+        day.running = 2;
+    }
+    for day in &mut bad.pools[0].days[7..14] {
+        day.share_used = 0.0;
+        day.running = 0;
+    }
+    bad.solver.value += 7.0 / 27.0 * 0.5;
+    let errors = verify(&p, &PlanRequest::default(), &bad).unwrap_err();
+    assert!(
+        errors.iter().any(|e| e.contains("over 0.95")),
+        "{errors:#?}"
+    );
+}
+
+#[test]
+fn an_overlap_holdout_scales_every_tests_units() {
+    // 1,000 a day less 20%: 800 enter at 100%; 8,000 units take 10 days
+    // (8 without the holdout), ending day 9.
+    let mut news = pool("news", 1000.0, Sharing::Overlap, 2);
+    news.holdout = 0.2;
+    let mut a = exp("a", 0, 8000, 1.0);
+    a.whole_weeks = false;
+    let p = portfolio(vec![news], vec![a]);
+    assert_eq!(p.entering_fraction(0, 0), 0.8);
+    assert_eq!(p.pools[0].capacity(), Share::WHOLE);
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        run_of(&plan, "a"),
+        Some((d("2027-01-04"), d("2027-01-13"), 1.0))
+    );
+}
+
+#[test]
+fn the_reason_names_eligibility_and_the_holdout() {
+    // 10,000 units at 300 a day (30% of 1,000 eligible): 34 days, 35 in
+    // whole weeks, more than the window's 28.
+    let mut a = exp("a", 0, 10_000, 1.0);
+    a.eligible = 0.3;
+    let p = portfolio(vec![pool("home", 1000.0, Sharing::Overlap, 2)], vec![a]);
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        reason_of(&plan, "a"),
+        "needs 35 days at 100% of `home` (30% of its units eligible); the window has 28"
+    );
+    // A split pool with a 5% holdout caps the share at 50% (the levels are
+    // 50% and 100%): 10,000 at 500 a day is 20 days, 21 in whole weeks,
+    // past a deadline of 2027-01-17.
+    let mut b = exp("b", 0, 10_000, 1.0);
+    b.deadline = Some(d("2027-01-17"));
+    let mut shop = pool("shop", 1000.0, Sharing::Split, 2);
+    shop.holdout = 0.05;
+    let p = portfolio(vec![shop], vec![b]);
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        reason_of(&plan, "b"),
+        "deadline 2027-01-17 cannot be met: at its maximum share of 50% (5% held out) the earliest end is 2027-01-24"
+    );
 }

@@ -29,6 +29,15 @@ fn own_end(
 ) -> Option<NaiveDate> {
     let (pool, need) = (ex.pool, ex.need.total as f64);
     let (min_days, whole_weeks) = (ex.min_days, ex.whole_weeks);
+    // What enters the test of the units under its share: the targeting's
+    // fraction, and on an overlap pool what its holdout leaves.
+    let the_pool = &portfolio.pools[pool];
+    let open = if the_pool.sharing == Sharing::Overlap {
+        1.0 - the_pool.holdout
+    } else {
+        1.0
+    };
+    let share = share * ex.eligible * open;
     let mut total = 0.0;
     let mut day = start;
     let mut n: i64 = 0;
@@ -80,6 +89,12 @@ pub fn verify(
         }
         if pe.pool != p.pools[ex.pool].id {
             bad.push(format!("`{}` is listed on pool `{}`", ex.id, pe.pool));
+        }
+        if pe.eligible != ex.eligible || pe.sample_size_given != ex.sample_size_given {
+            bad.push(format!(
+                "`{}` lists eligible {} and a given sample size {}; the portfolio says {} and {}",
+                ex.id, pe.eligible, pe.sample_size_given, ex.eligible, ex.sample_size_given
+            ));
         }
         if pe.units_needed != ex.need.total {
             bad.push(format!(
@@ -263,6 +278,12 @@ pub fn verify(
     let mut facts: Vec<String> = Vec::new();
     for (pi, pool) in p.pools.iter().enumerate() {
         let pp = plan.pools.get(pi);
+        if pp.is_some_and(|pp| pp.holdout != pool.holdout) {
+            bad.push(format!(
+                "the plan gives `{}` a holdout its portfolio does not",
+                pool.id
+            ));
+        }
         let mut day = w.start;
         let mut k = 0usize;
         // First and last day of the input's overload, and its peak.
@@ -299,13 +320,16 @@ pub fn verify(
                     }
                 }
             }
-            let over_share = pool.sharing == Sharing::Split && used > 1.0 + TOL;
+            // A split pool's holdout is a slice no test may take.
+            let over_share = pool.sharing == Sharing::Split && used > 1.0 - pool.holdout + TOL;
             let over_count = count > pool.max_concurrent;
             let excused = !planned && used <= given + TOL;
             if over_share && !excused {
                 bad.push(format!(
-                    "`{}` is shared {:.4} on {day}, over 1",
-                    pool.id, used
+                    "`{}` is shared {:.4} on {day}, over {}",
+                    pool.id,
+                    used,
+                    1.0 - pool.holdout
                 ));
             }
             if over_count && planned {

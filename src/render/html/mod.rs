@@ -141,7 +141,7 @@ struct RunWords {
 impl RunWords {
     fn of(e: &PlannedExperiment, r: &Run) -> RunWords {
         RunWords {
-            share: r.share.to_string(),
+            share: crate::render::common::share_words(e, r.share),
             start: r.start,
             end: r.end,
             days: r.days,
@@ -327,6 +327,19 @@ impl Renderer for Html {
                     "{}: each test may see every unit, so each day's bar counts the tests running; the dashed line is the limit of {} at once.",
                     p.label, p.max_concurrent
                 )
+            };
+            let caption = match crate::render::common::holdout_words(p) {
+                Some(_) if is_split(p) => format!(
+                    "{}: each day's bar is the sum of the shares of the tests running; the dashed line is the {} of the pool they may share ({} is held out of every test).",
+                    p.label,
+                    crate::words::percent(1.0 - p.holdout),
+                    crate::words::percent(p.holdout)
+                ),
+                Some(h) => format!(
+                    "{caption} {h}: each test gets {} of the units under its share.",
+                    crate::words::percent(1.0 - p.holdout)
+                ),
+                None => caption,
             };
             let _ = writeln!(s, "<figcaption>{}</figcaption></figure>", esc(&caption));
         }

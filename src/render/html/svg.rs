@@ -287,6 +287,10 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
             Some(p) => format!("{label} · overlap · up to {} at once", p.max_concurrent),
             None => label.clone(),
         };
+        let heading = match pool.and_then(crate::render::common::holdout_words) {
+            Some(h) => format!("{heading} · {h}"),
+            None => heading,
+        };
         let _ = writeln!(
             s,
             r##"<rect x="0" y="{group_top:.1}" width="{SVG_W:.0}" height="{GROUP_H:.1}" fill="#f3f5f7"/><rect x="0" y="{group_top:.1}" width="5" height="{:.1}" fill="{}"/><text x="12" y="{:.1}" font-size="13" font-weight="700" fill="#1c2127">{}</text>"##,
@@ -440,7 +444,7 @@ fn bar(
 }
 
 /// One pool's daily use against its capacity: the share in use for split
-/// pools (capacity 100%), the number of tests running for overlap pools
+/// pools (capacity 100% less the holdout), the number of tests running for overlap pools
 /// (capacity: how many may run at once).
 pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String) {
     let scale = Scale::new(plan);
@@ -452,8 +456,9 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
             f64::from(d.running)
         }
     };
+    // A split pool's room is what its holdout leaves.
     let capacity = if split {
-        1.0
+        1.0 - p.holdout
     } else {
         f64::from(p.max_concurrent.max(1))
     };
@@ -464,7 +469,10 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
     let y = |v: f64| bottom - (v / top_value) * (bottom - top);
     let id = format!("pool-{index}");
     let what = if split {
-        "share of the pool's units in use each day, against 100%".to_string()
+        format!(
+            "share of the pool's units in use each day, against {}",
+            percent(capacity)
+        )
     } else {
         format!(
             "tests running each day, against the limit of {} at once",
@@ -517,7 +525,7 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
         (
             capacity,
             if split {
-                "100%".to_string()
+                percent(capacity)
             } else {
                 format!("{} at once", p.max_concurrent)
             },

@@ -250,6 +250,15 @@ impl Renderer for Text {
         );
         let _ = writeln!(out);
         let _ = writeln!(out, "{}", table::experiments(plan, width, colour));
+        for e in plan.experiments.iter().filter(|e| e.eligible < 1.0) {
+            let line = format!(
+                "{} admits {} of {}'s units; its share is of the whole pool.",
+                e.id,
+                crate::words::percent(e.eligible),
+                e.pool
+            );
+            let _ = write!(out, "{}", wrap_hanging("* ", &line, width));
+        }
         let _ = writeln!(out);
         numbers(plan, width, colour, &mut out);
         timeline::draw(plan, width, colour, &mut out);

@@ -119,6 +119,14 @@ impl Track {
 }
 
 fn pool_heading(p: &PoolPlan) -> String {
+    let heading = pool_rule(p);
+    match super::super::common::holdout_words(p) {
+        Some(h) => format!("{heading} · {h}"),
+        None => heading,
+    }
+}
+
+fn pool_rule(p: &PoolPlan) -> String {
     if is_split(p) {
         format!(
             "{} · split pool · up to {} at once",
