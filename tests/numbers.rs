@@ -297,7 +297,7 @@ fn the_trades_words_for_keys_get_a_hint_naming_sluices_key() {
         (
             "sample_size_per_variant",
             "20000",
-            "`baseline`, `mde` or `mde_abs`",
+            "is `sample_size` (treatment arms get `ratio` x it)",
         ),
         ("variants", "3", "`arms`"),
     ] {

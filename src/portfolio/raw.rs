@@ -313,7 +313,7 @@ const TRADE_WORDS: &[(&[&str], &[&str], &str)] = &[
             "users_per_variant",
             "sample_per_variant",
         ],
-        "sluice sizes the test from the sizing keys: `baseline`, `mde` or `mde_abs`, `alpha`, `power`, `arms` (and `sd` for a mean)",
+        "a control arm's size known from elsewhere is `sample_size` (treatment arms get `ratio` x it); otherwise sluice sizes the test from `baseline`, `mde` or `mde_abs`, `alpha`, `power`, `arms` (and `sd` for a mean)",
     ),
     (
         &["experiments[]", "defaults"],
@@ -356,7 +356,7 @@ mod tests {
         let hint = |shape, key| trade_word_hint(shape, key).unwrap_or("");
         assert!(hint("experiments[]", "traffic_split").contains("`max_share`"));
         assert!(hint("experiments[]", "Mutually-Exclusive").contains("`not_with`"));
-        assert!(hint("experiments[]", "sample_size_per_variant").contains("`mde`"));
+        assert!(hint("experiments[]", "sample_size_per_variant").contains("`sample_size`"));
         assert!(hint("defaults", "variants").contains("`arms`"));
         // Only where sluice has the key, and never for a key it accepts.
         assert_eq!(trade_word_hint("pools[]", "variants"), None);
