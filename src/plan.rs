@@ -153,6 +153,10 @@ pub struct ResultRange {
     /// The share of paths whose run ends by its deadline, or by the
     /// window's last day without one.
     pub on_time: f64,
+    /// With `planning.confidence`: the share of paths whose run ends by
+    /// its planned end, so its result comes by its planned result date.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub on_plan: Option<f64>,
 }
 
 /// What a finished or cancelled test ran before today: kept in a re-plan

@@ -111,22 +111,46 @@ impl Series {
         min_days: u32,
         whole_weeks: bool,
     ) -> Option<usize> {
-        if start >= self.units.len() || share <= 0.0 {
+        self.run_end_from(start as i64, start, start, share, need, min_days, whole_weeks)
+    }
+
+    /// [`Series::run_end`] for a run that may already be under way: it
+    /// began on day index `start` (negative before the span), counts `need`
+    /// more units from day index `from`, and ends no earlier than
+    /// `not_before`; its minimum run and whole weeks count from `start`.
+    /// A run with nothing left to collect reaches its need on `not_before`.
+    #[allow(clippy::too_many_arguments)]
+    pub fn run_end_from(
+        &self,
+        start: i64,
+        from: usize,
+        not_before: usize,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> Option<usize> {
+        if from >= self.units.len() || share <= 0.0 {
             return None;
         }
-        // First index e with share x (cum[e + 1] - cum[start]) >= need.
-        let base = self.cumulative[start];
-        let target = need / share + base;
-        // Tolerate rounding noise in the running totals.
-        let target = target - 1e-9 * target.abs().max(1.0);
-        let tail = &self.cumulative[start + 1..];
-        let k = tail.partition_point(|&c| c < target);
-        if k >= tail.len() {
-            return None;
-        }
-        let days = crate::sizing::round_days(k as u64 + 1, min_days, whole_weeks) as usize;
+        let reached = if need > 0.0 {
+            // First index k >= from with share x (cum[k + 1] - cum[from]) >= need.
+            let target = need / share + self.cumulative[from];
+            // Tolerate rounding noise in the running totals.
+            let target = target - 1e-9 * target.abs().max(1.0);
+            let tail = &self.cumulative[from + 1..];
+            let k = tail.partition_point(|&c| c < target);
+            if k >= tail.len() {
+                return None;
+            }
+            (from + k).max(not_before)
+        } else {
+            not_before
+        };
+        let days = (reached as i64 - start + 1).max(1) as u64;
+        let days = crate::sizing::round_days(days, min_days, whole_weeks) as i64;
         let end = start + days - 1;
-        (end < self.units.len()).then_some(end)
+        (end >= 0 && (end as usize) < self.units.len()).then_some(end as usize)
     }
 }
 

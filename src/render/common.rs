@@ -4,7 +4,9 @@
 //! Nothing here computes a schedule fact: runs, shares and result dates are
 //! read from the plan as they are.
 
-use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Sharing, SolverStatus, Status};
+use crate::plan::{
+    Plan, PlanBlackout, PlannedExperiment, PoolPlan, ResultRange, Sharing, SolverStatus, Status,
+};
 pub(crate) use crate::words::{percent, thousands, units};
 use chrono::{Duration, NaiveDate};
 
@@ -222,6 +224,48 @@ checked daily. The dates assume the traffic forecast holds, and real traffic alw
 from a forecast, so leave a margin and re-plan when traffic moves. Tests that touch pricing, \
 health or vulnerable users go through your organisation's own review, whatever this plan \
 says fits.";
+
+/// What result ranges cover, after [`CAUTION`] in plans that have them.
+pub const RANGES_CAUTION: &str = "The result ranges (P10 to P90) come from simulated traffic \
+around the forecast: they cover the forecast being off, for a whole run or day to day, and \
+nothing else. They do not cover a wrong baseline rate or variance, or an effect other than the \
+one planned for: those change how many units a test needs, which every simulated path takes \
+as given.";
+
+/// The cautions for `plan`: [`CAUTION`], and [`RANGES_CAUTION`] when any
+/// test has a result range.
+pub fn caution(plan: &Plan) -> String {
+    if has_ranges(plan) {
+        format!("{CAUTION} {RANGES_CAUTION}")
+    } else {
+        CAUTION.to_string()
+    }
+}
+
+/// Whether any test of `plan` has a result range.
+pub fn has_ranges(plan: &Plan) -> bool {
+    plan.experiments.iter().any(|e| e.result_range.is_some())
+}
+
+/// A result range in words: `P10 – P90`, one date when they agree, and
+/// `later` for a quantile past the simulated span.
+pub fn range_words(r: &ResultRange) -> String {
+    let day = |d: Option<NaiveDate>| d.map_or("later".to_string(), |d| d.to_string());
+    if r.p10 == r.p90 {
+        day(r.p10)
+    } else {
+        format!("{} – {}", day(r.p10), day(r.p90))
+    }
+}
+
+/// "on time 83%", and with a confidence plan "by plan 81%".
+pub fn chance_words(r: &ResultRange) -> String {
+    let mut s = format!("on time {}", percent(r.on_time));
+    if let Some(p) = r.on_plan {
+        s.push_str(&format!(", by plan {}", percent(p)));
+    }
+    s
+}
 
 /// Lays `t` out to fit `width` columns (comfy-table's dynamic arrangement),
 /// or at its natural width when there is no width to fit.

@@ -27,10 +27,24 @@ pub const HEADER: [&str; 14] = [
     "reason",
 ];
 
+/// The result-range columns after [`HEADER`]: the P10, P50 and P90 result
+/// dates and the on-time share (a fraction), empty without a range.
+pub const RANGE_HEADER: [&str; 4] = ["result_p10", "result_p50", "result_p90", "on_time"];
+
+/// `e`'s cells under [`RANGE_HEADER`].
+fn range_cells(e: &crate::plan::PlannedExperiment) -> [String; 4] {
+    let Some(r) = &e.result_range else {
+        return Default::default();
+    };
+    let day = |d: Option<chrono::NaiveDate>| d.map(|d| d.to_string()).unwrap_or_default();
+    [day(r.p10), day(r.p50), day(r.p90), r.on_time.to_string()]
+}
+
 impl Renderer for Csv {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut w = csv::Writer::from_writer(Vec::new());
-        w.write_record(HEADER).map_err(RenderError::Csv)?;
+        w.write_record(HEADER.iter().chain(&RANGE_HEADER))
+            .map_err(RenderError::Csv)?;
         for e in &plan.experiments {
             let opt = |f: &dyn Fn(&Run) -> String| e.run.as_ref().map(f).unwrap_or_default();
             // A finished or cancelled test keeps the days it ran (re-plans).
@@ -60,7 +74,8 @@ impl Renderer for Csv {
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),
             ];
-            w.write_record(&row).map_err(RenderError::Csv)?;
+            w.write_record(row.iter().chain(&range_cells(e)))
+                .map_err(RenderError::Csv)?;
         }
         w.into_inner()
             .map_err(|e| RenderError::Csv(csv::Error::from(e.into_error())))
@@ -77,7 +92,8 @@ mod tests {
         let plan = fixture::plan();
         let bytes = Csv.render(&plan, &RenderOptions::default()).unwrap();
         let mut r = csv::Reader::from_reader(bytes.as_slice());
-        assert_eq!(r.headers().unwrap(), HEADER.as_slice());
+        let header: Vec<&str> = HEADER.iter().chain(&RANGE_HEADER).copied().collect();
+        assert_eq!(r.headers().unwrap(), header.as_slice());
         let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
         assert_eq!(rows.len(), plan.experiments.len());
         for (row, e) in rows.iter().zip(&plan.experiments) {

@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{counts, long_date, pool_label, CAUTION};
+use super::common::{counts, has_ranges, long_date, pool_label, range_words};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -120,6 +120,32 @@ fn changes(plan: &Plan) -> String {
     s
 }
 
+/// The result-range column's header cell and divider cell: empty when
+/// no test has a range.
+fn range_head(plan: &Plan) -> (&'static str, &'static str) {
+    if has_ranges(plan) {
+        (" Result due (P10–P90) |", "---|")
+    } else {
+        ("", "")
+    }
+}
+
+/// `e`'s result-range cell with its trailing ` |` (empty when no test has
+/// a range): its dates and on-time share.
+fn range_cell(plan: &Plan, e: &crate::plan::PlannedExperiment) -> String {
+    if !has_ranges(plan) {
+        return String::new();
+    }
+    let words = e.result_range.as_ref().map_or(String::new(), |r| {
+        format!(
+            "{} ({})",
+            range_words(r),
+            super::common::chance_words(r)
+        )
+    });
+    format!(" {} |", table_cell(&words))
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut md = changes(plan);
@@ -140,8 +166,9 @@ impl Renderer for Markdown {
             let _ = writeln!(w, "> **Cut short.** {}\n", escape_keeping_code(note));
         }
         if fit > 0 {
-            let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
-            let _ = writeln!(w, "|---|---|---|---|--:|---|");
+            let (head, rule) = range_head(plan);
+            let _ = writeln!(w, "| Result due |{head} Test | Pool | Runs | Share | Owner |");
+            let _ = writeln!(w, "|---|{rule}---|---|---|--:|---|");
             let mut rows: Vec<_> = plan
                 .experiments
                 .iter()
@@ -152,8 +179,9 @@ impl Renderer for Markdown {
             for (run, e) in rows {
                 let _ = writeln!(
                     w,
-                    "| {} | {} (`{}`) | {} | {} to {} | {} | {} |",
+                    "| {} |{} {} (`{}`) | {} | {} to {} | {} | {} |",
                     long_date(run.result_date),
+                    range_cell(plan, e),
                     escape(&e.title),
                     e.id.replace('`', "'"),
                     escape(pool_label(plan, &e.pool)),
@@ -207,7 +235,7 @@ impl Renderer for Markdown {
             }
             let _ = writeln!(w);
         }
-        let _ = writeln!(w, "### Assumptions\n\n{CAUTION}");
+        let _ = writeln!(w, "### Assumptions\n\n{}", super::common::caution(plan));
         Ok(md.into_bytes())
     }
 }

@@ -303,6 +303,10 @@ pub fn replan(
             share: l.outlook.share,
             share_before: l.run.share,
             end: held_to(portfolio, &l.outlook),
+            so_far: Some(crate::forecast::uncertainty::SoFar {
+                as_of: l.run.as_of,
+                units: l.run.collected,
+            }),
         });
         outlooks.push(l.outlook.clone());
     }

@@ -22,6 +22,7 @@ pub mod synthetic;
 #[cfg(test)]
 mod tests;
 mod verify;
+mod confidence;
 
 pub use lp::Backend;
 pub use verify::verify;
@@ -53,6 +54,9 @@ pub struct FixedRun {
     /// Last day of data, as the caller computed it (it may lie past the
     /// window, or before today for a test ready to read).
     pub end: NaiveDate,
+    /// What it had collected when its counts were read: its result range
+    /// is simulated from then; `None` gives it no range.
+    pub so_far: Option<crate::forecast::uncertainty::SoFar>,
 }
 
 impl FixedRun {
@@ -165,8 +169,17 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
 
 /// Plans the portfolio. Always returns a plan: when the solver fails or the
 /// time limit runs out, the best calendar found so far (at worst the greedy
-/// one), with the bound and gap that could be proved.
+/// one), with the bound and gap that could be proved. With
+/// `planning.confidence`, see [`confidence::plan`].
 pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
+    match portfolio.planning.confidence {
+        Some(c) => confidence::plan(portfolio, request, c),
+        None => plan_once(portfolio, request),
+    }
+}
+
+/// Plans the portfolio on its forecast as it is.
+fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let clock = Instant::now();
     let cut = std::cell::Cell::new(false);
     let deadline = search::Deadline::new(
@@ -366,7 +379,12 @@ fn assemble(
             out
         })
         .collect();
-    crate::forecast::uncertainty::fill_ranges(p, &mut experiments);
+    let so_far: Vec<_> = request
+        .fixed
+        .iter()
+        .filter_map(|f| f.so_far.map(|s| (f.experiment, s)))
+        .collect();
+    crate::forecast::uncertainty::fill_ranges(p, &mut experiments, &so_far, today);
     let pools = p
         .pools
         .iter()

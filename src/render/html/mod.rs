@@ -23,7 +23,7 @@ mod svg;
 mod table;
 
 use super::common::{
-    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTION,
+    counts, is_split, long_date, pool_label, solver_sentence, thousands, units,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -309,7 +309,7 @@ impl Renderer for Html {
 <li>Every date is an estimate from the traffic forecast. Real traffic differs from any forecast; leave a margin and re-plan when it moves.</li>
 <li>Tests that touch pricing, health or vulnerable users go through your organisation's own review, whatever this plan says fits.</li>
 </ul><p>{}</p></section>"#,
-            esc(CAUTION)
+            esc(&crate::render::common::caution(plan))
         );
 
         let _ = writeln!(

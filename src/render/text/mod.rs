@@ -15,7 +15,7 @@ mod changes;
 mod table;
 mod timeline;
 
-use super::common::{counts, long_date, solver_sentence, weeks, CAUTION};
+use super::common::{counts, long_date, solver_sentence, weeks};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::Plan;
 use std::fmt::Write;
@@ -231,7 +231,7 @@ impl Renderer for Text {
         let _ = writeln!(out);
         let _ = write!(out, "{}", wrap(&solver_sentence(plan), width, ""));
         let _ = writeln!(out);
-        let _ = write!(out, "{}", wrap(CAUTION, width, ""));
+        let _ = write!(out, "{}", wrap(&super::common::caution(plan), width, ""));
         Ok(out.into_bytes())
     }
 }
