@@ -175,3 +175,186 @@ fn too_few_paths_is_an_error_at_its_key() {
         "{stderr}"
     );
 }
+
+/// `sluice plan` of `path` in `format`, as text.
+fn plan_as(path: &Path, format: &str) -> String {
+    cmd(&[
+        "plan",
+        path.to_str().unwrap(),
+        "--format",
+        format,
+        "--no-timing",
+    ])
+    .stdout()
+}
+
+/// The product pool's scheduled tests with their ranges, from the JSON.
+fn product_ranges(v: &Value) -> Vec<(String, Value)> {
+    v["experiments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|e| e["pool"] == "product" && e["status"] == "scheduled")
+        .map(|e| (e["id"].as_str().unwrap().to_string(), e["result_range"].clone()))
+        .collect()
+}
+
+#[test]
+fn every_format_shows_the_same_ranges_as_the_json() {
+    let (_dir, path) = quickstart_with(NOISY, "");
+    let (_, v) = plan_json(&path);
+    let ranges = product_ranges(&v);
+    assert!(!ranges.is_empty());
+    // CSV: the columns, read back with the csv crate.
+    let csv = plan_as(&path, "csv");
+    let mut r = csv::Reader::from_reader(csv.as_bytes());
+    let header = r.headers().unwrap().clone();
+    let col = |name: &str| header.iter().position(|h| h == name).unwrap();
+    let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
+    for (id, range) in &ranges {
+        let row = rows.iter().find(|row| &row[0] == id).unwrap();
+        for q in ["p10", "p50", "p90"] {
+            assert_eq!(&row[col(&format!("result_{q}"))], range[q].as_str().unwrap());
+        }
+        let on_time: f64 = row[col("on_time")].parse().unwrap();
+        assert_eq!(on_time, range["on_time"].as_f64().unwrap());
+    }
+    // A test without a range has empty cells.
+    let other = rows.iter().find(|row| &row[3] != "product").unwrap();
+    assert_eq!(&other[col("result_p50")], "");
+    // Markdown: a column, and each product test's P10 – P90 in its row.
+    let md = plan_as(&path, "md");
+    assert!(md.contains("| Result due | Result due (P10–P90) | Test |"), "{md}");
+    for (id, range) in &ranges {
+        let row = md
+            .lines()
+            .find(|l| l.contains(&format!("(`{id}`)")))
+            .unwrap();
+        let words = format!(
+            "{} – {}",
+            range["p10"].as_str().unwrap(),
+            range["p90"].as_str().unwrap()
+        );
+        assert!(row.contains(&words), "{row}");
+        assert!(row.contains("on time "), "{row}");
+    }
+    // ICS: the range in the result event's description.
+    let ics = plan_as(&path, "ics");
+    let unfolded = ics.replace("\r\n ", "");
+    let mut seen = 0;
+    for (id, range) in &ranges {
+        let event = unfolded
+            .split("BEGIN:VEVENT")
+            .find(|e| e.contains(&format!("SUMMARY:Result due: ")) && e.contains(&format!("[{id}]")))
+            .unwrap();
+        assert!(
+            event.contains(&format!(
+                "Result range (P10–P90): {} – {}",
+                range["p10"].as_str().unwrap(),
+                range["p90"].as_str().unwrap()
+            )),
+            "{event}"
+        );
+        seen += 1;
+    }
+    assert_eq!(seen, ranges.len());
+    // HTML: one whisker per test with a range, and the on-time share in
+    // the table.
+    let html = plan_as(&path, "html");
+    assert_eq!(html.matches(r#"<g class="range">"#).count(), ranges.len());
+    for (_, range) in &ranges {
+        let words = format!(
+            "P10–P90 {} – {}",
+            range["p10"].as_str().unwrap(),
+            range["p90"].as_str().unwrap()
+        );
+        assert!(html.contains(&words), "{words}");
+    }
+    assert!(html.contains("on time "));
+    // The cautions say what the ranges cover, in every report.
+    for out in [&md, &html, &plan_as(&path, "text")] {
+        assert!(out.contains("not cover a wrong baseline rate or variance"));
+    }
+}
+
+#[test]
+fn without_ranges_the_outputs_say_nothing_of_them() {
+    let (_dir, path) = quickstart_with("", "");
+    let md = plan_as(&path, "md");
+    assert!(!md.contains("P10"), "{md}");
+    let html = plan_as(&path, "html");
+    assert!(!html.contains(r#"class="range""#));
+    assert!(!html.contains("wrong baseline rate"));
+    let ics = plan_as(&path, "ics");
+    assert!(!ics.contains("Result range"));
+}
+
+#[test]
+fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
+    let (_a, plain) = quickstart_with(NOISY, "planning: {paths: 1000}\n");
+    let (_b, sure) = quickstart_with(NOISY, "planning: {paths: 1000, confidence: 0.8}\n");
+    let (_, before) = plan_json(&plain);
+    let (_, after) = plan_json(&sure);
+    let ends = |v: &Value| -> Vec<(String, String)> {
+        v["experiments"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|e| e["pool"] == "product" && e["status"] == "scheduled")
+            .map(|e| {
+                (
+                    e["id"].as_str().unwrap().to_string(),
+                    e["result_date"].as_str().unwrap().to_string(),
+                )
+            })
+            .collect()
+    };
+    let mut later = 0;
+    for e in after["experiments"].as_array().unwrap() {
+        if e["status"] != "scheduled" || e["pool"] != "product" {
+            continue;
+        }
+        let r = &e["result_range"];
+        let on_plan = r["on_plan"].as_f64().expect("a confidence plan reports on_plan");
+        assert!(on_plan >= 0.8, "{e}");
+        // The units needed are the test's own, not what the planner asked.
+        let id = e["id"].as_str().unwrap();
+        let plain_e = before["experiments"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|x| x["id"] == id)
+            .unwrap();
+        assert_eq!(e["units_needed"], plain_e["units_needed"]);
+        if plain_e["status"] == "scheduled" && plain_e["start"] == e["start"] {
+            assert!(e["result_date"].as_str() >= plain_e["result_date"].as_str());
+            later += usize::from(e["result_date"] != plain_e["result_date"]);
+        }
+    }
+    // Without the key the plan is the forecast's own: some tests on the
+    // noisy pool end before their P80 there, and later with it.
+    assert!(product_ranges(&before)
+        .iter()
+        .all(|(_, r)| r.get("on_plan").is_none()));
+    assert!(later > 0, "{:?} vs {:?}", ends(&before), ends(&after));
+    let text = cmd(&["plan", sure.to_str().unwrap(), "--no-timing"])
+        .env("COLUMNS", "160")
+        .stdout();
+    assert!(text.contains("(by plan "), "{text}");
+}
+
+#[test]
+fn a_confidence_out_of_range_is_an_error_at_its_key() {
+    let (_dir, path) = quickstart_with("", "planning: {confidence: 1.2}\n");
+    let out = cmd(&["plan", path.to_str().unwrap()]).assert_exit_code(2);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("`confidence` is 1.2"), "{stderr}");
+    assert!(stderr.contains("p.yaml:"), "{stderr}");
+}
+
+#[test]
+fn a_confidence_without_uncertain_pools_changes_nothing() {
+    let (_a, plain) = quickstart_with("", "");
+    let (_b, sure) = quickstart_with("", "planning: {confidence: 0.9}\n");
+    assert_eq!(plan_json(&plain).0, plan_json(&sure).0);
+}
