@@ -1013,3 +1013,27 @@ fn running_flags_are_exactly_the_documented_codes() {
     }
     assert!(seen.contains("cannot_finish"), "{seen:?}");
 }
+
+#[test]
+fn running_tests_get_ranges_from_today_with_their_units_so_far() {
+    let v = replan_json(&demo(), day30_progress(), DAY30, &[]);
+    let today = d(DAY30);
+    let mut seen = 0;
+    for e in v["experiments"].as_array().unwrap() {
+        if e["status"] != "running" || date(&e["end"]).unwrap() < today {
+            continue;
+        }
+        let r = e
+            .get("result_range")
+            .unwrap_or_else(|| panic!("a running test on a history pool has a range: {e}"));
+        let (p10, p50, p90) = (date(&r["p10"]), date(&r["p50"]), date(&r["p90"]));
+        // Its data end no earlier than today: results from tomorrow on.
+        assert!(p10.unwrap() > today, "{e}");
+        assert!(p10 <= p50 && p50 <= p90, "{e}");
+        // Around the outlook's own end: within a week of the point date.
+        let due = date(&e["result_date"]).unwrap();
+        assert!((p50.unwrap() - due).num_days().abs() <= 7, "{e}");
+        seen += 1;
+    }
+    assert!(seen > 0, "the scenario has running tests");
+}

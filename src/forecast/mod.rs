@@ -279,6 +279,24 @@ mod tests {
     }
 
     #[test]
+    fn a_run_under_way_counts_from_its_reading_and_ends_no_earlier_than_today() {
+        let p = pool(100.0, [1.0; 7], vec![]);
+        let s = Series::new(&p, d("2027-01-04"), d("2027-03-31"));
+        // Began 3 days before the span; 500 more units at 50% from day 2
+        // reach on day 11; 15 days from its start, whole weeks make 21.
+        assert_eq!(s.run_end_from(-3, 2, 2, 0.5, 500.0, 14, false), Some(11));
+        assert_eq!(s.run_end_from(-3, 2, 2, 0.5, 500.0, 14, true), Some(17));
+        // Nothing left to collect: it ends on `not_before` or its minimum.
+        assert_eq!(s.run_end_from(0, 5, 20, 0.5, 0.0, 14, false), Some(20));
+        assert_eq!(s.run_end_from(0, 5, 5, 0.5, 0.0, 14, false), Some(13));
+        // From its start it is `run_end`.
+        assert_eq!(
+            s.run_end_from(3, 3, 3, 1.0, 1500.0, 1, false),
+            s.run_end(3, 1.0, 1500.0, 1, false)
+        );
+    }
+
+    #[test]
     fn run_end_follows_a_dip() {
         // Zero traffic for a week in the middle stretches the run by a week.
         let adj = vec![Adjustment {
