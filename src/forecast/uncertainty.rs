@@ -474,6 +474,30 @@ mod tests {
     }
 
     #[test]
+    fn the_ends_do_not_depend_on_the_number_of_threads() {
+        let run = |threads| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap()
+                .install(|| {
+                    simulate(
+                        &[flat(1000.0, 200), flat(700.0, 200)],
+                        &[cv(0.2, 0.3), cv(0.1, 0.5)],
+                        &[rule(20_000.0), RunRule::new(1, 5, 0.5, 6_000.0, 7, true)],
+                        777,
+                        9,
+                    )
+                })
+        };
+        let one = run(1);
+        assert_eq!(one, run(3));
+        assert_eq!(one, run(2));
+        // Path by path, not a sorted summary: path 0 is the same too.
+        assert_eq!(one[1][0], run(4)[1][0]);
+    }
+
+    #[test]
     fn quantiles_count_paths_past_the_span_as_late() {
         let ends = [Some(3), None, Some(1), Some(2), None];
         assert_eq!(quantile(&ends, 0.2), Some(1));
