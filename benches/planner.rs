@@ -159,6 +159,7 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
     Progress {
         as_of: today,
         entries,
+        traffic: Vec::new(),
         warnings: Vec::new(),
     }
 }

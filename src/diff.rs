@@ -223,6 +223,7 @@ mod tests {
             blackouts: vec![],
             today: d("2027-01-04"),
             running: vec![],
+            traffic: vec![],
             changes: None,
             calendar: None,
         }

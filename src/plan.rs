@@ -351,6 +351,38 @@ pub struct PlanBlackout {
     pub pools: Vec<String>,
 }
 
+/// A pool's actual traffic so far against its forecast (re-plans).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TrafficSoFar {
+    /// The pool's id.
+    pub pool: String,
+    /// The first day of the actual traffic.
+    pub from: NaiveDate,
+    /// Its last day.
+    pub to: NaiveDate,
+    /// Units the pool had over those days.
+    pub units: f64,
+    /// Units the portfolio's forecast gave those days.
+    pub forecast: f64,
+    /// `units / forecast − 1`: −0.12 ran 12% below the forecast; 0 when
+    /// the forecast gave no units.
+    pub difference: f64,
+    /// How the re-plan's forecast of the pool was made from it.
+    pub refit: Refit,
+}
+
+/// How a re-plan turned a pool's actual traffic into its forecast.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Refit {
+    /// Fitted again from the pool's history followed by the traffic.
+    HistoryAndTraffic,
+    /// Fitted from the traffic alone (no history joins it; four weeks or more).
+    Traffic,
+    /// Too short to fit: the forecast's level scaled by actual / forecast.
+    Level,
+}
+
 /// The whole plan.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Plan {
@@ -379,6 +411,10 @@ pub struct Plan {
     /// Re-plans only: each running test's outlook.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub running: Vec<RunningOutlook>,
+    /// Re-plans whose progress file gives pools' actual traffic: how far
+    /// each ran from its forecast, and how its forecast was refitted.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub traffic: Vec<TrafficSoFar>,
     /// Re-plans with `--previous` only: what moved since the previous plan.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub changes: Option<PlanDiff>,

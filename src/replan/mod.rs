@@ -14,6 +14,7 @@
 mod outlook;
 pub mod progress;
 pub mod scale;
+pub mod traffic;
 
 pub use progress::{load_progress, load_progress_str, Progress};
 pub use scale::{with_scales, ScaleArg};
@@ -127,6 +128,9 @@ pub fn replan(
     today: NaiveDate,
     base: &PlanRequest,
 ) -> Result<(Plan, PlanRequest), ReplanError> {
+    // The pools' actual traffic so far, when given, makes their forecasts.
+    let (refitted, traffic) = traffic::refit(portfolio, progress);
+    let portfolio = &refitted;
     let mut request = PlanRequest {
         today: Some(today),
         fixed: Vec::new(),
@@ -331,6 +335,7 @@ pub fn replan(
         let _ = l.entry;
     }
     plan.running = outlooks;
+    plan.traffic = traffic;
     Ok((plan, request))
 }
 
@@ -614,6 +619,7 @@ mod tests {
                     units_per_arm: None,
                 },
             }],
+            traffic: Vec::new(),
             warnings: Vec::new(),
         }
     }
@@ -695,6 +701,7 @@ mod tests {
                     },
                 },
             ],
+            traffic: Vec::new(),
             warnings: Vec::new(),
         };
         let (plan, request) = replan(&p, &progress, today, &PlanRequest::default()).unwrap();

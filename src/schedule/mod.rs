@@ -460,6 +460,7 @@ fn assemble(
         blackouts,
         today,
         running: Vec::new(),
+        traffic: Vec::new(),
         changes: None,
         calendar: None,
     }
