@@ -247,6 +247,36 @@ pub fn has_ranges(plan: &Plan) -> bool {
     plan.experiments.iter().any(|e| e.result_range.is_some())
 }
 
+/// A re-plan's actual traffic, one sentence per pool: how far it ran from
+/// its forecast over which days, and how its forecast was made from it.
+pub fn traffic_lines(plan: &Plan) -> Vec<String> {
+    plan.traffic
+        .iter()
+        .map(|t| {
+            let direction = if t.difference < 0.0 { "below" } else { "above" };
+            let how = match t.refit {
+                crate::plan::Refit::HistoryAndTraffic => {
+                    "its forecast is fitted again from its history and this traffic"
+                }
+                crate::plan::Refit::Traffic => "its forecast is fitted from this traffic",
+                crate::plan::Refit::Level => {
+                    "too short to fit: its forecast's level is scaled by the same amount"
+                }
+            };
+            format!(
+                "{} ({}) ran {} {direction} its forecast from {} to {} ({} units against {} forecast); {how}.",
+                pool_label(plan, &t.pool),
+                t.pool,
+                percent(t.difference.abs()),
+                short_date(t.from),
+                short_date(t.to),
+                units(t.units),
+                units(t.forecast),
+            )
+        })
+        .collect()
+}
+
 /// A result range in words: `P10 – P90`, one date when they agree, and
 /// `later` for a quantile past the simulated span.
 pub fn range_words(r: &ResultRange) -> String {

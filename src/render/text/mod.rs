@@ -134,6 +134,9 @@ fn for_terminal(plan: &Plan) -> Plan {
         b.pools = b.pools.iter().map(|x| clean(x)).collect();
     }
     p.solver.backend = clean(&p.solver.backend);
+    for t in &mut p.traffic {
+        t.pool = clean(&t.pool);
+    }
     // A re-plan's outlooks and changes may come from a `--previous` file.
     for o in &mut p.running {
         o.id = clean(&o.id);
@@ -162,6 +165,20 @@ fn for_terminal(plan: &Plan) -> Plan {
         }
     }
     p
+}
+
+/// A re-plan's actual traffic against the forecast, under a heading;
+/// nothing without it.
+fn traffic(plan: &Plan, width: usize, colour: bool, out: &mut String) {
+    let lines = super::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(out);
+    let _ = writeln!(out, "{}", paint("Traffic so far", "1", colour));
+    for line in lines {
+        let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
+    }
 }
 
 impl Renderer for Text {
@@ -208,6 +225,7 @@ impl Renderer for Text {
                 ""
             )
         );
+        traffic(plan, width, colour, &mut out);
         let _ = writeln!(out);
         let _ = writeln!(out, "{}", table::experiments(plan, width, colour));
         let _ = writeln!(out);
