@@ -219,6 +219,7 @@ mod tests {
                         running: 0,
                     })
                     .collect(),
+                history: vec![],
             }],
             blackouts: vec![],
             today: d("2027-01-04"),

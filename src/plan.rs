@@ -334,6 +334,23 @@ pub struct PoolPlan {
     pub max_concurrent: u32,
     /// Every day of the window, in order.
     pub days: Vec<PoolDay>,
+    /// Pools with a `history` (or a re-plan's traffic): its last
+    /// [`HISTORY_SHOWN`] days, in order, for the report's forecast chart;
+    /// empty (and left out of JSON) otherwise.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub history: Vec<HistoryDay>,
+}
+
+/// How many of a pool's last history days a plan carries.
+pub const HISTORY_SHOWN: usize = 84;
+
+/// One day of a pool's history.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct HistoryDay {
+    /// The day.
+    pub date: NaiveDate,
+    /// Its units.
+    pub units: f64,
 }
 
 /// A blackout span, as the renderers show it.

@@ -358,3 +358,22 @@ fn a_confidence_without_uncertain_pools_changes_nothing() {
     let (_b, sure) = quickstart_with("", "planning: {confidence: 0.9}\n");
     assert_eq!(plan_json(&plain).0, plan_json(&sure).0);
 }
+
+#[test]
+fn the_report_charts_each_history_pool_forecast_and_the_json_carries_its_last_weeks() {
+    let html = plan_as(Path::new(&demo()), "html");
+    assert!(html.contains(r#"<h2 id="forecast">Forecast from history</h2>"#));
+    assert_eq!(html.matches("daily units, history and forecast</title>").count(), 5);
+    let (_, v) = plan_json(Path::new(&demo()));
+    for p in v["pools"].as_array().unwrap() {
+        let h = p["history"].as_array().unwrap();
+        assert_eq!(h.len(), 84, "{}", p["id"]);
+        // The history's last day is the day before the window opens.
+        assert_eq!(h[83]["date"], "2027-01-03");
+    }
+    let (_dir, path) = quickstart_with("", "");
+    let html = plan_as(&path, "html");
+    assert!(!html.contains("Forecast from history"));
+    let (_, v) = plan_json(&path);
+    assert!(v["pools"][0].get("history").is_none());
+}

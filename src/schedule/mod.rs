@@ -309,6 +309,23 @@ fn units_between(
     share * total
 }
 
+/// The last [`crate::plan::HISTORY_SHOWN`] days of `pool`'s history, if
+/// it has one.
+fn history_shown(pool: &crate::portfolio::Pool) -> Vec<crate::plan::HistoryDay> {
+    let Some(h) = &pool.forecast.history else {
+        return Vec::new();
+    };
+    let from = h.units.len().saturating_sub(crate::plan::HISTORY_SHOWN);
+    h.units[from..]
+        .iter()
+        .enumerate()
+        .map(|(i, &units)| crate::plan::HistoryDay {
+            date: h.start + Duration::days((from + i) as i64),
+            units,
+        })
+        .collect()
+}
+
 fn assemble(
     inst: &Instance,
     state: &state::State,
@@ -432,6 +449,7 @@ fn assemble(
                 sharing: pool.sharing,
                 max_concurrent: pool.max_concurrent,
                 days,
+                history: history_shown(pool),
             }
         })
         .collect();

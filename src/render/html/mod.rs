@@ -19,6 +19,7 @@
 //! re-plan's sections; the markup helpers and the page are here.
 
 mod changes;
+mod forecast;
 mod svg;
 mod table;
 
@@ -271,6 +272,7 @@ impl Renderer for Html {
             let _ = writeln!(s, "<figcaption>{}</figcaption></figure>", esc(&caption));
         }
         let _ = writeln!(s, "</section>");
+        forecast::section(plan, &mut s);
 
         // Table.
         let _ = writeln!(s, r#"<section><h2 id="tests">Tests</h2>"#);
