@@ -38,7 +38,7 @@ pub(super) fn section(plan: &Plan, s: &mut String) {
             s,
             "<figcaption>{}</figcaption></figure>",
             esc(&format!(
-                "{}: grey, the last {} days of actual daily units; coloured, the forecast the plan uses over the window, from the fit to that history.",
+                "{}: grey, the last {} days of actual daily units; coloured, the forecast the plan uses over the window: the fit to that history, with the portfolio's adjustments on top.",
                 p.label,
                 p.history.len()
             ))
