@@ -377,3 +377,56 @@ fn the_report_charts_each_history_pool_forecast_and_the_json_carries_its_last_we
     let (_, v) = plan_json(&path);
     assert!(v["pools"][0].get("history").is_none());
 }
+
+/// The demo with `planning.seed` and `whole_weeks` set, in a fresh folder.
+fn demo_with(seed: u64, whole_weeks: bool) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    demo_history_into(dir.path());
+    let text = std::fs::read_to_string(demo()).unwrap();
+    let text = text
+        .replacen("  whole_weeks: true\n", &format!("  whole_weeks: {whole_weeks}\n"), 1)
+        .replacen(
+            "  start_grid: weekly\n",
+            &format!("  start_grid: weekly\n  seed: {seed}\n"),
+            1,
+        );
+    let path = dir.path().join("demo.yaml");
+    std::fs::write(&path, text).unwrap();
+    (dir, path)
+}
+
+/// Each test's P50 result date, by id.
+fn medians(v: &Value) -> Vec<(String, chrono::NaiveDate)> {
+    v["experiments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|e| {
+            let p50 = e.get("result_range")?["p50"].as_str()?;
+            Some((e["id"].as_str().unwrap().to_string(), p50.parse().unwrap()))
+        })
+        .collect()
+}
+
+/// Another seed moves the demo's P50 dates by at most a day when runs end
+/// on any day, and by at most a week with whole weeks, where an end moves
+/// only in steps of a week: a median near a week's edge can jump it.
+#[test]
+fn another_seed_moves_the_demos_medians_by_a_day_or_a_whole_week() {
+    for (whole_weeks, most) in [(false, 1), (true, 7)] {
+        let (_a, one) = demo_with(1, whole_weeks);
+        let base = medians(&plan_json(&one).1);
+        assert!(base.len() > 10);
+        for seed in [2, 3, 4] {
+            let (_b, other) = demo_with(seed, whole_weeks);
+            let (_, v) = plan_json(&other);
+            let moved = medians(&v);
+            assert_eq!(moved.len(), base.len());
+            for ((id, a), (id2, b)) in base.iter().zip(&moved) {
+                assert_eq!(id, id2);
+                let days = (*b - *a).num_days().abs();
+                assert!(days <= most, "{id}: seed {seed} moves P50 {a} -> {b}");
+            }
+        }
+    }
+}
