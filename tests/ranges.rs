@@ -195,7 +195,12 @@ fn product_ranges(v: &Value) -> Vec<(String, Value)> {
         .unwrap()
         .iter()
         .filter(|e| e["pool"] == "product" && e["status"] == "scheduled")
-        .map(|e| (e["id"].as_str().unwrap().to_string(), e["result_range"].clone()))
+        .map(|e| {
+            (
+                e["id"].as_str().unwrap().to_string(),
+                e["result_range"].clone(),
+            )
+        })
         .collect()
 }
 
@@ -214,7 +219,10 @@ fn every_format_shows_the_same_ranges_as_the_json() {
     for (id, range) in &ranges {
         let row = rows.iter().find(|row| &row[0] == id).unwrap();
         for q in ["p10", "p50", "p90"] {
-            assert_eq!(&row[col(&format!("result_{q}"))], range[q].as_str().unwrap());
+            assert_eq!(
+                &row[col(&format!("result_{q}"))],
+                range[q].as_str().unwrap()
+            );
         }
         let on_time: f64 = row[col("on_time")].parse().unwrap();
         assert_eq!(on_time, range["on_time"].as_f64().unwrap());
@@ -224,7 +232,10 @@ fn every_format_shows_the_same_ranges_as_the_json() {
     assert_eq!(&other[col("result_p50")], "");
     // Markdown: a column, and each product test's P10 – P90 in its row.
     let md = plan_as(&path, "md");
-    assert!(md.contains("| Result due | Result due (P10–P90) | Test |"), "{md}");
+    assert!(
+        md.contains("| Result due | Result due (P10–P90) | Test |"),
+        "{md}"
+    );
     for (id, range) in &ranges {
         let row = md
             .lines()
@@ -245,7 +256,7 @@ fn every_format_shows_the_same_ranges_as_the_json() {
     for (id, range) in &ranges {
         let event = unfolded
             .split("BEGIN:VEVENT")
-            .find(|e| e.contains(&format!("SUMMARY:Result due: ")) && e.contains(&format!("[{id}]")))
+            .find(|e| e.contains("SUMMARY:Result due: ") && e.contains(&format!("[{id}]")))
             .unwrap();
         assert!(
             event.contains(&format!(
@@ -315,7 +326,9 @@ fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
             continue;
         }
         let r = &e["result_range"];
-        let on_plan = r["on_plan"].as_f64().expect("a confidence plan reports on_plan");
+        let on_plan = r["on_plan"]
+            .as_f64()
+            .expect("a confidence plan reports on_plan");
         assert!(on_plan >= 0.8, "{e}");
         // The units needed are the test's own, not what the planner asked.
         let id = e["id"].as_str().unwrap();
@@ -363,7 +376,11 @@ fn a_confidence_without_uncertain_pools_changes_nothing() {
 fn the_report_charts_each_history_pool_forecast_and_the_json_carries_its_last_weeks() {
     let html = plan_as(Path::new(&demo()), "html");
     assert!(html.contains(r#"<h2 id="forecast">Forecast from history</h2>"#));
-    assert_eq!(html.matches("daily units, history and forecast</title>").count(), 5);
+    assert_eq!(
+        html.matches("daily units, history and forecast</title>")
+            .count(),
+        5
+    );
     let (_, v) = plan_json(Path::new(&demo()));
     for p in v["pools"].as_array().unwrap() {
         let h = p["history"].as_array().unwrap();
@@ -384,7 +401,11 @@ fn demo_with(seed: u64, whole_weeks: bool) -> (tempfile::TempDir, PathBuf) {
     demo_history_into(dir.path());
     let text = std::fs::read_to_string(demo()).unwrap();
     let text = text
-        .replacen("  whole_weeks: true\n", &format!("  whole_weeks: {whole_weeks}\n"), 1)
+        .replacen(
+            "  whole_weeks: true\n",
+            &format!("  whole_weeks: {whole_weeks}\n"),
+            1,
+        )
         .replacen(
             "  start_grid: weekly\n",
             &format!("  start_grid: weekly\n  seed: {seed}\n"),

@@ -1094,9 +1094,14 @@ fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
     let ratio = forecast_from(&v, "product", today) / forecast_from(&plain, "product", today);
     assert!((0.7..0.92).contains(&ratio), "{ratio}");
     // The app's onboarding ran above its forecast and is forecast higher.
-    let app = traffic.iter().find(|t| t["pool"] == "app-onboarding").unwrap();
+    let app = traffic
+        .iter()
+        .find(|t| t["pool"] == "app-onboarding")
+        .unwrap();
     assert!(app["difference"].as_f64().unwrap() > 0.05, "{app}");
-    assert!(forecast_from(&v, "app-onboarding", today) > forecast_from(&plain, "app-onboarding", today));
+    assert!(
+        forecast_from(&v, "app-onboarding", today) > forecast_from(&plain, "app-onboarding", today)
+    );
     let text = replan_text(&demo(), &progress, DAY30, &[]);
     assert!(text.contains("Traffic so far"), "{text}");
     assert!(

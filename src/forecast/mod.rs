@@ -111,7 +111,15 @@ impl Series {
         min_days: u32,
         whole_weeks: bool,
     ) -> Option<usize> {
-        self.run_end_from(start as i64, start, start, share, need, min_days, whole_weeks)
+        self.run_end_from(
+            start as i64,
+            start,
+            start,
+            share,
+            need,
+            min_days,
+            whole_weeks,
+        )
     }
 
     /// [`Series::run_end`] for a run that may already be under way: it

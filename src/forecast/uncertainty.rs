@@ -65,7 +65,14 @@ pub struct RunRule {
 
 impl RunRule {
     /// A run from day index `start` that needs `need` units.
-    pub fn new(pool: usize, start: usize, share: f64, need: f64, min_days: u32, whole_weeks: bool) -> RunRule {
+    pub fn new(
+        pool: usize,
+        start: usize,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> RunRule {
         RunRule {
             pool,
             start: start as i64,
@@ -295,9 +302,7 @@ pub fn fill_ranges(
             p50: date(0.5),
             p90: date(0.9),
             on_time: share_by(ends, due),
-            on_plan: planning
-                .confidence
-                .map(|_| share_by(ends, s.planned_end)),
+            on_plan: planning.confidence.map(|_| share_by(ends, s.planned_end)),
         });
     }
 }

@@ -137,11 +137,7 @@ fn range_cell(plan: &Plan, e: &crate::plan::PlannedExperiment) -> String {
         return String::new();
     }
     let words = e.result_range.as_ref().map_or(String::new(), |r| {
-        format!(
-            "{} ({})",
-            range_words(r),
-            super::common::chance_words(r)
-        )
+        format!("{} ({})", range_words(r), super::common::chance_words(r))
     });
     format!(" {} |", table_cell(&words))
 }
@@ -167,7 +163,10 @@ impl Renderer for Markdown {
         }
         if fit > 0 {
             let (head, rule) = range_head(plan);
-            let _ = writeln!(w, "| Result due |{head} Test | Pool | Runs | Share | Owner |");
+            let _ = writeln!(
+                w,
+                "| Result due |{head} Test | Pool | Runs | Share | Owner |"
+            );
             let _ = writeln!(w, "|---|{rule}---|---|---|--:|---|");
             let mut rows: Vec<_> = plan
                 .experiments

@@ -343,7 +343,10 @@ impl ProgressCheck<'_> {
                 self.ck.err(
                     &pool_key,
                     format!("pool `{id}` is not in the portfolio"),
-                    format!("defined pools, closest first: {}", diagnostic::list(&closest)),
+                    format!(
+                        "defined pools, closest first: {}",
+                        diagnostic::list(&closest)
+                    ),
                 );
                 continue;
             };
@@ -374,7 +377,9 @@ impl ProgressCheck<'_> {
             if end >= as_of {
                 self.ck.err(
                     &at,
-                    format!("the traffic of pool `{id}` runs to {end}, on or after `as_of` ({as_of})"),
+                    format!(
+                        "the traffic of pool `{id}` runs to {end}, on or after `as_of` ({as_of})"
+                    ),
                     "give the days before the counts were read; later days have not happened",
                 );
                 continue;
@@ -449,7 +454,11 @@ impl ProgressCheck<'_> {
             let first = *start.get_or_insert(date);
             let expected = first + Duration::days(j as i64);
             if ok && date != expected {
-                let what = if date < expected { "repeats or goes back" } else { "leaves a gap" };
+                let what = if date < expected {
+                    "repeats or goes back"
+                } else {
+                    "leaves a gap"
+                };
                 self.ck.err(
                     &format!("{key}.date"),
                     format!("{date} {what}: the day after the row before is {expected}"),
@@ -730,9 +739,17 @@ mod tests {
         let gap = messages(load(
             "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-06, units: 120}\n",
         ));
-        assert!(gap.contains("5:traffic[0].days[1].date 2027-01-06 leaves a gap"), "{gap}");
-        let unknown = messages(load("traffic:\n  - pool: prodct\n    days: [{date: 2027-01-04, units: 1}]\n"));
-        assert!(unknown.contains("pool `prodct` is not in the portfolio"), "{unknown}");
+        assert!(
+            gap.contains("5:traffic[0].days[1].date 2027-01-06 leaves a gap"),
+            "{gap}"
+        );
+        let unknown = messages(load(
+            "traffic:\n  - pool: prodct\n    days: [{date: 2027-01-04, units: 1}]\n",
+        ));
+        assert!(
+            unknown.contains("pool `prodct` is not in the portfolio"),
+            "{unknown}"
+        );
         let both = messages(load(
             "traffic:\n  - pool: product\n    history: t.csv\n    days: [{date: 2027-01-04, units: 1}]\n",
         ));
@@ -740,13 +757,21 @@ mod tests {
         let future = messages(load(
             "as_of: 2027-01-05\ntraffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: 1}, {date: 2027-01-05, units: 1}]\n",
         ));
-        assert!(future.contains("on or after `as_of` (2027-01-05)"), "{future}");
+        assert!(
+            future.contains("on or after `as_of` (2027-01-05)"),
+            "{future}"
+        );
         let negative = messages(load(
             "traffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: -3}]\n",
         ));
         assert!(negative.contains("`units` is -3"), "{negative}");
-        let unread = messages(load("traffic:\n  - pool: product\n    history: nowhere.csv\n"));
-        assert!(unread.contains("cannot read the traffic `nowhere.csv`"), "{unread}");
+        let unread = messages(load(
+            "traffic:\n  - pool: product\n    history: nowhere.csv\n",
+        ));
+        assert!(
+            unread.contains("cannot read the traffic `nowhere.csv`"),
+            "{unread}"
+        );
     }
 
     #[test]

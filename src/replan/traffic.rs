@@ -37,7 +37,11 @@ pub fn refit(portfolio: &Portfolio, progress: &Progress) -> (Portfolio, Vec<Traf
             .map(|i| units_on(pool, obs.start + Duration::days(i as i64)))
             .sum();
         let units: f64 = obs.units.iter().sum();
-        let ratio = if forecast > 0.0 { units / forecast } else { 1.0 };
+        let ratio = if forecast > 0.0 {
+            units / forecast
+        } else {
+            1.0
+        };
         let how = refit_pool(pool, obs, ratio);
         reports.push(TrafficSoFar {
             pool: pool.id.clone(),

@@ -11,6 +11,7 @@
 //! tests that hold their traffic, and the tests that left the queue.
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
+mod confidence;
 mod greedy;
 mod lp;
 mod options;
@@ -22,7 +23,6 @@ pub mod synthetic;
 #[cfg(test)]
 mod tests;
 mod verify;
-mod confidence;
 
 pub use lp::Backend;
 pub use verify::verify;

@@ -23,9 +23,7 @@ mod forecast;
 mod svg;
 mod table;
 
-use super::common::{
-    counts, is_split, long_date, pool_label, solver_sentence, thousands, units,
-};
+use super::common::{counts, is_split, long_date, pool_label, solver_sentence, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
 use chrono::NaiveDate;

@@ -150,7 +150,9 @@ fn table_for(
                     _ => Cell::new(r.result_date),
                 });
                 if ranges {
-                    row.push(Cell::new(e.result_range.as_ref().map_or(String::new(), range_cell)));
+                    row.push(Cell::new(
+                        e.result_range.as_ref().map_or(String::new(), range_cell),
+                    ));
                 }
                 if layout >= Layout::Medium {
                     row.push(Cell::new(r.days).set_alignment(CellAlignment::Right));
