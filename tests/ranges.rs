@@ -451,3 +451,27 @@ fn another_seed_moves_the_demos_medians_by_a_day_or_a_whole_week() {
         }
     }
 }
+
+#[test]
+fn a_confidence_plans_reason_names_the_units_it_was_planned_as() {
+    let (_b, sure) = quickstart_with(
+        "    uncertainty: {level_cv: 2.0, daily_cv: 0.3}\n",
+        "planning: {paths: 500, confidence: 0.9}\n",
+    );
+    let (_, v) = plan_json(&sure);
+    let out: Vec<&Value> = v["experiments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|e| e["status"] == "unscheduled" && e["pool"] == "product")
+        .collect();
+    assert!(!out.is_empty(), "a 200% level error pushes a test out");
+    for e in out {
+        let reason = e["reason"].as_str().unwrap();
+        assert!(reason.ends_with(" units)"), "{reason}");
+        assert!(
+            reason.contains("(planned at 90% confidence as "),
+            "{reason}"
+        );
+    }
+}

@@ -17,6 +17,7 @@ use super::{plan_once, PlanRequest};
 use crate::forecast::uncertainty::{fill_ranges, lower_quantile_factor};
 use crate::plan::{Plan, Status};
 use crate::portfolio::Portfolio;
+use crate::words::{percent, thousands};
 
 /// How many times the portfolio is planned at most.
 pub const ROUNDS: usize = 6;
@@ -50,9 +51,24 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
         }
         let mut plan = plan_once(&asked, request);
         // Back to what each test truly needs, confirmed on the true forecast.
-        for (pe, ex) in plan.experiments.iter_mut().zip(&portfolio.experiments) {
+        for ((pe, ex), more) in plan
+            .experiments
+            .iter_mut()
+            .zip(&portfolio.experiments)
+            .zip(&asked.experiments)
+        {
             pe.units_needed = ex.need.total;
             pe.result_range = None;
+            // A reason speaks of the units the planner was asked for.
+            if let (Status::Unscheduled, Some(reason)) = (pe.status, &mut pe.reason) {
+                if more.need.total > ex.need.total {
+                    reason.push_str(&format!(
+                        " (planned at {} confidence as {} units)",
+                        percent(confidence),
+                        thousands(more.need.total)
+                    ));
+                }
+            }
         }
         fill_ranges(portfolio, &mut plan.experiments, &so_far, today);
         let short: Vec<(usize, f64)> = plan
