@@ -1111,4 +1111,11 @@ fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
         )),
         "{text}"
     );
+    // Markdown and HTML say it too.
+    let md = replan_text(&demo(), &progress, DAY30, &["--format", "md"]);
+    assert!(md.contains("### Traffic so far\n\n- "), "{md}");
+    assert!(md.contains("\n- Product pages (product) ran "), "{md}");
+    let html = replan_text(&demo(), &progress, DAY30, &["--format", "html"]);
+    assert!(html.contains(r#"<h2 id="traffic-so-far">Traffic so far</h2>"#));
+    assert_eq!(html.matches("its forecast is fitted again").count(), 5);
 }

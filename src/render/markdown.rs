@@ -142,6 +142,19 @@ fn range_cell(plan: &Plan, e: &crate::plan::PlannedExperiment) -> String {
     format!(" {} |", table_cell(&words))
 }
 
+/// A re-plan's actual traffic against the forecast; nothing without it.
+fn traffic(plan: &Plan, w: &mut String) {
+    let lines = super::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(w, "### Traffic so far\n");
+    for line in lines {
+        let _ = writeln!(w, "- {}", escape(&line));
+    }
+    let _ = writeln!(w);
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut md = changes(plan);
@@ -161,6 +174,7 @@ impl Renderer for Markdown {
         if let Some(note) = super::common::cut_short_note(plan) {
             let _ = writeln!(w, "> **Cut short.** {}\n", escape_keeping_code(note));
         }
+        traffic(plan, w);
         if fit > 0 {
             let (head, rule) = range_head(plan);
             let _ = writeln!(

@@ -32,6 +32,23 @@ use std::fmt::Write;
 /// The HTML report renderer.
 pub struct Html;
 
+/// A re-plan's actual traffic against the forecast, as a section of its
+/// own; nothing without it.
+fn traffic(plan: &Plan, s: &mut String) {
+    let lines = crate::render::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        s,
+        r#"<section><h2 id="traffic-so-far">Traffic so far</h2><ul>"#
+    );
+    for line in lines {
+        let _ = writeln!(s, "<li>{}</li>", esc(&line));
+    }
+    let _ = writeln!(s, "</ul></section>");
+}
+
 /// Escapes text for XML and HTML content and attribute values.
 pub fn esc(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
@@ -239,6 +256,7 @@ impl Renderer for Html {
             );
         }
         let _ = writeln!(s, "</section>");
+        traffic(plan, &mut s);
 
         // Calendar.
         let _ = writeln!(s, r#"<section><h2 id="calendar">Calendar</h2><figure>"#);
