@@ -51,7 +51,7 @@ def main() -> int:
         for p in plan["pools"]
     }
     note = (
-        f"# (units: each test's share of its pool's actual traffic in {traffic_dir})."
+        "# (units: each test's share of its pool's actual traffic, `traffic:` below)."
         if traffic_dir
         else f"# (traffic delivered at {delivered:.0%} of the forecast so far)."
     )
