@@ -170,7 +170,9 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
 /// Plans the portfolio. Always returns a plan: when the solver fails or the
 /// time limit runs out, the best calendar found so far (at worst the greedy
 /// one), with the bound and gap that could be proved. With
-/// `planning.confidence`, see [`confidence::plan`].
+/// `planning.confidence`, the plan is made against a lower quantile of the
+/// forecast and confirmed by simulation (docs/planning.md, "Planning to a
+/// confidence").
 pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     match portfolio.planning.confidence {
         Some(c) => confidence::plan(portfolio, request, c),
