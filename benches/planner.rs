@@ -22,6 +22,10 @@
 //! includes the first plan). Every re-plan is checked by
 //! [`schedule::verify`]; a failure fails its row, and a failed row makes
 //! the benchmark exit with status 1 once the table is written.
+//!
+//! Last, the result-range simulation at 10,000 paths x 300 tests x a
+//! 91-day window is timed with every thread and with one
+//! (`target/bench-ranges.json`); different ends on one thread fail it.
 
 use chrono::{Datelike, Duration, NaiveDate};
 use serde::{Deserialize, Serialize};
@@ -155,6 +159,7 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
     Progress {
         as_of: today,
         entries,
+        traffic: Vec::new(),
         warnings: Vec::new(),
     }
 }
@@ -339,7 +344,99 @@ fn main() {
         Ok(()) => println!("wrote {}", path.display()),
         Err(e) => eprintln!("cannot write {}: {e}", path.display()),
     }
+    if !ranges_row() {
+        failed = true;
+    }
     if failed {
         std::process::exit(1);
     }
+}
+
+/// The result-range simulation at the size: 10,000 paths x 300
+/// tests x a 91-day window (paths run over twice the window, as
+/// `fill_ranges` runs them), 20 pools each with a level and a day-to-day
+/// error. Each test starts on one of the window's first eight Mondays at
+/// a 20% share with its synthetic need. Timed with every thread and with
+/// one, whose ends must be the same, byte for byte (false when not).
+/// Written to `target/bench-ranges.json`.
+fn ranges_row() -> bool {
+    use sluice::forecast::uncertainty::{simulate, RunRule};
+    use sluice::forecast::Series;
+    use sluice::portfolio::Uncertainty;
+    let seed = std::env::var("SLUICE_BENCH_SEED")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(SEED);
+    let spec = synthetic::Spec {
+        tests: 300,
+        pools: 20,
+        weeks: 13,
+        seed,
+    };
+    let portfolio = synthetic::portfolio(&spec);
+    let w = portfolio.window;
+    let days = w.days() as i64;
+    let forecasts: Vec<Series> = portfolio
+        .pools
+        .iter()
+        .map(|p| Series::new(p, w.start, w.start + Duration::days(2 * days - 1)))
+        .collect();
+    let spread = vec![
+        Uncertainty {
+            level_cv: 0.1,
+            daily_cv: 0.2,
+        };
+        forecasts.len()
+    ];
+    let runs: Vec<RunRule> = portfolio
+        .experiments
+        .iter()
+        .enumerate()
+        .map(|(e, ex)| {
+            RunRule::new(
+                ex.pool,
+                (e % 8) * 7,
+                0.2,
+                ex.need.total as f64,
+                ex.min_days,
+                ex.whole_weeks,
+            )
+        })
+        .collect();
+    let paths = 10_000;
+    let clock = Instant::now();
+    let ends = simulate(&forecasts, &spread, &runs, paths, 1);
+    let seconds = clock.elapsed().as_secs_f64();
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .expect("a one-thread pool");
+    let clock = Instant::now();
+    let ends_one = one.install(|| simulate(&forecasts, &spread, &runs, paths, 1));
+    let seconds_one = clock.elapsed().as_secs_f64();
+    let same = ends == ends_one;
+    let finished = ends.iter().flatten().filter(|e| e.is_some()).count() as f64
+        / (ends.len() * paths as usize) as f64;
+    let threads = rayon::current_num_threads();
+    println!(
+        "ranges: {paths} paths x {} tests x {days}-day window: {seconds:.2} s on {threads} threads, {seconds_one:.2} s on one; {}; {:.0}% of runs end within twice the window",
+        runs.len(),
+        if same { "the same ends on both" } else { "ENDS DIFFER" },
+        finished * 100.0
+    );
+    let json = serde_json::json!({
+        "paths": paths,
+        "tests": runs.len(),
+        "window_days": days,
+        "seconds": seconds,
+        "threads": threads,
+        "seconds_one_thread": seconds_one,
+        "same_ends_on_one_thread": same,
+    });
+    let target = std::env::var("CARGO_TARGET_DIR").unwrap_or_else(|_| "target".to_string());
+    let path = std::path::Path::new(&target).join("bench-ranges.json");
+    if let Err(e) = std::fs::write(&path, format!("{json:#}\n")) {
+        eprintln!("cannot write {}: {e}", path.display());
+    }
+    same
 }

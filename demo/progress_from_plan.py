@@ -1,28 +1,53 @@
 #!/usr/bin/env python3
 """Writes a progress file for the demo walkthrough from a saved plan.
 
-Usage: progress_from_plan.py PLAN.json TODAY [DELIVERED]
+Usage: progress_from_plan.py PLAN.json TODAY [DELIVERED] [--traffic DIR]
 
 Every test the plan started before TODAY is recorded: `finished` when its
 planned run ended before TODAY, else `running` with the units its pool's
 forecast gave it from its start to the day before TODAY (its share, times
 the share of units its targeting admits, times what an overlap pool's
 holdout leaves), times DELIVERED
-(default 0.9: traffic ran 10% under the forecast). A stand-in for the counts
-an experimentation platform would report; the data is the demo's own.
+(default 0.9: traffic ran 10% under the forecast). With `--traffic DIR`
+(a folder of POOL.csv files with `date,units` rows, as demo/make_traffic.py
+writes them), a running test's units come from its pool's actual
+traffic on those days instead, and the file gets a `traffic:` entry per
+pool naming its CSV, relative to PLAN.json's folder (write the progress
+file beside the plan). A stand-in for the counts an experimentation
+platform would report; the data is the demo's own.
 """
+import csv
 import json
+import os
 import sys
 from datetime import date
 
 
+def read_traffic(folder):
+    """Each POOL.csv of `folder`: {pool: {date: units}}."""
+    out = {}
+    for name in sorted(os.listdir(folder)):
+        if name.endswith(".csv"):
+            with open(os.path.join(folder, name), encoding="utf-8") as f:
+                rows = csv.DictReader(f)
+                out[name[:-4]] = {date.fromisoformat(r["date"]): float(r["units"]) for r in rows}
+    return out
+
+
 def main() -> int:
-    if len(sys.argv) < 3:
+    args = sys.argv[1:]
+    traffic_dir = None
+    if "--traffic" in args:
+        i = args.index("--traffic")
+        traffic_dir = args[i + 1]
+        del args[i : i + 2]
+    if len(args) < 2:
         print(__doc__, file=sys.stderr)
         return 2
-    plan = json.load(open(sys.argv[1], encoding="utf-8"))
-    today = date.fromisoformat(sys.argv[2])
-    delivered = float(sys.argv[3]) if len(sys.argv) > 3 else 0.9
+    plan = json.load(open(args[0], encoding="utf-8"))
+    today = date.fromisoformat(args[1])
+    delivered = float(args[2]) if len(args) > 2 else 0.9
+    actual = read_traffic(traffic_dir) if traffic_dir else {}
     forecast = {
         p["id"]: {date.fromisoformat(d["date"]): d["forecast"] for d in p["days"]}
         for p in plan["pools"]
@@ -33,9 +58,14 @@ def main() -> int:
         p["id"]: 1.0 - p.get("holdout", 0.0) if p["sharing"] == "overlap" else 1.0
         for p in plan["pools"]
     }
+    note = (
+        "# (units: each test's share of its pool's actual traffic, `traffic:` below)."
+        if traffic_dir
+        else f"# (traffic delivered at {delivered:.0%} of the forecast so far)."
+    )
     lines = [
         f"# Progress on {today}, made from the plan by demo/progress_from_plan.py",
-        f"# (traffic delivered at {delivered:.0%} of the forecast so far).",
+        note,
         f"as_of: {today}",
         "experiments:",
     ]
@@ -56,15 +86,26 @@ def main() -> int:
             ]
             continue
         days = forecast[e["pool"]]
-        units = sum(v for d, v in days.items() if start <= d < today)
         entering = e.get("eligible", 1.0) * open_to_tests[e["pool"]]
-        units = int(units * e["share"] * entering * delivered)
+        if e["pool"] in actual:
+            seen = actual[e["pool"]]
+            units = sum(seen.get(d, v) for d, v in days.items() if start <= d < today)
+            units = int(units * e["share"] * entering)
+        else:
+            units = sum(v for d, v in days.items() if start <= d < today)
+            units = int(units * e["share"] * entering * delivered)
         lines += [
             "    state: running",
             f"    started: {start}",
             f"    share: {e['share']}",
             f"    units: {units}",
         ]
+    if actual:
+        lines.append("traffic:")
+        base = os.path.dirname(os.path.abspath(args[0]))
+        for pool in sorted(actual):
+            path = os.path.relpath(os.path.join(os.path.abspath(traffic_dir), f"{pool}.csv"), base)
+            lines += [f"  - pool: {pool}", f"    history: {path}"]
     print("\n".join(lines))
     return 0
 

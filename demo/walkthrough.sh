@@ -4,8 +4,11 @@
 #
 #   1. check the queue;            2. plan the quarter;
 #   3. the HTML report and the results calendar (iCalendar);
-#   4. day 30: progress so far, and product-page traffic down 30%;
-#   5. re-plan, and what moved since the first plan.
+#   4. day 30: progress so far, and each pool's actual traffic since the
+#      quarter began (demo/traffic/, invented by demo/make_traffic.py:
+#      product pages lost a fifth of their visitors from 18 January);
+#   5. re-plan, refitted from that traffic, and what moved since the first plan;
+#   6. a what-if on top: product pages lose another 30% from today (--scale).
 #
 # Every output goes to demo/out/ (git-ignored), made afresh on each run.
 # Runs from any folder; needs cargo and python3 (standard library only).
@@ -16,7 +19,7 @@ root="$(cd "$here/.." && pwd)"
 out="$here/out"
 portfolio="$root/portfolios/demo.yaml"
 today=2027-02-03          # day 30 of the window, which starts on 2027-01-04
-drop="product=0.7@$today" # product pages lose 30% of their visitors from today
+drop="product=0.7@$today" # what if product pages lose another 30% from today
 
 heading() { printf '\n==> %s\n\n' "$*"; }
 
@@ -39,15 +42,14 @@ heading "3. the report to share and the calendar of result dates"
 "$sluice" plan "$portfolio" --no-timing --format html --out "$out/plan.html"
 "$sluice" plan "$portfolio" --no-timing --format ics --out "$out/results.ics"
 
-heading "4. day 30 ($today): progress so far (traffic ran at 90% of the forecast)"
-python3 "$here/progress_from_plan.py" "$out/plan.json" "$today" > "$out/progress-day30.yaml"
+heading "4. day 30 ($today): progress so far, and the traffic each pool actually had"
+python3 "$here/progress_from_plan.py" "$out/plan.json" "$today" --traffic "$here/traffic" \
+    > "$out/progress-day30.yaml"
 cat "$out/progress-day30.yaml"
-echo
-echo "and from today, product pages get 30% fewer visitors: --scale $drop"
 
-heading "5. re-plan around the running tests, and what moved"
+heading "5. re-plan from the traffic observed, around the running tests, and what moved"
 replan=("$sluice" replan "$portfolio" --progress "$out/progress-day30.yaml"
-    --today "$today" --scale "$drop" --previous "$out/plan.json" --no-timing)
+    --today "$today" --previous "$out/plan.json" --no-timing)
 "${replan[@]}" | tee "$out/replan.txt"
 "${replan[@]}" --format md --out "$out/replan.md"
 "${replan[@]}" --format html --out "$out/replan.html"
@@ -55,6 +57,9 @@ replan=("$sluice" replan "$portfolio" --progress "$out/progress-day30.yaml"
 # Imported over results.ics, it moves the changed events (a higher SEQUENCE)
 # and cancels those of tests that stopped or no longer fit.
 "${replan[@]}" --format ics --out "$out/replan.ics"
+
+heading "6. what if product pages lose another 30% from today: --scale $drop"
+"${replan[@]}" --scale "$drop" | tee "$out/whatif.txt"
 
 written=$(cd "$out" && ls | tr '\n' ' ')
 heading "done"

@@ -225,10 +225,12 @@ mod tests {
                         running: 0,
                     })
                     .collect(),
+                history: vec![],
             }],
             blackouts: vec![],
             today: d("2027-01-04"),
             running: vec![],
+            traffic: vec![],
             changes: None,
             calendar: None,
         }

@@ -268,6 +268,10 @@ pub struct ResultRange {
     /// The share of paths whose run ends by its deadline, or by the
     /// window's last day without one.
     pub on_time: f64,
+    /// With `planning.confidence`: the share of paths whose run ends by
+    /// its planned end, so its result comes by its planned result date.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub on_plan: Option<f64>,
 }
 
 /// What a finished or cancelled test ran before today: kept in a re-plan
@@ -475,6 +479,23 @@ pub struct PoolPlan {
     pub holdout: f64,
     /// Every day of the window, in order.
     pub days: Vec<PoolDay>,
+    /// Pools with a `history` (or a re-plan's traffic): its last
+    /// [`HISTORY_SHOWN`] days, in order, for the report's forecast chart;
+    /// empty (and left out of JSON) otherwise.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub history: Vec<HistoryDay>,
+}
+
+/// How many of a pool's last history days a plan carries.
+pub const HISTORY_SHOWN: usize = 84;
+
+/// One day of a pool's history.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct HistoryDay {
+    /// The day.
+    pub date: NaiveDate,
+    /// Its units.
+    pub units: f64,
 }
 
 /// A blackout span, as the renderers show it.
@@ -490,6 +511,38 @@ pub struct PlanBlackout {
     pub note: String,
     /// Pool ids; empty for every pool.
     pub pools: Vec<String>,
+}
+
+/// A pool's actual traffic so far against its forecast (re-plans).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TrafficSoFar {
+    /// The pool's id.
+    pub pool: String,
+    /// The first day of the actual traffic.
+    pub from: NaiveDate,
+    /// Its last day.
+    pub to: NaiveDate,
+    /// Units the pool had over those days.
+    pub units: f64,
+    /// Units the portfolio's forecast gave those days.
+    pub forecast: f64,
+    /// `units / forecast − 1`: −0.12 ran 12% below the forecast; 0 when
+    /// the forecast gave no units.
+    pub difference: f64,
+    /// How the re-plan's forecast of the pool was made from it.
+    pub refit: Refit,
+}
+
+/// How a re-plan turned a pool's actual traffic into its forecast.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Refit {
+    /// Fitted again from the pool's history followed by the traffic.
+    HistoryAndTraffic,
+    /// Fitted from the traffic alone (no history joins it; four weeks or more).
+    Traffic,
+    /// Too short to fit: the forecast's level scaled by actual / forecast.
+    Level,
 }
 
 /// The whole plan.
@@ -520,6 +573,10 @@ pub struct Plan {
     /// Re-plans only: each running test's outlook.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub running: Vec<RunningOutlook>,
+    /// Re-plans whose progress file gives pools' actual traffic: how far
+    /// each ran from its forecast, and how its forecast was refitted.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub traffic: Vec<TrafficSoFar>,
     /// Re-plans with `--previous` only: what moved since the previous plan.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub changes: Option<PlanDiff>,

@@ -1025,3 +1025,109 @@ fn running_flags_are_exactly_the_documented_codes() {
     }
     assert!(seen.contains("cannot_finish"), "{seen:?}");
 }
+
+#[test]
+fn running_tests_get_ranges_from_today_with_their_units_so_far() {
+    let v = replan_json(&demo(), day30_progress(), DAY30, &[]);
+    let today = d(DAY30);
+    let mut seen = 0;
+    for e in v["experiments"].as_array().unwrap() {
+        if e["status"] != "running" || date(&e["end"]).unwrap() < today {
+            continue;
+        }
+        let r = e
+            .get("result_range")
+            .unwrap_or_else(|| panic!("a running test on a history pool has a range: {e}"));
+        let (p10, p50, p90) = (date(&r["p10"]), date(&r["p50"]), date(&r["p90"]));
+        // Its data end no earlier than today: results from tomorrow on.
+        assert!(p10.unwrap() > today, "{e}");
+        assert!(p10 <= p50 && p50 <= p90, "{e}");
+        // Around the outlook's own end: within a week of the point date.
+        let due = date(&e["result_date"]).unwrap();
+        assert!((p50.unwrap() - due).num_days().abs() <= 7, "{e}");
+        seen += 1;
+    }
+    assert!(seen > 0, "the scenario has running tests");
+}
+
+/// The day-30 progress with a `traffic` entry per pool naming the demo's
+/// actual traffic (demo/traffic/, made by demo/make_traffic.py).
+fn day30_with_traffic() -> String {
+    let mut text = std::fs::read_to_string(day30_progress()).unwrap();
+    text += "traffic:\n";
+    for pool in ["home", "search", "product", "basket", "app-onboarding"] {
+        let csv = repo(&format!("demo/traffic/{pool}.csv"));
+        text += &format!("  - pool: {pool}\n    history: {}\n", csv.display());
+    }
+    write("progress-day30-traffic.yaml", &text)
+}
+
+/// Units the plan forecasts for `pool` from `from` to the window's end.
+fn forecast_from(plan: &Value, pool: &str, from: NaiveDate) -> f64 {
+    plan["pools"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["id"] == pool)
+        .unwrap()["days"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|d| date(&d["date"]).unwrap() >= from)
+        .map(|d| d["forecast"].as_f64().unwrap())
+        .sum()
+}
+
+#[test]
+fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
+    let progress = day30_with_traffic();
+    let v = replan_json(&demo(), &progress, DAY30, &[]);
+    let plain = replan_json(&demo(), day30_progress(), DAY30, &[]);
+    assert!(plain.get("traffic").is_none());
+    let traffic = v["traffic"].as_array().unwrap();
+    assert_eq!(traffic.len(), 5);
+    let product = traffic.iter().find(|t| t["pool"] == "product").unwrap();
+    assert_eq!(product["from"], "2027-01-04");
+    assert_eq!(product["to"], "2027-02-02");
+    assert_eq!(product["refit"], "history_and_traffic");
+    // The scenario's product pages lost a fifth of their visitors from
+    // 18 January: over the month they ran several percent short.
+    let diff = product["difference"].as_f64().unwrap();
+    let (units, forecast) = (
+        product["units"].as_f64().unwrap(),
+        product["forecast"].as_f64().unwrap(),
+    );
+    assert!((units / forecast - 1.0 - diff).abs() < 1e-12);
+    assert!(diff < -0.03, "{product}");
+    // The refit carries the drop on: the rest of the window forecasts
+    // fewer product units than the portfolio's own forecast, about as
+    // many fewer as the late January days ran (a fifth), not the month.
+    let today = d(DAY30);
+    let ratio = forecast_from(&v, "product", today) / forecast_from(&plain, "product", today);
+    assert!((0.7..0.92).contains(&ratio), "{ratio}");
+    // The app's onboarding ran above its forecast and is forecast higher.
+    let app = traffic
+        .iter()
+        .find(|t| t["pool"] == "app-onboarding")
+        .unwrap();
+    assert!(app["difference"].as_f64().unwrap() > 0.05, "{app}");
+    assert!(
+        forecast_from(&v, "app-onboarding", today) > forecast_from(&plain, "app-onboarding", today)
+    );
+    let text = replan_text(&demo(), &progress, DAY30, &[]);
+    assert!(text.contains("Traffic so far"), "{text}");
+    assert!(
+        text.contains(&format!(
+            "Product pages (product) ran {:.1}% below its forecast from 4 Jan to 2 Feb",
+            -diff * 100.0
+        )),
+        "{text}"
+    );
+    // Markdown and HTML say it too.
+    let md = replan_text(&demo(), &progress, DAY30, &["--format", "md"]);
+    assert!(md.contains("### Traffic so far\n\n- "), "{md}");
+    assert!(md.contains("\n- Product pages (product) ran "), "{md}");
+    let html = replan_text(&demo(), &progress, DAY30, &["--format", "html"]);
+    assert!(html.contains(r#"<h2 id="traffic-so-far">Traffic so far</h2>"#));
+    assert_eq!(html.matches("its forecast is fitted again").count(), 5);
+}

@@ -120,22 +120,54 @@ impl Series {
         min_days: u32,
         whole_weeks: bool,
     ) -> Option<usize> {
-        if start >= self.units.len() || share <= 0.0 {
+        self.run_end_from(
+            start as i64,
+            start,
+            start,
+            share,
+            need,
+            min_days,
+            whole_weeks,
+        )
+    }
+
+    /// [`Series::run_end`] for a run that may already be under way: it
+    /// began on day index `start` (negative before the span), counts `need`
+    /// more units from day index `from`, and ends no earlier than
+    /// `not_before`; its minimum run and whole weeks count from `start`.
+    /// A run with nothing left to collect reaches its need on `not_before`.
+    #[allow(clippy::too_many_arguments)]
+    pub fn run_end_from(
+        &self,
+        start: i64,
+        from: usize,
+        not_before: usize,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> Option<usize> {
+        if from >= self.units.len() || share <= 0.0 {
             return None;
         }
-        // First index e with share x (cum[e + 1] - cum[start]) >= need.
-        let base = self.cumulative[start];
-        let target = need / share + base;
-        // Tolerate rounding noise in the running totals.
-        let target = target - 1e-9 * target.abs().max(1.0);
-        let tail = &self.cumulative[start + 1..];
-        let k = tail.partition_point(|&c| c < target);
-        if k >= tail.len() {
-            return None;
-        }
-        let days = crate::sizing::round_days(k as u64 + 1, min_days, whole_weeks) as usize;
+        let reached = if need > 0.0 {
+            // First index k >= from with share x (cum[k + 1] - cum[from]) >= need.
+            let target = need / share + self.cumulative[from];
+            // Tolerate rounding noise in the running totals.
+            let target = target - 1e-9 * target.abs().max(1.0);
+            let tail = &self.cumulative[from + 1..];
+            let k = tail.partition_point(|&c| c < target);
+            if k >= tail.len() {
+                return None;
+            }
+            (from + k).max(not_before)
+        } else {
+            not_before
+        };
+        let days = (reached as i64 - start + 1).max(1) as u64;
+        let days = crate::sizing::round_days(days, min_days, whole_weeks) as i64;
         let end = start + days - 1;
-        (end < self.units.len()).then_some(end)
+        (end >= 0 && (end as usize) < self.units.len()).then_some(end as usize)
     }
 }
 
@@ -297,6 +329,24 @@ mod tests {
         assert_eq!(s.run_end(0, 0.1, 1e6, 14, true), None);
         // Exactly reaching the need on a day ends on that day.
         assert_eq!(s.run_end(3, 1.0, 1500.0, 1, false), Some(17));
+    }
+
+    #[test]
+    fn a_run_under_way_counts_from_its_reading_and_ends_no_earlier_than_today() {
+        let p = pool(100.0, [1.0; 7], vec![]);
+        let s = Series::new(&p, d("2027-01-04"), d("2027-03-31"));
+        // Began 3 days before the span; 500 more units at 50% from day 2
+        // reach on day 11; 15 days from its start, whole weeks make 21.
+        assert_eq!(s.run_end_from(-3, 2, 2, 0.5, 500.0, 14, false), Some(11));
+        assert_eq!(s.run_end_from(-3, 2, 2, 0.5, 500.0, 14, true), Some(17));
+        // Nothing left to collect: it ends on `not_before` or its minimum.
+        assert_eq!(s.run_end_from(0, 5, 20, 0.5, 0.0, 14, false), Some(20));
+        assert_eq!(s.run_end_from(0, 5, 5, 0.5, 0.0, 14, false), Some(13));
+        // From its start it is `run_end`.
+        assert_eq!(
+            s.run_end_from(3, 3, 3, 1.0, 1500.0, 1, false),
+            s.run_end(3, 1.0, 1500.0, 1, false)
+        );
     }
 
     #[test]

@@ -22,10 +22,11 @@
 use super::Series;
 use crate::plan::{PlannedExperiment, ResultRange, Status};
 use crate::portfolio::{Portfolio, Uncertainty};
-use chrono::Duration;
+use chrono::{Duration, NaiveDate};
 use rand_chacha::rand_core::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
 
 /// The σ of a mean-1 lognormal factor whose coefficient of variation is
 /// `cv`: `sqrt(ln(1 + cv²))`.
@@ -39,17 +40,23 @@ pub fn factor(s: f64, z: f64) -> f64 {
 }
 
 /// One run to simulate: where it starts on its pool's series and the rule
-/// that ends it.
+/// that ends it ([`Series::run_end_from`]).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct RunRule {
     /// Index of its pool in the series given to [`simulate`].
     pub pool: usize,
-    /// Day index of its first day.
-    pub start: usize,
+    /// Day index of its first day (negative for a running test that began
+    /// before the span).
+    pub start: i64,
+    /// Day index from which its units are counted: its start, or for a
+    /// running test the day its counts were read.
+    pub from: usize,
+    /// The earliest day index it may end on: its start, or a re-plan's today.
+    pub not_before: usize,
     /// The constant fraction of the pool's units that enter it: its share
     /// times its entering fraction, in (0, 1].
     pub share: f64,
-    /// Units it needs over all arms.
+    /// Units it still needs over all arms.
     pub need: f64,
     /// Its minimum run in days.
     pub min_days: u32,
@@ -57,51 +64,101 @@ pub struct RunRule {
     pub whole_weeks: bool,
 }
 
+impl RunRule {
+    /// A run from day index `start` that needs `need` units.
+    pub fn new(
+        pool: usize,
+        start: usize,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> RunRule {
+        RunRule {
+            pool,
+            start: start as i64,
+            from: start,
+            not_before: start,
+            share,
+            need,
+            min_days,
+            whole_weeks,
+        }
+    }
+
+    fn end_on(&self, series: &Series) -> Option<u32> {
+        series
+            .run_end_from(
+                self.start,
+                self.from,
+                self.not_before,
+                self.share,
+                self.need,
+                self.min_days,
+                self.whole_weeks,
+            )
+            .map(|i| i as u32)
+    }
+}
+
+/// Draws path `path`'s traffic into `sims` (one series per pool, the same
+/// length as `forecasts`): a pool without error keeps its forecast.
+fn draw(forecasts: &[Series], spread: &[Uncertainty], sims: &mut [Series], seed: u64, path: u32) {
+    // Each path has its own ChaCha stream, so a path's draws do not depend
+    // on which thread makes it or in what order.
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(u64::from(path));
+    for (p, base) in forecasts.iter().enumerate() {
+        let u = spread[p];
+        if u.is_none() {
+            continue;
+        }
+        let (sl, sd) = (sigma(u.level_cv), sigma(u.daily_cv));
+        let z: f64 = StandardNormal.sample(&mut rng);
+        let level = factor(sl, z);
+        let sim = &mut sims[p];
+        let mut total = 0.0;
+        for (i, &f) in base.units.iter().enumerate() {
+            let day = if sd > 0.0 {
+                let z: f64 = StandardNormal.sample(&mut rng);
+                factor(sd, z)
+            } else {
+                1.0
+            };
+            sim.units[i] = f * level * day;
+            total += sim.units[i];
+            sim.cumulative[i + 1] = total;
+        }
+    }
+}
+
 /// Each run's end (a day index, `None` past the series) on each of `paths`
 /// paths: `ends[run][path]`. `forecasts[p]` is pool `p`'s forecast and
 /// `spread[p]` its error; a pool without error keeps its forecast on every
-/// path and draws nothing.
+/// path and draws nothing. Paths are simulated in parallel; path `k`
+/// always draws from stream `k` of the seed, so the result is the same
+/// whatever the number of threads.
 pub fn simulate(
     forecasts: &[Series],
     spread: &[Uncertainty],
     runs: &[RunRule],
     paths: u32,
     seed: u64,
-) -> Vec<Vec<Option<usize>>> {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+) -> Vec<Vec<Option<u32>>> {
+    let per_path: Vec<Vec<Option<u32>>> = (0..paths)
+        .into_par_iter()
+        .map_init(
+            || forecasts.to_vec(),
+            |sims, path| {
+                draw(forecasts, spread, sims, seed, path);
+                runs.iter().map(|r| r.end_on(&sims[r.pool])).collect()
+            },
+        )
+        .collect();
     let mut ends = vec![Vec::with_capacity(paths as usize); runs.len()];
-    let mut paths_now: Vec<Series> = forecasts.to_vec();
-    for _ in 0..paths {
-        for (p, base) in forecasts.iter().enumerate() {
-            let u = spread[p];
-            if u.is_none() {
-                continue;
-            }
-            let (sl, sd) = (sigma(u.level_cv), sigma(u.daily_cv));
-            let z: f64 = StandardNormal.sample(&mut rng);
-            let level = factor(sl, z);
-            let sim = &mut paths_now[p];
-            let mut total = 0.0;
-            for (i, &f) in base.units.iter().enumerate() {
-                let day = if sd > 0.0 {
-                    let z: f64 = StandardNormal.sample(&mut rng);
-                    factor(sd, z)
-                } else {
-                    1.0
-                };
-                sim.units[i] = f * level * day;
-                total += sim.units[i];
-                sim.cumulative[i + 1] = total;
-            }
-        }
-        for (r, run) in runs.iter().enumerate() {
-            ends[r].push(paths_now[run.pool].run_end(
-                run.start,
-                run.share,
-                run.need,
-                run.min_days,
-                run.whole_weeks,
-            ));
+    for path in &per_path {
+        for (r, end) in path.iter().enumerate() {
+            ends[r].push(*end);
         }
     }
     ends
@@ -109,17 +166,110 @@ pub fn simulate(
 
 /// The lower `q`-quantile of `ends` (`None` standing for past the span):
 /// the `ceil(q·n)`-th smallest.
-pub fn quantile(ends: &[Option<usize>], q: f64) -> Option<usize> {
-    let mut sorted: Vec<usize> = ends.iter().flatten().copied().collect();
+pub fn quantile(ends: &[Option<u32>], q: f64) -> Option<u32> {
+    let mut sorted: Vec<u32> = ends.iter().flatten().copied().collect();
     sorted.sort_unstable();
     let k = ((q * ends.len() as f64).ceil() as usize).clamp(1, ends.len().max(1)) - 1;
     sorted.get(k).copied()
 }
 
-/// Fills `result_range` for every scheduled test of `plan_experiments`
-/// (in portfolio order) whose pool has an uncertain forecast. Paths run
-/// past the window by its length again, so late ends still have dates.
-pub fn fill_ranges(portfolio: &Portfolio, experiments: &mut [PlannedExperiment]) {
+/// The share of `ends` on or before day index `day`.
+fn share_by(ends: &[Option<u32>], day: i64) -> f64 {
+    ends.iter()
+        .filter(|end| end.is_some_and(|i| i64::from(i) <= day))
+        .count() as f64
+        / ends.len().max(1) as f64
+}
+
+/// What a re-plan knows of a running test's count: the units it had
+/// collected by the end of the day before `as_of`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SoFar {
+    /// The day the counts were read.
+    pub as_of: NaiveDate,
+    /// Units over all arms collected before `as_of`.
+    pub units: u64,
+}
+
+/// A run whose range is simulated: the experiment and its rule.
+struct Simulated {
+    experiment: usize,
+    rule: RunRule,
+    /// Day index of its planned end.
+    planned_end: i64,
+}
+
+/// The runs [`fill_ranges`] simulates: every scheduled test on an
+/// uncertain pool from its start, and every running test that `so_far`
+/// counts, from the day its counts were read with the units it still
+/// needs (a test whose data are in, ending before today, has no range).
+fn simulated_runs(
+    portfolio: &Portfolio,
+    experiments: &[PlannedExperiment],
+    spread: &[Uncertainty],
+    so_far: &[(usize, SoFar)],
+    today: NaiveDate,
+) -> Vec<Simulated> {
+    let w = portfolio.window;
+    let index = |d: NaiveDate| w.offset(d).offset();
+    let mut out = Vec::new();
+    for (e, pe) in experiments.iter().enumerate() {
+        let ex = &portfolio.experiments[e];
+        let Some(run) = &pe.run else {
+            continue;
+        };
+        if spread[ex.pool].is_none() {
+            continue;
+        }
+        let mut rule = RunRule::new(
+            ex.pool,
+            0,
+            run.share.fraction() * portfolio.entering_fraction(e, ex.pool),
+            ex.need.total as f64,
+            ex.min_days,
+            ex.whole_weeks,
+        );
+        rule.start = index(run.start);
+        match pe.status {
+            Status::Scheduled => {
+                rule.from = rule.start.max(0) as usize;
+                rule.not_before = rule.from;
+            }
+            Status::Running => {
+                let Some((_, counted)) = so_far.iter().find(|(x, _)| *x == e) else {
+                    continue;
+                };
+                if run.end < today {
+                    continue;
+                }
+                rule.from = index(counted.as_of.max(run.start)).max(0) as usize;
+                rule.not_before = index(today).max(0) as usize;
+                rule.need = ex.need.total.saturating_sub(counted.units) as f64;
+            }
+            _ => continue,
+        }
+        out.push(Simulated {
+            experiment: e,
+            rule,
+            planned_end: index(run.end),
+        });
+    }
+    out
+}
+
+/// Fills `result_range` for every scheduled test of `experiments` (in
+/// portfolio order) whose pool has an uncertain forecast, and for every
+/// running test that `so_far` counts (re-plans: from the day its counts
+/// were read, with the units it still needs, ending no earlier than
+/// `today`). Paths run past the window by its length again, so late ends
+/// still have dates. With `planning.confidence`, each range also gets
+/// `on_plan`.
+pub fn fill_ranges(
+    portfolio: &Portfolio,
+    experiments: &mut [PlannedExperiment],
+    so_far: &[(usize, SoFar)],
+    today: NaiveDate,
+) {
     let w = portfolio.window;
     let spread: Vec<Uncertainty> = portfolio
         .pools
@@ -136,48 +286,43 @@ pub fn fill_ranges(portfolio: &Portfolio, experiments: &mut [PlannedExperiment])
         .iter()
         .map(|p| Series::new(p, w.start, span_end))
         .collect();
-    let mut which = Vec::new();
-    let mut runs = Vec::new();
-    for (e, pe) in experiments.iter().enumerate() {
-        let ex = &portfolio.experiments[e];
-        let (Some(run), Status::Scheduled) = (&pe.run, pe.status) else {
-            continue;
-        };
-        if spread[ex.pool].is_none() {
-            continue;
-        }
-        which.push(e);
-        runs.push(RunRule {
-            pool: ex.pool,
-            start: w.offset(run.start).offset() as usize,
-            share: run.share.fraction() * portfolio.entering_fraction(e, ex.pool),
-            need: ex.need.total as f64,
-            min_days: ex.min_days,
-            whole_weeks: ex.whole_weeks,
-        });
-    }
+    let sims = simulated_runs(portfolio, experiments, &spread, so_far, today);
+    let runs: Vec<RunRule> = sims.iter().map(|s| s.rule).collect();
     let planning = portfolio.planning;
     let ends = simulate(&forecasts, &spread, &runs, planning.paths, planning.seed);
-    for (k, &e) in which.iter().enumerate() {
-        let ex = &portfolio.experiments[e];
+    for (s, ends) in sims.iter().zip(&ends) {
+        let ex = &portfolio.experiments[s.experiment];
         let due = ex
             .deadline
             .map_or(window_days - 1, |d| w.offset(d).offset())
             .min(window_days - 1);
-        let on_time = ends[k]
-            .iter()
-            .filter(|end| end.is_some_and(|i| i as i64 <= due))
-            .count() as f64
-            / ends[k].len() as f64;
         // Result dates: the day after the last day of data.
-        let date = |q: f64| quantile(&ends[k], q).map(|i| w.date(i as i64 + 1));
-        experiments[e].result_range = Some(ResultRange {
+        let date = |q: f64| quantile(ends, q).map(|i| w.date(i64::from(i) + 1));
+        experiments[s.experiment].result_range = Some(ResultRange {
             p10: date(0.1),
             p50: date(0.5),
             p90: date(0.9),
-            on_time,
+            on_time: share_by(ends, due),
+            on_plan: planning.confidence.map(|_| share_by(ends, s.planned_end)),
         });
     }
+}
+
+/// The factor by which planning to `confidence` lowers a pool's forecast
+/// at first: the level factor's `(1 − confidence)`-quantile,
+/// `exp(σL·Φ⁻¹(1 − c) − σL²/2)` (the lognormal's quantile function), with
+/// the day-to-day error of a four-week run folded into σ
+/// (`level_cv² + daily_cv²/28`), so that short runs on noisy pools start
+/// near what they need. The simulation then confirms each run.
+pub fn lower_quantile_factor(u: Uncertainty, confidence: f64) -> f64 {
+    use statrs::distribution::{ContinuousCDF, Normal};
+    if u.is_none() {
+        return 1.0;
+    }
+    let cv = (u.level_cv * u.level_cv + u.daily_cv * u.daily_cv / 28.0).sqrt();
+    let s = sigma(cv);
+    let z = Normal::standard().inverse_cdf(1.0 - confidence);
+    factor(s, z)
 }
 
 #[cfg(test)]
@@ -201,14 +346,7 @@ mod tests {
     }
 
     fn rule(need: f64) -> RunRule {
-        RunRule {
-            pool: 0,
-            start: 0,
-            share: 1.0,
-            need,
-            min_days: 1,
-            whole_weeks: false,
-        }
+        RunRule::new(0, 0, 1.0, need, 1, false)
     }
 
     fn cv(level_cv: f64, daily_cv: f64) -> Uncertainty {
@@ -229,11 +367,10 @@ mod tests {
     fn without_error_every_path_ends_on_the_planned_day() {
         let f = flat(1000.0, 200);
         let planned = f.run_end(3, 0.5, 30_000.0, 14, true);
-        let mut r = rule(30_000.0);
-        (r.start, r.share, r.min_days, r.whole_weeks) = (3, 0.5, 14, true);
+        let r = RunRule::new(0, 3, 0.5, 30_000.0, 14, true);
         let ends = simulate(&[f], &[cv(0.0, 0.0)], &[r], 200, 7);
         assert!(planned.is_some());
-        assert!(ends[0].iter().all(|e| *e == planned));
+        assert!(ends[0].iter().all(|e| e.map(|i| i as usize) == planned));
     }
 
     /// With daily_cv = 0 a run of share 1 on a flat forecast μ ends after
@@ -259,7 +396,7 @@ mod tests {
             // of the quantile is about 0.1 day here).
             let edge = (days - days.floor()).min(days.ceil() - days);
             assert!(edge > 0.3, "q {q}: {days} days is too near an edge");
-            let expected = days.ceil() as usize - 1;
+            let expected = days.ceil() as u32 - 1;
             assert_eq!(quantile(&ends[0], q), Some(expected), "q {q}");
         }
     }
@@ -340,6 +477,30 @@ mod tests {
         assert_ne!(run(3)[0], run(4)[0]);
         // A pool without error keeps its forecast on every path.
         assert!(run(3)[1].iter().all(|e| *e == Some(9)));
+    }
+
+    #[test]
+    fn the_ends_do_not_depend_on_the_number_of_threads() {
+        let run = |threads| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap()
+                .install(|| {
+                    simulate(
+                        &[flat(1000.0, 200), flat(700.0, 200)],
+                        &[cv(0.2, 0.3), cv(0.1, 0.5)],
+                        &[rule(20_000.0), RunRule::new(1, 5, 0.5, 6_000.0, 7, true)],
+                        777,
+                        9,
+                    )
+                })
+        };
+        let one = run(1);
+        assert_eq!(one, run(3));
+        assert_eq!(one, run(2));
+        // Path by path, not a sorted summary: path 0 is the same too.
+        assert_eq!(one[1][0], run(4)[1][0]);
     }
 
     #[test]

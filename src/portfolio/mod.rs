@@ -10,7 +10,7 @@
 //! docs/portfolio.md documents the file.
 
 mod checker;
-mod history;
+pub(crate) mod history;
 mod load;
 pub mod model;
 pub mod position;

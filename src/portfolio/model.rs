@@ -126,6 +126,10 @@ pub struct Planning {
     pub seed: u64,
     /// How many traffic paths result ranges are simulated over.
     pub paths: u32,
+    /// Plan each scheduled test so that its planned end is at least this
+    /// quantile of its simulated ends (`planning.confidence`); `None`
+    /// plans on the forecast as it is.
+    pub confidence: Option<f64>,
 }
 
 impl Default for Planning {
@@ -140,6 +144,7 @@ impl Default for Planning {
             reshare_running: false,
             seed: 1,
             paths: 2_000,
+            confidence: None,
         }
     }
 }

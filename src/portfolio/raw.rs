@@ -105,6 +105,7 @@ pub struct RawPlanning {
     pub reshare_running: Option<bool>,
     pub seed: Option<f64>,
     pub paths: Option<f64>,
+    pub confidence: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]

@@ -554,6 +554,16 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
     } else {
         fallback.paths
     };
+    let confidence = p.confidence.filter(|&c| {
+        cx.number(
+            "planning.confidence",
+            "",
+            c,
+            (0.5..1.0).contains(&c),
+            "in [0.5, 1)",
+            "0.8 plans every test so that its result comes by its planned date on 80% of simulated traffic paths; leave it out to plan on the forecast as it is",
+        )
+    });
     Planning {
         grid,
         start_weekday,
@@ -561,6 +571,7 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         reshare_running: p.reshare_running.unwrap_or(fallback.reshare_running),
         seed,
         paths,
+        confidence: confidence.or(fallback.confidence),
     }
 }
 

@@ -4,7 +4,9 @@
 //! Nothing here computes a schedule fact: runs, shares and result dates are
 //! read from the plan as they are.
 
-use crate::plan::{Plan, PlanBlackout, PlannedExperiment, PoolPlan, Sharing, SolverStatus, Status};
+use crate::plan::{
+    Plan, PlanBlackout, PlannedExperiment, PoolPlan, ResultRange, Sharing, SolverStatus, Status,
+};
 pub(crate) use crate::words::{percent, thousands, units};
 use chrono::{Duration, NaiveDate};
 
@@ -244,9 +246,81 @@ pub const CAUTIONS: [&str; 4] = [
      review, whatever this plan says fits.",
 ];
 
-/// The cautions as one paragraph.
-pub fn caution() -> String {
-    CAUTIONS.join(" ")
+/// What result ranges cover, after [`CAUTIONS`] in plans that have them.
+pub const RANGES_CAUTION: &str = "The result ranges (P10 to P90) come from simulated traffic \
+around the forecast: they cover the forecast being off, for a whole run or day to day, and \
+nothing else. They do not cover a wrong baseline rate or variance, or an effect other than the \
+one planned for: those change how many units a test needs, which every simulated path takes \
+as given.";
+
+/// The cautions for `plan`: [`CAUTIONS`], and [`RANGES_CAUTION`] when any
+/// test has a result range.
+pub fn cautions(plan: &Plan) -> Vec<&'static str> {
+    let mut out = CAUTIONS.to_vec();
+    if has_ranges(plan) {
+        out.push(RANGES_CAUTION);
+    }
+    out
+}
+
+/// [`cautions`] as one paragraph.
+pub fn caution(plan: &Plan) -> String {
+    cautions(plan).join(" ")
+}
+
+/// Whether any test of `plan` has a result range.
+pub fn has_ranges(plan: &Plan) -> bool {
+    plan.experiments.iter().any(|e| e.result_range.is_some())
+}
+
+/// A re-plan's actual traffic, one sentence per pool: how far it ran from
+/// its forecast over which days, and how its forecast was made from it.
+pub fn traffic_lines(plan: &Plan) -> Vec<String> {
+    plan.traffic
+        .iter()
+        .map(|t| {
+            let direction = if t.difference < 0.0 { "below" } else { "above" };
+            let how = match t.refit {
+                crate::plan::Refit::HistoryAndTraffic => {
+                    "its forecast is fitted again from its history and this traffic"
+                }
+                crate::plan::Refit::Traffic => "its forecast is fitted from this traffic",
+                crate::plan::Refit::Level => {
+                    "too short to fit: its forecast's level is scaled by the same amount"
+                }
+            };
+            format!(
+                "{} ({}) ran {} {direction} its forecast from {} to {} ({} units against {} forecast); {how}.",
+                pool_label(plan, &t.pool),
+                t.pool,
+                percent(t.difference.abs()),
+                short_date(t.from),
+                short_date(t.to),
+                units(t.units),
+                units(t.forecast),
+            )
+        })
+        .collect()
+}
+
+/// A result range in words: `P10 – P90`, one date when they agree, and
+/// `later` for a quantile past the simulated span.
+pub fn range_words(r: &ResultRange) -> String {
+    let day = |d: Option<NaiveDate>| d.map_or("later".to_string(), |d| d.to_string());
+    if r.p10 == r.p90 {
+        day(r.p10)
+    } else {
+        format!("{} – {}", day(r.p10), day(r.p90))
+    }
+}
+
+/// "on time 83%", and with a confidence plan "by plan 81%".
+pub fn chance_words(r: &ResultRange) -> String {
+    let mut s = format!("on time {}", percent(r.on_time));
+    if let Some(p) = r.on_plan {
+        s.push_str(&format!(", by plan {}", percent(p)));
+    }
+    s
 }
 
 /// Lays `t` out to fit `width` columns (comfy-table's dynamic arrangement),

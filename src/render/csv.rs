@@ -31,11 +31,29 @@ pub const HEADER: [&str; 16] = [
     "sample_size_given",
 ];
 
+/// The result-range columns after [`HEADER`]: the P10, P50 and P90 result
+/// dates and the on-time share (a fraction), empty without a range.
+pub const RANGE_HEADER: [&str; 4] = ["result_p10", "result_p50", "result_p90", "on_time"];
+
+/// `e`'s cells under [`RANGE_HEADER`].
+fn range_cells(e: &crate::plan::PlannedExperiment) -> [String; 4] {
+    let Some(r) = &e.result_range else {
+        return Default::default();
+    };
+    let day = |d: Option<chrono::NaiveDate>| d.map(|d| d.to_string()).unwrap_or_default();
+    [day(r.p10), day(r.p50), day(r.p90), r.on_time.to_string()]
+}
+
 impl Renderer for Csv {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut w = csv::Writer::from_writer(Vec::new());
-        w.write_record(HEADER.iter().chain(&super::numbers::CSV_HEADER))
-            .map_err(RenderError::Csv)?;
+        w.write_record(
+            HEADER
+                .iter()
+                .chain(&RANGE_HEADER)
+                .chain(&super::numbers::CSV_HEADER),
+        )
+        .map_err(RenderError::Csv)?;
         for e in &plan.experiments {
             let opt = |f: &dyn Fn(&Run) -> String| e.run.as_ref().map(f).unwrap_or_default();
             // A finished or cancelled test keeps the days it ran (re-plans).
@@ -68,7 +86,7 @@ impl Renderer for Csv {
                 e.sample_size_given.to_string(),
             ];
             let numbers = super::numbers::csv_cells(e);
-            w.write_record(row.iter().chain(&numbers))
+            w.write_record(row.iter().chain(&range_cells(e)).chain(&numbers))
                 .map_err(RenderError::Csv)?;
         }
         w.into_inner()
@@ -88,6 +106,7 @@ mod tests {
         let mut r = csv::Reader::from_reader(bytes.as_slice());
         let header: Vec<&str> = HEADER
             .iter()
+            .chain(&RANGE_HEADER)
             .chain(&crate::render::numbers::CSV_HEADER)
             .copied()
             .collect();

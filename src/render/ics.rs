@@ -81,6 +81,20 @@ fn uid_part(s: &str) -> String {
     out
 }
 
+/// The result range's lines for the result event's description (empty
+/// without a range): the P10 to P90 dates, the median and the on-time share.
+fn range_note(e: &PlannedExperiment) -> String {
+    match &e.result_range {
+        Some(r) => format!(
+            "\nResult range (P10–P90): {}; median {}; {}\nThe range covers traffic off its forecast, not a wrong baseline or variance.",
+            crate::render::common::range_words(r),
+            r.p50.map_or("later".to_string(), |d| d.to_string()),
+            crate::render::common::chance_words(r)
+        ),
+        None => String::new(),
+    }
+}
+
 fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
     let mut text = format!(
         "Experiment: {} ({})\n\
@@ -113,6 +127,7 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         numbers_lines(e),
         plan.portfolio,
     );
+    text.push_str(&range_note(e));
     if let Some(note) = cut_short_note(plan) {
         text.push('\n');
         text.push_str(&note.replace('`', ""));

@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{caution, counts, long_date, pool_label};
+use super::common::{caution, counts, has_ranges, long_date, pool_label, range_words};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -149,6 +149,41 @@ fn numbers(plan: &Plan, w: &mut String) {
     let _ = writeln!(w);
 }
 
+/// The result-range column's header cell and divider cell: empty when
+/// no test has a range.
+fn range_head(plan: &Plan) -> (&'static str, &'static str) {
+    if has_ranges(plan) {
+        (" Result due (P10–P90) |", "---|")
+    } else {
+        ("", "")
+    }
+}
+
+/// `e`'s result-range cell with its trailing ` |` (empty when no test has
+/// a range): its dates and on-time share.
+fn range_cell(plan: &Plan, e: &crate::plan::PlannedExperiment) -> String {
+    if !has_ranges(plan) {
+        return String::new();
+    }
+    let words = e.result_range.as_ref().map_or(String::new(), |r| {
+        format!("{} ({})", range_words(r), super::common::chance_words(r))
+    });
+    format!(" {} |", table_cell(&words))
+}
+
+/// A re-plan's actual traffic against the forecast; nothing without it.
+fn traffic(plan: &Plan, w: &mut String) {
+    let lines = super::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(w, "### Traffic so far\n");
+    for line in lines {
+        let _ = writeln!(w, "- {}", escape(&line));
+    }
+    let _ = writeln!(w);
+}
+
 impl Renderer for Markdown {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut md = changes(plan);
@@ -168,9 +203,14 @@ impl Renderer for Markdown {
         if let Some(note) = super::common::cut_short_note(plan) {
             let _ = writeln!(w, "> **Cut short.** {}\n", escape_keeping_code(note));
         }
+        traffic(plan, w);
         if fit > 0 {
-            let _ = writeln!(w, "| Result due | Test | Pool | Runs | Share | Owner |");
-            let _ = writeln!(w, "|---|---|---|---|--:|---|");
+            let (head, rule) = range_head(plan);
+            let _ = writeln!(
+                w,
+                "| Result due |{head} Test | Pool | Runs | Share | Owner |"
+            );
+            let _ = writeln!(w, "|---|{rule}---|---|---|--:|---|");
             let mut rows: Vec<_> = plan
                 .experiments
                 .iter()
@@ -181,8 +221,9 @@ impl Renderer for Markdown {
             for (run, e) in rows {
                 let _ = writeln!(
                     w,
-                    "| {} | {} (`{}`) | {} | {} to {} | {} | {} |",
+                    "| {} |{} {} (`{}`) | {} | {} to {} | {} | {} |",
                     long_date(run.result_date),
+                    range_cell(plan, e),
                     escape(&e.title),
                     e.id.replace('`', "'"),
                     escape(pool_label(plan, &e.pool)),
@@ -259,7 +300,7 @@ impl Renderer for Markdown {
             }
             let _ = writeln!(w);
         }
-        let _ = writeln!(w, "### Assumptions\n\n{}", caution());
+        let _ = writeln!(w, "### Assumptions\n\n{}", caution(plan));
         Ok(md.into_bytes())
     }
 }

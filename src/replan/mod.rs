@@ -14,6 +14,7 @@
 mod outlook;
 pub mod progress;
 pub mod scale;
+pub mod traffic;
 
 pub use progress::{load_progress, load_progress_str, Progress};
 pub use scale::{with_scales, ScaleArg};
@@ -128,6 +129,9 @@ pub fn replan(
     today: NaiveDate,
     base: &PlanRequest,
 ) -> Result<(Plan, PlanRequest), ReplanError> {
+    // The pools' actual traffic so far, when given, makes their forecasts.
+    let (refitted, traffic) = traffic::refit(portfolio, progress);
+    let portfolio = &refitted;
     let mut request = PlanRequest {
         today: Some(today),
         fixed: Vec::new(),
@@ -305,6 +309,10 @@ pub fn replan(
             share: l.outlook.share,
             share_before: l.run.share,
             end: held_to(portfolio, &l.outlook),
+            so_far: Some(crate::forecast::uncertainty::SoFar {
+                as_of: l.run.as_of,
+                units: l.run.collected,
+            }),
         });
         outlooks.push(l.outlook.clone());
     }
@@ -329,6 +337,7 @@ pub fn replan(
         let _ = l.entry;
     }
     plan.running = outlooks;
+    plan.traffic = traffic;
     Ok((plan, request))
 }
 
@@ -633,6 +642,7 @@ mod tests {
                     units_per_arm: None,
                 },
             }],
+            traffic: Vec::new(),
             warnings: Vec::new(),
         }
     }
@@ -714,6 +724,7 @@ mod tests {
                     },
                 },
             ],
+            traffic: Vec::new(),
             warnings: Vec::new(),
         };
         let (plan, request) = replan(&p, &progress, today, &PlanRequest::default()).unwrap();

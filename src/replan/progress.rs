@@ -74,8 +74,30 @@ pub struct Progress {
     pub as_of: NaiveDate,
     /// In file order, one per experiment named.
     pub entries: Vec<Entry>,
+    /// The daily units each pool actually had so far (`traffic`), one per
+    /// pool named, in file order.
+    pub traffic: Vec<Observed>,
     /// Problems worth a look that do not stop the re-plan.
     pub warnings: Vec<Diagnostic>,
+}
+
+/// A pool's actual daily units so far, as the progress file gives them.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Observed {
+    /// Index into `Portfolio::pools`.
+    pub pool: usize,
+    /// The first day.
+    pub start: NaiveDate,
+    /// Units per day from `start`, without gaps, up to the day before
+    /// `as_of` at the latest.
+    pub units: Vec<f64>,
+}
+
+impl Observed {
+    /// The last day.
+    pub fn end(&self) -> NaiveDate {
+        self.start + Duration::days(self.units.len() as i64 - 1)
+    }
 }
 
 impl Progress {
@@ -90,6 +112,22 @@ impl Progress {
 struct RawProgress {
     as_of: Option<Text>,
     experiments: Option<Vec<RawEntry>>,
+    traffic: Option<Vec<RawTraffic>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTraffic {
+    pool: Option<Text>,
+    history: Option<Text>,
+    days: Option<Vec<RawDay>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDay {
+    date: Option<Text>,
+    units: Option<f64>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -109,6 +147,8 @@ fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
     Some(match shape {
         "" => fields_of::<RawProgress>(),
         "experiments[]" => fields_of::<RawEntry>(),
+        "traffic[]" => fields_of::<RawTraffic>(),
+        "traffic[].days[]" => fields_of::<RawDay>(),
         _ => return None,
     })
 }
@@ -270,11 +310,165 @@ impl ProgressCheck<'_> {
                 });
             }
         }
+        let traffic = self.traffic(raw.traffic.unwrap_or_default(), as_of);
         Progress {
             as_of,
             entries,
+            traffic,
             warnings: Vec::new(),
         }
+    }
+
+    /// The `traffic` entries: each names a pool once and gives either a
+    /// `history` file (a `date,units` CSV, relative to the progress file)
+    /// or `days` (`date`, `units` rows), days without gaps or repeats,
+    /// before `as_of`.
+    fn traffic(&mut self, raw: Vec<RawTraffic>, as_of: NaiveDate) -> Vec<Observed> {
+        let p = self.p;
+        let ids: Vec<&str> = p.pools.iter().map(|x| x.id.as_str()).collect();
+        let mut out: Vec<Observed> = Vec::new();
+        for (i, t) in raw.into_iter().enumerate() {
+            let at = format!("traffic[{i}]");
+            let Some(id) = t.pool.as_ref().map(|x| x.as_str().trim().to_string()) else {
+                self.ck.err(
+                    &at,
+                    format!("`{at}` has no `pool`"),
+                    "name the pool as in the portfolio: `pool: ...`",
+                );
+                continue;
+            };
+            let pool_key = format!("{at}.pool");
+            let Some(pool) = p.pools.iter().position(|x| x.id == id) else {
+                let closest = diagnostic::closest_first(&id, &ids);
+                self.ck.err(
+                    &pool_key,
+                    format!("pool `{id}` is not in the portfolio"),
+                    format!(
+                        "defined pools, closest first: {}",
+                        diagnostic::list(&closest)
+                    ),
+                );
+                continue;
+            };
+            if out.iter().any(|o| o.pool == pool) {
+                self.ck.err(
+                    &pool_key,
+                    format!("pool `{id}` has traffic twice"),
+                    "give each pool's days in one entry",
+                );
+                continue;
+            }
+            let daily = match (&t.history, t.days) {
+                (Some(_), Some(_)) | (None, None) => {
+                    self.ck.err(
+                        &at,
+                        format!("the traffic of pool `{id}` needs either `history` or `days`"),
+                        "give `history: FILE.csv` (columns `date,units`) or `days: [{date: 2027-01-04, units: 61200}, ...]`, not both",
+                    );
+                    continue;
+                }
+                (Some(file), None) => self.traffic_file(&format!("{at}.history"), file),
+                (None, Some(days)) => self.traffic_days(&at, &days),
+            };
+            let Some((start, units)) = daily else {
+                continue;
+            };
+            let end = start + Duration::days(units.len() as i64 - 1);
+            if end >= as_of {
+                self.ck.err(
+                    &at,
+                    format!(
+                        "the traffic of pool `{id}` runs to {end}, on or after `as_of` ({as_of})"
+                    ),
+                    "give the days before the counts were read; later days have not happened",
+                );
+                continue;
+            }
+            out.push(Observed { pool, start, units });
+        }
+        out
+    }
+
+    /// A traffic `history` file, read like a pool's history (its problems
+    /// at their lines in the CSV file).
+    fn traffic_file(&mut self, key: &str, file: &Text) -> Option<(NaiveDate, Vec<f64>)> {
+        use crate::portfolio::history::{read, resolve, HistoryError};
+        let path = resolve(self.ck.file, file.as_str());
+        match read(&path) {
+            Ok(d) => Some((d.start, d.units)),
+            Err(HistoryError::Unreadable { path, reason }) => {
+                self.ck.err(
+                    key,
+                    format!("cannot read the traffic `{}`: {reason}", path.display()),
+                    "the path is relative to the progress file's folder",
+                );
+                None
+            }
+            Err(HistoryError::Rows(problems)) => {
+                self.ck.errors.extend(problems);
+                None
+            }
+        }
+    }
+
+    /// Inline traffic `days`: dates one day apart, units >= 0.
+    fn traffic_days(&mut self, at: &str, days: &[RawDay]) -> Option<(NaiveDate, Vec<f64>)> {
+        if days.is_empty() {
+            self.ck.err(
+                &format!("{at}.days"),
+                "`days` is empty",
+                "give one row per day: `{date: 2027-01-04, units: 61200}`",
+            );
+            return None;
+        }
+        let mut start = None;
+        let mut units = Vec::with_capacity(days.len());
+        let mut ok = true;
+        for (j, day) in days.iter().enumerate() {
+            let key = format!("{at}.days[{j}]");
+            let date = self.date(&format!("{key}.date"), &day.date);
+            let n = day.units;
+            match n {
+                Some(n) if n.is_finite() && n >= 0.0 => {}
+                Some(n) => {
+                    self.ck.err(
+                        &format!("{key}.units"),
+                        format!("`units` is {n}; it must be a number >= 0"),
+                        "the units the pool had that day",
+                    );
+                    ok = false;
+                }
+                None => {
+                    self.ck.err(
+                        &key,
+                        format!("`{key}` has no `units`"),
+                        "give the units the pool had that day: `units: 61200`",
+                    );
+                    ok = false;
+                }
+            }
+            let Some(date) = date else {
+                ok = false;
+                continue;
+            };
+            let first = *start.get_or_insert(date);
+            let expected = first + Duration::days(j as i64);
+            if ok && date != expected {
+                let what = if date < expected {
+                    "repeats or goes back"
+                } else {
+                    "leaves a gap"
+                };
+                self.ck.err(
+                    &format!("{key}.date"),
+                    format!("{date} {what}: the day after the row before is {expected}"),
+                    "give one row per day, in order, without gaps",
+                );
+                ok = false;
+            }
+            units.push(n.unwrap_or(0.0));
+        }
+        (ok).then(|| (start.expect("a first day"), units))
     }
 
     fn state(&mut self, entry: &At, e: RawEntry) -> Option<State> {
@@ -514,6 +708,72 @@ mod tests {
 
     fn load(text: &str) -> Result<Progress, LoadError> {
         load_progress_str(text, "progress.yaml", &quickstart(), d("2027-02-03"))
+    }
+
+    fn messages(r: Result<Progress, LoadError>) -> String {
+        r.unwrap_err()
+            .diagnostics
+            .iter()
+            .map(|d| format!("{}:{} {}", d.line.unwrap_or(0), d.key, d.message))
+            .collect::<Vec<_>>()
+            .join("\n")
+    }
+
+    #[test]
+    fn reads_inline_traffic_days() {
+        let p = load(
+            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-05, units: 120.5}\n",
+        )
+        .unwrap();
+        assert_eq!(
+            p.traffic,
+            vec![Observed {
+                pool: 0,
+                start: d("2027-01-04"),
+                units: vec![100.0, 120.5],
+            }]
+        );
+        assert_eq!(p.traffic[0].end(), d("2027-01-05"));
+    }
+
+    #[test]
+    fn traffic_problems_are_errors_at_their_keys() {
+        let gap = messages(load(
+            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-06, units: 120}\n",
+        ));
+        assert!(
+            gap.contains("5:traffic[0].days[1].date 2027-01-06 leaves a gap"),
+            "{gap}"
+        );
+        let unknown = messages(load(
+            "traffic:\n  - pool: prodct\n    days: [{date: 2027-01-04, units: 1}]\n",
+        ));
+        assert!(
+            unknown.contains("pool `prodct` is not in the portfolio"),
+            "{unknown}"
+        );
+        let both = messages(load(
+            "traffic:\n  - pool: product\n    history: t.csv\n    days: [{date: 2027-01-04, units: 1}]\n",
+        ));
+        assert!(both.contains("needs either `history` or `days`"), "{both}");
+        let future = messages(load(
+            "as_of: 2027-01-05\ntraffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: 1}, {date: 2027-01-05, units: 1}]\n",
+        ));
+        assert!(
+            future.contains("on or after `as_of` (2027-01-05)"),
+            "{future}"
+        );
+        let negative = messages(load(
+            "traffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: -3}]\n",
+        ));
+        assert!(negative.contains("`units` is -3"), "{negative}");
+        let unread = messages(load(
+            "traffic:\n  - pool: product\n    history: nowhere.csv\n",
+        ));
+        assert!(
+            unread.contains("cannot read the traffic `nowhere.csv`"),
+            "{unread}"
+        );
     }
 
     #[test]

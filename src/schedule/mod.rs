@@ -11,6 +11,7 @@
 //! tests that hold their traffic, and the tests that left the queue.
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
+mod confidence;
 mod greedy;
 mod lp;
 mod options;
@@ -54,6 +55,9 @@ pub struct FixedRun {
     /// Last day of data, as the caller computed it (it may lie past the
     /// window, or before today for a test ready to read).
     pub end: NaiveDate,
+    /// What it had collected when its counts were read: its result range
+    /// is simulated from then; `None` gives it no range.
+    pub so_far: Option<crate::forecast::uncertainty::SoFar>,
 }
 
 impl FixedRun {
@@ -166,8 +170,19 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
 
 /// Plans the portfolio. Always returns a plan: when the solver fails or the
 /// time limit runs out, the best calendar found so far (at worst the greedy
-/// one), with the bound and gap that could be proved.
+/// one), with the bound and gap that could be proved. With
+/// `planning.confidence`, the plan is made against a lower quantile of the
+/// forecast and confirmed by simulation (docs/planning.md, "Planning to a
+/// confidence").
 pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
+    match portfolio.planning.confidence {
+        Some(c) => confidence::plan(portfolio, request, c),
+        None => plan_once(portfolio, request),
+    }
+}
+
+/// Plans the portfolio on its forecast as it is.
+fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let clock = Instant::now();
     let cut = std::cell::Cell::new(false);
     let deadline = search::Deadline::new(
@@ -298,6 +313,23 @@ fn units_between(
     share * total
 }
 
+/// The last [`crate::plan::HISTORY_SHOWN`] days of `pool`'s history, if
+/// it has one.
+fn history_shown(pool: &crate::portfolio::Pool) -> Vec<crate::plan::HistoryDay> {
+    let Some(h) = &pool.forecast.history else {
+        return Vec::new();
+    };
+    let from = h.units.len().saturating_sub(crate::plan::HISTORY_SHOWN);
+    h.units[from..]
+        .iter()
+        .enumerate()
+        .map(|(i, &units)| crate::plan::HistoryDay {
+            date: h.start + Duration::days((from + i) as i64),
+            units,
+        })
+        .collect()
+}
+
 fn assemble(
     inst: &Instance,
     state: &state::State,
@@ -379,7 +411,12 @@ fn assemble(
             out
         })
         .collect();
-    crate::forecast::uncertainty::fill_ranges(p, &mut experiments);
+    let so_far: Vec<_> = request
+        .fixed
+        .iter()
+        .filter_map(|f| f.so_far.map(|s| (f.experiment, s)))
+        .collect();
+    crate::forecast::uncertainty::fill_ranges(p, &mut experiments, &so_far, today);
     let first_start: Vec<NaiveDate> = (0..p.experiments.len())
         .map(|e| w.date(inst.lo_start[e].clamp(0, inst.days as i64)))
         .collect();
@@ -432,6 +469,7 @@ fn assemble(
                 max_concurrent: pool.max_concurrent,
                 holdout: pool.holdout,
                 days,
+                history: history_shown(pool),
             }
         })
         .collect();
@@ -460,6 +498,7 @@ fn assemble(
         blackouts,
         today,
         running: Vec::new(),
+        traffic: Vec::new(),
         changes: None,
         calendar: None,
     }

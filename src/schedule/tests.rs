@@ -356,6 +356,7 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
             share: Share::WHOLE,
             share_before: Share::WHOLE,
             end: d("2027-01-17"),
+            so_far: None,
         }],
         excluded: vec![
             Excluded {
@@ -545,6 +546,7 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
                     share: sh,
                     share_before: sh,
                     end: t,
+                    so_far: None,
                 });
             }
         }

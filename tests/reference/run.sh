@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Checks sluice's sizing engine against scipy and statsmodels (PyPI), and
 # the forecast fitted from a history against statsmodels' STL and
-# Holt-Winters (check_forecast.py).
+# Holt-Winters (check_forecast.py), and result ranges against scipy's
+# lognormal and inverse Gaussian quantiles (check_ranges.py).
 #
 # Creates (or reuses) a virtual environment in tests/reference/.venv, installs
 # the pinned references from requirements.txt, builds the release binary if
@@ -53,4 +54,5 @@ fi
 status=0
 "$venv/bin/python" "$here/check_sizing.py" --bin "$bin" || status=1
 "$venv/bin/python" "$here/check_forecast.py" --bin "$bin" || status=1
+"$venv/bin/python" "$here/check_ranges.py" --bin "$bin" || status=1
 exit $status

@@ -19,11 +19,12 @@
 //! re-plan's sections; the markup helpers and the page are here.
 
 mod changes;
+mod forecast;
 mod svg;
 mod table;
 
 use super::common::{
-    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTIONS,
+    cautions, counts, is_split, long_date, pool_label, solver_sentence, thousands, units,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -32,6 +33,23 @@ use std::fmt::Write;
 
 /// The HTML report renderer.
 pub struct Html;
+
+/// A re-plan's actual traffic against the forecast, as a section of its
+/// own; nothing without it.
+fn traffic(plan: &Plan, s: &mut String) {
+    let lines = crate::render::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        s,
+        r#"<section><h2 id="traffic-so-far">Traffic so far</h2><ul>"#
+    );
+    for line in lines {
+        let _ = writeln!(s, "<li>{}</li>", esc(&line));
+    }
+    let _ = writeln!(s, "</ul></section>");
+}
 
 /// Escapes text for XML and HTML content and attribute values.
 pub fn esc(s: &str) -> String {
@@ -298,6 +316,7 @@ impl Renderer for Html {
             );
         }
         let _ = writeln!(s, "</section>");
+        traffic(plan, &mut s);
 
         // Calendar.
         let _ = writeln!(s, r#"<section><h2 id="calendar">Calendar</h2><figure>"#);
@@ -344,6 +363,7 @@ impl Renderer for Html {
             let _ = writeln!(s, "<figcaption>{}</figcaption></figure>", esc(&caption));
         }
         let _ = writeln!(s, "</section>");
+        forecast::section(plan, &mut s);
 
         // Table.
         let _ = writeln!(s, r#"<section><h2 id="tests">Tests</h2>"#);
@@ -387,7 +407,7 @@ impl Renderer for Html {
         let _ = writeln!(
             s,
             r#"<section><h2 id="assumptions">Assumptions and cautions</h2><ul>{}</ul></section>"#,
-            CAUTIONS
+            cautions(plan)
                 .iter()
                 .map(|c| format!("<li>{}</li>", esc(c)))
                 .collect::<String>()

@@ -417,6 +417,7 @@ fn bar(
         );
     }
     look_marks(scale, e, top, h, s);
+    whisker(plan, scale, e, top + h + 1.5, s);
     let baseline = top + h / 2.0 + 4.0;
     if text_w + 12.0 <= w {
         let _ = writeln!(
@@ -441,6 +442,34 @@ fn bar(
         );
     }
     let _ = writeln!(s, "</g>");
+}
+
+/// A test's result range as a whisker at height `y`, under its bar: from
+/// its P10 to its P90 result day, with a tick at the P50 (nothing without
+/// a range; a quantile past the window is drawn at the plot's edge).
+fn whisker(plan: &Plan, scale: &Scale, e: &PlannedExperiment, y: f64, s: &mut String) {
+    let Some(r) = &e.result_range else {
+        return;
+    };
+    let x = |d: Option<NaiveDate>| match d {
+        Some(d) if d <= plan.window.end + Duration::days(1) => {
+            (scale.x(d) + scale.day_w / 2.0).min(PLOT_X1)
+        }
+        _ => PLOT_X1,
+    };
+    let (x10, x50, x90) = (x(r.p10), x(r.p50), x(r.p90));
+    let _ = writeln!(
+        s,
+        r##"<g class="range"><title>{}</title><path d="M{x10:.1},{:.1} v5 M{x10:.1},{y:.1} H{x90:.1} M{x90:.1},{:.1} v5 M{x50:.1},{:.1} v7" stroke="#1c2127" stroke-width="1.5" fill="none"/></g>"##,
+        esc(&format!(
+            "Result range (P10–P90): {}; {}",
+            crate::render::common::range_words(r),
+            crate::render::common::chance_words(r)
+        )),
+        y - 2.5,
+        y - 2.5,
+        y - 3.5
+    );
 }
 
 /// One pool's daily use against its capacity: the share in use for split

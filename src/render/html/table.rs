@@ -6,6 +6,17 @@ use crate::plan::Plan;
 use crate::render::common::{pool_label, thousands};
 use std::fmt::Write;
 
+/// Under a result date: its range and on-time share, when it has a range.
+fn range_line(e: &crate::plan::PlannedExperiment) -> String {
+    e.result_range.as_ref().map_or(String::new(), |r| {
+        format!(
+            r#"<br/><span class="small">P10–P90 {}<br/>{}</span>"#,
+            esc(&crate::render::common::range_words(r)),
+            esc(&crate::render::common::chance_words(r))
+        )
+    })
+}
+
 /// The table of tests, into `s`.
 pub(super) fn tests(plan: &Plan, s: &mut String) {
     let _ = writeln!(
@@ -37,7 +48,12 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
                     r#"<td class="date"><span class="nw">{}</span> to <span class="nw">{}</span><br/><span class="small">{} days</span></td>"#,
                     w.start, w.end, w.days
                 );
-                let _ = write!(s, r#"<td class="date"><strong>{}</strong></td>"#, w.due);
+                let _ = write!(
+                    s,
+                    r#"<td class="date"><strong>{}</strong>{}</td>"#,
+                    w.due,
+                    range_line(e)
+                );
                 let _ = write!(
                     s,
                     r#"<td class="num">{}</td><td class="num">{}</td>"#,

@@ -141,6 +141,9 @@ fn for_terminal(plan: &Plan) -> Plan {
         b.pools = b.pools.iter().map(|x| clean(x)).collect();
     }
     p.solver.backend = clean(&p.solver.backend);
+    for t in &mut p.traffic {
+        t.pool = clean(&t.pool);
+    }
     // A re-plan's outlooks and changes may come from a `--previous` file.
     for o in &mut p.running {
         o.id = clean(&o.id);
@@ -169,6 +172,20 @@ fn for_terminal(plan: &Plan) -> Plan {
         }
     }
     p
+}
+
+/// A re-plan's actual traffic against the forecast, under a heading;
+/// nothing without it.
+fn traffic(plan: &Plan, width: usize, colour: bool, out: &mut String) {
+    let lines = super::common::traffic_lines(plan);
+    if lines.is_empty() {
+        return;
+    }
+    let _ = writeln!(out);
+    let _ = writeln!(out, "{}", paint("Traffic so far", "1", colour));
+    for line in lines {
+        let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
+    }
 }
 
 /// The numbers behind each test with a run, one block a test: its
@@ -248,6 +265,7 @@ impl Renderer for Text {
                 ""
             )
         );
+        traffic(plan, width, colour, &mut out);
         let _ = writeln!(out);
         let _ = writeln!(out, "{}", table::experiments(plan, width, colour));
         for e in plan.experiments.iter().filter(|e| e.eligible < 1.0) {
@@ -286,7 +304,7 @@ impl Renderer for Text {
             }
         }
         let _ = writeln!(out);
-        let _ = write!(out, "{}", wrap(&caution(), width, ""));
+        let _ = write!(out, "{}", wrap(&caution(plan), width, ""));
         // Solver words close the report, apart from the plan's facts.
         let _ = writeln!(out);
         let how = format!("How this plan was made: {}", solver_sentence(plan));

@@ -150,7 +150,9 @@ fn table_for(
                     _ => Cell::new(r.result_date),
                 });
                 if ranges {
-                    row.push(Cell::new(e.result_range.map_or(String::new(), range_words)));
+                    row.push(Cell::new(
+                        e.result_range.as_ref().map_or(String::new(), range_cell),
+                    ));
                 }
                 if layout >= Layout::Medium {
                     row.push(Cell::new(r.days).set_alignment(CellAlignment::Right));
@@ -202,14 +204,13 @@ fn table_for(
     t
 }
 
-/// A result range in words: `P10 – P90`, one date when they agree, and
-/// `later` for a quantile past the simulated span.
-fn range_words(r: crate::plan::ResultRange) -> String {
-    let day = |d: Option<chrono::NaiveDate>| d.map_or("later".to_string(), |d| d.to_string());
-    if r.p10 == r.p90 {
-        day(r.p10)
-    } else {
-        format!("{} – {}", day(r.p10), day(r.p90))
+/// A range's cell: its dates, and with a confidence plan the share of
+/// paths on which the result comes by its planned date.
+fn range_cell(r: &crate::plan::ResultRange) -> String {
+    let words = crate::render::common::range_words(r);
+    match r.on_plan {
+        Some(p) => format!("{words} (by plan {})", crate::words::percent(p)),
+        None => words,
     }
 }
 
