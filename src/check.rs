@@ -52,8 +52,8 @@ pub struct ExperimentCheck {
     pub id: String,
     /// Its title.
     pub title: String,
-    /// The pool's id.
-    pub pool: String,
+    /// The ids of the pools it runs on (one for most tests).
+    pub pools: Vec<String>,
     /// `rate` or `mean`.
     pub metric: String,
     /// The name of the metric whose need is the test's (`primary` for the
@@ -125,7 +125,12 @@ pub fn check(p: &Portfolio) -> CheckReport {
     for &i in &p.after_order {
         let e = &p.experiments[i];
         let start = earliest(p, e, &done);
-        done[i] = Some(experiment(&inst, i, &series[e.pool], start));
+        let summed = Series::summed(
+            e.pools
+                .iter()
+                .map(|&k| (&series[k], crate::forecast::entering(e, &p.pools[k]))),
+        );
+        done[i] = Some(experiment(&inst, i, &summed, start));
     }
     let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
@@ -134,8 +139,25 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .enumerate()
         .map(|(i, pool)| {
             let offered = series[i].total(0, w.days().saturating_sub(1));
-            let mine: Vec<&Experiment> = p.experiments.iter().filter(|e| e.pool == i).collect();
-            let needed: u64 = mine.iter().map(|e| e.need.total).sum();
+            let last = w.days().saturating_sub(1);
+            let mine: Vec<&Experiment> = p.experiments.iter().filter(|e| e.uses(i)).collect();
+            // A multi-pool test needs from each of its pools that pool's
+            // part of the units it offers it (the same share on each).
+            let needed: u64 = mine
+                .iter()
+                .map(|e| {
+                    let part = |k: usize| {
+                        crate::forecast::entering(e, &p.pools[k]) * series[k].total(0, last)
+                    };
+                    let all: f64 = e.pools.iter().map(|&k| part(k)).sum();
+                    let fraction = if all > 0.0 {
+                        part(i) / all
+                    } else {
+                        1.0 / e.pools.len() as f64
+                    };
+                    (e.need.total as f64 * fraction).round() as u64
+                })
+                .sum();
             let ratio = if offered > 0.0 {
                 needed as f64 / offered
             } else if needed == 0 {
@@ -223,12 +245,24 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     let w = p.window;
     let share = share_for(p, e);
     let need = e.need.total as f64;
-    let from_start = series.run_end(0, share.fraction(), need, e.min_days, e.whole_weeks);
+    let ramp: Vec<(f64, usize)> = e
+        .ramp
+        .iter()
+        .map(|s| (s.share.fraction(), s.days as usize))
+        .collect();
+    let from_start = series.ramped_end(
+        0,
+        &ramp,
+        e.ramp_counts,
+        share.fraction(),
+        need,
+        e.min_days,
+        e.whole_weeks,
+    );
     let (days, end) = match from_start {
         Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
     };
-    let pool = &p.pools[e.pool];
     let (solo, reason) = match start {
         Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
         Earliest::Blocked(pre) => (
@@ -241,7 +275,7 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     ExperimentCheck {
         id: e.id.clone(),
         title: e.title.clone(),
-        pool: pool.id.clone(),
+        pools: e.pools.iter().map(|&k| p.pools[k].id.clone()).collect(),
         metric: match e.design.metric {
             Metric::Rate { .. } => "rate".into(),
             Metric::Mean { .. } => "mean".into(),

@@ -124,7 +124,7 @@ fn csv_has_a_header_and_one_row_per_experiment_agreeing_with_the_json() {
         assert_eq!(row.len(), header.len());
         assert_eq!(&row[col("id")], e.id);
         assert_eq!(&row[col("title")], e.title);
-        assert_eq!(&row[col("pool")], e.pool);
+        assert_eq!(&row[col("pools")], e.pools.join(";"));
         assert_eq!(&row[col("status")], e.status.name(), "{}", e.id);
         assert_eq!(date(&row[col("start")]), e.run.map(|r| r.start), "{}", e.id);
         assert_eq!(date(&row[col("end")]), e.run.map(|r| r.end), "{}", e.id);
@@ -275,11 +275,11 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         assert_eq!(result.date("DTSTART"), due, "{}", e.id);
         assert_eq!(result.date("DTEND"), due + Duration::days(1), "{}", e.id);
 
-        let pool_label = &plan.pools.iter().find(|p| p.id == e.pool).unwrap().label;
+        let pool_label = &plan.pools.iter().find(|p| p.id == e.pools[0]).unwrap().label;
         for ev in [run, result] {
             let desc = unescape(&ev.get("DESCRIPTION"));
             assert!(
-                desc.contains(&format!("Pool: {pool_label} ({})", e.pool)),
+                desc.contains(&format!("Pool: {pool_label} ({})", e.pools[0])),
                 "{desc}"
             );
             let share = format!(

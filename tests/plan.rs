@@ -78,11 +78,12 @@ fn json_follows_the_contract() {
             &keys(e),
             &[
                 "id",
-                "pool",
+                "pools",
                 "status",
                 "start",
                 "end",
                 "share",
+                "ramp",
                 "units_needed",
                 "units_expected",
                 "reason",

@@ -51,7 +51,7 @@ fn an_uncertain_pool_gives_its_scheduled_tests_ranges_around_the_point_date() {
     let mut seen = 0;
     for e in v["experiments"].as_array().unwrap() {
         let range = e.get("result_range");
-        if e["pool"] != "product" || e["status"] != "scheduled" {
+        if e["pools"][0] != "product" || e["status"] != "scheduled" {
             assert!(range.is_none(), "{e}");
             continue;
         }
@@ -141,7 +141,7 @@ fn history_pools_get_ranges_from_their_fit_and_a_given_uncertainty_replaces_it()
             .as_array()
             .unwrap()
             .iter()
-            .filter(|e| e["pool"] == pool && e["status"] == "scheduled")
+            .filter(|e| e["pools"][0] == pool && e["status"] == "scheduled")
             .map(|e| e.get("result_range").is_some())
             .collect::<Vec<_>>()
     };

@@ -88,7 +88,7 @@ fn progress_from(plan: &Value, today: NaiveDate) -> String {
             .as_array()
             .unwrap()
             .iter()
-            .find(|p| p["id"] == e["pool"])
+            .find(|p| p["id"] == e["pools"][0])
             .unwrap();
         let delivered: f64 = pool["days"]
             .as_array()
@@ -409,7 +409,7 @@ fn a_pool_without_traffic_schedules_nothing_new_and_advises_its_running_tests() 
         "--no-timing",
     ]);
     let v: Value = serde_json::from_str(&ok(&out)).unwrap();
-    let product = ids_where(&v, |e| e["pool"] == "product");
+    let product = ids_where(&v, |e| e["pools"][0] == "product");
     let mut advised = 0;
     for id in &product {
         let e = by_id(&v, id);
@@ -871,7 +871,7 @@ fn a_running_test_past_its_sample_is_ready_to_read_and_frees_its_pool_today() {
         .as_array()
         .unwrap()
         .iter()
-        .filter(|x| x["pool"] == "home" && in_calendar(x))
+        .filter(|x| x["pools"][0] == "home" && in_calendar(x))
         .filter(|x| x["start"].as_str().unwrap() <= DAY30 && x["end"].as_str().unwrap() >= DAY30)
         .map(|x| x["share"].as_f64().unwrap())
         .sum();

@@ -15,7 +15,7 @@ pub mod fit;
 pub mod report;
 pub mod uncertainty;
 
-use crate::portfolio::{Change, Pool};
+use crate::portfolio::{Change, Experiment, Pool};
 use chrono::{Datelike, Duration, NaiveDate};
 
 /// Eligible units of `pool` on `date`.
@@ -47,8 +47,21 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     value * scale
 }
 
+/// The fraction of `pool`'s units that enter `experiment` while it holds
+/// the whole pool: the one place a test's units from one pool are worked
+/// out (today every unit may enter; eligibility and holdouts multiply in
+/// here).
+pub fn entering(_experiment: &Experiment, _pool: &Pool) -> f64 {
+    1.0
+}
+
+/// The units `experiment` receives from `pool` on `date` at `share`.
+pub fn test_units_on(experiment: &Experiment, pool: &Pool, date: NaiveDate, share: f64) -> f64 {
+    share * entering(experiment, pool) * units_on(pool, date)
+}
+
 /// A pool's forecast over a span of days, with running totals, for fast
-/// run-length queries.
+/// run-length queries (or a test's units summed over its pools).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Series {
     /// The first day of the span.
@@ -111,22 +124,83 @@ impl Series {
         min_days: u32,
         whole_weeks: bool,
     ) -> Option<usize> {
+        self.ramped_end(start, &[], false, share, need, min_days, whole_weeks)
+    }
+
+    /// Last day index of a run starting at day index `start` that first
+    /// holds each `(share, days)` step of `ramp` in order, then `share`
+    /// for at least one day until it has `need` units: the ramp's units
+    /// count only when `counts`. Never shorter than `min_days` (ramp days
+    /// included), a whole number of weeks from `start` when `whole_weeks`;
+    /// `None` when the span ends first.
+    #[allow(clippy::too_many_arguments)]
+    pub fn ramped_end(
+        &self,
+        start: usize,
+        ramp: &[(f64, usize)],
+        counts: bool,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> Option<usize> {
         if start >= self.units.len() || share <= 0.0 {
             return None;
         }
-        // First index e with share x (cum[e + 1] - cum[start]) >= need.
-        let base = self.cumulative[start];
-        let target = need / share + base;
-        // Tolerate rounding noise in the running totals.
+        let mut main = start;
+        let mut got = 0.0;
+        for &(s, days) in ramp {
+            if main + days > self.units.len() {
+                return None;
+            }
+            if counts {
+                got += s * (self.cumulative[main + days] - self.cumulative[main]);
+            }
+            main += days;
+        }
+        if main >= self.units.len() {
+            return None;
+        }
+        let base = self.cumulative[main];
+        let target = (need - got).max(0.0) / share + base;
         let target = target - 1e-9 * target.abs().max(1.0);
-        let tail = &self.cumulative[start + 1..];
+        let tail = &self.cumulative[main + 1..];
+        // At least one day at the planned share.
         let k = tail.partition_point(|&c| c < target);
         if k >= tail.len() {
             return None;
         }
-        let days = crate::sizing::round_days(k as u64 + 1, min_days, whole_weeks) as usize;
+        let raw = (main - start + k + 1) as u64;
+        let days = crate::sizing::round_days(raw, min_days, whole_weeks) as usize;
         let end = start + days - 1;
         (end < self.units.len()).then_some(end)
+    }
+
+    /// The sum of `parts`, each a series over the same days times a factor.
+    pub fn summed<'s>(parts: impl IntoIterator<Item = (&'s Series, f64)>) -> Series {
+        let mut start = None;
+        let mut units: Vec<f64> = Vec::new();
+        for (s, factor) in parts {
+            start.get_or_insert(s.start);
+            if units.is_empty() {
+                units = vec![0.0; s.units.len()];
+            }
+            for (u, v) in units.iter_mut().zip(&s.units) {
+                *u += factor * v;
+            }
+        }
+        let mut cumulative = Vec::with_capacity(units.len() + 1);
+        let mut total = 0.0;
+        cumulative.push(0.0);
+        for u in &units {
+            total += u;
+            cumulative.push(total);
+        }
+        Series {
+            start: start.unwrap_or(NaiveDate::MIN),
+            units,
+            cumulative,
+        }
     }
 }
 

@@ -40,10 +40,19 @@ pub fn factor(s: f64, z: f64) -> f64 {
 
 /// One run to simulate: where it starts on its pool's series and the rule
 /// that ends it.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct RunRule {
-    /// Index of its pool in the series given to [`simulate`].
+    /// Index of its (first) pool in the series given to [`simulate`].
     pub pool: usize,
+    /// The fraction of that pool's units that enter it.
+    pub entering: f64,
+    /// Its other pools with the fraction of their units that enter it,
+    /// for a test on several pools; empty for one pool.
+    pub also: Vec<(usize, f64)>,
+    /// Its ramp steps (share, days) before `share`; empty for none.
+    pub ramp: Vec<(f64, usize)>,
+    /// Whether ramp days' units count.
+    pub ramp_counts: bool,
     /// Day index of its first day.
     pub start: usize,
     /// Its constant share of the pool, in (0, 1].
@@ -94,8 +103,20 @@ pub fn simulate(
             }
         }
         for (r, run) in runs.iter().enumerate() {
-            ends[r].push(paths_now[run.pool].run_end(
+            let summed;
+            let series = if run.also.is_empty() && run.entering == 1.0 {
+                &paths_now[run.pool]
+            } else {
+                summed = Series::summed(
+                    std::iter::once((&paths_now[run.pool], run.entering))
+                        .chain(run.also.iter().map(|&(k, f)| (&paths_now[k], f))),
+                );
+                &summed
+            };
+            ends[r].push(series.ramped_end(
                 run.start,
+                &run.ramp,
+                run.ramp_counts,
                 run.share,
                 run.need,
                 run.min_days,
@@ -142,12 +163,21 @@ pub fn fill_ranges(portfolio: &Portfolio, experiments: &mut [PlannedExperiment])
         let (Some(run), Status::Scheduled) = (&pe.run, pe.status) else {
             continue;
         };
-        if spread[ex.pool].is_none() {
+        if ex.pools.iter().all(|&k| spread[k].is_none()) {
             continue;
         }
+        let entering = |k: usize| crate::forecast::entering(ex, &portfolio.pools[k]);
         which.push(e);
         runs.push(RunRule {
-            pool: ex.pool,
+            pool: ex.pools[0],
+            entering: entering(ex.pools[0]),
+            also: ex.pools[1..].iter().map(|&k| (k, entering(k))).collect(),
+            ramp: ex
+                .ramp
+                .iter()
+                .map(|st| (st.share.fraction(), st.days as usize))
+                .collect(),
+            ramp_counts: ex.ramp_counts,
             start: w.offset(run.start).offset() as usize,
             share: run.share.fraction(),
             need: ex.need.total as f64,
@@ -202,6 +232,10 @@ mod tests {
     fn rule(need: f64) -> RunRule {
         RunRule {
             pool: 0,
+            entering: 1.0,
+            also: Vec::new(),
+            ramp: Vec::new(),
+            ramp_counts: false,
             start: 0,
             share: 1.0,
             need,

@@ -18,7 +18,7 @@
 //! All-day events end on the day after their last day, as RFC 5545 §3.6.1
 //! defines DTEND for DATE values (exclusive).
 
-use super::common::{cut_short_note, pool_label, thousands, units};
+use super::common::{cut_short_note, pools_label, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{
     CalendarHistory, EventSequence, KeptEvents, Plan, PlannedExperiment, Run, Status,
@@ -92,8 +92,8 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         e.title,
         e.id,
         e.owner,
-        pool_label(plan, &e.pool),
-        e.pool,
+        &pools_label(plan, e),
+        e.pools.join(", "),
         run.share,
         run.start,
         run.end,

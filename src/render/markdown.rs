@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{counts, long_date, pool_label, CAUTION};
+use super::common::{counts, long_date, pools_label, CAUTION};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -156,7 +156,7 @@ impl Renderer for Markdown {
                     long_date(run.result_date),
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     run.start,
                     run.end,
                     run.share,
@@ -177,7 +177,7 @@ impl Renderer for Markdown {
                     "- **{}** (`{}`, {}): {}",
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
             }
@@ -201,7 +201,7 @@ impl Renderer for Markdown {
                     "- **{}** (`{}`, {}): {}",
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     escape(&super::common::closed_words(e))
                 );
             }

@@ -67,7 +67,7 @@ fn held(portfolio: &Portfolio, live: &[Live], pool: usize, today: NaiveDate) -> 
     let days = portfolio.window.days();
     let mut held = vec![0i64; days];
     for l in live {
-        if portfolio.experiments[l.run.experiment].pool != pool {
+        if !portfolio.experiments[l.run.experiment].uses(pool) {
             continue;
         }
         let from = index(portfolio, today.max(l.run.start));
@@ -92,7 +92,7 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
         let date = w.date(d as i64);
         let (mut share, mut count) = (0.0, 0u32);
         for l in live {
-            if portfolio.experiments[l.run.experiment].pool == pool
+            if portfolio.experiments[l.run.experiment].uses(pool)
                 && l.run.start <= date
                 && date <= held_to(portfolio, &l.outlook)
             {
@@ -212,24 +212,32 @@ pub fn replan(
     let today_i = index(portfolio, today);
     for i in order {
         let e = live[i].run.experiment;
-        let pool = portfolio.experiments[e].pool;
-        let split = portfolio.pools[pool].sharing == Sharing::Split;
-        let mut others = held(portfolio, &live, pool, today);
+        // A multi-pool test needs the room on each of its split pools.
         let mine_to = index(
             portfolio,
             held_to(portfolio, &live[i].outlook) + Duration::days(1),
         );
-        for h in &mut others[today_i.min(mine_to)..mine_to] {
-            *h -= i64::from(live[i].outlook.share.millionths());
-        }
+        let others: Vec<Vec<i64>> = portfolio.experiments[e]
+            .pools
+            .iter()
+            .filter(|&&pool| portfolio.pools[pool].sharing == Sharing::Split)
+            .map(|&pool| {
+                let mut others = held(portfolio, &live, pool, today);
+                for h in &mut others[today_i.min(mine_to)..mine_to] {
+                    *h -= i64::from(live[i].outlook.share.millionths());
+                }
+                others
+            })
+            .collect();
         let run = live[i].run;
         let current = live[i].outlook.share;
         let room_for = |s: Share, end: NaiveDate| {
             let to = index(portfolio, end + Duration::days(1));
-            !split
-                || others[today_i.min(to)..to]
+            others.iter().all(|others| {
+                others[today_i.min(to)..to]
                     .iter()
                     .all(|h| h + i64::from(s.millionths()) <= i64::from(Share::MILLION))
+            })
         };
         let found = portfolio
             .share_levels
@@ -275,21 +283,28 @@ pub fn replan(
     // Who holds a full pool from today, for the advice that found no room.
     let holders_of = |live: &[Live], pool: usize| -> Vec<(String, Share)> {
         live.iter()
-            .filter(|l| portfolio.experiments[l.run.experiment].pool == pool)
+            .filter(|l| portfolio.experiments[l.run.experiment].uses(pool))
             .filter(|l| held_to(portfolio, &l.outlook) >= today)
             .map(|l| (l.outlook.id.clone(), l.outlook.share))
             .collect()
     };
     let mut outlooks = Vec::new();
     for i in 0..live.len() {
-        let pool = portfolio.experiments[live[i].run.experiment].pool;
+        let pools = &portfolio.experiments[live[i].run.experiment].pools;
         if let Rescue::NoRoom { needed, .. } = live[i].rescue {
-            live[i].rescue = Rescue::NoRoom {
-                needed,
-                holders: holders_of(&live, pool),
-            };
+            let mut holders: Vec<(String, Share)> = Vec::new();
+            for &pool in pools {
+                for h in holders_of(&live, pool) {
+                    if !holders.contains(&h) {
+                        holders.push(h);
+                    }
+                }
+            }
+            live[i].rescue = Rescue::NoRoom { needed, holders };
         }
-        let overload = input_overload(portfolio, &live, pool);
+        let overload = pools
+            .iter()
+            .find_map(|&pool| input_overload(portfolio, &live, pool));
         let l = &mut live[i];
         if overload.is_some_and(|x| {
             x.from <= held_to(portfolio, &l.outlook) && l.run.start <= portfolio.window.end

@@ -37,23 +37,67 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
     let p = inst.portfolio;
     let ex = &p.experiments[e];
     let limit = p.window.end + Duration::days(3 * 366);
-    crate::forecast::run_end(
-        &p.pools[ex.pool],
-        start,
-        share.fraction(),
-        ex.need.total as f64,
-        ex.min_days,
-        ex.whole_weeks,
-        limit,
-    )
-    .map(|end| (end - start).num_days() + 1)
+    let parts: Vec<(crate::forecast::Series, f64)> = ex
+        .pools
+        .iter()
+        .map(|&pool| {
+            let def = &p.pools[pool];
+            (
+                crate::forecast::Series::new(def, start, limit),
+                crate::forecast::entering(ex, def),
+            )
+        })
+        .collect();
+    let series = crate::forecast::Series::summed(parts.iter().map(|(s, f)| (s, *f)));
+    let ramp: Vec<(f64, usize)> = ex
+        .ramp
+        .iter()
+        .map(|s| (s.share.fraction(), s.days as usize))
+        .collect();
+    series
+        .ramped_end(
+            0,
+            &ramp,
+            ex.ramp_counts,
+            share.fraction(),
+            ex.need.total as f64,
+            ex.min_days,
+            ex.whole_weeks,
+        )
+        .map(|end| end as i64 + 1)
+}
+
+/// The pools of test `e` as a reason names them: "`home`", or
+/// "each of `home`, `search`".
+fn pools_named(inst: &Instance, e: usize) -> String {
+    let p = inst.portfolio;
+    let names: Vec<String> = p.experiments[e]
+        .pools
+        .iter()
+        .map(|&i| format!("`{}`", p.pools[i].id))
+        .collect();
+    if names.len() == 1 {
+        names[0].clone()
+    } else {
+        format!("each of {}", names.join(", "))
+    }
+}
+
+/// Whether `pool` cannot take test `e` on `day` at `share` beside the
+/// runs in `state`: its cap reached, or (split) its share used up.
+fn pool_full(inst: &Instance, state: &State, pool: usize, day: usize, share: Share) -> bool {
+    let def = &inst.portfolio.pools[pool];
+    state.count_on(inst, pool, day) >= def.max_concurrent
+        || (def.sharing == crate::portfolio::Sharing::Split
+            && state.share_on(inst, pool, day) + super::state::micro(share)
+                > super::options::split_capacity(def))
 }
 
 fn why(inst: &Instance, state: &State, e: usize) -> String {
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
-    let pool = &p.pools[ex.pool];
+    let on = pools_named(inst, e);
     // Predecessors.
     for pre in &ex.after {
         let pid = &p.experiments[pre.experiment].id;
@@ -91,23 +135,20 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     match days_needed(inst, e, start, top) {
         None => {
             return format!(
-            "needs {} units; at {} of `{}` the forecast does not deliver them within three years",
+            "needs {} units; at {} of {} the forecast does not deliver them within three years",
             thousands(ex.need.total),
             top,
-            pool.id
+            on
         )
         }
         Some(n) if n > left as i64 => {
             return if first == 0 {
-                format!(
-                    "needs {n} days at {} of `{}`; the window has {left}",
-                    top, pool.id
-                )
+                format!("needs {n} days at {} of {}; the window has {left}", top, on)
             } else {
                 format!(
-                    "needs {n} days at {} of `{}`; from its earliest start on {start} the window has {left}",
+                    "needs {n} days at {} of {}; from its earliest start on {start} the window has {left}",
                     top,
-                    pool.id
+                    on
                 )
             };
         }
@@ -129,7 +170,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     // It fits alone: find what blocks each option now.
     let mut partners: Vec<usize> = Vec::new();
     let mut late_preds: Vec<usize> = Vec::new();
-    let mut pool_blocked = false;
+    let mut blocking: Option<usize> = None;
     let (mut span_lo, mut span_hi) = (usize::MAX, 0usize);
     for o in &inst.options[e] {
         span_lo = span_lo.min(o.start);
@@ -155,27 +196,20 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 }
             }
         }
-        let cap = pool.max_concurrent;
-        let split = pool.sharing == crate::portfolio::Sharing::Split;
-        let full = (o.start..=o.end).any(|d| {
-            state.count_on(inst, ex.pool, d) >= cap
-                || (split
-                    && state.share_on(inst, ex.pool, d) + super::state::micro(o.share)
-                        > super::state::WHOLE)
-        });
-        pool_blocked |= full;
+        // The first of its pools that cannot take this run.
+        if blocking.is_none() {
+            blocking = ex.pools.iter().copied().find(|&pool| {
+                (o.start..=o.end).any(|d| pool_full(inst, state, pool, d, inst.share_at(e, o, d)))
+            });
+        }
     }
-    if pool_blocked {
+    if let Some(bp) = blocking {
         // The days, among those its runs could use, on which the pool
         // cannot take even its smallest share, and the tests holding them.
-        let cap = pool.max_concurrent;
-        let split = pool.sharing == crate::portfolio::Sharing::Split;
-        let least = super::state::micro(shares[0]);
+        let pool = &p.pools[bp];
+        let least = ex.ramp.iter().map(|s| s.share).min().unwrap_or(shares[0]).min(shares[0]);
         let full: Vec<usize> = (span_lo..=span_hi)
-            .filter(|&d| {
-                state.count_on(inst, ex.pool, d) >= cap
-                    || (split && state.share_on(inst, ex.pool, d) + least > super::state::WHOLE)
-            })
+            .filter(|&d| pool_full(inst, state, bp, d, least))
             .collect();
         let (from_d, to_d) = match (full.first(), full.last()) {
             (Some(&a), Some(&b)) => (a, b),
@@ -192,7 +226,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         };
         let days: &[usize] = if full.is_empty() { &[] } else { &full };
         let mut holders: Vec<usize> = (0..inst.roles.len())
-            .filter(|&b| p.experiments[b].pool == ex.pool && b != e)
+            .filter(|&b| p.experiments[b].uses(bp) && b != e)
             .filter(|&b| {
                 if days.is_empty() {
                     (span_lo..=span_hi).any(|d| runs_on(b, d))
@@ -295,12 +329,12 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
-    let pool = &p.pools[ex.pool];
+    let on = pools_named(inst, e);
     let solo = inst.earliest_solo(e, top, first);
     if let Some((s, _)) = solo.run {
         // It fits alone: the running tests hold the pool.
         let holders: Vec<usize> = (0..inst.roles.len())
-            .filter(|&b| p.experiments[b].pool == ex.pool)
+            .filter(|&b| p.experiments[b].pools.iter().any(|&q| ex.uses(q)))
             .filter(|&b| match &inst.roles[b] {
                 Role::Fixed { end, .. } => Day::from(s) <= *end,
                 _ => false,
@@ -324,14 +358,14 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
         };
         return if names.is_empty() {
             format!(
-                "the tests already running on `{}` leave no room for it in time",
-                pool.id
+                "the tests already running on {} leave no room for it in time",
+                on
             )
         } else {
             format!(
-                "the running tests {} hold `{}` {when}, leaving no room for it in time; alone it could run from {}",
+                "the running tests {} hold {} {when}, leaving no room for it in time; alone it could run from {}",
                 names.join(", "),
-                pool.id,
+                on,
                 w.date(s as i64)
             )
         };
@@ -339,7 +373,10 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
     let spans = |kind: BlackoutKind| -> Vec<String> {
         p.blackouts
             .iter()
-            .filter(|b| b.kind == kind && (b.pools.is_empty() || b.pools.contains(&ex.pool)))
+            .filter(|b| {
+                b.kind == kind
+                    && (b.pools.is_empty() || b.pools.iter().any(|&q| ex.uses(q)))
+            })
             .map(|b| {
                 if b.note.is_empty() {
                     format!("{}..{}", b.from, b.to)

@@ -42,7 +42,9 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         id: id.into(),
         title: id.into(),
         owner: "tests".into(),
-        pool,
+        pools: vec![pool],
+        ramp: Vec::new(),
+        ramp_counts: false,
         design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
         need: super::synthetic::two_arm_need(need),
         looks: None,
@@ -56,6 +58,7 @@ fn exp(id: &str, pool: usize, need: u64, priority: f64) -> Experiment {
         whole_weeks: true,
         after: Vec::new(),
         not_with: Vec::new(),
+        apart_traffic: Vec::new(),
     }
 }
 

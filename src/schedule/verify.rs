@@ -1,15 +1,16 @@
 //! The independent plan verifier.
 //!
 //! It re-derives every rule from the portfolio, the request and the
-//! forecast, sharing no code with the planner beyond the validated model
-//! and [`units_on`]: it recomputes each run's end by its own day-by-day
+//! forecast, sharing no code with the planner beyond the validated model,
+//! [`units_on`] and [`entering`] (the definition of a test's units from a
+//! pool): it recomputes each run's end by its own day-by-day
 //! loop, rebuilds every pool's daily occupancy from the listed runs, and
 //! recomputes the objective. The search never uses it; `schedule::plan`
 //! runs it once on the finished plan as a guard, the tests run it on every
 //! plan they make, and so may a re-planner on its results.
 
 use super::PlanRequest;
-use crate::forecast::units_on;
+use crate::forecast::{entering, units_on};
 use crate::plan::{Plan, Status};
 use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Sharing, StartGrid};
 use crate::share::Share;
@@ -27,8 +28,9 @@ fn own_end(
     share: f64,
     limit: NaiveDate,
 ) -> Option<NaiveDate> {
-    let (pool, need) = (ex.pool, ex.need.total as f64);
+    let need = ex.need.total as f64;
     let (min_days, whole_weeks) = (ex.min_days, ex.whole_weeks);
+    let ramp: i64 = ex.ramp.iter().map(|s| i64::from(s.days)).sum();
     let mut total = 0.0;
     let mut day = start;
     let mut n: i64 = 0;
@@ -36,9 +38,19 @@ fn own_end(
         if day > limit {
             return None;
         }
-        total += share * units_on(&portfolio.pools[pool], day);
+        // Every pool's units on the day, at the day's share; ramp days
+        // only when they count.
+        let on_ramp = n < ramp;
+        let today_share = ramp_share(ex, n).unwrap_or(share);
+        if !on_ramp || ex.ramp_counts {
+            for &pool in &ex.pools {
+                let def = &portfolio.pools[pool];
+                total += today_share * entering(ex, def) * units_on(def, day);
+            }
+        }
         n += 1;
-        if total >= need * (1.0 - 1e-9) {
+        // At least one day past the ramp at the planned share.
+        if n > ramp && total >= need * (1.0 - 1e-9) {
             break;
         }
         day += Duration::days(1);
@@ -49,6 +61,24 @@ fn own_end(
     }
     let end = start + Duration::days(days - 1);
     (end <= limit).then_some(end)
+}
+
+/// The share of a ramp step on the `n`-th day of a run (0 first), or
+/// `None` past the ramp.
+fn ramp_share(ex: &Experiment, n: i64) -> Option<f64> {
+    let mut until = 0i64;
+    for step in &ex.ramp {
+        until += i64::from(step.days);
+        if n < until {
+            return Some(step.share.fraction());
+        }
+    }
+    None
+}
+
+/// The share a run of `ex` from `start` at `share` holds on `day`.
+fn share_that_day(ex: &Experiment, start: NaiveDate, share: f64, day: NaiveDate) -> f64 {
+    ramp_share(ex, (day - start).num_days()).unwrap_or(share)
 }
 
 /// Checks `plan` against every rule; `Err` lists each violation found.
@@ -78,8 +108,12 @@ pub fn verify(
             bad.push(format!("entry {i} is `{}`, expected `{}`", pe.id, ex.id));
             continue;
         }
-        if pe.pool != p.pools[ex.pool].id {
-            bad.push(format!("`{}` is listed on pool `{}`", ex.id, pe.pool));
+        let ids: Vec<&str> = ex.pools.iter().map(|&k| p.pools[k].id.as_str()).collect();
+        if pe.pools != ids {
+            bad.push(format!(
+                "`{}` is listed on pools {:?}; it runs on {:?}",
+                ex.id, pe.pools, ids
+            ));
         }
         if pe.units_needed != ex.need.total {
             bad.push(format!(
@@ -89,7 +123,21 @@ pub fn verify(
         }
         match pe.status {
             Status::Scheduled | Status::Running => match &pe.run {
-                Some(r) => runs[i] = Some((r.start, r.end, r.share.fraction())),
+                Some(r) => {
+                    runs[i] = Some((r.start, r.end, r.share.fraction()));
+                    let mut d = r.start;
+                    let mut steps = Vec::new();
+                    for step in &ex.ramp {
+                        let last = d + Duration::days(i64::from(step.days) - 1);
+                        steps.push((d, last, step.share));
+                        d = last + Duration::days(1);
+                    }
+                    let listed: Vec<(NaiveDate, NaiveDate, Share)> =
+                        pe.ramp.iter().map(|s| (s.start, s.end, s.share)).collect();
+                    if listed != steps {
+                        bad.push(format!("`{}` lists a ramp other than its own", ex.id));
+                    }
+                }
                 None => bad.push(format!(
                     "`{}` is scheduled without a start, end and share",
                     ex.id
@@ -193,16 +241,13 @@ pub fn verify(
             None => bad.push(format!("`{id}` cannot reach its units inside the window")),
         }
         for b in &p.blackouts {
-            let pool = ex.pool;
+            // A blackout of any of its pools applies to it.
+            let mine = b.pools.is_empty() || b.pools.iter().any(|q| ex.pools.contains(q));
             match b.kind {
-                BlackoutKind::NoStarts if b.covers(start, pool) => {
+                BlackoutKind::NoStarts if mine && b.from <= start && start <= b.to => {
                     bad.push(format!("`{id}` starts {start} inside a no-starts blackout"))
                 }
-                BlackoutKind::NoRunning
-                    if b.from <= end
-                        && start <= b.to
-                        && (b.pools.is_empty() || b.pools.contains(&pool)) =>
-                {
+                BlackoutKind::NoRunning if mine && b.from <= end && start <= b.to => {
                     bad.push(format!(
                         "`{id}` runs through a no-running blackout {}..{}",
                         b.from, b.to
@@ -256,6 +301,36 @@ pub fn verify(
             }
         }
     }
+    // Apart on traffic: on every day both run, their shares of each pool
+    // they share add up to at most 1.
+    for (a, ex) in p.experiments.iter().enumerate() {
+        for &b in &ex.apart_traffic {
+            if b <= a {
+                continue;
+            }
+            let other = &p.experiments[b];
+            let shared = ex.pools.iter().any(|q| other.pools.contains(q));
+            let (Some(ra), Some(rb)) = (runs[a], runs[b]) else {
+                continue;
+            };
+            if !shared {
+                continue;
+            }
+            let mut day = ra.0.max(rb.0);
+            while day <= ra.1.min(rb.1) {
+                let sum = share_that_day(ex, ra.0, ra.2, day)
+                    + share_that_day(other, rb.0, rb.2, day);
+                if sum > 1.0 + TOL {
+                    bad.push(format!(
+                        "`{}` and `{}` are kept apart on traffic but take {sum:.4} of a shared pool on {day}",
+                        ex.id, other.id
+                    ));
+                    break;
+                }
+                day += Duration::days(1);
+            }
+        }
+    }
     // Pools day by day. Running tests of a re-plan are facts, not
     // choices: a day their shares as given overload on their own is the
     // input's doing (reported in `Ok`); any more than that, whether from a
@@ -273,7 +348,7 @@ pub fn verify(
             let mut count = 0u32;
             let mut planned = false;
             for (i, ex) in p.experiments.iter().enumerate() {
-                if ex.pool != pi {
+                if !ex.pools.contains(&pi) {
                     continue;
                 }
                 if let Some((s, e, sh)) = runs[i] {
@@ -281,11 +356,17 @@ pub fn verify(
                         count += 1;
                         match fixed(i) {
                             Some(f) => {
-                                used += f.share_on(day, today).fraction();
-                                given += f.share_before.fraction();
+                                // A running test keeps its ramp unless re-shared.
+                                let held = if f.share != f.share_before && day >= today {
+                                    f.share.fraction()
+                                } else {
+                                    share_that_day(ex, s, f.share_on(day, today).fraction(), day)
+                                };
+                                used += held;
+                                given += share_that_day(ex, s, f.share_before.fraction(), day);
                             }
                             None => {
-                                used += sh;
+                                used += share_that_day(ex, s, sh, day);
                                 planned = true;
                             }
                         }

@@ -23,7 +23,7 @@ mod svg;
 mod table;
 
 use super::common::{
-    counts, is_split, long_date, pool_label, solver_sentence, thousands, units, CAUTION,
+    counts, is_split, long_date, pools_label, solver_sentence, thousands, units, CAUTION,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -292,7 +292,7 @@ impl Renderer for Html {
                     "<li><strong>{}</strong> (<code>{}</code>, {}): {}</li>",
                     esc(&e.title),
                     esc(&e.id),
-                    esc(pool_label(plan, &e.pool)),
+                    esc(&pools_label(plan, e)),
                     esc_with_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
             }

@@ -6,7 +6,7 @@
 use super::{esc, pool_fill, RunWords};
 use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use crate::render::common::{
-    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pool_label,
+    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pools_label,
     short_date, units, weeks,
 };
 use chrono::{Duration, NaiveDate};
@@ -129,7 +129,7 @@ fn bar_tooltip(plan: &Plan, e: &PlannedExperiment, r: &Run) -> String {
         "{} ({})\nPool: {}\nShare: {share}\nRuns {start} to {end} ({days} days)\nResult due {due}\nUnits needed {needed}; expected {expected}\nOwner: {}",
         e.title,
         e.id,
-        pool_label(plan, &e.pool),
+        &pools_label(plan, e),
         e.owner
     )
 }
