@@ -329,6 +329,44 @@ mod tests {
     }
 
     #[test]
+    fn a_ramp_holds_its_steps_first_and_counts_only_when_asked() {
+        // 10,000 a day; two days at 5%, then 50%; 20,500 units.
+        // Not counted: 2 + 5 days (4 x 5,000 = 20,000 falls short): day 6.
+        // Counted: 1,000 from the ramp, 19,500 in 4 days: day 5.
+        let p = pool(10_000.0, [1.0; 7], vec![]);
+        let s = Series::new(&p, d("2027-01-04"), d("2027-02-28"));
+        let ramp = [(0.05, 2)];
+        assert_eq!(s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, false), Some(6));
+        assert_eq!(s.ramped_end(0, &ramp, true, 0.5, 20_500.0, 1, false), Some(5));
+        // At least one day at the planned share, even with the need met.
+        assert_eq!(s.ramped_end(0, &ramp, true, 0.5, 500.0, 1, false), Some(2));
+        // The minimum run and whole weeks count the ramp days.
+        assert_eq!(s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, true), Some(6));
+        assert_eq!(s.ramped_end(3, &ramp, false, 0.5, 20_500.0, 10, false), Some(12));
+        // No ramp: the constant-share end.
+        assert_eq!(
+            s.ramped_end(0, &[], false, 0.5, 20_500.0, 1, false),
+            s.run_end(0, 0.5, 20_500.0, 1, false)
+        );
+    }
+
+    #[test]
+    fn summed_series_add_their_pools_day_by_day() {
+        let a = Series::new(&pool(1000.0, [1.0; 7], vec![]), d("2027-01-04"), d("2027-01-31"));
+        let b = Series::new(
+            &pool(500.0, [1.0, 1.0, 1.0, 1.0, 1.0, 2.0, 2.0], vec![]),
+            d("2027-01-04"),
+            d("2027-01-31"),
+        );
+        let s = Series::summed([(&a, 1.0), (&b, 1.0)]);
+        assert_eq!(s.units[0], 1500.0);
+        assert_eq!(s.units[5], 2000.0);
+        // A week: 7,000 + 5 x 500 + 2 x 1,000.
+        assert_eq!(s.total(0, 6), 11_500.0);
+        assert_eq!(s.start, d("2027-01-04"));
+    }
+
+    #[test]
     fn run_end_follows_a_dip() {
         // Zero traffic for a week in the middle stretches the run by a week.
         let adj = vec![Adjustment {

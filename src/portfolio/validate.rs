@@ -2395,3 +2395,118 @@ mod metrics_tests {
         assert!(err.contains("unpooled"), "{err}");
     }
 }
+
+#[cfg(test)]
+mod calendar_key_tests {
+    use crate::portfolio::load_str;
+    use crate::share::Share;
+
+    /// Three pools and two experiments; the first ends with `first` (its
+    /// keys at four spaces from line 8), the second is `other` on `home`.
+    fn file(first: &str) -> String {
+        format!(
+            "name: keys\nwindow: {{start: 2027-01-04, end: 2027-01-31}}\n\
+             pools:\n  - {{id: home, daily: 10000, max_concurrent: 2}}\n\
+             \x20 - {{id: search, daily: 5000, max_concurrent: 2, sharing: overlap}}\n\
+             \x20 - {{id: product, daily: 5000, max_concurrent: 2}}\n\
+             experiments:\n  - id: t\n    baseline: 0.1\n    mde: 0.1\n{first}\
+             \x20 - id: other\n    pool: home\n    baseline: 0.1\n    mde: 0.1\n"
+        )
+    }
+
+    fn error(first: &str) -> String {
+        load_str(&file(first), "k.yaml").unwrap_err().to_string()
+    }
+
+    #[test]
+    fn pools_list_every_pool_and_pool_is_its_short_form() {
+        let p = load_str(&file("    pools: [search, home, product]\n"), "k.yaml").unwrap();
+        assert_eq!(p.experiments[0].pools, vec![1, 0, 2]);
+        assert_eq!(p.experiments[1].pools, vec![0]);
+        let p = load_str(&file("    pool: search\n"), "k.yaml").unwrap();
+        assert_eq!(p.experiments[0].pools, vec![1]);
+    }
+
+    #[test]
+    fn bad_pools_name_the_key_and_line() {
+        let err = error("    pool: home\n    pools: [home, search]\n");
+        assert!(err.contains("k.yaml:12:"), "{err}");
+        assert!(err.contains("gives both `pool` and `pools`"), "{err}");
+        assert!(err.contains("keep one"), "{err}");
+        let err = error("    pools: [home, serch]\n");
+        assert!(err.contains("k.yaml:11:"), "{err}");
+        assert!(err.contains("pool `serch` is not defined"), "{err}");
+        assert!(err.contains("closest first: `search`"), "{err}");
+        let err = error("    pools: [home, home]\n");
+        assert!(err.contains("pool `home` is listed twice in `pools`"), "{err}");
+        let err = error("    pools: []\n");
+        assert!(err.contains("`pools` is empty"), "{err}");
+    }
+
+    #[test]
+    fn a_ramp_is_read_in_order_with_ramp_counts() {
+        let p = load_str(
+            &file(
+                "    pool: home\n    ramp:\n      - {share: 0.05, days: 2}\n      - {share: 0.2, days: 3}\n    ramp_counts: true\n",
+            ),
+            "k.yaml",
+        )
+        .unwrap();
+        let e = &p.experiments[0];
+        assert_eq!(e.ramp.len(), 2);
+        assert_eq!(e.ramp[0].share, Share::from_fraction(0.05));
+        assert_eq!((e.ramp[0].days, e.ramp[1].days), (2, 3));
+        assert!(e.ramp_counts);
+        assert_eq!(e.ramp_days(), 5);
+        // Day by day: the steps, then the planned share.
+        let half = Share::from_fraction(0.5);
+        assert_eq!(e.share_on_day(1, half), Share::from_fraction(0.05));
+        assert_eq!(e.share_on_day(2, half), Share::from_fraction(0.2));
+        assert_eq!(e.share_on_day(5, half), half);
+        assert!(!p.experiments[1].ramp_counts);
+    }
+
+    #[test]
+    fn bad_ramps_name_the_key_and_line() {
+        let err = error("    pool: home\n    ramp:\n      - {share: 1.5, days: 2}\n");
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        assert!(err.contains("`share` is 1.5; it must be a share in (0, 1]"), "{err}");
+        let err = error("    pool: home\n    max_share: 0.5\n    ramp:\n      - {share: 0.6, days: 2}\n");
+        assert!(err.contains("k.yaml:14:"), "{err}");
+        assert!(err.contains("ramp share 0.6 is above the largest share it may take (0.5)"), "{err}");
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1, days: 20}\n      - {share: 0.2, days: 8}\n");
+        assert!(err.contains("the ramp lasts 28 days, but the window has only 28"), "{err}");
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1}\n");
+        assert!(err.contains("has no `days`"), "{err}");
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1, days: 2, hold: 1}\n");
+        assert!(err.contains("unknown key `hold`"), "{err}");
+    }
+
+    #[test]
+    fn not_with_entries_keep_apart_in_time_or_on_traffic() {
+        let p = load_str(
+            &file("    pool: home\n    not_with:\n      - {id: other, apart: traffic}\n"),
+            "k.yaml",
+        )
+        .unwrap();
+        assert_eq!(p.experiments[0].apart_traffic, vec![1]);
+        assert_eq!(p.experiments[1].apart_traffic, vec![0], "symmetric");
+        assert!(p.experiments[0].not_with.is_empty());
+        for entry in ["other", "{id: other, apart: time}", "{id: other}"] {
+            let p = load_str(
+                &file(&format!("    pool: home\n    not_with: [{entry}]\n")),
+                "k.yaml",
+            )
+            .unwrap();
+            assert_eq!(p.experiments[0].not_with, vec![1], "{entry}");
+            assert!(p.experiments[0].apart_traffic.is_empty(), "{entry}");
+        }
+        let err = error("    pool: home\n    not_with:\n      - {id: other, apart: trafic}\n");
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        assert!(err.contains("`apart` is `trafic`; it must be one of"), "{err}");
+        assert!(err.contains("did you mean `traffic`?"), "{err}");
+        let err = error("    pool: home\n    not_with:\n      - {apart: traffic}\n");
+        assert!(err.contains("has no `id`"), "{err}");
+    }
+}
