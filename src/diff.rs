@@ -49,7 +49,11 @@ fn movement(old: &PlannedExperiment, new: &PlannedExperiment) -> Movement {
 
 fn totals(plan: &Plan, pool: &str) -> PoolTotals {
     let mut t = PoolTotals::default();
-    for e in plan.experiments.iter().filter(|e| e.pools.iter().any(|p| p == pool)) {
+    for e in plan
+        .experiments
+        .iter()
+        .filter(|e| e.pools.iter().any(|p| p == pool))
+    {
         if in_calendar(e) {
             t.scheduled += 1;
             t.units_needed += e.units_needed;

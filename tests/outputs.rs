@@ -70,7 +70,7 @@ fn json_parses_back_into_the_plan_type_without_losing_a_key() {
     let plan: Plan = serde_json::from_value(value.clone()).unwrap();
     // Nothing the binary printed is dropped or invented by the type.
     assert_eq!(serde_json::to_value(&plan).unwrap(), value);
-    assert_eq!(plan.experiments.len(), 32);
+    assert_eq!(plan.experiments.len(), 35);
     assert_eq!(plan.pools.len(), 5);
     assert_eq!(plan.solver.seconds, 0.0);
     assert!(plan.portfolio.contains("Larkspur"), "{}", plan.portfolio);
@@ -275,11 +275,26 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         assert_eq!(result.date("DTSTART"), due, "{}", e.id);
         assert_eq!(result.date("DTEND"), due + Duration::days(1), "{}", e.id);
 
-        let pool_label = &plan.pools.iter().find(|p| p.id == e.pools[0]).unwrap().label;
+        let labels: Vec<&str> = e
+            .pools
+            .iter()
+            .map(|id| {
+                plan.pools
+                    .iter()
+                    .find(|p| &p.id == id)
+                    .unwrap()
+                    .label
+                    .as_str()
+            })
+            .collect();
         for ev in [run, result] {
             let desc = unescape(&ev.get("DESCRIPTION"));
             assert!(
-                desc.contains(&format!("Pool: {pool_label} ({})", e.pools[0])),
+                desc.contains(&format!(
+                    "Pool: {} ({})",
+                    labels.join(", "),
+                    e.pools.join(", ")
+                )),
                 "{desc}"
             );
             let share = format!(

@@ -72,7 +72,7 @@ fn json_follows_the_contract() {
     assert_eq!(v["solver"]["backend"], "microlp");
     assert_eq!(v["solver"]["seconds"], 0.0);
     let experiments = v["experiments"].as_array().unwrap();
-    assert_eq!(experiments.len(), 32);
+    assert_eq!(experiments.len(), 35);
     for e in experiments {
         in_order(
             &keys(e),

@@ -141,7 +141,9 @@ fn history_pools_get_ranges_from_their_fit_and_a_given_uncertainty_replaces_it()
             .as_array()
             .unwrap()
             .iter()
-            .filter(|e| e["pools"][0] == pool && e["status"] == "scheduled")
+            // Tests on this pool alone: one on several takes the spread
+            // of each of its pools.
+            .filter(|e| e["pools"] == serde_json::json!([pool]) && e["status"] == "scheduled")
             .map(|e| e.get("result_range").is_some())
             .collect::<Vec<_>>()
     };

@@ -284,7 +284,10 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
 
         for ev in [run, result] {
             let desc = unescape_text(ev.get("DESCRIPTION"));
-            assert!(desc.contains(&format!("({})", e.pools.join(", "))), "pool in {desc}");
+            assert!(
+                desc.contains(&format!("({})", e.pools.join(", "))),
+                "pool in {desc}"
+            );
             let share = format!("{:.0}%", share.fraction() * 100.0);
             assert!(desc.contains(&share), "share {share} in {desc}");
             let units = e.units_needed.to_string();

@@ -212,7 +212,7 @@ fn the_scenario_keeps_running_tests_passes_the_verifier_and_diffs_exactly() {
     // The diff is exactly the difference of the two plans' result dates.
     let changes = &new["changes"];
     let rows = changes["experiments"].as_array().unwrap();
-    assert_eq!(rows.len(), 32);
+    assert_eq!(rows.len(), 35);
     let mut slipped = 0;
     for row in rows {
         let id = row["id"].as_str().unwrap();
@@ -390,7 +390,7 @@ fn every_test_finished_leaves_an_empty_calendar() {
         "--today",
         "2027-03-01",
     ]));
-    assert!(text.contains("0 of 32 tests fit"), "{text}");
+    assert!(text.contains("0 of 35 tests fit"), "{text}");
 }
 
 #[test]

@@ -336,13 +336,25 @@ mod tests {
         let p = pool(10_000.0, [1.0; 7], vec![]);
         let s = Series::new(&p, d("2027-01-04"), d("2027-02-28"));
         let ramp = [(0.05, 2)];
-        assert_eq!(s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, false), Some(6));
-        assert_eq!(s.ramped_end(0, &ramp, true, 0.5, 20_500.0, 1, false), Some(5));
+        assert_eq!(
+            s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, false),
+            Some(6)
+        );
+        assert_eq!(
+            s.ramped_end(0, &ramp, true, 0.5, 20_500.0, 1, false),
+            Some(5)
+        );
         // At least one day at the planned share, even with the need met.
         assert_eq!(s.ramped_end(0, &ramp, true, 0.5, 500.0, 1, false), Some(2));
         // The minimum run and whole weeks count the ramp days.
-        assert_eq!(s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, true), Some(6));
-        assert_eq!(s.ramped_end(3, &ramp, false, 0.5, 20_500.0, 10, false), Some(12));
+        assert_eq!(
+            s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, true),
+            Some(6)
+        );
+        assert_eq!(
+            s.ramped_end(3, &ramp, false, 0.5, 20_500.0, 10, false),
+            Some(12)
+        );
         // No ramp: the constant-share end.
         assert_eq!(
             s.ramped_end(0, &[], false, 0.5, 20_500.0, 1, false),
@@ -352,7 +364,11 @@ mod tests {
 
     #[test]
     fn summed_series_add_their_pools_day_by_day() {
-        let a = Series::new(&pool(1000.0, [1.0; 7], vec![]), d("2027-01-04"), d("2027-01-31"));
+        let a = Series::new(
+            &pool(1000.0, [1.0; 7], vec![]),
+            d("2027-01-04"),
+            d("2027-01-31"),
+        );
         let b = Series::new(
             &pool(500.0, [1.0, 1.0, 1.0, 1.0, 1.0, 2.0, 2.0], vec![]),
             d("2027-01-04"),

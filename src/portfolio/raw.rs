@@ -380,7 +380,10 @@ mod tests {
                 gap_days: Some(2.0)
             })
         );
-        assert_eq!(e.not_with.unwrap(), vec![RawNotWith::Id(Text("true".into()))]);
+        assert_eq!(
+            e.not_with.unwrap(),
+            vec![RawNotWith::Id(Text("true".into()))]
+        );
     }
 
     #[test]

@@ -1240,11 +1240,19 @@ fn ramp(
         let at = |k: &str| format!("experiments[{i}].ramp[{j}].{k}");
         let what = format!("ramp step {} of experiment `{}`", j + 1, leaf_id(who));
         let Some(share) = step.share else {
-            cx.missing(&at("share"), &what, "give the step's share, e.g. `share: 0.05`");
+            cx.missing(
+                &at("share"),
+                &what,
+                "give the step's share, e.g. `share: 0.05`",
+            );
             continue;
         };
         let Some(days) = step.days else {
-            cx.missing(&at("days"), &what, "give the step's length in days, e.g. `days: 2`");
+            cx.missing(
+                &at("days"),
+                &what,
+                "give the step's length in days, e.g. `days: 2`",
+            );
             continue;
         };
         let share_ok = cx.number(
@@ -1261,7 +1269,9 @@ fn ramp(
                 let limit = top.map_or(0.0, Share::fraction);
                 cx.err(
                     &at("share"),
-                    format!("{who}ramp share {share} is above the largest share it may take ({limit})"),
+                    format!(
+                        "{who}ramp share {share} is above the largest share it may take ({limit})"
+                    ),
                     "a ramp runs below the planned share: lower the step, or raise `max_share`",
                 );
             }
@@ -2438,7 +2448,10 @@ mod calendar_key_tests {
         assert!(err.contains("pool `serch` is not defined"), "{err}");
         assert!(err.contains("closest first: `search`"), "{err}");
         let err = error("    pools: [home, home]\n");
-        assert!(err.contains("pool `home` is listed twice in `pools`"), "{err}");
+        assert!(
+            err.contains("pool `home` is listed twice in `pools`"),
+            "{err}"
+        );
         let err = error("    pools: []\n");
         assert!(err.contains("`pools` is empty"), "{err}");
     }
@@ -2470,12 +2483,22 @@ mod calendar_key_tests {
     fn bad_ramps_name_the_key_and_line() {
         let err = error("    pool: home\n    ramp:\n      - {share: 1.5, days: 2}\n");
         assert!(err.contains("k.yaml:13:"), "{err}");
-        assert!(err.contains("`share` is 1.5; it must be a share in (0, 1]"), "{err}");
-        let err = error("    pool: home\n    max_share: 0.5\n    ramp:\n      - {share: 0.6, days: 2}\n");
+        assert!(
+            err.contains("`share` is 1.5; it must be a share in (0, 1]"),
+            "{err}"
+        );
+        let err =
+            error("    pool: home\n    max_share: 0.5\n    ramp:\n      - {share: 0.6, days: 2}\n");
         assert!(err.contains("k.yaml:14:"), "{err}");
-        assert!(err.contains("ramp share 0.6 is above the largest share it may take (0.5)"), "{err}");
+        assert!(
+            err.contains("ramp share 0.6 is above the largest share it may take (0.5)"),
+            "{err}"
+        );
         let err = error("    pool: home\n    ramp:\n      - {share: 0.1, days: 20}\n      - {share: 0.2, days: 8}\n");
-        assert!(err.contains("the ramp lasts 28 days, but the window has only 28"), "{err}");
+        assert!(
+            err.contains("the ramp lasts 28 days, but the window has only 28"),
+            "{err}"
+        );
         assert!(err.contains("k.yaml:13:"), "{err}");
         let err = error("    pool: home\n    ramp:\n      - {share: 0.1}\n");
         assert!(err.contains("has no `days`"), "{err}");
@@ -2504,7 +2527,10 @@ mod calendar_key_tests {
         }
         let err = error("    pool: home\n    not_with:\n      - {id: other, apart: trafic}\n");
         assert!(err.contains("k.yaml:13:"), "{err}");
-        assert!(err.contains("`apart` is `trafic`; it must be one of"), "{err}");
+        assert!(
+            err.contains("`apart` is `trafic`; it must be one of"),
+            "{err}"
+        );
         assert!(err.contains("did you mean `traffic`?"), "{err}");
         let err = error("    pool: home\n    not_with:\n      - {apart: traffic}\n");
         assert!(err.contains("has no `id`"), "{err}");

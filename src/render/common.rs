@@ -137,6 +137,18 @@ pub fn pools_label(plan: &Plan, e: &PlannedExperiment) -> String {
         .join(", ")
 }
 
+/// A run's ramp in words, "5% 2027-01-04 to 2027-01-05, 20% 2027-01-06
+/// to 2027-01-08"; `None` without a ramp.
+pub fn ramp_words(e: &PlannedExperiment) -> Option<String> {
+    (!e.ramp.is_empty()).then(|| {
+        e.ramp
+            .iter()
+            .map(|s| format!("{} {} to {}", s.share, s.start, s.end))
+            .collect::<Vec<_>>()
+            .join(", ")
+    })
+}
+
 /// For a test on several pools drawn under `pool`: "also on `search`,
 /// `product`"; `None` for a test on one pool.
 pub fn also_on(e: &PlannedExperiment, pool: &str) -> Option<String> {

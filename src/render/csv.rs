@@ -1,7 +1,8 @@
 //! CSV: one row per experiment in plan order, with a header row. Dates are
 //! ISO 8601 (`YYYY-MM-DD`); shares are fractions in (0, 1]; cells that do
 //! not apply (an unscheduled test's dates) are empty. Quoting is left to the
-//! `csv` crate.
+//! `csv` crate. `pools` lists a test's pools separated by `;`; `ramp` words
+//! its ramp steps ("5% 2027-01-04 to 2027-01-05, ..."), empty without one.
 
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, Run};
@@ -10,7 +11,7 @@ use crate::plan::{Plan, Run};
 pub struct Csv;
 
 /// The header row, in column order.
-pub const HEADER: [&str; 14] = [
+pub const HEADER: [&str; 15] = [
     "id",
     "title",
     "owner",
@@ -25,6 +26,7 @@ pub const HEADER: [&str; 14] = [
     "units_needed",
     "units_expected",
     "reason",
+    "ramp",
 ];
 
 impl Renderer for Csv {
@@ -59,6 +61,7 @@ impl Renderer for Csv {
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),
                 e.reason.clone().unwrap_or_default(),
+                super::common::ramp_words(e).unwrap_or_default(),
             ];
             w.write_record(&row).map_err(RenderError::Csv)?;
         }

@@ -159,7 +159,10 @@ impl Renderer for Markdown {
                     escape(&pools_label(plan, e)),
                     run.start,
                     run.end,
-                    run.share,
+                    match super::common::ramp_words(e) {
+                        Some(ramp) => format!("{} (after a ramp: {})", run.share, escape(&ramp)),
+                        None => run.share.to_string(),
+                    },
                     escape(&e.owner)
                 );
             }

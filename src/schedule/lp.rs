@@ -11,8 +11,8 @@
 //! whole weeks the segments are the weeks themselves, which keeps the
 //! model small.
 
-use super::options::{Instance, Opt};
 use super::options::split_capacity;
+use super::options::{Instance, Opt};
 use super::state::WHOLE;
 use crate::portfolio::Sharing;
 use good_lp::{
@@ -109,13 +109,16 @@ struct Rows {
     le: Vec<(Terms, f64)>,
 }
 
+/// A run's phase: first day, last day, share.
+type Phase = (usize, usize, crate::share::Share);
+
 /// The segments of days on which the options of the tests at positions
 /// `members` are constant (ramp steps included), and per segment the
 /// options covering it with their share there: (breakpoints, cover), or
 /// `None` when there is no option.
 fn covering(inst: &Instance, sub: &Sub, members: &[usize]) -> Option<(Vec<usize>, Vec<Terms>)> {
     let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
-    let phases: Vec<(usize, usize, Vec<(usize, usize, crate::share::Share)>)> = members
+    let phases: Vec<(usize, usize, Vec<Phase>)> = members
         .iter()
         .flat_map(|&i| (0..sub.allowed[i].len()).map(move |j| (i, j)))
         .map(|(i, j)| (i, j, inst.phases(sub.exps[i], opt(i, j))))

@@ -29,8 +29,7 @@ pub use verify::verify;
 use crate::forecast::test_units_on;
 use crate::plan::{
     Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, RampDays, Run,
-    SolverStatus,
-    SolverSummary, Status,
+    SolverStatus, SolverSummary, Status,
 };
 use crate::portfolio::Portfolio;
 use crate::share::Share;

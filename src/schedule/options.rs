@@ -496,7 +496,8 @@ impl<'a> Instance<'a> {
                     (start..=end).all(|d| {
                         let s = ex.share_on_day((d - start) as u32, share);
                         self.base_count[pool][d] < def.max_concurrent
-                            && (!split || self.base_share[pool][d] + micro(s) <= split_capacity(def))
+                            && (!split
+                                || self.base_share[pool][d] + micro(s) <= split_capacity(def))
                     })
                 });
                 if !fits_fixed {

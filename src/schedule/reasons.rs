@@ -135,11 +135,11 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     match days_needed(inst, e, start, top) {
         None => {
             return format!(
-            "needs {} units; at {} of {} the forecast does not deliver them within three years",
-            thousands(ex.need.total),
-            top,
-            on
-        )
+                "needs {} units; at {} of {} the forecast does not deliver them within three years",
+                thousands(ex.need.total),
+                top,
+                on
+            )
         }
         Some(n) if n > left as i64 => {
             return if first == 0 {
@@ -207,7 +207,13 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         // The days, among those its runs could use, on which the pool
         // cannot take even its smallest share, and the tests holding them.
         let pool = &p.pools[bp];
-        let least = ex.ramp.iter().map(|s| s.share).min().unwrap_or(shares[0]).min(shares[0]);
+        let least = ex
+            .ramp
+            .iter()
+            .map(|s| s.share)
+            .min()
+            .unwrap_or(shares[0])
+            .min(shares[0]);
         let full: Vec<usize> = (span_lo..=span_hi)
             .filter(|&d| pool_full(inst, state, bp, d, least))
             .collect();
@@ -374,8 +380,7 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
         p.blackouts
             .iter()
             .filter(|b| {
-                b.kind == kind
-                    && (b.pools.is_empty() || b.pools.iter().any(|&q| ex.uses(q)))
+                b.kind == kind && (b.pools.is_empty() || b.pools.iter().any(|&q| ex.uses(q)))
             })
             .map(|b| {
                 if b.note.is_empty() {

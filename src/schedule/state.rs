@@ -88,11 +88,14 @@ impl State {
             }
             if def.sharing == Sharing::Split {
                 let cap = split_capacity(def);
-                for g in o.seg_lo..=o.seg_hi {
-                    let s = micro(inst.share_at(e, o, cuts[g]));
-                    if self.share[pool][g] + s > cap {
-                        return false;
-                    }
+                let used = &self.share[pool][o.seg_lo..=o.seg_hi];
+                let firsts = &cuts[o.seg_lo..=o.seg_hi];
+                if used
+                    .iter()
+                    .zip(firsts)
+                    .any(|(&u, &day)| u + micro(inst.share_at(e, o, day)) > cap)
+                {
+                    return false;
                 }
             }
         }
@@ -169,12 +172,16 @@ impl State {
     fn occupy(&mut self, inst: &Instance, e: usize, o: &Opt, sign: i64) {
         let cuts = &inst.segments[0];
         for &pool in &inst.portfolio.experiments[e].pools {
-            for g in o.seg_lo..=o.seg_hi {
-                self.share[pool][g] += sign * micro(inst.share_at(e, o, cuts[g]));
+            let firsts = &cuts[o.seg_lo..=o.seg_hi];
+            let shares = self.share[pool][o.seg_lo..=o.seg_hi].iter_mut();
+            for (used, &day) in shares.zip(firsts) {
+                *used += sign * micro(inst.share_at(e, o, day));
+            }
+            for count in &mut self.count[pool][o.seg_lo..=o.seg_hi] {
                 if sign > 0 {
-                    self.count[pool][g] += 1;
+                    *count += 1;
                 } else {
-                    self.count[pool][g] -= 1;
+                    *count -= 1;
                 }
             }
         }

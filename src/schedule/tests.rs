@@ -798,7 +798,10 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
             pool("b", 500.0, Sharing::Split, 3),
             pool("c", 500.0, Sharing::Overlap, 3),
         ],
-        vec![site("big", &[0, 1, 2], 21_000, 10.0), exp("solo", 1, 3_500, 1.0)],
+        vec![
+            site("big", &[0, 1, 2], 21_000, 10.0),
+            exp("solo", 1, 3_500, 1.0),
+        ],
     );
     let plan = planned(&p, &PlanRequest::default());
     assert_eq!(
@@ -819,7 +822,10 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
     );
     // The summed forecast is what `check` reads too: the same end alone.
     let report = crate::check::check(&p);
-    assert_eq!(report.experiments[0].end_from_window_start, Some(d("2027-01-14")));
+    assert_eq!(
+        report.experiments[0].end_from_window_start,
+        Some(d("2027-01-14"))
+    );
     assert_eq!(report.experiments[0].pools, vec!["a", "b", "c"]);
     // Each pool counts the big test's part of its need: 21,000 x 1/2 on
     // `a`, x 1/4 on `b` (plus solo's 3,500) and on `c`.
@@ -977,16 +983,26 @@ fn tests_apart_on_traffic_split_an_overlap_pool() {
         portfolio(vec![pool("o", 1000.0, Sharing::Overlap, 3)], vec![a, b])
     };
     let free = planned(&both(false), &PlanRequest::default());
-    assert_eq!(run_of(&free, "b"), Some((d("2027-01-04"), d("2027-01-10"), 1.0)));
+    assert_eq!(
+        run_of(&free, "b"),
+        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
+    );
     let p = both(true);
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.solver.value - 68.5 / 27.0).abs() < 1e-9);
-    assert_eq!(run_of(&plan, "a"), Some((d("2027-01-04"), d("2027-01-10"), 1.0)));
-    assert_eq!(run_of(&plan, "b"), Some((d("2027-01-11"), d("2027-01-17"), 1.0)));
+    assert_eq!(
+        run_of(&plan, "a"),
+        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
+    );
+    assert_eq!(
+        run_of(&plan, "b"),
+        Some((d("2027-01-11"), d("2027-01-17"), 1.0))
+    );
     // The free calendar breaks the pair's rule: the verifier says so.
     let err = verify(&p, &PlanRequest::default(), &free).unwrap_err();
     assert!(
-        err.iter().any(|v| v.contains("kept apart on traffic but take 2.0000")),
+        err.iter()
+            .any(|v| v.contains("kept apart on traffic but take 2.0000")),
         "{err:#?}"
     );
 }
@@ -1018,7 +1034,11 @@ fn the_verifier_checks_pools_and_ramps() {
         share: Share::from_fraction(0.1),
     });
     let err = verify(&p, &r, &ramp).unwrap_err();
-    assert!(err.iter().any(|v| v.contains("lists a ramp other than its own")), "{err:#?}");
+    assert!(
+        err.iter()
+            .any(|v| v.contains("lists a ramp other than its own")),
+        "{err:#?}"
+    );
 }
 
 #[test]
@@ -1039,7 +1059,10 @@ fn a_running_ramped_multi_pool_test_keeps_its_dates_and_shares() {
         vec![t],
     );
     let first = planned(&p, &PlanRequest::default());
-    assert_eq!(run_of(&first, "big"), Some((d("2027-01-04"), d("2027-01-08"), 1.0)));
+    assert_eq!(
+        run_of(&first, "big"),
+        Some((d("2027-01-04"), d("2027-01-08"), 1.0))
+    );
     let r = PlanRequest {
         today: Some(d("2027-01-06")),
         fixed: vec![FixedRun {
@@ -1053,7 +1076,10 @@ fn a_running_ramped_multi_pool_test_keeps_its_dates_and_shares() {
     };
     let again = planned(&p, &r);
     assert_eq!(again.experiments[0].status, Status::Running);
-    assert_eq!(run_of(&again, "big"), Some((d("2027-01-04"), d("2027-01-08"), 1.0)));
+    assert_eq!(
+        run_of(&again, "big"),
+        Some((d("2027-01-04"), d("2027-01-08"), 1.0))
+    );
     assert_eq!(again.experiments[0].ramp, first.experiments[0].ramp);
     for pool in &again.pools {
         assert_eq!(pool.days[1].share_used, 0.05, "{}", pool.id);

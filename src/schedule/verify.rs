@@ -318,8 +318,8 @@ pub fn verify(
             }
             let mut day = ra.0.max(rb.0);
             while day <= ra.1.min(rb.1) {
-                let sum = share_that_day(ex, ra.0, ra.2, day)
-                    + share_that_day(other, rb.0, rb.2, day);
+                let sum =
+                    share_that_day(ex, ra.0, ra.2, day) + share_that_day(other, rb.0, rb.2, day);
                 if sum > 1.0 + TOL {
                     bad.push(format!(
                         "`{}` and `{}` are kept apart on traffic but take {sum:.4} of a shared pool on {day}",

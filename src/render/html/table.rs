@@ -13,7 +13,10 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
         r#"<table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
     );
     for e in &plan.experiments {
-        let pool_index = plan.pools.iter().position(|p| e.pools.first() == Some(&p.id));
+        let pool_index = plan
+            .pools
+            .iter()
+            .position(|p| e.pools.first() == Some(&p.id));
         let swatch = match pool_index {
             Some(i) => format!(
                 r#"<span class="swatch" style="background:{}"></span>"#,

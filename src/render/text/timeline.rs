@@ -2,13 +2,12 @@
 //! Unicode block characters, grouped by pool, with blackouts and today.
 
 use super::{
-    fit, heading, paint, wrap, BLACKOUT, FULL, LEFT_HALF, POOL_COLOURS, RAMP, RIGHT_HALF,
-    TODAY, WEEK_MARK,
+    fit, heading, paint, wrap, BLACKOUT, FULL, LEFT_HALF, POOL_COLOURS, RAMP, RIGHT_HALF, TODAY,
+    WEEK_MARK,
 };
 use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use crate::render::common::{
-    also_on, blackout_covers, experiments_in, is_split, orphans, out_word, short_date, weeks,
-    Week,
+    also_on, blackout_covers, experiments_in, is_split, orphans, out_word, short_date, weeks, Week,
 };
 use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
@@ -211,6 +210,8 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
             let body: String = match run {
                 Some(ref r) => {
                     let glyphs = track.row(Some(r), e.full_from(), &blackout);
+                    let shown = glyphs.iter().collect::<String>().trim_end().width();
+                    let room = width.saturating_sub(label_w + 1 + shown + 1);
                     let mut s = String::new();
                     for g in glyphs {
                         match g {
@@ -222,15 +223,24 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
                         }
                     }
                     let mut s = s.trim_end().to_string();
+                    // One test on several pools: each of its rows says
+                    // where else it runs, shortened where the line is full.
                     if let Some(also) = also_on(e, pool_id) {
-                        s.push(' ');
-                        s.push_str(&paint(&also, "2", colour));
+                        let short = format!("(+{} pools)", e.pools.len() - 1);
+                        let mark = [also, short].into_iter().find(|m| m.width() <= room);
+                        if let Some(mark) = mark {
+                            s.push(' ');
+                            s.push_str(&paint(&mark, "2", colour));
+                        }
                     }
                     s
                 }
                 None if past.is_some() => {
                     // Drawn where it ran, dim, and marked.
-                    let glyphs: String = track.row(past.as_ref(), None, &blackout).into_iter().collect();
+                    let glyphs: String = track
+                        .row(past.as_ref(), None, &blackout)
+                        .into_iter()
+                        .collect();
                     format!(
                         "{} {}",
                         paint(glyphs.trim_end(), "2", colour),
@@ -318,7 +328,10 @@ mod tests {
             .find(|e| e.id == "search-freshness")
             .unwrap();
         let run = e.run.unwrap();
-        let row: String = track.row(Some(&run), None, &|_, _| false).into_iter().collect();
+        let row: String = track
+            .row(Some(&run), None, &|_, _| false)
+            .into_iter()
+            .collect();
         assert_eq!(row, "·██████······");
         let mut shifted = run;
         shifted.start += Duration::days(3);
