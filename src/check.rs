@@ -244,21 +244,7 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     let e = &p.experiments[i];
     let w = p.window;
     let share = share_for(p, e);
-    let need = e.need.total as f64;
-    let ramp: Vec<(f64, usize)> = e
-        .ramp
-        .iter()
-        .map(|s| (s.share.fraction(), s.days as usize))
-        .collect();
-    let from_start = series.ramped_end(
-        0,
-        &ramp,
-        e.ramp_counts,
-        share.fraction(),
-        need,
-        e.min_days,
-        e.whole_weeks,
-    );
+    let from_start = series.test_end(e, 0, share.fraction());
     let (days, end) = match from_start {
         Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),

@@ -9,6 +9,7 @@ mod commands;
 mod forecast;
 mod outputs;
 mod plan;
+mod pools_ramps;
 mod ranges;
 mod render;
 mod replan;

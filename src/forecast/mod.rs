@@ -79,18 +79,7 @@ impl Series {
         let units: Vec<f64> = (0..n)
             .map(|i| units_on(pool, start + Duration::days(i as i64)))
             .collect();
-        let mut cumulative = Vec::with_capacity(n + 1);
-        let mut total = 0.0;
-        cumulative.push(0.0);
-        for u in &units {
-            total += u;
-            cumulative.push(total);
-        }
-        Series {
-            start,
-            units,
-            cumulative,
-        }
+        Series::from_units(start, units)
     }
 
     /// Number of days covered.
@@ -189,6 +178,11 @@ impl Series {
                 *u += factor * v;
             }
         }
+        Series::from_units(start.unwrap_or(NaiveDate::MIN), units)
+    }
+
+    /// A series of `units` from `start`, with its running totals.
+    fn from_units(start: NaiveDate, units: Vec<f64>) -> Series {
         let mut cumulative = Vec::with_capacity(units.len() + 1);
         let mut total = 0.0;
         cumulative.push(0.0);
@@ -197,10 +191,25 @@ impl Series {
             cumulative.push(total);
         }
         Series {
-            start: start.unwrap_or(NaiveDate::MIN),
+            start,
             units,
             cumulative,
         }
+    }
+
+    /// The last day index of `experiment`'s run from `start` at `share`
+    /// on this series (its units summed over its pools): its ramp, need,
+    /// minimum run and whole weeks, as [`Series::ramped_end`] counts them.
+    pub fn test_end(&self, experiment: &Experiment, start: usize, share: f64) -> Option<usize> {
+        self.ramped_end(
+            start,
+            &experiment.ramp_steps(),
+            experiment.ramp_counts,
+            share,
+            experiment.need.total as f64,
+            experiment.min_days,
+            experiment.whole_weeks,
+        )
     }
 }
 

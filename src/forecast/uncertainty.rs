@@ -172,11 +172,7 @@ pub fn fill_ranges(portfolio: &Portfolio, experiments: &mut [PlannedExperiment])
             pool: ex.pools[0],
             entering: entering(ex.pools[0]),
             also: ex.pools[1..].iter().map(|&k| (k, entering(k))).collect(),
-            ramp: ex
-                .ramp
-                .iter()
-                .map(|st| (st.share.fraction(), st.days as usize))
-                .collect(),
+            ramp: ex.ramp_steps(),
             ramp_counts: ex.ramp_counts,
             start: w.offset(run.start).offset() as usize,
             share: run.share.fraction(),

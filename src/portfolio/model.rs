@@ -371,6 +371,14 @@ impl Experiment {
         self.ramp.iter().map(|s| s.days).sum()
     }
 
+    /// Its ramp as (share, days) pairs, in order.
+    pub fn ramp_steps(&self) -> Vec<(f64, usize)> {
+        self.ramp
+            .iter()
+            .map(|s| (s.share.fraction(), s.days as usize))
+            .collect()
+    }
+
     /// Whether it runs on `pool`.
     pub fn uses(&self, pool: usize) -> bool {
         self.pools.contains(&pool)

@@ -361,21 +361,7 @@ impl<'a> Instance<'a> {
     /// summed forecast and its ramp (the one place an option's end is
     /// worked out).
     pub fn run_end(&self, e: usize, start: usize, share: Share) -> Option<usize> {
-        let ex = &self.portfolio.experiments[e];
-        let ramp: Vec<(f64, usize)> = ex
-            .ramp
-            .iter()
-            .map(|s| (s.share.fraction(), s.days as usize))
-            .collect();
-        self.test_series[e].ramped_end(
-            start,
-            &ramp,
-            ex.ramp_counts,
-            share.fraction(),
-            ex.need.total as f64,
-            ex.min_days,
-            ex.whole_weeks,
-        )
+        self.test_series[e].test_end(&self.portfolio.experiments[e], start, share.fraction())
     }
 
     /// The earliest run of test `e` alone (fixed runs and every other test

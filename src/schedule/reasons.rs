@@ -49,21 +49,8 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
         })
         .collect();
     let series = crate::forecast::Series::summed(parts.iter().map(|(s, f)| (s, *f)));
-    let ramp: Vec<(f64, usize)> = ex
-        .ramp
-        .iter()
-        .map(|s| (s.share.fraction(), s.days as usize))
-        .collect();
     series
-        .ramped_end(
-            0,
-            &ramp,
-            ex.ramp_counts,
-            share.fraction(),
-            ex.need.total as f64,
-            ex.min_days,
-            ex.whole_weeks,
-        )
+        .test_end(ex, 0, share.fraction())
         .map(|end| end as i64 + 1)
 }
 
