@@ -1,8 +1,9 @@
 //! Why each test left out of the calendar is out, in words a planner can
 //! act on: a missing predecessor, a run longer than the window, a deadline
 //! that cannot be met, running tests that hold its pool, blackouts in the
-//! way, a `not_with` partner, or a pool full of tests the plan preferred
-//! (named, with their priorities). Each names the real cause, and
+//! way, a `not_with` partner (in time or on traffic), or a pool full of
+//! tests the plan preferred (named, with their priorities; for a test on
+//! several pools, the first of its pools that is full). Each names the real cause, and
 //! suggests only changes that are not already at their limit (no larger
 //! share for a test at the largest level, no later deadline for a test
 //! without one).
@@ -157,6 +158,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     // It fits alone: find what blocks each option now.
     let mut partners: Vec<usize> = Vec::new();
     let mut late_preds: Vec<usize> = Vec::new();
+    let mut traffic: Vec<usize> = Vec::new();
     let mut blocking: Option<usize> = None;
     let (mut span_lo, mut span_hi) = (usize::MAX, 0usize);
     for o in &inst.options[e] {
@@ -174,6 +176,11 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
             };
             if overlap && !partners.contains(&b) {
                 partners.push(b);
+            }
+        }
+        for &b in &ex.apart_traffic {
+            if !state.apart_fits(inst, e, o, b) && !traffic.contains(&b) {
+                traffic.push(b);
             }
         }
         for &(pre, gap) in &inst.preds[e] {
@@ -276,9 +283,9 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         }
         return text;
     }
-    if !partners.is_empty() {
-        let ps: Vec<String> = partners
-            .iter()
+    // "`x` (2027-01-04 to 2027-01-17)" for each test of `list`.
+    let with_spans = |list: &[usize]| -> String {
+        list.iter()
             .map(|&b| {
                 let (s, t) = match (&inst.roles[b], state.opt(inst, b)) {
                     (Role::Fixed { start, end, .. }, _) => (w.date(*start), w.date(*end)),
@@ -287,10 +294,19 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 };
                 format!("`{}` ({s} to {t})", p.experiments[b].id)
             })
-            .collect();
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    if !partners.is_empty() {
         return format!(
             "fits alone, but must not run alongside {}, which the plan keeps",
-            ps.join(", ")
+            with_spans(&partners)
+        );
+    }
+    if !traffic.is_empty() {
+        return format!(
+            "fits alone, but is kept apart on traffic from {}, which the plan keeps, and no share level fits beside it",
+            with_spans(&traffic)
         );
     }
     if !late_preds.is_empty() {

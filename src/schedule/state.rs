@@ -130,7 +130,7 @@ impl State {
     /// Whether option `o` of `e` and the run of `other` (fixed or chosen)
     /// add up to at most the whole of every pool they share on every day
     /// both run.
-    fn apart_fits(&self, inst: &Instance, e: usize, o: &Opt, other: usize) -> bool {
+    pub fn apart_fits(&self, inst: &Instance, e: usize, o: &Opt, other: usize) -> bool {
         let p = inst.portfolio;
         let (a, b) = (&p.experiments[e], &p.experiments[other]);
         if !a.pools.iter().any(|&pool| b.uses(pool)) {

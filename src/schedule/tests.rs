@@ -1129,3 +1129,28 @@ fn synthetic_portfolios_with_calendar_keys_use_every_key() {
     let base = synthetic::portfolio(&synthetic::Spec::medium(3));
     assert_eq!(base, synthetic::portfolio(&synthetic::Spec::medium(3)));
 }
+
+#[test]
+fn a_test_kept_apart_on_traffic_names_its_partner() {
+    // One overlap pool of 1,000 a day for four weeks; `big` (priority 5)
+    // needs all of it for four weeks, so `small`, kept apart on traffic
+    // from it, has no share level left on any day.
+    let mut big = exp("big", 0, 28_000, 5.0);
+    let mut small = exp("small", 0, 3_500, 1.0);
+    big.apart_traffic = vec![1];
+    small.apart_traffic = vec![0];
+    let p = portfolio(
+        vec![pool("o", 1000.0, Sharing::Overlap, 3)],
+        vec![big, small],
+    );
+    let plan = planned(&p, &PlanRequest::default());
+    assert_eq!(
+        run_of(&plan, "big"),
+        Some((d("2027-01-04"), d("2027-01-31"), 1.0))
+    );
+    assert_eq!(run_of(&plan, "small"), None);
+    assert_eq!(
+        reason_of(&plan, "small"),
+        "fits alone, but is kept apart on traffic from `big` (2027-01-04 to 2027-01-31), which the plan keeps, and no share level fits beside it"
+    );
+}
