@@ -295,7 +295,6 @@ fn solo_fit(
     let e = &p.experiments[i];
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
-    let need = e.need.total as f64;
     let solo = inst.earliest_solo(i, share, w.offset(first).offset().max(0) as usize);
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
@@ -324,7 +323,7 @@ fn solo_fit(
             (None, false) => String::new(),
         };
         let i = w.offset(first).offset() as usize;
-        match series.run_end(i, share.fraction(), need, e.min_days, e.whole_weeks) {
+        match series.test_end(e, i, share.fraction()) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",
                 j - i + 1,
