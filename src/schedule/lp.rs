@@ -74,6 +74,10 @@ pub(crate) struct Sub<'s> {
     pub allowed: Vec<Vec<usize>>,
     /// Tests fixed to run (their allowed options sum to exactly 1).
     pub forced: Vec<bool>,
+    /// The weight of each test's options in the objective (1 but in the
+    /// pool-by-pool bound, where a test on several pools counts a part in
+    /// each).
+    pub weight: Vec<f64>,
 }
 
 impl<'s> Sub<'s> {
@@ -87,6 +91,7 @@ impl<'s> Sub<'s> {
                 .map(|&e| (0..inst.options[e].len()).collect())
                 .collect(),
             forced: vec![false; exps.len()],
+            weight: vec![1.0; exps.len()],
         }
     }
 }
@@ -400,7 +405,7 @@ pub(crate) fn solve(
                 def = def.initial(if init[i] == Some(j) { 1.0 } else { 0.0 });
             }
             let x = vars.add(def);
-            objective.add_mul(inst.options[e][k].value, x);
+            objective.add_mul(sub.weight[i] * inst.options[e][k].value, x);
             v.push(x);
         }
         xs.push(v);

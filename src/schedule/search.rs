@@ -204,13 +204,19 @@ pub(crate) fn solve_component(
 }
 
 /// Components with more options than this get their bound from one LP
-/// per pool, with the links between pools (`not_with`, `after`) dropped:
+/// per pool, with the links between pools (`not_with`, `after`, the other
+/// pools of a test on several) dropped:
 /// a relaxation of the full LP, so a valid bound no lower than its value,
 /// and several times faster on large portfolios.
 const LP_SPLIT_OPTIONS: usize = 8000;
 
 /// The LP relaxation of a component solved pool by pool, links between
-/// pools dropped; `None` if any pool's LP fails.
+/// pools dropped; `None` if any pool's LP fails. Each pool's LP holds
+/// every test that runs on it, a test on several pools with its value
+/// split evenly among them: any calendar, cut down to each pool's tests,
+/// is feasible there and earns its whole value summed over the pools, so
+/// the sum of the LPs' values is still a valid bound. The LP solution of
+/// a test on several pools is the mean of its pools' solutions.
 fn relax_by_pool(
     inst: &Instance,
     exps: &[usize],
@@ -218,9 +224,10 @@ fn relax_by_pool(
     deadline: Deadline,
 ) -> Option<lp::Solved> {
     let p = inst.portfolio;
-    // Each test goes with its first pool (a multi-pool test's other pools
-    // lose it from their rows: still a relaxation).
-    let mut pools: Vec<usize> = exps.iter().map(|&e| p.experiments[e].pools[0]).collect();
+    let mut pools: Vec<usize> = exps
+        .iter()
+        .flat_map(|&e| p.experiments[e].pools.iter().copied())
+        .collect();
     pools.sort_unstable();
     pools.dedup();
     let mut x: Vec<Vec<f64>> = exps
@@ -230,16 +237,20 @@ fn relax_by_pool(
     let mut value = 0.0;
     for pool in pools {
         let members: Vec<usize> = (0..exps.len())
-            .filter(|&i| p.experiments[exps[i]].pools[0] == pool)
+            .filter(|&i| p.experiments[exps[i]].uses(pool))
             .collect();
         let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
-        let sub = Sub::all(inst, &sub_exps);
+        let mut sub = Sub::all(inst, &sub_exps);
+        let parts = |i: usize| p.experiments[exps[i]].pools.len() as f64;
+        sub.weight = members.iter().map(|&i| 1.0 / parts(i)).collect();
         let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None);
         deadline.after_lp(&solved);
         let solved = solved.ok()?;
         value += solved.value;
         for (k, &i) in members.iter().enumerate() {
-            x[i] = solved.x[k].clone();
+            for (acc, v) in x[i].iter_mut().zip(&solved.x[k]) {
+                *acc += v / parts(i);
+            }
         }
     }
     Some(lp::Solved {
@@ -642,8 +653,14 @@ fn lns(
         } else if mode == 2 {
             // A pool over a span of weeks.
             let e0 = exps[rng.below(exps.len())];
+            // A test on several pools picks one of them (one pool draws
+            // nothing, so single-pool portfolios search as before).
             let ps = &p.experiments[e0].pools;
-            let pool = ps[rng.below(ps.len())];
+            let pool = if ps.len() == 1 {
+                ps[0]
+            } else {
+                ps[rng.below(ps.len())]
+            };
             let a = rng.below(inst.days.max(1));
             let b = a + 7 * (1 + rng.below(6));
             for &e in exps {
