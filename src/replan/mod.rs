@@ -100,7 +100,9 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split && share > 1.0 + 1e-9) || count > p.max_concurrent;
+        let over = (p.sharing == Sharing::Split
+            && share > f64::from(split_capacity(p).millionths()) / 1e6 + 1e-9)
+            || count > p.max_concurrent;
         if over {
             let o = out.get_or_insert(Overload {
                 from: date,
@@ -112,6 +114,12 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
         }
     }
     out
+}
+
+/// The most a split pool's shares may add up to on a day (the one place
+/// the re-plan reads it).
+fn split_capacity(_pool: &crate::portfolio::Pool) -> Share {
+    Share::WHOLE
 }
 
 /// Re-plans `portfolio` (from [`with_scales`] when there are `--scale`s) from `today`
@@ -217,7 +225,7 @@ pub fn replan(
             portfolio,
             held_to(portfolio, &live[i].outlook) + Duration::days(1),
         );
-        let others: Vec<Vec<i64>> = portfolio.experiments[e]
+        let others: Vec<(Vec<i64>, i64)> = portfolio.experiments[e]
             .pools
             .iter()
             .filter(|&&pool| portfolio.pools[pool].sharing == Sharing::Split)
@@ -226,17 +234,18 @@ pub fn replan(
                 for h in &mut others[today_i.min(mine_to)..mine_to] {
                     *h -= i64::from(live[i].outlook.share.millionths());
                 }
-                others
+                let cap = i64::from(split_capacity(&portfolio.pools[pool]).millionths());
+                (others, cap)
             })
             .collect();
         let run = live[i].run;
         let current = live[i].outlook.share;
         let room_for = |s: Share, end: NaiveDate| {
             let to = index(portfolio, end + Duration::days(1));
-            others.iter().all(|others| {
+            others.iter().all(|(others, cap)| {
                 others[today_i.min(to)..to]
                     .iter()
-                    .all(|h| h + i64::from(s.millionths()) <= i64::from(Share::MILLION))
+                    .all(|h| h + i64::from(s.millionths()) <= *cap)
             })
         };
         let found = portfolio
