@@ -787,7 +787,7 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
     // Pools of 1,000, 500 and 500 units a day: at 100% of each the test
     // collects 2,000 a day, so 21,000 units take 11 days (10 days give
     // 20,000): days 0 to 10, 2027-01-04 to 2027-01-14, 22,000 units.
-    // `solo` (7,000 units... of a 500-a-day pool, one week at 100%) cannot
+    // `solo` (3,500 units of a 500-a-day pool: one week at 100%) cannot
     // share `b` with it, a split pool held whole, so it starts on the next
     // Monday after day 10: day 14, ending day 20. Taking 50% instead would
     // end the big test on day 20: 10 (1 - 10/27) + solo from day 0 at 50%
