@@ -69,6 +69,19 @@ fn spec(size: &str) -> synthetic::Spec {
     }
 }
 
+/// The portfolio of a row's size: `medium-keys` and `large-keys` are the
+/// medium and large portfolios with tests on several pools, ramps and
+/// pairs kept apart on traffic (`synthetic::with_calendar_keys`).
+fn portfolio_for(size: &str) -> Portfolio {
+    match size.strip_suffix("-keys") {
+        Some(base) => {
+            let spec = spec(base);
+            synthetic::with_calendar_keys(synthetic::portfolio(&spec), spec.seed)
+        }
+        None => synthetic::portfolio(&spec(size)),
+    }
+}
+
 fn peak_mb() -> f64 {
     let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
     status
@@ -137,11 +150,19 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
                 share: Some(share),
             }
         } else {
-            let pool = &portfolio.pools[portfolio.experiments[i].pool];
+            // Summed over its pools; ramp days at their steps' shares,
+            // counted only when the ramp counts.
+            let ex = &portfolio.experiments[i];
             let mut units = 0.0;
             let mut day = start;
             while day < today {
-                units += share.fraction() * units_on(pool, day);
+                let n = (day - start).num_days() as u32;
+                if n >= ex.ramp_days() || ex.ramp_counts {
+                    let s = ex.share_on_day(n, share).fraction();
+                    for &k in &ex.pools {
+                        units += s * units_on(&portfolio.pools[k], day);
+                    }
+                }
                 day += Duration::days(1);
             }
             State::Running {
@@ -169,7 +190,9 @@ fn busiest_pool(portfolio: &Portfolio, progress: &Progress) -> usize {
     let mut running = vec![0usize; portfolio.pools.len()];
     for e in &progress.entries {
         if matches!(e.state, State::Running { .. }) {
-            running[portfolio.experiments[e.experiment].pool] += 1;
+            for &k in &portfolio.experiments[e.experiment].pools {
+                running[k] += 1;
+            }
         }
     }
     (0..running.len())
@@ -180,7 +203,7 @@ fn busiest_pool(portfolio: &Portfolio, progress: &Progress) -> usize {
 /// Plans `size`, then times the re-plan from the window's middle with the
 /// busiest pool at 70% of its forecast from then on.
 fn run_replan_row(size: &str, backend: &str) -> Row {
-    let mut portfolio = synthetic::portfolio(&spec(size));
+    let mut portfolio = portfolio_for(size);
     let backend = Backend::from_name(backend).expect("a backend of this build");
     let request = PlanRequest {
         backend,
@@ -232,7 +255,7 @@ fn run_row(size: &str, backend: &str) -> Row {
     if let Some(base) = size.strip_suffix("-replan") {
         return run_replan_row(base, backend);
     }
-    let portfolio = synthetic::portfolio(&spec(size));
+    let portfolio = portfolio_for(size);
     let backend = Backend::from_name(backend).expect("a backend of this build");
     let request = PlanRequest {
         backend,
@@ -245,7 +268,7 @@ fn run_row(size: &str, backend: &str) -> Row {
     let verified = schedule::verify(&portfolio, &request, &plan).is_ok();
     let peak = peak_mb();
     // The proven optimum, from the exact model, where HiGHS is built.
-    let optimum = if size == "large" {
+    let optimum = if size.starts_with("large") {
         None
     } else {
         proven_optimum(&portfolio)
@@ -277,7 +300,13 @@ fn main() {
     }
     let sizes: Vec<String> = match std::env::var("SLUICE_BENCH_SIZES") {
         Ok(s) => s.split(',').map(str::to_string).collect(),
-        Err(_) => vec!["small".into(), "medium".into(), "large".into()],
+        Err(_) => vec![
+            "small".into(),
+            "medium".into(),
+            "large".into(),
+            "medium-keys".into(),
+            "large-keys".into(),
+        ],
     };
     // The re-plan rows follow the plan rows, so the plan rows keep their
     // places in the JSON.
@@ -394,7 +423,7 @@ fn ranges_row() -> bool {
         .enumerate()
         .map(|(e, ex)| {
             RunRule::new(
-                ex.pool,
+                ex.pools[0],
                 (e % 8) * 7,
                 0.2,
                 ex.need.total as f64,

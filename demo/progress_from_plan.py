@@ -85,15 +85,24 @@ def main() -> int:
                 f"    share: {e['share']}",
             ]
             continue
-        days = forecast[e["pool"]]
-        entering = e.get("eligible", 1.0) * open_to_tests[e["pool"]]
-        if e["pool"] in actual:
-            seen = actual[e["pool"]]
-            units = sum(seen.get(d, v) for d, v in days.items() if start <= d < today)
-            units = int(units * e["share"] * entering)
-        else:
-            units = sum(v for d, v in days.items() if start <= d < today)
-            units = int(units * e["share"] * entering * delivered)
+        # A test on several pools collects on each; ramp days are left out
+        # (the demo's ramp does not count towards the sample).
+        ramp_days = set()
+        for step in e.get("ramp", []):
+            d = date.fromisoformat(step["start"])
+            while d <= date.fromisoformat(step["end"]):
+                ramp_days.add(d)
+                d = date.fromordinal(d.toordinal() + 1)
+        total = 0.0
+        for pool in e["pools"]:
+            days = forecast[pool]
+            entering = e.get("eligible", 1.0) * open_to_tests[pool]
+            seen = actual.get(pool)
+            for d, v in days.items():
+                if start <= d < today and d not in ramp_days:
+                    units_that_day = seen.get(d, v) if seen is not None else v * delivered
+                    total += units_that_day * e["share"] * entering
+        units = int(total)
         lines += [
             "    state: running",
             f"    started: {start}",

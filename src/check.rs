@@ -52,8 +52,8 @@ pub struct ExperimentCheck {
     pub id: String,
     /// Its title.
     pub title: String,
-    /// The pool's id.
-    pub pool: String,
+    /// The ids of the pools it runs on (one for most tests).
+    pub pools: Vec<String>,
     /// `rate` or `mean`; `given` when the portfolio gives its sample size.
     pub metric: String,
     /// The fraction of its pool's units its targeting admits.
@@ -140,11 +140,12 @@ pub fn check(p: &Portfolio) -> CheckReport {
     for &i in &p.after_order {
         let e = &p.experiments[i];
         let start = earliest(p, e, &done);
-        done[i] = Some(experiment(&inst, i, &series[e.pool], start));
-    }
-    let mut needed = vec![0.0f64; p.pools.len()];
-    for e in &p.experiments {
-        needed[e.pool] += e.need.total as f64 / e.eligible;
+        let summed = Series::summed(
+            e.pools
+                .iter()
+                .map(|&k| (&series[k], crate::forecast::entering(e, &p.pools[k]))),
+        );
+        done[i] = Some(experiment(&inst, i, &summed, start));
     }
     let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
@@ -152,10 +153,29 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .iter()
         .enumerate()
         .map(|(i, pool)| {
-            let offered = series[i].total(0, w.days().saturating_sub(1)) * (1.0 - pool.holdout);
-            let mine: Vec<&Experiment> = p.experiments.iter().filter(|e| e.pool == i).collect();
+            let last = w.days().saturating_sub(1);
+            let offered = series[i].total(0, last) * (1.0 - pool.holdout);
+            let mine: Vec<&Experiment> = p.experiments.iter().filter(|e| e.uses(i)).collect();
+            // A multi-pool test needs from each of its pools that pool's
+            // part of the units it offers it (the same share on each);
+            // divided by `eligible`, the pool's units it takes up.
+            let needed: f64 = mine
+                .iter()
+                .map(|e| {
+                    let part = |k: usize| {
+                        crate::forecast::entering(e, &p.pools[k]) * series[k].total(0, last)
+                    };
+                    let all: f64 = e.pools.iter().map(|&k| part(k)).sum();
+                    let fraction = if all > 0.0 {
+                        part(i) / all
+                    } else {
+                        1.0 / e.pools.len() as f64
+                    };
+                    e.need.total as f64 * fraction / e.eligible
+                })
+                .sum();
             // Rounding noise must not add a unit.
-            let needed = (needed[i] - 1e-9 * needed[i]).ceil() as u64;
+            let needed = (needed - 1e-9 * needed).ceil() as u64;
             let ratio = if offered > 0.0 {
                 needed as f64 / offered
             } else if needed == 0 {
@@ -207,9 +227,13 @@ pub fn check(p: &Portfolio) -> CheckReport {
 }
 
 /// The largest share level not above `max_share` nor, on a split pool,
-/// the pool's capacity (validation guarantees one).
+/// any of its pools' capacity (validation guarantees one).
 pub fn share_for(p: &Portfolio, e: &Experiment) -> Share {
-    let most = e.max_share.min(p.pools[e.pool].capacity());
+    let most = e
+        .pools
+        .iter()
+        .map(|&k| p.pools[k].capacity())
+        .fold(e.max_share, Share::min);
     p.share_levels.largest_up_to(most).unwrap_or(most)
 }
 
@@ -249,20 +273,11 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     let e = &p.experiments[i];
     let w = p.window;
     let share = share_for(p, e);
-    let need = e.need.total as f64;
-    let entering = p.entering_fraction(i, e.pool);
-    let from_start = series.run_end(
-        0,
-        share.fraction() * entering,
-        need,
-        e.min_days,
-        e.whole_weeks,
-    );
+    let from_start = series.test_end(e, 0, share.fraction());
     let (days, end) = match from_start {
         Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
     };
-    let pool = &p.pools[e.pool];
     let first = match &start {
         Earliest::From(first, _) => Some(*first),
         Earliest::Blocked(_) => None,
@@ -279,7 +294,7 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
     ExperimentCheck {
         id: e.id.clone(),
         title: e.title.clone(),
-        pool: pool.id.clone(),
+        pools: e.pools.iter().map(|&k| p.pools[k].id.clone()).collect(),
         metric: match e.design.metric {
             _ if e.sample_size_given => "given".into(),
             Metric::Rate { .. } => "rate".into(),
@@ -319,8 +334,6 @@ fn solo_fit(
     let e = &p.experiments[i];
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
-    let need = e.need.total as f64;
-    let entering = p.entering_fraction(i, e.pool);
     let solo = inst.earliest_solo(i, share, w.offset(first).offset().max(0) as usize);
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
@@ -349,13 +362,7 @@ fn solo_fit(
             (None, false) => String::new(),
         };
         let i = w.offset(first).offset() as usize;
-        match series.run_end(
-            i,
-            share.fraction() * entering,
-            need,
-            e.min_days,
-            e.whole_weeks,
-        ) {
+        match series.test_end(e, i, share.fraction()) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",
                 j - i + 1,

@@ -49,7 +49,11 @@ fn movement(old: &PlannedExperiment, new: &PlannedExperiment) -> Movement {
 
 fn totals(plan: &Plan, pool: &str) -> PoolTotals {
     let mut t = PoolTotals::default();
-    for e in plan.experiments.iter().filter(|e| e.pool == pool) {
+    for e in plan
+        .experiments
+        .iter()
+        .filter(|e| e.pools.iter().any(|p| p == pool))
+    {
         if in_calendar(e) {
             t.scheduled += 1;
             t.units_needed += e.units_needed;
@@ -100,7 +104,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         }
         experiments.push(ExperimentDiff {
             id: n.id.clone(),
-            pool: n.pool.clone(),
+            pool: n.pools.first().cloned().unwrap_or_default(),
             movement: mv,
             old_status: o.map(|o| o.status),
             new_status: Some(n.status),
@@ -115,7 +119,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         if !new.experiments.iter().any(|n| n.id == o.id) {
             experiments.push(ExperimentDiff {
                 id: o.id.clone(),
-                pool: o.pool.clone(),
+                pool: o.pools.first().cloned().unwrap_or_default(),
                 movement: Movement::Dropped,
                 old_status: Some(o.status),
                 new_status: None,
@@ -167,7 +171,8 @@ mod tests {
             id: id.into(),
             title: id.into(),
             owner: String::new(),
-            pool: "home".into(),
+            pools: vec!["home".into()],
+            ramp: Vec::new(),
             priority: 1.0,
             status,
             run: end

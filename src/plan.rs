@@ -117,8 +117,9 @@ pub struct PlannedExperiment {
     pub title: String,
     /// Who owns it.
     pub owner: String,
-    /// The pool's id.
-    pub pool: String,
+    /// The ids of every pool it runs on (one for most tests), in the
+    /// portfolio's order for the test: the same dates and share on each.
+    pub pools: Vec<String>,
     /// Its weight in the objective.
     pub priority: f64,
     /// Whether it got a place in the calendar.
@@ -126,6 +127,9 @@ pub struct PlannedExperiment {
     /// Its place in the calendar: present exactly when the status is
     /// scheduled or running ([`Status::in_calendar`]).
     pub run: Option<Run>,
+    /// Its run's ramp: each step's dates and share, in order, before the
+    /// run holds its share; empty without a ramp or a run.
+    pub ramp: Vec<RampDays>,
     /// Units over all arms the test needs.
     pub units_needed: u64,
     /// Whether the portfolio gave its control arm's units (`sample_size`)
@@ -299,8 +303,47 @@ pub struct Run {
     pub share: Share,
     /// Days from start to end inclusive.
     pub days: u32,
-    /// Units the forecast delivers to it from start to end.
+    /// Units the forecast delivers to it from start to end, summed over
+    /// its pools (ramp days only when they count).
     pub units_expected: f64,
+}
+
+/// One ramp step of a run: from `start` to `end` it holds `share` of each
+/// of its pools.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct RampDays {
+    /// The step's first day.
+    pub start: NaiveDate,
+    /// The step's last day.
+    pub end: NaiveDate,
+    /// Its share of each pool.
+    pub share: Share,
+}
+
+impl PlannedExperiment {
+    /// Its run's share on `date`: a ramp step's share on the step's days,
+    /// else the run's share (callers check the run's span); `None`
+    /// without a run.
+    pub fn share_on(&self, date: NaiveDate) -> Option<Share> {
+        let r = self.run?;
+        Some(
+            self.ramp
+                .iter()
+                .find(|s| s.start <= date && date <= s.end)
+                .map_or(r.share, |s| s.share),
+        )
+    }
+
+    /// The first day its run holds its planned share (its start without a
+    /// ramp); `None` without a run.
+    pub fn full_from(&self) -> Option<NaiveDate> {
+        let r = self.run?;
+        Some(
+            self.ramp
+                .last()
+                .map_or(r.start, |s| s.end + chrono::Duration::days(1)),
+        )
+    }
 }
 
 /// [`PlannedExperiment`] as it stands in JSON: the run's facts one key
@@ -310,13 +353,19 @@ struct ExperimentJson {
     id: String,
     title: String,
     owner: String,
-    pool: String,
+    /// Plans written before multi-pool tests name one `pool`; read only.
+    #[serde(default, skip_serializing)]
+    pool: Option<String>,
+    #[serde(default)]
+    pools: Vec<String>,
     priority: f64,
     status: Status,
     start: Option<NaiveDate>,
     end: Option<NaiveDate>,
     result_date: Option<NaiveDate>,
     share: Option<Share>,
+    #[serde(default)]
+    ramp: Vec<RampDays>,
     days: Option<u32>,
     units_needed: u64,
     units_expected: Option<f64>,
@@ -349,13 +398,15 @@ impl From<PlannedExperiment> for ExperimentJson {
             id: e.id,
             title: e.title,
             owner: e.owner,
-            pool: e.pool,
+            pool: None,
+            pools: e.pools,
             priority: e.priority,
             status: e.status,
             start: r.map(|r| r.start),
             end: r.map(|r| r.end),
             result_date: r.map(|r| r.result_date),
             share: r.map(|r| r.share),
+            ramp: e.ramp,
             days: r.map(|r| r.days),
             units_needed: e.units_needed,
             units_expected: r.map(|r| r.units_expected),
@@ -431,10 +482,15 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
             id: j.id,
             title: j.title,
             owner: j.owner,
-            pool: j.pool,
+            pools: if j.pools.is_empty() {
+                j.pool.into_iter().collect()
+            } else {
+                j.pools
+            },
             priority: j.priority,
             status: j.status,
             run,
+            ramp: j.ramp,
             units_needed: j.units_needed,
             sample_size_given: j.sample_size_given,
             eligible: j.eligible,
@@ -783,7 +839,7 @@ pub enum Movement {
 pub struct ExperimentDiff {
     /// The experiment's id.
     pub id: String,
-    /// Its pool's id (in the new plan, else the old).
+    /// Its (first) pool's id (in the new plan, else the old).
     pub pool: String,
     /// How it moved.
     pub movement: Movement,

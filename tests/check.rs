@@ -377,7 +377,7 @@ fn the_demo_portfolio_passes_and_shows_both_tables() {
     let out = sluice(&["check", "portfolios/demo.yaml"]);
     let stdout = text(&out.stdout);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
-    assert!(stdout.contains("34 experiments"), "{stdout}");
+    assert!(stdout.contains("37 experiments"), "{stdout}");
     assert!(stdout.contains("fits alone"));
     assert!(stdout.contains("cannot fit even alone"));
     assert!(stdout.contains("needed / offered"));
@@ -390,7 +390,7 @@ fn the_demo_report_as_json() {
     assert_eq!(out.status.code(), Some(0));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let exps = v["experiments"].as_array().unwrap();
-    assert_eq!(exps.len(), 34);
+    assert_eq!(exps.len(), 37);
     let mega = exps.iter().find(|e| e["id"] == "home-mega-menu").unwrap();
     assert_eq!(mega["fits_alone"], false);
     assert_eq!(mega["arms"], 3);
@@ -402,7 +402,7 @@ fn the_demo_report_as_json() {
     assert_eq!(pools.len(), 5);
     assert_eq!(
         v["fit_alone"].as_u64().unwrap() + v["cannot_fit"].as_u64().unwrap(),
-        34
+        37
     );
     insta::assert_snapshot!("demo-json", text(&out.stdout));
 }

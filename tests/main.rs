@@ -11,6 +11,7 @@ mod keys;
 mod numbers;
 mod outputs;
 mod plan;
+mod pools_ramps;
 mod ranges;
 mod render;
 mod replan;

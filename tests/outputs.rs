@@ -70,13 +70,13 @@ fn json_parses_back_into_the_plan_type_without_losing_a_key() {
     let plan: Plan = serde_json::from_value(value.clone()).unwrap();
     // Nothing the binary printed is dropped or invented by the type.
     assert_eq!(serde_json::to_value(&plan).unwrap(), value);
-    assert_eq!(plan.experiments.len(), 34);
+    assert_eq!(plan.experiments.len(), 37);
     assert_eq!(plan.pools.len(), 5);
     assert_eq!(plan.solver.seconds, 0.0);
     assert!(plan.portfolio.contains("Larkspur"), "{}", plan.portfolio);
     // The demo has both kinds, so every later format check sees both.
     let fit = scheduled(&plan).len();
-    assert!(fit > 20 && fit < 34, "{fit} of 34 scheduled");
+    assert!(fit > 20 && fit < 37, "{fit} of 37 scheduled");
     for e in scheduled(&plan) {
         let r = e.run.unwrap();
         let (start, end, due) = (r.start, r.end, r.result_date);
@@ -124,7 +124,7 @@ fn csv_has_a_header_and_one_row_per_experiment_agreeing_with_the_json() {
         assert_eq!(row.len(), header.len());
         assert_eq!(&row[col("id")], e.id);
         assert_eq!(&row[col("title")], e.title);
-        assert_eq!(&row[col("pool")], e.pool);
+        assert_eq!(&row[col("pools")], e.pools.join(";"));
         assert_eq!(&row[col("status")], e.status.name(), "{}", e.id);
         assert_eq!(date(&row[col("start")]), e.run.map(|r| r.start), "{}", e.id);
         assert_eq!(date(&row[col("end")]), e.run.map(|r| r.end), "{}", e.id);
@@ -307,11 +307,26 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         assert_eq!(result.date("DTSTART"), due, "{}", e.id);
         assert_eq!(result.date("DTEND"), due + Duration::days(1), "{}", e.id);
 
-        let pool_label = &plan.pools.iter().find(|p| p.id == e.pool).unwrap().label;
+        let labels: Vec<&str> = e
+            .pools
+            .iter()
+            .map(|id| {
+                plan.pools
+                    .iter()
+                    .find(|p| &p.id == id)
+                    .unwrap()
+                    .label
+                    .as_str()
+            })
+            .collect();
         for ev in [run, result] {
             let desc = unescape(&ev.get("DESCRIPTION"));
             assert!(
-                desc.contains(&format!("Pool: {pool_label} ({})", e.pool)),
+                desc.contains(&format!(
+                    "Pool: {} ({})",
+                    labels.join(", "),
+                    e.pools.join(", ")
+                )),
                 "{desc}"
             );
             let share = format!(

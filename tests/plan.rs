@@ -72,17 +72,18 @@ fn json_follows_the_contract() {
     assert_eq!(v["solver"]["backend"], "microlp");
     assert_eq!(v["solver"]["seconds"], 0.0);
     let experiments = v["experiments"].as_array().unwrap();
-    assert_eq!(experiments.len(), 34);
+    assert_eq!(experiments.len(), 37);
     for e in experiments {
         in_order(
             &keys(e),
             &[
                 "id",
-                "pool",
+                "pools",
                 "status",
                 "start",
                 "end",
                 "share",
+                "ramp",
                 "units_needed",
                 "units_expected",
                 "reason",

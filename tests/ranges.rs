@@ -51,7 +51,7 @@ fn an_uncertain_pool_gives_its_scheduled_tests_ranges_around_the_point_date() {
     let mut seen = 0;
     for e in v["experiments"].as_array().unwrap() {
         let range = e.get("result_range");
-        if e["pool"] != "product" || e["status"] != "scheduled" {
+        if e["pools"][0] != "product" || e["status"] != "scheduled" {
             assert!(range.is_none(), "{e}");
             continue;
         }
@@ -141,7 +141,9 @@ fn history_pools_get_ranges_from_their_fit_and_a_given_uncertainty_replaces_it()
             .as_array()
             .unwrap()
             .iter()
-            .filter(|e| e["pool"] == pool && e["status"] == "scheduled")
+            // Tests on this pool alone: one on several takes the spread
+            // of each of its pools.
+            .filter(|e| e["pools"] == serde_json::json!([pool]) && e["status"] == "scheduled")
             .map(|e| e.get("result_range").is_some())
             .collect::<Vec<_>>()
     };
@@ -194,7 +196,7 @@ fn product_ranges(v: &Value) -> Vec<(String, Value)> {
         .as_array()
         .unwrap()
         .iter()
-        .filter(|e| e["pool"] == "product" && e["status"] == "scheduled")
+        .filter(|e| e["pools"][0] == "product" && e["status"] == "scheduled")
         .map(|e| {
             (
                 e["id"].as_str().unwrap().to_string(),
@@ -311,7 +313,7 @@ fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
             .as_array()
             .unwrap()
             .iter()
-            .filter(|e| e["pool"] == "product" && e["status"] == "scheduled")
+            .filter(|e| e["pools"][0] == "product" && e["status"] == "scheduled")
             .map(|e| {
                 (
                     e["id"].as_str().unwrap().to_string(),
@@ -322,7 +324,7 @@ fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
     };
     let mut later = 0;
     for e in after["experiments"].as_array().unwrap() {
-        if e["status"] != "scheduled" || e["pool"] != "product" {
+        if e["status"] != "scheduled" || e["pools"][0] != "product" {
             continue;
         }
         let r = &e["result_range"];
@@ -463,7 +465,7 @@ fn a_confidence_plans_reason_names_the_units_it_was_planned_as() {
         .as_array()
         .unwrap()
         .iter()
-        .filter(|e| e["status"] == "unscheduled" && e["pool"] == "product")
+        .filter(|e| e["status"] == "unscheduled" && e["pools"][0] == "product")
         .collect();
     assert!(!out.is_empty(), "a 200% level error pushes a test out");
     for e in out {

@@ -141,7 +141,7 @@ fn csv_parses_back_row_by_row() {
     for (row, e) in rows.iter().zip(&plan.experiments) {
         assert_eq!(&row[col("id")], e.id);
         assert_eq!(&row[col("title")], e.title, "quotes and commas survive");
-        assert_eq!(&row[col("pool")], e.pool);
+        assert_eq!(&row[col("pools")], e.pools.join(";"));
         let date = |name: &str| {
             let cell = &row[col(name)];
             (!cell.is_empty()).then(|| NaiveDate::parse_from_str(cell, "%Y-%m-%d").unwrap())
@@ -308,7 +308,10 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
 
         for ev in [run, result] {
             let desc = unescape_text(ev.get("DESCRIPTION"));
-            assert!(desc.contains(&format!("({})", e.pool)), "pool in {desc}");
+            assert!(
+                desc.contains(&format!("({})", e.pools.join(", "))),
+                "pool in {desc}"
+            );
             let share = format!("{:.0}%", share.fraction() * 100.0);
             assert!(desc.contains(&share), "share {share} in {desc}");
             let units = e.units_needed.to_string();

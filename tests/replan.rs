@@ -88,7 +88,7 @@ fn progress_from(plan: &Value, today: NaiveDate) -> String {
             .as_array()
             .unwrap()
             .iter()
-            .find(|p| p["id"] == e["pool"])
+            .find(|p| p["id"] == e["pools"][0])
             .unwrap();
         let delivered: f64 = pool["days"]
             .as_array()
@@ -220,7 +220,7 @@ fn the_scenario_keeps_running_tests_passes_the_verifier_and_diffs_exactly() {
     // The diff is exactly the difference of the two plans' result dates.
     let changes = &new["changes"];
     let rows = changes["experiments"].as_array().unwrap();
-    assert_eq!(rows.len(), 34);
+    assert_eq!(rows.len(), 37);
     let mut slipped = 0;
     for row in rows {
         let id = row["id"].as_str().unwrap();
@@ -402,7 +402,7 @@ fn every_test_finished_leaves_an_empty_calendar() {
         "--today",
         "2027-03-01",
     ]));
-    assert!(text.contains("0 of 34 tests fit"), "{text}");
+    assert!(text.contains("0 of 37 tests fit"), "{text}");
 }
 
 #[test]
@@ -421,7 +421,7 @@ fn a_pool_without_traffic_schedules_nothing_new_and_advises_its_running_tests() 
         "--no-timing",
     ]);
     let v: Value = serde_json::from_str(&ok(&out)).unwrap();
-    let product = ids_where(&v, |e| e["pool"] == "product");
+    let product = ids_where(&v, |e| e["pools"][0] == "product");
     let mut advised = 0;
     for id in &product {
         let e = by_id(&v, id);
@@ -883,7 +883,7 @@ fn a_running_test_past_its_sample_is_ready_to_read_and_frees_its_pool_today() {
         .as_array()
         .unwrap()
         .iter()
-        .filter(|x| x["pool"] == "home" && in_calendar(x))
+        .filter(|x| x["pools"][0] == "home" && in_calendar(x))
         .filter(|x| x["start"].as_str().unwrap() <= DAY30 && x["end"].as_str().unwrap() >= DAY30)
         .map(|x| x["share"].as_f64().unwrap())
         .sum();

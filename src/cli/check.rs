@@ -86,7 +86,7 @@ pub fn text(r: &CheckReport) -> String {
         };
         t.add_row(vec![
             e.id.clone(),
-            e.pool.clone(),
+            e.pools.join(", "),
             e.metric.clone(),
             e.arms.to_string(),
             per_arm,

@@ -16,7 +16,7 @@ pub mod fit;
 pub mod report;
 pub mod uncertainty;
 
-use crate::portfolio::{Change, Pool};
+use crate::portfolio::{Change, Experiment, Pool};
 use chrono::{Datelike, Duration, NaiveDate};
 
 /// Eligible units of `pool` on `date`.
@@ -56,8 +56,21 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     value * scale
 }
 
+/// The fraction of `pool`'s units that enter `experiment` while it holds
+/// the whole pool: its `eligible` times the pool's
+/// [`Pool::open_fraction`] (what an overlap pool's holdout leaves). The one
+/// place a test's units from one pool are worked out.
+pub fn entering(experiment: &Experiment, pool: &Pool) -> f64 {
+    experiment.eligible * pool.open_fraction()
+}
+
+/// The units `experiment` receives from `pool` on `date` at `share`.
+pub fn test_units_on(experiment: &Experiment, pool: &Pool, date: NaiveDate, share: f64) -> f64 {
+    share * entering(experiment, pool) * units_on(pool, date)
+}
+
 /// A pool's forecast over a span of days, with running totals, for fast
-/// run-length queries.
+/// run-length queries (or a test's units summed over its pools).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Series {
     /// The first day of the span.
@@ -75,18 +88,7 @@ impl Series {
         let units: Vec<f64> = (0..n)
             .map(|i| units_on(pool, start + Duration::days(i as i64)))
             .collect();
-        let mut cumulative = Vec::with_capacity(n + 1);
-        let mut total = 0.0;
-        cumulative.push(0.0);
-        for u in &units {
-            total += u;
-            cumulative.push(total);
-        }
-        Series {
-            start,
-            units,
-            cumulative,
-        }
+        Series::from_units(start, units)
     }
 
     /// Number of days covered.
@@ -168,6 +170,105 @@ impl Series {
         let days = crate::sizing::round_days(days, min_days, whole_weeks) as i64;
         let end = start + days - 1;
         (end >= 0 && (end as usize) < self.units.len()).then_some(end as usize)
+    }
+
+    /// Last day index of a run starting at day index `start` that first
+    /// holds each `(share, days)` step of `ramp` in order, then `share`
+    /// for at least one day until it has `need` units: the ramp's units
+    /// count only when `counts`. Never shorter than `min_days` (ramp days
+    /// included), a whole number of weeks from `start` when `whole_weeks`;
+    /// `None` when the span ends first. Without a ramp, [`Series::run_end`].
+    #[allow(clippy::too_many_arguments)]
+    pub fn ramped_end(
+        &self,
+        start: usize,
+        ramp: &[(f64, usize)],
+        counts: bool,
+        share: f64,
+        need: f64,
+        min_days: u32,
+        whole_weeks: bool,
+    ) -> Option<usize> {
+        if ramp.is_empty() {
+            return self.run_end(start, share, need, min_days, whole_weeks);
+        }
+        if start >= self.units.len() || share <= 0.0 {
+            return None;
+        }
+        let mut main = start;
+        let mut got = 0.0;
+        for &(s, days) in ramp {
+            if main + days > self.units.len() {
+                return None;
+            }
+            if counts {
+                got += s * (self.cumulative[main + days] - self.cumulative[main]);
+            }
+            main += days;
+        }
+        if main >= self.units.len() {
+            return None;
+        }
+        let base = self.cumulative[main];
+        let target = (need - got).max(0.0) / share + base;
+        let target = target - 1e-9 * target.abs().max(1.0);
+        let tail = &self.cumulative[main + 1..];
+        // At least one day at the planned share.
+        let k = tail.partition_point(|&c| c < target);
+        if k >= tail.len() {
+            return None;
+        }
+        let raw = (main - start + k + 1) as u64;
+        let days = crate::sizing::round_days(raw, min_days, whole_weeks) as usize;
+        let end = start + days - 1;
+        (end < self.units.len()).then_some(end)
+    }
+
+    /// The sum of `parts`, each a series over the same days times a factor.
+    pub fn summed<'s>(parts: impl IntoIterator<Item = (&'s Series, f64)>) -> Series {
+        let mut start = None;
+        let mut units: Vec<f64> = Vec::new();
+        for (s, factor) in parts {
+            start.get_or_insert(s.start);
+            if units.is_empty() {
+                units = vec![0.0; s.units.len()];
+            }
+            for (u, v) in units.iter_mut().zip(&s.units) {
+                *u += factor * v;
+            }
+        }
+        Series::from_units(start.unwrap_or(NaiveDate::MIN), units)
+    }
+
+    /// A series of `units` from `start`, with its running totals.
+    fn from_units(start: NaiveDate, units: Vec<f64>) -> Series {
+        let mut cumulative = Vec::with_capacity(units.len() + 1);
+        let mut total = 0.0;
+        cumulative.push(0.0);
+        for u in &units {
+            total += u;
+            cumulative.push(total);
+        }
+        Series {
+            start,
+            units,
+            cumulative,
+        }
+    }
+
+    /// The last day index of `experiment`'s run from `start` at `share`
+    /// on this series (its units summed over its pools): its ramp, need,
+    /// minimum run and whole weeks, as [`Series::ramped_end`] counts them.
+    pub fn test_end(&self, experiment: &Experiment, start: usize, share: f64) -> Option<usize> {
+        self.ramped_end(
+            start,
+            &experiment.ramp_steps(),
+            experiment.ramp_counts,
+            share,
+            experiment.need.total as f64,
+            experiment.min_days,
+            experiment.whole_weeks,
+        )
     }
 }
 
@@ -347,6 +448,60 @@ mod tests {
             s.run_end_from(3, 3, 3, 1.0, 1500.0, 1, false),
             s.run_end(3, 1.0, 1500.0, 1, false)
         );
+    }
+
+    #[test]
+    fn a_ramp_holds_its_steps_first_and_counts_only_when_asked() {
+        // 10,000 a day; two days at 5%, then 50%; 20,500 units.
+        // Not counted: 2 + 5 days (4 x 5,000 = 20,000 falls short): day 6.
+        // Counted: 1,000 from the ramp, 19,500 in 4 days: day 5.
+        let p = pool(10_000.0, [1.0; 7], vec![]);
+        let s = Series::new(&p, d("2027-01-04"), d("2027-02-28"));
+        let ramp = [(0.05, 2)];
+        assert_eq!(
+            s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, false),
+            Some(6)
+        );
+        assert_eq!(
+            s.ramped_end(0, &ramp, true, 0.5, 20_500.0, 1, false),
+            Some(5)
+        );
+        // At least one day at the planned share, even with the need met.
+        assert_eq!(s.ramped_end(0, &ramp, true, 0.5, 500.0, 1, false), Some(2));
+        // The minimum run and whole weeks count the ramp days.
+        assert_eq!(
+            s.ramped_end(0, &ramp, false, 0.5, 20_500.0, 1, true),
+            Some(6)
+        );
+        assert_eq!(
+            s.ramped_end(3, &ramp, false, 0.5, 20_500.0, 10, false),
+            Some(12)
+        );
+        // No ramp: the constant-share end.
+        assert_eq!(
+            s.ramped_end(0, &[], false, 0.5, 20_500.0, 1, false),
+            s.run_end(0, 0.5, 20_500.0, 1, false)
+        );
+    }
+
+    #[test]
+    fn summed_series_add_their_pools_day_by_day() {
+        let a = Series::new(
+            &pool(1000.0, [1.0; 7], vec![]),
+            d("2027-01-04"),
+            d("2027-01-31"),
+        );
+        let b = Series::new(
+            &pool(500.0, [1.0, 1.0, 1.0, 1.0, 1.0, 2.0, 2.0], vec![]),
+            d("2027-01-04"),
+            d("2027-01-31"),
+        );
+        let s = Series::summed([(&a, 1.0), (&b, 1.0)]);
+        assert_eq!(s.units[0], 1500.0);
+        assert_eq!(s.units[5], 2000.0);
+        // A week: 7,000 + 5 x 500 + 2 x 1,000.
+        assert_eq!(s.total(0, 6), 11_500.0);
+        assert_eq!(s.start, d("2027-01-04"));
     }
 
     #[test]

@@ -40,11 +40,21 @@ pub fn factor(s: f64, z: f64) -> f64 {
 }
 
 /// One run to simulate: where it starts on its pool's series and the rule
-/// that ends it ([`Series::run_end_from`]).
-#[derive(Debug, Clone, Copy, PartialEq)]
+/// that ends it ([`Series::run_end_from`], or [`Series::ramped_end`]
+/// for a ramp run from its start).
+#[derive(Debug, Clone, PartialEq)]
 pub struct RunRule {
-    /// Index of its pool in the series given to [`simulate`].
+    /// Index of its (first) pool in the series given to [`simulate`].
     pub pool: usize,
+    /// The fraction of that pool's units that enter it.
+    pub entering: f64,
+    /// Its other pools with the fraction of their units that enter it,
+    /// for a test on several pools; empty for one pool.
+    pub also: Vec<(usize, f64)>,
+    /// Its ramp steps (share, days) before `share`; empty for none.
+    pub ramp: Vec<(f64, usize)>,
+    /// Whether ramp days' units count.
+    pub ramp_counts: bool,
     /// Day index of its first day (negative for a running test that began
     /// before the span).
     pub start: i64,
@@ -53,8 +63,7 @@ pub struct RunRule {
     pub from: usize,
     /// The earliest day index it may end on: its start, or a re-plan's today.
     pub not_before: usize,
-    /// The constant fraction of the pool's units that enter it: its share
-    /// times its entering fraction, in (0, 1].
+    /// Its constant share of its pools after any ramp, in (0, 1].
     pub share: f64,
     /// Units it still needs over all arms.
     pub need: f64,
@@ -76,6 +85,10 @@ impl RunRule {
     ) -> RunRule {
         RunRule {
             pool,
+            entering: 1.0,
+            also: Vec::new(),
+            ramp: Vec::new(),
+            ramp_counts: false,
             start: start as i64,
             from: start,
             not_before: start,
@@ -86,18 +99,46 @@ impl RunRule {
         }
     }
 
-    fn end_on(&self, series: &Series) -> Option<u32> {
-        series
-            .run_end_from(
-                self.start,
+    /// Its end on the simulated pools `sims`: one pool's units scaled by
+    /// its entering fraction, or the sum over its pools.
+    fn end_on(&self, sims: &[Series]) -> Option<u32> {
+        let summed;
+        let (series, k) = if self.also.is_empty() {
+            (&sims[self.pool], self.entering)
+        } else {
+            summed = Series::summed(
+                std::iter::once((&sims[self.pool], self.entering))
+                    .chain(self.also.iter().map(|&(p, f)| (&sims[p], f))),
+            );
+            (&summed, 1.0)
+        };
+        let share = self.share * k;
+        let from_start =
+            self.start >= 0 && self.from as i64 == self.start && self.not_before == self.from;
+        let end = if !self.ramp.is_empty() && from_start {
+            let ramp: Vec<(f64, usize)> = self.ramp.iter().map(|&(s, d)| (s * k, d)).collect();
+            series.ramped_end(
                 self.from,
-                self.not_before,
-                self.share,
+                &ramp,
+                self.ramp_counts,
+                share,
                 self.need,
                 self.min_days,
                 self.whole_weeks,
             )
-            .map(|i| i as u32)
+        } else {
+            // A running test past its start counts at its planned share.
+            series.run_end_from(
+                self.start,
+                self.from,
+                self.not_before,
+                share,
+                self.need,
+                self.min_days,
+                self.whole_weeks,
+            )
+        };
+        end.map(|i| i as u32)
     }
 }
 
@@ -151,7 +192,7 @@ pub fn simulate(
             || forecasts.to_vec(),
             |sims, path| {
                 draw(forecasts, spread, sims, seed, path);
-                runs.iter().map(|r| r.end_on(&sims[r.pool])).collect()
+                runs.iter().map(|r| r.end_on(sims)).collect()
             },
         )
         .collect();
@@ -218,17 +259,22 @@ fn simulated_runs(
         let Some(run) = &pe.run else {
             continue;
         };
-        if spread[ex.pool].is_none() {
+        if ex.pools.iter().all(|&k| spread[k].is_none()) {
             continue;
         }
+        let entering = |k: usize| portfolio.entering_fraction(e, k);
         let mut rule = RunRule::new(
-            ex.pool,
+            ex.pools[0],
             0,
-            run.share.fraction() * portfolio.entering_fraction(e, ex.pool),
+            run.share.fraction(),
             ex.need.total as f64,
             ex.min_days,
             ex.whole_weeks,
         );
+        rule.entering = entering(ex.pools[0]);
+        rule.also = ex.pools[1..].iter().map(|&k| (k, entering(k))).collect();
+        rule.ramp = ex.ramp_steps();
+        rule.ramp_counts = ex.ramp_counts;
         rule.start = index(run.start);
         match pe.status {
             Status::Scheduled => {
@@ -287,7 +333,7 @@ pub fn fill_ranges(
         .map(|p| Series::new(p, w.start, span_end))
         .collect();
     let sims = simulated_runs(portfolio, experiments, &spread, so_far, today);
-    let runs: Vec<RunRule> = sims.iter().map(|s| s.rule).collect();
+    let runs: Vec<RunRule> = sims.iter().map(|s| s.rule.clone()).collect();
     let planning = portfolio.planning;
     let ends = simulate(&forecasts, &spread, &runs, planning.paths, planning.seed);
     for (s, ends) in sims.iter().zip(&ends) {

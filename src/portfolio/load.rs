@@ -550,7 +550,7 @@ blackouts:
         let p = small();
         let b = &p.experiments[1];
         assert_eq!((b.title.as_str(), b.owner.as_str()), ("Bee", "Team B"));
-        assert_eq!(b.pool, 1);
+        assert_eq!(b.pools, vec![1]);
         assert_eq!(
             b.design.metric,
             Metric::Mean {
@@ -905,7 +905,7 @@ blackouts:
                 Ok(p) => {
                     // Whatever loads keeps the model's invariants.
                     for e in &p.experiments {
-                        prop_assert!(e.pool < p.pools.len());
+                        prop_assert!(e.pools.iter().all(|&k| k < p.pools.len()));
                         prop_assert!(e.need.total > 0);
                         prop_assert!(e.not_with.windows(2).all(|w| w[0] < w[1]));
                     }

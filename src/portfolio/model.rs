@@ -355,8 +355,17 @@ pub struct Experiment {
     pub title: String,
     /// Who owns it.
     pub owner: String,
-    /// Index into `Portfolio::pools`.
-    pub pool: usize,
+    /// Indices into `Portfolio::pools` of every pool it runs on at once
+    /// (`pools`, or `pool` as the short form for one): at least one, in
+    /// file order, without duplicates. The same start, end and share in
+    /// each; its units are the sum over them.
+    pub pools: Vec<usize>,
+    /// The steps it runs at before its planned share (`ramp`), in order;
+    /// empty for none.
+    pub ramp: Vec<RampStep>,
+    /// Whether the ramp days' units count towards the sample (`ramp_counts`,
+    /// default false).
+    pub ramp_counts: bool,
     /// The statistics with defaults applied.
     pub design: Design,
     /// Units per arm and in total; with looks, the maximum sample. With
@@ -396,6 +405,53 @@ pub struct Experiment {
     /// Indices of experiments it must never run alongside; symmetric
     /// (if a lists b, b lists a), sorted and without duplicates.
     pub not_with: Vec<usize>,
+    /// Indices of experiments it may run alongside only on disjoint
+    /// traffic (`not_with` entries with `apart: traffic`): while both run,
+    /// their shares on each pool they share add up to at most 1. Symmetric,
+    /// sorted and without duplicates.
+    pub apart_traffic: Vec<usize>,
+}
+
+impl Experiment {
+    /// Days its ramp lasts before the planned share (0 without a ramp).
+    pub fn ramp_days(&self) -> u32 {
+        self.ramp.iter().map(|s| s.days).sum()
+    }
+
+    /// Its ramp as (share, days) pairs, in order.
+    pub fn ramp_steps(&self) -> Vec<(f64, usize)> {
+        self.ramp
+            .iter()
+            .map(|s| (s.share.fraction(), s.days as usize))
+            .collect()
+    }
+
+    /// Whether it runs on `pool`.
+    pub fn uses(&self, pool: usize) -> bool {
+        self.pools.contains(&pool)
+    }
+
+    /// Its share on the `day`-th day of its run (0 is its first day): a
+    /// ramp step's share on the ramp's days, `share` after them.
+    pub fn share_on_day(&self, day: u32, share: Share) -> Share {
+        let mut first = 0;
+        for step in &self.ramp {
+            if day < first + step.days {
+                return step.share;
+            }
+            first += step.days;
+        }
+        share
+    }
+}
+
+/// One step of a ramp: a share held for some days.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct RampStep {
+    /// The share of each of its pools on these days.
+    pub share: Share,
+    /// How many days; >= 1.
+    pub days: u32,
 }
 
 /// What a metric does in its test.
@@ -535,7 +591,7 @@ impl Portfolio {
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.
     /// The one place this product is formed.
     pub fn entering_fraction(&self, experiment: usize, pool: usize) -> f64 {
-        self.experiments[experiment].eligible * self.pools[pool].open_fraction()
+        crate::forecast::entering(&self.experiments[experiment], &self.pools[pool])
     }
 }
 
@@ -580,7 +636,9 @@ mod tests {
                 id: format!("t{i}"),
                 title: String::new(),
                 owner: String::new(),
-                pool: 0,
+                pools: vec![0],
+                ramp: Vec::new(),
+                ramp_counts: false,
                 design: Design::new(Metric::Rate { baseline: 0.1 }, Effect::Relative(0.1)),
                 need: crate::schedule::synthetic::two_arm_need(1000),
                 sample_size_given: false,
@@ -602,6 +660,7 @@ mod tests {
                     })
                     .collect(),
                 not_with: Vec::new(),
+                apart_traffic: Vec::new(),
             })
             .collect()
     }

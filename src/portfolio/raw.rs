@@ -148,6 +148,7 @@ pub struct RawExperiment {
     pub title: Option<Text>,
     pub owner: Option<Text>,
     pub pool: Option<Text>,
+    pub pools: Option<Vec<Text>>,
     pub metric: Option<Text>,
     pub baseline: Option<f64>,
     pub sd: Option<f64>,
@@ -170,11 +171,70 @@ pub struct RawExperiment {
     pub looks: Option<f64>,
     pub boundary: Option<Text>,
     pub after: Option<Vec<RawAfter>>,
-    pub not_with: Option<Vec<Text>>,
+    pub not_with: Option<Vec<RawNotWith>>,
     pub metrics: Option<Vec<RawMetric>>,
     pub guardrail_alpha: Option<f64>,
     pub eligible: Option<f64>,
     pub sample_size: Option<f64>,
+    pub ramp: Option<Vec<RawRampStep>>,
+    pub ramp_counts: Option<bool>,
+}
+
+/// A `ramp` step: a share held for some days.
+#[derive(Debug, Clone, PartialEq, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawRampStep {
+    pub share: Option<f64>,
+    pub days: Option<f64>,
+}
+
+/// A `not_with` entry: an id (kept apart in time), or an id with `apart`.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RawNotWith {
+    Id(Text),
+    Apart(RawApart),
+}
+
+#[derive(Debug, Clone, PartialEq, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawApart {
+    pub id: Option<Text>,
+    pub apart: Option<Text>,
+}
+
+impl<'de> Deserialize<'de> for RawNotWith {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<RawNotWith, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = RawNotWith;
+            fn expecting(&self, f: &mut fmt::Formatter) -> fmt::Result {
+                f.write_str("an experiment id, or a mapping with `id` and `apart`")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v.to_string())))
+            }
+            fn visit_string<E: de::Error>(self, v: String) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v)))
+            }
+            fn visit_bool<E: de::Error>(self, v: bool) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v.to_string())))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v.to_string())))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v.to_string())))
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<RawNotWith, E> {
+                Ok(RawNotWith::Id(Text(v.to_string())))
+            }
+            fn visit_map<A: de::MapAccess<'de>>(self, map: A) -> Result<RawNotWith, A::Error> {
+                RawApart::deserialize(de::value::MapAccessDeserializer::new(map))
+                    .map(RawNotWith::Apart)
+            }
+        }
+        d.deserialize_any(V)
+    }
 }
 
 /// A `metrics` entry: one metric of a test and its role.
@@ -287,6 +347,8 @@ pub fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
         "experiments[]" => fields_of::<RawExperiment>(),
         "experiments[].after[]" => fields_of::<RawAfterGap>(),
         "experiments[].metrics[]" => fields_of::<RawMetric>(),
+        "experiments[].ramp[]" => fields_of::<RawRampStep>(),
+        "experiments[].not_with[]" => fields_of::<RawApart>(),
         "blackouts[]" => fields_of::<RawBlackout>(),
         _ => return None,
     })
@@ -398,7 +460,10 @@ mod tests {
                 gap_days: Some(2.0)
             })
         );
-        assert_eq!(e.not_with.unwrap(), vec![Text("true".into())]);
+        assert_eq!(
+            e.not_with.unwrap(),
+            vec![RawNotWith::Id(Text("true".into()))]
+        );
     }
 
     #[test]
@@ -415,6 +480,8 @@ mod tests {
             "experiments[]",
             "experiments[].after[]",
             "experiments[].metrics[]",
+            "experiments[].ramp[]",
+            "experiments[].not_with[]",
             "blackouts[]",
         ] {
             for key in allowed_keys(shape).unwrap() {

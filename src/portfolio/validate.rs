@@ -1008,17 +1008,7 @@ fn experiments(
         let at = |k: &str| format!("experiments[{i}].{k}");
         let who = format!("experiment `{id}`: ");
         let what = format!("experiment `{id}`");
-        let pool = match &e.pool {
-            Some(p) => cx.reference(&at("pool"), &who, p.as_str().trim(), "pool", pool_ids),
-            None => {
-                cx.missing(
-                    &at("pool"),
-                    &what,
-                    "name the pool whose traffic it uses, e.g. `pool: home`",
-                );
-                None
-            }
-        };
+        let pools = experiment_pools(cx, e, i, &who, &what, pool_ids);
         let looks_given = e.looks.is_some();
         let count = looks_count(cx, &at("looks"), &who, e.looks);
         let boundary = cx.choice(&at("boundary"), &who, &e.boundary, &BOUNDARIES, d.boundary);
@@ -1169,8 +1159,30 @@ fn experiments(
             }
         }
         let mut not_with = Vec::new();
-        for (j, t) in e.not_with.iter().flatten().enumerate() {
-            let key = format!("experiments[{i}].not_with[{j}]");
+        let mut apart_traffic = Vec::new();
+        for (j, entry) in e.not_with.iter().flatten().enumerate() {
+            let (t, key, traffic) = match entry {
+                RawNotWith::Id(t) => (Some(t), format!("experiments[{i}].not_with[{j}]"), false),
+                RawNotWith::Apart(a) => {
+                    let key = format!("experiments[{i}].not_with[{j}].id");
+                    if a.id.is_none() {
+                        cx.missing(
+                            &key,
+                            &format!("`not_with` entry {} of {what}", j + 1),
+                            "give the id of the experiment to keep apart",
+                        );
+                    }
+                    let traffic = cx.choice(
+                        &format!("experiments[{i}].not_with[{j}].apart"),
+                        &who,
+                        &a.apart,
+                        &APART,
+                        false,
+                    );
+                    (a.id.as_ref(), key, traffic)
+                }
+            };
+            let Some(t) = t else { continue };
             let other = t.as_str().trim();
             if other == id {
                 cx.err(
@@ -1181,14 +1193,21 @@ fn experiments(
                 continue;
             }
             if let Some(k) = cx.reference(&key, &who, other, "experiment", &id_refs) {
-                not_with.push(k);
+                if traffic {
+                    apart_traffic.push(k);
+                } else {
+                    not_with.push(k);
+                }
             }
         }
+        let ramp = ramp(cx, e, i, &who, window, max_share, share_levels);
         out.push(Experiment {
             id: id.clone(),
             title: text_or(&e.title, id),
             owner: text_or(&e.owner, ""),
-            pool: pool.unwrap_or(usize::MAX),
+            pools,
+            ramp,
+            ramp_counts: e.ramp_counts.unwrap_or(false),
             design,
             need: need.unwrap_or(SampleSize {
                 control_exact: 0.0,
@@ -1212,9 +1231,11 @@ fn experiments(
             whole_weeks: e.whole_weeks.unwrap_or(d.whole_weeks),
             after,
             not_with,
+            apart_traffic,
         });
     }
-    // `not_with` holds both ways, sorted, without duplicates.
+    // `not_with` holds both ways, sorted, without duplicates; so does
+    // `apart_traffic`.
     let pairs: Vec<(usize, usize)> = out
         .iter()
         .enumerate()
@@ -1223,9 +1244,22 @@ fn experiments(
     for (i, j) in pairs {
         out[j].not_with.push(i);
     }
+    let pairs: Vec<(usize, usize)> = out
+        .iter()
+        .enumerate()
+        .flat_map(|(i, e)| e.apart_traffic.iter().map(move |&j| (i, j)))
+        .collect();
+    for (i, j) in pairs {
+        out[j].apart_traffic.push(i);
+    }
     for e in &mut out {
         e.not_with.sort_unstable();
         e.not_with.dedup();
+        e.apart_traffic.sort_unstable();
+        e.apart_traffic.dedup();
+        // Apart in time is the stronger rule: a pair named both ways keeps it.
+        let time = e.not_with.clone();
+        e.apart_traffic.retain(|k| !time.contains(k));
     }
     // The order every later stage reads; only a cycle stops it.
     let order = after_order(&out);
@@ -1312,6 +1346,161 @@ fn given_size(
         comparison_alpha: 0.0,
     };
     Some((design, need))
+}
+
+/// Every `apart` value by its name in a file: true for traffic.
+const APART: [(&str, bool); 2] = [("time", false), ("traffic", true)];
+
+/// The pools an experiment runs on: `pool`, or every entry of `pools`
+/// (one of the two, each pool once).
+fn experiment_pools(
+    cx: &mut Ctx,
+    e: &RawExperiment,
+    i: usize,
+    who: &str,
+    what: &str,
+    pool_ids: &Names,
+) -> Vec<usize> {
+    let at = |k: &str| format!("experiments[{i}].{k}");
+    match (&e.pool, &e.pools) {
+        (Some(_), Some(_)) => {
+            cx.err(
+                &at("pools"),
+                format!("{who}gives both `pool` and `pools`"),
+                "keep one: `pool: home` for one pool, `pools: [home, search]` for several",
+            );
+            Vec::new()
+        }
+        (Some(p), None) => cx
+            .reference(&at("pool"), who, p.as_str().trim(), "pool", pool_ids)
+            .into_iter()
+            .collect(),
+        (None, Some(list)) => {
+            if list.is_empty() {
+                cx.err(
+                    &at("pools"),
+                    format!("{who}`pools` is empty"),
+                    "name every pool it runs on, e.g. `pools: [home, search]`",
+                );
+            }
+            let mut out: Vec<usize> = Vec::new();
+            for (j, p) in list.iter().enumerate() {
+                let key = format!("experiments[{i}].pools[{j}]");
+                let id = p.as_str().trim();
+                if let Some(k) = cx.reference(&key, who, id, "pool", pool_ids) {
+                    if out.contains(&k) {
+                        cx.err(
+                            &key,
+                            format!("{who}pool `{id}` is listed twice in `pools`"),
+                            "list each pool once",
+                        );
+                    } else {
+                        out.push(k);
+                    }
+                }
+            }
+            out
+        }
+        (None, None) => {
+            cx.missing(
+                &at("pool"),
+                what,
+                "name the pool whose traffic it uses, e.g. `pool: home`, or `pools: [home, search]` for several",
+            );
+            Vec::new()
+        }
+    }
+}
+
+/// The steps of an experiment's `ramp`: each share in (0, `max_share`]
+/// with a share level at or above it that the test may take, each a whole
+/// number of days, the whole ramp shorter than the window.
+fn ramp(
+    cx: &mut Ctx,
+    e: &RawExperiment,
+    i: usize,
+    who: &str,
+    window: Option<Window>,
+    max_share: f64,
+    share_levels: &ShareLevels,
+) -> Vec<RampStep> {
+    let mut out = Vec::new();
+    let mut total = 0u64;
+    let top = share_levels.largest_up_to(Share::from_fraction(max_share.clamp(0.0, 1.0)));
+    for (j, step) in e.ramp.iter().flatten().enumerate() {
+        let at = |k: &str| format!("experiments[{i}].ramp[{j}].{k}");
+        let what = format!("ramp step {} of experiment `{}`", j + 1, leaf_id(who));
+        let Some(share) = step.share else {
+            cx.missing(
+                &at("share"),
+                &what,
+                "give the step's share, e.g. `share: 0.05`",
+            );
+            continue;
+        };
+        let Some(days) = step.days else {
+            cx.missing(
+                &at("days"),
+                &what,
+                "give the step's length in days, e.g. `days: 2`",
+            );
+            continue;
+        };
+        let share_ok = cx.number(
+            &at("share"),
+            who,
+            share,
+            is_share(share),
+            "a share in (0, 1]",
+            "a ramp step's share of each of the test's pools, e.g. 0.05",
+        );
+        if share_ok {
+            let s = Share::from_fraction(share);
+            if top.is_none_or(|t| s > t) {
+                let limit = top.map_or(0.0, Share::fraction);
+                cx.err(
+                    &at("share"),
+                    format!(
+                        "{who}ramp share {share} is above the largest share it may take ({limit})"
+                    ),
+                    "a ramp runs below the planned share: lower the step, or raise `max_share`",
+                );
+            }
+        }
+        let days_ok = cx.number(
+            &at("days"),
+            who,
+            days,
+            whole(days, 1.0, MAX_DAYS_SETTING),
+            "a whole number of days from 1 to 366",
+            "how many days the step holds its share, e.g. 2",
+        );
+        if share_ok && days_ok {
+            total += days as u64;
+            out.push(RampStep {
+                share: Share::from_fraction(share),
+                days: days as u32,
+            });
+        }
+    }
+    if let Some(w) = window {
+        if !out.is_empty() && total >= w.days() as u64 {
+            cx.err(
+                &format!("experiments[{i}].ramp"),
+                format!(
+                    "{who}the ramp lasts {total} days, but the window has only {}",
+                    w.days()
+                ),
+                "shorten the ramp: the test needs at least one day at its planned share",
+            );
+        }
+    }
+    out
+}
+
+/// The id inside a `who` prefix ("experiment `x`: ").
+fn leaf_id(who: &str) -> &str {
+    who.split('`').nth(1).unwrap_or(who)
 }
 
 /// Every role by its name in a file.
@@ -2466,5 +2655,136 @@ mod metrics_tests {
         );
         assert!(err.contains("metric `refunds`:"), "{err}");
         assert!(err.contains("unpooled"), "{err}");
+    }
+}
+
+#[cfg(test)]
+mod calendar_key_tests {
+    use crate::portfolio::load_str;
+    use crate::share::Share;
+
+    /// Three pools and two experiments; the first ends with `first` (its
+    /// keys at four spaces from line 8), the second is `other` on `home`.
+    fn file(first: &str) -> String {
+        format!(
+            "name: keys\nwindow: {{start: 2027-01-04, end: 2027-01-31}}\n\
+             pools:\n  - {{id: home, daily: 10000, max_concurrent: 2}}\n\
+             \x20 - {{id: search, daily: 5000, max_concurrent: 2, sharing: overlap}}\n\
+             \x20 - {{id: product, daily: 5000, max_concurrent: 2}}\n\
+             experiments:\n  - id: t\n    baseline: 0.1\n    mde: 0.1\n{first}\
+             \x20 - id: other\n    pool: home\n    baseline: 0.1\n    mde: 0.1\n"
+        )
+    }
+
+    fn error(first: &str) -> String {
+        load_str(&file(first), "k.yaml").unwrap_err().to_string()
+    }
+
+    #[test]
+    fn pools_list_every_pool_and_pool_is_its_short_form() {
+        let p = load_str(&file("    pools: [search, home, product]\n"), "k.yaml").unwrap();
+        assert_eq!(p.experiments[0].pools, vec![1, 0, 2]);
+        assert_eq!(p.experiments[1].pools, vec![0]);
+        let p = load_str(&file("    pool: search\n"), "k.yaml").unwrap();
+        assert_eq!(p.experiments[0].pools, vec![1]);
+    }
+
+    #[test]
+    fn bad_pools_name_the_key_and_line() {
+        let err = error("    pool: home\n    pools: [home, search]\n");
+        assert!(err.contains("k.yaml:12:"), "{err}");
+        assert!(err.contains("gives both `pool` and `pools`"), "{err}");
+        assert!(err.contains("keep one"), "{err}");
+        let err = error("    pools: [home, serch]\n");
+        assert!(err.contains("k.yaml:11:"), "{err}");
+        assert!(err.contains("pool `serch` is not defined"), "{err}");
+        assert!(err.contains("closest first: `search`"), "{err}");
+        let err = error("    pools: [home, home]\n");
+        assert!(
+            err.contains("pool `home` is listed twice in `pools`"),
+            "{err}"
+        );
+        let err = error("    pools: []\n");
+        assert!(err.contains("`pools` is empty"), "{err}");
+    }
+
+    #[test]
+    fn a_ramp_is_read_in_order_with_ramp_counts() {
+        let p = load_str(
+            &file(
+                "    pool: home\n    ramp:\n      - {share: 0.05, days: 2}\n      - {share: 0.2, days: 3}\n    ramp_counts: true\n",
+            ),
+            "k.yaml",
+        )
+        .unwrap();
+        let e = &p.experiments[0];
+        assert_eq!(e.ramp.len(), 2);
+        assert_eq!(e.ramp[0].share, Share::from_fraction(0.05));
+        assert_eq!((e.ramp[0].days, e.ramp[1].days), (2, 3));
+        assert!(e.ramp_counts);
+        assert_eq!(e.ramp_days(), 5);
+        // Day by day: the steps, then the planned share.
+        let half = Share::from_fraction(0.5);
+        assert_eq!(e.share_on_day(1, half), Share::from_fraction(0.05));
+        assert_eq!(e.share_on_day(2, half), Share::from_fraction(0.2));
+        assert_eq!(e.share_on_day(5, half), half);
+        assert!(!p.experiments[1].ramp_counts);
+    }
+
+    #[test]
+    fn bad_ramps_name_the_key_and_line() {
+        let err = error("    pool: home\n    ramp:\n      - {share: 1.5, days: 2}\n");
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        assert!(
+            err.contains("`share` is 1.5; it must be a share in (0, 1]"),
+            "{err}"
+        );
+        let err =
+            error("    pool: home\n    max_share: 0.5\n    ramp:\n      - {share: 0.6, days: 2}\n");
+        assert!(err.contains("k.yaml:14:"), "{err}");
+        assert!(
+            err.contains("ramp share 0.6 is above the largest share it may take (0.5)"),
+            "{err}"
+        );
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1, days: 20}\n      - {share: 0.2, days: 8}\n");
+        assert!(
+            err.contains("the ramp lasts 28 days, but the window has only 28"),
+            "{err}"
+        );
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1}\n");
+        assert!(err.contains("has no `days`"), "{err}");
+        let err = error("    pool: home\n    ramp:\n      - {share: 0.1, days: 2, hold: 1}\n");
+        assert!(err.contains("unknown key `hold`"), "{err}");
+    }
+
+    #[test]
+    fn not_with_entries_keep_apart_in_time_or_on_traffic() {
+        let p = load_str(
+            &file("    pool: home\n    not_with:\n      - {id: other, apart: traffic}\n"),
+            "k.yaml",
+        )
+        .unwrap();
+        assert_eq!(p.experiments[0].apart_traffic, vec![1]);
+        assert_eq!(p.experiments[1].apart_traffic, vec![0], "symmetric");
+        assert!(p.experiments[0].not_with.is_empty());
+        for entry in ["other", "{id: other, apart: time}", "{id: other}"] {
+            let p = load_str(
+                &file(&format!("    pool: home\n    not_with: [{entry}]\n")),
+                "k.yaml",
+            )
+            .unwrap();
+            assert_eq!(p.experiments[0].not_with, vec![1], "{entry}");
+            assert!(p.experiments[0].apart_traffic.is_empty(), "{entry}");
+        }
+        let err = error("    pool: home\n    not_with:\n      - {id: other, apart: trafic}\n");
+        assert!(err.contains("k.yaml:13:"), "{err}");
+        assert!(
+            err.contains("`apart` is `trafic`; it must be one of"),
+            "{err}"
+        );
+        assert!(err.contains("did you mean `traffic`?"), "{err}");
+        let err = error("    pool: home\n    not_with:\n      - {apart: traffic}\n");
+        assert!(err.contains("has no `id`"), "{err}");
     }
 }

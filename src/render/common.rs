@@ -42,7 +42,7 @@ pub fn past_run(e: &PlannedExperiment) -> Option<crate::plan::Run> {
 /// "finished, ran 2027-01-04 to 2027-01-24 at 25%" for a finished or
 /// cancelled test whose run the plan keeps; else [`out_word`].
 pub fn closed_words(e: &PlannedExperiment) -> String {
-    match (e.run, e.ran) {
+    match (&e.run, e.ran) {
         (None, Some(r)) => format!(
             "{}, ran {} to {}{}",
             out_word(e),
@@ -125,7 +125,42 @@ pub fn experiments_in<'a>(
     plan: &'a Plan,
     pool: &'a str,
 ) -> impl Iterator<Item = &'a PlannedExperiment> + 'a {
-    plan.experiments.iter().filter(move |e| e.pool == pool)
+    plan.experiments
+        .iter()
+        .filter(move |e| e.pools.iter().any(|p| p == pool))
+}
+
+/// The labels of every pool of `e`, joined: "Home page, Search".
+pub fn pools_label(plan: &Plan, e: &PlannedExperiment) -> String {
+    e.pools
+        .iter()
+        .map(|p| pool_label(plan, p))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// A run's ramp in words, "5% 2027-01-04 to 2027-01-05, 20% 2027-01-06
+/// to 2027-01-08"; `None` without a ramp.
+pub fn ramp_words(e: &PlannedExperiment) -> Option<String> {
+    (!e.ramp.is_empty()).then(|| {
+        e.ramp
+            .iter()
+            .map(|s| format!("{} {} to {}", s.share, s.start, s.end))
+            .collect::<Vec<_>>()
+            .join(", ")
+    })
+}
+
+/// For a test on several pools drawn under `pool`: "also on `search`,
+/// `product`"; `None` for a test on one pool.
+pub fn also_on(e: &PlannedExperiment, pool: &str) -> Option<String> {
+    let others: Vec<String> = e
+        .pools
+        .iter()
+        .filter(|p| *p != pool)
+        .map(|p| format!("`{p}`"))
+        .collect();
+    (e.pools.len() > 1).then(|| format!("also on {}", others.join(", ")))
 }
 
 /// Experiments whose pool is not among the plan's pools (should not happen,
@@ -133,7 +168,11 @@ pub fn experiments_in<'a>(
 pub fn orphans(plan: &Plan) -> Vec<&PlannedExperiment> {
     plan.experiments
         .iter()
-        .filter(|e| !plan.pools.iter().any(|p| p.id == e.pool))
+        .filter(|e| {
+            e.pools
+                .iter()
+                .any(|q| !plan.pools.iter().any(|p| &p.id == q))
+        })
         .collect()
 }
 

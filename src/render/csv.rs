@@ -1,9 +1,12 @@
 //! CSV: one row per experiment in plan order, with a header row. Dates are
 //! ISO 8601 (`YYYY-MM-DD`); shares are fractions in (0, 1]; cells that do
 //! not apply (an unscheduled test's dates) are empty. Quoting is left to the
-//! `csv` crate. The numbers behind each test (its design, look dates and,
-//! when it does not fit, its detectable effect) follow the plan's columns,
-//! under [`super::numbers::CSV_HEADER`].
+//! `csv` crate. `pools` lists a test's pools separated by `;`; `ramp` words
+//! its ramp steps ("5% 2027-01-04 to 2027-01-05, ..."), empty without one.
+//! The result ranges and then the numbers behind each test (its design,
+//! look dates and, when it does not fit, its detectable effect) follow the
+//! plan's columns, under [`RANGE_HEADER`] and
+//! [`super::numbers::CSV_HEADER`].
 
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, Run};
@@ -12,11 +15,11 @@ use crate::plan::{Plan, Run};
 pub struct Csv;
 
 /// The header row, in column order.
-pub const HEADER: [&str; 16] = [
+pub const HEADER: [&str; 17] = [
     "id",
     "title",
     "owner",
-    "pool",
+    "pools",
     "priority",
     "status",
     "start",
@@ -29,6 +32,7 @@ pub const HEADER: [&str; 16] = [
     "reason",
     "eligible",
     "sample_size_given",
+    "ramp",
 ];
 
 /// The result-range columns after [`HEADER`]: the P10, P50 and P90 result
@@ -65,7 +69,7 @@ impl Renderer for Csv {
                 e.id.clone(),
                 e.title.clone(),
                 e.owner.clone(),
-                e.pool.clone(),
+                e.pools.join(";"),
                 e.priority.to_string(),
                 status.to_string(),
                 ran(&|r| r.start.to_string()).unwrap_or_else(|| opt(&|r| r.start.to_string())),
@@ -84,6 +88,7 @@ impl Renderer for Csv {
                 e.reason.clone().unwrap_or_default(),
                 e.eligible.to_string(),
                 e.sample_size_given.to_string(),
+                super::common::ramp_words(e).unwrap_or_default(),
             ];
             let numbers = super::numbers::csv_cells(e);
             w.write_record(row.iter().chain(&range_cells(e)).chain(&numbers))

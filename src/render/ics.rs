@@ -18,7 +18,7 @@
 //! All-day events end on the day after their last day, as RFC 5545 §3.6.1
 //! defines DTEND for DATE values (exclusive).
 
-use super::common::{cut_short_note, pool_label, thousands, units};
+use super::common::{cut_short_note, pools_label, ramp_words, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{
     CalendarHistory, EventSequence, KeptEvents, LookSequence, Plan, PlannedExperiment, Run, Status,
@@ -111,8 +111,8 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         e.title,
         e.id,
         e.owner,
-        pool_label(plan, &e.pool),
-        e.pool,
+        &pools_label(plan, e),
+        e.pools.join(", "),
         super::common::share_words(e, run.share),
         run.start,
         run.end,
@@ -128,6 +128,9 @@ fn description(plan: &Plan, e: &PlannedExperiment, run: &Run) -> String {
         plan.portfolio,
     );
     text.push_str(&range_note(e));
+    if let Some(ramp) = ramp_words(e) {
+        text.push_str(&format!("\nRamp before that share: {ramp}"));
+    }
     if let Some(note) = cut_short_note(plan) {
         text.push('\n');
         text.push_str(&note.replace('`', ""));

@@ -4,7 +4,7 @@
 //! User text is escaped so that it cannot break the table or start markup
 //! of its own.
 
-use super::common::{caution, counts, has_ranges, long_date, pool_label, range_words};
+use super::common::{caution, counts, has_ranges, long_date, pools_label, range_words};
 use super::markup::{Column, MarkupTable};
 use super::moved::{advice_groups, headline, rows, summary_lines, COLUMNS, HEADER, TITLE};
 use super::{RenderError, RenderOptions, Renderer};
@@ -226,10 +226,17 @@ impl Renderer for Markdown {
                     range_cell(plan, e),
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     run.start,
                     run.end,
-                    super::common::share_words(e, run.share),
+                    match super::common::ramp_words(e) {
+                        Some(ramp) => format!(
+                            "{} (after a ramp: {})",
+                            super::common::share_words(e, run.share),
+                            escape(&ramp)
+                        ),
+                        None => super::common::share_words(e, run.share),
+                    },
                     escape(&e.owner)
                 );
             }
@@ -263,7 +270,7 @@ impl Renderer for Markdown {
                     "- **{}** (`{}`, {}): {}",
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     escape_keeping_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
                 if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
@@ -294,7 +301,7 @@ impl Renderer for Markdown {
                     "- **{}** (`{}`, {}): {}",
                     escape(&e.title),
                     e.id.replace('`', "'"),
-                    escape(pool_label(plan, &e.pool)),
+                    escape(&pools_label(plan, e)),
                     escape(&super::common::closed_words(e))
                 );
             }

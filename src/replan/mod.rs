@@ -68,7 +68,7 @@ fn held(portfolio: &Portfolio, live: &[Live], pool: usize, today: NaiveDate) -> 
     let days = portfolio.window.days();
     let mut held = vec![0i64; days];
     for l in live {
-        if portfolio.experiments[l.run.experiment].pool != pool {
+        if !portfolio.experiments[l.run.experiment].uses(pool) {
             continue;
         }
         let from = index(portfolio, today.max(l.run.start));
@@ -93,7 +93,7 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
         let date = w.date(d as i64);
         let (mut share, mut count) = (0.0, 0u32);
         for l in live {
-            if portfolio.experiments[l.run.experiment].pool == pool
+            if portfolio.experiments[l.run.experiment].uses(pool)
                 && l.run.start <= date
                 && date <= held_to(portfolio, &l.outlook)
             {
@@ -101,7 +101,8 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split && share > p.capacity().fraction() + 1e-9)
+        let over = (p.sharing == Sharing::Split
+            && share > f64::from(split_capacity(p).millionths()) / 1e6 + 1e-9)
             || count > p.max_concurrent;
         if over {
             let o = out.get_or_insert(Overload {
@@ -114,6 +115,12 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
         }
     }
     out
+}
+
+/// The most a split pool's shares may add up to on a day (the one place
+/// the re-plan reads it): its capacity beside its holdout.
+fn split_capacity(pool: &crate::portfolio::Pool) -> Share {
+    pool.capacity()
 }
 
 /// Re-plans `portfolio` (from [`with_scales`] when there are `--scale`s) from `today`
@@ -217,25 +224,33 @@ pub fn replan(
     let today_i = index(portfolio, today);
     for i in order {
         let e = live[i].run.experiment;
-        let pool = portfolio.experiments[e].pool;
-        let split = portfolio.pools[pool].sharing == Sharing::Split;
-        let mut others = held(portfolio, &live, pool, today);
+        // A multi-pool test needs the room on each of its split pools.
         let mine_to = index(
             portfolio,
             held_to(portfolio, &live[i].outlook) + Duration::days(1),
         );
-        for h in &mut others[today_i.min(mine_to)..mine_to] {
-            *h -= i64::from(live[i].outlook.share.millionths());
-        }
+        let others: Vec<(Vec<i64>, i64)> = portfolio.experiments[e]
+            .pools
+            .iter()
+            .filter(|&&pool| portfolio.pools[pool].sharing == Sharing::Split)
+            .map(|&pool| {
+                let mut others = held(portfolio, &live, pool, today);
+                for h in &mut others[today_i.min(mine_to)..mine_to] {
+                    *h -= i64::from(live[i].outlook.share.millionths());
+                }
+                let cap = i64::from(split_capacity(&portfolio.pools[pool]).millionths());
+                (others, cap)
+            })
+            .collect();
         let run = live[i].run;
         let current = live[i].outlook.share;
         let room_for = |s: Share, end: NaiveDate| {
             let to = index(portfolio, end + Duration::days(1));
-            !split
-                || others[today_i.min(to)..to].iter().all(|h| {
-                    h + i64::from(s.millionths())
-                        <= i64::from(portfolio.pools[pool].capacity().millionths())
-                })
+            others.iter().all(|(others, cap)| {
+                others[today_i.min(to)..to]
+                    .iter()
+                    .all(|h| h + i64::from(s.millionths()) <= *cap)
+            })
         };
         let found = portfolio
             .share_levels
@@ -281,21 +296,28 @@ pub fn replan(
     // Who holds a full pool from today, for the advice that found no room.
     let holders_of = |live: &[Live], pool: usize| -> Vec<(String, Share)> {
         live.iter()
-            .filter(|l| portfolio.experiments[l.run.experiment].pool == pool)
+            .filter(|l| portfolio.experiments[l.run.experiment].uses(pool))
             .filter(|l| held_to(portfolio, &l.outlook) >= today)
             .map(|l| (l.outlook.id.clone(), l.outlook.share))
             .collect()
     };
     let mut outlooks = Vec::new();
     for i in 0..live.len() {
-        let pool = portfolio.experiments[live[i].run.experiment].pool;
+        let pools = &portfolio.experiments[live[i].run.experiment].pools;
         if let Rescue::NoRoom { needed, .. } = live[i].rescue {
-            live[i].rescue = Rescue::NoRoom {
-                needed,
-                holders: holders_of(&live, pool),
-            };
+            let mut holders: Vec<(String, Share)> = Vec::new();
+            for &pool in pools {
+                for h in holders_of(&live, pool) {
+                    if !holders.contains(&h) {
+                        holders.push(h);
+                    }
+                }
+            }
+            live[i].rescue = Rescue::NoRoom { needed, holders };
         }
-        let overload = input_overload(portfolio, &live, pool);
+        let overload = pools
+            .iter()
+            .find_map(|&pool| input_overload(portfolio, &live, pool));
         let l = &mut live[i];
         if overload.is_some_and(|x| {
             x.from <= held_to(portfolio, &l.outlook) && l.run.start <= portfolio.window.end

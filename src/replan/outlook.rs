@@ -10,7 +10,7 @@
 //! Units on a `no_running` day of its pool never count towards a test: the
 //! traffic of such a day does not represent normal behaviour.
 
-use crate::forecast::units_on;
+use crate::forecast::test_units_on;
 use crate::plan::{NoRunningChoice, RunningFlag, RunningOutlook};
 use crate::portfolio::{BlackoutKind, Portfolio};
 use crate::share::Share;
@@ -35,13 +35,20 @@ pub(super) struct Run {
 }
 
 impl Run {
-    /// Its share on `day` when it runs at `from_today` from `today` on.
-    fn share_on(&self, day: NaiveDate, from_today: Share, today: NaiveDate) -> f64 {
-        if day < today {
-            self.share.fraction()
-        } else {
-            from_today.fraction()
+    /// Its share on `day` when it runs at `from_today` from `today` on:
+    /// a ramp step's share on the ramp's days unless re-shared.
+    fn share_on(
+        &self,
+        e: &crate::portfolio::Experiment,
+        day: NaiveDate,
+        from_today: Share,
+        today: NaiveDate,
+    ) -> f64 {
+        if day >= today && from_today != self.share {
+            return from_today.fraction();
         }
+        let into = (day - self.start).num_days().max(0) as u32;
+        e.share_on_day(into, self.share).fraction()
     }
 }
 
@@ -62,13 +69,19 @@ fn units_counted(
     share: Share,
     today: NaiveDate,
 ) -> f64 {
-    let pool = portfolio.experiments[run.experiment].pool;
-    if no_running(portfolio, pool, day) {
+    let e = &portfolio.experiments[run.experiment];
+    if e.pools.iter().any(|&pool| no_running(portfolio, pool, day)) {
         return 0.0;
     }
-    run.share_on(day, share, today)
-        * portfolio.entering_fraction(run.experiment, pool)
-        * units_on(&portfolio.pools[pool], day)
+    let into = (day - run.start).num_days();
+    if !e.ramp_counts && into < i64::from(e.ramp_days()) {
+        return 0.0;
+    }
+    let s = run.share_on(e, day, share, today);
+    e.pools
+        .iter()
+        .map(|&pool| test_units_on(e, &portfolio.pools[pool], day, s))
+        .sum()
 }
 
 /// Units `run` will have at the end of `last` at `share` from today: the
@@ -178,13 +191,13 @@ fn first_no_running<'p>(
     today: NaiveDate,
     reach: NaiveDate,
 ) -> Option<&'p crate::portfolio::Blackout> {
-    let pool = portfolio.experiments[run.experiment].pool;
+    let e = &portfolio.experiments[run.experiment];
     let from = today.max(run.start);
     portfolio
         .blackouts
         .iter()
         .filter(|b| b.kind == BlackoutKind::NoRunning)
-        .filter(|b| b.pools.is_empty() || b.pools.contains(&pool))
+        .filter(|b| b.pools.is_empty() || b.pools.iter().any(|&k| e.uses(k)))
         .filter(|b| b.from <= reach && from <= b.to)
         .min_by_key(|b| (b.from, b.to))
 }
@@ -294,7 +307,12 @@ pub(super) fn advise(
     overload: Option<Overload>,
 ) -> Option<String> {
     let e = &portfolio.experiments[run.experiment];
-    let pool = &portfolio.pools[e.pool].id;
+    let pool = e
+        .pools
+        .iter()
+        .map(|&k| portfolio.pools[k].id.as_str())
+        .collect::<Vec<_>>()
+        .join("`, `");
     let mut parts: Vec<String> = Vec::new();
     if let Rescue::Reshared { from } = rescue {
         parts.push(format!(
@@ -386,7 +404,11 @@ pub(super) fn advise(
             x.from,
             crate::words::percent(x.peak_share),
             x.peak_count,
-            portfolio.pools[e.pool].max_concurrent
+            e.pools
+                .iter()
+                .map(|&k| portfolio.pools[k].max_concurrent)
+                .min()
+                .unwrap_or(0)
         ));
     }
     (!parts.is_empty()).then(|| parts.join("; "))

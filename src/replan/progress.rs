@@ -665,13 +665,19 @@ impl ProgressCheck<'_> {
             }
         };
         // Flag counts the forecast could not have delivered (5% slack).
-        let pool = &p.pools[exp.pool];
+        let pool = &p.pools[exp.pools[0]];
         let last = entry.as_of - Duration::days(1);
         if last >= started {
-            let series = forecast::Series::new(pool, started, last);
-            let could = series.total(0, series.len() - 1)
-                * share.fraction()
-                * p.entering_fraction(entry.index, exp.pool);
+            let could: f64 = exp
+                .pools
+                .iter()
+                .map(|&k| {
+                    let series = forecast::Series::new(&p.pools[k], started, last);
+                    series.total(0, series.len() - 1)
+                        * forecast::entering(exp, &p.pools[k])
+                        * share.fraction()
+                })
+                .sum();
             if units as f64 > could * 1.05 + 1.0 {
                 self.ck.warn(
                     &format!("{at}.units"),

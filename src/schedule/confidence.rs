@@ -35,7 +35,8 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
     let mut ask: Vec<f64> = portfolio
         .experiments
         .iter()
-        .map(|ex| 1.0 / factors[ex.pool])
+        // On several pools, the most lowered forecast among them.
+        .map(|ex| 1.0 / ex.pools.iter().map(|&k| factors[k]).fold(1.0, f64::min))
         .collect();
     let today = request.today.unwrap_or(portfolio.window.start);
     let so_far: Vec<_> = request

@@ -12,7 +12,7 @@
 //! model small.
 
 use super::options::{Instance, Opt};
-use super::state::WHOLE;
+use super::state::{room, WHOLE};
 use crate::portfolio::Sharing;
 use good_lp::{
     variable, Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel,
@@ -73,6 +73,10 @@ pub(crate) struct Sub<'s> {
     pub allowed: Vec<Vec<usize>>,
     /// Tests fixed to run (their allowed options sum to exactly 1).
     pub forced: Vec<bool>,
+    /// The weight of each test's options in the objective (1 but in the
+    /// pool-by-pool bound, where a test on several pools counts a part in
+    /// each).
+    pub weight: Vec<f64>,
 }
 
 impl<'s> Sub<'s> {
@@ -86,6 +90,7 @@ impl<'s> Sub<'s> {
                 .map(|&e| (0..inst.options[e].len()).collect())
                 .collect(),
             forced: vec![false; exps.len()],
+            weight: vec![1.0; exps.len()],
         }
     }
 }
@@ -106,6 +111,41 @@ type Terms = Vec<(usize, usize, f64)>;
 struct Rows {
     /// (terms, right-hand side): sum coef x <= rhs.
     le: Vec<(Terms, f64)>,
+}
+
+/// A run's phase: first day, last day, share.
+type Phase = (usize, usize, crate::share::Share);
+
+/// The segments of days on which the options of the tests at positions
+/// `members` are constant (ramp steps included), and per segment the
+/// options covering it with their share there: (breakpoints, cover), or
+/// `None` when there is no option.
+fn covering(inst: &Instance, sub: &Sub, members: &[usize]) -> Option<(Vec<usize>, Vec<Terms>)> {
+    let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
+    let phases: Vec<(usize, usize, Vec<Phase>)> = members
+        .iter()
+        .flat_map(|&i| (0..sub.allowed[i].len()).map(move |j| (i, j)))
+        .map(|(i, j)| (i, j, inst.phases(sub.exps[i], opt(i, j))))
+        .collect();
+    let pts = breakpoints(
+        phases
+            .iter()
+            .flat_map(|(_, _, ph)| ph.iter().map(|&(s, e, _)| (s, e))),
+    );
+    if pts.len() < 2 {
+        return None;
+    }
+    let mut cover: Vec<Terms> = vec![Vec::new(); pts.len() - 1];
+    for (i, j, ph) in &phases {
+        for &(first, last, share) in ph {
+            let mut s = pts.partition_point(|&b| b < first);
+            while s + 1 < pts.len() && pts[s] <= last {
+                cover[s].push((*i, *j, share.fraction()));
+                s += 1;
+            }
+        }
+    }
+    Some((pts, cover))
 }
 
 /// Sorted distinct breakpoints of a set of day spans: every start and every
@@ -137,41 +177,29 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
         }
     }
     // Pool capacity per segment.
-    let mut pools: Vec<usize> = sub.exps.iter().map(|&e| p.experiments[e].pool).collect();
+    let mut pools: Vec<usize> = sub
+        .exps
+        .iter()
+        .flat_map(|&e| p.experiments[e].pools.iter().copied())
+        .collect();
     pools.sort_unstable();
     pools.dedup();
     for &pool in &pools {
         let members: Vec<usize> = (0..sub.exps.len())
-            .filter(|&i| p.experiments[sub.exps[i]].pool == pool)
+            .filter(|&i| p.experiments[sub.exps[i]].uses(pool))
             .collect();
-        let spans = members
-            .iter()
-            .flat_map(|&i| (0..sub.allowed[i].len()).map(move |j| (i, j)))
-            .map(|(i, j)| {
-                let o = opt(i, j);
-                (o.start, o.end)
-            });
-        let pts = breakpoints(spans);
-        if pts.len() < 2 {
+        let Some((pts, cover)) = covering(inst, sub, &members) else {
             continue;
-        }
-        // Per segment: covering (i, j, share).
-        let mut cover: Vec<Terms> = vec![Vec::new(); pts.len() - 1];
-        for &i in &members {
-            for j in 0..sub.allowed[i].len() {
-                let o = opt(i, j);
-                let mut s = pts.partition_point(|&b| b < o.start);
-                while s + 1 < pts.len() && pts[s] <= o.end {
-                    cover[s].push((i, j, o.share.fraction()));
-                    s += 1;
-                }
-            }
-        }
+        };
         let pool_def = &p.pools[pool];
         let split = pool_def.sharing == Sharing::Split;
-        let mut last: Option<Vec<(usize, usize)>> = None;
+        let capacity = room(pool_def);
+        let mut last: Option<Vec<(usize, usize, u64)>> = None;
         for (s, c) in cover.into_iter().enumerate() {
-            let ids: Vec<(usize, usize)> = c.iter().map(|&(i, j, _)| (i, j)).collect();
+            // Ramps change a run's share inside it: the same runs at other
+            // shares make another row.
+            let ids: Vec<(usize, usize, u64)> =
+                c.iter().map(|&(i, j, sh)| (i, j, sh.to_bits())).collect();
             if last.as_ref() == Some(&ids) || c.is_empty() {
                 continue;
             }
@@ -186,7 +214,6 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
                 })
                 .min()
                 .unwrap_or(0) as f64;
-            let capacity = super::state::room(pool_def);
             let share_left = days
                 .map(|d| capacity - inst.base_share[pool][d])
                 .min()
@@ -270,6 +297,42 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
             }
         }
     }
+    // Pairs apart on traffic inside the component: on each overlap pool
+    // they share, their shares add up to at most 1 wherever both may run
+    // (on a split pool the pool's own row already says so).
+    for (a_pos, &a) in sub.exps.iter().enumerate() {
+        for &b in &p.experiments[a].apart_traffic {
+            let Some(b_pos) = pos(b) else { continue };
+            if b <= a {
+                continue;
+            }
+            let shared_overlap = p.experiments[a].pools.iter().any(|&pool| {
+                p.experiments[b].uses(pool) && p.pools[pool].sharing == Sharing::Overlap
+            });
+            if !shared_overlap {
+                continue;
+            }
+            let Some((_, cover)) = covering(inst, sub, &[a_pos, b_pos]) else {
+                continue;
+            };
+            for c in cover {
+                let has_a = c.iter().any(|&(i, _, _)| i == a_pos);
+                let has_b = c.iter().any(|&(i, _, _)| i == b_pos);
+                let most: f64 = [a_pos, b_pos]
+                    .iter()
+                    .map(|&t| {
+                        c.iter()
+                            .filter(|&&(i, _, _)| i == t)
+                            .map(|&(_, _, sh)| sh)
+                            .fold(0.0, f64::max)
+                    })
+                    .sum();
+                if has_a && has_b && most > 1.0 + 1e-9 {
+                    le.push((c, 1.0));
+                }
+            }
+        }
+    }
     // after links inside the component.
     for (b_pos, &b) in sub.exps.iter().enumerate() {
         for &(a, gap) in &inst.preds[b] {
@@ -341,7 +404,7 @@ pub(crate) fn solve(
                 def = def.initial(if init[i] == Some(j) { 1.0 } else { 0.0 });
             }
             let x = vars.add(def);
-            objective.add_mul(inst.options[e][k].value, x);
+            objective.add_mul(sub.weight[i] * inst.options[e][k].value, x);
             v.push(x);
         }
         xs.push(v);

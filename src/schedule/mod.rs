@@ -28,10 +28,10 @@ mod verify;
 pub use lp::Backend;
 pub use verify::verify;
 
-use crate::forecast::units_on;
+use crate::forecast::test_units_on;
 use crate::plan::{
-    Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, Run, SolverStatus,
-    SolverSummary, Status,
+    Plan, PlanBlackout, PlanWindow, PlannedExperiment, PoolDay, PoolPlan, RampDays, Run,
+    SolverStatus, SolverSummary, Status,
 };
 use crate::portfolio::Portfolio;
 use crate::share::Share;
@@ -138,29 +138,34 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
         }
         x
     }
+    let mut join = |a: usize, b: usize| {
+        let (ra, rb) = (find(&mut parent, a), find(&mut parent, b));
+        if ra != rb {
+            parent[ra.max(rb)] = ra.min(rb);
+        }
+    };
     for e in inst.free() {
-        let a = p.experiments[e].pool;
+        let a = p.experiments[e].pools[0];
+        // A multi-pool test joins its pools.
+        for &other_pool in &p.experiments[e].pools[1..] {
+            join(a, other_pool);
+        }
         let links = p.experiments[e]
             .not_with
             .iter()
+            .chain(&p.experiments[e].apart_traffic)
             .copied()
             .chain(inst.preds[e].iter().map(|&(x, _)| x));
         for other in links {
             if inst.roles[other] != Role::Free {
                 continue;
             }
-            let (ra, rb) = (
-                find(&mut parent, a),
-                find(&mut parent, p.experiments[other].pool),
-            );
-            if ra != rb {
-                parent[ra.max(rb)] = ra.min(rb);
-            }
+            join(a, p.experiments[other].pools[0]);
         }
     }
     let mut groups: Vec<Vec<usize>> = vec![Vec::new(); np];
     for e in inst.free() {
-        let r = find(&mut parent, p.experiments[e].pool);
+        let r = find(&mut parent, p.experiments[e].pools[0]);
         groups[r].push(e);
     }
     groups.retain(|g| !g.is_empty());
@@ -295,22 +300,49 @@ pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -
     Some(total)
 }
 
-/// Units the pool delivers to a run at `share` from `start` to `end`
-/// (`share` already times the test's entering fraction).
+/// Units a run of test `e` from `start` to `end` at `share` collects,
+/// summed over its pools (each through its entering fraction): its ramp's
+/// days at their shares when they count, none of them when they do not.
 fn units_between(
     portfolio: &Portfolio,
-    pool: usize,
+    e: usize,
     start: NaiveDate,
     end: NaiveDate,
-    share: f64,
+    share: Share,
 ) -> f64 {
+    let ex = &portfolio.experiments[e];
+    let ramp_end = start + Duration::days(i64::from(ex.ramp_days()));
     let mut total = 0.0;
     let mut d = start;
     while d <= end {
-        total += units_on(&portfolio.pools[pool], d);
+        let on_ramp = d < ramp_end;
+        if !on_ramp || ex.ramp_counts {
+            let s = ex.share_on_day((d - start).num_days() as u32, share);
+            for &pool in &ex.pools {
+                total += test_units_on(ex, &portfolio.pools[pool], d, s.fraction());
+            }
+        }
         d += Duration::days(1);
     }
-    share * total
+    total
+}
+
+/// The dates and shares of test `e`'s ramp steps on a run from `start`.
+fn ramp_days(portfolio: &Portfolio, e: usize, start: NaiveDate) -> Vec<RampDays> {
+    let mut d = start;
+    portfolio.experiments[e]
+        .ramp
+        .iter()
+        .map(|s| {
+            let step = RampDays {
+                start: d,
+                end: d + Duration::days(i64::from(s.days) - 1),
+                share: s.share,
+            };
+            d = step.end + Duration::days(1);
+            step
+        })
+        .collect()
 }
 
 /// The last [`crate::plan::HISTORY_SHOWN`] days of `pool`'s history, if
@@ -357,7 +389,7 @@ fn assemble(
                 id: ex.id.clone(),
                 title: ex.title.clone(),
                 owner: ex.owner.clone(),
-                pool: p.pools[ex.pool].id.clone(),
+                pools: ex.pools.iter().map(|&i| p.pools[i].id.clone()).collect(),
                 priority: ex.priority,
                 status: Status::Unscheduled,
                 run: None,
@@ -370,6 +402,7 @@ fn assemble(
                 statistics: None,
                 looks: None,
                 detectable: None,
+                ramp: Vec::new(),
             };
             match run {
                 Some((start, end, share)) => {
@@ -383,14 +416,9 @@ fn assemble(
                         result_date: end + Duration::days(1),
                         share,
                         days: ((end - start).num_days() + 1) as u32,
-                        units_expected: units_between(
-                            p,
-                            ex.pool,
-                            start,
-                            end,
-                            share.fraction() * p.entering_fraction(e, ex.pool),
-                        ),
+                        units_expected: units_between(p, e, start, end, share),
                     });
+                    out.ramp = ramp_days(p, e, start);
                 }
                 None => {
                     out.reason = why[e].clone();
@@ -432,17 +460,27 @@ fn assemble(
                     let mut share_used = 0.0;
                     let mut running = 0;
                     for (e, pe) in experiments.iter().enumerate() {
-                        if p.experiments[e].pool != pi {
+                        if !p.experiments[e].uses(pi) {
                             continue;
                         }
                         if let Some(r) = &pe.run {
                             if r.start <= date && date <= r.end {
-                                // A re-shared running test at its old share before today.
+                                // A re-shared running test at its old share
+                                // before today; a ramp at its steps' shares.
+                                let ramped = pe.share_on(date).unwrap_or(r.share);
                                 let share = request
                                     .fixed
                                     .iter()
                                     .find(|f| f.experiment == e)
-                                    .map_or(r.share, |f| f.share_on(date, today));
+                                    .map_or(ramped, |f| {
+                                        if f.share != f.share_before && date >= today {
+                                            f.share
+                                        } else if pe.full_from().is_some_and(|d| date < d) {
+                                            ramped
+                                        } else {
+                                            f.share_on(date, today)
+                                        }
+                                    });
                                 share_used += share.fraction();
                                 running += 1;
                             }

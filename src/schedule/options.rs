@@ -52,6 +52,9 @@ pub(crate) struct Instance<'a> {
     pub days: usize,
     /// Forecast of each pool over the window.
     pub series: Vec<Series>,
+    /// The units entering each test per day at the whole of each of its
+    /// pools: its pools' forecasts summed (see `forecast::entering`).
+    pub test_series: Vec<Series>,
     /// Share of each pool held by fixed runs, per day.
     pub base_share: Vec<Vec<i64>>,
     /// Number of fixed runs on each pool, per day.
@@ -109,6 +112,18 @@ impl<'a> Instance<'a> {
             .iter()
             .map(|p| Series::new(p, w.start, w.end))
             .collect();
+        let test_series: Vec<Series> = portfolio
+            .experiments
+            .iter()
+            .map(|ex| {
+                Series::summed(ex.pools.iter().map(|&pool| {
+                    (
+                        &series[pool],
+                        crate::forecast::entering(ex, &portfolio.pools[pool]),
+                    )
+                }))
+            })
+            .collect();
         let mut roles = vec![Role::Free; n];
         for ex in &request.excluded {
             if ex.experiment < n {
@@ -138,10 +153,21 @@ impl<'a> Instance<'a> {
                 end: e,
                 share: *share,
             };
-            let pool = portfolio.experiments[*experiment].pool;
+            let ex = &portfolio.experiments[*experiment];
             for d in s.offset().max(0)..=e.offset().min(days as i64 - 1) {
-                base_share[pool][d as usize] += micro(f.share_on(w.date(d), today_date));
-                base_count[pool][d as usize] += 1;
+                // A running test keeps its ramp: its step's share on the
+                // step's days, unless re-shared from today.
+                let date = w.date(d);
+                let held = if f.share != f.share_before && date >= today_date {
+                    f.share
+                } else {
+                    let into = (d - s.offset()).max(0) as u32;
+                    ex.share_on_day(into, f.share_on(date, today_date))
+                };
+                for &pool in &ex.pools {
+                    base_share[pool][d as usize] += micro(held);
+                    base_count[pool][d as usize] += 1;
+                }
             }
         }
         let mut preds = vec![Vec::new(); n];
@@ -162,6 +188,7 @@ impl<'a> Instance<'a> {
             portfolio,
             days,
             series,
+            test_series,
             base_share,
             base_count,
             roles,
@@ -184,40 +211,74 @@ impl<'a> Instance<'a> {
         inst
     }
 
-    /// Cuts each pool's days into segments and labels every option with
-    /// the segments it covers.
+    /// Cuts the days into segments (the same cuts for every pool, so an
+    /// option's segments are the same on each of its pools) and labels
+    /// every option with the segments it covers.
     fn segment(&mut self) {
         let p = self.portfolio;
-        let mut cuts: Vec<Vec<usize>> = vec![vec![0, self.today, self.days]; p.pools.len()];
+        let mut cuts: Vec<usize> = vec![0, self.today, self.days];
         for (e, opts) in self.options.iter().enumerate() {
-            let pool = p.experiments[e].pool;
+            let ex = &p.experiments[e];
             for o in opts {
-                cuts[pool].push(o.start);
-                cuts[pool].push(o.end + 1);
+                cuts.push(o.start);
+                cuts.push(o.end + 1);
+                let mut d = o.start;
+                for step in &ex.ramp {
+                    d += step.days as usize;
+                    cuts.push(d);
+                }
             }
         }
         for (e, role) in self.roles.iter().enumerate() {
             if let Role::Fixed { start, end, .. } = role {
-                let pool = p.experiments[e].pool;
-                for c in [*start, *end + 1] {
-                    if let Some(i) = c.index(self.days).filter(|&i| i > 0) {
-                        cuts[pool].push(i);
+                let mut d = start.offset();
+                let mut at = vec![d, end.offset() + 1];
+                for step in &p.experiments[e].ramp {
+                    d += i64::from(step.days);
+                    at.push(d);
+                }
+                for c in at {
+                    if let Some(i) = Day::new(c).index(self.days).filter(|&i| i > 0) {
+                        cuts.push(i);
                     }
                 }
             }
         }
-        for c in &mut cuts {
-            c.sort_unstable();
-            c.dedup();
-        }
-        for (e, opts) in self.options.iter_mut().enumerate() {
-            let c = &cuts[p.experiments[e].pool];
+        cuts.sort_unstable();
+        cuts.dedup();
+        for opts in self.options.iter_mut() {
             for o in opts {
-                o.seg_lo = c.partition_point(|&b| b < o.start);
-                o.seg_hi = c.partition_point(|&b| b <= o.end) - 1;
+                o.seg_lo = cuts.partition_point(|&b| b < o.start);
+                o.seg_hi = cuts.partition_point(|&b| b <= o.end) - 1;
             }
         }
-        self.segments = cuts;
+        self.segments = vec![cuts; p.pools.len()];
+    }
+
+    /// The share test `e` holds on `day` with option `o` (a ramp step's
+    /// share on the ramp's days, the option's after them); zero outside
+    /// its run.
+    pub fn share_at(&self, e: usize, o: &Opt, day: usize) -> Share {
+        if day < o.start || day > o.end {
+            return Share::ZERO;
+        }
+        self.portfolio.experiments[e].share_on_day((day - o.start) as u32, o.share)
+    }
+
+    /// The test's phases with option `o`: (first day, last day, share) of
+    /// each ramp step, then of its planned share.
+    pub fn phases(&self, e: usize, o: &Opt) -> Vec<(usize, usize, Share)> {
+        let mut out = Vec::new();
+        let mut d = o.start;
+        for step in &self.portfolio.experiments[e].ramp {
+            let last = (d + step.days as usize - 1).min(o.end);
+            out.push((d, last, step.share));
+            d = last + 1;
+        }
+        if d <= o.end {
+            out.push((d, o.end, o.share));
+        }
+        out
     }
 
     /// The segment of `pool` holding `day`.
@@ -253,10 +314,14 @@ impl<'a> Instance<'a> {
         lo
     }
 
-    /// Whether a test of `pool` may start on `day`: on the start grid and
-    /// not in a `no_starts` blackout.
-    pub fn may_start(&self, day: usize, pool: usize) -> bool {
-        self.on_grid(day) && !self.no_start(day, pool)
+    /// Whether test `e` may start on `day`: on the start grid and not in a
+    /// `no_starts` blackout of any of its pools.
+    pub fn may_start(&self, day: usize, e: usize) -> bool {
+        self.on_grid(day)
+            && !self.portfolio.experiments[e]
+                .pools
+                .iter()
+                .any(|&pool| self.no_start(day, pool))
     }
 
     /// The last day index a run of test `e` may end on: its deadline or
@@ -269,15 +334,28 @@ impl<'a> Instance<'a> {
             .min(self.days as i64 - 1)
     }
 
-    /// Prefix counts of the days of `pool` a `no_running` blackout covers:
-    /// entry `d` counts the days before `d`, so a run from `s` to `t`
-    /// crosses one when entries `t + 1` and `s` differ.
-    fn no_running_before(&self, pool: usize) -> Vec<usize> {
+    /// Prefix counts of the days a `no_running` blackout of any of test
+    /// `e`'s pools covers: entry `d` counts the days before `d`, so a run
+    /// from `s` to `t` crosses one when entries `t + 1` and `s` differ.
+    fn no_running_before(&self, e: usize) -> Vec<usize> {
+        let mut blocked = vec![false; self.days];
+        for &pool in &self.portfolio.experiments[e].pools {
+            for (b, x) in blocked.iter_mut().zip(self.no_running_days(pool)) {
+                *b |= x;
+            }
+        }
         let mut before = vec![0usize; self.days + 1];
-        for (d, blocked) in self.no_running_days(pool).into_iter().enumerate() {
+        for (d, blocked) in blocked.into_iter().enumerate() {
             before[d + 1] = before[d] + usize::from(blocked);
         }
         before
+    }
+
+    /// The last day of test `e`'s run from `start` at `share`, from its
+    /// summed forecast and its ramp (the one place an option's end is
+    /// worked out).
+    pub fn run_end(&self, e: usize, start: usize, share: Share) -> Option<usize> {
+        self.test_series[e].test_end(&self.portfolio.experiments[e], start, share.fraction())
     }
 
     /// The earliest run of test `e` alone (fixed runs and every other test
@@ -286,28 +364,18 @@ impl<'a> Instance<'a> {
     /// end and crosses no `no_running` day. The scan stops at the first
     /// allowed start whose run ends too late; the flags say what it met.
     pub fn earliest_solo(&self, e: usize, share: Share, first: usize) -> Solo {
-        let ex = &self.portfolio.experiments[e];
-        let pool = ex.pool;
         let last = self.last_end(e);
-        let before = self.no_running_before(pool);
-        let need = ex.need.total as f64;
-        let entering = self.portfolio.entering_fraction(e, pool);
+        let before = self.no_running_before(e);
         let mut solo = Solo::default();
         for start in first..self.days {
             if start as i64 > last {
                 break;
             }
-            if !self.may_start(start, pool) {
+            if !self.may_start(start, e) {
                 continue;
             }
             solo.any_start = true;
-            match self.series[pool].run_end(
-                start,
-                share.fraction() * entering,
-                need,
-                ex.min_days,
-                ex.whole_weeks,
-            ) {
+            match self.run_end(e, start, share) {
                 Some(end) if end as i64 <= last => {
                     if before[end + 1] == before[start] {
                         solo.run = Some((start, end));
@@ -355,47 +423,45 @@ impl<'a> Instance<'a> {
             .collect()
     }
 
-    /// Share levels test `e` may take, ascending: up to its maximum and,
-    /// on a split pool, the pool's capacity beside its holdout.
+    /// Share levels test `e` may take, ascending: up to its `max_share`
+    /// and, on a split pool, the pool's capacity beside its holdout; none
+    /// below its ramp's largest step.
     pub fn shares(&self, e: usize) -> Vec<Share> {
         let ex = &self.portfolio.experiments[e];
-        let max = ex.max_share.min(self.portfolio.pools[ex.pool].capacity());
-        self.portfolio.share_levels.up_to(max).collect()
+        let floor = ex.ramp.iter().map(|s| s.share).max().unwrap_or(Share::ZERO);
+        let max = ex
+            .pools
+            .iter()
+            .map(|&k| self.portfolio.pools[k].capacity())
+            .fold(ex.max_share, Share::min);
+        self.portfolio
+            .share_levels
+            .up_to(max)
+            .filter(|&s| s >= floor)
+            .collect()
     }
 
     fn enumerate(&self, e: usize) -> Vec<Opt> {
         let p = self.portfolio;
         let ex = &p.experiments[e];
-        let pool = ex.pool;
         let lo = self.lo_start[e];
         if lo >= self.days as i64 {
             return Vec::new();
         }
         let deadline = self.last_end(e);
-        let blocked_before = self.no_running_before(pool);
+        let blocked_before = self.no_running_before(e);
         let shares = self.shares(e);
-        let split = p.pools[pool].sharing == Sharing::Split;
-        let cap = p.pools[pool].max_concurrent;
-        let capacity = room(&p.pools[pool]);
-        let need = ex.need.total as f64;
-        let entering = p.entering_fraction(e, pool);
         let mut out = Vec::new();
         for start in lo.max(0) as usize..self.days {
             let blocked = blocked_before[start + 1] > blocked_before[start];
-            if !self.may_start(start, pool) || blocked {
+            if !self.may_start(start, e) || blocked {
                 continue;
             }
             let mut last_end = usize::MAX;
             let mut pushed_last = false;
             // Largest share first: ends only move later as the share drops.
             for &share in shares.iter().rev() {
-                let Some(end) = self.series[pool].run_end(
-                    start,
-                    share.fraction() * entering,
-                    need,
-                    ex.min_days,
-                    ex.whole_weeks,
-                ) else {
+                let Some(end) = self.run_end(e, start, share) else {
                     break;
                 };
                 if end as i64 > deadline {
@@ -410,9 +476,14 @@ impl<'a> Instance<'a> {
                 if blocked_before[end + 1] - blocked_before[start] > 0 {
                     continue;
                 }
-                let fits_fixed = (start..=end).all(|d| {
-                    self.base_count[pool][d] < cap
-                        && (!split || self.base_share[pool][d] + micro(share) <= capacity)
+                let fits_fixed = ex.pools.iter().all(|&pool| {
+                    let def = &p.pools[pool];
+                    let split = def.sharing == Sharing::Split;
+                    (start..=end).all(|d| {
+                        let s = ex.share_on_day((d - start) as u32, share);
+                        self.base_count[pool][d] < def.max_concurrent
+                            && (!split || self.base_share[pool][d] + micro(s) <= room(def))
+                    })
                 });
                 if !fits_fixed {
                     continue;

@@ -1,8 +1,9 @@
 //! Why each test left out of the calendar is out, in words a planner can
 //! act on: a missing predecessor, a run longer than the window, a deadline
 //! that cannot be met, running tests that hold its pool, blackouts in the
-//! way, a `not_with` partner, or a pool full of tests the plan preferred
-//! (named, with their priorities). Each names the real cause, and
+//! way, a `not_with` partner (in time or on traffic), or a pool full of
+//! tests the plan preferred (named, with their priorities; for a test on
+//! several pools, the first of its pools that is full). Each names the real cause, and
 //! suggests only changes that are not already at their limit (no larger
 //! share for a test at the largest level, no later deadline for a test
 //! without one).
@@ -37,16 +38,47 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
     let p = inst.portfolio;
     let ex = &p.experiments[e];
     let limit = p.window.end + Duration::days(3 * 366);
-    crate::forecast::run_end(
-        &p.pools[ex.pool],
-        start,
-        share.fraction() * p.entering_fraction(e, ex.pool),
-        ex.need.total as f64,
-        ex.min_days,
-        ex.whole_weeks,
-        limit,
-    )
-    .map(|end| (end - start).num_days() + 1)
+    let parts: Vec<(crate::forecast::Series, f64)> = ex
+        .pools
+        .iter()
+        .map(|&pool| {
+            let def = &p.pools[pool];
+            (
+                crate::forecast::Series::new(def, start, limit),
+                crate::forecast::entering(ex, def),
+            )
+        })
+        .collect();
+    let series = crate::forecast::Series::summed(parts.iter().map(|(s, f)| (s, *f)));
+    series
+        .test_end(ex, 0, share.fraction())
+        .map(|end| end as i64 + 1)
+}
+
+/// The pools of test `e` as a reason names them: "`home`", or
+/// "each of `home`, `search`".
+fn pools_named(inst: &Instance, e: usize) -> String {
+    let p = inst.portfolio;
+    let names: Vec<String> = p.experiments[e]
+        .pools
+        .iter()
+        .map(|&i| format!("`{}`", p.pools[i].id))
+        .collect();
+    if names.len() == 1 {
+        names[0].clone()
+    } else {
+        format!("each of {}", names.join(", "))
+    }
+}
+
+/// Whether `pool` cannot take test `e` on `day` at `share` beside the
+/// runs in `state`: its cap reached, or (split) its share used up.
+fn pool_full(inst: &Instance, state: &State, pool: usize, day: usize, share: Share) -> bool {
+    let def = &inst.portfolio.pools[pool];
+    state.count_on(inst, pool, day) >= def.max_concurrent
+        || (def.sharing == crate::portfolio::Sharing::Split
+            && state.share_on(inst, pool, day) + super::state::micro(share)
+                > super::state::room(def))
 }
 
 /// What limits the units test `e` collects beside its share, as
@@ -63,7 +95,12 @@ fn limits(inst: &Instance, e: usize) -> String {
             crate::words::percent(ex.eligible)
         ));
     }
-    let holdout = p.pools[ex.pool].holdout;
+    // On several pools, the largest holdout among them.
+    let holdout = ex
+        .pools
+        .iter()
+        .map(|&k| p.pools[k].holdout)
+        .fold(0.0, f64::max);
     if holdout > 0.0 {
         notes.push(format!("{} held out", crate::words::percent(holdout)));
     }
@@ -74,17 +111,16 @@ fn limits(inst: &Instance, e: usize) -> String {
     }
 }
 
-/// `75% of `product``, with its [`limits`].
+/// `75% of `product``, or `75% of each of `home`, `search``, with its
+/// [`limits`].
 fn share_of(inst: &Instance, e: usize, share: Share) -> String {
-    let pool = &inst.portfolio.pools[inst.portfolio.experiments[e].pool];
-    format!("{share} of `{}`{}", pool.id, limits(inst, e))
+    format!("{share} of {}{}", pools_named(inst, e), limits(inst, e))
 }
 
 fn why(inst: &Instance, state: &State, e: usize) -> String {
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
-    let pool = &p.pools[ex.pool];
     // Predecessors.
     for pre in &ex.after {
         let pid = &p.experiments[pre.experiment].id;
@@ -158,7 +194,8 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     // It fits alone: find what blocks each option now.
     let mut partners: Vec<usize> = Vec::new();
     let mut late_preds: Vec<usize> = Vec::new();
-    let mut pool_blocked = false;
+    let mut traffic: Vec<usize> = Vec::new();
+    let mut blocking: Option<usize> = None;
     let (mut span_lo, mut span_hi) = (usize::MAX, 0usize);
     for o in &inst.options[e] {
         span_lo = span_lo.min(o.start);
@@ -177,6 +214,11 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 partners.push(b);
             }
         }
+        for &b in &ex.apart_traffic {
+            if !state.apart_fits(inst, e, o, b) && !traffic.contains(&b) {
+                traffic.push(b);
+            }
+        }
         for &(pre, gap) in &inst.preds[e] {
             if let Some(po) = state.opt(inst, pre) {
                 if po.end + 1 + gap as usize > o.start && !late_preds.contains(&pre) {
@@ -184,28 +226,26 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 }
             }
         }
-        let cap = pool.max_concurrent;
-        let split = pool.sharing == crate::portfolio::Sharing::Split;
-        let full = (o.start..=o.end).any(|d| {
-            state.count_on(inst, ex.pool, d) >= cap
-                || (split
-                    && state.share_on(inst, ex.pool, d) + super::state::micro(o.share)
-                        > super::state::room(pool))
-        });
-        pool_blocked |= full;
+        // The first of its pools that cannot take this run.
+        if blocking.is_none() {
+            blocking = ex.pools.iter().copied().find(|&pool| {
+                (o.start..=o.end).any(|d| pool_full(inst, state, pool, d, inst.share_at(e, o, d)))
+            });
+        }
     }
-    if pool_blocked {
+    if let Some(bp) = blocking {
         // The days, among those its runs could use, on which the pool
         // cannot take even its smallest share, and the tests holding them.
-        let cap = pool.max_concurrent;
-        let split = pool.sharing == crate::portfolio::Sharing::Split;
-        let least = super::state::micro(shares[0]);
+        let pool = &p.pools[bp];
+        let least = ex
+            .ramp
+            .iter()
+            .map(|s| s.share)
+            .min()
+            .unwrap_or(shares[0])
+            .min(shares[0]);
         let full: Vec<usize> = (span_lo..=span_hi)
-            .filter(|&d| {
-                state.count_on(inst, ex.pool, d) >= cap
-                    || (split
-                        && state.share_on(inst, ex.pool, d) + least > super::state::room(pool))
-            })
+            .filter(|&d| pool_full(inst, state, bp, d, least))
             .collect();
         let (from_d, to_d) = match (full.first(), full.last()) {
             (Some(&a), Some(&b)) => (a, b),
@@ -222,7 +262,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         };
         let days: &[usize] = if full.is_empty() { &[] } else { &full };
         let mut holders: Vec<usize> = (0..inst.roles.len())
-            .filter(|&b| p.experiments[b].pool == ex.pool && b != e)
+            .filter(|&b| p.experiments[b].uses(bp) && b != e)
             .filter(|&b| {
                 if days.is_empty() {
                     (span_lo..=span_hi).any(|d| runs_on(b, d))
@@ -279,9 +319,9 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         }
         return text;
     }
-    if !partners.is_empty() {
-        let ps: Vec<String> = partners
-            .iter()
+    // "`x` (2027-01-04 to 2027-01-17)" for each test of `list`.
+    let with_spans = |list: &[usize]| -> String {
+        list.iter()
             .map(|&b| {
                 let (s, t) = match (&inst.roles[b], state.opt(inst, b)) {
                     (Role::Fixed { start, end, .. }, _) => (w.date(*start), w.date(*end)),
@@ -290,10 +330,19 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 };
                 format!("`{}` ({s} to {t})", p.experiments[b].id)
             })
-            .collect();
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    if !partners.is_empty() {
         return format!(
             "fits alone, but must not run alongside {}, which the plan keeps",
-            ps.join(", ")
+            with_spans(&partners)
+        );
+    }
+    if !traffic.is_empty() {
+        return format!(
+            "fits alone, but is kept apart on traffic from {}, which the plan keeps, and no share level fits beside it",
+            with_spans(&traffic)
         );
     }
     if !late_preds.is_empty() {
@@ -325,12 +374,12 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
-    let pool = &p.pools[ex.pool];
+    let on = pools_named(inst, e);
     let solo = inst.earliest_solo(e, top, first);
     if let Some((s, _)) = solo.run {
         // It fits alone: the running tests hold the pool.
         let holders: Vec<usize> = (0..inst.roles.len())
-            .filter(|&b| p.experiments[b].pool == ex.pool)
+            .filter(|&b| p.experiments[b].pools.iter().any(|&q| ex.uses(q)))
             .filter(|&b| match &inst.roles[b] {
                 Role::Fixed { end, .. } => Day::from(s) <= *end,
                 _ => false,
@@ -354,14 +403,14 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
         };
         return if names.is_empty() {
             format!(
-                "the tests already running on `{}` leave no room for it in time",
-                pool.id
+                "the tests already running on {} leave no room for it in time",
+                on
             )
         } else {
             format!(
-                "the running tests {} hold `{}` {when}, leaving no room for it in time; alone it could run from {}",
+                "the running tests {} hold {} {when}, leaving no room for it in time; alone it could run from {}",
                 names.join(", "),
-                pool.id,
+                on,
                 w.date(s as i64)
             )
         };
@@ -369,7 +418,9 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
     let spans = |kind: BlackoutKind| -> Vec<String> {
         p.blackouts
             .iter()
-            .filter(|b| b.kind == kind && (b.pools.is_empty() || b.pools.contains(&ex.pool)))
+            .filter(|b| {
+                b.kind == kind && (b.pools.is_empty() || b.pools.iter().any(|&q| ex.uses(q)))
+            })
             .map(|b| {
                 if b.note.is_empty() {
                     format!("{}..{}", b.from, b.to)

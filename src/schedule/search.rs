@@ -204,13 +204,19 @@ pub(crate) fn solve_component(
 }
 
 /// Components with more options than this get their bound from one LP
-/// per pool, with the links between pools (`not_with`, `after`) dropped:
+/// per pool, with the links between pools (`not_with`, `after`, the other
+/// pools of a test on several) dropped:
 /// a relaxation of the full LP, so a valid bound no lower than its value,
 /// and several times faster on large portfolios.
 const LP_SPLIT_OPTIONS: usize = 8000;
 
 /// The LP relaxation of a component solved pool by pool, links between
-/// pools dropped; `None` if any pool's LP fails.
+/// pools dropped; `None` if any pool's LP fails. Each pool's LP holds
+/// every test that runs on it, a test on several pools with its value
+/// split evenly among them: any calendar, cut down to each pool's tests,
+/// is feasible there and earns its whole value summed over the pools, so
+/// the sum of the LPs' values is still a valid bound. The LP solution of
+/// a test on several pools is the mean of its pools' solutions.
 fn relax_by_pool(
     inst: &Instance,
     exps: &[usize],
@@ -218,7 +224,10 @@ fn relax_by_pool(
     deadline: Deadline,
 ) -> Option<lp::Solved> {
     let p = inst.portfolio;
-    let mut pools: Vec<usize> = exps.iter().map(|&e| p.experiments[e].pool).collect();
+    let mut pools: Vec<usize> = exps
+        .iter()
+        .flat_map(|&e| p.experiments[e].pools.iter().copied())
+        .collect();
     pools.sort_unstable();
     pools.dedup();
     let mut x: Vec<Vec<f64>> = exps
@@ -228,16 +237,20 @@ fn relax_by_pool(
     let mut value = 0.0;
     for pool in pools {
         let members: Vec<usize> = (0..exps.len())
-            .filter(|&i| p.experiments[exps[i]].pool == pool)
+            .filter(|&i| p.experiments[exps[i]].uses(pool))
             .collect();
         let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
-        let sub = Sub::all(inst, &sub_exps);
+        let mut sub = Sub::all(inst, &sub_exps);
+        let parts = |i: usize| p.experiments[exps[i]].pools.len() as f64;
+        sub.weight = members.iter().map(|&i| 1.0 / parts(i)).collect();
         let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None);
         deadline.after_lp(&solved);
         let solved = solved.ok()?;
         value += solved.value;
         for (k, &i) in members.iter().enumerate() {
-            x[i] = solved.x[k].clone();
+            for (acc, v) in x[i].iter_mut().zip(&solved.x[k]) {
+                *acc += v / parts(i);
+            }
         }
     }
     Some(lp::Solved {
@@ -564,17 +577,24 @@ fn fill(inst: &Instance, exps: &[usize], state: &mut State) {
     }
 }
 
-/// Whether scheduled `a` and an option span of `b` compete: same pool and
-/// overlapping days, or a `not_with` pair overlapping.
+/// Whether test `a` over span `a_span` and scheduled test `b` over
+/// `b_span` compete: a shared pool and overlapping days, or a `not_with`
+/// pair overlapping.
 fn competes(
     inst: &Instance,
-    a_pool: usize,
-    a: (usize, usize),
+    a: usize,
+    a_span: (usize, usize),
     b: usize,
     b_span: (usize, usize),
 ) -> bool {
-    let overlap = a.0 <= b_span.1 && b_span.0 <= a.1;
-    overlap && inst.portfolio.experiments[b].pool == a_pool
+    let p = inst.portfolio;
+    let overlap = a_span.0 <= b_span.1 && b_span.0 <= a_span.1;
+    overlap
+        && (p.experiments[a]
+            .pools
+            .iter()
+            .any(|&pool| p.experiments[b].uses(pool))
+            || p.experiments[a].not_with.contains(&b))
 }
 
 /// The large neighbourhood search on the component's tests in `state`.
@@ -610,15 +630,10 @@ fn lns(
             let top = 1 + rng.below(n);
             let k = rng.below(top);
             let o = inst.options[u][k];
-            let u_pool = p.experiments[u].pool;
             for &e in exps {
                 if let Some(eo) = state.opt(inst, e) {
                     let span = (eo.start, eo.end);
-                    let clash = competes(inst, u_pool, (o.start, o.end), e, span)
-                        || (p.experiments[u].not_with.contains(&e)
-                            && eo.start <= o.end
-                            && o.start <= eo.end);
-                    if clash {
+                    if competes(inst, u, (o.start, o.end), e, span) {
                         state.remove_with_successors(inst, e, &mut removed);
                     }
                 }
@@ -638,11 +653,18 @@ fn lns(
         } else if mode == 2 {
             // A pool over a span of weeks.
             let e0 = exps[rng.below(exps.len())];
-            let pool = p.experiments[e0].pool;
+            // A test on several pools picks one of them (one pool draws
+            // nothing, so single-pool portfolios search as before).
+            let ps = &p.experiments[e0].pools;
+            let pool = if ps.len() == 1 {
+                ps[0]
+            } else {
+                ps[rng.below(ps.len())]
+            };
             let a = rng.below(inst.days.max(1));
             let b = a + 7 * (1 + rng.below(6));
             for &e in exps {
-                if p.experiments[e].pool != pool {
+                if !p.experiments[e].uses(pool) {
                     continue;
                 }
                 if let Some(eo) = state.opt(inst, e) {
@@ -666,17 +688,25 @@ fn lns(
                 state.remove_with_successors(inst, e, &mut removed);
             }
         }
-        let mut touched: Vec<usize> = removed.iter().map(|&e| p.experiments[e].pool).collect();
+        let mut touched: Vec<usize> = removed
+            .iter()
+            .flat_map(|&e| p.experiments[e].pools.iter().copied())
+            .collect();
         if let Some((u, k)) = seed_move {
             state.add(inst, u, k);
-            touched.push(p.experiments[u].pool);
+            touched.extend(p.experiments[u].pools.iter().copied());
         }
         touched.sort_unstable();
         touched.dedup();
         let local: Vec<usize> = exps
             .iter()
             .copied()
-            .filter(|&e| touched.binary_search(&p.experiments[e].pool).is_ok())
+            .filter(|&e| {
+                p.experiments[e]
+                    .pools
+                    .iter()
+                    .any(|pool| touched.binary_search(pool).is_ok())
+            })
             .collect();
         recreate(inst, &local, state, rng, &eff);
         // Only this component changes, so the global value compares alike.

@@ -85,19 +85,24 @@ impl State {
     pub fn fits(&self, inst: &Instance, e: usize, o: &Opt) -> bool {
         let p = inst.portfolio;
         let ex = &p.experiments[e];
-        let pool = &p.pools[ex.pool];
-        let cap = pool.max_concurrent;
-        let counts = &self.count[ex.pool][o.seg_lo..=o.seg_hi];
-        if counts.iter().any(|&c| c >= cap) {
-            return false;
-        }
-        if pool.sharing == Sharing::Split {
-            let s = micro(o.share);
-            if self.share[ex.pool][o.seg_lo..=o.seg_hi]
-                .iter()
-                .any(|&u| u + s > room(pool))
-            {
+        let cuts = &inst.segments[0];
+        for &pool in &ex.pools {
+            let def = &p.pools[pool];
+            let counts = &self.count[pool][o.seg_lo..=o.seg_hi];
+            if counts.iter().any(|&c| c >= def.max_concurrent) {
                 return false;
+            }
+            if def.sharing == Sharing::Split {
+                let cap = room(def);
+                let used = &self.share[pool][o.seg_lo..=o.seg_hi];
+                let firsts = &cuts[o.seg_lo..=o.seg_hi];
+                if used
+                    .iter()
+                    .zip(firsts)
+                    .any(|(&u, &day)| u + micro(inst.share_at(e, o, day)) > cap)
+                {
+                    return false;
+                }
             }
         }
         for &(pre, gap) in &inst.preds[e] {
@@ -120,21 +125,72 @@ impl State {
                 }
             }
         }
+        for &other in &ex.apart_traffic {
+            if !self.apart_fits(inst, e, o, other) {
+                return false;
+            }
+        }
         true
+    }
+
+    /// Whether option `o` of `e` and the run of `other` (fixed or chosen)
+    /// add up to at most the whole of every pool they share on every day
+    /// both run.
+    pub fn apart_fits(&self, inst: &Instance, e: usize, o: &Opt, other: usize) -> bool {
+        let p = inst.portfolio;
+        let (a, b) = (&p.experiments[e], &p.experiments[other]);
+        if !a.pools.iter().any(|&pool| b.uses(pool)) {
+            return true;
+        }
+        let Some((s, t)) = self.span(inst, other) else {
+            return true;
+        };
+        let lo = (o.start as i64).max(s).max(0) as usize;
+        let hi = (o.end as i64).min(t);
+        if hi < lo as i64 {
+            return true;
+        }
+        (lo..=hi as usize).all(|d| {
+            let mine = micro(inst.share_at(e, o, d));
+            let theirs = match &inst.roles[other] {
+                Role::Fixed { start, share, .. } => {
+                    micro(b.share_on_day((d as i64 - start.offset()).max(0) as u32, *share))
+                }
+                _ => self
+                    .opt(inst, other)
+                    .map_or(0, |oo| micro(inst.share_at(other, oo, d))),
+            };
+            mine + theirs <= WHOLE
+        })
     }
 
     /// Schedules free test `e` with its option `k` (the caller checked `fits`).
     pub fn add(&mut self, inst: &Instance, e: usize, k: usize) {
         debug_assert!(self.choice[e].is_none());
         let o = inst.options[e][k];
-        let pool = inst.portfolio.experiments[e].pool;
-        let s = micro(o.share);
-        for g in o.seg_lo..=o.seg_hi {
-            self.share[pool][g] += s;
-            self.count[pool][g] += 1;
-        }
+        self.occupy(inst, e, &o, 1);
         self.choice[e] = Some(k);
         self.value += o.value;
+    }
+
+    /// Adds (`sign` 1) or takes away (-1) option `o` of `e` on each of its
+    /// pools.
+    fn occupy(&mut self, inst: &Instance, e: usize, o: &Opt, sign: i64) {
+        let cuts = &inst.segments[0];
+        for &pool in &inst.portfolio.experiments[e].pools {
+            let firsts = &cuts[o.seg_lo..=o.seg_hi];
+            let shares = self.share[pool][o.seg_lo..=o.seg_hi].iter_mut();
+            for (used, &day) in shares.zip(firsts) {
+                *used += sign * micro(inst.share_at(e, o, day));
+            }
+            for count in &mut self.count[pool][o.seg_lo..=o.seg_hi] {
+                if sign > 0 {
+                    *count += 1;
+                } else {
+                    *count -= 1;
+                }
+            }
+        }
     }
 
     /// Unschedules free test `e`.
@@ -143,12 +199,7 @@ impl State {
             return;
         };
         let o = inst.options[e][k];
-        let pool = inst.portfolio.experiments[e].pool;
-        let s = micro(o.share);
-        for g in o.seg_lo..=o.seg_hi {
-            self.share[pool][g] -= s;
-            self.count[pool][g] -= 1;
-        }
+        self.occupy(inst, e, &o, -1);
         self.value -= o.value;
     }
 

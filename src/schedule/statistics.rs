@@ -114,13 +114,36 @@ pub fn detectable_effect(ex: &Experiment, units: f64) -> Option<f64> {
     sizing::minimum_detectable_effect(d, per_control).ok()
 }
 
-/// The day after the run from `run.start` at its share has collected
-/// `need` units under the plan's run rule, never after its result date.
-/// `entering` is the fraction of the share's units that enter the test
-/// ([`Portfolio::entering_fraction`]).
-fn read_on(series: &Series, ex: &Experiment, run: &Run, entering: f64, need: f64) -> NaiveDate {
-    let rate = run.share.fraction() * entering;
-    match series.run_end(0, rate, need, ex.min_days, ex.whole_weeks) {
+/// Test `e`'s units from `from` to `to` at a whole share: its pools'
+/// forecasts summed, each through its entering fraction.
+fn test_series(p: &Portfolio, e: usize, from: NaiveDate, to: NaiveDate) -> Series {
+    let parts: Vec<(Series, f64)> = p.experiments[e]
+        .pools
+        .iter()
+        .map(|&k| {
+            (
+                Series::new(&p.pools[k], from, to),
+                p.entering_fraction(e, k),
+            )
+        })
+        .collect();
+    Series::summed(parts.iter().map(|(s, f)| (s, *f)))
+}
+
+/// The day after the run from `run.start` at its share (after its ramp)
+/// has collected `need` units under the plan's run rule, never after its
+/// result date; `series` is [`test_series`] from the run's start.
+fn read_on(series: &Series, ex: &Experiment, run: &Run, need: f64) -> NaiveDate {
+    let end = series.ramped_end(
+        0,
+        &ex.ramp_steps(),
+        ex.ramp_counts,
+        run.share.fraction(),
+        need,
+        ex.min_days,
+        ex.whole_weeks,
+    );
+    match end {
         Some(i) => (run.start + Duration::days(i as i64 + 1)).min(run.result_date),
         None => run.result_date,
     }
@@ -130,8 +153,7 @@ fn read_on(series: &Series, ex: &Experiment, run: &Run, entering: f64, need: f64
 pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
     let ex = &p.experiments[e];
     let looks = ex.looks.as_ref()?;
-    let entering = p.entering_fraction(e, ex.pool);
-    let series = Series::new(&p.pools[ex.pool], run.start, run.end);
+    let series = test_series(p, e, run.start, run.end);
     let max = ex.need.total as f64;
     let count = looks.design.information.len();
     let dates: Vec<LookDate> = looks
@@ -146,18 +168,12 @@ pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
             date: if k + 1 == count {
                 run.result_date
             } else {
-                read_on(&series, ex, run, entering, t * max)
+                read_on(&series, ex, run, t * max)
             },
             stop_probability: stop,
         })
         .collect();
-    let expected = read_on(
-        &series,
-        ex,
-        run,
-        entering,
-        looks.design.expected_fraction_h1 * max,
-    );
+    let expected = read_on(&series, ex, run, looks.design.expected_fraction_h1 * max);
     Some(LookDates {
         earliest: dates.first().map_or(run.result_date, |l| l.date),
         expected,
@@ -166,7 +182,7 @@ pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
     })
 }
 
-/// What experiment `e` could detect with its pool's traffic from `from`
+/// What experiment `e` could detect with its pools' traffic from `from`
 /// to its deadline (or the window's end) at `share`, in the longest
 /// stretch of those days that no `no_running` blackout of its pool
 /// interrupts; `None` when no day is left.
@@ -176,14 +192,14 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
     if from > to {
         return None;
     }
-    let series = Series::new(&p.pools[ex.pool], from, to);
+    let series = test_series(p, e, from, to);
     // A run is one contiguous span and never crosses a no-running
     // blackout: the longest stretch between them, by units.
     let blocked = |i: usize| {
         let date = from + Duration::days(i as i64);
-        p.blackouts
-            .iter()
-            .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(date, ex.pool))
+        p.blackouts.iter().any(|b| {
+            b.kind == BlackoutKind::NoRunning && ex.pools.iter().any(|&k| b.covers(date, k))
+        })
     };
     let mut best: Option<(usize, usize, f64)> = None;
     let mut i = 0;
@@ -207,7 +223,7 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
         from + Duration::days(first as i64),
         from + Duration::days(last as i64),
     );
-    let units = share.fraction() * p.entering_fraction(e, ex.pool) * total;
+    let units = share.fraction() * total;
     let effect = (units > 0.0)
         .then(|| detectable_effect(ex, units))
         .flatten();

@@ -14,7 +14,7 @@
 use super::search::SplitMix64;
 use crate::portfolio::{
     after_order, Adjustment, Blackout, BlackoutKind, Change, Defaults, Experiment, Forecast,
-    Planning, Pool, Portfolio, Prerequisite, Sharing, Window,
+    Planning, Pool, Portfolio, Prerequisite, RampStep, Sharing, Window,
 };
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{Design, Effect, Metric, SampleSize};
@@ -144,7 +144,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         let max_share = Share::from_fraction([0.5, 0.75, 1.0, 1.0][rng.below(4)]);
         let mut after = Vec::new();
         if i > 0 && rng.unit() < 0.1 {
-            let same: Vec<usize> = (0..i).filter(|&j| experiments[j].pool == pool).collect();
+            let same: Vec<usize> = (0..i).filter(|&j| experiments[j].uses(pool)).collect();
             let pred = if !same.is_empty() && rng.unit() < 0.8 {
                 same[rng.below(same.len())]
             } else {
@@ -159,7 +159,9 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             id: format!("test-{i:03}"),
             title: format!("Synthetic test {i}"),
             owner: "synthetic".into(),
-            pool,
+            pools: vec![pool],
+            ramp: Vec::new(),
+            ramp_counts: false,
             design: Design::new(Metric::Rate { baseline: 0.05 }, Effect::Relative(0.05)),
             need: two_arm_need(total),
             sample_size_given: false,
@@ -175,14 +177,15 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
             whole_weeks: true,
             after,
             not_with: Vec::new(),
+            apart_traffic: Vec::new(),
         });
     }
     // not_with pairs, mostly within a pool.
     for i in 0..ntests {
         if rng.unit() < 0.05 {
-            let pool = experiments[i].pool;
+            let pool = experiments[i].pools[0];
             let same: Vec<usize> = (0..ntests)
-                .filter(|&j| j != i && experiments[j].pool == pool)
+                .filter(|&j| j != i && experiments[j].uses(pool))
                 .collect();
             let j = if !same.is_empty() && rng.unit() < 0.8 {
                 same[rng.below(same.len())]
@@ -231,6 +234,73 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
         experiments,
         blackouts,
     }
+}
+
+/// `portfolio` with the calendar keys of multi-pool programmes added,
+/// drawn from their own seeded stream so the base portfolio stays as it
+/// was: about one test in eight runs on one or two more pools (its need
+/// scaled by the extra traffic, so its run stays about as long), about
+/// one in six ramps up (one or two steps at the lowest share level, each
+/// two to four days, the ramp's units counted for half of them), and
+/// about one in twelve is kept apart on traffic from another test that
+/// shares a pool with it.
+pub fn with_calendar_keys(mut p: Portfolio, seed: u64) -> Portfolio {
+    let mut rng = SplitMix64::new(seed.wrapping_mul(0x2545_F491).wrapping_add(91));
+    let npools = p.pools.len();
+    let n = p.experiments.len();
+    let lowest = p.share_levels.lowest().unwrap_or(Share::WHOLE);
+    for i in 0..n {
+        if npools > 1 && rng.unit() < 0.125 {
+            let first = p.experiments[i].pools[0];
+            let extra = 1 + rng.below(2.min(npools - 1));
+            let mut pools = vec![first];
+            while pools.len() < 1 + extra {
+                let q = rng.below(npools);
+                if !pools.contains(&q) {
+                    pools.push(q);
+                }
+            }
+            let daily = |k: usize| p.pools[k].forecast.daily;
+            let scale = pools.iter().map(|&k| daily(k)).sum::<f64>() / daily(first).max(1.0);
+            let e = &mut p.experiments[i];
+            e.need = two_arm_need((e.need.total as f64 * scale).round() as u64);
+            e.pools = pools;
+        }
+        if rng.unit() < 1.0 / 6.0 {
+            let steps = 1 + rng.below(2);
+            let e = &mut p.experiments[i];
+            e.ramp = (0..steps)
+                .map(|_| RampStep {
+                    share: lowest,
+                    days: 2 + rng.below(3) as u32,
+                })
+                .collect();
+            e.ramp_counts = rng.unit() < 0.5;
+        }
+    }
+    for i in 0..n {
+        if rng.unit() < 1.0 / 12.0 {
+            let mine = p.experiments[i].pools.clone();
+            let partners: Vec<usize> = (0..n)
+                .filter(|&j| {
+                    j != i
+                        && !p.experiments[i].not_with.contains(&j)
+                        && p.experiments[j].pools.iter().any(|q| mine.contains(q))
+                })
+                .collect();
+            if partners.is_empty() {
+                continue;
+            }
+            let j = partners[rng.below(partners.len())];
+            p.experiments[i].apart_traffic.push(j);
+            p.experiments[j].apart_traffic.push(i);
+        }
+    }
+    for e in &mut p.experiments {
+        e.apart_traffic.sort_unstable();
+        e.apart_traffic.dedup();
+    }
+    p
 }
 
 /// Adds the keys of eligibility, holdouts, given sample sizes and

@@ -2,7 +2,8 @@
 //!
 //! It re-derives every rule from the portfolio, the request and the
 //! forecast, sharing no code with the planner beyond the validated model
-//! and [`units_on`]: it recomputes each run's end by its own day-by-day
+//! and [`units_on`] (a pool's forecast on a day); what enters a test from
+//! a pool and a split pool's room it works out itself. It recomputes each run's end by its own day-by-day
 //! loop, rebuilds every pool's daily occupancy from the listed runs, and
 //! recomputes the objective. The search never uses it; `schedule::plan`
 //! runs it once on the finished plan as a guard, the tests run it on every
@@ -27,17 +28,9 @@ fn own_end(
     share: f64,
     limit: NaiveDate,
 ) -> Option<NaiveDate> {
-    let (pool, need) = (ex.pool, ex.need.total as f64);
+    let need = ex.need.total as f64;
     let (min_days, whole_weeks) = (ex.min_days, ex.whole_weeks);
-    // What enters the test of the units under its share: the targeting's
-    // fraction, and on an overlap pool what its holdout leaves.
-    let the_pool = &portfolio.pools[pool];
-    let open = if the_pool.sharing == Sharing::Overlap {
-        1.0 - the_pool.holdout
-    } else {
-        1.0
-    };
-    let share = share * ex.eligible * open;
+    let ramp: i64 = ex.ramp.iter().map(|s| i64::from(s.days)).sum();
     let mut total = 0.0;
     let mut day = start;
     let mut n: i64 = 0;
@@ -45,9 +38,19 @@ fn own_end(
         if day > limit {
             return None;
         }
-        total += share * units_on(&portfolio.pools[pool], day);
+        // Every pool's units on the day, at the day's share; ramp days
+        // only when they count.
+        let on_ramp = n < ramp;
+        let today_share = ramp_share(ex, n).unwrap_or(share);
+        if !on_ramp || ex.ramp_counts {
+            for &pool in &ex.pools {
+                let def = &portfolio.pools[pool];
+                total += today_share * entering(ex, def) * units_on(def, day);
+            }
+        }
         n += 1;
-        if total >= need * (1.0 - 1e-9) {
+        // At least one day past the ramp at the planned share.
+        if n > ramp && total >= need * (1.0 - 1e-9) {
             break;
         }
         day += Duration::days(1);
@@ -58,6 +61,42 @@ fn own_end(
     }
     let end = start + Duration::days(days - 1);
     (end <= limit).then_some(end)
+}
+
+/// The most a split pool's shares may add up to on a day (the one place
+/// the verifier reads it): what its holdout leaves.
+fn split_capacity(pool: &crate::portfolio::Pool) -> f64 {
+    1.0 - pool.holdout
+}
+
+/// What enters a test of the units under its share of `pool`, worked out
+/// here apart from the planner: the targeting's fraction, and on an
+/// overlap pool what its holdout leaves.
+fn entering(ex: &Experiment, pool: &crate::portfolio::Pool) -> f64 {
+    let open = if pool.sharing == Sharing::Overlap {
+        1.0 - pool.holdout
+    } else {
+        1.0
+    };
+    ex.eligible * open
+}
+
+/// The share of a ramp step on the `n`-th day of a run (0 first), or
+/// `None` past the ramp.
+fn ramp_share(ex: &Experiment, n: i64) -> Option<f64> {
+    let mut until = 0i64;
+    for step in &ex.ramp {
+        until += i64::from(step.days);
+        if n < until {
+            return Some(step.share.fraction());
+        }
+    }
+    None
+}
+
+/// The share a run of `ex` from `start` at `share` holds on `day`.
+fn share_that_day(ex: &Experiment, start: NaiveDate, share: f64, day: NaiveDate) -> f64 {
+    ramp_share(ex, (day - start).num_days()).unwrap_or(share)
 }
 
 /// Checks `plan` against every rule; `Err` lists each violation found.
@@ -87,8 +126,12 @@ pub fn verify(
             bad.push(format!("entry {i} is `{}`, expected `{}`", pe.id, ex.id));
             continue;
         }
-        if pe.pool != p.pools[ex.pool].id {
-            bad.push(format!("`{}` is listed on pool `{}`", ex.id, pe.pool));
+        let ids: Vec<&str> = ex.pools.iter().map(|&k| p.pools[k].id.as_str()).collect();
+        if pe.pools != ids {
+            bad.push(format!(
+                "`{}` is listed on pools {:?}; it runs on {:?}",
+                ex.id, pe.pools, ids
+            ));
         }
         if pe.eligible != ex.eligible || pe.sample_size_given != ex.sample_size_given {
             bad.push(format!(
@@ -104,7 +147,21 @@ pub fn verify(
         }
         match pe.status {
             Status::Scheduled | Status::Running => match &pe.run {
-                Some(r) => runs[i] = Some((r.start, r.end, r.share.fraction())),
+                Some(r) => {
+                    runs[i] = Some((r.start, r.end, r.share.fraction()));
+                    let mut d = r.start;
+                    let mut steps = Vec::new();
+                    for step in &ex.ramp {
+                        let last = d + Duration::days(i64::from(step.days) - 1);
+                        steps.push((d, last, step.share));
+                        d = last + Duration::days(1);
+                    }
+                    let listed: Vec<(NaiveDate, NaiveDate, Share)> =
+                        pe.ramp.iter().map(|s| (s.start, s.end, s.share)).collect();
+                    if listed != steps {
+                        bad.push(format!("`{}` lists a ramp other than its own", ex.id));
+                    }
+                }
                 None => bad.push(format!(
                     "`{}` is scheduled without a start, end and share",
                     ex.id
@@ -208,16 +265,13 @@ pub fn verify(
             None => bad.push(format!("`{id}` cannot reach its units inside the window")),
         }
         for b in &p.blackouts {
-            let pool = ex.pool;
+            // A blackout of any of its pools applies to it.
+            let mine = b.pools.is_empty() || b.pools.iter().any(|q| ex.pools.contains(q));
             match b.kind {
-                BlackoutKind::NoStarts if b.covers(start, pool) => {
+                BlackoutKind::NoStarts if mine && b.from <= start && start <= b.to => {
                     bad.push(format!("`{id}` starts {start} inside a no-starts blackout"))
                 }
-                BlackoutKind::NoRunning
-                    if b.from <= end
-                        && start <= b.to
-                        && (b.pools.is_empty() || b.pools.contains(&pool)) =>
-                {
+                BlackoutKind::NoRunning if mine && b.from <= end && start <= b.to => {
                     bad.push(format!(
                         "`{id}` runs through a no-running blackout {}..{}",
                         b.from, b.to
@@ -271,6 +325,36 @@ pub fn verify(
             }
         }
     }
+    // Apart on traffic: on every day both run, their shares of each pool
+    // they share add up to at most 1.
+    for (a, ex) in p.experiments.iter().enumerate() {
+        for &b in &ex.apart_traffic {
+            if b <= a {
+                continue;
+            }
+            let other = &p.experiments[b];
+            let shared = ex.pools.iter().any(|q| other.pools.contains(q));
+            let (Some(ra), Some(rb)) = (runs[a], runs[b]) else {
+                continue;
+            };
+            if !shared {
+                continue;
+            }
+            let mut day = ra.0.max(rb.0);
+            while day <= ra.1.min(rb.1) {
+                let sum =
+                    share_that_day(ex, ra.0, ra.2, day) + share_that_day(other, rb.0, rb.2, day);
+                if sum > 1.0 + TOL {
+                    bad.push(format!(
+                        "`{}` and `{}` are kept apart on traffic but take {sum:.4} of a shared pool on {day}",
+                        ex.id, other.id
+                    ));
+                    break;
+                }
+                day += Duration::days(1);
+            }
+        }
+    }
     // Pools day by day. Running tests of a re-plan are facts, not
     // choices: a day their shares as given overload on their own is the
     // input's doing (reported in `Ok`); any more than that, whether from a
@@ -294,7 +378,7 @@ pub fn verify(
             let mut count = 0u32;
             let mut planned = false;
             for (i, ex) in p.experiments.iter().enumerate() {
-                if ex.pool != pi {
+                if !ex.pools.contains(&pi) {
                     continue;
                 }
                 if let Some((s, e, sh)) = runs[i] {
@@ -302,11 +386,17 @@ pub fn verify(
                         count += 1;
                         match fixed(i) {
                             Some(f) => {
-                                used += f.share_on(day, today).fraction();
-                                given += f.share_before.fraction();
+                                // A running test keeps its ramp unless re-shared.
+                                let held = if f.share != f.share_before && day >= today {
+                                    f.share.fraction()
+                                } else {
+                                    share_that_day(ex, s, f.share_on(day, today).fraction(), day)
+                                };
+                                used += held;
+                                given += share_that_day(ex, s, f.share_before.fraction(), day);
                             }
                             None => {
-                                used += sh;
+                                used += share_that_day(ex, s, sh, day);
                                 planned = true;
                             }
                         }
@@ -320,8 +410,7 @@ pub fn verify(
                     }
                 }
             }
-            // A split pool's holdout is a slice no test may take.
-            let over_share = pool.sharing == Sharing::Split && used > 1.0 - pool.holdout + TOL;
+            let over_share = pool.sharing == Sharing::Split && used > split_capacity(pool) + TOL;
             let over_count = count > pool.max_concurrent;
             let excused = !planned && used <= given + TOL;
             if over_share && !excused {
@@ -329,7 +418,7 @@ pub fn verify(
                     "`{}` is shared {:.4} on {day}, over {}",
                     pool.id,
                     used,
-                    1.0 - pool.holdout
+                    split_capacity(pool)
                 ));
             }
             if over_count && planned {

@@ -24,7 +24,7 @@ mod svg;
 mod table;
 
 use super::common::{
-    cautions, counts, is_split, long_date, pool_label, solver_sentence, thousands, units,
+    cautions, counts, is_split, long_date, pools_label, solver_sentence, thousands, units,
 };
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{Plan, PlannedExperiment, Run};
@@ -386,7 +386,7 @@ impl Renderer for Html {
                     "<li><strong>{}</strong> (<code>{}</code>, {}): {}</li>",
                     esc(&e.title),
                     esc(&e.id),
-                    esc(pool_label(plan, &e.pool)),
+                    esc(&pools_label(plan, e)),
                     esc_with_code(e.reason.as_deref().unwrap_or("no reason given"))
                 );
                 if let (Some(d), Some(st)) = (&e.detectable, &e.statistics) {

@@ -6,8 +6,8 @@
 use super::{esc, pool_fill, RunWords};
 use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use crate::render::common::{
-    blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent, pool_label,
-    short_date, units, weeks,
+    also_on, blackout_covers, counts, experiments_in, is_split, long_date, orphans, percent,
+    pools_label, ramp_words, short_date, units, weeks,
 };
 use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
@@ -128,11 +128,14 @@ fn bar_tooltip(plan: &Plan, e: &PlannedExperiment, r: &Run) -> String {
         needed,
         expected,
     } = RunWords::of(e, r);
+    let ramp = ramp_words(e)
+        .map(|w| format!(" after a ramp: {w}"))
+        .unwrap_or_default();
     format!(
-        "{} ({})\nPool: {}\nShare: {share}\nRuns {start} to {end} ({days} days)\nResult due {due}\nUnits needed {needed}; expected {expected}\nOwner: {}",
+        "{} ({})\nPool: {}\nShare: {share}{ramp}\nRuns {start} to {end} ({days} days)\nResult due {due}\nUnits needed {needed}; expected {expected}\nOwner: {}",
         e.title,
         e.id,
-        pool_label(plan, &e.pool),
+        &pools_label(plan, e),
         e.owner
     )
 }
@@ -304,7 +307,10 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
             let mid = y + ROW_H / 2.0;
             row_label(e, y, s);
             match &e.run {
-                Some(r) => bar(plan, &scale, e, r, y, pool_fill(gi), s),
+                Some(r) => {
+                    let pool_id = pool.map(|p| p.id.as_str()).unwrap_or("");
+                    bar(plan, &scale, e, r, y, pool_fill(gi), pool_id, s)
+                }
                 None => {
                     let word = if e.status == crate::plan::Status::Unscheduled {
                         "does not fit: see the list below".to_string()
@@ -372,6 +378,7 @@ fn clip(s: &str, max: usize) -> String {
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn bar(
     plan: &Plan,
     scale: &Scale,
@@ -379,6 +386,7 @@ fn bar(
     r: &Run,
     y: f64,
     fill: &str,
+    pool_id: &str,
     s: &mut String,
 ) {
     let (x0, x1) = scale.span(r.start, r.end);
@@ -386,8 +394,13 @@ fn bar(
     let top = y + (ROW_H - BAR_H) / 2.0;
     let h = BAR_H;
     // A test already running says so: its start is a fact, not a plan.
+    // A test on several pools is one test: each of its rows says where
+    // else it runs.
+    let also = also_on(e, pool_id)
+        .map(|a| format!(" · {}", a.replace('`', "")))
+        .unwrap_or_default();
     let label = format!(
-        "{}{} · result {}",
+        "{}{} · result {}{also}",
         if e.status == crate::plan::Status::Running {
             "running · "
         } else {
@@ -406,6 +419,15 @@ fn bar(
         s,
         r#"<rect x="{x0:.1}" y="{top:.1}" width="{w:.1}" height="{h:.1}" rx="3" fill="{fill}"/>"#
     );
+    // A ramp is drawn lighter: the bar washed out until its planned share.
+    if let (Some(first), Some(last)) = (e.ramp.first(), e.ramp.last()) {
+        let (r0, r1) = scale.span(first.start, last.end);
+        let _ = writeln!(
+            s,
+            r##"<rect class="ramp" x="{r0:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" fill="#ffffff" fill-opacity="0.55"/>"##,
+            (r1 - r0).max(1.0)
+        );
+    }
     // The result-due day: a small mark just after the bar's end.
     if r.result_date <= plan.window.end + Duration::days(1) {
         let xr = scale.x(r.result_date).min(PLOT_X1);

@@ -3,7 +3,7 @@
 
 use super::{esc, pool_fill, RunWords};
 use crate::plan::Plan;
-use crate::render::common::{pool_label, thousands};
+use crate::render::common::{pools_label, thousands};
 use std::fmt::Write;
 
 /// Under a result date: its range and on-time share, when it has a range.
@@ -24,7 +24,10 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
         r#"<table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
     );
     for e in &plan.experiments {
-        let pool_index = plan.pools.iter().position(|p| p.id == e.pool);
+        let pool_index = plan
+            .pools
+            .iter()
+            .position(|p| e.pools.first() == Some(&p.id));
         let swatch = match pool_index {
             Some(i) => format!(
                 r#"<span class="swatch" style="background:{}"></span>"#,
@@ -37,7 +40,7 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
             r#"<tr><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
             esc(&e.title),
             esc(&e.id),
-            esc(pool_label(plan, &e.pool))
+            esc(&pools_label(plan, e))
         );
         match &e.run {
             Some(r) => {

@@ -28,6 +28,8 @@ const FULL: char = '█';
 const LEFT_HALF: char = '▌';
 const RIGHT_HALF: char = '▐';
 const BLACKOUT: char = '░';
+/// A cell of a run still on its ramp (below its planned share).
+const RAMP: char = '▒';
 const WEEK_MARK: char = '·';
 const TODAY: char = '▼';
 
@@ -122,7 +124,7 @@ fn for_terminal(plan: &Plan) -> Plan {
         e.id = clean(&e.id);
         e.title = clean(&e.title);
         e.owner = clean(&e.owner);
-        e.pool = clean(&e.pool);
+        e.pools = e.pools.iter().map(|p| clean(p)).collect();
         e.reason = e.reason.as_deref().map(clean);
         if let Some(s) = &mut e.statistics {
             s.metric = clean(&s.metric);
@@ -273,7 +275,7 @@ impl Renderer for Text {
                 "{} admits {} of {}'s units; its share is of the whole pool.",
                 e.id,
                 crate::words::percent(e.eligible),
-                e.pool
+                e.pools.join(", ")
             );
             let _ = write!(out, "{}", wrap_hanging("* ", &line, width));
         }
@@ -292,7 +294,7 @@ impl Renderer for Text {
                     continue;
                 }
                 let reason = e.reason.as_deref().unwrap_or("no reason given");
-                let line = format!("{} ({}, {}): {reason}", e.id, e.title, e.pool);
+                let line = format!("{} ({}, {}): {reason}", e.id, e.title, e.pools.join(", "));
                 let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
                 if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
                     let _ = write!(

@@ -126,7 +126,7 @@ fn table_for(
             row.push(Cell::new(fit(&e.title, title_room)));
         }
         if layout >= Layout::Compact {
-            row.push(Cell::new(&e.pool));
+            row.push(Cell::new(e.pools.join(", ")));
         }
         match run.as_ref().or(past.as_ref()) {
             Some(r) => {

@@ -2,12 +2,12 @@
 //! Unicode block characters, grouped by pool, with blackouts and today.
 
 use super::{
-    fit, heading, paint, wrap, BLACKOUT, FULL, LEFT_HALF, POOL_COLOURS, RIGHT_HALF, TODAY,
+    fit, heading, paint, wrap, BLACKOUT, FULL, LEFT_HALF, POOL_COLOURS, RAMP, RIGHT_HALF, TODAY,
     WEEK_MARK,
 };
 use crate::plan::{BlackoutKind, Plan, PlannedExperiment, PoolPlan, Run};
 use crate::render::common::{
-    blackout_covers, experiments_in, is_split, orphans, out_word, short_date, weeks, Week,
+    also_on, blackout_covers, experiments_in, is_split, orphans, out_word, short_date, weeks, Week,
 };
 use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
@@ -87,7 +87,12 @@ impl Track {
     }
 
     /// The glyphs of one experiment's row (plain, without colour).
-    fn row(&self, run: Option<&Run>, blackout: &dyn Fn(NaiveDate, NaiveDate) -> bool) -> Vec<char> {
+    fn row(
+        &self,
+        run: Option<&Run>,
+        full_from: Option<NaiveDate>,
+        blackout: &dyn Fn(NaiveDate, NaiveDate) -> bool,
+    ) -> Vec<char> {
         let starts: Vec<usize> = self.week_starts.iter().map(|&(i, _)| i).collect();
         self.cells
             .iter()
@@ -97,6 +102,9 @@ impl Track {
                     let lo = r.start.max(a);
                     let hi = r.end.min(b);
                     if lo <= hi {
+                        if full_from.is_some_and(|f| b < f) {
+                            return RAMP;
+                        }
                         let begins_inside = r.start > a;
                         let ends_inside = r.end < b;
                         return match (begins_inside, ends_inside) {
@@ -152,8 +160,17 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
     let room = width.saturating_sub(label_w + 1);
     let track = Track::new(&weeks(plan), room);
     let pad = " ".repeat(label_w);
+    let ramps = plan
+        .experiments
+        .iter()
+        .any(|e| e.run.is_some() && !e.ramp.is_empty());
+    let ramp_key = if ramps {
+        format!(", {RAMP} ramp")
+    } else {
+        String::new()
+    };
     let title = format!(
-        "Timeline ({}; {FULL} running, {BLACKOUT} blackout, {TODAY} today)",
+        "Timeline ({}; {FULL} running{ramp_key}, {BLACKOUT} blackout, {TODAY} today)",
         track.scale
     );
     let _ = write!(out, "{}", heading(&title, width, colour));
@@ -200,22 +217,38 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
             );
             let body: String = match run {
                 Some(ref r) => {
-                    let glyphs = track.row(Some(r), &blackout);
+                    let glyphs = track.row(Some(r), e.full_from(), &blackout);
+                    let shown = glyphs.iter().collect::<String>().trim_end().width();
+                    let room = width.saturating_sub(label_w + 1 + shown + 1);
                     let mut s = String::new();
                     for g in glyphs {
                         match g {
-                            FULL | LEFT_HALF | RIGHT_HALF => {
+                            FULL | LEFT_HALF | RIGHT_HALF | RAMP => {
                                 s.push_str(&paint(&g.to_string(), sgr, colour))
                             }
                             BLACKOUT => s.push_str(&paint(&g.to_string(), "2", colour)),
                             _ => s.push(g),
                         }
                     }
-                    s.trim_end().to_string()
+                    let mut s = s.trim_end().to_string();
+                    // One test on several pools: each of its rows says
+                    // where else it runs, shortened where the line is full.
+                    if let Some(also) = also_on(e, pool_id) {
+                        let short = format!("(+{} pools)", e.pools.len() - 1);
+                        let mark = [also, short].into_iter().find(|m| m.width() <= room);
+                        if let Some(mark) = mark {
+                            s.push(' ');
+                            s.push_str(&paint(&mark, "2", colour));
+                        }
+                    }
+                    s
                 }
                 None if past.is_some() => {
                     // Drawn where it ran, dim, and marked.
-                    let glyphs: String = track.row(past.as_ref(), &blackout).into_iter().collect();
+                    let glyphs: String = track
+                        .row(past.as_ref(), None, &blackout)
+                        .into_iter()
+                        .collect();
                     format!(
                         "{} {}",
                         paint(glyphs.trim_end(), "2", colour),
@@ -303,13 +336,16 @@ mod tests {
             .find(|e| e.id == "search-freshness")
             .unwrap();
         let run = e.run.unwrap();
-        let row: String = track.row(Some(&run), &|_, _| false).into_iter().collect();
+        let row: String = track
+            .row(Some(&run), None, &|_, _| false)
+            .into_iter()
+            .collect();
         assert_eq!(row, "·██████······");
         let mut shifted = run;
         shifted.start += Duration::days(3);
         shifted.end -= Duration::days(2);
         let row: String = track
-            .row(Some(&shifted), &|_, _| false)
+            .row(Some(&shifted), None, &|_, _| false)
             .into_iter()
             .collect();
         assert_eq!(row, "·▐████▌······");
