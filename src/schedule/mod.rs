@@ -448,8 +448,7 @@ fn assemble(
     let first_start: Vec<NaiveDate> = (0..p.experiments.len())
         .map(|e| w.date(inst.lo_start[e].clamp(0, inst.days as i64)))
         .collect();
-    statistics::fill(p, &mut experiments, &first_start);
-    let pools = p
+    let pools: Vec<PoolPlan> = p
         .pools
         .iter()
         .enumerate()
@@ -511,6 +510,8 @@ fn assemble(
             }
         })
         .collect();
+    // What a test left out could detect counts only the room the plan leaves.
+    statistics::fill(p, &mut experiments, &first_start, &pools);
     let blackouts = p
         .blackouts
         .iter()

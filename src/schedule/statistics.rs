@@ -15,9 +15,10 @@
 
 use crate::forecast::Series;
 use crate::plan::{
-    Detectable, LookDate, LookDates, PlannedExperiment, Run, SecondaryEffect, TestStatistics,
+    Detectable, LookDate, LookDates, PlannedExperiment, PoolDay, PoolPlan, Run, SecondaryEffect,
+    TestStatistics,
 };
-use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Role};
+use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Role, Sharing};
 use crate::share::Share;
 use crate::sizing::{self, Design, Effect, Metric};
 use chrono::{Duration, NaiveDate};
@@ -184,9 +185,64 @@ pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
 
 /// What experiment `e` could detect with its pools' traffic from `from`
 /// to its deadline (or the window's end) at `share`, in the longest
-/// stretch of those days that no `no_running` blackout of its pool
+/// stretch of those days that no `no_running` blackout of its pools
 /// interrupts; `None` when no day is left.
 pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Option<Detectable> {
+    detectable_where(p, e, from, share, &|_| true)
+}
+
+/// What unscheduled experiment `e` could detect in the room `pools` (a
+/// plan's daily use of each pool) leaves it from `from` to its deadline
+/// or the window's end: at the share level, up to its largest, whose
+/// longest stretch of days with that share free on every one of its pools
+/// (a split pool's shares within its capacity, every pool below its
+/// `max_concurrent`) collects the most units; `None` when no level is free
+/// on any day.
+pub fn detectable_in_room(
+    p: &Portfolio,
+    e: usize,
+    from: NaiveDate,
+    pools: &[PoolPlan],
+) -> Option<Detectable> {
+    let ex = &p.experiments[e];
+    let top = crate::check::share_for(p, ex);
+    fn day_of(pool: &PoolPlan, start: NaiveDate, date: NaiveDate) -> Option<&PoolDay> {
+        pool.days
+            .get((date - start).num_days().max(0) as usize)
+            .filter(|d| d.date == date)
+    }
+    p.share_levels
+        .up_to(top)
+        .filter_map(|share| {
+            let free = |date: NaiveDate| {
+                ex.pools.iter().all(|&k| {
+                    let (def, pool) = (&p.pools[k], &pools[k]);
+                    day_of(pool, p.window.start, date).is_some_and(|d| {
+                        d.running < def.max_concurrent
+                            && (def.sharing != Sharing::Split
+                                || d.share_used + share.fraction()
+                                    <= def.capacity().fraction() + 1e-9)
+                    })
+                })
+            };
+            detectable_where(p, e, from, share, &free)
+        })
+        .filter(|d| d.units > 0.0)
+        // The most units; of equals, the smaller share.
+        .fold(None, |best: Option<Detectable>, d| match best {
+            Some(b) if b.units >= d.units => Some(b),
+            _ => Some(d),
+        })
+}
+
+/// [`detectable`] over the days `open` allows as well.
+fn detectable_where(
+    p: &Portfolio,
+    e: usize,
+    from: NaiveDate,
+    share: Share,
+    open: &dyn Fn(NaiveDate) -> bool,
+) -> Option<Detectable> {
     let ex = &p.experiments[e];
     let to = ex.deadline.unwrap_or(p.window.end).min(p.window.end);
     if from > to {
@@ -197,9 +253,10 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
     // blackout: the longest stretch between them, by units.
     let blocked = |i: usize| {
         let date = from + Duration::days(i as i64);
-        p.blackouts.iter().any(|b| {
-            b.kind == BlackoutKind::NoRunning && ex.pools.iter().any(|&k| b.covers(date, k))
-        })
+        !open(date)
+            || p.blackouts.iter().any(|b| {
+                b.kind == BlackoutKind::NoRunning && ex.pools.iter().any(|&k| b.covers(date, k))
+            })
     };
     let mut best: Option<(usize, usize, f64)> = None;
     let mut i = 0;
@@ -245,13 +302,14 @@ pub fn detectable(p: &Portfolio, e: usize, from: NaiveDate, share: Share) -> Opt
 }
 
 /// Fills every sized experiment's statistics (a given sample size has
-/// none), the look dates of those with a
-/// run, and the detectable effect of the unscheduled ones, which may start
-/// from `first_start[e]` on.
+/// none), the look dates of those with a run, and the detectable effect
+/// of the unscheduled ones, which may start from `first_start[e]` on, in
+/// the room the plan's `pools` leave them.
 pub(crate) fn fill(
     p: &Portfolio,
     experiments: &mut [PlannedExperiment],
     first_start: &[NaiveDate],
+    pools: &[PoolPlan],
 ) {
     for (e, out) in experiments.iter_mut().enumerate() {
         let ex = &p.experiments[e];
@@ -263,8 +321,7 @@ pub(crate) fn fill(
         if let Some(run) = &out.run {
             out.looks = look_dates(p, e, run);
         } else if out.status == crate::plan::Status::Unscheduled {
-            let share = crate::check::share_for(p, ex);
-            out.detectable = detectable(p, e, first_start[e], share);
+            out.detectable = detectable_in_room(p, e, first_start[e], pools);
         }
     }
 }
@@ -407,5 +464,32 @@ mod tests {
         let got = detectable(&p, 0, d("2027-01-04"), Share::WHOLE).unwrap();
         assert_eq!((got.from, got.to), (d("2027-01-18"), d("2027-04-04")));
         assert!((got.units - 77.0 * 10_000.0).abs() < 1e-6);
+    }
+
+    #[test]
+    fn a_test_left_out_could_detect_only_in_the_room_the_plan_leaves() {
+        // One split pool of 1,000 a day for six weeks. `big` (priority 10)
+        // holds all of it for the first four weeks; `late` cannot fit at
+        // all (150,000 units). Alone it could collect 42 x 1,000 = 42,000;
+        // beside the plan only the last two weeks, 14 x 1,000 = 14,000.
+        let text = "window: {start: 2027-01-04, end: 2027-02-14}\n\
+             pools:\n  - {id: p, daily: 1000, max_concurrent: 2}\n\
+             experiments:\n\
+             \x20 - {id: big, pool: p, sample_size: 14000, priority: 10, min_days: 28}\n\
+             \x20 - {id: late, pool: p, baseline: 0.2, mde: 0.01, priority: 1}\n";
+        let p = load_str(text, "t.yaml").unwrap_or_else(|e| panic!("{e}"));
+        let plan = crate::schedule::plan(&p, &crate::schedule::PlanRequest::default());
+        let big = plan.experiments[0].run.expect("big runs");
+        assert_eq!((big.start, big.end), (d("2027-01-04"), d("2027-01-31")));
+        let late = plan.experiments[1]
+            .detectable
+            .clone()
+            .expect("room is left");
+        assert_eq!((late.from, late.to), (d("2027-02-01"), d("2027-02-14")));
+        assert_eq!(late.share, Share::WHOLE);
+        assert!((late.units - 14_000.0).abs() < 1e-6, "{}", late.units);
+        let alone = detectable(&p, 1, d("2027-01-04"), Share::WHOLE).unwrap();
+        assert!((alone.units - 42_000.0).abs() < 1e-6, "{}", alone.units);
+        assert!(late.mde.unwrap() > alone.mde.unwrap());
     }
 }
