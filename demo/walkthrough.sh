@@ -2,7 +2,9 @@
 # The whole story of sluice on the demo portfolio (Larkspur & Loom, an
 # invented shop for home textiles, first quarter of 2027):
 #
-#   1. check the queue;            2. plan the quarter;
+#   1. check the queue;            2. plan the quarter, and the tests
+#      that run on several pools, admit part of a pool, have a given size,
+#      ramp up, or are kept apart on traffic;
 #   3. the HTML report and the results calendar (iCalendar);
 #   4. day 30: progress so far, and each pool's actual traffic since the
 #      quarter began (demo/traffic/, invented by demo/make_traffic.py:
@@ -37,6 +39,32 @@ heading "1. check the queue: sizes, and what could fit alone"
 heading "2. plan the quarter from its first day"
 "$sluice" plan "$portfolio" --no-timing | tee "$out/plan.txt"
 "$sluice" plan "$portfolio" --no-timing --format json --out "$out/plan.json"
+
+heading "2b. what a real programme needs: tests on several pools, targeting, given sizes, ramps, holdouts, pairs apart on traffic"
+# The plan's own JSON, read back: each of these tests as the plan has it.
+python3 - "$out/plan.json" <<'PY'
+import json, sys
+plan = json.load(open(sys.argv[1], encoding="utf-8"))
+for p in plan["pools"]:
+    if p.get("holdout"):
+        print(f"pool {p['id']}: {p['holdout']:.0%} of its units held out of every test")
+for e in plan["experiments"]:
+    facts = []
+    if len(e["pools"]) > 1:
+        facts.append("on " + ", ".join(e["pools"]) + " at once")
+    if e.get("eligible", 1) < 1:
+        facts.append(f"admits {e['eligible']:.0%} of its pool's units")
+    if e.get("sample_size_given"):
+        facts.append(f"sample size given: {e['units_needed']:,} units")
+    for step in e.get("ramp", []):
+        facts.append(f"ramp {step['share']:.0%} from {step['start']} to {step['end']}")
+    if not facts:
+        continue
+    when = (f"{e['share']:.0%} from {e['start']}, result {e['result_date']}"
+            if e["status"] == "scheduled" else e["status"])
+    print(f"{e['id']}: {'; '.join(facts)}; {when}")
+PY
+grep -n "apart: traffic" "$portfolio" | sed 's/^/demo.yaml line /'
 
 heading "3. the report to share and the calendar of result dates"
 "$sluice" plan "$portfolio" --no-timing --format html --out "$out/plan.html"
