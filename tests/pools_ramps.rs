@@ -354,3 +354,113 @@ fn bad_calendar_keys_are_named_at_their_line() {
         assert!(err.contains("= hint:"), "{err}");
     }
 }
+
+/// [`QUARTER`] with every other key of the calendar model as well: a 5%
+/// holdout on the home page, a campaign (x1.3) inside a seasonal dip
+/// (x0.8) on search, a signed-in-only test (30% eligible) and a test whose
+/// size was worked out elsewhere.
+fn every_key() -> String {
+    QUARTER
+        .replace(
+            "  - {id: home, daily: 20000, sharing: split, max_concurrent: 3}\n",
+            "  - {id: home, daily: 20000, sharing: split, max_concurrent: 3, holdout: 0.05}\n",
+        )
+        .replace(
+            "  - {id: search, daily: 10000, sharing: overlap, max_concurrent: 3}\n",
+            "  - id: search\n    daily: 10000\n    sharing: overlap\n    max_concurrent: 3\n    \
+             adjustments:\n      - {from: 2027-05-01, to: 2027-05-31, multiply: 0.8, note: seasonal dip}\n      \
+             - {from: 2027-05-10, to: 2027-05-16, multiply: 1.3, note: campaign}\n",
+        )
+        + "  - id: member-saved-bikes\n    title: Saved bikes for signed-in riders\n    pool: home\n    \
+           eligible: 0.3\n    baseline: 0.05\n    mde: 0.1\n    priority: 1\n\
+           \x20 - id: fit-guide\n    title: Frame-size guide\n    pool: product\n    \
+           sample_size: 20000\n    priority: 1\n"
+}
+
+#[test]
+fn a_quarter_with_every_calendar_key_checks_plans_renders_and_replans_to_verified_calendars() {
+    let text = every_key();
+    let (dir, path) = quarter(&text);
+    let p = path.to_str().unwrap();
+    cmd(&["check", p]).assert_exit_code(0);
+    for format in ["text", "json", "csv", "md", "html", "ics"] {
+        cmd(&["plan", p, "--no-timing", "--format", format]).assert_exit_code(0);
+    }
+    let portfolio = sluice::portfolio::load(&path).unwrap();
+    // A campaign day inside the dip: 10,000 x 0.8 x 1.3 = 10,400 units.
+    let search = &portfolio.pools[1];
+    let day = chrono::NaiveDate::from_ymd_opt(2027, 5, 12).unwrap();
+    assert!((sluice::forecast::units_on(search, day) - 10_400.0).abs() < 1e-9);
+    let request = sluice::schedule::PlanRequest::default();
+    let plan = sluice::schedule::plan(&portfolio, &request);
+    if let Err(v) = sluice::schedule::verify(&portfolio, &request, &plan) {
+        panic!("the verifier rejects the plan: {v:#?}");
+    }
+    // The binary prints the same calendar.
+    let v = plan_json(&path);
+    for e in &plan.experiments {
+        let j = by_id(&v, &e.id);
+        assert_eq!(j["status"], e.status.name(), "{}", e.id);
+        if let Some(r) = e.run {
+            assert_eq!(date(&j["start"]), r.start, "{}", e.id);
+            assert_eq!(date(&j["end"]), r.end, "{}", e.id);
+        }
+    }
+    assert_eq!(by_id(&v, "member-saved-bikes")["eligible"], 0.3);
+    assert_eq!(by_id(&v, "fit-guide")["sample_size_given"], true);
+    assert_eq!(by_id(&v, "fit-guide")["units_needed"], 40_000);
+    assert_eq!(v["pools"][0]["holdout"], 0.05);
+    // No day of the home page goes past its 95%.
+    for d in v["pools"][0]["days"].as_array().unwrap() {
+        assert!(d["share_used"].as_f64().unwrap() <= 0.95 + 1e-9, "{d}");
+    }
+    // Two weeks in, every test that started is running: re-plan around them.
+    let today = "2027-04-19";
+    let mut running = String::from("experiments:\n");
+    for e in &plan.experiments {
+        if let Some(r) = e.run.filter(|r| r.start.to_string().as_str() < today) {
+            running.push_str(&format!(
+                "  - {{id: {}, state: running, started: {}, share: {}, units: 1000}}\n",
+                e.id,
+                r.start,
+                r.share.fraction()
+            ));
+        }
+    }
+    assert!(running.lines().count() > 2, "{running}");
+    let progress = dir.path().join("progress.yaml");
+    std::fs::write(&progress, &running).unwrap();
+    for format in ["text", "json", "html", "md", "csv", "ics"] {
+        cmd(&[
+            "replan",
+            p,
+            "--progress",
+            progress.to_str().unwrap(),
+            "--today",
+            today,
+            "--no-timing",
+            "--format",
+            format,
+        ])
+        .assert_exit_code(0);
+    }
+    let today = chrono::NaiveDate::from_ymd_opt(2027, 4, 19).unwrap();
+    let prog = sluice::replan::load_progress(&progress, &portfolio, today).unwrap();
+    let (again, req) = sluice::replan::replan(
+        &portfolio,
+        &prog,
+        today,
+        &sluice::schedule::PlanRequest::default(),
+    )
+    .unwrap();
+    if let Err(v) = sluice::schedule::verify(&portfolio, &req, &again) {
+        panic!("the verifier rejects the re-plan: {v:#?}");
+    }
+    for e in &plan.experiments {
+        if let Some(r) = e.run.filter(|r| r.start < today) {
+            let a = again.experiments.iter().find(|x| x.id == e.id).unwrap();
+            assert_eq!(a.status.name(), "running", "{}", e.id);
+            assert_eq!(a.run.map(|x| (x.start, x.share)), Some((r.start, r.share)));
+        }
+    }
+}
