@@ -322,6 +322,11 @@ fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
             })
             .collect()
     };
+    let csv_text = plan_as(&sure, "csv");
+    let mut reader = csv::Reader::from_reader(csv_text.as_bytes());
+    let csv_head = reader.headers().unwrap().clone();
+    let csv_col = |n: &str| csv_head.iter().position(|h| h == n).unwrap();
+    let csv_rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
     let mut later = 0;
     for e in after["experiments"].as_array().unwrap() {
         if e["status"] != "scheduled" || e["pools"][0] != "product" {
@@ -332,6 +337,10 @@ fn planning_to_a_confidence_puts_each_planned_end_at_its_quantile_or_later() {
             .as_f64()
             .expect("a confidence plan reports on_plan");
         assert!(on_plan >= 0.8, "{e}");
+        // The CSV carries it too.
+        let id = e["id"].as_str().unwrap();
+        let row = csv_rows.iter().find(|row| &row[0] == id).unwrap();
+        assert_eq!(row[csv_col("on_plan")].parse::<f64>().unwrap(), on_plan);
         // The units needed are the test's own, not what the planner asked.
         let id = e["id"].as_str().unwrap();
         let plain_e = before["experiments"]

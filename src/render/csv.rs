@@ -36,16 +36,29 @@ pub const HEADER: [&str; 17] = [
 ];
 
 /// The result-range columns after [`HEADER`]: the P10, P50 and P90 result
-/// dates and the on-time share (a fraction), empty without a range.
-pub const RANGE_HEADER: [&str; 4] = ["result_p10", "result_p50", "result_p90", "on_time"];
+/// dates, the on-time share and, planned to a confidence, the share of
+/// paths that end by the planned date (fractions), empty without a range.
+pub const RANGE_HEADER: [&str; 5] = [
+    "result_p10",
+    "result_p50",
+    "result_p90",
+    "on_time",
+    "on_plan",
+];
 
 /// `e`'s cells under [`RANGE_HEADER`].
-fn range_cells(e: &crate::plan::PlannedExperiment) -> [String; 4] {
+fn range_cells(e: &crate::plan::PlannedExperiment) -> [String; 5] {
     let Some(r) = &e.result_range else {
         return Default::default();
     };
     let day = |d: Option<chrono::NaiveDate>| d.map(|d| d.to_string()).unwrap_or_default();
-    [day(r.p10), day(r.p50), day(r.p90), r.on_time.to_string()]
+    [
+        day(r.p10),
+        day(r.p50),
+        day(r.p90),
+        r.on_time.to_string(),
+        r.on_plan.map(|x| x.to_string()).unwrap_or_default(),
+    ]
 }
 
 impl Renderer for Csv {
