@@ -212,17 +212,11 @@ const LP_SPLIT_OPTIONS: usize = 8000;
 
 /// The LP relaxation of a component solved pool by pool, links between
 /// pools dropped; `None` if any pool's LP fails. Each pool's LP holds
-/// every test that runs on it, a test on several pools with a part of its
-/// value in each, the parts adding up to its whole value: any calendar,
-/// cut down to each pool's tests, is feasible there and earns its whole
-/// value summed over the pools, so the sum of the LPs' values is a valid
-/// bound for any split. The split decides only how tight it is: a test
-/// counted in a pool with room to spare is simply taken there at its best
-/// option, so its value counts for the most where pools are busy; each
-/// pool's part goes with the cube of its [`pool_demand`] (on the
-/// large-keys benchmark, about 0.6% tighter than an even split, the
-/// squares and fifth powers about the same). The LP solution of a test
-/// on several pools is its pools' solutions weighted by those parts.
+/// every test that runs on it, a test on several pools with its value
+/// split evenly among them: any calendar, cut down to each pool's tests,
+/// is feasible there and earns its whole value summed over the pools, so
+/// the sum of the LPs' values is still a valid bound. The LP solution of
+/// a test on several pools is the mean of its pools' solutions.
 fn relax_by_pool(
     inst: &Instance,
     exps: &[usize],
@@ -241,36 +235,21 @@ fn relax_by_pool(
         .map(|&e| vec![0.0; inst.options[e].len()])
         .collect();
     let mut value = 0.0;
-    let demand = pool_demand(inst, exps);
-    // The part of a test's value that `pool`'s LP counts.
-    let part = |e: usize, pool: usize| -> f64 {
-        let ps = &p.experiments[e].pools;
-        if ps.len() == 1 {
-            return 1.0;
-        }
-        let pull = |q: usize| demand[q].powi(SPLIT_POWER);
-        let total: f64 = ps.iter().map(|&q| pull(q)).sum();
-        if total > 0.0 {
-            pull(pool) / total
-        } else {
-            1.0 / ps.len() as f64
-        }
-    };
     for pool in pools {
         let members: Vec<usize> = (0..exps.len())
             .filter(|&i| p.experiments[exps[i]].uses(pool))
             .collect();
         let sub_exps: Vec<usize> = members.iter().map(|&i| exps[i]).collect();
         let mut sub = Sub::all(inst, &sub_exps);
-        sub.weight = members.iter().map(|&i| part(exps[i], pool)).collect();
+        let parts = |i: usize| p.experiments[exps[i]].pools.len() as f64;
+        sub.weight = members.iter().map(|&i| 1.0 / parts(i)).collect();
         let solved = lp::solve(inst, &sub, backend, false, remaining(deadline), None);
         deadline.after_lp(&solved);
         let solved = solved.ok()?;
         value += solved.value;
         for (k, &i) in members.iter().enumerate() {
-            let w = sub.weight[k];
             for (acc, v) in x[i].iter_mut().zip(&solved.x[k]) {
-                *acc += v * w;
+                *acc += v / parts(i);
             }
         }
     }
@@ -279,31 +258,6 @@ fn relax_by_pool(
         x,
         optimal: true,
     })
-}
-
-/// The power of a pool's demand in the part of a test's value its LP
-/// counts (see [`relax_by_pool`]).
-const SPLIT_POWER: i32 = 3;
-
-/// How busy each pool is with the tests `exps`: the share-days of their
-/// most valuable options (the first of each test's) per share-day of the
-/// pool's room over the window. A rough measure, used only to split the
-/// value of a test on several pools in the pool-by-pool bound, which
-/// stays valid for any split.
-fn pool_demand(inst: &Instance, exps: &[usize]) -> Vec<f64> {
-    let p = inst.portfolio;
-    let mut demand = vec![0.0; p.pools.len()];
-    for &e in exps {
-        if let Some(o) = inst.options[e].first() {
-            for &q in &p.experiments[e].pools {
-                demand[q] += footprint(o);
-            }
-        }
-    }
-    for (q, d) in demand.iter_mut().enumerate() {
-        *d /= (p.pools[q].capacity().fraction() * inst.days.max(1) as f64).max(1e-9);
-    }
-    demand
 }
 
 /// Most iterations of the neighbourhood search per component (1,000 per
@@ -713,13 +667,18 @@ fn lns(
         } else if mode == 2 {
             // A pool over a span of weeks.
             let e0 = exps[rng.below(exps.len())];
-            // A test on several pools frees the span on every one of
-            // them, so it and its rivals on each pool can move together.
+            // A test on several pools picks one of them (one pool draws
+            // nothing, so single-pool portfolios search as before).
             let ps = &p.experiments[e0].pools;
+            let pool = if ps.len() == 1 {
+                ps[0]
+            } else {
+                ps[rng.below(ps.len())]
+            };
             let a = rng.below(inst.days.max(1));
             let b = a + 7 * (1 + rng.below(6));
             for &e in exps {
-                if !ps.iter().any(|&pool| p.experiments[e].uses(pool)) {
+                if !p.experiments[e].uses(pool) {
                     continue;
                 }
                 if let Some(eo) = state.opt(inst, e) {
@@ -852,10 +811,10 @@ mod tests {
         Deadline::new(Instant::now() + Duration::from_secs(600), cut)
     }
 
-    /// The pool-by-pool bound, with a multi-pool test's value split by
-    /// the pools' demand, is still at or above the full LP relaxation of
-    /// the same tests, which is at or above the value of any calendar
-    /// (here the greedy one and the searched one).
+    /// The pool-by-pool bound, with a multi-pool test's value split among
+    /// its pools, is still at or above the full LP relaxation of the same
+    /// tests, which is at or above the value of any calendar (here the
+    /// greedy one and the searched one).
     #[test]
     fn the_pool_by_pool_bound_stays_above_the_full_lp_with_tests_on_several_pools() {
         let mut multi = 0;
