@@ -70,13 +70,17 @@ fn spec(size: &str) -> synthetic::Spec {
 }
 
 /// The portfolio of a row's size: `medium-keys` and `large-keys` are the
-/// medium and large portfolios with tests on several pools, ramps and
-/// pairs kept apart on traffic (`synthetic::with_calendar_keys`).
+/// medium and large portfolios with every key of issue 10: tests on
+/// several pools, ramps and pairs kept apart on traffic
+/// (`synthetic::with_calendar_keys`), then eligibility, pool holdouts,
+/// given sample sizes and composed adjustments (`synthetic::with_keys`).
 fn portfolio_for(size: &str) -> Portfolio {
     match size.strip_suffix("-keys") {
         Some(base) => {
             let spec = spec(base);
-            synthetic::with_calendar_keys(synthetic::portfolio(&spec), spec.seed)
+            let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), spec.seed);
+            synthetic::with_keys(&mut p, spec.seed);
+            p
         }
         None => synthetic::portfolio(&spec(size)),
     }

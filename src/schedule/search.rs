@@ -544,15 +544,26 @@ fn round(inst: &Instance, sub: &Sub, x: &[Vec<f64>], state: &mut State) {
             .then(a.2.cmp(&b.2))
             .then(a.3.cmp(&b.3))
     });
-    for _pass in 0..2 {
+    for pass in 0..2 {
         for &(_, _, i, k) in &order {
             let e = exps[i];
+            if pass == 1 && !retry(inst, e) {
+                continue;
+            }
             if state.choice[e].is_none() && state.fits(inst, e, &inst.options[e][k]) {
                 state.add(inst, e, k);
             }
         }
     }
     fill(inst, exps, state);
+}
+
+/// Whether a second pass over the tests that did not fit should try `e`
+/// again. Adding runs only takes room, so an option that did not fit
+/// still does not, unless it waited on a predecessor that the first pass
+/// placed after it: only a test with predecessors can fit the second time.
+fn retry(inst: &Instance, e: usize) -> bool {
+    !inst.preds[e].is_empty()
 }
 
 /// Every unscheduled test of the component takes its best fitting option,
@@ -566,8 +577,11 @@ fn fill(inst: &Instance, exps: &[usize], state: &mut State) {
             .total_cmp(&p.experiments[a].priority)
             .then(a.cmp(&b))
     });
-    for _pass in 0..2 {
+    for pass in 0..2 {
         for &e in &order {
+            if pass == 1 && !retry(inst, e) {
+                continue;
+            }
             if state.choice[e].is_none() {
                 if let Some(k) = state.best_fit(inst, e) {
                     state.add(inst, e, k);
@@ -750,9 +764,9 @@ fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitM
         .collect();
     order.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
     let lean = rng.below(3) == 0;
-    for _pass in 0..2 {
+    for pass in 0..2 {
         for &(_, e) in &order {
-            if state.choice[e].is_some() {
+            if state.choice[e].is_some() || (pass == 1 && !retry(inst, e)) {
                 continue;
             }
             let Some(k) = state.best_fit(inst, e) else {
@@ -784,4 +798,121 @@ fn recreate(inst: &Instance, exps: &[usize], state: &mut State, rng: &mut SplitM
 
 fn footprint(o: &super::options::Opt) -> f64 {
     o.share.fraction() * (o.end - o.start + 1) as f64
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::portfolio::{after_order, Prerequisite};
+    use crate::schedule::{synthetic, PlanRequest};
+    use std::time::Duration;
+
+    fn far_deadline(cut: &Cell<bool>) -> Deadline<'_> {
+        Deadline::new(Instant::now() + Duration::from_secs(600), cut)
+    }
+
+    /// The pool-by-pool bound, with a multi-pool test's value split among
+    /// its pools, is still at or above the full LP relaxation of the same
+    /// tests, which is at or above the value of any calendar (here the
+    /// greedy one and the searched one).
+    #[test]
+    fn the_pool_by_pool_bound_stays_above_the_full_lp_with_tests_on_several_pools() {
+        let mut multi = 0;
+        for seed in 0..6 {
+            let spec = synthetic::Spec {
+                tests: 8,
+                pools: 3,
+                weeks: 8,
+                seed,
+            };
+            let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), seed);
+            synthetic::with_keys(&mut p, seed);
+            // Every test on several pools, so the split matters.
+            for e in &mut p.experiments {
+                if e.pools.len() == 1 {
+                    e.pools.push((e.pools[0] + 1 + seed as usize % 2) % 3);
+                }
+            }
+            multi += p.experiments.len();
+            let request = PlanRequest::default();
+            let inst = Instance::new(&p, &request);
+            let exps: Vec<usize> = inst.free().collect();
+            let cut = Cell::new(false);
+            let by_pool = relax_by_pool(&inst, &exps, request.backend, far_deadline(&cut))
+                .expect("each pool's LP solves");
+            let full = lp::solve(
+                &inst,
+                &Sub::all(&inst, &exps),
+                request.backend,
+                false,
+                600.0,
+                None,
+            )
+            .expect("the full LP solves");
+            assert!(
+                by_pool.value >= full.value - 1e-6 * full.value.max(1.0),
+                "seed {seed}: pool by pool {} under the full LP {}",
+                by_pool.value,
+                full.value
+            );
+            let greedy = super::super::greedy::greedy(&inst);
+            let mut searched = greedy.clone();
+            solve_component(
+                &inst,
+                &exps,
+                &mut searched,
+                Some(&by_pool),
+                request.backend,
+                far_deadline(&cut),
+                1,
+            );
+            let value = comp_value(&inst, &exps, &searched);
+            assert!(value >= comp_value(&inst, &exps, &greedy) - 1e-9);
+            assert!(full.value >= value - 1e-6 * value.max(1.0), "seed {seed}");
+            // Each test's LP weights, summed over its options, stay a
+            // fraction of one run.
+            for xs in &by_pool.x {
+                assert!(xs.iter().sum::<f64>() <= 1.0 + 1e-6);
+            }
+        }
+        assert!(multi > 20);
+    }
+
+    /// A test placed before its predecessor in the fill order still runs:
+    /// the second pass retries the tests with predecessors (and only
+    /// those, since adding runs never makes room).
+    #[test]
+    fn fill_places_a_successor_that_comes_before_its_predecessor() {
+        let spec = synthetic::Spec {
+            tests: 2,
+            pools: 1,
+            weeks: 13,
+            seed: 4,
+        };
+        let mut p = synthetic::portfolio(&spec);
+        for e in &mut p.experiments {
+            e.after.clear();
+            e.not_with.clear();
+            e.earliest_start = None;
+            e.deadline = None;
+        }
+        p.experiments[1].after = vec![Prerequisite {
+            experiment: 0,
+            gap_days: 0,
+        }];
+        p.experiments[0].priority = 1.0;
+        p.experiments[1].priority = 9.0;
+        p.after_order = after_order(&p.experiments).expect("no cycle");
+        let request = PlanRequest::default();
+        let inst = Instance::new(&p, &request);
+        assert!(!retry(&inst, 0) && retry(&inst, 1));
+        let mut state = State::new(&inst);
+        fill(&inst, &[0, 1], &mut state);
+        let (a, b) = (state.opt(&inst, 0), state.opt(&inst, 1));
+        let (a, b) = (
+            a.expect("the predecessor runs"),
+            b.expect("the successor runs"),
+        );
+        assert!(a.end < b.start);
+    }
 }

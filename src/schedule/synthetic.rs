@@ -382,4 +382,49 @@ mod tests {
         }
         assert!(holdouts > 5 && eligible > 30 && given > 20 && composed > 3);
     }
+
+    /// Both sets of keys on one portfolio, as the benchmark's `-keys`
+    /// rows build it, keep it one the validator would pass: every ramp
+    /// step within the room of each of its test's pools, eligibility in
+    /// (0, 1], a need of at least one unit per arm, `not_with` and
+    /// `apart` links symmetric and never to the test itself; and its plan
+    /// passes the verifier.
+    #[test]
+    fn calendar_keys_then_keys_keep_a_valid_portfolio_that_plans_verified() {
+        for seed in 0..4 {
+            let spec = Spec::medium(seed);
+            let mut p = with_calendar_keys(portfolio(&spec), seed);
+            with_keys(&mut p, seed);
+            assert!(p.experiments.iter().any(|e| e.pools.len() > 1));
+            assert!(p.experiments.iter().any(|e| e.eligible < 1.0));
+            assert!(p.pools.iter().any(|q| q.holdout > 0.0));
+            for (i, e) in p.experiments.iter().enumerate() {
+                assert!(e.eligible > 0.0 && e.eligible <= 1.0);
+                assert!(e.need.total >= 2);
+                for step in &e.ramp {
+                    for &k in &e.pools {
+                        assert!(
+                            step.share <= p.pools[k].capacity(),
+                            "seed {seed}: `{}`",
+                            e.id
+                        );
+                    }
+                }
+                for &j in &e.apart_traffic {
+                    assert_ne!(i, j);
+                    assert!(p.experiments[j].apart_traffic.contains(&i));
+                }
+                for &j in &e.not_with {
+                    assert_ne!(i, j);
+                    assert!(p.experiments[j].not_with.contains(&i));
+                }
+            }
+            let request = crate::schedule::PlanRequest::default();
+            let plan = crate::schedule::plan(&p, &request);
+            if let Err(problems) = crate::schedule::verify(&p, &request, &plan) {
+                panic!("seed {seed}: {problems:#?}");
+            }
+            assert!(plan.solver.value >= plan.greedy_value - 1e-9);
+        }
+    }
 }
