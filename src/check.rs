@@ -229,11 +229,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
 /// The largest share level not above `max_share` nor, on a split pool,
 /// any of its pools' capacity (validation guarantees one).
 pub fn share_for(p: &Portfolio, e: &Experiment) -> Share {
-    let most = e
-        .pools
-        .iter()
-        .map(|&k| p.pools[k].capacity())
-        .fold(e.max_share, Share::min);
+    let most = p.share_cap(e);
     p.share_levels.largest_up_to(most).unwrap_or(most)
 }
 

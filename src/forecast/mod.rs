@@ -224,6 +224,27 @@ impl Series {
         (end < self.units.len()).then_some(end)
     }
 
+    /// The units `experiment` receives at a whole share from `from` to
+    /// `to`: each of its pools' forecasts through [`entering`], summed.
+    pub fn of_test(
+        experiment: &Experiment,
+        pools: &[Pool],
+        from: NaiveDate,
+        to: NaiveDate,
+    ) -> Series {
+        let parts: Vec<(Series, f64)> = experiment
+            .pools
+            .iter()
+            .map(|&k| {
+                (
+                    Series::new(&pools[k], from, to),
+                    entering(experiment, &pools[k]),
+                )
+            })
+            .collect();
+        Series::summed(parts.iter().map(|(s, f)| (s, *f)))
+    }
+
     /// The sum of `parts`, each a series over the same days times a factor.
     pub fn summed<'s>(parts: impl IntoIterator<Item = (&'s Series, f64)>) -> Series {
         let mut start = None;

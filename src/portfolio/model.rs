@@ -586,6 +586,15 @@ impl Portfolio {
         self.experiments.iter().position(|e| e.id == id)
     }
 
+    /// The most of each of its pools experiment `ex` may take: its
+    /// `max_share`, and no more than any of its split pools' capacity.
+    pub fn share_cap(&self, ex: &Experiment) -> Share {
+        ex.pools
+            .iter()
+            .map(|&k| self.pools[k].capacity())
+            .fold(ex.max_share, Share::min)
+    }
+
     /// The fraction of the units under experiment `experiment`'s share of
     /// pool `pool` that enter the test: its `eligible` times the pool's
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.

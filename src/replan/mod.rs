@@ -101,8 +101,7 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split
-            && share > f64::from(split_capacity(p).millionths()) / 1e6 + 1e-9)
+        let over = (p.sharing == Sharing::Split && share > p.capacity().fraction() + 1e-9)
             || count > p.max_concurrent;
         if over {
             let o = out.get_or_insert(Overload {
@@ -115,12 +114,6 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
         }
     }
     out
-}
-
-/// The most a split pool's shares may add up to on a day (the one place
-/// the re-plan reads it): its capacity beside its holdout.
-fn split_capacity(pool: &crate::portfolio::Pool) -> Share {
-    pool.capacity()
 }
 
 /// Re-plans `portfolio` (from [`with_scales`] when there are `--scale`s) from `today`
@@ -238,7 +231,7 @@ pub fn replan(
                 for h in &mut others[today_i.min(mine_to)..mine_to] {
                     *h -= i64::from(live[i].outlook.share.millionths());
                 }
-                let cap = i64::from(split_capacity(&portfolio.pools[pool]).millionths());
+                let cap = i64::from(portfolio.pools[pool].capacity().millionths());
                 (others, cap)
             })
             .collect();

@@ -429,14 +429,9 @@ impl<'a> Instance<'a> {
     pub fn shares(&self, e: usize) -> Vec<Share> {
         let ex = &self.portfolio.experiments[e];
         let floor = ex.ramp.iter().map(|s| s.share).max().unwrap_or(Share::ZERO);
-        let max = ex
-            .pools
-            .iter()
-            .map(|&k| self.portfolio.pools[k].capacity())
-            .fold(ex.max_share, Share::min);
         self.portfolio
             .share_levels
-            .up_to(max)
+            .up_to(self.portfolio.share_cap(ex))
             .filter(|&s| s >= floor)
             .collect()
     }

@@ -38,18 +38,7 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
     let p = inst.portfolio;
     let ex = &p.experiments[e];
     let limit = p.window.end + Duration::days(3 * 366);
-    let parts: Vec<(crate::forecast::Series, f64)> = ex
-        .pools
-        .iter()
-        .map(|&pool| {
-            let def = &p.pools[pool];
-            (
-                crate::forecast::Series::new(def, start, limit),
-                crate::forecast::entering(ex, def),
-            )
-        })
-        .collect();
-    let series = crate::forecast::Series::summed(parts.iter().map(|(s, f)| (s, *f)));
+    let series = crate::forecast::Series::of_test(ex, &p.pools, start, limit);
     series
         .test_end(ex, 0, share.fraction())
         .map(|end| end as i64 + 1)

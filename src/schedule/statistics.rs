@@ -115,25 +115,9 @@ pub fn detectable_effect(ex: &Experiment, units: f64) -> Option<f64> {
     sizing::minimum_detectable_effect(d, per_control).ok()
 }
 
-/// Test `e`'s units from `from` to `to` at a whole share: its pools'
-/// forecasts summed, each through its entering fraction.
-fn test_series(p: &Portfolio, e: usize, from: NaiveDate, to: NaiveDate) -> Series {
-    let parts: Vec<(Series, f64)> = p.experiments[e]
-        .pools
-        .iter()
-        .map(|&k| {
-            (
-                Series::new(&p.pools[k], from, to),
-                p.entering_fraction(e, k),
-            )
-        })
-        .collect();
-    Series::summed(parts.iter().map(|(s, f)| (s, *f)))
-}
-
 /// The day after the run from `run.start` at its share (after its ramp)
 /// has collected `need` units under the plan's run rule, never after its
-/// result date; `series` is [`test_series`] from the run's start.
+/// result date; `series` is [`Series::of_test`] from the run's start.
 fn read_on(series: &Series, ex: &Experiment, run: &Run, need: f64) -> NaiveDate {
     let end = series.ramped_end(
         0,
@@ -154,7 +138,7 @@ fn read_on(series: &Series, ex: &Experiment, run: &Run, need: f64) -> NaiveDate 
 pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
     let ex = &p.experiments[e];
     let looks = ex.looks.as_ref()?;
-    let series = test_series(p, e, run.start, run.end);
+    let series = Series::of_test(ex, &p.pools, run.start, run.end);
     let max = ex.need.total as f64;
     let count = looks.design.information.len();
     let dates: Vec<LookDate> = looks
@@ -248,7 +232,7 @@ fn detectable_where(
     if from > to {
         return None;
     }
-    let series = test_series(p, e, from, to);
+    let series = Series::of_test(ex, &p.pools, from, to);
     // A run is one contiguous span and never crosses a no-running
     // blackout: the longest stretch between them, by units.
     let blocked = |i: usize| {

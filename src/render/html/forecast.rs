@@ -3,18 +3,18 @@
 //! small inline SVG each, so a reader sees what the dates rest on. Pools
 //! without a history get none; a plan without any gets no section.
 
+use super::svg::{PLOT_X1 as X1, SVG_W as W};
 use super::{esc, pool_fill};
 use crate::plan::{Plan, PoolPlan};
 use crate::render::common::{short_date, units};
 use chrono::NaiveDate;
 use std::fmt::Write;
 
-/// Width and height of one chart, in user units.
-const W: f64 = 1040.0;
+/// Height of one chart, in user units; its width and right edge are the
+/// other charts' (`SVG_W`, `PLOT_X1` in `svg.rs`).
 const H: f64 = 170.0;
 /// The plotting area.
 const X0: f64 = 70.0;
-const X1: f64 = 1024.0;
 const Y0: f64 = 16.0;
 const Y1: f64 = 146.0;
 

@@ -13,11 +13,11 @@ use chrono::{Duration, NaiveDate};
 use std::fmt::Write;
 
 /// Width of the SVG charts in user units; they scale to the page width.
-const SVG_W: f64 = 1040.0;
+pub(super) const SVG_W: f64 = 1040.0;
 /// Left edge of the plotting area (the labels sit to its left).
 const PLOT_X0: f64 = 210.0;
 /// Right edge of the plotting area.
-const PLOT_X1: f64 = 1024.0;
+pub(super) const PLOT_X1: f64 = 1024.0;
 /// Height of one experiment row in the calendar chart: its id over its
 /// title beside a bar.
 const ROW_H: f64 = 34.0;
