@@ -34,6 +34,51 @@ pub(crate) struct State {
     pub count: Vec<Vec<u32>>,
     /// Objective value of the free tests scheduled.
     pub value: f64,
+    /// The largest of `share` over each block of [`BLOCK`] segments.
+    share_top: Vec<Vec<i64>>,
+    /// The largest of `count` over each block of [`BLOCK`] segments.
+    count_top: Vec<Vec<u32>>,
+}
+
+/// Segments per block of the running maxima that let `fits` pass over a
+/// long run block by block rather than segment by segment (a ramp cuts
+/// the days into segments of a day or two, so a year's run may cover
+/// hundreds).
+const BLOCK: usize = 16;
+
+/// The largest value of each block of [`BLOCK`] in `v`.
+fn tops<T: Copy + Ord + Default>(v: &[T]) -> Vec<T> {
+    v.chunks(BLOCK)
+        .map(|c| c.iter().copied().max().unwrap_or_default())
+        .collect()
+}
+
+/// Whether every value of `v[lo..=hi]` is at most `most`, read through
+/// the block maxima `top` wherever a whole block lies inside the range.
+fn all_at_most<T: Copy + Ord>(v: &[T], top: &[T], lo: usize, hi: usize, most: T) -> bool {
+    let mut i = lo;
+    while i <= hi {
+        if i.is_multiple_of(BLOCK) && i + BLOCK - 1 <= hi {
+            if top[i / BLOCK] > most {
+                return false;
+            }
+            i += BLOCK;
+        } else {
+            if v[i] > most {
+                return false;
+            }
+            i += 1;
+        }
+    }
+    true
+}
+
+/// Recomputes the block maxima `top` of the blocks holding `v[lo..=hi]`.
+fn refresh<T: Copy + Ord + Default>(v: &[T], top: &mut [T], lo: usize, hi: usize) {
+    for b in lo / BLOCK..=hi / BLOCK {
+        let end = ((b + 1) * BLOCK).min(v.len());
+        top[b] = v[b * BLOCK..end].iter().copied().max().unwrap_or_default();
+    }
 }
 
 impl State {
@@ -64,7 +109,17 @@ impl State {
                 })
                 .collect(),
             value: 0.0,
+            share_top: Vec::new(),
+            count_top: Vec::new(),
         }
+        .with_tops()
+    }
+
+    /// Fills the block maxima from `share` and `count`.
+    fn with_tops(mut self) -> State {
+        self.share_top = self.share.iter().map(|v| tops(v)).collect();
+        self.count_top = self.count.iter().map(|v| tops(v)).collect();
+        self
     }
 
     /// The option test `e` runs with, if scheduled.
@@ -85,22 +140,22 @@ impl State {
     pub fn fits(&self, inst: &Instance, e: usize, o: &Opt) -> bool {
         let p = inst.portfolio;
         let ex = &p.experiments[e];
-        let cuts = &inst.segments[0];
         for &pool in &ex.pools {
             let def = &p.pools[pool];
-            let counts = &self.count[pool][o.seg_lo..=o.seg_hi];
-            if counts.iter().any(|&c| c >= def.max_concurrent) {
+            let (counts, top) = (&self.count[pool], &self.count_top[pool]);
+            let Some(most) = def.max_concurrent.checked_sub(1) else {
+                return false;
+            };
+            if !all_at_most(counts, top, o.seg_lo, o.seg_hi, most) {
                 return false;
             }
             if def.sharing == Sharing::Split {
+                let (used, top) = (&self.share[pool], &self.share_top[pool]);
                 let cap = room(def);
-                let used = &self.share[pool][o.seg_lo..=o.seg_hi];
-                let firsts = &cuts[o.seg_lo..=o.seg_hi];
-                if used
-                    .iter()
-                    .zip(firsts)
-                    .any(|(&u, &day)| u + micro(inst.share_at(e, o, day)) > cap)
-                {
+                let clear = all_phases(inst, e, o, |lo, hi, share| {
+                    all_at_most(used, top, lo, hi, cap - micro(share))
+                });
+                if !clear {
                     return false;
                 }
             }
@@ -176,13 +231,15 @@ impl State {
     /// Adds (`sign` 1) or takes away (-1) option `o` of `e` on each of its
     /// pools.
     fn occupy(&mut self, inst: &Instance, e: usize, o: &Opt, sign: i64) {
-        let cuts = &inst.segments[0];
         for &pool in &inst.portfolio.experiments[e].pools {
-            let firsts = &cuts[o.seg_lo..=o.seg_hi];
-            let shares = self.share[pool][o.seg_lo..=o.seg_hi].iter_mut();
-            for (used, &day) in shares.zip(firsts) {
-                *used += sign * micro(inst.share_at(e, o, day));
-            }
+            let used = &mut self.share[pool];
+            all_phases(inst, e, o, |lo, hi, share| {
+                let add = sign * micro(share);
+                for u in &mut used[lo..=hi] {
+                    *u += add;
+                }
+                true
+            });
             for count in &mut self.count[pool][o.seg_lo..=o.seg_hi] {
                 if sign > 0 {
                     *count += 1;
@@ -190,6 +247,9 @@ impl State {
                     *count -= 1;
                 }
             }
+            let (lo, hi) = (o.seg_lo, o.seg_hi);
+            refresh(&self.share[pool], &mut self.share_top[pool], lo, hi);
+            refresh(&self.count[pool], &mut self.count_top[pool], lo, hi);
         }
     }
 
@@ -230,4 +290,33 @@ impl State {
     pub fn best_fit(&self, inst: &Instance, e: usize) -> Option<usize> {
         inst.options[e].iter().position(|o| self.fits(inst, e, o))
     }
+}
+
+/// Calls `each` with the phases of test `e`'s run with option `o` in
+/// segments, (first segment, last segment, share): each ramp step it
+/// reaches, then its planned share; stops at the first `false` and
+/// returns whether none was. The segments are cut at every step's end, so
+/// a share is constant across each phase.
+fn all_phases(
+    inst: &Instance,
+    e: usize,
+    o: &Opt,
+    mut each: impl FnMut(usize, usize, Share) -> bool,
+) -> bool {
+    let cuts = &inst.segments[0];
+    let mut day = o.start;
+    let mut seg = o.seg_lo;
+    for step in &inst.portfolio.experiments[e].ramp {
+        if day > o.end {
+            return true;
+        }
+        let last = (day + step.days as usize - 1).min(o.end);
+        let last_seg = cuts.partition_point(|&b| b <= last) - 1;
+        if !each(seg, last_seg, step.share) {
+            return false;
+        }
+        day = last + 1;
+        seg = last_seg + 1;
+    }
+    seg > o.seg_hi || each(seg, o.seg_hi, o.share)
 }
