@@ -73,10 +73,6 @@ pub(crate) struct Sub<'s> {
     pub allowed: Vec<Vec<usize>>,
     /// Tests fixed to run (their allowed options sum to exactly 1).
     pub forced: Vec<bool>,
-    /// The weight of each test's options in the objective (1 but in the
-    /// pool-by-pool bound, where a test on several pools counts a part in
-    /// each).
-    pub weight: Vec<f64>,
 }
 
 impl<'s> Sub<'s> {
@@ -90,7 +86,6 @@ impl<'s> Sub<'s> {
                 .map(|&e| (0..inst.options[e].len()).collect())
                 .collect(),
             forced: vec![false; exps.len()],
-            weight: vec![1.0; exps.len()],
         }
     }
 }
@@ -108,9 +103,9 @@ pub(crate) struct Solved {
 type Terms = Vec<(usize, usize, f64)>;
 
 /// Rows of the model.
-struct Rows {
+pub(crate) struct Rows {
     /// (terms, right-hand side): sum coef x <= rhs.
-    le: Vec<(Terms, f64)>,
+    pub le: Vec<(Terms, f64)>,
 }
 
 /// A run's phase: first day, last day, share.
@@ -157,11 +152,17 @@ fn breakpoints(spans: impl Iterator<Item = (usize, usize)>) -> Vec<usize> {
     pts
 }
 
+/// Every row of the model of `sub`.
 fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
-    let p = inst.portfolio;
+    let mut rows = test_rows(sub);
+    rows.le.extend(linking_rows(inst, sub).le);
+    rows
+}
+
+/// The rows of each test alone: at most one option (exactly one when
+/// forced).
+fn test_rows(sub: &Sub) -> Rows {
     let mut le = Vec::new();
-    let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
-    // At most one option per test (exactly one when forced: added as >= 1 below).
     for i in 0..sub.exps.len() {
         if sub.allowed[i].len() > 1 {
             le.push((
@@ -176,6 +177,15 @@ fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
             ));
         }
     }
+    Rows { le }
+}
+
+/// The rows that link tests: pool capacity, `not_with`, `apart` and
+/// `after`.
+pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
+    let p = inst.portfolio;
+    let mut le = Vec::new();
+    let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
     // Pool capacity per segment.
     let mut pools: Vec<usize> = sub
         .exps
@@ -375,16 +385,19 @@ fn failed(e: good_lp::ResolutionError) -> Failed {
     }
 }
 
-/// Solves the model of `sub`: the LP relaxation, or the exact 0-1 model
-/// when `integer`.
-pub(crate) fn solve(
+/// The variables, objective, variables per test and rows of the model of
+/// `sub` in good_lp's terms.
+fn model(
     inst: &Instance,
     sub: &Sub,
-    backend: Backend,
     integer: bool,
-    seconds: f64,
     start: Option<&[Option<usize>]>,
-) -> Result<Solved, Failed> {
+) -> (
+    ProblemVariables,
+    Expression,
+    Vec<Vec<Variable>>,
+    Vec<Constraint>,
+) {
     let rows = build_rows(inst, sub);
     let mut vars = ProblemVariables::new();
     let mut xs: Vec<Vec<Variable>> = Vec::with_capacity(sub.exps.len());
@@ -404,7 +417,7 @@ pub(crate) fn solve(
                 def = def.initial(if init[i] == Some(j) { 1.0 } else { 0.0 });
             }
             let x = vars.add(def);
-            objective.add_mul(sub.weight[i] * inst.options[e][k].value, x);
+            objective.add_mul(inst.options[e][k].value, x);
             v.push(x);
         }
         xs.push(v);
@@ -420,6 +433,43 @@ pub(crate) fn solve(
             ex.leq(*rhs)
         })
         .collect();
+    (vars, objective, xs, constraints)
+}
+
+/// The bound HiGHS proves on the exact 0-1 model of `sub` within
+/// `seconds` (presolve and cuts on, one thread): its MIP dual bound, or
+/// the optimum when it finishes. A reference for the benchmark, far too
+/// slow for planning; `None` when HiGHS fails.
+#[cfg(feature = "highs")]
+pub(crate) fn proved_bound(inst: &Instance, sub: &Sub, seconds: f64) -> Option<f64> {
+    let (vars, objective, _, constraints) = model(inst, sub, true, None);
+    let mut m = vars
+        .maximise(objective)
+        .using(good_lp::solvers::highs::highs);
+    for c in constraints {
+        m.add_constraint(c);
+    }
+    let mut highs = m.try_into_inner().ok()?;
+    highs.set_option("output_flag", false);
+    highs.set_option("threads", 1);
+    highs.set_option("time_limit", seconds.max(0.01));
+    highs.set_option("mip_rel_gap", 1e-6);
+    let solved = highs.try_solve().ok()?;
+    let bound = solved.double_info_value(c"mip_dual_bound").ok()?;
+    bound.is_finite().then_some(bound)
+}
+
+/// Solves the model of `sub`: the LP relaxation, or the exact 0-1 model
+/// when `integer`.
+pub(crate) fn solve(
+    inst: &Instance,
+    sub: &Sub,
+    backend: Backend,
+    integer: bool,
+    seconds: f64,
+    start: Option<&[Option<usize>]>,
+) -> Result<Solved, Failed> {
+    let (vars, objective, xs, constraints) = model(inst, sub, integer, start);
     let problem = vars.maximise(objective.clone());
     let seconds = seconds.max(0.01);
     let (value, x, optimal) = match backend {
