@@ -6,7 +6,10 @@
 //! `SLUICE_BENCH_ROW`), so its peak memory (`VmHWM` of /proc/self/status)
 //! is that row's alone. With the `highs` feature the benchmark also solves
 //! the exact 0-1 model of small and medium portfolios to record the proven
-//! optimum. Timings are measured, never asserted.
+//! optimum, and for the large ones, whose optimum is out of its reach,
+//! records the bound HiGHS proves on the exact model within
+//! `SLUICE_BENCH_PROOF_SECONDS` (300 by default; columns `proved` and
+//! `v/proved`). Timings are measured, never asserted.
 //!
 //! After the plan rows come re-plan rows (`small-replan`, ...): each size is
 //! planned, then re-planned from the window's middle (the first start-grid
@@ -48,6 +51,13 @@ struct Row {
     value_over_optimum: Option<f64>,
     greedy_over_bound: f64,
     peak_mb: f64,
+    /// The large rows of the `highs` build: the bound HiGHS proves on the
+    /// exact model in `SLUICE_BENCH_PROOF_SECONDS` (300 by default), and
+    /// the plan's value over it.
+    #[serde(default)]
+    proved_bound: Option<f64>,
+    #[serde(default)]
+    value_over_proved: Option<f64>,
     /// Extra, beyond the fields: the greedy value and the status.
     greedy: f64,
     status: String,
@@ -104,6 +114,28 @@ fn proven_optimum(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
         ..PlanRequest::default()
     };
     schedule::exact_value(portfolio, &exact, 300.0)
+}
+
+/// The bound HiGHS proves on the exact model of a large portfolio, where
+/// the optimum is out of its reach (run in the `highs` row only: the
+/// table copies it to the other backends' rows of the same portfolio).
+#[cfg(feature = "highs")]
+fn proved_bound(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
+    let exact = PlanRequest {
+        backend: Backend::Highs,
+        ..PlanRequest::default()
+    };
+    let seconds = std::env::var("SLUICE_BENCH_PROOF_SECONDS")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(300.0);
+    schedule::proved_bound(portfolio, &exact, seconds)
+}
+
+/// Without HiGHS nothing proves a bound here.
+#[cfg(not(feature = "highs"))]
+fn proved_bound(_: &sluice::portfolio::Portfolio) -> Option<f64> {
+    None
 }
 
 /// Without HiGHS nothing proves an optimum here.
@@ -249,6 +281,8 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         value_over_optimum: None,
         greedy_over_bound: plan.greedy_value / s.bound,
         peak_mb: peak,
+        proved_bound: None,
+        value_over_proved: None,
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified: true,
@@ -272,10 +306,11 @@ fn run_row(size: &str, backend: &str) -> Row {
     let verified = schedule::verify(&portfolio, &request, &plan).is_ok();
     let peak = peak_mb();
     // The proven optimum, from the exact model, where HiGHS is built.
-    let optimum = if size.starts_with("large") {
-        None
+    let (optimum, proved) = if size.starts_with("large") {
+        let proves = backend.name() == "highs";
+        (None, proves.then(|| proved_bound(&portfolio)).flatten())
     } else {
-        proven_optimum(&portfolio)
+        (proven_optimum(&portfolio), None)
     };
     let s = &plan.solver;
     Row {
@@ -289,6 +324,8 @@ fn run_row(size: &str, backend: &str) -> Row {
         value_over_optimum: optimum.map(|o| s.value / o),
         greedy_over_bound: plan.greedy_value / s.bound,
         peak_mb: peak,
+        proved_bound: proved,
+        value_over_proved: proved.map(|b| s.value / b),
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified,
@@ -323,7 +360,7 @@ fn main() {
     let mut rows = Vec::new();
     let mut failed = false;
     println!(
-        "{:<13} {:<8} {:>8} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8}",
+        "{:<13} {:<8} {:>8} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8} {:>9} {:>8}",
         "size",
         "backend",
         "seconds",
@@ -333,9 +370,12 @@ fn main() {
         "v/bound",
         "v/opt",
         "g/bound",
-        "peak MB"
+        "peak MB",
+        "proved",
+        "v/proved"
     );
     for size in &rows_to_run {
+        let mut size_rows: Vec<Row> = Vec::new();
         for backend in Backend::available() {
             let out = Command::new(&exe)
                 .env("SLUICE_BENCH_ROW", format!("{size}:{}", backend.name()))
@@ -351,9 +391,18 @@ fn main() {
                 failed = true;
                 continue;
             };
-            let r: Row = serde_json::from_str(line).expect("the child prints a row");
+            size_rows.push(serde_json::from_str(line).expect("the child prints a row"));
+        }
+        // The bound HiGHS proved (in the `highs` row) holds for every
+        // backend's plan of the same portfolio.
+        let proved = size_rows.iter().find_map(|r| r.proved_bound);
+        for mut r in size_rows {
+            if let Some(b) = proved {
+                r.proved_bound = Some(b);
+                r.value_over_proved = Some(r.value / b);
+            }
             println!(
-                "{:<13} {:<8} {:>8.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0}{}",
+                "{:<13} {:<8} {:>8.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0} {:>9} {:>8}{}",
                 r.size,
                 r.backend,
                 r.seconds,
@@ -365,6 +414,9 @@ fn main() {
                     .map_or("-".to_string(), |o| format!("{o:.3}")),
                 r.greedy_over_bound,
                 r.peak_mb,
+                r.proved_bound.map_or("-".to_string(), |o| format!("{o:.2}")),
+                r.value_over_proved
+                    .map_or("-".to_string(), |o| format!("{o:.3}")),
                 if r.verified { "" } else { "  NOT VERIFIED" }
             );
             rows.push(r);

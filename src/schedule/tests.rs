@@ -711,6 +711,34 @@ fn highs_and_microlp_agree_within_their_gaps() {
     }
 }
 
+/// The bound HiGHS proves for the benchmark's reference column sits
+/// between the 0-1 optimum HiGHS proves and the planner's own bound, and
+/// meets the optimum when there is time to finish: on medium portfolios
+/// with every key (tests on several pools, where the LP bound is loose).
+#[cfg(feature = "highs")]
+#[test]
+fn the_proved_bound_lies_between_the_optimum_and_the_planners_bound() {
+    for seed in 1..3 {
+        let spec = synthetic::Spec::medium(seed);
+        let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), seed);
+        synthetic::with_keys(&mut p, seed);
+        let highs_request = PlanRequest {
+            backend: Backend::Highs,
+            ..PlanRequest::default()
+        };
+        let micro = plan(&p, &PlanRequest::default());
+        let proved = proved_bound(&p, &highs_request, 120.0).expect("HiGHS bounds it");
+        let opt = exact_value(&p, &highs_request, 120.0).expect("HiGHS proves the optimum");
+        let tol = 1e-6 * opt.max(1.0);
+        assert!(micro.solver.value <= opt + tol, "seed {seed}");
+        assert!(
+            (proved - opt).abs() <= tol,
+            "seed {seed}: {proved} vs {opt}"
+        );
+        assert!(proved <= micro.solver.bound + tol, "seed {seed}");
+    }
+}
+
 /// The plan's bytes with the one measured number left out.
 fn untimed(mut plan: Plan) -> Plan {
     plan.solver.seconds = 0.0;
