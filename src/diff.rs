@@ -104,7 +104,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         }
         experiments.push(ExperimentDiff {
             id: n.id.clone(),
-            pool: n.pools.first().cloned().unwrap_or_default(),
+            pools: n.pools.clone(),
             movement: mv,
             old_status: o.map(|o| o.status),
             new_status: Some(n.status),
@@ -119,7 +119,7 @@ pub fn diff(old: &Plan, new: &Plan) -> PlanDiff {
         if !new.experiments.iter().any(|n| n.id == o.id) {
             experiments.push(ExperimentDiff {
                 id: o.id.clone(),
-                pool: o.pools.first().cloned().unwrap_or_default(),
+                pools: o.pools.clone(),
                 movement: Movement::Dropped,
                 old_status: Some(o.status),
                 new_status: None,

@@ -839,8 +839,10 @@ pub enum Movement {
 pub struct ExperimentDiff {
     /// The experiment's id.
     pub id: String,
-    /// Its (first) pool's id (in the new plan, else the old).
-    pub pool: String,
+    /// Its pools' ids (in the new plan, else the old): more than one for
+    /// a test on several pools.
+    #[serde(default)]
+    pub pools: Vec<String>,
     /// How it moved.
     pub movement: Movement,
     /// Its status in the old plan; `None` when it was not in it.

@@ -301,6 +301,61 @@ fn a_running_multi_pool_and_a_ramping_test_keep_their_dates_and_shares() {
     );
 }
 
+/// A re-plan's change list names every pool of a test on several pools,
+/// in the JSON and in the text table, not just the first one.
+#[test]
+fn the_change_list_names_every_pool_of_a_test_on_several() {
+    let (dir, path) = quarter(QUARTER);
+    let previous = dir.path().join("plan.json");
+    cmd(&[
+        "plan",
+        path.to_str().unwrap(),
+        "--format",
+        "json",
+        "--no-timing",
+        "--out",
+        previous.to_str().unwrap(),
+    ])
+    .stdout();
+    let progress = dir.path().join("progress.yaml");
+    std::fs::write(
+        &progress,
+        "experiments:\n  - {id: checkout-ramp, state: cancelled}\n",
+    )
+    .unwrap();
+    let replan = |format: &str| {
+        cmd(&[
+            "replan",
+            path.to_str().unwrap(),
+            "--progress",
+            progress.to_str().unwrap(),
+            "--today",
+            "2027-04-19",
+            "--previous",
+            previous.to_str().unwrap(),
+            "--format",
+            format,
+            "--no-timing",
+        ])
+        .stdout()
+    };
+    let r: Value = serde_json::from_str(&replan("json")).unwrap();
+    let changes = r["changes"]["experiments"].as_array().unwrap();
+    let wide = changes.iter().find(|e| e["id"] == "header-wide").unwrap();
+    assert_eq!(
+        wide["pools"],
+        serde_json::json!(["home", "search", "product"])
+    );
+    assert!(wide.get("pool").is_none());
+    let ramp = changes.iter().find(|e| e["id"] == "checkout-ramp").unwrap();
+    assert_eq!(ramp["pools"], serde_json::json!(["product"]));
+    let text = replan("text");
+    let row = text
+        .lines()
+        .find(|l| l.contains("header-wide") && l.contains("home, search, product"));
+    assert!(row.is_some(), "{text}");
+}
+
 #[test]
 fn bad_calendar_keys_are_named_at_their_line() {
     let cases = [

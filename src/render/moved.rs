@@ -278,7 +278,7 @@ pub const COLUMNS: [Column; 8] = [
 fn cells(e: &ExperimentDiff) -> [String; 8] {
     [
         e.id.clone(),
-        e.pool.clone(),
+        e.pools.join(", "),
         date(e.old_result_date),
         date(e.new_result_date),
         slip(e.slip_days),

@@ -157,7 +157,9 @@ fn for_terminal(plan: &Plan) -> Plan {
     if let Some(c) = &mut p.changes {
         for e in &mut c.experiments {
             e.id = clean(&e.id);
-            e.pool = clean(&e.pool);
+            for pool in &mut e.pools {
+                *pool = clean(pool);
+            }
         }
         for list in [
             &mut c.no_longer_fit,
