@@ -1340,3 +1340,40 @@ fn a_test_kept_apart_on_traffic_names_its_partner() {
         "fits alone, but is kept apart on traffic from `big` (2027-01-04 to 2027-01-31), which the plan keeps, and no share level fits beside it"
     );
 }
+
+/// A component past the size of one LP (8,000 options) gets the
+/// Lagrangian bound and a search started from its rounding: the plan
+/// passes the verifier, is worth at least greedy, stays under its bound,
+/// finishes its work budget rather than the clock, and comes out the same
+/// twice.
+#[test]
+fn a_component_past_one_lps_size_plans_verified_from_the_lagrangian_bound() {
+    let spec = synthetic::Spec {
+        tests: 70,
+        pools: 4,
+        weeks: 52,
+        seed: 1,
+    };
+    let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), 1);
+    synthetic::with_keys(&mut p, 1);
+    let request = PlanRequest::default();
+    let inst = Instance::new(&p, &request);
+    let biggest = components(&inst)
+        .iter()
+        .map(|c| c.iter().map(|&e| inst.options[e].len()).sum::<usize>())
+        .max()
+        .unwrap_or(0);
+    assert!(
+        biggest > 8000,
+        "{biggest} options: the LP path, not the Lagrangian"
+    );
+    let first = plan(&p, &request);
+    if let Err(v) = verify(&p, &request, &first) {
+        panic!("verifier: {v:#?}");
+    }
+    let s = &first.solver;
+    assert!(!s.cut_short);
+    assert!(s.value >= first.greedy_value - 1e-9);
+    assert!(s.value <= s.bound + 1e-9 * s.bound);
+    assert_eq!(untimed(first.clone()), untimed(plan(&p, &request)));
+}
