@@ -2,7 +2,7 @@
 //! dual of the same model, by subgradient optimisation.
 //!
 //! Every row that links tests (pool capacity, `not_with`, `apart`,
-//! `after`; `lp::linking_rows`) moves into the objective with a price
+//! `after`; `lp::each_linking_row`) moves into the objective with a price
 //! `mu >= 0`. What is left falls apart test by test: each test takes its
 //! option of largest priced value, or none when every one is negative. For
 //! any prices the sum of those choices plus `mu . b` is an upper bound on
@@ -19,7 +19,7 @@
 //! Every step is counted, not timed, and sums run in a fixed order, so the
 //! same component always gets the same bound.
 
-use super::lp::{linking_rows, Solved, Sub};
+use super::lp::{each_linking_row, Solved, Sub};
 use super::options::Instance;
 use super::search::Deadline;
 
@@ -59,13 +59,16 @@ impl Columns {
             value.extend(sub.allowed[i].iter().map(|&k| inst.options[e][k].value));
         }
         first.push(value.len());
-        let rows = linking_rows(inst, sub).le;
+        // Two passes over the rows as they are made (counting, then
+        // filling), so they are never all held at once beside the columns.
         let mut count = vec![0usize; value.len() + 1];
-        for (terms, _) in &rows {
-            for &(i, j, _) in terms {
+        let mut rhs = Vec::new();
+        each_linking_row(inst, sub, &mut |terms, b| {
+            for (i, j, _) in terms {
                 count[first[i] + j + 1] += 1;
             }
-        }
+            rhs.push(b);
+        });
         for c in 1..count.len() {
             count[c] += count[c - 1];
         }
@@ -74,20 +77,22 @@ impl Columns {
         let mut row = vec![0u32; nnz];
         let mut coef = vec![0.0; nnz];
         let mut next = count;
-        for (r, (terms, _)) in rows.iter().enumerate() {
-            for &(i, j, a) in terms {
+        let mut r = 0u32;
+        each_linking_row(inst, sub, &mut |terms, _| {
+            for (i, j, a) in terms {
                 let c = first[i] + j;
-                row[next[c]] = r as u32;
+                row[next[c]] = r;
                 coef[next[c]] = a;
                 next[c] += 1;
             }
-        }
+            r += 1;
+        });
         Columns {
             first,
             at,
             row,
             coef,
-            rhs: rows.iter().map(|(_, b)| *b).collect(),
+            rhs,
             value,
         }
     }
@@ -244,7 +249,9 @@ mod tests {
         let exps: Vec<usize> = inst.free().collect();
         assert_eq!(exps.len(), 3);
         let sub = Sub::all(&inst, &exps);
-        assert!(linking_rows(&inst, &sub).le.is_empty());
+        let mut rows = 0;
+        each_linking_row(&inst, &sub, &mut |_, _| rows += 1);
+        assert_eq!(rows, 0);
         let cut = Cell::new(false);
         let deadline = Deadline::new(Instant::now() + Duration::from_secs(60), &cut);
         let dual = bound(&inst, &sub, 0.0, STEPS, deadline).expect("one step");

@@ -100,12 +100,12 @@ pub(crate) struct Solved {
 }
 
 /// A row's coefficients: (test position, allowed position, coefficient).
-type Terms = Vec<(usize, usize, f64)>;
+pub(crate) type Terms = Vec<(usize, usize, f64)>;
 
 /// Rows of the model.
-pub(crate) struct Rows {
+struct Rows {
     /// (terms, right-hand side): sum coef x <= rhs.
-    pub le: Vec<(Terms, f64)>,
+    le: Vec<(Terms, f64)>,
 }
 
 /// A run's phase: first day, last day, share.
@@ -155,7 +155,7 @@ fn breakpoints(spans: impl Iterator<Item = (usize, usize)>) -> Vec<usize> {
 /// Every row of the model of `sub`.
 fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
     let mut rows = test_rows(sub);
-    rows.le.extend(linking_rows(inst, sub).le);
+    each_linking_row(inst, sub, &mut |terms, rhs| rows.le.push((terms, rhs)));
     rows
 }
 
@@ -180,11 +180,11 @@ fn test_rows(sub: &Sub) -> Rows {
     Rows { le }
 }
 
-/// The rows that link tests: pool capacity, `not_with`, `apart` and
-/// `after`.
-pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
+/// Hands each row that links tests (pool capacity, `not_with`, `apart`,
+/// `after`) to `sink` as it is made, so a caller that stores rows its own
+/// way never holds them all twice.
+pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(Terms, f64)) {
     let p = inst.portfolio;
-    let mut le = Vec::new();
     let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
     // Pool capacity per segment.
     let mut pools: Vec<usize> = sub
@@ -245,7 +245,7 @@ pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
             }
             max_share_sum += cur_max;
             if distinct as f64 > count_left {
-                le.push((c.iter().map(|&(i, j, _)| (i, j, 1.0)).collect(), count_left));
+                sink(c.iter().map(|&(i, j, _)| (i, j, 1.0)).collect(), count_left);
             }
             if split && max_share_sum > share_left + 1e-9 {
                 // Valid cuts the share row alone misses: at most k runs
@@ -260,10 +260,10 @@ pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
                     let mut tests: Vec<usize> = big.iter().map(|&(i, _, _)| i).collect();
                     tests.dedup();
                     if tests.len() > k && (k as f64) < count_left {
-                        le.push((big, k as f64));
+                        sink(big, k as f64);
                     }
                 }
-                le.push((c, share_left));
+                sink(c, share_left);
             }
         }
     }
@@ -302,7 +302,7 @@ pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
             }
             for (s, c) in cover.into_iter().enumerate() {
                 if has[s][0] && has[s][1] {
-                    le.push((c, 1.0));
+                    sink(c, 1.0);
                 }
             }
         }
@@ -338,7 +338,7 @@ pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
                     })
                     .sum();
                 if has_a && has_b && most > 1.0 + 1e-9 {
-                    le.push((c, 1.0));
+                    sink(c, 1.0);
                 }
             }
         }
@@ -362,11 +362,10 @@ pub(crate) fn linking_rows(inst: &Instance, sub: &Sub) -> Rows {
                         .filter(|&j| opt(a_pos, j).end + 1 + gap as usize <= t)
                         .map(|j| (a_pos, j, -1.0)),
                 );
-                le.push((row, 0.0));
+                sink(row, 0.0);
             }
         }
     }
-    Rows { le }
 }
 
 /// Why a model has no solution.
