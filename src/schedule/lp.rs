@@ -438,7 +438,7 @@ fn model(
 /// The bound HiGHS proves on the exact 0-1 model of `sub` within
 /// `seconds` (presolve and cuts on, one thread): its MIP dual bound, or
 /// the optimum when it finishes. A reference for the benchmark, far too
-/// slow for planning; `None` when HiGHS fails.
+/// slow for planning; `None` when HiGHS fails or has no finite bound yet.
 #[cfg(feature = "highs")]
 pub(crate) fn proved_bound(inst: &Instance, sub: &Sub, seconds: f64) -> Option<f64> {
     let (vars, objective, _, constraints) = model(inst, sub, true, None);

@@ -308,7 +308,8 @@ pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -
 /// `seconds`, component by component (each gets time in proportion to its
 /// options): its MIP dual bound, which its cuts and branching bring below
 /// the LP relaxation the planner's own bound reaches. For the benchmark's
-/// reference column; `None` when HiGHS fails on a component.
+/// reference column; `None` when HiGHS fails on a component or has no
+/// finite bound for it yet (its root LP unfinished in the time given).
 #[cfg(feature = "highs")]
 pub fn proved_bound(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -> Option<f64> {
     let inst = Instance::new(portfolio, request);
