@@ -69,6 +69,22 @@ fn plan_json(path: &Path) -> Value {
     serde_json::from_str(&out).unwrap()
 }
 
+/// `sluice replan` of the quarter on its fifteenth day (2027-04-19) from
+/// `progress`, with `extra` arguments, untimed; its standard output.
+fn replan_on_day_15(path: &Path, progress: &Path, extra: &[&str]) -> String {
+    let mut args = vec![
+        "replan",
+        path.to_str().unwrap(),
+        "--progress",
+        progress.to_str().unwrap(),
+        "--today",
+        "2027-04-19",
+        "--no-timing",
+    ];
+    args.extend_from_slice(extra);
+    cmd(&args).stdout()
+}
+
 fn by_id<'v>(v: &'v Value, id: &str) -> &'v Value {
     v["experiments"]
         .as_array()
@@ -262,18 +278,7 @@ fn a_running_multi_pool_and_a_ramping_test_keep_their_dates_and_shares() {
         ),
     )
     .unwrap();
-    let out = cmd(&[
-        "replan",
-        path.to_str().unwrap(),
-        "--progress",
-        progress.to_str().unwrap(),
-        "--today",
-        "2027-04-19",
-        "--format",
-        "json",
-        "--no-timing",
-    ])
-    .stdout();
+    let out = replan_on_day_15(&path, &progress, &["--format", "json"]);
     let r: Value = serde_json::from_str(&out).unwrap();
     for (id, share) in [
         ("header-wide", wide["share"].clone()),
@@ -323,21 +328,13 @@ fn the_change_list_names_every_pool_of_a_test_on_several() {
         "experiments:\n  - {id: checkout-ramp, state: cancelled}\n",
     )
     .unwrap();
+    let previous = previous.to_str().unwrap();
     let replan = |format: &str| {
-        cmd(&[
-            "replan",
-            path.to_str().unwrap(),
-            "--progress",
-            progress.to_str().unwrap(),
-            "--today",
-            "2027-04-19",
-            "--previous",
-            previous.to_str().unwrap(),
-            "--format",
-            format,
-            "--no-timing",
-        ])
-        .stdout()
+        replan_on_day_15(
+            &path,
+            &progress,
+            &["--previous", previous, "--format", format],
+        )
     };
     let r: Value = serde_json::from_str(&replan("json")).unwrap();
     let changes = r["changes"]["experiments"].as_array().unwrap();
