@@ -12,7 +12,8 @@
 //! Mathematical Programming Study 2). The prices follow the subgradient
 //! with the step of Held, Wolfe & Crowder (1974, "Validation of subgradient
 //! optimization", Mathematical Programming 6): `theta (L - floor) / |g|^2`,
-//! `theta` halved whenever the bound stalls. The average of the choices
+//! `theta` halved whenever the bound stalls (both references cited from
+//! memory). The average of the choices
 //! over the later iterations estimates the LP solution, for the rounding
 //! that starts the search.
 //!
