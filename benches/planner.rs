@@ -106,14 +106,19 @@ fn peak_mb() -> f64 {
         .map_or(f64::NAN, |kb| kb / 1024.0)
 }
 
+/// A request for HiGHS, the backend that proves optima and bounds.
+#[cfg(feature = "highs")]
+fn highs_request() -> PlanRequest {
+    PlanRequest {
+        backend: Backend::Highs,
+        ..PlanRequest::default()
+    }
+}
+
 /// The optimum of the exact 0-1 model, proved by HiGHS.
 #[cfg(feature = "highs")]
 fn proven_optimum(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
-    let exact = PlanRequest {
-        backend: Backend::Highs,
-        ..PlanRequest::default()
-    };
-    schedule::exact_value(portfolio, &exact, 300.0)
+    schedule::exact_value(portfolio, &highs_request(), 300.0)
 }
 
 /// The bound HiGHS proves on the exact model of a large portfolio, where
@@ -121,15 +126,11 @@ fn proven_optimum(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
 /// table copies it to the other backends' rows of the same portfolio).
 #[cfg(feature = "highs")]
 fn proved_bound(portfolio: &sluice::portfolio::Portfolio) -> Option<f64> {
-    let exact = PlanRequest {
-        backend: Backend::Highs,
-        ..PlanRequest::default()
-    };
     let seconds = std::env::var("SLUICE_BENCH_PROOF_SECONDS")
         .ok()
         .and_then(|s| s.parse().ok())
         .unwrap_or(300.0);
-    schedule::proved_bound(portfolio, &exact, seconds)
+    schedule::proved_bound(portfolio, &highs_request(), seconds)
 }
 
 /// Without HiGHS nothing proves a bound here.

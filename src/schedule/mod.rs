@@ -174,6 +174,15 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
     groups
 }
 
+/// The options of a component's tests, at least one: the weight by which
+/// components share a time limit.
+fn options_of(inst: &Instance, comp: &[usize]) -> f64 {
+    comp.iter()
+        .map(|&e| inst.options[e].len() as f64)
+        .sum::<f64>()
+        .max(1.0)
+}
+
 /// Plans the portfolio. Always returns a plan: when the solver fails or the
 /// time limit runs out, the best calendar found so far (at worst the greedy
 /// one), with the bound and gap that could be proved. With
@@ -213,12 +222,7 @@ fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
             search::relax(&inst, comp, request.backend, floor, deadline)
         })
         .collect();
-    let weight = |comp: &Vec<usize>| -> f64 {
-        comp.iter()
-            .map(|&e| inst.options[e].len() as f64)
-            .sum::<f64>()
-            .max(1.0)
-    };
+    let weight = |comp: &Vec<usize>| options_of(&inst, comp);
     let mut weight_left: f64 = comps.iter().map(weight).sum();
     for (comp, lp) in comps.iter().zip(&relaxed) {
         let share = weight(comp) / weight_left.max(1.0);
@@ -314,12 +318,7 @@ pub fn exact_value(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -
 pub fn proved_bound(portfolio: &Portfolio, request: &PlanRequest, seconds: f64) -> Option<f64> {
     let inst = Instance::new(portfolio, request);
     let comps = components(&inst);
-    let options = |comp: &Vec<usize>| -> f64 {
-        comp.iter()
-            .map(|&e| inst.options[e].len() as f64)
-            .sum::<f64>()
-            .max(1.0)
-    };
+    let options = |comp: &Vec<usize>| options_of(&inst, comp);
     let all: f64 = comps.iter().map(options).sum();
     let mut total = inst.fixed_value();
     for comp in &comps {
