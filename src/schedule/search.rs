@@ -1,5 +1,6 @@
 //! The optimiser of one component (tests linked by pools, `not_with` or
-//! `after`): the LP relaxation for the bound, LP-guided rounding and a
+//! `after`): the LP relaxation for the bound (the Lagrangian bound of
+//! `lagrange` past 8,000 options), LP-guided rounding and a
 //! fix-and-resolve dive for starting calendars, then a seeded large
 //! neighbourhood search (remove the tests around a pool and span, around a
 //! left-out test's option, or a few at random, and re-insert everything
