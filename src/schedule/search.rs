@@ -1,10 +1,11 @@
 //! The optimiser of one component (tests linked by pools, `not_with` or
 //! `after`): the LP relaxation for the bound (the Lagrangian bound of
-//! `lagrange` past 8,000 options), LP-guided rounding and a
-//! fix-and-resolve dive for starting calendars, then a seeded large
-//! neighbourhood search (remove the tests around a pool and span, around a
-//! left-out test's option, or a few at random, and re-insert everything
-//! that fits, best value first with a little noise) that keeps the best.
+//! `lagrange` past 8,000 options), LP-guided rounding for the starting
+//! calendar, then a seeded large neighbourhood search (remove the tests
+//! around a pool and span, around a left-out test's option, or a few at
+//! random, and re-insert everything that fits, best value first with a
+//! little noise) that keeps the best; then, on small components, a branch
+//! and bound over LP relaxations, and with HiGHS the exact MILP.
 //!
 //! Every step is counted in iterations, not seconds, so the same input
 //! gives the same plan; the wall clock only cuts the search short when the
