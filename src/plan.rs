@@ -7,6 +7,7 @@
 //! It also holds [`PlanDiff`], what moved since a previous plan, which a
 //! re-plan carries; `crate::diff` computes it from two plans.
 
+pub use crate::forecast::fit::LevelRule;
 pub use crate::portfolio::{BlackoutKind, Sharing};
 use crate::share::Share;
 use chrono::NaiveDate;
@@ -587,6 +588,30 @@ pub struct TrafficSoFar {
     pub difference: f64,
     /// How the re-plan's forecast of the pool was made from it.
     pub refit: Refit,
+    /// `units / forecast − 1` over the traffic's last 14 days (all of
+    /// them when fewer): the news a whole-quarter average hides.
+    #[serde(default)]
+    pub last_14_days: f64,
+    /// A lasting change of the pool's level found in its recent days
+    /// (history and traffic); `null` when none.
+    #[serde(default)]
+    pub shift: Option<TrafficShift>,
+    /// Which days the new level was taken from.
+    #[serde(default = "recent_rule")]
+    pub level: LevelRule,
+}
+
+fn recent_rule() -> LevelRule {
+    LevelRule::Recent
+}
+
+/// A lasting change of a pool's level.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct TrafficShift {
+    /// The first day at the new level.
+    pub date: NaiveDate,
+    /// The relative change: −0.3 is a 30% drop.
+    pub change: f64,
 }
 
 /// How a re-plan turned a pool's actual traffic into its forecast.

@@ -159,8 +159,9 @@ fn daily_and_weekday_pattern_override_the_fit() {
 
 #[test]
 fn a_trend_carries_into_the_plan_days() {
-    // +1% of the level a week, noiseless: the forecast 10 weeks after the
-    // history's end is 10% higher than at its end.
+    // +1% of the level a week, noiseless: the fitted slope is about 1% a
+    // week, and ten weeks on it is damped by 0.9 a week (Gardner &
+    // McKenzie 1985): exp(b x 0.9 (1 - 0.9^10) / 0.1), 5.86 weeks' worth.
     let start = chrono::NaiveDate::from_ymd_opt(2026, 6, 1).unwrap();
     let mut s = String::from("date,units\n");
     let days = 84;
@@ -180,8 +181,12 @@ fn a_trend_carries_into_the_plan_days() {
     let pool = &loaded.pools[0];
     let end = start + chrono::Duration::days(days - 1);
     let at = |k: i64| sluice::forecast::units_on(pool, end + chrono::Duration::days(k));
-    assert!((at(0) / 5000.0 - 1.0).abs() < 2e-3, "{}", at(0));
-    assert!((at(70) / at(0) - 1.1).abs() < 2e-3, "{}", at(70));
+    assert!((at(0) / 5000.0 - 1.0).abs() < 0.01, "{}", at(0));
+    let path = pool.forecast.level_path.as_ref().unwrap();
+    assert!((path.per_week - 0.01).abs() < 0.0015, "{path:?}");
+    let damped = (path.per_week * 0.9 * (1.0 - 0.9f64.powi(10)) / 0.1).exp();
+    assert!((at(70) / at(0) - damped).abs() < 1e-9, "{}", at(70));
+    assert!(at(70) / at(0) > 1.05 && at(70) / at(0) < 1.07);
 }
 
 /// Runs `check` on the scratch portfolio; returns stderr, insisting on exit 2.

@@ -5,8 +5,9 @@
 //! from [`crate::forecast::report`]; this file words them.
 
 use super::{Error, TextOrJson};
+use crate::forecast::fit::LevelRule;
 use crate::forecast::report::{self, Chart, ForecastReport, PoolForecast};
-use crate::words::{percent, trimmed, units};
+use crate::words::{percent, trimmed, units, Count};
 use clap::Args;
 use std::path::PathBuf;
 
@@ -22,6 +23,11 @@ pub struct ForecastArgs {
     /// Show only this pool
     #[arg(long, value_name = "ID")]
     pub pool: Option<String>,
+    /// Also show how the fit forecast the history itself, from weekly
+    /// origins over its last year: the error 1, 4 and 13 weeks ahead and
+    /// how often the P10-P90 range held the real total
+    #[arg(long)]
+    pub backtest: bool,
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
     pub format: TextOrJson,
@@ -37,7 +43,7 @@ pub fn run(a: &ForecastArgs) -> Result<Vec<u8>, Error> {
         })?),
         None => None,
     };
-    let r = report::report(&p, pool);
+    let r = report::report(&p, pool, a.backtest);
     match a.format {
         TextOrJson::Json => super::json_bytes(&r),
         TextOrJson::Text => Ok(text(&r).into_bytes()),
@@ -83,19 +89,55 @@ fn pool_text(p: &PoolForecast) -> String {
         format!("{} units on an average day at {}", units(p.level), h.to),
     );
     row(&mut out, "weekday pattern", pattern);
+    if let Some(s) = &p.shift {
+        row(
+            &mut out,
+            "shift",
+            format!(
+                "the level changed by {} from {} ({} usable days since)",
+                signed_percent(s.change),
+                s.date,
+                s.days_after
+            ),
+        );
+    }
+    row(&mut out, "level from", level_words(p));
     row(
         &mut out,
         "trend",
-        if p.trend_per_week == 0.0 {
-            "none".to_string()
-        } else {
-            format!(
-                "{}{}% a week",
-                sign(p.trend_per_week),
-                trimmed(p.trend_per_week.abs() * 100.0, 2)
-            )
+        match p.trend_kind {
+            "yearly" => format!(
+                "{} a year (growth year over year), carried forward",
+                signed_percent((1.0 + p.trend_per_week).powi(52) - 1.0)
+            ),
+            "damped" => format!(
+                "{}% a week at the history's end, damped by a tenth each week",
+                format_args!(
+                    "{}{}",
+                    sign(p.trend_per_week),
+                    trimmed(p.trend_per_week.abs() * 100.0, 2)
+                )
+            ),
+            _ => "none".to_string(),
         },
     );
+    if p.yearly_season {
+        row(
+            &mut out,
+            "season",
+            "yearly: the coming weeks follow the same weeks of earlier years".to_string(),
+        );
+    }
+    if p.trend_effect.abs() > report::TREND_WARNING {
+        row(
+            &mut out,
+            "warning",
+            format!(
+                "the trend alone moves the window's total by {}; check it before planning on it",
+                signed_percent(p.trend_effect)
+            ),
+        );
+    }
     if let (Some(d), Some(l)) = (p.daily_cv, p.level_cv) {
         row(
             &mut out,
@@ -118,6 +160,30 @@ fn pool_text(p: &PoolForecast) -> String {
             None => "needs eight weeks of history (four to fit, four to hold out)".to_string(),
         },
     );
+    if let Some(b) = &p.backtest {
+        let mape = |m: Option<f64>| m.map_or("-".to_string(), percent);
+        row(
+            &mut out,
+            "backtest",
+            format!(
+                "from {} weekly origins: MAPE {} one week ahead, {} four weeks, {} thirteen weeks",
+                b.origins,
+                mape(b.mape_1w),
+                mape(b.mape_4w),
+                mape(b.mape_13w)
+            ),
+        );
+        let held = |c: Option<f64>| c.map_or("-".to_string(), percent);
+        row(
+            &mut out,
+            "",
+            format!(
+                "the P10-P90 range held the real total {} of the time over four weeks, {} over thirteen",
+                held(b.coverage_4w),
+                held(b.coverage_13w)
+            ),
+        );
+    }
     if !p.overridden.is_empty() {
         let keys: Vec<String> = p.overridden.iter().map(|k| format!("`{k}`")).collect();
         row(
@@ -142,6 +208,37 @@ fn pool_text(p: &PoolForecast) -> String {
         );
     }
     out
+}
+
+/// Which days the level came from.
+fn level_words(p: &PoolForecast) -> String {
+    let mut w = match p.level_rule {
+        LevelRule::Recent => "the last four weeks".to_string(),
+        LevelRule::SinceShift => "the days since the shift".to_string(),
+        LevelRule::ShortSinceShift => {
+            "the days since the shift: fewer than a week, so a rough level".to_string()
+        }
+    };
+    if p.events > 0 {
+        w.push_str(&format!(
+            "; {} {} left out of the fit",
+            p.events,
+            Count("event", p.events)
+        ));
+    }
+    if p.newest_set_aside > 0 {
+        w.push_str(&format!(
+            "; the last {} {} set aside (too few to tell a shift from a holiday)",
+            p.newest_set_aside,
+            Count("day", p.newest_set_aside)
+        ));
+    }
+    w
+}
+
+/// A relative change with its sign, e.g. `-30%`.
+fn signed_percent(x: f64) -> String {
+    format!("{}{}", sign(x), percent(x.abs()))
 }
 
 fn sign(x: f64) -> &'static str {

@@ -2,18 +2,23 @@
 //! day-by-day run length of a test that takes a constant share of them.
 //!
 //! Pure functions of a [`Pool`] and dates. The rule for a day: the pool's
-//! daily level (grown or shrunk by its linear trend, if it has one) times
+//! daily level (moved along its fitted path, a damped trend or the yearly
+//! season, if it has one) times
 //! the weekday multiplier (Monday first); then the adjustments covering
 //! the day compose: the last `level` among them (in file order) replaces
 //! that value, and every `multiply` among them scales it, all multiplied
 //! together (a campaign x1.3 inside a seasonal dip x0.8 gives x1.04). Last,
 //! every what-if scale whose date has come multiplies the result. Every later computation (check, plan,
 //! re-plan, renderers) reads traffic through this module. [`fit`] fits the
-//! level, pattern and trend from a pool's daily history; [`report`] is
-//! what `sluice forecast` shows of it.
+//! level, pattern, trend and season from a pool's daily history, with
+//! [`shift`] finding a recent change of level and [`backtest`] scoring the
+//! fit from rolling origins and calibrating its spread; [`report`] is what
+//! `sluice forecast` shows of it.
 
+pub mod backtest;
 pub mod fit;
 pub mod report;
+pub mod shift;
 pub mod uncertainty;
 
 use crate::portfolio::{Change, Experiment, Pool};
@@ -22,8 +27,8 @@ use chrono::{Datelike, Duration, NaiveDate};
 /// Eligible units of `pool` on `date`.
 pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     let f = &pool.forecast;
-    let level = match f.trend {
-        Some(t) => f.daily * (1.0 + t.per_week * (date - t.from).num_days() as f64 / 7.0).max(0.0),
+    let level = match &f.level_path {
+        Some(path) => f.daily * path.factor(date),
         None => f.daily,
     };
     let base = level * f.weekday[date.weekday().num_days_from_monday() as usize];
@@ -328,7 +333,7 @@ mod tests {
                 weekday,
                 adjustments,
                 scales: Vec::new(),
-                trend: None,
+                level_path: None,
                 history: None,
                 uncertainty: None,
             },

@@ -2,7 +2,8 @@
 //! four weeks held out, and the days a chart of history and forecast
 //! draws. Facts only; `cli::forecast` words them.
 
-use super::fit;
+use super::backtest::Backtest;
+use super::fit::{self, LevelRule, Shift};
 use crate::portfolio::{Pool, Portfolio};
 use chrono::{Duration, NaiveDate};
 use serde::Serialize;
@@ -35,6 +36,25 @@ pub struct PoolForecast {
     pub weekday_pattern: [f64; 7],
     /// Relative change of the level per week; 0 without a trend.
     pub trend_per_week: f64,
+    /// How the trend is carried forward: `damped` (less than a year of
+    /// history), `yearly` (growth year over year with the yearly season)
+    /// or `none`.
+    pub trend_kind: &'static str,
+    /// Whether the yearly season shapes the forecast (a year of history
+    /// or more).
+    pub yearly_season: bool,
+    /// How much the trend alone moves the planning window's total units,
+    /// relative (0 without a trend).
+    pub trend_effect: f64,
+    /// A recent shift of the level found in the history; `null` when none.
+    pub shift: Option<Shift>,
+    /// Which days the level was taken from.
+    pub level_rule: LevelRule,
+    /// The newest days set aside as too few to tell a shift from a
+    /// holiday.
+    pub newest_set_aside: usize,
+    /// Known events in the history, left out of the fit.
+    pub events: usize,
     /// Day-to-day noise as a coefficient of variation (with a history).
     pub daily_cv: Option<f64>,
     /// The level's error over four weeks as a coefficient of variation
@@ -46,6 +66,9 @@ pub struct PoolForecast {
     /// Portfolio keys that replace fitted values (`daily`,
     /// `weekday_pattern`).
     pub overridden: Vec<&'static str>,
+    /// The backtest from rolling origins (with `--backtest`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub backtest: Option<Backtest>,
     /// The chart: the last weeks of history and the first weeks of the
     /// forecast after them (with a history).
     #[serde(skip)]
@@ -75,19 +98,57 @@ pub struct Chart {
     pub forecast: Vec<f64>,
 }
 
-/// The report for `p`'s pools, or only `pool` when given (which must exist).
-pub fn report(p: &Portfolio, pool: Option<usize>) -> ForecastReport {
+/// The share of the window's total that the trend alone may move before
+/// `sluice forecast` warns.
+pub const TREND_WARNING: f64 = 0.10;
+
+/// The report for `p`'s pools, or only `pool` when given (which must
+/// exist); `backtest` adds each fitted pool's backtest.
+pub fn report(p: &Portfolio, pool: Option<usize>, backtest: bool) -> ForecastReport {
     let pools = p
         .pools
         .iter()
         .enumerate()
         .filter(|(i, _)| pool.is_none_or(|k| k == *i))
-        .map(|(_, pool)| pool_forecast(pool))
+        .map(|(_, pool)| {
+            let mut f = pool_forecast(pool, p.window.start, p.window.end);
+            if !backtest {
+                f.backtest = None;
+            }
+            f
+        })
         .collect();
     ForecastReport { pools }
 }
 
-fn pool_forecast(pool: &Pool) -> PoolForecast {
+/// The relative change of the pool's total over `from..=to` that its
+/// trend makes (the season and everything else kept).
+fn trend_effect(pool: &Pool, from: NaiveDate, to: NaiveDate) -> f64 {
+    let Some(path) = &pool.forecast.level_path else {
+        return 0.0;
+    };
+    if path.per_week == 0.0 {
+        return 0.0;
+    }
+    let mut flat = pool.clone();
+    if let Some(p) = &mut flat.forecast.level_path {
+        p.per_week = 0.0;
+    }
+    let total = |pool: &Pool| -> f64 {
+        let days = (to - from).num_days().max(0);
+        (0..=days)
+            .map(|k| super::units_on(pool, from + Duration::days(k)))
+            .sum()
+    };
+    let base = total(&flat);
+    if base > 0.0 {
+        total(pool) / base - 1.0
+    } else {
+        0.0
+    }
+}
+
+fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
     let f = &pool.forecast;
     let Some(h) = &f.history else {
         return PoolForecast {
@@ -97,10 +158,18 @@ fn pool_forecast(pool: &Pool) -> PoolForecast {
             level: f.daily,
             weekday_pattern: f.weekday,
             trend_per_week: 0.0,
+            trend_kind: "none",
+            yearly_season: false,
+            trend_effect: 0.0,
+            shift: None,
+            level_rule: LevelRule::Recent,
+            newest_set_aside: 0,
+            events: 0,
             daily_cv: None,
             level_cv: None,
             mape: None,
             overridden: Vec::new(),
+            backtest: None,
             chart: None,
         };
     };
@@ -131,10 +200,22 @@ fn pool_forecast(pool: &Pool) -> PoolForecast {
         level: h.fit.level,
         weekday_pattern: h.fit.weekday_pattern,
         trend_per_week: h.fit.trend_per_week,
+        trend_kind: match (h.fit.trend_per_week != 0.0, h.fit.yearly_season) {
+            (false, _) => "none",
+            (true, true) => "yearly",
+            (true, false) => "damped",
+        },
+        yearly_season: h.fit.yearly_season,
+        trend_effect: trend_effect(pool, from, to),
+        shift: h.fit.shift,
+        level_rule: h.fit.level_rule,
+        newest_set_aside: h.fit.newest_set_aside,
+        events: h.events.len(),
         daily_cv: Some(h.fit.daily_cv),
         level_cv: Some(h.fit.level_cv),
-        mape: fit::holdout_mape(h.start, &h.units, h.trend),
+        mape: fit::holdout_mape(h.start, &h.units, h.trend, &h.skipped()),
         overridden,
+        backtest: h.fit.backtest.clone(),
         chart: Some(chart),
     }
 }

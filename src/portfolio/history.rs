@@ -5,8 +5,8 @@
 //! [`MAX_PROBLEMS`]).
 
 use super::checker::Checker;
-use super::model::History;
-use super::raw::Text;
+use super::model::{event_days, Event, History};
+use super::raw::{RawEvent, Text};
 use crate::diagnostic::Diagnostic;
 use crate::forecast::fit;
 use chrono::{Duration, NaiveDate};
@@ -243,6 +243,7 @@ pub(crate) fn pool_history(
     who: &str,
     file: Option<&Text>,
     trend: Option<bool>,
+    events: Option<&[RawEvent]>,
 ) -> Option<History> {
     let trend = trend.unwrap_or(false);
     let Some(file) = file else {
@@ -251,6 +252,13 @@ pub(crate) fn pool_history(
                 &format!("{key}.trend"),
                 format!("{who}`trend: true` needs a `history` to fit it from"),
                 "add `history: FILE.csv` (columns `date,units`), or remove `trend`",
+            );
+        }
+        if events.is_some() {
+            ck.err(
+                &format!("{key}.events"),
+                format!("{who}`events` mark days of a `history`, and this pool has none"),
+                "add `history: FILE.csv`, or remove `events` (dated changes of a typed forecast are `adjustments`)",
             );
         }
         return None;
@@ -275,12 +283,16 @@ pub(crate) fn pool_history(
             return None;
         }
     };
-    match fit::fit(daily.start, &daily.units, trend) {
+    let last = daily.start + chrono::Duration::days(daily.units.len() as i64 - 1);
+    let events = checked_events(ck, key, who, events, daily.start, last)?;
+    let skip = event_days(daily.start, daily.units.len(), &events);
+    match fit::fit(daily.start, &daily.units, trend, &skip) {
         Ok(fit) => Some(History {
             file: file.as_str().to_string(),
             start: daily.start,
             units: daily.units,
             trend,
+            events,
             fit,
         }),
         Err(e) => {
@@ -292,6 +304,65 @@ pub(crate) fn pool_history(
             None
         }
     }
+}
+
+/// The `events` at `{key}.events` of a history from `first` to `last`:
+/// each needs `from` and `to` inside those days, in order; `None` when any
+/// has a problem (recorded on `ck`).
+pub(crate) fn checked_events(
+    ck: &mut Checker,
+    key: &str,
+    who: &str,
+    raw: Option<&[RawEvent]>,
+    first: NaiveDate,
+    last: NaiveDate,
+) -> Option<Vec<Event>> {
+    let before = ck.errors.len();
+    let mut out = Vec::new();
+    for (j, e) in raw.unwrap_or_default().iter().enumerate() {
+        let at = |k: &str| format!("{key}.events[{j}].{k}");
+        let mut day = |k: &str, v: &Option<Text>| -> Option<NaiveDate> {
+            if v.is_none() {
+                ck.err(
+                    &format!("{key}.events[{j}]"),
+                    format!("{who}event {} has no `{k}`", j + 1),
+                    "give both days, e.g. `{from: 2026-11-27, to: 2026-11-30, note: autumn sale}`",
+                );
+                return None;
+            }
+            let d = ck.date(&at(k), &format!("{who}event `{k}`"), v, "2026-11-27")?;
+            if d < first || d > last {
+                ck.err(
+                    &at(k),
+                    format!("{who}event `{k}` {d} is outside the history, which runs from {first} to {last}"),
+                    "an event marks days of the file; remove it or correct its date",
+                );
+                return None;
+            }
+            Some(d)
+        };
+        let (from, to) = (day("from", &e.from), day("to", &e.to));
+        if let (Some(from), Some(to)) = (from, to) {
+            if to < from {
+                ck.err(
+                    &at("to"),
+                    format!("{who}event `to` {to} is before its `from` {from}"),
+                    "`to` is the event's last day, on or after `from`",
+                );
+                continue;
+            }
+            out.push(Event {
+                from,
+                to,
+                note: e
+                    .note
+                    .as_ref()
+                    .map(|t| t.as_str().to_string())
+                    .unwrap_or_default(),
+            });
+        }
+    }
+    (ck.errors.len() == before).then_some(out)
 }
 
 /// The 1-based column and width of comma-separated field `field` in `line`.

@@ -210,8 +210,9 @@ pub struct Forecast {
     /// What-if scalings from the command line (`--scale POOL=FACTOR@DATE`):
     /// each multiplies every day from its date on, on top of the rest.
     pub scales: Vec<Scale>,
-    /// A linear trend of the level (`trend: true` with a `history`).
-    pub trend: Option<Trend>,
+    /// The level's path after the history: its trend (`trend: true`)
+    /// and yearly season (a year of history or more).
+    pub level_path: Option<LevelPath>,
     /// The history the level, pattern and trend were fitted from, if any.
     pub history: Option<History>,
     /// The forecast's error as the portfolio gives it (`uncertainty`);
@@ -252,14 +253,66 @@ impl Uncertainty {
     }
 }
 
-/// A linear trend: on `date` the level is `daily x (1 + per_week x weeks
-/// since from)`, never below 0.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
-pub struct Trend {
+/// The path of a pool's level after its history's last day, fitted from
+/// the history: a trend (damped when the history is shorter than a year)
+/// and, with a year or more of history, the yearly season. On `date` the
+/// level is `daily x` [`LevelPath::factor`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LevelPath {
     /// The day the level is `daily` (the history's last day).
     pub from: NaiveDate,
-    /// The relative change of the level per week.
+    /// The trend: the log of the level's change per week at `from`.
     pub per_week: f64,
+    /// The trend's damping per week (Gardner & McKenzie 1985): week w
+    /// after `from` adds `per_week x damping^w`; 1 keeps it constant.
+    pub damping: f64,
+    /// The yearly season: the log of the level on day `from + 1 + i`
+    /// against `from`, for a year; later days repeat it. Empty without
+    /// one.
+    #[serde(skip)]
+    pub season: Vec<f64>,
+}
+
+impl LevelPath {
+    /// The level on `date` over the level on `from`. Before `from` the
+    /// trend runs back undamped and the season is left out.
+    pub fn factor(&self, date: NaiveDate) -> f64 {
+        let days = (date - self.from).num_days();
+        let weeks = days as f64 / 7.0;
+        let trend = if days <= 0 || self.damping >= 1.0 {
+            self.per_week * weeks
+        } else {
+            let phi = self.damping;
+            self.per_week * phi * (1.0 - phi.powf(weeks)) / (1.0 - phi)
+        };
+        let season = match (days, self.season.len()) {
+            (d, len) if d > 0 && len > 0 => self.season[(d as usize - 1) % len],
+            _ => 0.0,
+        };
+        (trend + season).exp()
+    }
+}
+
+/// A span of a history's days that are not the pool's normal traffic (a
+/// campaign, an outage, a tracking fault): left out of the fit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Event {
+    /// The first day.
+    pub from: NaiveDate,
+    /// The last day (inclusive).
+    pub to: NaiveDate,
+    /// What happened.
+    pub note: String,
+}
+
+/// For each of `days` days from `start`, whether one of `events` covers it.
+pub fn event_days(start: NaiveDate, days: usize, events: &[Event]) -> Vec<bool> {
+    (0..days)
+        .map(|i| {
+            let d = start + chrono::Duration::days(i as i64);
+            events.iter().any(|e| e.from <= d && d <= e.to)
+        })
+        .collect()
 }
 
 /// A pool's daily history (`history: FILE.csv`) and the model fitted to it.
@@ -273,6 +326,8 @@ pub struct History {
     pub units: Vec<f64>,
     /// Whether a trend was fitted (`trend: true`).
     pub trend: bool,
+    /// Known events in the history, left out of the fit (`events`).
+    pub events: Vec<Event>,
     /// The fitted model (before `daily` or `weekday_pattern` override it).
     pub fit: crate::forecast::fit::Fit,
 }
@@ -281,6 +336,11 @@ impl History {
     /// The history's last day.
     pub fn end(&self) -> NaiveDate {
         self.start + chrono::Duration::days(self.units.len() as i64 - 1)
+    }
+
+    /// For each day, whether an event covers it (left out of the fit).
+    pub fn skipped(&self) -> Vec<bool> {
+        event_days(self.start, self.units.len(), &self.events)
     }
 }
 

@@ -117,11 +117,21 @@ pub struct RawPool {
     pub weekday_pattern: Option<Vec<f64>>,
     pub history: Option<Text>,
     pub trend: Option<bool>,
+    pub events: Option<Vec<RawEvent>>,
     pub adjustments: Option<Vec<RawAdjustment>>,
     pub sharing: Option<Text>,
     pub max_concurrent: Option<f64>,
     pub uncertainty: Option<RawUncertainty>,
     pub holdout: Option<f64>,
+}
+
+/// A known event in a history: `{from, to, note}`.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields)]
+pub struct RawEvent {
+    pub from: Option<Text>,
+    pub to: Option<Text>,
+    pub note: Option<Text>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -343,6 +353,7 @@ pub fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
         "planning" => fields_of::<RawPlanning>(),
         "pools[]" => fields_of::<RawPool>(),
         "pools[].adjustments[]" => fields_of::<RawAdjustment>(),
+        "pools[].events[]" => fields_of::<RawEvent>(),
         "pools[].uncertainty" => fields_of::<RawUncertainty>(),
         "experiments[]" => fields_of::<RawExperiment>(),
         "experiments[].after[]" => fields_of::<RawAfterGap>(),
@@ -476,6 +487,7 @@ mod tests {
             "planning",
             "pools[]",
             "pools[].adjustments[]",
+            "pools[].events[]",
             "pools[].uncertainty",
             "experiments[]",
             "experiments[].after[]",

@@ -646,6 +646,7 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>, d: &Defaults, levels: &ShareLevels) ->
             &who,
             p.history.as_ref(),
             p.trend,
+            p.events.as_deref(),
         );
         let daily = match p.daily {
             Some(d) => {
@@ -835,10 +836,7 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>, d: &Defaults, levels: &ShareLevels) ->
                 weekday,
                 adjustments,
                 scales: Vec::new(),
-                trend: history.as_ref().filter(|h| h.trend).map(|h| Trend {
-                    from: h.end(),
-                    per_week: h.fit.trend_per_week,
-                }),
+                level_path: history.as_ref().and_then(|h| h.fit.path.clone()),
                 history,
                 uncertainty,
             },

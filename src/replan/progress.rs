@@ -11,10 +11,10 @@
 
 use crate::diagnostic::{self, Diagnostic};
 use crate::forecast;
-use crate::portfolio::raw::{fields_of, Text};
+use crate::portfolio::raw::{fields_of, RawEvent, Text};
 use crate::portfolio::{
-    from_serde, index_of, prepare, read_text, two_documents, unknown_keys, Checker, LoadError,
-    Portfolio,
+    from_serde, index_of, prepare, read_text, two_documents, unknown_keys, Checker, Event,
+    LoadError, Portfolio,
 };
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
@@ -91,6 +91,8 @@ pub struct Observed {
     /// Units per day from `start`, without gaps, up to the day before
     /// `as_of` at the latest.
     pub units: Vec<f64>,
+    /// Known events in these days (`events`), left out of the refit.
+    pub events: Vec<Event>,
 }
 
 impl Observed {
@@ -121,6 +123,7 @@ struct RawTraffic {
     pool: Option<Text>,
     history: Option<Text>,
     days: Option<Vec<RawDay>>,
+    events: Option<Vec<RawEvent>>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -149,6 +152,7 @@ fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
         "experiments[]" => fields_of::<RawEntry>(),
         "traffic[]" => fields_of::<RawTraffic>(),
         "traffic[].days[]" => fields_of::<RawDay>(),
+        "traffic[].events[]" => fields_of::<RawEvent>(),
         _ => return None,
     })
 }
@@ -384,7 +388,22 @@ impl ProgressCheck<'_> {
                 );
                 continue;
             }
-            out.push(Observed { pool, start, units });
+            let Some(events) = crate::portfolio::history::checked_events(
+                &mut self.ck,
+                &at,
+                &format!("the traffic of pool `{id}`: "),
+                t.events.as_deref(),
+                start,
+                end,
+            ) else {
+                continue;
+            };
+            out.push(Observed {
+                pool,
+                start,
+                units,
+                events,
+            });
         }
         out
     }
@@ -737,6 +756,7 @@ mod tests {
                 pool: 0,
                 start: d("2027-01-04"),
                 units: vec![100.0, 120.5],
+                events: Vec::new(),
             }]
         );
         assert_eq!(p.traffic[0].end(), d("2027-01-05"));

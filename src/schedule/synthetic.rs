@@ -109,7 +109,7 @@ pub fn portfolio(spec: &Spec) -> Portfolio {
                     weekday: [1.05, 1.1, 1.1, 1.05, 1.0, 0.8, 0.9],
                     adjustments,
                     scales: Vec::new(),
-                    trend: None,
+                    level_path: None,
                     history: None,
                     uncertainty: None,
                 },

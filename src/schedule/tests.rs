@@ -28,7 +28,7 @@ fn pool(id: &str, daily: f64, sharing: Sharing, cap: u32) -> Pool {
             weekday: [1.0; 7],
             adjustments: Vec::new(),
             scales: Vec::new(),
-            trend: None,
+            level_path: None,
             history: None,
             uncertainty: None,
         },

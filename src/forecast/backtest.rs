@@ -1,0 +1,242 @@
+//! The backtest: how well the fit of [`super::fit`] forecast a pool's own
+//! history, and the calibration of the spread behind result ranges.
+//!
+//! From rolling origins (every week over the last year of the history,
+//! each with at least [`MIN_FIT_DAYS`] days before it) the fit that
+//! planning uses ([`super::fit::fit_point`], never a copy of it) is made
+//! on the days before the origin only, and forecasts the next 13 weeks.
+//! The forecast is scored as in Hyndman & Athanasopoulos ("Forecasting:
+//! Principles and Practice", 3rd ed. 2021, §5.10, time series
+//! cross-validation): the mean absolute percentage error of the daily
+//! forecasts in the 1st, 4th and 13th week ahead, and, for the 4- and
+//! 13-week totals, the log ratio of actual to forecast. Days with no units
+//! or under an event count in neither.
+//!
+//! `level_cv` is then calibrated on those totals' errors: the smallest
+//! level spread σL for which the P10-P90 range of a total (lognormal,
+//! log sd `sqrt(σL² + σD² / days)`, mean 1, as the simulation of result
+//! ranges draws it) holds at least 80% of the real totals of both
+//! horizons together and at least 70% of each. The coverage reported is
+//! that range's, on the same origins.
+
+use super::fit::{fit_point, lognormal_cv};
+use chrono::{Duration, NaiveDate};
+use serde::Serialize;
+
+/// The fewest days a backtest origin fits on.
+pub const MIN_FIT_DAYS: usize = 56;
+/// The most origins: a year of weeks.
+pub const MAX_ORIGINS: usize = 52;
+/// The fewest four-week totals that calibrate `level_cv`.
+pub const MIN_ORIGINS: usize = 4;
+/// The standard normal's 90% quantile.
+const Z90: f64 = 1.281_551_565_544_600_4;
+
+/// A pool's backtest, in the JSON of `sluice forecast`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Backtest {
+    /// The origins forecast from.
+    pub origins: usize,
+    /// Mean absolute percentage error of the daily forecast one week ahead.
+    pub mape_1w: Option<f64>,
+    /// The same four weeks ahead.
+    pub mape_4w: Option<f64>,
+    /// The same thirteen weeks ahead.
+    pub mape_13w: Option<f64>,
+    /// The share of origins whose four-week total fell in its P10-P90
+    /// range.
+    pub coverage_4w: Option<f64>,
+    /// The same for thirteen-week totals.
+    pub coverage_13w: Option<f64>,
+    /// Each origin's four-week total against its range, oldest first (for
+    /// the chart).
+    #[serde(skip)]
+    pub ranges: Vec<OriginRange>,
+}
+
+/// One origin's four-week total: forecast, P10-P90 range and what came.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct OriginRange {
+    /// The first day forecast.
+    pub from: NaiveDate,
+    /// The forecast total.
+    pub forecast: f64,
+    /// Its P10.
+    pub low: f64,
+    /// Its P90.
+    pub high: f64,
+    /// The actual total.
+    pub actual: f64,
+}
+
+/// One total's error: log(actual / forecast), its horizon in days and
+/// the days it counts.
+struct TotalError {
+    error: f64,
+    horizon: usize,
+    days: usize,
+    from: NaiveDate,
+    forecast: f64,
+    actual: f64,
+}
+
+/// The backtest of `units` from `start`, and the calibrated `level_cv`
+/// (`None` with fewer than [`MIN_ORIGINS`] four-week totals).
+pub fn run(
+    start: NaiveDate,
+    units: &[f64],
+    trend: bool,
+    skip: &[bool],
+    daily_cv: f64,
+) -> (Option<Backtest>, Option<f64>) {
+    let n = units.len();
+    let usable = |i: usize| units[i] > 0.0 && !skip.get(i).copied().unwrap_or(false);
+    let mut weeks: [Vec<f64>; 3] = Default::default();
+    let mut totals = Vec::new();
+    let mut origins = 0;
+    let mut o = n.saturating_sub(7);
+    while o >= MIN_FIT_DAYS && origins < MAX_ORIGINS {
+        if let Ok(f) = fit_point(start, &units[..o], trend, &skip[..o.min(skip.len())]) {
+            origins += 1;
+            let ahead = (n - o).min(91);
+            let forecast: Vec<f64> = (0..ahead)
+                .map(|k| f.units_on(start + Duration::days((o + k) as i64)))
+                .collect();
+            for (w, week) in [1usize, 4, 13].iter().enumerate() {
+                for k in 7 * (week - 1)..(7 * week).min(ahead) {
+                    if usable(o + k) {
+                        weeks[w].push((units[o + k] - forecast[k]).abs() / units[o + k]);
+                    }
+                }
+            }
+            for horizon in [28usize, 91] {
+                if ahead < horizon {
+                    continue;
+                }
+                let (mut a, mut fc, mut days) = (0.0, 0.0, 0);
+                for k in (0..horizon).filter(|&k| usable(o + k)) {
+                    a += units[o + k];
+                    fc += forecast[k];
+                    days += 1;
+                }
+                if a > 0.0 && fc > 0.0 {
+                    totals.push(TotalError {
+                        error: (a / fc).ln(),
+                        horizon,
+                        days,
+                        from: start + Duration::days(o as i64),
+                        forecast: fc,
+                        actual: a,
+                    });
+                }
+            }
+        }
+        o -= 7;
+    }
+    if origins == 0 {
+        return (None, None);
+    }
+    let mean = |v: &[f64]| (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64);
+    let s_daily = (1.0 + daily_cv * daily_cv).ln().sqrt();
+    let four = totals.iter().filter(|t| t.horizon == 28).count();
+    let sigma = (four >= MIN_ORIGINS).then(|| calibrate(&totals, s_daily));
+    let coverage = |h: usize| {
+        let s = sigma?;
+        let of: Vec<&TotalError> = totals.iter().filter(|t| t.horizon == h).collect();
+        (!of.is_empty())
+            .then(|| of.iter().filter(|t| covered(t, s, s_daily)).count() as f64 / of.len() as f64)
+    };
+    let mut ranges: Vec<OriginRange> = totals
+        .iter()
+        .filter(|t| t.horizon == 28)
+        .map(|t| {
+            let st = total_sd(sigma.unwrap_or(0.0), s_daily, t.days);
+            OriginRange {
+                from: t.from,
+                forecast: t.forecast,
+                low: t.forecast * (-Z90 * st - st * st / 2.0).exp(),
+                high: t.forecast * (Z90 * st - st * st / 2.0).exp(),
+                actual: t.actual,
+            }
+        })
+        .collect();
+    ranges.reverse();
+    let summary = Backtest {
+        origins,
+        mape_1w: mean(&weeks[0]),
+        mape_4w: mean(&weeks[1]),
+        mape_13w: mean(&weeks[2]),
+        coverage_4w: coverage(28),
+        coverage_13w: coverage(91),
+        ranges,
+    };
+    (Some(summary), sigma.map(lognormal_cv))
+}
+
+/// The log sd of a total over `days` days.
+fn total_sd(level: f64, daily: f64, days: usize) -> f64 {
+    (level * level + daily * daily / days.max(1) as f64).sqrt()
+}
+
+/// Whether `t` fell in its P10-P90 range at level spread `level`.
+fn covered(t: &TotalError, level: f64, daily: f64) -> bool {
+    let s = total_sd(level, daily, t.days);
+    let centre = -s * s / 2.0;
+    (t.error - centre).abs() <= Z90 * s
+}
+
+/// The smallest level spread (in steps of 0.0005) that covers 80% of all
+/// totals and 70% of each horizon's.
+fn calibrate(totals: &[TotalError], daily: f64) -> f64 {
+    let share = |level: f64, h: Option<usize>| {
+        let of: Vec<&TotalError> = totals
+            .iter()
+            .filter(|t| h.is_none_or(|h| t.horizon == h))
+            .collect();
+        if of.is_empty() {
+            return 1.0;
+        }
+        of.iter().filter(|t| covered(t, level, daily)).count() as f64 / of.len() as f64
+    };
+    let mut level = 0.0;
+    while level < 3.0 {
+        if share(level, None) >= 0.8
+            && share(level, Some(28)) >= 0.7
+            && share(level, Some(91)) >= 0.7
+        {
+            break;
+        }
+        level += 0.0005;
+    }
+    level
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn t(error: f64, horizon: usize) -> TotalError {
+        TotalError {
+            error,
+            horizon,
+            days: horizon,
+            from: NaiveDate::from_ymd_opt(2026, 1, 5).unwrap(),
+            forecast: 1.0,
+            actual: error.exp(),
+        }
+    }
+
+    #[test]
+    fn calibration_covers_four_in_five_totals() {
+        // Ten four-week errors from -10% to +10% in log; no daily noise.
+        let totals: Vec<TotalError> = (0..10)
+            .map(|i| t(-0.1 + 0.02 * i as f64 + 0.01, 28))
+            .collect();
+        let s = calibrate(&totals, 0.0);
+        let held = totals.iter().filter(|x| covered(x, s, 0.0)).count();
+        assert_eq!(held, 8, "{s}");
+        // A smaller spread holds fewer.
+        let fewer = totals.iter().filter(|x| covered(x, s - 0.002, 0.0)).count();
+        assert!(fewer < 8);
+    }
+}
