@@ -1104,7 +1104,20 @@ fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
     // many fewer as the late January days ran (a fifth), not the month.
     let today = d(DAY30);
     let ratio = forecast_from(&v, "product", today) / forecast_from(&plain, "product", today);
-    assert!((0.7..0.92).contains(&ratio), "{ratio}");
+    assert!((0.74..0.86).contains(&ratio), "{ratio}");
+    // The shift is found on its day, with about its size, and the level
+    // comes from the days since it; the last 14 days show the drop that
+    // the month's average halves.
+    assert_eq!(product["shift"]["date"], "2027-01-18", "{product}");
+    let change = product["shift"]["change"].as_f64().unwrap();
+    assert!((change + 0.2).abs() < 0.04, "{product}");
+    assert_eq!(product["level"], "since_shift");
+    let recent = product["last_14_days"].as_f64().unwrap();
+    assert!(recent < -0.15 && recent < 2.0 * diff, "{product}");
+    for t in traffic.iter().filter(|t| t["pool"] != "product") {
+        assert!(t["shift"].is_null(), "{t}");
+        assert_eq!(t["level"], "recent", "{t}");
+    }
     // The app's onboarding ran above its forecast and is forecast higher.
     let app = traffic
         .iter()
@@ -1115,19 +1128,43 @@ fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
         forecast_from(&v, "app-onboarding", today) > forecast_from(&plain, "app-onboarding", today)
     );
     let text = replan_text(&demo(), &progress, DAY30, &[]);
-    assert!(text.contains("Traffic so far"), "{text}");
+    // The shift is the news: it comes first.
+    let shift = format!(
+        "Product pages (product): traffic fell {:.1}% from 18 Jan and stayed there",
+        -change * 100.0
+    );
     assert!(
-        text.contains(&format!(
-            "Product pages (product) ran {:.1}% below its forecast from 4 Jan to 2 Feb",
+        text.starts_with(&format!("Traffic shift\n- {shift}")),
+        "{text}"
+    );
+    assert!(text.contains("Traffic so far"), "{text}");
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        flat.contains(&format!(
+            "{shift}; over the last 14 days it ran {:.1}% below its forecast, and {:.1}% below from 4 Jan to 2 Feb",
+            -recent * 100.0,
             -diff * 100.0
         )),
         "{text}"
     );
+    assert!(
+        flat.contains("with the level from the days since the shift."),
+        "{text}"
+    );
     // Markdown and HTML say it too.
     let md = replan_text(&demo(), &progress, DAY30, &["--format", "md"]);
+    assert!(
+        md.starts_with(&format!("## Traffic shift\n\n- {shift}")),
+        "{md}"
+    );
     assert!(md.contains("### Traffic so far\n\n- "), "{md}");
-    assert!(md.contains("\n- Product pages (product) ran "), "{md}");
+    assert!(
+        md.contains(&format!("\n- {shift}; over the last 14 days")),
+        "{md}"
+    );
     let html = replan_text(&demo(), &progress, DAY30, &["--format", "html"]);
+    assert!(html.contains(r#"<h2 id="traffic-shift">Traffic shift</h2>"#));
     assert!(html.contains(r#"<h2 id="traffic-so-far">Traffic so far</h2>"#));
+    assert!(html.find(r#"id="traffic-shift""#).unwrap() < html.find(r#"id="summary""#).unwrap());
     assert_eq!(html.matches("its forecast is fitted again").count(), 5);
 }

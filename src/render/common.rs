@@ -312,32 +312,84 @@ pub fn has_ranges(plan: &Plan) -> bool {
     plan.experiments.iter().any(|e| e.result_range.is_some())
 }
 
-/// A re-plan's actual traffic, one sentence per pool: how far it ran from
-/// its forecast over which days, and how its forecast was made from it.
+/// A re-plan's actual traffic, one paragraph per pool, pools with a
+/// shift first (they are the news): any shift, how far the traffic ran
+/// from its forecast over the last 14 days and since it began, and how the
+/// new forecast was made.
 pub fn traffic_lines(plan: &Plan) -> Vec<String> {
-    plan.traffic
-        .iter()
+    let mut pools: Vec<&crate::plan::TrafficSoFar> = plan.traffic.iter().collect();
+    pools.sort_by_key(|t| t.shift.is_none());
+    pools
+        .into_iter()
         .map(|t| {
-            let direction = if t.difference < 0.0 { "below" } else { "above" };
+            let away = |d: f64| {
+                format!(
+                    "{} {}",
+                    percent(d.abs()),
+                    if d < 0.0 { "below" } else { "above" }
+                )
+            };
+            let news = t.shift.map_or(String::new(), |s| format!("{}; ", shift_words(s)));
+            let days = (t.to - t.from).num_days() + 1;
+            let recent = if days > crate::replan::traffic::RECENT_DAYS as i64 {
+                format!("over the last 14 days it ran {} its forecast, and ", away(t.last_14_days))
+            } else {
+                String::new()
+            };
             let how = match t.refit {
                 crate::plan::Refit::HistoryAndTraffic => {
                     "its forecast is fitted again from its history and this traffic"
                 }
                 crate::plan::Refit::Traffic => "its forecast is fitted from this traffic",
                 crate::plan::Refit::Level => {
-                    "too short to fit: its forecast's level is scaled by the same amount"
+                    "too short to fit: its forecast's level is scaled by actual over forecast units"
+                }
+            };
+            let level = match t.level {
+                crate::plan::LevelRule::Recent => "",
+                crate::plan::LevelRule::SinceShift => ", with the level from the days since the shift",
+                crate::plan::LevelRule::ShortSinceShift => {
+                    ", with the level from the days since the shift (under a week of them: a rough level)"
                 }
             };
             format!(
-                "{} ({}) ran {} {direction} its forecast from {} to {} ({} units against {} forecast); {how}.",
+                "{} ({}): {news}{recent}{} from {} to {} ({} units against {} forecast); {how}{level}.",
                 pool_label(plan, &t.pool),
                 t.pool,
-                percent(t.difference.abs()),
+                away(t.difference),
                 short_date(t.from),
                 short_date(t.to),
                 units(t.units),
                 units(t.forecast),
             )
+        })
+        .collect()
+}
+
+/// A shift in words: `traffic fell 19% from 18 Jan and stayed there`.
+fn shift_words(s: crate::plan::TrafficShift) -> String {
+    format!(
+        "traffic {} {} from {} and stayed there",
+        if s.change < 0.0 { "fell" } else { "rose" },
+        percent(s.change.abs()),
+        short_date(s.date)
+    )
+}
+
+/// The news of a re-plan's traffic, one line per pool whose level shifted:
+/// what every format says first.
+pub fn shift_news(plan: &Plan) -> Vec<String> {
+    plan.traffic
+        .iter()
+        .filter_map(|t| {
+            t.shift.map(|s| {
+                format!(
+                    "{} ({}): {}; the re-plan plans on the new level.",
+                    pool_label(plan, &t.pool),
+                    t.pool,
+                    shift_words(s)
+                )
+            })
         })
         .collect()
 }

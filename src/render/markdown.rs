@@ -97,6 +97,14 @@ impl MarkupTable for Markdown {
 /// summary; empty when the plan has neither.
 fn changes(plan: &Plan) -> String {
     let mut s = String::new();
+    let news = super::common::shift_news(plan);
+    if !news.is_empty() {
+        let _ = writeln!(s, "## Traffic shift\n");
+        for line in news {
+            let _ = writeln!(s, "- {}", escape(&line));
+        }
+        let _ = writeln!(s);
+    }
     if let Some(d) = &plan.changes {
         let _ = writeln!(s, "## {TITLE}\n");
         let _ = writeln!(s, "{}\n", headline(d));

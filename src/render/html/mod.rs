@@ -267,6 +267,17 @@ impl Renderer for Html {
             long_date(plan.today)
         );
         // A re-plan's changes and advice, before the summary.
+        let news = crate::render::common::shift_news(plan);
+        if !news.is_empty() {
+            let _ = writeln!(
+                s,
+                r#"<section class="news"><h2 id="traffic-shift">Traffic shift</h2><ul>"#
+            );
+            for line in news {
+                let _ = writeln!(s, "<li>{}</li>", esc(&line));
+            }
+            let _ = writeln!(s, "</ul></section>");
+        }
         let changes = changes::section(plan);
         if !changes.is_empty() {
             s.push_str(&changes);

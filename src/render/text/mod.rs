@@ -230,8 +230,18 @@ impl Renderer for Text {
         let plan = &for_terminal(plan);
         let width = opts.effective_width();
         let colour = opts.colour;
-        // A re-plan's changes and advice come first: what a planner reads first.
-        let mut out = changes::section(plan, width);
+        // A shift of traffic is the news; then a re-plan's changes and
+        // advice: what a planner reads first.
+        let mut out = String::new();
+        let news = super::common::shift_news(plan);
+        if !news.is_empty() {
+            let _ = writeln!(out, "{}", paint("Traffic shift", "1", colour));
+            for line in news {
+                let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
+            }
+            let _ = writeln!(out);
+        }
+        out.push_str(&changes::section(plan, width));
         let (fit_n, not_n) = counts(plan);
         let _ = writeln!(
             out,
