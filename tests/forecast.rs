@@ -246,3 +246,130 @@ fn history_problems_in_the_portfolio_point_at_the_key() {
     let err = refused(&portfolio(""), &[]);
     assert!(err.contains("or a `history` file"), "{err}");
 }
+
+#[test]
+fn events_outside_the_history_or_out_of_order_are_errors_at_their_key() {
+    // The history runs from 2026-06-01 to 2026-07-05 (35 days).
+    let files = [("web.csv", csv(35, 100.0, [1.0; 7]))];
+    let files: Vec<(&str, &str)> = files.iter().map(|(n, t)| (*n, t.as_str())).collect();
+    let err = refused(
+        &portfolio(
+            "    history: web.csv\n    events:\n      - {from: 2026-06-10, to: 2026-06-12, note: sale}\n      - {from: 2026-07-01, to: 2026-07-09, note: too late}\n",
+        ),
+        &files,
+    );
+    assert!(
+        err.contains(
+            "pool `web`: event `to` 2026-07-09 is outside the days given, which run from 2026-06-01 to 2026-07-05"
+        ),
+        "{err}"
+    );
+    assert!(err.contains("portfolio.yaml:7:32"), "{err}");
+    let err = refused(
+        &portfolio(
+            "    history: web.csv\n    events:\n      - {from: 2026-06-12, to: 2026-06-10}\n",
+        ),
+        &files,
+    );
+    assert!(
+        err.contains("event `to` 2026-06-10 is before its `from` 2026-06-12"),
+        "{err}"
+    );
+    assert!(err.contains("portfolio.yaml:6:32"), "{err}");
+    let err = refused(&portfolio("    daily: 100\n    events: []\n"), &[]);
+    assert!(err.contains("`events` mark days of a `history`"), "{err}");
+    let err = refused(
+        &portfolio("    history: web.csv\n    events:\n      - {from: 2026-06-12, to: 2026-06-14, why: sale}\n"),
+        &files,
+    );
+    assert!(err.contains("`why`"), "{err}");
+}
+
+#[test]
+fn a_campaign_marked_as_an_event_stays_out_of_the_level() {
+    // Ten weeks at 4,000 a day, the last ten days of them at x1.25 (a
+    // campaign). Marked, the level stays 4,000; unmarked, the fit reads
+    // the campaign as a shift and plans on it.
+    let mut text = csv(70, 4000.0, PATTERN);
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    for line in lines.iter_mut().skip(61) {
+        let (d, u) = line.split_once(',').unwrap();
+        *line = format!("{d},{}", (u.parse::<f64>().unwrap() * 1.25).round());
+    }
+    text = lines.join("\n") + "\n";
+    let level = |keys: &str| {
+        let (_dir, p) = folder(&portfolio(keys), &[("web.csv", &text)]);
+        let out = cmd(&["forecast", p.to_str().unwrap(), "--format", "json"]).stdout();
+        let v: Value = serde_json::from_str(&out).unwrap();
+        (
+            v["pools"][0]["level"].as_f64().unwrap(),
+            v["pools"][0]["shift"].clone(),
+        )
+    };
+    let (marked, shift) = level(
+        "    history: web.csv\n    events:\n      - {from: 2026-07-31, to: 2026-08-09, note: summer campaign}\n",
+    );
+    assert!((marked / 4000.0 - 1.0).abs() < 0.01, "{marked}");
+    assert!(shift.is_null());
+    let (unmarked, shift) = level("    history: web.csv\n");
+    assert!(unmarked / 4000.0 > 1.2, "{unmarked}");
+    assert_eq!(shift["date"], "2026-07-31");
+}
+
+#[test]
+fn the_backtest_reports_errors_and_coverage() {
+    let plain: Value =
+        serde_json::from_str(&cmd(&["forecast", &demo(), "--format", "json"]).stdout()).unwrap();
+    assert!(plain["pools"][0].get("backtest").is_none());
+    let out = cmd(&["forecast", &demo(), "--backtest", "--format", "json"]).stdout();
+    let v: Value = serde_json::from_str(&out).unwrap();
+    for p in v["pools"].as_array().unwrap() {
+        let b = &p["backtest"];
+        // 217 days: origins every week from day 56 to day 210.
+        assert_eq!(b["origins"], 23, "{p}");
+        for key in ["mape_1w", "mape_4w", "mape_13w"] {
+            let m = b[key].as_f64().unwrap();
+            assert!(m > 0.0 && m < 0.25, "{}: {key} {m}", p["id"]);
+        }
+        // The spread is calibrated on these origins: 70-90% coverage.
+        for key in ["coverage_4w", "coverage_13w"] {
+            let c = b[key].as_f64().unwrap();
+            assert!((0.7..=0.9).contains(&c), "{}: {key} {c}", p["id"]);
+        }
+    }
+    let text = cmd(&["forecast", &demo(), "--backtest", "--pool", "home"]).stdout();
+    assert!(
+        text.contains("backtest         from 23 weekly origins: MAPE"),
+        "{text}"
+    );
+    assert!(
+        text.contains("the P10-P90 range held the real total"),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_trend_that_moves_the_window_by_more_than_a_tenth_is_flagged() {
+    // +2% a week for 26 weeks, noiseless: damped, the trend still adds
+    // well over 10% to the window's total (it starts 26 weeks later).
+    let start = chrono::NaiveDate::from_ymd_opt(2026, 6, 1).unwrap();
+    let mut s = String::from("date,units\n");
+    for i in 0..182 {
+        let u = 3000.0 * 1.02f64.powf(i as f64 / 7.0);
+        s += &format!("{},{}\n", start + chrono::Duration::days(i), u.round());
+    }
+    let (_dir, p) = folder(
+        &portfolio("    history: web.csv\n    trend: true\n"),
+        &[("web.csv", &s)],
+    );
+    let out = cmd(&["forecast", p.to_str().unwrap()]).stdout();
+    assert!(
+        out.contains("warning          the trend alone moves the window's total by +"),
+        "{out}"
+    );
+    let v: Value =
+        serde_json::from_str(&cmd(&["forecast", p.to_str().unwrap(), "--format", "json"]).stdout())
+            .unwrap();
+    assert!(v["pools"][0]["trend_effect"].as_f64().unwrap() > 0.1);
+    assert_eq!(v["pools"][0]["trend_kind"], "damped");
+}

@@ -334,7 +334,7 @@ pub(crate) fn checked_events(
             if d < first || d > last {
                 ck.err(
                     &at(k),
-                    format!("{who}event `{k}` {d} is outside the history, which runs from {first} to {last}"),
+                    format!("{who}event `{k}` {d} is outside the days given, which run from {first} to {last}"),
                     "an event marks days of the file; remove it or correct its date",
                 );
                 return None;

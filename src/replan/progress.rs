@@ -763,6 +763,29 @@ mod tests {
     }
 
     #[test]
+    fn traffic_events_are_read_and_checked_against_its_days() {
+        let p = load(
+            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-05, units: 900}\n    events:\n      - {from: 2027-01-05, to: 2027-01-05, note: flash sale}\n",
+        )
+        .unwrap();
+        assert_eq!(
+            p.traffic[0].events,
+            vec![Event {
+                from: d("2027-01-05"),
+                to: d("2027-01-05"),
+                note: "flash sale".into()
+            }]
+        );
+        let outside = messages(load(
+            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n    events:\n      - {from: 2027-01-03, to: 2027-01-04}\n",
+        ));
+        assert!(
+            outside.contains("6:traffic[0].events[0].from the traffic of pool `product`: event `from` 2027-01-03 is outside the days given, which run from 2027-01-04 to 2027-01-04"),
+            "{outside}"
+        );
+    }
+
+    #[test]
     fn traffic_problems_are_errors_at_their_keys() {
         let gap = messages(load(
             "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-06, units: 120}\n",
