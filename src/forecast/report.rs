@@ -66,6 +66,11 @@ pub struct PoolForecast {
     /// Portfolio keys that replace fitted values (`daily`,
     /// `weekday_pattern`).
     pub overridden: Vec<&'static str>,
+    /// The forecast's total over the 4 weeks after the history's last day
+    /// (with a history).
+    pub total_4w: Option<f64>,
+    /// The same over 13 weeks.
+    pub total_13w: Option<f64>,
     /// The backtest from rolling origins (with `--backtest`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub backtest: Option<Backtest>,
@@ -169,6 +174,8 @@ fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
             level_cv: None,
             mape: None,
             overridden: Vec::new(),
+            total_4w: None,
+            total_13w: None,
             backtest: None,
             chart: None,
         };
@@ -181,6 +188,11 @@ fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
         overridden.push("weekday_pattern");
     }
     let end = h.end();
+    let ahead = |days: i64| -> f64 {
+        (1..=days)
+            .map(|k| super::units_on(pool, end + Duration::days(k)))
+            .sum()
+    };
     let shown = (CHART_HISTORY_WEEKS * 7).min(h.units.len());
     let chart = Chart {
         history: h.units[h.units.len() - shown..].to_vec(),
@@ -215,6 +227,8 @@ fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
         level_cv: Some(h.fit.level_cv),
         mape: fit::holdout_mape(h.start, &h.units, h.trend, &h.skipped()),
         overridden,
+        total_4w: Some(ahead(28)),
+        total_13w: Some(ahead(91)),
         backtest: h.fit.backtest.clone(),
         chart: Some(chart),
     }

@@ -7,7 +7,10 @@ weekday multiplier x lognormal noise with mean 1, from a seeded generator
 (Python's own Mersenne Twister), so the files are the same on every run;
 `holiday` adds a three-day dip and a two-day outage (zeros) in the last
 four weeks. The true values of each series are in CASES, which
-check_forecast.py reads too. Standard library only:
+check_forecast.py reads too. SHAPED adds series for the shift search and
+the yearly season: 30% steps 14 and 7 days before the end, short
+episodes, a slow drift, and three years with a New-Year surge. Standard
+library only:
 
     python3 tests/reference/make_forecast_fixtures.py
 """
@@ -50,17 +53,81 @@ def series(name, seed):
     return out
 
 
+# Series with a shape over time, for the shift search and the yearly
+# season: name: days, level at the end before the shape, weekday pattern,
+# daily noise cv, the shape (see `shape`), its parameter.
+SHAPED = {
+    # A 30% drop that began 14 (7) days before the history's end.
+    "step14": (182, 12000.0, [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96], 0.04, "step", 14),
+    "step7": (182, 12000.0, [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96], 0.04, "step", 7),
+    # A one-day spike x2.5 and a three-day holiday at 0.4 in the last
+    # four weeks, and a one-day outage on the last day.
+    "episodes": (182, 12000.0, [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96], 0.04, "episodes", 0),
+    # A slow drift: -1.5% a week, compounded, all along.
+    "drift": (182, 12000.0, [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96], 0.04, "drift", -0.015),
+    # Three years growing 15% a year with a New-Year surge (x1.5 on the
+    # first day of each 364-day year, fading linearly over eight weeks);
+    # the history ends 120 days into the third year, on the decay's tail.
+    "surge": (848, 20000.0, [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96], 0.03, "surge", 0.15),
+}
+
+
+def shape(kind, param, i, days):
+    """The multiplier of day `i` of `days` for a SHAPED series."""
+    if kind == "step":
+        return 0.7 if i >= days - param else 1.0
+    if kind == "episodes":
+        if i == days - 25:
+            return 2.5
+        if days - 15 <= i < days - 12:
+            return 0.4
+        if i == days - 1:
+            return 0.0
+        return 1.0
+    if kind == "drift":
+        return (1 + param) ** ((i - (days - 1)) / 7)
+    if kind == "surge":
+        return (1 + param) ** ((i - (days - 1)) / 364) * surge(i)
+    raise ValueError(kind)
+
+
+def surge(i):
+    """The New-Year surge on day `i` of a series that starts on a New Year."""
+    p = i % 364
+    return 1 + 0.5 * (1 - p / 56) if p < 56 else 1.0
+
+
+def shaped(name, seed):
+    days, level, pattern, cv, kind, param = SHAPED[name]
+    mean = sum(pattern) / 7
+    pattern = [m / mean for m in pattern]
+    sigma = math.sqrt(math.log(1 + cv * cv))
+    rng = random.Random(seed)
+    out = []
+    for i in range(days):
+        day = START + dt.timedelta(days=i)
+        noise = math.exp(rng.gauss(0.0, sigma) - sigma * sigma / 2)
+        out.append((day, round(level * shape(kind, param, i, days) * pattern[day.weekday()] * noise)))
+    return out
+
+
+def write(folder, name, rows):
+    path = os.path.join(folder, f"forecast-{name}.csv")
+    with open(path, "w", encoding="utf-8", newline="\n") as f:
+        f.write("date,units\n")
+        for day, units in rows:
+            f.write(f"{day.isoformat()},{units}\n")
+    print(f"wrote {os.path.relpath(path)}")
+
+
 def main():
     here = os.path.dirname(os.path.abspath(__file__))
     folder = os.path.join(here, "fixtures")
     os.makedirs(folder, exist_ok=True)
     for seed, name in enumerate(CASES, start=1):
-        path = os.path.join(folder, f"forecast-{name}.csv")
-        with open(path, "w", encoding="utf-8", newline="\n") as f:
-            f.write("date,units\n")
-            for day, units in series(name, seed):
-                f.write(f"{day.isoformat()},{units}\n")
-        print(f"wrote {os.path.relpath(path)}")
+        write(folder, name, series(name, seed))
+    for seed, name in enumerate(SHAPED, start=101):
+        write(folder, name, shaped(name, seed))
 
 
 if __name__ == "__main__":

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Checks sluice's sizing engine against scipy and statsmodels (PyPI), and
-# the forecast fitted from a history against statsmodels' STL and
-# Holt-Winters (check_forecast.py), and result ranges against scipy's
+# the forecast fitted from a history against statsmodels' decomposition,
+# damped Holt-Winters and MSTL and ruptures' PELT (check_forecast.py),
+# and result ranges against scipy's
 # lognormal and inverse Gaussian quantiles (check_ranges.py).
 #
 # Creates (or reuses) a virtual environment in tests/reference/.venv, installs
