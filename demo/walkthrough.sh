@@ -9,7 +9,9 @@
 #   4. day 30: progress so far, and each pool's actual traffic since the
 #      quarter began (demo/traffic/, invented by demo/make_traffic.py:
 #      product pages lost a fifth of their visitors from 18 January);
-#   5. re-plan, refitted from that traffic, and what moved since the first plan;
+#   5. re-plan, refitted from that traffic: the drop on product pages is
+#      found as a shift on its day and named first, the new level comes
+#      from the days since it; and what moved since the first plan;
 #   6. a what-if on top: product pages lose another 30% from today (--scale).
 #
 # Every output goes to demo/out/ (git-ignored), made afresh on each run.
@@ -79,6 +81,13 @@ heading "5. re-plan from the traffic observed, around the running tests, and wha
 replan=("$sluice" replan "$portfolio" --progress "$out/progress-day30.yaml"
     --today "$today" --previous "$out/plan.json" --no-timing)
 "${replan[@]}" | tee "$out/replan.txt"
+# The news comes first: the shift found in product pages' traffic.
+python3 - "$out/replan.txt" <<'PY'
+import sys
+text = open(sys.argv[1], encoding="utf-8").read()
+if not text.startswith("Traffic shift"):
+    sys.exit("walkthrough: the re-plan does not open with the traffic shift")
+PY
 "${replan[@]}" --format md --out "$out/replan.md"
 "${replan[@]}" --format html --out "$out/replan.html"
 "${replan[@]}" --format json --out "$out/replan.json"

@@ -231,6 +231,7 @@ mod tests {
                     })
                     .collect(),
                 history: vec![],
+                backtest: vec![],
             }],
             blackouts: vec![],
             today: d("2027-01-04"),

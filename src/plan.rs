@@ -541,6 +541,12 @@ pub struct PoolPlan {
     /// empty (and left out of JSON) otherwise.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub history: Vec<HistoryDay>,
+    /// Pools with a `history`: the backtest's four-week forecasts from
+    /// earlier origins that lie within `history`, four weeks apart (each
+    /// total's forecast, P10-P90 range and actual), for the chart; empty
+    /// (and left out of JSON) otherwise.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub backtest: Vec<crate::forecast::backtest::OriginRange>,
 }
 
 /// How many of a pool's last history days a plan carries.

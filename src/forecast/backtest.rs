@@ -3,7 +3,7 @@
 //!
 //! From rolling origins (every week over the last year of the history,
 //! each with at least [`MIN_FIT_DAYS`] days before it) the fit that
-//! planning uses ([`super::fit::fit_point`], never a copy of it) is made
+//! planning uses (`fit::fit_point`, never a copy of it) is made
 //! on the days before the origin only, and forecasts the next 13 weeks.
 //! The forecast is scored as in Hyndman & Athanasopoulos ("Forecasting:
 //! Principles and Practice", 3rd ed. 2021, §5.10, time series
@@ -21,7 +21,7 @@
 
 use super::fit::{fit_point, lognormal_cv};
 use chrono::{Duration, NaiveDate};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// The fewest days a backtest origin fits on.
 pub const MIN_FIT_DAYS: usize = 56;
@@ -55,10 +55,12 @@ pub struct Backtest {
 }
 
 /// One origin's four-week total: forecast, P10-P90 range and what came.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct OriginRange {
     /// The first day forecast.
     pub from: NaiveDate,
+    /// The last day forecast.
+    pub to: NaiveDate,
     /// The forecast total.
     pub forecast: f64,
     /// Its P10.
@@ -153,6 +155,7 @@ pub fn run(
             let st = total_sd(sigma.unwrap_or(0.0), s_daily, t.days);
             OriginRange {
                 from: t.from,
+                to: t.from + Duration::days(t.horizon as i64 - 1),
                 forecast: t.forecast,
                 low: t.forecast * (-Z90 * st - st * st / 2.0).exp(),
                 high: t.forecast * (Z90 * st - st * st / 2.0).exp(),
@@ -171,6 +174,21 @@ pub fn run(
         ranges,
     };
     (Some(summary), sigma.map(lognormal_cv))
+}
+
+/// The ranges a chart of the history from `first` on shows: four weeks
+/// apart, counted back from the latest, each wholly on or after `first`.
+pub fn shown(b: &Backtest, first: NaiveDate) -> Vec<OriginRange> {
+    let mut out: Vec<OriginRange> = b
+        .ranges
+        .iter()
+        .rev()
+        .step_by(4)
+        .filter(|r| r.from >= first)
+        .copied()
+        .collect();
+    out.reverse();
+    out
 }
 
 /// The log sd of a total over `days` days.

@@ -17,7 +17,7 @@
 //!    series is a holiday, a spike or an outage, not a new level: its days
 //!    are set aside. A segment that short at the very end is too new to
 //!    tell from a holiday: its days are set aside too and reported
-//!    ([`Shift::set_aside`]). The search is then run again on the days left.
+//!    ([`Found::newest_set_aside`]). The search is then run again on the days left.
 //! 3. **A step, not a drift.** From the latest change backwards, a change
 //!    counts as a shift when its size (the median of the days after it
 //!    against the median of up to [`PRE_DAYS`] days before it) is at least

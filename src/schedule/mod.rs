@@ -390,6 +390,18 @@ fn history_shown(pool: &crate::portfolio::Pool) -> Vec<crate::plan::HistoryDay> 
         .collect()
 }
 
+fn backtest_shown(pool: &crate::portfolio::Pool) -> Vec<crate::forecast::backtest::OriginRange> {
+    let Some(h) = &pool.forecast.history else {
+        return Vec::new();
+    };
+    let first =
+        h.start + Duration::days(h.units.len().saturating_sub(crate::plan::HISTORY_SHOWN) as i64);
+    h.fit
+        .backtest
+        .as_ref()
+        .map_or(Vec::new(), |b| crate::forecast::backtest::shown(b, first))
+}
+
 fn assemble(
     inst: &Instance,
     state: &state::State,
@@ -535,6 +547,7 @@ fn assemble(
                 holdout: pool.holdout,
                 days,
                 history: history_shown(pool),
+                backtest: backtest_shown(pool),
             }
         })
         .collect();

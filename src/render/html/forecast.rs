@@ -38,9 +38,18 @@ pub(super) fn section(plan: &Plan, s: &mut String) {
             s,
             "<figcaption>{}</figcaption></figure>",
             esc(&format!(
-                "{}: grey, the last {} days of actual daily units; coloured, the forecast the plan uses over the window: the fit to that history, with the portfolio's adjustments on top.",
+                "{}: grey, the last {} days of actual daily units; coloured, the forecast the plan uses over the window: the fit to that history, with the portfolio's adjustments on top.{}",
                 p.label,
-                p.history.len()
+                p.history.len(),
+                if p.backtest.is_empty() {
+                    String::new()
+                } else {
+                    format!(
+                        " Shaded: the backtest, {} four-week {} made by the same fit from earlier days only, each the P10–P90 range of an average day over its four weeks, with a dark line at what came.",
+                        p.backtest.len(),
+                        crate::words::Count("forecast", p.backtest.len())
+                    )
+                }
             ))
         );
     }
@@ -77,6 +86,27 @@ fn chart(p: &PoolPlan, index: usize, s: &mut String) {
         }
         d
     };
+    // The backtest's ranges: the average day of each four weeks.
+    let mut bands = String::new();
+    for r in &p.backtest {
+        let days = ((r.to - r.from).num_days() + 1) as f64;
+        let (x0, x1) = (x(r.from), x(r.to + chrono::Duration::days(1)));
+        let (top_y, bottom_y) = (y(r.high / days), y(r.low / days));
+        let _ = write!(
+            bands,
+            r##"<rect x="{x0:.1}" y="{top_y:.1}" width="{:.1}" height="{:.1}" fill="#8a929c" fill-opacity="0.25"><title>{}</title></rect><line x1="{x0:.1}" y1="{ay:.1}" x2="{x1:.1}" y2="{ay:.1}" stroke="#2b3138" stroke-width="2"/>"##,
+            x1 - x0,
+            (bottom_y - top_y).max(1.0),
+            esc(&format!(
+                "forecast from {}: {} to {} a day (P10–P90); came {}",
+                short_date(r.from),
+                units(r.low / days),
+                units(r.high / days),
+                units(r.actual / days)
+            )),
+            ay = y(r.actual / days)
+        );
+    }
     let history = line(&mut p.history.iter().map(|h| (h.date, h.units)));
     let forecast = line(&mut p.days.iter().map(|d| (d.date, d.forecast)));
     let id = format!("fc-{index}");
@@ -114,6 +144,7 @@ fn chart(p: &PoolPlan, index: usize, s: &mut String) {
             esc(&short_date(date))
         );
     }
+    s.push_str(&bands);
     let _ = writeln!(
         s,
         r##"<path d="{history}" fill="none" stroke="#8a929c" stroke-width="1.5"/><path d="{forecast}" fill="none" stroke="{}" stroke-width="2"/></svg>"##,
@@ -149,5 +180,32 @@ mod tests {
         // Two lines: history from the plot's left edge, forecast to its right.
         assert!(s.contains(r#"<path d="M70.0,"#), "{s}");
         assert!(s.contains(" L1024.0,"), "{s}");
+        assert!(!s.contains("<rect"), "no backtest, no bands");
+    }
+
+    #[test]
+    fn the_backtest_ranges_are_drawn_as_bands_of_an_average_day() {
+        let mut plan = fixture::plan();
+        with_history(&mut plan);
+        let from = plan.pools[0].history[0].date;
+        plan.pools[0].backtest = vec![crate::forecast::backtest::OriginRange {
+            from,
+            to: from + chrono::Duration::days(6),
+            forecast: 7000.0,
+            low: 6300.0,
+            high: 7700.0,
+            actual: 7070.0,
+        }];
+        let mut s = String::new();
+        super::section(&plan, &mut s);
+        assert_eq!(s.matches("<rect").count(), 1, "{s}");
+        assert!(
+            s.contains("900 to 1,100 a day (P10–P90); came 1,010"),
+            "{s}"
+        );
+        assert!(
+            s.contains("Shaded: the backtest, 1 four-week forecast made"),
+            "{s}"
+        );
     }
 }
