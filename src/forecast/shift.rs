@@ -18,14 +18,20 @@
 //!    are set aside. A segment that short at the very end is too new to
 //!    tell from a holiday: its days are set aside too and reported
 //!    ([`Found::newest_set_aside`]). The search is then run again on the days left.
-//! 3. **A step, not a drift.** From the latest change backwards, a change
-//!    counts as a shift when its size (the median of the days after it
-//!    against the median of up to [`PRE_DAYS`] days before it) is at least
-//!    [`MIN_CHANGE`], and a line with a step explains those days better
-//!    than a line alone by more than the same penalty (the drop in squared
-//!    residuals, in units of the noise's variance, of ordinary least
-//!    squares with and without the step: a likelihood-ratio test of the
-//!    step). A slow drift fits a line, so it is never read as a step.
+//! 3. **A step, not a drift.** From the latest change backwards, a line
+//!    with a step at the change is fitted by ordinary least squares to up
+//!    to [`PRE_DAYS`] days before it and every day after it. The change
+//!    counts as a shift when the step explains those days better than a
+//!    line alone by more than the same penalty (the drop in squared
+//!    residuals over the residual variance: an F test of the step, Chow
+//!    1960) and the step is at least [`MIN_CHANGE`]. The step is the
+//!    change reported; a drift goes to the line, so a slow drift is never
+//!    read as a step, nor inflates one. A change that ends a stretch
+//!    shorter than [`EPISODE_DAYS`] is measured against the days before
+//!    the stretch instead: a campaign that ended, back at the old level,
+//!    is no shift, and when the stretch stood at least [`MIN_CHANGE`]
+//!    apart from both sides the same way, its days are set aside like a
+//!    holiday's.
 //!
 //! Implemented here: no crate on crates.io offers PELT with this cost at
 //! the time of writing (the change-point crates there are Bayesian online
@@ -38,8 +44,12 @@ pub const PENALTY: f64 = 3.0;
 pub const MIN_RUN: usize = 4;
 /// The smallest change, relative, that counts as a shift.
 pub const MIN_CHANGE: f64 = 0.08;
-/// Days before a change its size is measured against.
-pub const PRE_DAYS: usize = 28;
+/// Days before a change that, with the days after it, test and measure it.
+pub const PRE_DAYS: usize = 56;
+/// A stretch between two changes shorter than this is measured against
+/// the days before it: a campaign or a holiday week that ended is no
+/// shift.
+pub const EPISODE_DAYS: usize = 28;
 
 /// What the search found in a series.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -55,9 +65,12 @@ pub struct Found {
 }
 
 /// Finds the latest shift in `y` (log levels, one per usable day, oldest
-/// first), whose daily noise has standard deviation `sigma`.
-pub fn find(y: &[f64], sigma: f64) -> Found {
-    let n = y.len();
+/// first), whose daily noise has standard deviation `sigma`, searching the
+/// days from position `from` on; the days before it only lengthen the
+/// span a change is tested on. Positions in the answer are `y`'s.
+pub fn find(y: &[f64], sigma: f64, from: usize) -> Found {
+    let from = from.min(y.len());
+    let n = y.len() - from;
     if n < 2 * MIN_RUN {
         return Found::default();
     }
@@ -66,37 +79,66 @@ pub fn find(y: &[f64], sigma: f64) -> Found {
     let beta = PENALTY * (n as f64).ln();
 
     // 2. Episodes and too-new days.
-    let mut keep = vec![true; n];
-    let mut bounds = pelt(&z, beta);
-    bounds.push(n);
-    let mut from = 0;
+    let mut keep = vec![true; y.len()];
+    let mut bounds: Vec<usize> = pelt(&z[from..], beta).iter().map(|b| b + from).collect();
+    bounds.push(y.len());
+    let mut start = from;
     let mut newest = 0;
     for (k, &to) in bounds.iter().enumerate() {
-        if to - from < MIN_RUN && from > 0 {
-            keep[from..to].iter_mut().for_each(|x| *x = false);
+        if to - start < MIN_RUN && start > from {
+            keep[start..to].iter_mut().for_each(|x| *x = false);
             if k == bounds.len() - 1 {
-                newest = to - from;
+                newest = to - start;
             }
         }
-        from = to;
+        start = to;
     }
-    let kept: Vec<usize> = (0..n).filter(|&i| keep[i]).collect();
-    let set_aside: Vec<usize> = (0..n).filter(|&i| !keep[i]).collect();
+    let kept: Vec<usize> = (0..y.len()).filter(|&i| keep[i]).collect();
+    let mut set_aside: Vec<usize> = (0..y.len()).filter(|&i| !keep[i]).collect();
     let zk: Vec<f64> = kept.iter().map(|&i| z[i]).collect();
 
-    // 3. The latest change that is a step.
-    let mut changes = pelt(&zk, beta);
-    changes.reverse();
-    let shift = changes.into_iter().find_map(|c| {
-        let pre = &zk[c.saturating_sub(PRE_DAYS)..c];
-        let post = &zk[c..];
-        if pre.len() < MIN_RUN || post.len() < MIN_RUN {
-            return None;
+    // 3. The latest change that is a step. A change that ends a stretch of
+    // under four weeks (a campaign, a holiday week) is measured against
+    // the days before that stretch: back to the old level, it is no shift,
+    // the stretch is set aside, and nothing before it is a shift either.
+    let changes: Vec<usize> = pelt(&zk[from..], beta).iter().map(|c| c + from).collect();
+    let mut shift = None;
+    for k in (0..changes.len()).rev() {
+        let c = changes[k];
+        let stretch = k > 0 && c - changes[k - 1] < EPISODE_DAYS;
+        let pre_end = if stretch { changes[k - 1] } else { c };
+        let pre = pre_end.saturating_sub(PRE_DAYS)..pre_end;
+        if pre.len() < MIN_RUN || zk.len() - c < MIN_RUN {
+            continue;
         }
-        let change = (median(post) - median(pre)) * sigma;
-        let big = change.exp_m1().abs() >= MIN_CHANGE;
-        (big && step_gain(pre, post) > beta).then_some((kept[c], change))
-    });
+        let points: Vec<(f64, f64, bool)> = pre
+            .map(|i| (kept[i] as f64, zk[i], false))
+            .chain((c..zk.len()).map(|i| (kept[i] as f64, zk[i], true)))
+            .collect();
+        let (gain, step) = step_fit(&points);
+        let change = step * sigma;
+        if change.exp_m1().abs() >= MIN_CHANGE && gain > beta {
+            shift = Some((kept[c], change));
+            break;
+        }
+        if stretch {
+            // Back at the old level: the stretch is set aside when it
+            // stood apart from both sides the same way (a campaign, a
+            // holiday week), not when it lies between them (a drift's
+            // stair).
+            let mid = median(&zk[changes[k - 1]..c]);
+            let (before, after) = (
+                mid - median(&zk[pre_end.saturating_sub(PRE_DAYS)..pre_end]),
+                mid - median(&zk[c..]),
+            );
+            let apart = (1.0 + MIN_CHANGE).ln() / sigma;
+            if before * after > 0.0 && before.abs() >= apart && after.abs() >= apart {
+                set_aside.extend(kept[changes[k - 1]..c].iter().copied());
+                set_aside.sort_unstable();
+            }
+            break;
+        }
+    }
     Found {
         shift,
         set_aside,
@@ -147,38 +189,40 @@ pub fn pelt(x: &[f64], beta: f64) -> Vec<usize> {
     out
 }
 
-/// How much a step at the start of `post` lowers the squared residuals of
-/// a least-squares line through `pre` followed by `post`.
-fn step_gain(pre: &[f64], post: &[f64]) -> f64 {
-    let z: Vec<f64> = pre.iter().chain(post).copied().collect();
-    let n = z.len() as f64;
-    let t: Vec<f64> = (0..z.len()).map(|i| i as f64).collect();
-    let d: Vec<f64> = (0..z.len())
-        .map(|i| if i >= pre.len() { 1.0 } else { 0.0 })
-        .collect();
-    // Residuals of z and of the step on the line (Frisch-Waugh-Lovell).
+/// A least-squares line with a step, through `(day, value, after the
+/// step)` points: how much the step lowers the squared residuals of the
+/// line alone, over the residual variance of the line with the step when
+/// that is above the daily noise's (an F statistic, so that weeks that
+/// wander about their level need more to count), and the step's size.
+fn step_fit(points: &[(f64, f64, bool)]) -> (f64, f64) {
+    let n = points.len() as f64;
+    let mean = |f: &dyn Fn(&(f64, f64, bool)) -> f64| points.iter().map(f).sum::<f64>() / n;
     let (mt, mz, md) = (
-        t.iter().sum::<f64>() / n,
-        z.iter().sum::<f64>() / n,
-        d.iter().sum::<f64>() / n,
+        mean(&|p| p.0),
+        mean(&|p| p.1),
+        mean(&|p| if p.2 { 1.0 } else { 0.0 }),
     );
-    let stt: f64 = t.iter().map(|v| (v - mt).powi(2)).sum();
-    let beta = |y: &[f64], my: f64| {
-        t.iter()
-            .zip(y)
-            .map(|(a, b)| (a - mt) * (b - my))
-            .sum::<f64>()
-            / stt
+    let stt: f64 = points.iter().map(|p| (p.0 - mt).powi(2)).sum();
+    if stt <= 0.0 {
+        return (0.0, 0.0);
+    }
+    // Residuals of the values and of the step on the line
+    // (Frisch-Waugh-Lovell).
+    let slope = |y: &dyn Fn(&(f64, f64, bool)) -> f64, my: f64| {
+        points.iter().map(|p| (p.0 - mt) * (y(p) - my)).sum::<f64>() / stt
     };
-    let (bz, bd) = (beta(&z, mz), beta(&d, md));
-    let rz: Vec<f64> = (0..z.len()).map(|i| z[i] - mz - bz * (t[i] - mt)).collect();
-    let rd: Vec<f64> = (0..z.len()).map(|i| d[i] - md - bd * (t[i] - mt)).collect();
+    let d = |p: &(f64, f64, bool)| if p.2 { 1.0 } else { 0.0 };
+    let (bz, bd) = (slope(&|p| p.1, mz), slope(&d, md));
+    let rz: Vec<f64> = points.iter().map(|p| p.1 - mz - bz * (p.0 - mt)).collect();
+    let rd: Vec<f64> = points.iter().map(|p| d(p) - md - bd * (p.0 - mt)).collect();
     let dd: f64 = rd.iter().map(|v| v * v).sum();
     if dd <= 0.0 {
-        return 0.0;
+        return (0.0, 0.0);
     }
     let zd: f64 = rz.iter().zip(&rd).map(|(a, b)| a * b).sum();
-    zd * zd / dd
+    let gain = zd * zd / dd;
+    let rest = (rz.iter().map(|v| v * v).sum::<f64>() - gain) / (n - 3.0).max(1.0);
+    (gain / rest.max(1.0), zd / dd)
 }
 
 /// The median (0 for no values).
@@ -231,7 +275,7 @@ mod tests {
             for v in &mut y[98..] {
                 *v += 0.7f64.ln();
             }
-            let f = find(&y, 0.04);
+            let f = find(&y, 0.04, 0);
             let (at, change) = f.shift.expect("a shift");
             assert_eq!(at, 98, "seed {seed}");
             assert!((change.exp() - 0.7).abs() < 0.05, "seed {seed}: {change}");
@@ -249,7 +293,7 @@ mod tests {
                 *v += 0.4f64.ln();
             }
             y[100] += 0.5;
-            let f = find(&y, 0.04);
+            let f = find(&y, 0.04, 0);
             assert_eq!(f.shift, None, "seed {seed}");
             assert!(f.set_aside.contains(&40) && f.set_aside.contains(&71));
             // A holiday in the last three days is set aside as too new.
@@ -257,7 +301,7 @@ mod tests {
             for v in &mut y[109..] {
                 *v += 0.5f64.ln();
             }
-            let f = find(&y, 0.04);
+            let f = find(&y, 0.04, 0);
             assert_eq!((f.shift, f.newest_set_aside), (None, 3), "seed {seed}");
             // A drift of -2% a week over sixteen weeks.
             let y: Vec<f64> = noise(112, 0.04, seed)
@@ -265,7 +309,7 @@ mod tests {
                 .enumerate()
                 .map(|(i, v)| v + (0.98f64).ln() * i as f64 / 7.0)
                 .collect();
-            assert_eq!(find(&y, 0.04).shift, None, "seed {seed}");
+            assert_eq!(find(&y, 0.04, 0).shift, None, "seed {seed}");
         }
     }
 }

@@ -317,8 +317,7 @@ pub fn has_ranges(plan: &Plan) -> bool {
 /// from its forecast over the last 14 days and since it began, and how the
 /// new forecast was made.
 pub fn traffic_lines(plan: &Plan) -> Vec<String> {
-    let mut pools: Vec<&crate::plan::TrafficSoFar> = plan.traffic.iter().collect();
-    pools.sort_by_key(|t| t.shift.is_none());
+    let pools = by_news(plan);
     pools
         .into_iter()
         .map(|t| {
@@ -376,11 +375,22 @@ fn shift_words(s: crate::plan::TrafficShift) -> String {
     )
 }
 
-/// The news of a re-plan's traffic, one line per pool whose level shifted:
-/// what every format says first.
+/// A re-plan's traffic, the pools with a shift first, the largest first,
+/// then the rest in the file's order.
+fn by_news(plan: &Plan) -> Vec<&crate::plan::TrafficSoFar> {
+    let mut pools: Vec<&crate::plan::TrafficSoFar> = plan.traffic.iter().collect();
+    pools.sort_by(|a, b| {
+        let size = |t: &crate::plan::TrafficSoFar| t.shift.map_or(0.0, |s| s.change.abs());
+        size(b).total_cmp(&size(a))
+    });
+    pools
+}
+
+/// The news of a re-plan's traffic, one line per pool whose level shifted,
+/// the largest first: what every format says first.
 pub fn shift_news(plan: &Plan) -> Vec<String> {
-    plan.traffic
-        .iter()
+    by_news(plan)
+        .into_iter()
         .filter_map(|t| {
             t.shift.map(|s| {
                 format!(

@@ -149,7 +149,7 @@ fn refit_pool(
         .map(|&i| (obs.units[i] / forecast[i]).ln())
         .collect();
     let steps: Vec<f64> = logs.windows(2).map(|w| w[1] - w[0]).collect();
-    let found = shift::find(&logs, robust_sd(&steps) / 2f64.sqrt());
+    let found = shift::find(&logs, robust_sd(&steps) / 2f64.sqrt(), 0);
     let from = found.shift.map_or(0, |(p, _)| p);
     let (mut a, mut fc) = (0.0, 0.0);
     for &i in &days[from.min(days.len())..] {
