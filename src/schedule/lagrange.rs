@@ -20,9 +20,9 @@
 //! Every step is counted, not timed, and sums run in a fixed order, so the
 //! same component always gets the same bound.
 
+use super::deadline::Deadline;
 use super::lp::{each_linking_row, Solved, Sub};
 use super::options::Instance;
-use super::search::Deadline;
 
 /// Subgradient steps per component: about two seconds on the largest
 /// benchmark component (37,315 options, 4 million coefficients), where

@@ -11,8 +11,8 @@
 //! whole weeks the segments are the weeks themselves, which keeps the
 //! model small.
 
+use super::millionths::{room, WHOLE};
 use super::options::{Instance, Opt};
-use super::state::{room, WHOLE};
 use crate::portfolio::Sharing;
 use good_lp::{
     variable, Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel,

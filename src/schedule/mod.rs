@@ -12,9 +12,11 @@
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
 mod confidence;
+mod deadline;
 mod greedy;
 mod lagrange;
 mod lp;
+mod millionths;
 mod options;
 mod reasons;
 mod search;
@@ -200,7 +202,7 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
 fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let clock = Instant::now();
     let cut = std::cell::Cell::new(false);
-    let deadline = search::Deadline::new(
+    let deadline = deadline::Deadline::new(
         clock + std::time::Duration::from_secs_f64(request.time_limit.max(0.0)),
         &cut,
     );

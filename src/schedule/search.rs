@@ -11,12 +11,11 @@
 //! gives the same plan; the wall clock only cuts the search short when the
 //! time limit runs out.
 
+use super::deadline::Deadline;
 use super::lp::{self, Sub};
 use super::options::Instance;
 use super::state::State;
 use super::Backend;
-use std::cell::Cell;
-use std::time::Instant;
 
 /// A small seeded generator (splitmix64; Steele, Lea & Flood 2014,
 /// "Fast splittable pseudorandom number generators").
@@ -62,61 +61,6 @@ pub(crate) struct Outcome {
 /// Tolerance on values for "no worse" and "proved".
 fn tol(v: f64) -> f64 {
     1e-7 * v.abs().max(1.0)
-}
-
-/// The wall-clock safety net: the moment the search must stop by, and a
-/// flag that records whether it ever did stop for it. The work budgets
-/// decide every plan that finishes them; only a plan this flag marks may
-/// depend on the machine's speed (`SolverSummary::cut_short`).
-#[derive(Clone, Copy)]
-pub(crate) struct Deadline<'a> {
-    at: Instant,
-    cut: &'a Cell<bool>,
-}
-
-impl<'a> Deadline<'a> {
-    /// Stops at `at`; marks `cut` when it does.
-    pub(crate) fn new(at: Instant, cut: &'a Cell<bool>) -> Deadline<'a> {
-        Deadline { at, cut }
-    }
-
-    /// The same flag, stopping after `fraction` of the time left from now.
-    pub(crate) fn share(self, fraction: f64) -> Deadline<'a> {
-        let left = self.seconds_left() * fraction.clamp(0.0, 1.0);
-        Deadline {
-            at: Instant::now() + std::time::Duration::from_secs_f64(left),
-            cut: self.cut,
-        }
-    }
-
-    /// Whether the time is up; if so, the search is marked cut short.
-    pub(crate) fn passed(self) -> bool {
-        let passed = Instant::now() >= self.at;
-        if passed {
-            self.cut.set(true);
-        }
-        passed
-    }
-
-    /// Seconds left, for a solver's own time limit.
-    pub(crate) fn seconds_left(self) -> f64 {
-        self.at
-            .saturating_duration_since(Instant::now())
-            .as_secs_f64()
-    }
-
-    /// Records an LP solve that failed or stopped short of optimal once the
-    /// time was up: the solver's time limit, not the model, ended it.
-    fn after_lp(self, solved: &Result<lp::Solved, lp::Failed>) {
-        let short = match solved {
-            Ok(s) => !s.optimal,
-            Err(lp::Failed::Infeasible) => false,
-            Err(_) => true,
-        };
-        if short {
-            self.passed();
-        }
-    }
 }
 
 fn remaining(deadline: Deadline) -> f64 {
@@ -769,7 +713,8 @@ mod tests {
     use super::*;
     use crate::portfolio::{after_order, Prerequisite};
     use crate::schedule::{synthetic, PlanRequest};
-    use std::time::Duration;
+    use std::cell::Cell;
+    use std::time::{Duration, Instant};
 
     fn far_deadline(cut: &Cell<bool>) -> Deadline<'_> {
         Deadline::new(Instant::now() + Duration::from_secs(600), cut)
