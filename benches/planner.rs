@@ -77,6 +77,10 @@ struct Row {
     greedy: f64,
     status: String,
     verified: bool,
+    /// The time limit cut the search short: its plan may vary from run
+    /// to run.
+    #[serde(default)]
+    cut_short: bool,
 }
 
 /// The seed of every portfolio; `SLUICE_BENCH_SEED` picks another.
@@ -339,6 +343,7 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified: true,
+        cut_short: s.cut_short,
     }
 }
 
@@ -382,6 +387,7 @@ fn run_row(size: &str, backend: &str) -> Row {
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified,
+        cut_short: s.cut_short,
     }
 }
 
@@ -457,7 +463,7 @@ fn main() {
                 r.value_over_proved = Some(r.value / b);
             }
             println!(
-                "{:<19} {:<8} {:>7} {:>7.2} {:>7.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0} {:>9} {:>8}{}",
+                "{:<19} {:<8} {:>7} {:>7.2} {:>7.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0} {:>9} {:>8}{}{}",
                 r.size,
                 r.backend,
                 r.threads,
@@ -474,7 +480,8 @@ fn main() {
                 r.proved_bound.map_or("-".to_string(), |o| format!("{o:.2}")),
                 r.value_over_proved
                     .map_or("-".to_string(), |o| format!("{o:.3}")),
-                if r.verified { "" } else { "  NOT VERIFIED" }
+                if r.verified { "" } else { "  NOT VERIFIED" },
+                if r.cut_short { "  CUT SHORT" } else { "" }
             );
             rows.push(r);
         }

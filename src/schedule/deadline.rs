@@ -4,22 +4,23 @@
 //! The work budgets (iterations, nodes, subgradient steps) decide every
 //! plan that finishes them; only a plan this flag marks may depend on the
 //! machine's speed (`SolverSummary::cut_short`). `search` and `lagrange`
-//! both read it, so it lives apart from either.
+//! both read it, so it lives apart from either. Components searched on
+//! several threads share one flag, hence an atomic one.
 
 use super::lp;
-use std::cell::Cell;
-use std::time::Instant;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::time::{Duration, Instant};
 
 /// The moment to stop by, and the flag that records a stop.
 #[derive(Clone, Copy)]
 pub(crate) struct Deadline<'a> {
     at: Instant,
-    cut: &'a Cell<bool>,
+    cut: &'a AtomicBool,
 }
 
 impl<'a> Deadline<'a> {
     /// Stops at `at`; marks `cut` when it does.
-    pub(crate) fn new(at: Instant, cut: &'a Cell<bool>) -> Deadline<'a> {
+    pub(crate) fn new(at: Instant, cut: &'a AtomicBool) -> Deadline<'a> {
         Deadline { at, cut }
     }
 
@@ -27,16 +28,21 @@ impl<'a> Deadline<'a> {
     pub(crate) fn share(self, fraction: f64) -> Deadline<'a> {
         let left = self.seconds_left() * fraction.clamp(0.0, 1.0);
         Deadline {
-            at: Instant::now() + std::time::Duration::from_secs_f64(left),
+            at: Instant::now() + Duration::from_secs_f64(left),
             cut: self.cut,
         }
+    }
+
+    /// Whether any search under this flag stopped for the clock.
+    pub(crate) fn was_cut(self) -> bool {
+        self.cut.load(Ordering::Relaxed)
     }
 
     /// Whether the time is up; if so, the search is marked cut short.
     pub(crate) fn passed(self) -> bool {
         let passed = Instant::now() >= self.at;
         if passed {
-            self.cut.set(true);
+            self.cut.store(true, Ordering::Relaxed);
         }
         passed
     }

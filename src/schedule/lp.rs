@@ -50,6 +50,17 @@ impl Backend {
         }
     }
 
+    /// Whether several of its solves may run at once on different threads
+    /// (HiGHS's shared task scheduler has crashed when they did: HiGHS
+    /// issues 810 and 1005).
+    pub(crate) fn runs_on_threads(self) -> bool {
+        match self {
+            Backend::Microlp => true,
+            #[cfg(feature = "highs")]
+            Backend::Highs => false,
+        }
+    }
+
     /// The backends this build has, the default first.
     pub fn available() -> Vec<Backend> {
         vec![

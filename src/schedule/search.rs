@@ -713,10 +713,10 @@ mod tests {
     use super::*;
     use crate::portfolio::{after_order, Prerequisite};
     use crate::schedule::{synthetic, PlanRequest};
-    use std::cell::Cell;
+    use std::sync::atomic::AtomicBool;
     use std::time::{Duration, Instant};
 
-    fn far_deadline(cut: &Cell<bool>) -> Deadline<'_> {
+    fn far_deadline(cut: &AtomicBool) -> Deadline<'_> {
         Deadline::new(Instant::now() + Duration::from_secs(600), cut)
     }
 
@@ -749,7 +749,7 @@ mod tests {
             let request = PlanRequest::default();
             let inst = Instance::new(&p, &request);
             let exps: Vec<usize> = inst.free().collect();
-            let cut = Cell::new(false);
+            let cut = AtomicBool::new(false);
             let greedy = super::super::greedy::greedy(&inst);
             let floor = comp_value(&inst, &exps, &greedy);
             let sub = Sub::all(&inst, &exps);
