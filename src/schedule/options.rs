@@ -12,7 +12,7 @@
 //! Every end comes from [`Series::run_end`].
 
 use super::millionths::{micro, room};
-use super::{FixedRun, PlanRequest};
+use super::request::{FixedRun, PlanRequest};
 use crate::day::Day;
 use crate::forecast::Series;
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};
