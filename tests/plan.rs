@@ -127,9 +127,8 @@ fn the_same_file_gives_the_same_bytes() {
     assert_eq!(t1, t2);
 }
 
-/// The planner bounds and searches its components on rayon's threads
-/// (and prices a large component's tests there): one thread or two give
-/// the same bytes.
+/// The planner bounds and searches its components (the demo has two) on
+/// rayon's threads: one thread or two give the same bytes.
 #[test]
 fn one_thread_or_two_give_the_same_bytes() {
     let on = |threads: &str| {

@@ -12,10 +12,10 @@
 //! time limit runs out.
 
 use super::deadline::Deadline;
+use super::lp::Backend;
 use super::lp::{self, Sub};
 use super::options::Instance;
 use super::state::State;
-use super::Backend;
 
 /// A small seeded generator (splitmix64; Steele, Lea & Flood 2014,
 /// "Fast splittable pseudorandom number generators").
