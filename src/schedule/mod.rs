@@ -100,12 +100,14 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
     groups
 }
 
-/// `f` of every component (by its index), in component order. Components run on the
-/// rayon pool, the largest (by options) first so that one large component
-/// does not start last; with HiGHS one after another, since HiGHS
-/// instances solving at once on several threads have crashed (HiGHS
-/// issues 810 and 1005). Each result depends on its component alone, so
-/// the order in which threads finish changes nothing.
+/// `f` of every component (by its index), in component order.
+///
+/// Components run on the rayon pool, handed out largest (by options)
+/// first so that a large one is not left to start last; with HiGHS one
+/// after another, since HiGHS instances solving at once on several
+/// threads have crashed (ERGO-Code/HiGHS issues 810 and 1005). Each
+/// result depends on its component alone, so the order in which threads
+/// finish changes nothing.
 fn each_component<T: Send>(
     inst: &Instance,
     comps: &[Vec<usize>],
