@@ -572,8 +572,9 @@ fn ranges_row() -> bool {
         / (ends.len() * paths as usize) as f64;
     let threads = rayon::current_num_threads();
     println!(
-        "ranges: {paths} paths x {} tests x {days}-day window: {seconds:.2} s ({cpu:.2} s of CPU) on {threads} threads, {seconds_one:.2} s ({cpu_one:.2} s of CPU) on one; {}; {:.0}% of runs end within twice the window",
+        "ranges: {paths} paths x {} tests x {days}-day window: {seconds:.2} s ({cpu:.2} s of CPU) on {threads} thread{}, {seconds_one:.2} s ({cpu_one:.2} s of CPU) on one; {}; {:.0}% of runs end within twice the window",
         runs.len(),
+        if threads == 1 { "" } else { "s" },
         if same { "the same ends on both" } else { "ENDS DIFFER" },
         finished * 100.0
     );
