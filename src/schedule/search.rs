@@ -533,17 +533,33 @@ fn lns(
     let mut best = state.clone();
     let mut best_value = best.value;
     let mut removed: Vec<usize> = Vec::new();
+    // The places in `exps` of the tests on each pool, so a move finds the
+    // tests of the pools it touched without a pass over the component.
+    let mut on_pool: Vec<Vec<usize>> = vec![Vec::new(); p.pools.len()];
+    for (i, &e) in exps.iter().enumerate() {
+        for &pool in &p.experiments[e].pools {
+            on_pool[pool].push(i);
+        }
+    }
+    // The places of the tests whose choice may differ between `state` and
+    // `best`: every move changes only tests on the pools it touched, so
+    // copying between the two needs to look at these alone.
+    let mut differs = vec![false; exps.len()];
+    let mut differing: Vec<usize> = Vec::new();
     for it in 0..iters {
         if it % 32 == 0 && deadline.passed() {
             break;
         }
         removed.clear();
-        let unscheduled: Vec<usize> = exps
-            .iter()
-            .copied()
-            .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
-            .collect();
         let mode = rng.below(4);
+        let unscheduled: Vec<usize> = if mode <= 1 {
+            exps.iter()
+                .copied()
+                .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
+                .collect()
+        } else {
+            Vec::new()
+        };
         let mut seed_move: Option<(usize, usize)> = None;
         if mode <= 1 && !unscheduled.is_empty() {
             // Clear the way for one option of a left-out test.
@@ -618,18 +634,20 @@ fn lns(
             state.add(inst, u, k);
             touched.extend(p.experiments[u].pools.iter().copied());
         }
-        touched.sort_unstable();
-        touched.dedup();
-        let local: Vec<usize> = exps
+        // The tests on the touched pools, in the component's order.
+        let mut at: Vec<usize> = touched
             .iter()
-            .copied()
-            .filter(|&e| {
-                p.experiments[e]
-                    .pools
-                    .iter()
-                    .any(|pool| touched.binary_search(pool).is_ok())
-            })
+            .flat_map(|&pool| on_pool[pool].iter().copied())
             .collect();
+        at.sort_unstable();
+        at.dedup();
+        for &i in &at {
+            if !differs[i] {
+                differs[i] = true;
+                differing.push(i);
+            }
+        }
+        let local: Vec<usize> = at.iter().map(|&i| exps[i]).collect();
         recreate(inst, &local, state, rng, &eff);
         // Only this component changes, so the global value compares alike.
         let cur_value = state.value;
@@ -637,11 +655,22 @@ fn lns(
         // shrinking margin of the best, so the search can leave a local
         // optimum; fall back to the best otherwise.
         let margin = 0.01 * (1.0 - it as f64 / iters as f64) * best_value.abs();
-        if cur_value > best_value + tol(best_value) {
-            copy_choices(inst, exps, &mut best, state);
-            best_value = cur_value;
-        } else if cur_value < best_value - margin - tol(best_value) {
-            copy_choices(inst, exps, state, &best);
+        let better = cur_value > best_value + tol(best_value);
+        if better || cur_value < best_value - margin - tol(best_value) {
+            // Only the tests that may differ, in the component's order, so
+            // runs are removed and added in the order a full copy takes.
+            differing.sort_unstable();
+            let tests: Vec<usize> = differing.iter().map(|&i| exps[i]).collect();
+            if better {
+                copy_choices(inst, &tests, &mut best, state);
+                best_value = cur_value;
+            } else {
+                copy_choices(inst, &tests, state, &best);
+            }
+            for &i in &differing {
+                differs[i] = false;
+            }
+            differing.clear();
         }
     }
     copy_choices(inst, exps, state, &best);
