@@ -9,7 +9,14 @@
 //! optimum, and for the large ones, whose optimum is out of its reach,
 //! records the bound HiGHS proves on the exact model within
 //! `SLUICE_BENCH_PROOF_SECONDS` (300 by default; columns `proved` and
-//! `v/proved`). Timings are measured, never asserted.
+//! `v/proved`). Every row gives its wall seconds and the process's CPU
+//! seconds over the same span (all threads; `threads` says how many rayon
+//! may use, `RAYON_NUM_THREADS` sets it). Timings are measured, never
+//! asserted.
+//!
+//! `SLUICE_BENCH_SIZES` picks rows; beyond the default five, `scale`
+//! (3,000 tests on 40 pools over 13 weeks, weekly grid) and `scale-daily`
+//! (the same queue on the daily grid) run only when named there.
 //!
 //! After the plan rows come re-plan rows (`small-replan`, ...): each size is
 //! planned, then re-planned from the window's middle (the first start-grid
@@ -43,7 +50,15 @@ use std::time::Instant;
 struct Row {
     size: String,
     backend: String,
+    /// Wall-clock seconds of the plan (or re-plan).
     seconds: f64,
+    /// The process's CPU seconds over the same span, user and system, all
+    /// threads (/proc/self/stat, in ticks of 10 ms).
+    #[serde(default)]
+    cpu_seconds: f64,
+    /// The rayon threads the row could use.
+    #[serde(default)]
+    threads: usize,
     value: f64,
     bound: f64,
     optimum: Option<f64>,
@@ -62,6 +77,10 @@ struct Row {
     greedy: f64,
     status: String,
     verified: bool,
+    /// The time limit cut the search short: its plan may vary from run
+    /// to run.
+    #[serde(default)]
+    cut_short: bool,
 }
 
 /// The seed of every portfolio; `SLUICE_BENCH_SEED` picks another.
@@ -75,6 +94,7 @@ fn spec(size: &str) -> synthetic::Spec {
     match size {
         "small" => synthetic::Spec::small(seed),
         "medium" => synthetic::Spec::medium(seed),
+        "scale" | "scale-daily" => synthetic::Spec::scale(seed),
         _ => synthetic::Spec::large(seed),
     }
 }
@@ -84,7 +104,17 @@ fn spec(size: &str) -> synthetic::Spec {
 /// several pools, ramps and pairs kept apart on traffic
 /// (`synthetic::with_calendar_keys`), then eligibility, pool holdouts,
 /// given sample sizes and composed adjustments (`synthetic::with_keys`).
+/// `scale` is 3,000 tests on 40 pools over 13 weeks on the weekly grid;
+/// `scale-daily` the same queue on the daily grid, runs of any length.
 fn portfolio_for(size: &str) -> Portfolio {
+    if size == "scale-daily" {
+        let mut p = synthetic::portfolio(&spec(size));
+        p.planning.grid = StartGrid::Daily;
+        for e in &mut p.experiments {
+            e.whole_weeks = false;
+        }
+        return p;
+    }
     match size.strip_suffix("-keys") {
         Some(base) => {
             let spec = spec(base);
@@ -104,6 +134,30 @@ fn peak_mb() -> f64 {
         .and_then(|l| l.split_whitespace().nth(1))
         .and_then(|kb| kb.parse::<f64>().ok())
         .map_or(f64::NAN, |kb| kb / 1024.0)
+}
+
+/// The CPU seconds this process has used so far, user and system, over
+/// all its threads: fields 14 and 15 of /proc/self/stat, in clock ticks
+/// of 1/100 s (Linux's fixed `USER_HZ`). NaN where the file cannot be read.
+fn cpu_seconds() -> f64 {
+    let stat = std::fs::read_to_string("/proc/self/stat").unwrap_or_default();
+    // The command name, field 2, is in parentheses and may hold spaces:
+    // count from the last `)`, after which field 3 comes first.
+    let fields: Vec<&str> = stat
+        .rsplit_once(')')
+        .map_or(Vec::new(), |(_, rest)| rest.split_whitespace().collect());
+    let ticks = |field: usize| fields.get(field - 3).and_then(|f| f.parse::<f64>().ok());
+    match (ticks(14), ticks(15)) {
+        (Some(user), Some(system)) => (user + system) / 100.0,
+        _ => f64::NAN,
+    }
+}
+
+/// Wall and CPU seconds of `f`, with its result.
+fn timed<T>(f: impl FnOnce() -> T) -> (T, f64, f64) {
+    let (clock, cpu) = (Instant::now(), cpu_seconds());
+    let out = f();
+    (out, clock.elapsed().as_secs_f64(), cpu_seconds() - cpu)
 }
 
 /// A request for HiGHS, the backend that proves optima and bounds.
@@ -237,16 +291,27 @@ fn busiest_pool(portfolio: &Portfolio, progress: &Progress) -> usize {
         .unwrap_or(0)
 }
 
+/// The request of a row: a 25 s time limit, except on the scale rows,
+/// which keep the default safety net so that their work budgets, not the
+/// clock, decide their plans (the daily one's bound alone takes about
+/// 25 s).
+fn request_for(size: &str, backend: &str) -> PlanRequest {
+    PlanRequest {
+        backend: Backend::from_name(backend).expect("a backend of this build"),
+        time_limit: if size.starts_with("scale") {
+            schedule::DEFAULT_TIME_LIMIT
+        } else {
+            25.0
+        },
+        ..PlanRequest::default()
+    }
+}
+
 /// Plans `size`, then times the re-plan from the window's middle with the
 /// busiest pool at 70% of its forecast from then on.
 fn run_replan_row(size: &str, backend: &str) -> Row {
     let mut portfolio = portfolio_for(size);
-    let backend = Backend::from_name(backend).expect("a backend of this build");
-    let request = PlanRequest {
-        backend,
-        time_limit: 25.0,
-        ..PlanRequest::default()
-    };
+    let request = request_for(size, backend);
     let first = schedule::plan(&portfolio, &request);
     let today = middle_on_grid(&portfolio);
     let progress = progress_at(&portfolio, &first, today);
@@ -256,10 +321,10 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         factor: 0.7,
     });
     let peak_reset = reset_peak();
-    let clock = Instant::now();
-    let (plan, replan_request) = sluice::replan::replan(&portfolio, &progress, today, &request)
-        .expect("the re-plan of a synthetic portfolio");
-    let seconds = clock.elapsed().as_secs_f64();
+    let ((plan, replan_request), seconds, cpu_seconds) = timed(|| {
+        sluice::replan::replan(&portfolio, &progress, today, &request)
+            .expect("the re-plan of a synthetic portfolio")
+    });
     let peak = peak_mb();
     if let Err(problems) = schedule::verify(&portfolio, &replan_request, &plan) {
         panic!(
@@ -275,6 +340,8 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         size: format!("{size}-replan"),
         backend: s.backend.clone(),
         seconds,
+        cpu_seconds,
+        threads: rayon::current_num_threads(),
         value: s.value,
         bound: s.bound,
         optimum: None,
@@ -287,6 +354,7 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified: true,
+        cut_short: s.cut_short,
     }
 }
 
@@ -295,15 +363,9 @@ fn run_row(size: &str, backend: &str) -> Row {
         return run_replan_row(base, backend);
     }
     let portfolio = portfolio_for(size);
-    let backend = Backend::from_name(backend).expect("a backend of this build");
-    let request = PlanRequest {
-        backend,
-        time_limit: 25.0,
-        ..PlanRequest::default()
-    };
-    let clock = Instant::now();
-    let plan = schedule::plan(&portfolio, &request);
-    let seconds = clock.elapsed().as_secs_f64();
+    let request = request_for(size, backend);
+    let backend = request.backend;
+    let (plan, seconds, cpu_seconds) = timed(|| schedule::plan(&portfolio, &request));
     let verified = schedule::verify(&portfolio, &request, &plan).is_ok();
     let peak = peak_mb();
     // The proven optimum, from the exact model, where HiGHS is built.
@@ -318,6 +380,8 @@ fn run_row(size: &str, backend: &str) -> Row {
         size: size.to_string(),
         backend: s.backend.clone(),
         seconds,
+        cpu_seconds,
+        threads: rayon::current_num_threads(),
         value: s.value,
         bound: s.bound,
         optimum,
@@ -330,6 +394,7 @@ fn run_row(size: &str, backend: &str) -> Row {
         greedy: plan.greedy_value,
         status: s.status.name().to_string(),
         verified,
+        cut_short: s.cut_short,
     }
 }
 
@@ -361,10 +426,12 @@ fn main() {
     let mut rows = Vec::new();
     let mut failed = false;
     println!(
-        "{:<13} {:<8} {:>8} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8} {:>9} {:>8}",
+        "{:<19} {:<8} {:>7} {:>7} {:>7} {:>9} {:>9} {:>9} {:>8} {:>8} {:>8} {:>8} {:>9} {:>8}",
         "size",
         "backend",
-        "seconds",
+        "threads",
+        "wall s",
+        "cpu s",
         "value",
         "bound",
         "optimum",
@@ -403,10 +470,12 @@ fn main() {
                 r.value_over_proved = Some(r.value / b);
             }
             println!(
-                "{:<13} {:<8} {:>8.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0} {:>9} {:>8}{}",
+                "{:<19} {:<8} {:>7} {:>7.2} {:>7.2} {:>9.2} {:>9.2} {:>9} {:>8.3} {:>8} {:>8.3} {:>8.0} {:>9} {:>8}{}{}",
                 r.size,
                 r.backend,
+                r.threads,
                 r.seconds,
+                r.cpu_seconds,
                 r.value,
                 r.bound,
                 r.optimum.map_or("-".to_string(), |o| format!("{o:.2}")),
@@ -418,7 +487,8 @@ fn main() {
                 r.proved_bound.map_or("-".to_string(), |o| format!("{o:.2}")),
                 r.value_over_proved
                     .map_or("-".to_string(), |o| format!("{o:.3}")),
-                if r.verified { "" } else { "  NOT VERIFIED" }
+                if r.verified { "" } else { "  NOT VERIFIED" },
+                if r.cut_short { "  CUT SHORT" } else { "" }
             );
             rows.push(r);
         }
@@ -490,23 +560,21 @@ fn ranges_row() -> bool {
         })
         .collect();
     let paths = 10_000;
-    let clock = Instant::now();
-    let ends = simulate(&forecasts, &spread, &runs, paths, 1);
-    let seconds = clock.elapsed().as_secs_f64();
+    let (ends, seconds, cpu) = timed(|| simulate(&forecasts, &spread, &runs, paths, 1));
     let one = rayon::ThreadPoolBuilder::new()
         .num_threads(1)
         .build()
         .expect("a one-thread pool");
-    let clock = Instant::now();
-    let ends_one = one.install(|| simulate(&forecasts, &spread, &runs, paths, 1));
-    let seconds_one = clock.elapsed().as_secs_f64();
+    let (ends_one, seconds_one, cpu_one) =
+        timed(|| one.install(|| simulate(&forecasts, &spread, &runs, paths, 1)));
     let same = ends == ends_one;
     let finished = ends.iter().flatten().filter(|e| e.is_some()).count() as f64
         / (ends.len() * paths as usize) as f64;
     let threads = rayon::current_num_threads();
     println!(
-        "ranges: {paths} paths x {} tests x {days}-day window: {seconds:.2} s on {threads} threads, {seconds_one:.2} s on one; {}; {:.0}% of runs end within twice the window",
+        "ranges: {paths} paths x {} tests x {days}-day window: {seconds:.2} s ({cpu:.2} s of CPU) on {threads} thread{}, {seconds_one:.2} s ({cpu_one:.2} s of CPU) on one; {}; {:.0}% of runs end within twice the window",
         runs.len(),
+        if threads == 1 { "" } else { "s" },
         if same { "the same ends on both" } else { "ENDS DIFFER" },
         finished * 100.0
     );
@@ -515,8 +583,10 @@ fn ranges_row() -> bool {
         "tests": runs.len(),
         "window_days": days,
         "seconds": seconds,
+        "cpu_seconds": cpu,
         "threads": threads,
         "seconds_one_thread": seconds_one,
+        "cpu_seconds_one_thread": cpu_one,
         "same_ends_on_one_thread": same,
     });
     let target = std::env::var("CARGO_TARGET_DIR").unwrap_or_else(|_| "target".to_string());

@@ -127,6 +127,20 @@ fn the_same_file_gives_the_same_bytes() {
     assert_eq!(t1, t2);
 }
 
+/// The planner bounds and searches its components (the demo has two) on
+/// rayon's threads: one thread or two give the same bytes.
+#[test]
+fn one_thread_or_two_give_the_same_bytes() {
+    let on = |threads: &str| {
+        cmd(&["plan", &demo(), "--format", "json", "--no-timing"])
+            .env("RAYON_NUM_THREADS", threads)
+            .stdout()
+    };
+    let one = on("1");
+    assert!(one.contains("\"status\": \"scheduled\""), "{one}");
+    assert_eq!(one, on("2"));
+}
+
 #[test]
 fn the_printed_plan_passes_the_independent_verifier() {
     let (bytes, _) = json_plan();

@@ -13,7 +13,8 @@
 //! is planned again, for at most [`ROUNDS`] rounds. Each range reports the
 //! achieved share as `on_plan`.
 
-use super::{plan_once, PlanRequest};
+use super::plan_once;
+use super::request::PlanRequest;
 use crate::forecast::uncertainty::{fill_ranges, lower_quantile_factor};
 use crate::plan::{Plan, Status};
 use crate::portfolio::Portfolio;

@@ -18,11 +18,15 @@
 //! that starts the search.
 //!
 //! Every step is counted, not timed, and sums run in a fixed order, so the
-//! same component always gets the same bound.
+//! same component always gets the same bound. Each step prices the tests
+//! in parallel (rayon); only the sums over them, taken in test order,
+//! combine the threads' work, so the bound is the same bits on any number
+//! of threads.
 
+use super::deadline::Deadline;
 use super::lp::{each_linking_row, Solved, Sub};
 use super::options::Instance;
-use super::search::Deadline;
+use rayon::prelude::*;
 
 /// Subgradient steps per component: about two seconds on the largest
 /// benchmark component (37,315 options, 4 million coefficients), where
@@ -34,6 +38,10 @@ pub(crate) const STEPS: usize = 800;
 /// component, 10 ended at 996.3 and 50 at 991.8 after 800 steps; after
 /// 1,200, 30 and 80 ended looser than 50).
 const PATIENCE: usize = 50;
+
+/// The fewest tests a thread prices at a time: enough options that
+/// handing them over costs little beside pricing them.
+const TESTS_PER_TASK: usize = 16;
 
 /// The linking rows column by column, for the priced values.
 struct Columns {
@@ -98,6 +106,21 @@ impl Columns {
         }
     }
 
+    /// Test `i`'s option of largest priced value, if any is positive, with
+    /// that value (0 for none).
+    fn best(&self, i: usize, mu: &[f64]) -> (f64, Option<usize>) {
+        let mut top = 0.0;
+        let mut pick = None;
+        for c in self.first[i]..self.first[i + 1] {
+            let v = self.priced(c, mu);
+            if v > top {
+                top = v;
+                pick = Some(c);
+            }
+        }
+        (top, pick)
+    }
+
     /// Column `c`'s value less the priced use of its rows.
     fn priced(&self, c: usize, mu: &[f64]) -> f64 {
         let span = self.at[c]..self.at[c + 1];
@@ -140,16 +163,14 @@ pub(crate) fn bound(
         }
         let mut l: f64 = mu.iter().zip(&cols.rhs).map(|(u, b)| u * b).sum();
         chosen.clear();
-        for i in 0..tests {
-            let mut top = 0.0;
-            let mut pick = None;
-            for c in cols.first[i]..cols.first[i + 1] {
-                let v = cols.priced(c, &mu);
-                if v > top {
-                    top = v;
-                    pick = Some(c);
-                }
-            }
+        // Each test's best priced option, tests spread over the threads;
+        // summed in test order, so the bound is the same on any number.
+        let picks: Vec<(f64, Option<usize>)> = (0..tests)
+            .into_par_iter()
+            .with_min_len(TESTS_PER_TASK)
+            .map(|i| cols.best(i, &mu))
+            .collect();
+        for (top, pick) in picks {
             l += top;
             chosen.extend(pick);
         }
@@ -223,8 +244,9 @@ pub(crate) fn bound(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::schedule::tests::on_threads;
     use crate::schedule::{synthetic, PlanRequest};
-    use std::cell::Cell;
+    use std::sync::atomic::AtomicBool;
     use std::time::{Duration, Instant};
 
     /// Tests that share nothing leave no row to price: the bound is each
@@ -253,7 +275,7 @@ mod tests {
         let mut rows = 0;
         each_linking_row(&inst, &sub, &mut |_, _| rows += 1);
         assert_eq!(rows, 0);
-        let cut = Cell::new(false);
+        let cut = AtomicBool::new(false);
         let deadline = Deadline::new(Instant::now() + Duration::from_secs(60), &cut);
         let dual = bound(&inst, &sub, 0.0, STEPS, deadline).expect("one step");
         let best: f64 = exps.iter().map(|&e| inst.options[e][0].value).sum();
@@ -265,7 +287,7 @@ mod tests {
     }
 
     /// The same component gets the same bound and the same average
-    /// choices, bit for bit.
+    /// choices, bit for bit, on one thread and on two.
     #[test]
     fn the_bound_is_the_same_every_time() {
         let spec = synthetic::Spec::medium(3);
@@ -274,12 +296,16 @@ mod tests {
         let inst = Instance::new(&p, &PlanRequest::default());
         let exps: Vec<usize> = inst.free().collect();
         let sub = Sub::all(&inst, &exps);
-        let cut = Cell::new(false);
+        let cut = AtomicBool::new(false);
         let deadline = Deadline::new(Instant::now() + Duration::from_secs(60), &cut);
-        let a = bound(&inst, &sub, 10.0, 200, deadline).expect("a bound");
-        let b = bound(&inst, &sub, 10.0, 200, deadline).expect("a bound");
+        let on = |threads: usize| {
+            on_threads(threads, || {
+                bound(&inst, &sub, 10.0, 200, deadline).expect("a bound")
+            })
+        };
+        let (a, b) = (on(1), on(2));
         assert_eq!(a.value.to_bits(), b.value.to_bits());
         assert_eq!(a.x, b.x);
-        assert!(!cut.get());
+        assert!(!deadline.was_cut());
     }
 }

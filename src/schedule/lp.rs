@@ -11,8 +11,8 @@
 //! whole weeks the segments are the weeks themselves, which keeps the
 //! model small.
 
+use super::millionths::{room, WHOLE};
 use super::options::{Instance, Opt};
-use super::state::{room, WHOLE};
 use crate::portfolio::Sharing;
 use good_lp::{
     variable, Constraint, Expression, ProblemVariables, Solution, SolutionStatus, SolverModel,
@@ -47,6 +47,17 @@ impl Backend {
             Backend::Microlp => false,
             #[cfg(feature = "highs")]
             Backend::Highs => true,
+        }
+    }
+
+    /// Whether several of its solves may run at once on different threads
+    /// (HiGHS's shared task scheduler has crashed when they did: HiGHS
+    /// issues 810 and 1005).
+    pub(crate) fn runs_on_threads(self) -> bool {
+        match self {
+            Backend::Microlp => true,
+            #[cfg(feature = "highs")]
+            Backend::Highs => false,
         }
     }
 

@@ -2,21 +2,28 @@
 //!
 //! [`plan`] enumerates each test's candidate runs (`options`), builds the
 //! greedy baseline (`greedy`), splits the portfolio into independent
-//! components (pools linked by no `not_with` or `after`), and optimises each
-//! (`search`, over the LP relaxation in `lp`); `reasons` explains every test
-//! left out. [`verify`] is an independent checker that re-derives every
-//! constraint from the portfolio and the forecast; the search never uses it,
-//! and [`plan`] runs it once on the finished plan as a guard (falling back
-//! to the greedy calendar should it ever fail). A [`PlanRequest`] carries what a re-plan knows: today, the running
-//! tests that hold their traffic, and the tests that left the queue.
+//! components (pools linked by no `not_with` or `after`), and optimises
+//! each (`search`, over the LP relaxation in `lp`) on its own from the
+//! greedy calendar: components run in parallel on rayon's threads and
+//! their results are taken in component order, so the plan is the same
+//! bytes on any number of threads. `reasons` explains every test left
+//! out. [`verify`] is an independent checker that re-derives every
+//! constraint from the portfolio and the forecast; the search never uses
+//! it, and [`plan`] runs it once on the finished plan as a guard (falling
+//! back to the greedy calendar should it ever fail). A [`PlanRequest`]
+//! carries what a re-plan knows: today, the running tests that hold their
+//! traffic, and the tests that left the queue.
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
 mod confidence;
+mod deadline;
 mod greedy;
 mod lagrange;
 mod lp;
+mod millionths;
 mod options;
 mod reasons;
+mod request;
 mod search;
 mod state;
 pub mod statistics;
@@ -27,6 +34,7 @@ mod tests;
 mod verify;
 
 pub use lp::Backend;
+pub use request::{Excluded, FixedRun, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 
 use crate::forecast::test_units_on;
@@ -39,92 +47,10 @@ use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 pub(crate) use options::Instance;
 use options::Role;
+use rayon::prelude::*;
+use std::sync::atomic::AtomicBool;
+use std::sync::{Mutex, PoisonError};
 use std::time::Instant;
-
-/// A running test that keeps its traffic exactly as given.
-#[derive(Debug, Clone, PartialEq)]
-pub struct FixedRun {
-    /// Index into `Portfolio::experiments`.
-    pub experiment: usize,
-    /// Its first day.
-    pub start: NaiveDate,
-    /// Its share of the pool from today on.
-    pub share: Share,
-    /// Its share before today, as the progress file gives it; differs
-    /// from `share` only when a re-plan re-shared it.
-    pub share_before: Share,
-    /// Last day of data, as the caller computed it (it may lie past the
-    /// window, or before today for a test ready to read).
-    pub end: NaiveDate,
-    /// What it had collected when its counts were read: its result range
-    /// is simulated from then; `None` gives it no range.
-    pub so_far: Option<crate::forecast::uncertainty::SoFar>,
-}
-
-impl FixedRun {
-    /// Its share on `day`, given the plan's `today`.
-    pub fn share_on(&self, day: NaiveDate, today: NaiveDate) -> Share {
-        if day < today {
-            self.share_before
-        } else {
-            self.share
-        }
-    }
-}
-
-/// A test that left the queue (finished or cancelled).
-#[derive(Debug, Clone, PartialEq)]
-pub struct Excluded {
-    /// Index into `Portfolio::experiments`.
-    pub experiment: usize,
-    /// The last day of data of a finished test; its successors may start
-    /// after it (plus their gap). `None` for a cancelled test: its
-    /// successors cannot run.
-    pub ended: Option<NaiveDate>,
-    /// Shown as the test's reason in the plan.
-    pub reason: String,
-    /// What it ran before today, when known; kept in the plan as history
-    /// and drawn in the pool's past days.
-    pub ran: Option<crate::plan::Ran>,
-}
-
-/// The default wall-clock safety net in seconds: twenty times the largest
-/// benchmark case measured on a loaded two-core machine (the large
-/// portfolio, 15 s; docs/planning.md), so that in ordinary use the work
-/// budgets, not the clock, end every search and decide the plan.
-pub const DEFAULT_TIME_LIMIT: f64 = 300.0;
-
-/// What to plan, beyond the portfolio.
-#[derive(Debug, Clone, PartialEq)]
-pub struct PlanRequest {
-    /// No new starts before this day (a re-plan's today); `None` for the
-    /// window's first day.
-    pub today: Option<NaiveDate>,
-    /// Running tests, held as given.
-    pub fixed: Vec<FixedRun>,
-    /// Tests left out of this plan.
-    pub excluded: Vec<Excluded>,
-    /// Wall-clock safety net in seconds; the search is otherwise bounded
-    /// by iteration counts, so results do not depend on timing.
-    pub time_limit: f64,
-    /// The LP backend.
-    pub backend: Backend,
-    /// Multiplier of the search's iteration budget (1 = default).
-    pub effort: u32,
-}
-
-impl Default for PlanRequest {
-    fn default() -> PlanRequest {
-        PlanRequest {
-            today: None,
-            fixed: Vec::new(),
-            excluded: Vec::new(),
-            time_limit: DEFAULT_TIME_LIMIT,
-            backend: Backend::default(),
-            effort: 1,
-        }
-    }
-}
 
 /// Pools linked through `not_with` or `after` fall in one component; each
 /// component lists its free tests in portfolio order.
@@ -174,6 +100,38 @@ fn components(inst: &Instance) -> Vec<Vec<usize>> {
     groups
 }
 
+/// `f` of every component (by its index), in component order.
+///
+/// Components run on the rayon pool, handed out largest (by options)
+/// first so that a large one is not left to start last; with HiGHS one
+/// after another, since HiGHS instances solving at once on several
+/// threads have crashed (ERGO-Code/HiGHS issues 810 and 1005). Each
+/// result depends on its component alone, so the order in which threads
+/// finish changes nothing.
+fn each_component<T: Send>(
+    inst: &Instance,
+    comps: &[Vec<usize>],
+    backend: Backend,
+    f: impl Fn(usize) -> T + Sync,
+) -> Vec<T> {
+    if !backend.runs_on_threads() {
+        return (0..comps.len()).map(f).collect();
+    }
+    let mut order: Vec<usize> = (0..comps.len()).collect();
+    order.sort_by(|&a, &b| {
+        options_of(inst, &comps[b])
+            .total_cmp(&options_of(inst, &comps[a]))
+            .then(a.cmp(&b))
+    });
+    let mut out: Vec<(usize, T)> = order
+        .into_par_iter()
+        .with_max_len(1)
+        .map(|i| (i, f(i)))
+        .collect();
+    out.sort_by_key(|&(i, _)| i);
+    out.into_iter().map(|(_, t)| t).collect()
+}
+
 /// The options of a component's tests, at least one: the weight by which
 /// components share a time limit.
 fn options_of(inst: &Instance, comp: &[usize]) -> f64 {
@@ -199,49 +157,62 @@ pub fn plan(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
 /// Plans the portfolio on its forecast as it is.
 fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
     let clock = Instant::now();
-    let cut = std::cell::Cell::new(false);
-    let deadline = search::Deadline::new(
+    let cut = AtomicBool::new(false);
+    let deadline = deadline::Deadline::new(
         clock + std::time::Duration::from_secs_f64(request.time_limit.max(0.0)),
         &cut,
     );
     let inst = Instance::new(portfolio, request);
     let greedy_state = greedy::greedy(&inst);
-    let mut state = greedy_state.clone();
     let comps = components(&inst);
+    let backend = request.backend;
+    // Every bound first, then the searches. Components share no pool and
+    // no link, so each is bounded and searched on its own, from the greedy
+    // calendar, on whichever thread is free; the results are taken in
+    // component order, so the plan is the same on any number of threads.
+    let relaxed: Vec<Option<lp::Solved>> = each_component(&inst, &comps, backend, |i| {
+        let floor = search::comp_value(&inst, &comps[i], &greedy_state);
+        search::relax(&inst, &comps[i], backend, floor, deadline)
+    });
+    // Each search, as it starts, may take a share of the time left in
+    // proportion to its options among those of the searches not yet
+    // started (only a safety net: the searches stop on their work budgets
+    // long before on a machine of ordinary speed).
+    let not_started = Mutex::new(comps.iter().map(|c| options_of(&inst, c)).sum::<f64>());
+    let searched: Vec<(state::State, search::Outcome)> =
+        each_component(&inst, &comps, backend, |i| {
+            let comp = &comps[i];
+            let share = {
+                let mut left = not_started.lock().unwrap_or_else(PoisonError::into_inner);
+                let share = options_of(&inst, comp) / left.max(1.0);
+                *left -= options_of(&inst, comp);
+                share
+            };
+            let mut own = greedy_state.clone();
+            let out = search::solve_component(
+                &inst,
+                comp,
+                &mut own,
+                relaxed[i].as_ref(),
+                backend,
+                deadline.share(share),
+                request.effort.max(1),
+            );
+            (own, out)
+        });
+    let mut state = greedy_state.clone();
     let mut bound = 0.0;
     let mut all_proved = true;
     let mut lp_ok = true;
     let mut improved = false;
-    // Every bound first, then the searches, each with a share of the time
-    // left in proportion to its options (only a safety net: the searches
-    // stop on their work budgets long before on a machine of ordinary speed).
-    let relaxed: Vec<Option<lp::Solved>> = comps
-        .iter()
-        .map(|comp| {
-            let floor = search::comp_value(&inst, comp, &state);
-            search::relax(&inst, comp, request.backend, floor, deadline)
-        })
-        .collect();
-    let weight = |comp: &Vec<usize>| options_of(&inst, comp);
-    let mut weight_left: f64 = comps.iter().map(weight).sum();
-    for (comp, lp) in comps.iter().zip(&relaxed) {
-        let share = weight(comp) / weight_left.max(1.0);
-        weight_left -= weight(comp);
-        let comp_deadline = deadline.share(share);
-        let out = search::solve_component(
-            &inst,
-            comp,
-            &mut state,
-            lp.as_ref(),
-            request.backend,
-            comp_deadline,
-            request.effort.max(1),
-        );
+    for (comp, (own, out)) in comps.iter().zip(&searched) {
+        search::copy_choices(&inst, comp, &mut state, own);
         bound += out.bound;
         all_proved &= out.proved;
         lp_ok &= out.lp_ok;
         improved |= out.improved;
     }
+    drop(searched);
     let fixed_value = inst.fixed_value();
     let value = fixed_value + state.value;
     let bound = (fixed_value + bound).max(value);
@@ -264,7 +235,7 @@ fn plan_once(portfolio: &Portfolio, request: &PlanRequest) -> Plan {
         value,
         bound,
         gap: if all_proved { 0.0 } else { gap },
-        cut_short: cut.get(),
+        cut_short: deadline.was_cut(),
     };
     let greedy_value = fixed_value + greedy_state.value;
     let plan = assemble(&inst, &state, solver.clone(), greedy_value, request);

@@ -11,8 +11,8 @@
 //! options (same start, a larger share but no earlier end) are dropped.
 //! Every end comes from [`Series::run_end`].
 
-use super::state::{micro, room};
-use super::{FixedRun, PlanRequest};
+use super::millionths::{micro, room};
+use super::request::{FixedRun, PlanRequest};
 use crate::day::Day;
 use crate::forecast::Series;
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};

@@ -66,8 +66,8 @@ fn pool_full(inst: &Instance, state: &State, pool: usize, day: usize, share: Sha
     let def = &inst.portfolio.pools[pool];
     state.count_on(inst, pool, day) >= def.max_concurrent
         || (def.sharing == crate::portfolio::Sharing::Split
-            && state.share_on(inst, pool, day) + super::state::micro(share)
-                > super::state::room(def))
+            && state.share_on(inst, pool, day) + super::millionths::micro(share)
+                > super::millionths::room(def))
 }
 
 /// What limits the units test `e` collects beside its share, as

@@ -11,12 +11,11 @@
 //! gives the same plan; the wall clock only cuts the search short when the
 //! time limit runs out.
 
+use super::deadline::Deadline;
+use super::lp::Backend;
 use super::lp::{self, Sub};
 use super::options::Instance;
 use super::state::State;
-use super::Backend;
-use std::cell::Cell;
-use std::time::Instant;
 
 /// A small seeded generator (splitmix64; Steele, Lea & Flood 2014,
 /// "Fast splittable pseudorandom number generators").
@@ -62,61 +61,6 @@ pub(crate) struct Outcome {
 /// Tolerance on values for "no worse" and "proved".
 fn tol(v: f64) -> f64 {
     1e-7 * v.abs().max(1.0)
-}
-
-/// The wall-clock safety net: the moment the search must stop by, and a
-/// flag that records whether it ever did stop for it. The work budgets
-/// decide every plan that finishes them; only a plan this flag marks may
-/// depend on the machine's speed (`SolverSummary::cut_short`).
-#[derive(Clone, Copy)]
-pub(crate) struct Deadline<'a> {
-    at: Instant,
-    cut: &'a Cell<bool>,
-}
-
-impl<'a> Deadline<'a> {
-    /// Stops at `at`; marks `cut` when it does.
-    pub(crate) fn new(at: Instant, cut: &'a Cell<bool>) -> Deadline<'a> {
-        Deadline { at, cut }
-    }
-
-    /// The same flag, stopping after `fraction` of the time left from now.
-    pub(crate) fn share(self, fraction: f64) -> Deadline<'a> {
-        let left = self.seconds_left() * fraction.clamp(0.0, 1.0);
-        Deadline {
-            at: Instant::now() + std::time::Duration::from_secs_f64(left),
-            cut: self.cut,
-        }
-    }
-
-    /// Whether the time is up; if so, the search is marked cut short.
-    pub(crate) fn passed(self) -> bool {
-        let passed = Instant::now() >= self.at;
-        if passed {
-            self.cut.set(true);
-        }
-        passed
-    }
-
-    /// Seconds left, for a solver's own time limit.
-    pub(crate) fn seconds_left(self) -> f64 {
-        self.at
-            .saturating_duration_since(Instant::now())
-            .as_secs_f64()
-    }
-
-    /// Records an LP solve that failed or stopped short of optimal once the
-    /// time was up: the solver's time limit, not the model, ended it.
-    fn after_lp(self, solved: &Result<lp::Solved, lp::Failed>) {
-        let short = match solved {
-            Ok(s) => !s.optimal,
-            Err(lp::Failed::Infeasible) => false,
-            Err(_) => true,
-        };
-        if short {
-            self.passed();
-        }
-    }
 }
 
 fn remaining(deadline: Deadline) -> f64 {
@@ -589,17 +533,33 @@ fn lns(
     let mut best = state.clone();
     let mut best_value = best.value;
     let mut removed: Vec<usize> = Vec::new();
+    // The places in `exps` of the tests on each pool, so a move finds the
+    // tests of the pools it touched without a pass over the component.
+    let mut on_pool: Vec<Vec<usize>> = vec![Vec::new(); p.pools.len()];
+    for (i, &e) in exps.iter().enumerate() {
+        for &pool in &p.experiments[e].pools {
+            on_pool[pool].push(i);
+        }
+    }
+    // The places of the tests whose choice may differ between `state` and
+    // `best`: every move changes only tests on the pools it touched, so
+    // copying between the two needs to look at these alone.
+    let mut differs = vec![false; exps.len()];
+    let mut differing: Vec<usize> = Vec::new();
     for it in 0..iters {
         if it % 32 == 0 && deadline.passed() {
             break;
         }
         removed.clear();
-        let unscheduled: Vec<usize> = exps
-            .iter()
-            .copied()
-            .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
-            .collect();
         let mode = rng.below(4);
+        let unscheduled: Vec<usize> = if mode <= 1 {
+            exps.iter()
+                .copied()
+                .filter(|&e| state.choice[e].is_none() && !inst.options[e].is_empty())
+                .collect()
+        } else {
+            Vec::new()
+        };
         let mut seed_move: Option<(usize, usize)> = None;
         if mode <= 1 && !unscheduled.is_empty() {
             // Clear the way for one option of a left-out test.
@@ -674,18 +634,20 @@ fn lns(
             state.add(inst, u, k);
             touched.extend(p.experiments[u].pools.iter().copied());
         }
-        touched.sort_unstable();
-        touched.dedup();
-        let local: Vec<usize> = exps
+        // The tests on the touched pools, in the component's order.
+        let mut at: Vec<usize> = touched
             .iter()
-            .copied()
-            .filter(|&e| {
-                p.experiments[e]
-                    .pools
-                    .iter()
-                    .any(|pool| touched.binary_search(pool).is_ok())
-            })
+            .flat_map(|&pool| on_pool[pool].iter().copied())
             .collect();
+        at.sort_unstable();
+        at.dedup();
+        for &i in &at {
+            if !differs[i] {
+                differs[i] = true;
+                differing.push(i);
+            }
+        }
+        let local: Vec<usize> = at.iter().map(|&i| exps[i]).collect();
         recreate(inst, &local, state, rng, &eff);
         // Only this component changes, so the global value compares alike.
         let cur_value = state.value;
@@ -693,11 +655,22 @@ fn lns(
         // shrinking margin of the best, so the search can leave a local
         // optimum; fall back to the best otherwise.
         let margin = 0.01 * (1.0 - it as f64 / iters as f64) * best_value.abs();
-        if cur_value > best_value + tol(best_value) {
-            copy_choices(inst, exps, &mut best, state);
-            best_value = cur_value;
-        } else if cur_value < best_value - margin - tol(best_value) {
-            copy_choices(inst, exps, state, &best);
+        let better = cur_value > best_value + tol(best_value);
+        if better || cur_value < best_value - margin - tol(best_value) {
+            // Only the tests that may differ, in the component's order, so
+            // runs are removed and added in the order a full copy takes.
+            differing.sort_unstable();
+            let tests: Vec<usize> = differing.iter().map(|&i| exps[i]).collect();
+            if better {
+                copy_choices(inst, &tests, &mut best, state);
+                best_value = cur_value;
+            } else {
+                copy_choices(inst, &tests, state, &best);
+            }
+            for &i in &differing {
+                differs[i] = false;
+            }
+            differing.clear();
         }
     }
     copy_choices(inst, exps, state, &best);
@@ -769,9 +742,10 @@ mod tests {
     use super::*;
     use crate::portfolio::{after_order, Prerequisite};
     use crate::schedule::{synthetic, PlanRequest};
-    use std::time::Duration;
+    use std::sync::atomic::AtomicBool;
+    use std::time::{Duration, Instant};
 
-    fn far_deadline(cut: &Cell<bool>) -> Deadline<'_> {
+    fn far_deadline(cut: &AtomicBool) -> Deadline<'_> {
         Deadline::new(Instant::now() + Duration::from_secs(600), cut)
     }
 
@@ -804,7 +778,7 @@ mod tests {
             let request = PlanRequest::default();
             let inst = Instance::new(&p, &request);
             let exps: Vec<usize> = inst.free().collect();
-            let cut = Cell::new(false);
+            let cut = AtomicBool::new(false);
             let greedy = super::super::greedy::greedy(&inst);
             let floor = comp_value(&inst, &exps, &greedy);
             let sub = Sub::all(&inst, &exps);

@@ -2,28 +2,18 @@
 //! test and the per-day occupancy of every pool, with the feasibility test
 //! greedy and the local search share.
 //!
-//! Shares are held as whole millionths so adding and removing runs never
-//! drifts. This is the planner's own bookkeeping; the independent check of
-//! a finished plan lives in `verify`, which shares no code with it.
+//! Shares are held as whole millionths (`millionths`) so adding and
+//! removing runs never drifts. This is the planner's own bookkeeping; the
+//! independent check of a finished plan lives in `verify`, which shares
+//! no code with it.
 
+use super::millionths::{micro, room, WHOLE};
 use super::options::{Instance, Opt, Role};
 use crate::portfolio::Sharing;
 use crate::share::Share;
 
-/// One whole pool in millionths, as sums of [`Share`]s are kept.
-pub(crate) const WHOLE: i64 = Share::MILLION as i64;
-
-/// The most the shares on a split pool may add up to on a day, in
-/// millionths: its [`Pool::capacity`](crate::portfolio::Pool::capacity).
-pub(crate) fn room(pool: &crate::portfolio::Pool) -> i64 {
-    micro(pool.capacity())
-}
-
-/// A share in millionths, for sums that may pass one whole pool.
-pub(crate) fn micro(share: Share) -> i64 {
-    i64::from(share.millionths())
-}
-
+/// The calendar so far: each free test's chosen option and every pool's
+/// occupancy per segment.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct State {
     /// Index into `Instance::options[e]` of each scheduled free test.

@@ -61,6 +61,15 @@ impl Spec {
             seed,
         }
     }
+    /// 3,000 tests, 40 pools, 13 weeks: a quarter at scale.
+    pub fn scale(seed: u64) -> Spec {
+        Spec {
+            tests: 3000,
+            pools: 40,
+            weeks: 13,
+            seed,
+        }
+    }
 }
 
 /// The share levels of every synthetic portfolio.

@@ -1377,3 +1377,60 @@ fn a_component_past_one_lps_size_plans_verified_from_the_lagrangian_bound() {
     assert!(s.value <= s.bound + 1e-9 * s.bound);
     assert_eq!(untimed(first.clone()), untimed(plan(&p, &request)));
 }
+
+/// Runs `f` on a rayon pool of `threads` threads.
+pub(crate) fn on_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("a thread pool")
+        .install(f)
+}
+
+/// Components are bounded and searched on the rayon pool, and the
+/// Lagrangian bound prices a large component's tests there; the results
+/// are gathered in a fixed order, so a portfolio of eight components, and
+/// one whose component is past 8,000 options, each give the same plan,
+/// byte for byte in its JSON, on one thread and on two.
+#[test]
+fn the_plan_is_the_same_bytes_on_one_thread_and_on_two() {
+    let mut several = synthetic::portfolio(&synthetic::Spec {
+        tests: 40,
+        pools: 8,
+        weeks: 13,
+        seed: 3,
+    });
+    // Links only within a pool, so each pool is a component of its own.
+    let pool_of: Vec<usize> = several.experiments.iter().map(|e| e.pools[0]).collect();
+    for (i, e) in several.experiments.iter_mut().enumerate() {
+        e.after.retain(|a| pool_of[a.experiment] == pool_of[i]);
+        e.not_with.retain(|&o| pool_of[o] == pool_of[i]);
+    }
+    several.after_order = after_order(&several.experiments).expect("no cycle");
+    let large_spec = synthetic::Spec {
+        tests: 70,
+        pools: 4,
+        weeks: 52,
+        seed: 1,
+    };
+    let mut large = synthetic::with_calendar_keys(synthetic::portfolio(&large_spec), 1);
+    synthetic::with_keys(&mut large, 1);
+    let request = PlanRequest::default();
+    for (p, lagrangian) in [(&several, false), (&large, true)] {
+        let inst = Instance::new(p, &request);
+        let comps = components(&inst);
+        let biggest = comps
+            .iter()
+            .map(|c| options_of(&inst, c))
+            .fold(0.0, f64::max);
+        assert!(comps.len() >= if lagrangian { 1 } else { 8 }, "{comps:?}");
+        assert_eq!(biggest > 8000.0, lagrangian, "{biggest} options");
+        let bytes = |threads: usize| {
+            let plan = on_threads(threads, || untimed(plan(p, &request)));
+            assert!(!plan.solver.cut_short);
+            serde_json::to_vec(&plan).expect("a plan serialises")
+        };
+        let one = bytes(1);
+        assert!(one == bytes(2), "the plans differ on one thread and two");
+    }
+}

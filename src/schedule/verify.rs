@@ -9,7 +9,7 @@
 //! runs it once on the finished plan as a guard, the tests run it on every
 //! plan they make, and so may a re-planner on its results.
 
-use super::PlanRequest;
+use super::request::PlanRequest;
 use crate::forecast::units_on;
 use crate::plan::{Plan, Status};
 use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Sharing, StartGrid};
