@@ -14,7 +14,8 @@ use std::path::PathBuf;
 #[derive(Args, Debug)]
 #[command(after_help = "Examples:\n  \
     sluice forecast portfolios/demo.yaml\n  \
-    sluice forecast portfolios/demo.yaml --pool product --format json\n\n\
+    sluice forecast portfolios/demo.yaml --pool product --format json\n  \
+    sluice forecast portfolios/demo.yaml --backtest\n\n\
     A pool with `history: FILE.csv` shows the model fitted from it; \
     docs/portfolio.md describes the file and the fit.")]
 pub struct ForecastArgs {
@@ -139,11 +140,18 @@ fn pool_text(p: &PoolForecast) -> String {
         );
     }
     if let (Some(d), Some(l)) = (p.daily_cv, p.level_cv) {
+        let growth = match p.level_growth {
+            Some(g) if g > 0.0 => format!(
+                ", widening to {} thirteen weeks out",
+                percent(l * crate::forecast::uncertainty::grown(91, g))
+            ),
+            _ => String::new(),
+        };
         row(
             &mut out,
             "spread",
             format!(
-                "{} day to day (daily_cv), {} on the level over four weeks (level_cv)",
+                "{} day to day (daily_cv), {} on the level four weeks out (level_cv){growth}; from the backtest",
                 percent(d),
                 percent(l)
             ),

@@ -84,14 +84,15 @@ struct TotalError {
 }
 
 /// The backtest of `units` from `start`, and the calibrated `level_cv`
-/// (`None` with fewer than [`MIN_ORIGINS`] four-week totals).
+/// and `level_growth` (`None` with fewer than [`MIN_ORIGINS`] four-week
+/// totals).
 pub fn run(
     start: NaiveDate,
     units: &[f64],
     trend: bool,
     skip: &[bool],
     daily_cv: f64,
-) -> (Option<Backtest>, Option<f64>) {
+) -> (Option<Backtest>, Option<(f64, f64)>) {
     let n = units.len();
     let usable = |i: usize| units[i] > 0.0 && !skip.get(i).copied().unwrap_or(false);
     let mut weeks: [Vec<f64>; 3] = Default::default();
@@ -142,9 +143,9 @@ pub fn run(
     let mean = |v: &[f64]| (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64);
     let s_daily = (1.0 + daily_cv * daily_cv).ln().sqrt();
     let four = totals.iter().filter(|t| t.horizon == 28).count();
-    let sigma = (four >= MIN_ORIGINS).then(|| calibrate(&totals, s_daily));
+    let spread = (four >= MIN_ORIGINS).then(|| calibrate(&totals, s_daily));
     let coverage = |h: usize| {
-        let s = sigma?;
+        let s = spread?;
         let of: Vec<&TotalError> = totals.iter().filter(|t| t.horizon == h).collect();
         (!of.is_empty())
             .then(|| of.iter().filter(|t| covered(t, s, s_daily)).count() as f64 / of.len() as f64)
@@ -153,7 +154,9 @@ pub fn run(
         .iter()
         .filter(|t| t.horizon == 28)
         .map(|t| {
-            let st = total_sd(sigma.unwrap_or(0.0), s_daily, t.days);
+            let (level, growth) = spread.unwrap_or((0.0, 0.0));
+            let l = level * mean_growth(t, growth);
+            let st = (l * l + s_daily * s_daily / t.days.max(1) as f64).sqrt();
             OriginRange {
                 from: t.from,
                 to: t.from + Duration::days(t.horizon as i64 - 1),
@@ -174,7 +177,7 @@ pub fn run(
         coverage_13w: coverage(91),
         ranges,
     };
-    (Some(summary), sigma.map(lognormal_cv))
+    (Some(summary), spread.map(|(s, g)| (lognormal_cv(s), g)))
 }
 
 /// The ranges a chart of the history from `first` on shows: four weeks
@@ -192,38 +195,70 @@ pub fn shown(b: &Backtest, first: NaiveDate) -> Vec<OriginRange> {
     out
 }
 
-/// The log sd of a total over `days` days.
-fn total_sd(level: f64, daily: f64, days: usize) -> f64 {
-    (level * level + daily * daily / days.max(1) as f64).sqrt()
+/// The level's growth averaged over the days of total `t`: each day's
+/// `max(1, k/28)^growth`, as the simulation draws them (one draw for all).
+fn mean_growth(t: &TotalError, growth: f64) -> f64 {
+    if growth == 0.0 {
+        return 1.0;
+    }
+    (1..=t.horizon)
+        .map(|k| super::uncertainty::grown(k as i64, growth))
+        .sum::<f64>()
+        / t.horizon as f64
 }
 
-/// Whether `t` fell in its P10-P90 range at level spread `level`.
-fn covered(t: &TotalError, level: f64, daily: f64) -> bool {
-    let s = total_sd(level, daily, t.days);
+/// Whether `t` fell in its P10-P90 range when the level's log sd over its
+/// days is `level` and the days' own is `daily`.
+fn held(t: &TotalError, level: f64, daily: f64) -> bool {
+    let s = (level * level + daily * daily / t.days.max(1) as f64).sqrt();
     let centre = -s * s / 2.0;
     (t.error - centre).abs() <= Z90 * s
 }
 
-/// The most steps of the calibration's search: level spreads up to 1 (a
+/// Whether `t` fell in its P10-P90 range at level spread `(σ, growth)`.
+fn covered(t: &TotalError, (level, growth): (f64, f64), daily: f64) -> bool {
+    held(t, level * mean_growth(t, growth), daily)
+}
+
+/// The most steps of the calibration's search of σ: up to 1 (a
 /// coefficient of variation of 1.3), past which a forecast says nothing.
 const MAX_STEPS: usize = 2000;
+/// The growths tried, in tenths: 0 to 1 (1: the spread grows in
+/// proportion to the days ahead).
+const GROWTHS: usize = 10;
 
-/// The level spread (in steps of 0.0005, the smallest among equals) whose
-/// coverage of each horizon's totals lies closest to 80%: the largest
-/// distance from 80% over the horizons is the least, then their sum.
-fn calibrate(totals: &[TotalError], daily: f64) -> f64 {
-    let share = |level: f64, h: usize| {
-        let of: Vec<&TotalError> = totals.iter().filter(|t| t.horizon == h).collect();
+/// The level spread `(σ, growth)` (σ in steps of 0.0005, growth in
+/// tenths; the smallest growth, then σ, among equals) whose coverage of
+/// each horizon's totals lies closest to 80%: the largest distance from
+/// 80% over the horizons is the least, then their sum.
+fn calibrate(totals: &[TotalError], daily: f64) -> (f64, f64) {
+    // Each total's mean growth at each growth tried, worked out once.
+    let grown: Vec<Vec<f64>> = totals
+        .iter()
+        .map(|t| {
+            (0..=GROWTHS)
+                .map(|g| mean_growth(t, g as f64 / GROWTHS as f64))
+                .collect()
+        })
+        .collect();
+    let share = |(level, g): (f64, usize), h: usize| {
+        let of: Vec<usize> = (0..totals.len())
+            .filter(|&i| totals[i].horizon == h)
+            .collect();
         if of.is_empty() {
             return None;
         }
-        Some(of.iter().filter(|t| covered(t, level, daily)).count() as f64 / of.len() as f64)
+        let n = of
+            .iter()
+            .filter(|&&i| held(&totals[i], level * grown[i][g], daily))
+            .count();
+        Some(n as f64 / of.len() as f64)
     };
     // The largest and the summed distance from 80%, compared in that order.
-    let miss = |level: f64| {
+    let miss = |spread: (f64, usize)| {
         let misses: Vec<f64> = [28, 91]
             .iter()
-            .filter_map(|&h| share(level, h))
+            .filter_map(|&h| share(spread, h))
             .map(|c| (c - 0.8).abs())
             .collect();
         (
@@ -231,15 +266,31 @@ fn calibrate(totals: &[TotalError], daily: f64) -> f64 {
             misses.iter().sum::<f64>(),
         )
     };
-    let (mut best, mut best_miss) = (0.0, (f64::INFINITY, f64::INFINITY));
-    for step in 0..=MAX_STEPS {
-        let level = step as f64 * 0.0005;
-        let m = miss(level);
-        if m.0 < best_miss.0 - 1e-12 || (m.0 < best_miss.0 + 1e-12 && m.1 < best_miss.1 - 1e-12) {
-            (best, best_miss) = (level, m);
+    // A coarse pass every tenth step, then every step about the best;
+    // among equals the smallest growth, then the smallest spread.
+    let mut best = ((0usize, 0usize), (f64::INFINITY, f64::INFINITY));
+    let consider = |best: &mut ((usize, usize), (f64, f64)), step: usize, g: usize| {
+        let m = miss((step as f64 * 0.0005, g));
+        let (at, was) = *best;
+        let equal = (m.0 - was.0).abs() < 1e-12 && (m.1 - was.1).abs() < 1e-12;
+        let better = m.0 < was.0 - 1e-12
+            || ((m.0 - was.0).abs() < 1e-12 && m.1 < was.1 - 1e-12)
+            || (equal && (g, step) < (at.1, at.0));
+        if better {
+            *best = ((step, g), m);
+        }
+    };
+    for g in 0..=GROWTHS {
+        for step in (0..=MAX_STEPS).step_by(10) {
+            consider(&mut best, step, g);
         }
     }
-    best
+    let (coarse, g) = best.0;
+    for step in coarse.saturating_sub(10)..=(coarse + 10).min(MAX_STEPS) {
+        consider(&mut best, step, g);
+    }
+    let best = best.0;
+    (best.0 as f64 * 0.0005, best.1 as f64 / GROWTHS as f64)
 }
 
 #[cfg(test)]
@@ -265,18 +316,25 @@ mod tests {
             .collect();
         let s = calibrate(&totals, 0.0);
         let held = totals.iter().filter(|x| covered(x, s, 0.0)).count();
-        assert_eq!(held, 8, "{s}");
+        assert_eq!(held, 8, "{s:?}");
+        // One horizon alone needs no growth.
+        assert_eq!(s.1, 0.0);
         // A smaller spread holds fewer.
-        let fewer = totals.iter().filter(|x| covered(x, s - 0.002, 0.0)).count();
+        let fewer = totals
+            .iter()
+            .filter(|x| covered(x, (s.0 - 0.002, s.1), 0.0))
+            .count();
         assert!(fewer < 8);
     }
 
     #[test]
-    fn calibration_balances_the_two_horizons() {
-        // Four-week errors 85% as wide as thirteen-week ones: the spread
-        // chosen covers 70-90% of each horizon's totals.
+    fn calibration_grows_the_spread_when_far_errors_are_wider() {
+        // Thirteen-week errors twice as wide as four-week ones: one spread
+        // cannot cover 80% of both (it covers all the near totals and too
+        // few far ones), so the spread grows with the days ahead and
+        // covers eight in ten of each.
         let mut totals: Vec<TotalError> = (0..10)
-            .map(|i| t(0.85 * (-0.1 + 0.02 * i as f64 + 0.01), 28))
+            .map(|i| t(0.5 * (-0.1 + 0.02 * i as f64 + 0.01), 28))
             .collect();
         totals.extend((0..10).map(|i| t(-0.1 + 0.02 * i as f64 + 0.01, 91)));
         let s = calibrate(&totals, 0.0);
@@ -286,11 +344,7 @@ mod tests {
                 .filter(|x| x.horizon == h && covered(x, s, 0.0))
                 .count()
         };
-        assert!(
-            (7..=9).contains(&held(28)) && (7..=9).contains(&held(91)),
-            "{s}: {} {}",
-            held(28),
-            held(91)
-        );
+        assert_eq!((held(28), held(91)), (8, 8), "{s:?}");
+        assert!(s.1 > 0.0, "{s:?}");
     }
 }

@@ -104,9 +104,13 @@ pub struct Fit {
     pub newest_set_aside: usize,
     /// Day-to-day noise as a coefficient of variation.
     pub daily_cv: f64,
-    /// The forecast's level error as a coefficient of variation,
-    /// calibrated by the backtest.
+    /// The forecast's level error four weeks out, as a coefficient of
+    /// variation, calibrated by the backtest.
     pub level_cv: f64,
+    /// How the level error's spread grows further out: on a day t days
+    /// after the history, `max(1, t/28)^level_growth` times four weeks'
+    /// (calibrated by the backtest; 0 without one).
+    pub level_growth: f64,
     /// The backtest from rolling origins, when the history has room for it.
     pub backtest: Option<Backtest>,
 }
@@ -175,9 +179,10 @@ impl Fit {
 /// days events cover (shorter than `units` means the rest are not).
 pub fn fit(start: NaiveDate, units: &[f64], trend: bool, skip: &[bool]) -> Result<Fit, FitError> {
     let mut f = fit_point(start, units, trend, skip)?;
-    let (summary, level_cv) = backtest::run(start, units, trend, skip, f.daily_cv);
-    if let Some(cv) = level_cv {
+    let (summary, spread) = backtest::run(start, units, trend, skip, f.daily_cv);
+    if let Some((cv, growth)) = spread {
         f.level_cv = cv;
+        f.level_growth = growth;
     }
     f.backtest = summary;
     Ok(f)
@@ -334,6 +339,7 @@ pub(crate) fn fit_point(
         newest_set_aside: found.newest_set_aside,
         daily_cv: lognormal_cv(s_daily),
         level_cv: lognormal_cv(1.2533 * s_daily / (LEVEL_DAYS as f64).sqrt()),
+        level_growth: 0.0,
         backtest: None,
     })
 }

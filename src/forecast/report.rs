@@ -60,6 +60,9 @@ pub struct PoolForecast {
     /// The level's error over four weeks as a coefficient of variation
     /// (with a history).
     pub level_cv: Option<f64>,
+    /// How that error's spread grows further out: `max(1, t/28)^growth`
+    /// on a day t days after the history (with a history).
+    pub level_growth: Option<f64>,
     /// Mean absolute percentage error of a fit on all but the last four
     /// weeks, over those weeks (with at least eight weeks of history).
     pub mape: Option<f64>,
@@ -172,6 +175,7 @@ fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
             events: 0,
             daily_cv: None,
             level_cv: None,
+            level_growth: None,
             mape: None,
             overridden: Vec::new(),
             total_4w: None,
@@ -225,6 +229,7 @@ fn pool_forecast(pool: &Pool, from: NaiveDate, to: NaiveDate) -> PoolForecast {
         events: h.events.len(),
         daily_cv: Some(h.fit.daily_cv),
         level_cv: Some(h.fit.level_cv),
+        level_growth: Some(h.fit.level_growth),
         mape: fit::holdout_mape(h.start, &h.units, h.trend, &h.skipped()),
         overridden,
         total_4w: Some(ahead(28)),

@@ -9,8 +9,12 @@
 //! independent across days (day-to-day noise). Both are lognormal with
 //! mean 1 and the given coefficient of variation (the lognormal's moments:
 //! mean `exp(μ + σ²/2)`, variance `(exp(σ²) − 1)·mean²`; common practice).
-//! A day's units are the forecast times both factors. Paths are shared by
-//! every test, so tests on one pool see the same traffic.
+//! A day's units are the forecast times both factors. A forecast fitted
+//! from a history also has a `growth`: the level factor's σ on a day t
+//! days after the history's end is `σL·max(1, t/28)^growth` (the same Z on
+//! every day of a path), so the further out a day, the wider its range, as
+//! the backtest measured (`super::backtest`). Paths are shared by every
+//! test, so tests on one pool see the same traffic.
 //!
 //! A test's simulated end follows the plan's own rule, [`Series::run_end`]:
 //! the first day its share of the simulated units reaches its need, never
@@ -32,6 +36,12 @@ use rayon::prelude::*;
 /// `cv`: `sqrt(ln(1 + cv²))`.
 pub fn sigma(cv: f64) -> f64 {
     (1.0 + cv * cv).ln().sqrt()
+}
+
+/// How much the level's spread has grown `days` days after the forecast's
+/// origin: `max(1, days / 28)^growth`.
+pub fn grown(days: i64, growth: f64) -> f64 {
+    (days as f64 / 28.0).max(1.0).powf(growth)
 }
 
 /// The mean-1 lognormal factor of σ `s` at the standard normal value `z`.
@@ -156,10 +166,17 @@ fn draw(forecasts: &[Series], spread: &[Uncertainty], sims: &mut [Series], seed:
         }
         let (sl, sd) = (sigma(u.level_cv), sigma(u.daily_cv));
         let z: f64 = StandardNormal.sample(&mut rng);
-        let level = factor(sl, z);
+        let flat = factor(sl, z);
+        // Day i's level factor: the path's one draw, its spread grown
+        // with the days since the forecast's origin.
+        let ahead = u.origin.map(|o| (base.start - o).num_days());
         let sim = &mut sims[p];
         let mut total = 0.0;
         for (i, &f) in base.units.iter().enumerate() {
+            let level = match ahead {
+                Some(a) if u.growth > 0.0 => factor(sl * grown(a + i as i64, u.growth), z),
+                _ => flat,
+            };
             let day = if sd > 0.0 {
                 let z: f64 = StandardNormal.sample(&mut rng);
                 factor(sd, z)
@@ -396,7 +413,11 @@ mod tests {
     }
 
     fn cv(level_cv: f64, daily_cv: f64) -> Uncertainty {
-        Uncertainty { level_cv, daily_cv }
+        Uncertainty {
+            level_cv,
+            daily_cv,
+            ..Uncertainty::default()
+        }
     }
 
     #[test]

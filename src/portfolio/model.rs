@@ -230,6 +230,8 @@ impl Forecast {
                 self.history.as_ref().map(|h| Uncertainty {
                     level_cv: h.fit.level_cv,
                     daily_cv: h.fit.daily_cv,
+                    growth: h.fit.level_growth,
+                    origin: Some(h.end()),
                 })
             })
             .unwrap_or_default()
@@ -244,6 +246,15 @@ pub struct Uncertainty {
     pub level_cv: f64,
     /// One factor per day: day-to-day noise, independent across days.
     pub daily_cv: f64,
+    /// How the level factor's spread grows with the days since `origin`:
+    /// on day t it is the spread of `level_cv` times `max(1, t / 28)^growth`
+    /// (fitted by the backtest; 0, a spread as wide far out as near, when
+    /// the portfolio gives `uncertainty`).
+    #[serde(default)]
+    pub growth: f64,
+    /// The day the forecast was made from (a history's last day).
+    #[serde(default)]
+    pub origin: Option<NaiveDate>,
 }
 
 impl Uncertainty {

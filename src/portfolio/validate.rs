@@ -824,6 +824,8 @@ fn pools(cx: &mut Ctx, raw: Vec<RawPool>, d: &Defaults, levels: &ShareLevels) ->
             Uncertainty {
                 level_cv: cv("level_cv", u.level_cv),
                 daily_cv: cv("daily_cv", u.daily_cv),
+                growth: 0.0,
+                origin: None,
             }
         });
         let holdout = pool_holdout(cx, &at("holdout"), &who, p.holdout, d, sharing, levels);
