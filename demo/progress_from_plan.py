@@ -13,12 +13,17 @@ holdout leaves), times DELIVERED
 writes them), a running test's units come from its pool's actual
 traffic on those days instead, and the file gets a `traffic:` entry per
 pool naming its CSV, relative to PLAN.json's folder (write the progress
-file beside the plan). A stand-in for the counts an experimentation
-platform would report; the data is the demo's own.
+file beside the plan). Each running test also gets `units_per_arm`: its
+design's split with a little seeded noise, except the new card form,
+whose arms come in 53:47 (a redirect loses treatment visitors), so the
+re-plan flags a sample-ratio mismatch. A stand-in for the counts an
+experimentation platform would report; the data is the demo's own.
 """
 import csv
 import json
+import math
 import os
+import random
 import sys
 from datetime import date
 
@@ -32,6 +37,26 @@ def read_traffic(folder):
                 rows = csv.DictReader(f)
                 out[name[:-4]] = {date.fromisoformat(r["date"]): float(r["units"]) for r in rows}
     return out
+
+
+# In the story, a redirect on the new card form loses some visitors on
+# their way into the treatment: its arms come in 53:47 instead of 1:1.
+LOPSIDED = {"basket-new-card-form": 0.53}
+
+
+def per_arm(e, units):
+    """Units per arm, control first: the design's split, with a little
+    seeded noise, except where LOPSIDED breaks it."""
+    stats = e.get("statistics") or {}
+    arms, ratio = int(stats.get("arms", 2)), float(stats.get("ratio", 1.0))
+    if e["id"] in LOPSIDED and arms == 2:
+        control = round(units * LOPSIDED[e["id"]])
+        return [control, units - control]
+    weights = [1.0] + [ratio] * (arms - 1)
+    rng = random.Random(e["id"])
+    counts = [round(units * w / sum(weights) + rng.gauss(0, 0.5) * math.sqrt(units / arms)) for w in weights]
+    counts[0] += units - sum(counts)
+    return counts
 
 
 def main() -> int:
@@ -108,6 +133,7 @@ def main() -> int:
             f"    started: {start}",
             f"    share: {e['share']}",
             f"    units: {units}",
+            f"    units_per_arm: {per_arm(e, units)}",
         ]
     if actual:
         lines.append("traffic:")

@@ -11,7 +11,9 @@
 #      product pages lost a fifth of their visitors from 18 January);
 #   5. re-plan, refitted from that traffic: the drop on product pages is
 #      found as a shift on its day and named first, the new level comes
-#      from the days since it; and what moved since the first plan;
+#      from the days since it; a running test whose arms came in 53:47
+#      on a 1:1 design is flagged as a sample-ratio mismatch; and what
+#      moved since the first plan;
 #   6. a what-if on top: product pages lose another 30% from today (--scale).
 #
 # Every output goes to demo/out/ (git-ignored), made afresh on each run.
@@ -87,6 +89,8 @@ import sys
 text = open(sys.argv[1], encoding="utf-8").read()
 if not text.startswith("Traffic shift"):
     sys.exit("walkthrough: the re-plan does not open with the traffic shift")
+if "Running tests with a sample-ratio mismatch" not in text:
+    sys.exit("walkthrough: the re-plan does not flag the lopsided test")
 PY
 "${replan[@]}" --format md --out "$out/replan.md"
 "${replan[@]}" --format html --out "$out/replan.html"

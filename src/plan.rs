@@ -775,6 +775,10 @@ pub struct RunningOutlook {
     /// choice it leaves; `None` when its run reaches none.
     #[serde(default)]
     pub no_running: Option<NoRunningChoice>,
+    /// The sample-ratio check of its per-arm counts against its design's
+    /// split, when the progress file gives `units_per_arm`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sample_ratio: Option<crate::sizing::srm::SampleRatio>,
 }
 
 impl RunningOutlook {
@@ -805,6 +809,9 @@ pub enum RunningFlag {
     /// The running tests alone already overload its pool at the shares
     /// the progress file gives them.
     InputOverload,
+    /// Its per-arm counts miss its design's split (a p-value below
+    /// `planning.srm_alpha`; see [`RunningOutlook::sample_ratio`]).
+    SampleRatioMismatch,
 }
 
 impl RunningFlag {
@@ -815,6 +822,7 @@ impl RunningFlag {
             RunningFlag::CrossesNoRunning => "crosses_no_running",
             RunningFlag::PastNeed => "past_need",
             RunningFlag::InputOverload => "input_overload",
+            RunningFlag::SampleRatioMismatch => "sample_ratio_mismatch",
         }
     }
 }

@@ -40,6 +40,7 @@
 
 pub mod noninferiority;
 pub mod sequential;
+pub mod srm;
 
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};

@@ -69,6 +69,16 @@ pub fn significant(x: f64, digits: usize) -> String {
     trimmed(x, decimals)
 }
 
+/// A p-value as a report gives it: `p = 0.013` (two significant digits),
+/// or `p < 0.0001` below that.
+pub fn p_value(p: f64) -> String {
+    if p < 1e-4 {
+        "p < 0.0001".to_string()
+    } else {
+        format!("p = {}", significant(p, 2))
+    }
+}
+
 /// A noun that agrees with a count, after just's `Count`: `Count("test", 1)`
 /// shows `test`, `Count("test", 3)` shows `tests`. For a word whose plural
 /// is not a plain `s`, use [`agree`].

@@ -1173,3 +1173,75 @@ fn a_replan_refits_from_the_traffic_observed_and_says_how_far_it_ran_off() {
     assert!(html.find(r#"id="traffic-shift""#).unwrap() < html.find(r#"id="summary""#).unwrap());
     assert_eq!(html.matches("its forecast is fitted again").count(), 5);
 }
+
+#[test]
+fn per_arm_counts_that_miss_the_split_are_flagged_with_the_test_and_the_advice() {
+    // Quickstart: bigger-photos is a 1:1 test on product pages. 27,400
+    // against 24,288 is far off an even split (scipy.stats.chisquare gives
+    // 1.2e-42, tests/fixtures/srm-scipy.json); 25,910 against 25,778 is
+    // not (p = 0.56).
+    let portfolio = repo("portfolios/quickstart.yaml").display().to_string();
+    let progress = |arms: &str, name: &str| {
+        write(
+            name,
+            &format!(
+                "as_of: 2027-02-01\nexperiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units_per_arm: {arms}\n"
+            ),
+        )
+    };
+    let lopsided = progress("[27400, 24288]", "srm-lopsided.yaml");
+    let v = replan_json(&portfolio, &lopsided, "2027-02-01", &[]);
+    let o = outlook_of(&v, "bigger-photos");
+    assert!(
+        flags(o).contains(&"sample_ratio_mismatch".to_string()),
+        "{o}"
+    );
+    let r = &o["sample_ratio"];
+    assert_eq!(r["counts"], serde_json::json!([27400, 24288]));
+    assert_eq!(r["expected"], serde_json::json!([25844.0, 25844.0]));
+    let p = r["p_value"].as_f64().unwrap();
+    assert!((p / 1.1951512164805365e-42 - 1.0).abs() < 1e-8, "{p}");
+    let text = replan_text(&portfolio, &lopsided, "2027-02-01", &[]);
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        flat.starts_with("Running tests with a sample-ratio mismatch - bigger-photos: its arms have 27,400 and 24,288 units where its 1:1 split expects 25,844 and 25,844 (Pearson's chi-square, p < 0.0001)"),
+        "{text}"
+    );
+    assert!(flat.contains(
+        "Check how units are assigned and logged before trusting its result or its date."
+    ));
+    let md = replan_text(&portfolio, &lopsided, "2027-02-01", &["--format", "md"]);
+    assert!(
+        md.starts_with(
+            "## Running tests with a sample-ratio mismatch\n\n- bigger-photos: its arms"
+        ),
+        "{md}"
+    );
+    let html = replan_text(&portfolio, &lopsided, "2027-02-01", &["--format", "html"]);
+    assert!(html.contains(r#"<h2 id="sample-ratio">"#));
+    // Within noise: checked, not flagged, not worded.
+    let even = progress("[25910, 25778]", "srm-even.yaml");
+    let v = replan_json(&portfolio, &even, "2027-02-01", &[]);
+    let o = outlook_of(&v, "bigger-photos");
+    assert!(
+        !flags(o).contains(&"sample_ratio_mismatch".to_string()),
+        "{o}"
+    );
+    assert!(o["sample_ratio"]["p_value"].as_f64().unwrap() > 0.5);
+    assert!(!replan_text(&portfolio, &even, "2027-02-01", &[]).contains("sample-ratio"));
+}
+
+#[test]
+fn srm_alpha_outside_zero_to_one_is_an_error_at_its_key() {
+    let portfolio = write(
+        "srm-alpha.yaml",
+        &std::fs::read_to_string(repo("portfolios/quickstart.yaml"))
+            .unwrap()
+            .replace("pools:\n", "planning:\n  srm_alpha: 1.5\npools:\n"),
+    );
+    let out = cmd(&["check", &portfolio]).assert_exit_code(2);
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.contains("`srm_alpha`"), "{err}");
+    assert!(err.contains("srm-alpha.yaml:8:14"), "{err}");
+    assert!(err.contains("a number in (0, 1)"), "{err}");
+}

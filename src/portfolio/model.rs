@@ -130,6 +130,9 @@ pub struct Planning {
     /// quantile of its simulated ends (`planning.confidence`); `None`
     /// plans on the forecast as it is.
     pub confidence: Option<f64>,
+    /// The p-value below which a test's per-arm counts are flagged as a
+    /// sample-ratio mismatch (`planning.srm_alpha`, 0.001 by default).
+    pub srm_alpha: f64,
 }
 
 impl Default for Planning {
@@ -145,6 +148,7 @@ impl Default for Planning {
             seed: 1,
             paths: 2_000,
             confidence: None,
+            srm_alpha: 0.001,
         }
     }
 }

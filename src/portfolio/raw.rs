@@ -106,6 +106,7 @@ pub struct RawPlanning {
     pub seed: Option<f64>,
     pub paths: Option<f64>,
     pub confidence: Option<f64>,
+    pub srm_alpha: Option<f64>,
 }
 
 #[derive(Debug, Deserialize, Default)]

@@ -564,6 +564,19 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
             "0.8 plans every test so that its result comes by its planned date on 80% of simulated traffic paths; leave it out to plan on the forecast as it is",
         )
     });
+    let srm_alpha = p.srm_alpha.unwrap_or(fallback.srm_alpha);
+    let srm_alpha = if cx.number(
+        "planning.srm_alpha",
+        "",
+        srm_alpha,
+        srm_alpha > 0.0 && srm_alpha < 1.0,
+        "a number in (0, 1)",
+        "the p-value below which per-arm counts that miss the design's split are flagged; 0.001 (the default) is the usual threshold",
+    ) {
+        srm_alpha
+    } else {
+        fallback.srm_alpha
+    };
     Planning {
         grid,
         start_weekday,
@@ -572,6 +585,7 @@ fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         seed,
         paths,
         confidence: confidence.or(fallback.confidence),
+        srm_alpha,
     }
 }
 

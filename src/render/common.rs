@@ -365,6 +365,53 @@ pub fn traffic_lines(plan: &Plan) -> Vec<String> {
         .collect()
 }
 
+/// What a re-plan says before anything else, in this order, each only
+/// when there is something to say: `(anchor, title, lines)` for a traffic
+/// shift ([`shift_news`]) and for running tests whose arms are out of
+/// balance ([`sample_ratio_lines`]).
+pub fn news(plan: &Plan) -> Vec<(&'static str, &'static str, Vec<String>)> {
+    [
+        ("traffic-shift", "Traffic shift", shift_news(plan)),
+        (
+            "sample-ratio",
+            "Running tests with a sample-ratio mismatch",
+            sample_ratio_lines(plan),
+        ),
+    ]
+    .into_iter()
+    .filter(|(_, _, lines)| !lines.is_empty())
+    .collect()
+}
+
+/// The running tests whose per-arm counts miss their design's split, one
+/// sentence each: the counts, the split expected, the p-value and what to
+/// do about it.
+pub fn sample_ratio_lines(plan: &Plan) -> Vec<String> {
+    plan.running
+        .iter()
+        .filter(|o| o.flags.contains(&crate::plan::RunningFlag::SampleRatioMismatch))
+        .filter_map(|o| {
+            let r = o.sample_ratio.as_ref()?;
+            let counts: Vec<String> = r.counts.iter().map(|&c| thousands(c)).collect();
+            let expected: Vec<String> = r.expected.iter().map(|&e| units(e)).collect();
+            let base = r.expected.first().copied().filter(|&e| e > 0.0)?;
+            let split: Vec<String> = r
+                .expected
+                .iter()
+                .map(|e| crate::words::significant(e / base, 3))
+                .collect();
+            Some(format!(
+                "{}: its arms have {} units where its {} split expects {} (Pearson's chi-square, {}): a sample-ratio mismatch. Check how units are assigned and logged before trusting its result or its date.",
+                o.id,
+                counts.join(" and "),
+                split.join(":"),
+                expected.join(" and "),
+                crate::words::p_value(r.p_value)
+            ))
+        })
+        .collect()
+}
+
 /// A shift in words: `traffic fell 19% from 18 Jan and stayed there`.
 fn shift_words(s: crate::plan::TrafficShift) -> String {
     format!(

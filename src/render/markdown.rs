@@ -97,10 +97,9 @@ impl MarkupTable for Markdown {
 /// summary; empty when the plan has neither.
 fn changes(plan: &Plan) -> String {
     let mut s = String::new();
-    let news = super::common::shift_news(plan);
-    if !news.is_empty() {
-        let _ = writeln!(s, "## Traffic shift\n");
-        for line in news {
+    for (_, title, lines) in super::common::news(plan) {
+        let _ = writeln!(s, "## {title}\n");
+        for line in lines {
             let _ = writeln!(s, "- {}", escape(&line));
         }
         let _ = writeln!(s);

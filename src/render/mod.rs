@@ -344,6 +344,7 @@ pub(crate) mod fixture {
                 vec![crate::plan::RunningFlag::CannotFinish]
             },
             no_running: None,
+            sample_ratio: None,
         };
         plan.running = vec![
             outlook("search-synonyms", true, "re-shared from 10% to 50%"),

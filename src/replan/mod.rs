@@ -153,7 +153,7 @@ pub fn replan(
                 started,
                 share,
                 units,
-                ..
+                units_per_arm,
             } => {
                 let run = Run {
                     experiment: entry.experiment,
@@ -162,9 +162,16 @@ pub fn replan(
                     collected: *units,
                     as_of: progress.as_of,
                 };
+                let mut outlook = outlook(portfolio, &run, *share, today);
+                sample_ratio(
+                    portfolio,
+                    entry.experiment,
+                    units_per_arm.as_deref(),
+                    &mut outlook,
+                );
                 live.push(Live {
                     entry: k,
-                    outlook: outlook(portfolio, &run, *share, today),
+                    outlook,
                     run,
                     rescue: Rescue::None,
                 });
@@ -354,6 +361,29 @@ pub fn replan(
     plan.running = outlooks;
     plan.traffic = traffic;
     Ok((plan, request))
+}
+
+/// Checks a running test's per-arm counts against its design's split
+/// (`crate::sizing::srm`) and flags a mismatch below
+/// `planning.srm_alpha`.
+fn sample_ratio(
+    portfolio: &Portfolio,
+    experiment: usize,
+    per_arm: Option<&[u64]>,
+    outlook: &mut RunningOutlook,
+) {
+    let Some(counts) = per_arm else { return };
+    let design = &portfolio.experiments[experiment].design;
+    let weights = crate::sizing::srm::weights(design.arms, design.ratio);
+    outlook.sample_ratio = crate::sizing::srm::check(counts, &weights);
+    if outlook
+        .sample_ratio
+        .as_ref()
+        .is_some_and(|r| r.p_value < portfolio.planning.srm_alpha)
+    {
+        outlook.flags.push(RunningFlag::SampleRatioMismatch);
+        outlook.flags.sort();
+    }
 }
 
 #[cfg(test)]

@@ -230,6 +230,7 @@ pub(super) fn outlook(
         share_before: Some(run.share),
         flags: Vec::new(),
         no_running: None,
+        sample_ratio: None,
     };
     if !fits {
         outlook.flags.push(RunningFlag::CannotFinish);

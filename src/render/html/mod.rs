@@ -267,13 +267,12 @@ impl Renderer for Html {
             long_date(plan.today)
         );
         // A re-plan's changes and advice, before the summary.
-        let news = crate::render::common::shift_news(plan);
-        if !news.is_empty() {
+        for (anchor, title, lines) in crate::render::common::news(plan) {
             let _ = writeln!(
                 s,
-                r#"<section class="news"><h2 id="traffic-shift">Traffic shift</h2><ul>"#
+                r#"<section class="news"><h2 id="{anchor}">{title}</h2><ul>"#
             );
-            for line in news {
+            for line in lines {
                 let _ = writeln!(s, "<li>{}</li>", esc(&line));
             }
             let _ = writeln!(s, "</ul></section>");

@@ -233,10 +233,9 @@ impl Renderer for Text {
         // A shift of traffic is the news; then a re-plan's changes and
         // advice: what a planner reads first.
         let mut out = String::new();
-        let news = super::common::shift_news(plan);
-        if !news.is_empty() {
-            let _ = writeln!(out, "{}", paint("Traffic shift", "1", colour));
-            for line in news {
+        for (_, title, lines) in super::common::news(plan) {
+            let _ = writeln!(out, "{}", paint(title, "1", colour));
+            for line in lines {
                 let _ = write!(out, "{}", wrap_hanging("- ", &line, width));
             }
             let _ = writeln!(out);
