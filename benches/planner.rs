@@ -541,6 +541,7 @@ fn ranges_row() -> bool {
         Uncertainty {
             level_cv: 0.1,
             daily_cv: 0.2,
+            ..Uncertainty::default()
         };
         forecasts.len()
     ];

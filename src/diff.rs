@@ -237,6 +237,7 @@ mod tests {
             today: d("2027-01-04"),
             running: vec![],
             traffic: vec![],
+            missing_progress: vec![],
             changes: None,
             calendar: None,
         }

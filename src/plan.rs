@@ -664,6 +664,12 @@ pub struct Plan {
     /// each ran from its forecast, and how its forecast was refitted.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub traffic: Vec<TrafficSoFar>,
+    /// Re-plans with `--previous` only: the tests the previous plan ended
+    /// before today that the progress file does not mention, so they are
+    /// planned again as if they had never run (ids, in the previous
+    /// plan's order).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub missing_progress: Vec<String>,
     /// Re-plans with `--previous` only: what moved since the previous plan.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub changes: Option<PlanDiff>,

@@ -1245,3 +1245,81 @@ fn srm_alpha_outside_zero_to_one_is_an_error_at_its_key() {
     assert!(err.contains("srm-alpha.yaml:8:14"), "{err}");
     assert!(err.contains("a number in (0, 1)"), "{err}");
 }
+
+#[test]
+fn finished_tests_left_out_of_the_progress_file_are_named_and_strict_refuses() {
+    // Day 30 of the scenario with the first finished test's entry cut out:
+    // the previous plan ended it before today, and without a word it
+    // would be planned again from today.
+    let full = std::fs::read_to_string(day30_progress()).unwrap();
+    let (prev_path, prev) = previous();
+    let today = d(DAY30);
+    let gone = prev["experiments"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|e| date(&e["end"]).is_some_and(|end| end < today))
+        .unwrap()["id"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let entry = format!("  - id: {gone}\n");
+    let at = full.find(&entry).unwrap();
+    let next = full[at + entry.len()..]
+        .find("  - id: ")
+        .map_or(full.len(), |k| at + entry.len() + k);
+    let cut = write(
+        "progress-missing.yaml",
+        &format!("{}{}", &full[..at], &full[next..]),
+    );
+    let prev_arg = prev_path.to_str().unwrap();
+    let v = replan_json(&demo(), &cut, DAY30, &["--previous", prev_arg]);
+    assert_eq!(v["missing_progress"], serde_json::json!([gone.clone()]));
+    let out = sluice(&[
+        "replan",
+        &demo(),
+        "--progress",
+        &cut,
+        "--today",
+        DAY30,
+        "--previous",
+        prev_arg,
+        "--no-timing",
+    ]);
+    let text = ok(&out);
+    let stderr = String::from_utf8(out.stderr.clone()).unwrap();
+    assert!(
+        stderr.contains(&format!(
+            "warning: the previous plan ended `{gone}` before today"
+        )),
+        "{stderr}"
+    );
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        flat.contains(&format!(
+            "Tests the progress file leaves out - {gone}: the previous plan ended it before today"
+        )),
+        "{text}"
+    );
+    // The full file names none; --strict refuses the cut one.
+    let v = replan_json(&demo(), day30_progress(), DAY30, &["--previous", prev_arg]);
+    assert!(v.get("missing_progress").is_none());
+    let out = cmd(&[
+        "replan",
+        &demo(),
+        "--progress",
+        &cut,
+        "--today",
+        DAY30,
+        "--previous",
+        prev_arg,
+        "--strict",
+    ])
+    .assert_exit_code(2);
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(
+        err.contains(&format!("error: the previous plan ended `{gone}`")),
+        "{err}"
+    );
+    assert!(err.contains("add it with `state: finished`"), "{err}");
+}

@@ -51,6 +51,14 @@ pub(crate) enum Error {
         path: PathBuf,
         json_error: serde_json::Error,
     },
+    /// With `--strict`: the progress file leaves out tests the previous
+    /// plan ended before today.
+    MissingProgress {
+        /// The progress file.
+        progress: PathBuf,
+        /// The tests it leaves out.
+        ids: Vec<String>,
+    },
     /// `size` was given no metric (or half of one).
     SizeMetric,
     /// `size` was given no effect (or both kinds).
@@ -86,6 +94,7 @@ impl Error {
             | Error::Replan { .. }
             | Error::PreviousRead { .. }
             | Error::PreviousParse { .. }
+            | Error::MissingProgress { .. }
             | Error::SizeMetric
             | Error::SizeEffect
             | Error::Design { .. }
@@ -180,6 +189,18 @@ impl fmt::Display for Error {
                 path.display(),
                 path.display()
             ),
+            Error::MissingProgress { progress, ids } => {
+                let names: Vec<String> = ids.iter().map(|id| format!("`{id}`")).collect();
+                write!(
+                    f,
+                    "the previous plan ended {} before today, but `{}` does not mention {}; {} planned again from today as if never run; add {} with `state: finished` (or `cancelled`)",
+                    names.join(", "),
+                    progress.display(),
+                    crate::words::agree("it", "them", ids.len()),
+                    crate::words::agree("it is", "they are", ids.len()),
+                    crate::words::agree("it", "each", ids.len()),
+                )
+            }
             Error::SizeMetric => f.write_str(
                 "give the metric: `--baseline P` for a rate, or `--mean M --sd S` for a mean",
             ),

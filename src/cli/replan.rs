@@ -36,6 +36,10 @@ pub struct ReplanArgs {
     /// The earlier plan (`sluice plan --format json`) to compare against
     #[arg(long, value_name = "PLAN.json")]
     pub previous: Option<PathBuf>,
+    /// Refuse (exit 2) when the progress file leaves out a test that the
+    /// --previous plan ended before today, instead of warning
+    #[arg(long, requires = "previous")]
+    pub strict: bool,
     #[command(flatten)]
     pub output: OutputArgs,
     #[command(flatten)]
@@ -81,6 +85,22 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     let previous = a.previous.as_ref().map(read_previous).transpose()?;
     let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)?;
     if let Some(prev) = &previous {
+        plan.missing_progress = replan::missing_progress(prev, &progress, &portfolio, today);
+        if !plan.missing_progress.is_empty() {
+            let e = Error::MissingProgress {
+                progress: a.progress.clone(),
+                ids: plan.missing_progress.clone(),
+            };
+            if a.strict {
+                return Err(e);
+            }
+            // The same words as the error, as a warning.
+            let words = e.to_string();
+            eprintln!(
+                "warning: {}",
+                words.strip_prefix("error: ").unwrap_or(&words)
+            );
+        }
         plan.changes = Some(crate::diff::diff(prev, &plan));
         plan.calendar = Some(crate::render::ics::calendar_history(prev, &plan));
     }

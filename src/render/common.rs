@@ -367,8 +367,9 @@ pub fn traffic_lines(plan: &Plan) -> Vec<String> {
 
 /// What a re-plan says before anything else, in this order, each only
 /// when there is something to say: `(anchor, title, lines)` for a traffic
-/// shift ([`shift_news`]) and for running tests whose arms are out of
-/// balance ([`sample_ratio_lines`]).
+/// shift ([`shift_news`]), for running tests whose arms are out of
+/// balance ([`sample_ratio_lines`]) and for tests the progress file leaves
+/// out ([`missing_progress_lines`]).
 pub fn news(plan: &Plan) -> Vec<(&'static str, &'static str, Vec<String>)> {
     [
         ("traffic-shift", "Traffic shift", shift_news(plan)),
@@ -377,10 +378,28 @@ pub fn news(plan: &Plan) -> Vec<(&'static str, &'static str, Vec<String>)> {
             "Running tests with a sample-ratio mismatch",
             sample_ratio_lines(plan),
         ),
+        (
+            "missing-progress",
+            "Tests the progress file leaves out",
+            missing_progress_lines(plan),
+        ),
     ]
     .into_iter()
     .filter(|(_, _, lines)| !lines.is_empty())
     .collect()
+}
+
+/// The tests the previous plan ended before today that the progress file
+/// does not mention, one sentence each.
+pub fn missing_progress_lines(plan: &Plan) -> Vec<String> {
+    plan.missing_progress
+        .iter()
+        .map(|id| {
+            format!(
+                "{id}: the previous plan ended it before today, but the progress file does not mention it, so it is planned again from today as if it had never run. Add it with `state: finished` (or `cancelled`)."
+            )
+        })
+        .collect()
 }
 
 /// The running tests whose per-arm counts miss their design's split, one

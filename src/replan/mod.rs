@@ -363,6 +363,27 @@ pub fn replan(
     Ok((plan, request))
 }
 
+/// The tests `previous` ended before `today` (their last day of data
+/// before it) that `progress` does not mention and the portfolio still
+/// holds: without a word in the progress file they are planned again from
+/// today, which is rarely what happened. In the previous plan's order.
+pub fn missing_progress(
+    previous: &Plan,
+    progress: &Progress,
+    portfolio: &Portfolio,
+    today: NaiveDate,
+) -> Vec<String> {
+    previous
+        .experiments
+        .iter()
+        .filter(|e| e.run.is_some_and(|r| r.end < today))
+        .filter_map(|e| {
+            let k = portfolio.experiments.iter().position(|x| x.id == e.id)?;
+            progress.entry(k).is_none().then(|| e.id.clone())
+        })
+        .collect()
+}
+
 /// Checks a running test's per-arm counts against its design's split
 /// (`crate::sizing::srm`) and flags a mismatch below
 /// `planning.srm_alpha`.

@@ -550,6 +550,7 @@ fn assemble(
         today,
         running: Vec::new(),
         traffic: Vec::new(),
+        missing_progress: Vec::new(),
         changes: None,
         calendar: None,
     }
