@@ -1275,17 +1275,21 @@ fn finished_tests_left_out_of_the_progress_file_are_named_and_strict_refuses() {
     let prev_arg = prev_path.to_str().unwrap();
     let v = replan_json(&demo(), &cut, DAY30, &["--previous", prev_arg]);
     assert_eq!(v["missing_progress"], serde_json::json!([gone.clone()]));
-    let out = sluice(&[
-        "replan",
-        &demo(),
-        "--progress",
-        &cut,
-        "--today",
-        DAY30,
-        "--previous",
-        prev_arg,
-        "--no-timing",
-    ]);
+    let demo = demo();
+    let args = |last: &'static str| {
+        [
+            "replan",
+            &demo,
+            "--progress",
+            &cut,
+            "--today",
+            DAY30,
+            "--previous",
+            prev_arg,
+            last,
+        ]
+    };
+    let out = sluice(&args("--no-timing"));
     let text = ok(&out);
     let stderr = String::from_utf8(out.stderr.clone()).unwrap();
     assert!(
@@ -1302,20 +1306,9 @@ fn finished_tests_left_out_of_the_progress_file_are_named_and_strict_refuses() {
         "{text}"
     );
     // The full file names none; --strict refuses the cut one.
-    let v = replan_json(&demo(), day30_progress(), DAY30, &["--previous", prev_arg]);
+    let v = replan_json(&demo, day30_progress(), DAY30, &["--previous", prev_arg]);
     assert!(v.get("missing_progress").is_none());
-    let out = cmd(&[
-        "replan",
-        &demo(),
-        "--progress",
-        &cut,
-        "--today",
-        DAY30,
-        "--previous",
-        prev_arg,
-        "--strict",
-    ])
-    .assert_exit_code(2);
+    let out = cmd(&args("--strict")).assert_exit_code(2);
     let err = String::from_utf8(out.stderr).unwrap();
     assert!(
         err.contains(&format!("error: the previous plan ended `{gone}`")),
