@@ -12,6 +12,10 @@
 //!    plan: loading, fitting, backtests, and the result-range simulation
 //!    the fitted spread switches on.
 //!
+//! 3. **A million counts.** A progress file's `counts` export of 1,000,000
+//!    rows (500 tests x 2 arms x 1,000 days) parsed and summed
+//!    (`replan::counts::parse`): the median of 3 runs.
+//!
 //! The table is printed and written to `target/bench-forecast.json`.
 
 use chrono::{Duration, NaiveDate};
@@ -127,7 +131,43 @@ fn plan_seconds(path: &std::path::Path) -> f64 {
     median(times)
 }
 
+/// Seconds to parse and sum a counts export of a million rows.
+fn million_counts() -> f64 {
+    let mut y = String::from(
+        "window: {start: 2027-01-04, end: 2027-04-04}\npools:\n  - id: p\n    daily: 100000\n    max_concurrent: 500\n    sharing: overlap\nexperiments:\n",
+    );
+    for k in 0..500 {
+        let _ = writeln!(
+            y,
+            "  - id: t{k}\n    pool: p\n    baseline: 0.05\n    mde: 0.1"
+        );
+    }
+    let p = sluice::portfolio::load_str(&y, "counts.yaml").expect("the portfolio loads");
+    let first = NaiveDate::from_ymd_opt(2024, 1, 1).expect("a date");
+    let mut csv = String::with_capacity(40_000_000);
+    csv.push_str("date,experiment,arm,units\n");
+    for day in 0..1000 {
+        let date = first + Duration::days(day);
+        for k in 0..500 {
+            for arm in 0..2 {
+                let _ = writeln!(csv, "{date},t{k},{arm},{}", 1000 + (day + k) % 97);
+            }
+        }
+    }
+    let as_of = first + Duration::days(1000);
+    let mut times = Vec::new();
+    for _ in 0..3 {
+        let t = Instant::now();
+        let c =
+            sluice::replan::counts::parse(&csv, "counts.csv", &p, as_of).expect("the counts parse");
+        times.push(t.elapsed().as_secs_f64());
+        assert_eq!(c.len(), 500);
+    }
+    median(times)
+}
+
 fn main() {
+    let counts_s = million_counts();
     let (fit_ms, worst_ms) = one_pool();
     let dir = tempfile::tempdir().expect("a scratch folder");
     let history = plan_seconds(&forty_pools(dir.path(), true));
@@ -147,8 +187,12 @@ fn main() {
     );
     println!("{:<44} {:>9.2} s", "40 pools typed: load + plan", typed);
     println!("{:<44} {:>9.2} s", "difference", history - typed);
+    println!(
+        "{:<44} {:>9.2} s",
+        "counts export, 1,000,000 rows", counts_s
+    );
     let json = format!(
-        "{{\"fit_ms_median\":{fit_ms:.3},\"fit_ms_worst\":{worst_ms:.3},\"plan_history_s\":{history:.4},\"plan_typed_s\":{typed:.4}}}\n"
+        "{{\"fit_ms_median\":{fit_ms:.3},\"fit_ms_worst\":{worst_ms:.3},\"plan_history_s\":{history:.4},\"plan_typed_s\":{typed:.4},\"counts_1m_s\":{counts_s:.4}}}\n"
     );
     let out = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("target/bench-forecast.json");
     let _ = std::fs::write(out, json);

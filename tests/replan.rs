@@ -1316,3 +1316,79 @@ fn finished_tests_left_out_of_the_progress_file_are_named_and_strict_refuses() {
     );
     assert!(err.contains("add it with `state: finished`"), "{err}");
 }
+
+#[test]
+fn counts_from_an_export_fill_units_per_arm_and_the_start() {
+    // Two weeks of daily exposures of bigger-photos (quickstart), arm 0
+    // control: the re-plan sums them, and its first day is the start.
+    let mut csv = String::from("date,experiment,arm,units\n");
+    let start = d("2027-01-04");
+    for k in 0..14 {
+        let day = start + chrono::Duration::days(k);
+        csv += &format!(
+            "{day},bigger-photos,0,{}\n{day},bigger-photos,1,{}\n",
+            2000 + k,
+            2010 + k
+        );
+    }
+    write("counts-export.csv", &csv);
+    let progress = write(
+        "progress-counts.yaml",
+        "as_of: 2027-01-18\ncounts: counts-export.csv\nexperiments:\n  - id: bigger-photos\n    state: running\n    share: 0.5\n",
+    );
+    let portfolio = repo("portfolios/quickstart.yaml").display().to_string();
+    let v = replan_json(&portfolio, &progress, "2027-01-18", &[]);
+    let o = outlook_of(&v, "bigger-photos");
+    // 14 x 2000 + (0 + ... + 13) = 28,091 control; 28,231 treatment.
+    assert_eq!(o["collected"], 28_091 + 28_231, "{o}");
+    assert_eq!(o["started"], "2027-01-04");
+    assert_eq!(
+        o["sample_ratio"]["counts"],
+        serde_json::json!([28_091, 28_231])
+    );
+    // Given twice and differing: an error at both places.
+    let clash = write(
+        "progress-counts-clash.yaml",
+        "as_of: 2027-01-18\ncounts: counts-export.csv\nexperiments:\n  - id: bigger-photos\n    state: running\n    share: 0.5\n    units: 50000\n",
+    );
+    let out = cmd(&[
+        "replan",
+        &portfolio,
+        "--progress",
+        &clash,
+        "--today",
+        "2027-01-18",
+    ])
+    .assert_exit_code(2);
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(
+        err.contains("`bigger-photos`: `units` is 50000, but `counts` adds up to [28091, 28231] (units 56322) from line 2"),
+        "{err}"
+    );
+    assert!(err.contains("progress-counts-clash.yaml:7:12"), "{err}");
+    assert!(err.contains("counts-export.csv:2:"), "{err}");
+    // A bad row is an error at its line and column in the CSV.
+    write(
+        "counts-bad.csv",
+        "date,experiment,arm,units\n2027-01-04,bigger-photos,0,10\n2027-01-04,bigger-photo,1,10\n",
+    );
+    let bad = write(
+        "progress-counts-bad.yaml",
+        "as_of: 2027-01-18\ncounts: counts-bad.csv\nexperiments:\n  - id: bigger-photos\n    state: running\n    share: 0.5\n",
+    );
+    let out = cmd(&[
+        "replan",
+        &portfolio,
+        "--progress",
+        &bad,
+        "--today",
+        "2027-01-18",
+    ])
+    .assert_exit_code(2);
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(
+        err.contains("experiment `bigger-photo` is not in the portfolio"),
+        "{err}"
+    );
+    assert!(err.contains("counts-bad.csv:3:12"), "{err}");
+}

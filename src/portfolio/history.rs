@@ -366,7 +366,7 @@ pub(crate) fn checked_events(
 }
 
 /// The 1-based column and width of comma-separated field `field` in `line`.
-fn field_span(line: &str, field: usize) -> (usize, usize) {
+pub(crate) fn field_span(line: &str, field: usize) -> (usize, usize) {
     let mut column = 1;
     for (i, part) in line.split(',').enumerate() {
         let lead = part.chars().take_while(|c| c.is_whitespace()).count();

@@ -11,6 +11,7 @@
 //! share, or the effect it can still detect by the window's end, the sizing
 //! inverse); `scale` parses `--scale` and builds the scaled portfolio.
 
+pub mod counts;
 mod outlook;
 pub mod progress;
 pub mod scale;

@@ -115,6 +115,7 @@ struct RawProgress {
     as_of: Option<Text>,
     experiments: Option<Vec<RawEntry>>,
     traffic: Option<Vec<RawTraffic>>,
+    counts: Option<Text>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -217,6 +218,8 @@ pub fn load_progress_str(
         ck: Checker::new(file_name, body, index.as_ref()),
         p: portfolio,
         today,
+        counts: super::counts::Counts::new(),
+        counts_name: String::new(),
     };
     let progress = cx.validate(raw);
     if cx.ck.errors.is_empty() {
@@ -235,6 +238,10 @@ struct ProgressCheck<'a> {
     ck: Checker<'a>,
     p: &'a Portfolio,
     today: NaiveDate,
+    /// The `counts` file's sums, by experiment (empty without one).
+    counts: super::counts::Counts,
+    /// The `counts` file's path, for messages.
+    counts_name: String,
 }
 
 /// One entry under check: its key (`experiments[2]`), its id, its index
@@ -265,6 +272,9 @@ impl ProgressCheck<'_> {
             Some(d) => d,
             None => today,
         };
+        if let Some(file) = &raw.counts {
+            self.read_counts(file, as_of);
+        }
         let ids: Vec<&str> = p.experiments.iter().map(|e| e.id.as_str()).collect();
         let mut entries: Vec<Entry> = Vec::new();
         let mut seen: Vec<(String, String)> = Vec::new();
@@ -314,12 +324,51 @@ impl ProgressCheck<'_> {
                 });
             }
         }
+        // Counts of tests the file does not list are left out: say so.
+        let mut unlisted: Vec<(&usize, &super::counts::Counted)> = self
+            .counts
+            .iter()
+            .filter(|(k, _)| !entries.iter().any(|e| e.experiment == **k))
+            .collect();
+        unlisted.sort_by_key(|(_, c)| c.line);
+        for (k, c) in unlisted {
+            self.ck.warn(
+                "counts",
+                format!(
+                    "`counts` has rows of `{}` (from line {}), which `experiments` does not list; they are left out",
+                    p.experiments[*k].id, c.line
+                ),
+                "list it under `experiments` with its `state` and `share` to use its counts",
+            );
+        }
         let traffic = self.traffic(raw.traffic.unwrap_or_default(), as_of);
         Progress {
             as_of,
             entries,
             traffic,
             warnings: Vec::new(),
+        }
+    }
+
+    /// Reads the `counts` CSV (relative to the progress file) into
+    /// `self.counts`; its problems are recorded at their lines.
+    fn read_counts(&mut self, file: &Text, as_of: NaiveDate) {
+        let path = crate::portfolio::history::resolve(self.ck.file, file.as_str());
+        let text = match std::fs::read_to_string(&path) {
+            Ok(t) => t,
+            Err(e) => {
+                self.ck.err(
+                    "counts",
+                    format!("cannot read the counts `{}`: {e}", path.display()),
+                    "the path is relative to the progress file's folder; columns `date,experiment,arm,units`",
+                );
+                return;
+            }
+        };
+        self.counts_name = path.display().to_string();
+        match super::counts::parse(&text, &self.counts_name, self.p, as_of) {
+            Ok(c) => self.counts = c,
+            Err(problems) => self.ck.errors.extend(problems),
         }
     }
 
@@ -593,6 +642,8 @@ impl ProgressCheck<'_> {
     fn running(&mut self, entry: &At, e: RawEntry, started: Option<NaiveDate>) -> Option<State> {
         let (at, id, p) = (entry.at, entry.id, self.p);
         let exp = &p.experiments[entry.index];
+        let counted = self.counts.get(&entry.index).cloned();
+        let started = started.or(counted.as_ref().map(|c| c.first));
         let Some(started) = started else {
             self.ck.err(
                 at,
@@ -674,6 +725,7 @@ impl ProgressCheck<'_> {
             }
             (Some(u), None) => u.round() as u64,
             (None, Some(v)) => v.iter().sum(),
+            (None, None) if counted.is_some() => 0,
             (None, None) => {
                 self.ck.err(
                     at,
@@ -681,6 +733,40 @@ impl ProgressCheck<'_> {
                     "add `units: ...`, the units collected so far over all arms (0 if unknown)",
                 );
                 return None;
+            }
+        };
+        // The counts file's sums fill what the entry leaves out, and must
+        // agree with what it gives.
+        let (units, per_arm) = match &counted {
+            None => (units, per_arm),
+            Some(c) => {
+                let sum: u64 = c.per_arm.iter().sum();
+                let given = match (&per_arm, e.units) {
+                    (Some(v), _) => Some(("units_per_arm", format!("{v:?}"), v != &c.per_arm)),
+                    (None, Some(_)) => Some(("units", units.to_string(), units != sum)),
+                    (None, None) => None,
+                };
+                if let Some((key, value, differs)) = given {
+                    if differs {
+                        let csv = format!("{:?} (units {sum})", c.per_arm);
+                        self.ck.err(
+                            &format!("{at}.{key}"),
+                            format!("`{id}`: `{key}` is {value}, but `counts` adds up to {csv} from line {}", c.line),
+                            "give the counts in one place, or make them agree",
+                        );
+                        self.ck.errors.push(
+                            Diagnostic::new(
+                                &self.counts_name,
+                                "",
+                                format!("`{id}`: these rows add up to {csv}, but the progress file's `{at}.{key}` is {value}"),
+                            )
+                            .with_hint("give the counts in one place, or make them agree")
+                            .at_line(None, c.line, 1, 1),
+                        );
+                        return None;
+                    }
+                }
+                (sum, Some(c.per_arm.clone()))
             }
         };
         // Flag counts the forecast could not have delivered (5% slack).
