@@ -188,6 +188,11 @@ pub struct TestStatistics {
     pub arms: u32,
     /// Treatment units per control unit.
     pub ratio: f64,
+    /// With more than two arms: the alpha of each treatment-versus-control
+    /// comparison after the multi-arm correction, and the correction
+    /// (`bonferroni`, `sidak` or `none`); left out of JSON otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub per_comparison: Option<PerComparison>,
     /// Planned looks; 1 for a single read at the end.
     pub looks: u32,
     /// The boundary of a test with looks; `None` for one look.
@@ -197,6 +202,15 @@ pub struct TestStatistics {
     /// Each secondary metric with the effect it can detect at the test's
     /// sample, in file order.
     pub secondary: Vec<SecondaryEffect>,
+}
+
+/// A several-armed test's alpha per treatment-versus-control comparison.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PerComparison {
+    /// The corrected alpha of one comparison.
+    pub alpha: f64,
+    /// The correction's name.
+    pub correction: String,
 }
 
 /// A secondary metric and the effect the test's sample can detect on it.

@@ -33,4 +33,7 @@ fn the_man_page_is_roff_and_lists_every_command() {
         );
     }
     assert_eq!(page.into_bytes(), sluice(&["man"]).stdout, "deterministic");
+    // `--help` lists it, so it can be found.
+    let help = cmd(&["--help"]).stdout();
+    assert!(help.contains("  man  "), "{help}");
 }

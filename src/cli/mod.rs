@@ -59,7 +59,6 @@ pub enum Command {
         shell: clap_complete::Shell,
     },
     /// Print the manual page (roff), e.g. `sluice man > sluice.1`
-    #[command(hide = true)]
     Man,
 }
 

@@ -85,8 +85,15 @@ pub fn design(s: &TestStatistics) -> String {
     } else {
         format!(" `{}`", s.metric)
     };
+    let per_comparison = s.per_comparison.as_ref().map_or(String::new(), |c| {
+        format!(
+            " ({} per comparison, {})",
+            significant(c.alpha, 3),
+            c.correction
+        )
+    });
     format!(
-        "{}{name}, baseline {}, MDE {}, alpha {} {}, power {}, {}, {}; size set by {}.",
+        "{}{name}, baseline {}, MDE {}, alpha {} {}{per_comparison}, power {}, {}, {}; size set by {}.",
         s.kind,
         baseline(s),
         effect(s, s.mde, s.mde_abs),
@@ -345,6 +352,7 @@ mod tests {
             sides: Sides::Two,
             arms: 2,
             ratio: 1.0,
+            per_comparison: None,
             looks: 1,
             boundary: None,
             driver: "primary".into(),
@@ -439,5 +447,24 @@ mod tests {
             "With the traffic from 2027-01-04 to 2027-04-04 at 50% (123,456 units) it could \
              detect +6.1% (+0.189 points) at power 80%; its planned MDE is +4% (+0.124 points)."
         );
+    }
+
+    #[test]
+    fn a_test_with_several_arms_gives_its_alpha_per_comparison() {
+        let s = TestStatistics {
+            arms: 3,
+            per_comparison: Some(crate::plan::PerComparison {
+                alpha: 0.025,
+                correction: "bonferroni".into(),
+            }),
+            ..stats()
+        };
+        assert!(
+            design(&s)
+                .contains("alpha 0.05 two-sided (0.025 per comparison, bonferroni), power 80%"),
+            "{}",
+            design(&s)
+        );
+        assert!(!design(&stats()).contains("per comparison"));
     }
 }

@@ -91,6 +91,10 @@ pub fn statistics(ex: &Experiment) -> TestStatistics {
         sides: d.sides,
         arms: d.arms,
         ratio: d.ratio,
+        per_comparison: (d.arms > 2).then(|| crate::plan::PerComparison {
+            alpha: d.comparison_alpha(),
+            correction: d.correction.name().to_string(),
+        }),
         looks: ex
             .looks
             .as_ref()
