@@ -19,40 +19,26 @@
 //! The table is printed and written to `target/bench-forecast.json`.
 
 use chrono::{Duration, NaiveDate};
+use rand_chacha::rand_core::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
 use sluice::forecast::fit;
 use sluice::portfolio::Portfolio;
 use sluice::Planner;
 use std::fmt::Write;
 use std::time::Instant;
 
-/// A seeded stream of standard normals (SplitMix64 and Box-Muller).
-struct Normals(u64);
-
-impl Normals {
-    fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^= z >> 31;
-        ((z >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
-    fn next(&mut self) -> f64 {
-        let (u, v) = (self.uniform(), self.uniform());
-        (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos()
-    }
-}
-
 /// `days` of invented daily units ending the day before `end`.
 fn history(days: usize, level: f64, seed: u64) -> Vec<f64> {
-    let mut z = Normals(seed);
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let week = [1.05, 1.08, 1.06, 1.02, 0.95, 0.88, 0.96];
     (0..days)
         .map(|i| {
             let t = i as f64 / 364.0;
             let season = 1.0 + 0.15 * (2.0 * std::f64::consts::PI * t).cos();
             let growth = 1.1f64.powf(t - days as f64 / 364.0);
-            level * season * growth * week[i % 7] * (0.05 * z.next()).exp()
+            let z: f64 = StandardNormal.sample(&mut rng);
+            level * season * growth * week[i % 7] * (0.05 * z).exp()
         })
         .collect()
 }

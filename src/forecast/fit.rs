@@ -253,10 +253,7 @@ pub(crate) fn fit_point(
     }
     let shift = found.shift.map(|(p, c)| (recent[p], c));
     // `y` with the shift taken out (the old level carried on): for trends.
-    let steady = |i: usize| match shift {
-        Some((k, c)) if i >= k => ya[i] - c,
-        _ => ya[i],
-    };
+    let steady = |i: usize| ya[i] - steady_shift(shift, i);
     let days: Vec<usize> = (0..n).filter(|&i| used[i]).collect();
 
     // 6. The trend, as a log slope per day. Growth year over year is

@@ -152,9 +152,39 @@ impl RunRule {
     }
 }
 
+/// Each pool's level σ on each day of its series: the spread of its
+/// `level_cv`, grown with the days since the forecast's origin when it has
+/// a growth (worked out once, for every path).
+fn level_sigmas(forecasts: &[Series], spread: &[Uncertainty]) -> Vec<Vec<f64>> {
+    forecasts
+        .iter()
+        .zip(spread)
+        .map(|(base, u)| {
+            let sl = sigma(u.level_cv);
+            match u.origin {
+                Some(o) if u.growth > 0.0 => {
+                    let ahead = (base.start - o).num_days();
+                    (0..base.units.len())
+                        .map(|i| sl * grown(ahead + i as i64, u.growth))
+                        .collect()
+                }
+                _ => vec![sl; base.units.len()],
+            }
+        })
+        .collect()
+}
+
 /// Draws path `path`'s traffic into `sims` (one series per pool, the same
 /// length as `forecasts`): a pool without error keeps its forecast.
-fn draw(forecasts: &[Series], spread: &[Uncertainty], sims: &mut [Series], seed: u64, path: u32) {
+/// `levels` is [`level_sigmas`] of the same pools.
+fn draw(
+    forecasts: &[Series],
+    spread: &[Uncertainty],
+    levels: &[Vec<f64>],
+    sims: &mut [Series],
+    seed: u64,
+    path: u32,
+) {
     // Each path has its own ChaCha stream, so a path's draws do not depend
     // on which thread makes it or in what order.
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
@@ -164,19 +194,13 @@ fn draw(forecasts: &[Series], spread: &[Uncertainty], sims: &mut [Series], seed:
         if u.is_none() {
             continue;
         }
-        let (sl, sd) = (sigma(u.level_cv), sigma(u.daily_cv));
+        let sd = sigma(u.daily_cv);
         let z: f64 = StandardNormal.sample(&mut rng);
-        let flat = factor(sl, z);
-        // Day i's level factor: the path's one draw, its spread grown
-        // with the days since the forecast's origin.
-        let ahead = u.origin.map(|o| (base.start - o).num_days());
         let sim = &mut sims[p];
         let mut total = 0.0;
         for (i, &f) in base.units.iter().enumerate() {
-            let level = match ahead {
-                Some(a) if u.growth > 0.0 => factor(sl * grown(a + i as i64, u.growth), z),
-                _ => flat,
-            };
+            // Day i's level factor: the path's one draw at that day's σ.
+            let level = factor(levels[p][i], z);
             let day = if sd > 0.0 {
                 let z: f64 = StandardNormal.sample(&mut rng);
                 factor(sd, z)
@@ -203,12 +227,13 @@ pub fn simulate(
     paths: u32,
     seed: u64,
 ) -> Vec<Vec<Option<u32>>> {
+    let levels = level_sigmas(forecasts, spread);
     let per_path: Vec<Vec<Option<u32>>> = (0..paths)
         .into_par_iter()
         .map_init(
             || forecasts.to_vec(),
             |sims, path| {
-                draw(forecasts, spread, sims, seed, path);
+                draw(forecasts, spread, &levels, sims, seed, path);
                 runs.iter().map(|r| r.end_on(sims)).collect()
             },
         )

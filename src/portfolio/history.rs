@@ -60,19 +60,12 @@ pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
     // A problem at `line` (1-based), in field `field` (0 date, 1 units).
     let at = |line: usize, field: usize, key: &str, message: String, hint: &str| {
         let source = lines.get(line - 1).copied().unwrap_or("");
-        let (column, width) = field_span(source, field);
-        Diagnostic::new(name, key, message).with_hint(hint).at_line(
-            Some(source),
-            line,
-            column,
-            width,
-        )
+        Diagnostic {
+            key: key.to_string(),
+            ..csv_problem(name, source, line, field, message, hint)
+        }
     };
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .trim(csv::Trim::All)
-        .from_reader(body.as_bytes());
+    let mut reader = csv_reader(body);
     let mut records = reader.records();
     let header_hint = "the first line names the columns: `date,units`";
     match records.next() {
@@ -363,6 +356,33 @@ pub(crate) fn checked_events(
         }
     }
     (ck.errors.len() == before).then_some(out)
+}
+
+/// A reader of a CSV body as sluice's CSV files are read: the header row
+/// checked by hand, any number of fields (counted by hand), fields
+/// trimmed.
+pub(crate) fn csv_reader(body: &str) -> csv::Reader<&[u8]> {
+    csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .trim(csv::Trim::All)
+        .from_reader(body.as_bytes())
+}
+
+/// A problem in CSV file `name` at `line` (1-based, whose text is
+/// `source`), under comma-separated field `field`.
+pub(crate) fn csv_problem(
+    name: &str,
+    source: &str,
+    line: usize,
+    field: usize,
+    message: String,
+    hint: &str,
+) -> Diagnostic {
+    let (column, width) = field_span(source, field);
+    Diagnostic::new(name, "", message)
+        .with_hint(hint)
+        .at_line(Some(source), line, column, width)
 }
 
 /// The 1-based column and width of comma-separated field `field` in `line`.

@@ -11,7 +11,7 @@
 //! million rows take well under a second.
 
 use crate::diagnostic::Diagnostic;
-use crate::portfolio::history::field_span;
+use crate::portfolio::history::{csv_problem, csv_reader};
 use crate::portfolio::Portfolio;
 use chrono::NaiveDate;
 use std::collections::{HashMap, HashSet};
@@ -44,14 +44,7 @@ pub fn parse(
     let body = text.strip_prefix('\u{feff}').unwrap_or(text);
     let line_text = |line: usize| body.lines().nth(line - 1).unwrap_or("").to_string();
     let at = |line: usize, field: usize, message: String, hint: &str| {
-        let source = line_text(line);
-        let (column, width) = field_span(&source, field);
-        Diagnostic::new(name, "", message).with_hint(hint).at_line(
-            Some(&source),
-            line,
-            column,
-            width,
-        )
+        csv_problem(name, &line_text(line), line, field, message, hint)
     };
     let ids: HashMap<&str, usize> = portfolio
         .experiments
@@ -59,11 +52,7 @@ pub fn parse(
         .enumerate()
         .map(|(i, e)| (e.id.as_str(), i))
         .collect();
-    let mut reader = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .trim(csv::Trim::All)
-        .from_reader(body.as_bytes());
+    let mut reader = csv_reader(body);
     let mut records = reader.byte_records();
     let header_hint = "the first line names the columns: `date,experiment,arm,units`";
     let mut problems = Vec::new();

@@ -33,8 +33,11 @@ CASES = {
 }
 
 
-def series(name, seed):
-    days, level, pattern, trend, cv, holiday = CASES[name]
+def noisy(days, level, pattern, cv, seed, factor):
+    """`days` rounded daily units from START: `factor(i, day, pattern,
+    noise)` gives day i's units from the weekday pattern (scaled to
+    average 1) and its lognormal noise (mean 1, coefficient of variation
+    `cv`), drawn in day order from a generator seeded with `seed`."""
     mean = sum(pattern) / 7
     pattern = [m / mean for m in pattern]
     sigma = math.sqrt(math.log(1 + cv * cv))
@@ -42,15 +45,24 @@ def series(name, seed):
     out = []
     for i in range(days):
         day = START + dt.timedelta(days=i)
-        weeks = (i - (days - 1)) / 7
         noise = math.exp(rng.gauss(0.0, sigma) - sigma * sigma / 2)
-        units = level * (1 + trend * weeks) * pattern[day.weekday()] * noise
-        if holiday and days - 20 <= i < days - 17:
-            units *= 0.4
-        if holiday and days - 10 <= i < days - 8:
-            units = 0.0
-        out.append((day, round(units)))
+        out.append((day, round(factor(i, day, pattern, noise))))
     return out
+
+
+def series(name, seed):
+    days, level, pattern, trend, cv, holiday = CASES[name]
+
+    def units(i, day, pattern, noise):
+        weeks = (i - (days - 1)) / 7
+        u = level * (1 + trend * weeks) * pattern[day.weekday()] * noise
+        if holiday and days - 20 <= i < days - 17:
+            u *= 0.4
+        if holiday and days - 10 <= i < days - 8:
+            u = 0.0
+        return u
+
+    return noisy(days, level, pattern, cv, seed, units)
 
 
 # Series with a shape over time, for the shift search and the yearly
@@ -99,16 +111,11 @@ def surge(i):
 
 def shaped(name, seed):
     days, level, pattern, cv, kind, param = SHAPED[name]
-    mean = sum(pattern) / 7
-    pattern = [m / mean for m in pattern]
-    sigma = math.sqrt(math.log(1 + cv * cv))
-    rng = random.Random(seed)
-    out = []
-    for i in range(days):
-        day = START + dt.timedelta(days=i)
-        noise = math.exp(rng.gauss(0.0, sigma) - sigma * sigma / 2)
-        out.append((day, round(level * shape(kind, param, i, days) * pattern[day.weekday()] * noise)))
-    return out
+
+    def units(i, day, pattern, noise):
+        return level * shape(kind, param, i, days) * pattern[day.weekday()] * noise
+
+    return noisy(days, level, pattern, cv, seed, units)
 
 
 def write(folder, name, rows):
