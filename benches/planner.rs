@@ -239,6 +239,9 @@ fn progress_at(portfolio: &Portfolio, plan: &sluice::plan::Plan, today: NaiveDat
                 started: Some(start),
                 ended: Some(end),
                 share: Some(share),
+                stopped_at_look: None,
+                outcome: None,
+                units_per_arm: None,
             }
         } else {
             // Summed over its pools; ramp days at their steps' shares,

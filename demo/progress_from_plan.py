@@ -16,7 +16,8 @@ pool naming its CSV, relative to PLAN.json's folder (write the progress
 file beside the plan). Each running test also gets `units_per_arm`: its
 design's split with a little seeded noise, except the new card form,
 whose arms come in 53:47 (a redirect loses treatment visitors), so the
-re-plan flags a sample-ratio mismatch. A stand-in for the counts an
+re-plan flags a sample-ratio mismatch. The new ranking model stops
+early at its second interim look with a better result (STOPPED). A stand-in for the counts an
 experimentation platform would report; the data is the demo's own.
 """
 import csv
@@ -38,6 +39,12 @@ def read_traffic(folder):
                 out[name[:-4]] = {date.fromisoformat(r["date"]): float(r["units"]) for r in rows}
     return out
 
+
+# In the story, the new ranking model wins clearly at its second interim
+# look (data to the day before it), so it stops there; the skip-signup
+# test ran its course and found no difference.
+STOPPED = {"search-ranking-v2": (2, "better")}
+OUTCOMES = {"app-skip-signup": "no_difference"}
 
 # In the story, a redirect on the new card form loses some visitors on
 # their way into the treatment: its arms come in 53:47 instead of 1:1.
@@ -102,6 +109,20 @@ def main() -> int:
         if start >= today:
             continue
         lines.append(f"  - id: {e['id']}")
+        stop = STOPPED.get(e["id"])
+        looks = (e.get("looks") or {}).get("dates", [])
+        if stop and stop[0] < len(looks) and date.fromisoformat(looks[stop[0] - 1]["date"]) <= today:
+            look, outcome = stop
+            ended = date.fromordinal(date.fromisoformat(looks[look - 1]["date"]).toordinal() - 1)
+            lines += [
+                "    state: finished",
+                f"    started: {start}",
+                f"    ended: {ended}",
+                f"    share: {e['share']}",
+                f"    stopped_at_look: {look}",
+                f"    outcome: {outcome}",
+            ]
+            continue
         if end < today:
             lines += [
                 "    state: finished",
@@ -109,6 +130,8 @@ def main() -> int:
                 f"    ended: {end}",
                 f"    share: {e['share']}",
             ]
+            if e["id"] in OUTCOMES:
+                lines.append(f"    outcome: {OUTCOMES[e['id']]}")
             continue
         # A test on several pools collects on each; ramp days are left out
         # (the demo's ramp does not count towards the sample).

@@ -89,8 +89,11 @@ import sys
 text = open(sys.argv[1], encoding="utf-8").read()
 if not text.startswith("Traffic shift"):
     sys.exit("walkthrough: the re-plan does not open with the traffic shift")
-if "Running tests with a sample-ratio mismatch" not in text:
+if "Tests with a sample-ratio mismatch" not in text:
     sys.exit("walkthrough: the re-plan does not flag the lopsided test")
+flat = " ".join(text.split())
+if "look 2, better" not in flat:
+    sys.exit("walkthrough: the re-plan does not show the ranking test stopped at its look")
 PY
 "${replan[@]}" --format md --out "$out/replan.md"
 "${replan[@]}" --format html --out "$out/replan.html"
@@ -98,6 +101,20 @@ PY
 # Imported over results.ics, it moves the changed events (a higher SEQUENCE)
 # and cancels those of tests that stopped or no longer fit.
 "${replan[@]}" --format ics --out "$out/replan.ics"
+# The ranking test stopped at its second look: look 1 stands as held,
+# look 2 marks the stop on the day its result came, and its result event
+# moved there, confirmed.
+python3 - "$out/replan.ics" <<'PY'
+import sys
+ics = open(sys.argv[1], encoding="utf-8", newline="").read().replace("\r\n ", "")
+events = {e.split("UID:")[1].split("\r\n")[0]: e for e in ics.split("BEGIN:VEVENT")[1:]}
+look2 = events["look-2.search-ranking-v2.demo@sluice"]
+result = events["result.search-ranking-v2.demo@sluice"]
+if "stopped the test" not in look2 or "STATUS:CONFIRMED" not in look2:
+    sys.exit("walkthrough: look 2 of the ranking test is not the confirmed stop")
+if "Result in (better than control)" not in result:
+    sys.exit("walkthrough: the ranking test's result event is not in the past tense")
+PY
 
 heading "6. what if product pages lose another 30% from today: --scale $drop"
 "${replan[@]}" --scale "$drop" | tee "$out/whatif.txt"

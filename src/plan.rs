@@ -295,7 +295,7 @@ pub struct ResultRange {
 
 /// What a finished or cancelled test ran before today: kept in a re-plan
 /// so every format can still show it, marked by its status.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Ran {
     /// Its first day of data.
     pub start: NaiveDate,
@@ -303,6 +303,83 @@ pub struct Ran {
     pub end: NaiveDate,
     /// The share of its pool it ran at, when the progress file gives it.
     pub share: Option<Share>,
+    /// A finished test that an interim look stopped early: that look,
+    /// from 1 (`stopped_at_look` in the progress file).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub stopped_at_look: Option<u32>,
+    /// The looks its design planned, the final read included, when it
+    /// has interim looks; with `stopped_at_look` it says "look 2 of 3".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub looks: Option<u32>,
+    /// What a finished test found, when the progress file says.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub outcome: Option<Outcome>,
+    /// The sample-ratio check of its per-arm counts against its design's
+    /// split, when the progress file gives `units_per_arm`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sample_ratio: Option<crate::sizing::srm::SampleRatio>,
+    /// Whether that check fell below `planning.srm_alpha`.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub sample_ratio_mismatch: bool,
+}
+
+impl Ran {
+    /// A run from `start` to `end` at `share`, with nothing more known.
+    pub fn new(start: NaiveDate, end: NaiveDate, share: Option<Share>) -> Ran {
+        Ran {
+            start,
+            end,
+            share,
+            stopped_at_look: None,
+            looks: None,
+            outcome: None,
+            sample_ratio: None,
+            sample_ratio_mismatch: false,
+        }
+    }
+
+    /// The day its result came: the day after its last day of data.
+    pub fn result_date(&self) -> NaiveDate {
+        self.end.succ_opt().unwrap_or(self.end)
+    }
+}
+
+/// What a finished test found, in the trade's plain words.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Outcome {
+    /// The treatment did better than control on the primary metric.
+    Better,
+    /// The treatment did worse than control on the primary metric.
+    Worse,
+    /// No difference the test could tell.
+    NoDifference,
+    /// A guardrail showed harm.
+    Harm,
+    /// The data settled nothing.
+    Inconclusive,
+}
+
+impl Outcome {
+    /// Every outcome, in the order the docs list them.
+    pub const ALL: [Outcome; 5] = [
+        Outcome::Better,
+        Outcome::Worse,
+        Outcome::NoDifference,
+        Outcome::Harm,
+        Outcome::Inconclusive,
+    ];
+
+    /// The name in the progress file and in JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Outcome::Better => "better",
+            Outcome::Worse => "worse",
+            Outcome::NoDifference => "no_difference",
+            Outcome::Harm => "harm",
+            Outcome::Inconclusive => "inconclusive",
+        }
+    }
 }
 
 /// The facts of one run in the calendar, as the scheduler fixed them.
@@ -347,6 +424,21 @@ impl PlannedExperiment {
                 .find(|s| s.start <= date && date <= s.end)
                 .map_or(r.share, |s| s.share),
         )
+    }
+
+    /// A finished or cancelled test's share on `date` as it ran: a ramp
+    /// step's share on the step's days, else the share the progress file
+    /// gives; `None` outside what it ran or when the share is unknown.
+    pub fn ran_share_on(&self, date: NaiveDate) -> Option<Share> {
+        let r = self
+            .ran
+            .as_ref()
+            .filter(|r| r.start <= date && date <= r.end)?;
+        self.ramp
+            .iter()
+            .find(|s| s.start <= date && date <= s.end)
+            .map(|s| s.share)
+            .or(r.share)
     }
 
     /// The first day its run holds its planned share (its start without a
@@ -709,6 +801,22 @@ pub struct CalendarHistory {
     /// in plan order; looks not listed are at 0.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub looks: Vec<LookSequence>,
+    /// The interim looks an earlier plan published for tests that have
+    /// since finished or been cancelled, so that the calendar keeps those
+    /// that took place and cancels those that will not come.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub past_looks: Vec<PastLooks>,
+}
+
+/// The interim looks published for a test that has closed.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct PastLooks {
+    /// The experiment's id.
+    pub id: String,
+    /// Its looks, the final read included.
+    pub looks: u32,
+    /// The dates of its interim looks as last published, look 1 first.
+    pub dates: Vec<NaiveDate>,
 }
 
 /// One interim look's event version.

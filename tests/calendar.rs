@@ -139,32 +139,51 @@ fn a_replan_calendar_cancels_what_left_and_raises_the_sequence_of_what_changed()
     }
     assert!(changed > 0, "the re-plan moved something");
 
-    // The cancelled test and the test that finished early (planned to run
-    // to 2027-02-07, ended on 2027-01-31) are cancelled, at their old
-    // dates; the test that finished as planned (its last planned day before
-    // 2027-02-03) stays, confirmed.
+    // The cancelled test (it never started) is cancelled at its old
+    // dates. The test that finished early (planned to run to 2027-02-07,
+    // ended on 2027-01-31) and the one that finished as planned are
+    // written as they ran, in the past tense: confirmed, their run at the
+    // real dates and their result on the day after the last day of data.
     let json: serde_json::Value =
         serde_json::from_slice(&std::fs::read(&plan_json).unwrap()).unwrap();
-    for (id, status) in [
-        ("pdp-bundles", "CANCELLED"),
-        ("home-static-hero", "CANCELLED"),
-        ("home-personal-recs", "CONFIRMED"),
-    ] {
-        let before = json["experiments"]
+    let planned_end = |id: &str| {
+        json["experiments"]
             .as_array()
             .unwrap()
             .iter()
             .find(|e| e["id"] == id)
-            .unwrap();
-        let end = before["end"].as_str().unwrap();
-        assert_eq!(end < "2027-02-03", status == "CONFIRMED", "{id} ends {end}");
-        let mine: Vec<(&String, &Ev)> = new.iter().filter(|(u, _)| u.contains(id)).collect();
-        assert_eq!(mine.len(), 2, "{id}: its run and result events");
-        for (uid, ev) in mine {
-            assert_eq!(ev.status, status, "{uid}");
-            assert_eq!(ev.start, old[uid].start, "{uid} keeps its dates");
-            assert!(ev.sequence > old[uid].sequence, "{uid}");
-        }
+            .unwrap()["end"]
+            .as_str()
+            .unwrap()
+            .to_string()
+    };
+    assert!(planned_end("home-static-hero").as_str() > "2027-01-31");
+    assert!(planned_end("home-personal-recs").as_str() < "2027-02-03");
+    let uid = |kind: &str, id: &str| format!("{kind}.{id}.demo@sluice");
+    for kind in ["run", "result"] {
+        let ev = &new[&uid(kind, "pdp-bundles")];
+        assert_eq!(ev.status, "CANCELLED", "{ev:?}");
+        assert_eq!(
+            ev.start,
+            old[&uid(kind, "pdp-bundles")].start,
+            "keeps its dates"
+        );
+        assert!(ev.sequence > old[&uid(kind, "pdp-bundles")].sequence);
+    }
+    for (id, start, end_excl) in [
+        ("home-static-hero", "20270118", "20270201"),
+        ("home-personal-recs", "20270104", "20270118"),
+    ] {
+        let run = &new[&uid("run", id)];
+        let result = &new[&uid("result", id)];
+        assert_eq!(run.status, "CONFIRMED", "{run:?}");
+        assert_eq!(result.status, "CONFIRMED", "{result:?}");
+        assert_eq!((run.start.as_str(), run.end.as_str()), (start, end_excl));
+        assert_eq!(result.start, end_excl, "the result came the day after");
+        assert!(run.summary.starts_with("Test ran: "), "{run:?}");
+        assert!(result.summary.starts_with("Result in: "), "{result:?}");
+        assert!(!run.description.contains("Runs:"), "{run:?}");
+        assert!(run.sequence > old[&uid("run", id)].sequence);
     }
     // Events still in the calendar are not cancelled.
     assert!(new

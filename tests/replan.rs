@@ -972,16 +972,18 @@ fn a_replan_keeps_history_in_every_format() {
     let run_of = |id: &str| {
         events
             .iter()
-            .find(|e| e.contains(&format!("SUMMARY:Test running: {id} [{id}]")))
+            .find(|e| e.contains(&format!("UID:run.{id}.")))
             .unwrap_or_else(|| panic!("no run event for `{id}`:\n{ics}"))
     };
     let a_run = run_of("a");
     assert!(a_run.contains("DTSTART;VALUE=DATE:20270104"), "{a_run}");
     assert!(a_run.contains("DTEND;VALUE=DATE:20270125"), "{a_run}");
     assert!(a_run.contains("STATUS:CONFIRMED"), "{a_run}");
+    assert!(a_run.contains("SUMMARY:Test ran: a [a]"), "{a_run}");
     let b_run = run_of("b");
     assert!(b_run.contains("DTEND;VALUE=DATE:20270111"), "{b_run}");
     assert!(b_run.contains("STATUS:CANCELLED"), "{b_run}");
+    assert!(b_run.contains("SUMMARY:Test cancelled: b [b]"), "{b_run}");
 }
 
 #[test]
@@ -1204,7 +1206,7 @@ fn per_arm_counts_that_miss_the_split_are_flagged_with_the_test_and_the_advice()
     let text = replan_text(&portfolio, &lopsided, "2027-02-01", &[]);
     let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
     assert!(
-        flat.starts_with("Running tests with a sample-ratio mismatch - bigger-photos: its arms have 27,400 and 24,288 units where its 1:1 split expects 25,844 and 25,844 (Pearson's chi-square, p < 0.0001)"),
+        flat.starts_with("Tests with a sample-ratio mismatch - bigger-photos: its arms have 27,400 and 24,288 units where its 1:1 split expects 25,844 and 25,844 (Pearson's chi-square, p < 0.0001)"),
         "{text}"
     );
     assert!(flat.contains(
@@ -1212,9 +1214,7 @@ fn per_arm_counts_that_miss_the_split_are_flagged_with_the_test_and_the_advice()
     ));
     let md = replan_text(&portfolio, &lopsided, "2027-02-01", &["--format", "md"]);
     assert!(
-        md.starts_with(
-            "## Running tests with a sample-ratio mismatch\n\n- bigger-photos: its arms"
-        ),
+        md.starts_with("## Tests with a sample-ratio mismatch\n\n- bigger-photos: its arms"),
         "{md}"
     );
     let html = replan_text(&portfolio, &lopsided, "2027-02-01", &["--format", "html"]);
@@ -1391,4 +1391,184 @@ fn counts_from_an_export_fill_units_per_arm_and_the_start() {
         "{err}"
     );
     assert!(err.contains("counts-bad.csv:3:12"), "{err}");
+}
+
+/// A test with two interim looks and a ramp, beside a plain one, planned
+/// on the flat pool; its plan's JSON and the path of that JSON.
+fn looked_plan() -> (String, String, Value) {
+    let tests = "  - {id: a, pool: shop, baseline: 0.1, mde: 0.1, looks: 3, priority: 2, ramp: [{share: 0.05, days: 7}]}\n  - {id: b, pool: shop, baseline: 0.1, mde: 0.08}\n";
+    let portfolio = flat_portfolio("looked.yaml", false, tests, "");
+    let out = ok(&sluice(&[
+        "plan",
+        &portfolio,
+        "--format",
+        "json",
+        "--no-timing",
+    ]));
+    let previous = write("looked-plan.json", &out);
+    (portfolio, previous, serde_json::from_str(&out).unwrap())
+}
+
+#[test]
+fn a_test_stopped_at_an_interim_look_is_shown_as_it_ran() {
+    // Issue 20, point 1: `a` stopped at its second look of three with a
+    // better result. Its calendar keeps look 1 (held), moves look 2 to the
+    // day its result came, cancels look 3, and writes its run and result
+    // in the past tense at the real dates; every format says so, and its
+    // ramp is drawn at the ramp's 5%, not its full share.
+    let (portfolio, previous, plan) = looked_plan();
+    let a = by_id(&plan, "a");
+    let looks: Vec<NaiveDate> = a["looks"]["dates"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|l| date(&l["date"]).unwrap())
+        .collect();
+    assert_eq!(looks.len(), 3, "{a}");
+    let start = date(&a["start"]).unwrap();
+    let share = a["share"].as_f64().unwrap();
+    let ended = looks[1] - chrono::Duration::days(1);
+    let today = looks[1] + chrono::Duration::days(2);
+    let progress = write(
+        "looked-progress.yaml",
+        &format!(
+            "experiments:\n  - {{id: a, state: finished, started: {start}, ended: {ended}, share: {share}, stopped_at_look: 2, outcome: better, units_per_arm: [27400, 24288]}}\n"
+        ),
+    );
+    let today = today.to_string();
+    let v = replan_json(&portfolio, &progress, &today, &["--previous", &previous]);
+    let ran = &by_id(&v, "a")["ran"];
+    assert_eq!(ran["stopped_at_look"], 2, "{ran}");
+    assert_eq!(ran["looks"], 3, "{ran}");
+    assert_eq!(ran["outcome"], "better", "{ran}");
+    assert_eq!(ran["sample_ratio_mismatch"], true, "{ran}");
+    // The ramp's week at 5%, then its share.
+    let first = pool_day(&v, "shop", &start.to_string())["share_used"]
+        .as_f64()
+        .unwrap();
+    let after = pool_day(&v, "shop", &(start + chrono::Duration::days(7)).to_string())
+        ["share_used"]
+        .as_f64()
+        .unwrap();
+    assert!((first - 0.05).abs() < 1e-9, "{first}");
+    assert!((after - share).abs() < 1e-9, "{after}");
+
+    let ics = replan_text(
+        &portfolio,
+        &progress,
+        &today,
+        &["--previous", &previous, "--format", "ics"],
+    );
+    let event = |uid: &str| -> String {
+        ics.split("BEGIN:VEVENT")
+            .find(|e| e.contains(&format!("UID:{uid}.a.")))
+            .unwrap_or_else(|| panic!("no {uid} event:\n{ics}"))
+            .replace("\r\n ", "")
+    };
+    let ymd = |d: NaiveDate| d.format("%Y%m%d").to_string();
+    let run = event("run");
+    assert!(run.contains("SUMMARY:Test ran: a [a]"), "{run}");
+    assert!(run.contains("STATUS:CONFIRMED"), "{run}");
+    assert!(
+        run.contains(&format!("DTEND;VALUE=DATE:{}", ymd(looks[1]))),
+        "{run}"
+    );
+    assert!(run.contains("finished early at look 2 of 3"), "{run}");
+    assert!(run.contains("SEQUENCE:1"), "{run}");
+    let result = event("result");
+    assert!(
+        result.contains(&format!("DTSTART;VALUE=DATE:{}", ymd(looks[1]))),
+        "{result}"
+    );
+    assert!(
+        result.contains("SUMMARY:Result in (better than control): a [a]"),
+        "{result}"
+    );
+    let look1 = event("look-1");
+    assert!(look1.contains("STATUS:CONFIRMED"), "{look1}");
+    assert!(
+        look1.contains(&format!("DTSTART;VALUE=DATE:{}", ymd(looks[0]))),
+        "{look1}"
+    );
+    let look2 = event("look-2");
+    assert!(look2.contains("STATUS:CONFIRMED"), "{look2}");
+    assert!(look2.contains("stopped the test"), "{look2}");
+    assert!(
+        look2.contains(&format!("DTSTART;VALUE=DATE:{}", ymd(looks[1]))),
+        "{look2}"
+    );
+    // Look 3 was the final read (the result); no other look event exists.
+    assert!(!ics.contains("UID:look-3.a."), "{ics}");
+
+    // Every other format says it stopped early and what it found, and
+    // raises the sample-ratio mismatch.
+    for format in ["text", "md", "html"] {
+        let args: Vec<&str> = if format == "text" {
+            vec!["--previous", &previous]
+        } else {
+            vec!["--previous", &previous, "--format", format]
+        };
+        let out = replan_text(&portfolio, &progress, &today, &args);
+        let flat = out.split_whitespace().collect::<Vec<_>>().join(" ");
+        assert!(
+            flat.contains("finished early at look 2 of 3: better than control")
+                || flat.contains("look 2, better"),
+            "{format}:\n{out}"
+        );
+        assert!(flat.contains("sample-ratio mismatch"), "{format}:\n{out}");
+        if format == "html" {
+            // Its past run is drawn as a bar, its ramp washed out on it.
+            let past = out
+                .split("<g class=\"past-bar\">")
+                .nth(1)
+                .expect("a past bar");
+            let past = past.split("</g>").next().unwrap();
+            assert!(past.contains("class=\"ramp\""), "{past}");
+        }
+    }
+}
+
+#[test]
+fn a_stop_or_an_outcome_that_cannot_be_is_an_error_at_its_key() {
+    let (portfolio, _, _) = looked_plan();
+    for (entry, key, words) in [
+        (
+            "{id: a, state: running, started: 2027-01-04, share: 0.5, units: 10, stopped_at_look: 1}",
+            "experiments[0].stopped_at_look",
+            "is for a finished test",
+        ),
+        (
+            "{id: a, state: finished, started: 2027-01-04, stopped_at_look: 3}",
+            "experiments[0].stopped_at_look",
+            "its interim looks are 1 to 2",
+        ),
+        (
+            "{id: b, state: finished, started: 2027-01-04, stopped_at_look: 1}",
+            "experiments[0].stopped_at_look",
+            "has no interim looks",
+        ),
+        (
+            "{id: a, state: finished, started: 2027-01-04, outcome: beter}",
+            "experiments[0].outcome",
+            "did you mean `better`?",
+        ),
+    ] {
+        let progress = write(
+            "bad-stop-progress.yaml",
+            &format!("experiments:\n  - {entry}\n"),
+        );
+        let out = sluice(&[
+            "replan",
+            &portfolio,
+            "--progress",
+            &progress,
+            "--today",
+            "2027-02-01",
+        ]);
+        assert_eq!(out.status.code(), Some(2), "{entry}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(key), "{entry}: {err}");
+        assert!(err.contains(words), "{entry}: {err}");
+        assert!(err.contains("bad-stop-progress.yaml:2:"), "{entry}: {err}");
+    }
 }

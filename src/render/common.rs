@@ -25,7 +25,7 @@ pub fn out_word(e: &PlannedExperiment) -> &'static str {
 /// Its share is the one the progress file gives, else the whole pool
 /// (only the dates are drawn); its result date is the day after its end.
 pub fn past_run(e: &PlannedExperiment) -> Option<crate::plan::Run> {
-    let r = e.ran?;
+    let r = e.ran.as_ref()?;
     if e.run.is_some() {
         return None;
     }
@@ -40,18 +40,72 @@ pub fn past_run(e: &PlannedExperiment) -> Option<crate::plan::Run> {
 }
 
 /// "finished, ran 2027-01-04 to 2027-01-24 at 25%" for a finished or
-/// cancelled test whose run the plan keeps; else [`out_word`].
+/// cancelled test whose run the plan keeps, with the look that stopped it
+/// and what it found when the progress file says ("finished early at look
+/// 2 of 3: better than control, ran ..."); else [`out_word`].
 pub fn closed_words(e: &PlannedExperiment) -> String {
-    match (&e.run, e.ran) {
-        (None, Some(r)) => format!(
-            "{}, ran {} to {}{}",
-            out_word(e),
-            r.start,
-            r.end,
-            r.share.map(|s| format!(" at {s}")).unwrap_or_default()
-        ),
+    match (&e.run, &e.ran) {
+        (None, Some(r)) => {
+            let what = match (stop_words(r), r.outcome) {
+                (Some(stop), Some(o)) => format!("{}: {}", stop, outcome_words(o)),
+                (Some(stop), None) => stop,
+                (None, Some(o)) => format!("{}: {}", out_word(e), outcome_words(o)),
+                (None, None) => out_word(e).to_string(),
+            };
+            format!(
+                "{what}, ran {} to {}{}",
+                r.start,
+                r.end,
+                r.share.map(|s| format!(" at {s}")).unwrap_or_default()
+            )
+        }
         _ => out_word(e).to_string(),
     }
+}
+
+/// "finished early at look 2 of 3" when an interim look stopped it.
+pub fn stop_words(r: &crate::plan::Ran) -> Option<String> {
+    let k = r.stopped_at_look?;
+    Some(match r.looks {
+        Some(n) => format!("finished early at look {k} of {n}"),
+        None => format!("finished early at look {k}"),
+    })
+}
+
+/// What a finished test found, in words.
+pub fn outcome_words(o: crate::plan::Outcome) -> &'static str {
+    use crate::plan::Outcome;
+    match o {
+        Outcome::Better => "better than control",
+        Outcome::Worse => "worse than control",
+        Outcome::NoDifference => "no difference found",
+        Outcome::Harm => "harm on a guardrail",
+        Outcome::Inconclusive => "inconclusive",
+    }
+}
+
+/// A past run's result cell: "ended 2027-05-23", with the look that
+/// stopped it and what it found when known ("ended 2027-05-23, look 2,
+/// better"); a cancelled test "stopped 2027-05-23".
+pub fn past_result_cell(e: &PlannedExperiment) -> Option<String> {
+    let r = e.ran.as_ref().filter(|_| e.run.is_none())?;
+    if e.status == Status::Cancelled {
+        return Some(format!("stopped {}", r.end));
+    }
+    let mut cell = format!("ended {}", r.end);
+    if let Some(k) = r.stopped_at_look {
+        cell.push_str(&format!(", look {k}"));
+    }
+    if let Some(o) = r.outcome {
+        cell.push_str(&format!(", {}", o.name().replace('_', " ")));
+    }
+    Some(cell)
+}
+
+/// The first day a past run held its full share (after its ramp).
+pub fn past_full_from(e: &PlannedExperiment) -> Option<NaiveDate> {
+    let r = e.ran.as_ref().filter(|_| e.run.is_none())?;
+    Some(e.ramp.last().map_or(r.start, |s| s.end + Duration::days(1)))
 }
 
 /// How many experiments left the queue (finished or cancelled; re-plans).
@@ -375,7 +429,7 @@ pub fn news(plan: &Plan) -> Vec<(&'static str, &'static str, Vec<String>)> {
         ("traffic-shift", "Traffic shift", shift_news(plan)),
         (
             "sample-ratio",
-            "Running tests with a sample-ratio mismatch",
+            "Tests with a sample-ratio mismatch",
             sample_ratio_lines(plan),
         ),
         (
@@ -402,15 +456,31 @@ pub fn missing_progress_lines(plan: &Plan) -> Vec<String> {
         .collect()
 }
 
-/// The running tests whose per-arm counts miss their design's split, one
-/// sentence each: the counts, the split expected, the p-value and what to
+/// The running tests, then the finished ones, whose per-arm counts miss
+/// their design's split, one sentence each: the counts, the split expected, the p-value and what to
 /// do about it.
 pub fn sample_ratio_lines(plan: &Plan) -> Vec<String> {
-    plan.running
+    let running = plan
+        .running
         .iter()
-        .filter(|o| o.flags.contains(&crate::plan::RunningFlag::SampleRatioMismatch))
+        .filter(|o| {
+            o.flags
+                .contains(&crate::plan::RunningFlag::SampleRatioMismatch)
+        })
         .filter_map(|o| {
-            let r = o.sample_ratio.as_ref()?;
+            Some((
+                o.id.as_str(),
+                o.sample_ratio.as_ref()?,
+                "its result or its date",
+            ))
+        });
+    let finished = plan.experiments.iter().filter_map(|e| {
+        let ran = e.ran.as_ref().filter(|r| r.sample_ratio_mismatch)?;
+        Some((e.id.as_str(), ran.sample_ratio.as_ref()?, "its result"))
+    });
+    running
+        .chain(finished)
+        .filter_map(|(id, r, what)| {
             let counts: Vec<String> = r.counts.iter().map(|&c| thousands(c)).collect();
             let expected: Vec<String> = r.expected.iter().map(|&e| units(e)).collect();
             let base = r.expected.first().copied().filter(|&e| e > 0.0)?;
@@ -420,8 +490,8 @@ pub fn sample_ratio_lines(plan: &Plan) -> Vec<String> {
                 .map(|e| crate::words::significant(e / base, 3))
                 .collect();
             Some(format!(
-                "{}: its arms have {} units where its {} split expects {} (Pearson's chi-square, {}): a sample-ratio mismatch. Check how units are assigned and logged before trusting its result or its date.",
-                o.id,
+                "{}: its arms have {} units where its {} split expects {} (Pearson's chi-square, {}): a sample-ratio mismatch. Check how units are assigned and logged before trusting {what}.",
+                id,
                 counts.join(" and "),
                 split.join(":"),
                 expected.join(" and "),

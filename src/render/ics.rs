@@ -21,7 +21,8 @@
 use super::common::{cut_short_note, pools_label, ramp_words, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{
-    CalendarHistory, EventSequence, KeptEvents, LookSequence, Plan, PlannedExperiment, Run, Status,
+    CalendarHistory, EventSequence, KeptEvents, LookSequence, PastLooks, Plan, PlannedExperiment,
+    Run, Status,
 };
 use chrono::{Duration, NaiveDate, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
@@ -181,10 +182,94 @@ fn look_contents(e: &PlannedExperiment) -> Vec<(u32, Content)> {
                     ),
                     start: d.date,
                     end: d.date,
+                    status: EventStatus::Tentative,
                 },
             )
         })
         .collect()
+}
+
+/// The look events of a finished or cancelled test whose looks an
+/// earlier plan published (`CalendarHistory::past_looks`): a look that
+/// took place is confirmed, the look that stopped it is confirmed on its
+/// result day, and a look that will not come is cancelled.
+fn past_look_contents(plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Content)> {
+    let (Some(ran), Some(past)) = (
+        e.ran.as_ref().filter(|_| e.run.is_none()),
+        plan.calendar
+            .iter()
+            .flat_map(|c| &c.past_looks)
+            .find(|p| p.id == e.id),
+    ) else {
+        return Vec::new();
+    };
+    let n = past.looks;
+    past.dates
+        .iter()
+        .enumerate()
+        .map(|(i, &date)| {
+            let k = i as u32 + 1;
+            let head = format!("Experiment: {} ({})\n", e.title, e.id);
+            let tail = format!("\nPortfolio: {}", plan.portfolio);
+            let content = |summary: String, what: String, date: NaiveDate, status| Content {
+                summary,
+                description: format!("{head}{what}{tail}"),
+                start: date,
+                end: date,
+                status,
+            };
+            let stopped = ran.stopped_at_look;
+            let held = match stopped {
+                Some(at) => k < at,
+                None => date <= ran.end,
+            };
+            let c = if stopped == Some(k) {
+                content(
+                    format!("Interim look {k} of {n} stopped the test: {} [{}]", e.title, e.id),
+                    format!(
+                        "Interim look {k} of {n} crossed its boundary: the test stopped early, with data to {}.{}",
+                        ran.end,
+                        ran.outcome
+                            .map(|o| format!(" Outcome: {}.", super::common::outcome_words(o)))
+                            .unwrap_or_default()
+                    ),
+                    ran.result_date(),
+                    EventStatus::Confirmed,
+                )
+            } else if held {
+                content(
+                    format!("Interim look {k} of {n} held: {} [{}]", e.title, e.id),
+                    format!("Interim look {k} of {n} took place on {date}; the test ran on."),
+                    date,
+                    EventStatus::Confirmed,
+                )
+            } else {
+                let why = match (e.status, stopped) {
+                    (Status::Cancelled, _) => format!("the test was cancelled after {}", ran.end),
+                    (_, Some(at)) => format!("the test stopped at look {at}"),
+                    _ => format!("the test finished on {}", ran.end),
+                };
+                content(
+                    format!("Interim look {k} of {n}, not held: {} [{}]", e.title, e.id),
+                    format!("This look will not take place: {why}."),
+                    date,
+                    EventStatus::Cancelled,
+                )
+            };
+            (k, c)
+        })
+        .collect()
+}
+
+/// Every look event of `e` in `plan`: a planned test's interim looks, or
+/// the published looks of a test that has finished or was cancelled.
+fn look_events(plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Content)> {
+    let planned = look_contents(e);
+    if planned.is_empty() {
+        past_look_contents(plan, e)
+    } else {
+        planned
+    }
 }
 
 /// What a calendar shows of one event; two plans that give an event the
@@ -197,13 +282,15 @@ struct Content {
     start: NaiveDate,
     /// Last day (inclusive; DTEND is the day after).
     end: NaiveDate,
+    /// Tentative while planned, confirmed once it took place, cancelled
+    /// when it will not.
+    status: EventStatus,
 }
 
-/// One event as written: its content, UID, status and SEQUENCE.
+/// One event as written: its content, UID and SEQUENCE.
 struct Spec {
     uid: String,
     content: Content,
-    status: EventStatus,
     sequence: u32,
 }
 
@@ -213,9 +300,8 @@ fn event_pair(
     title: &str,
     id: &str,
     description: String,
-    start: NaiveDate,
-    end: NaiveDate,
-    result_date: NaiveDate,
+    (start, end, result_date): (NaiveDate, NaiveDate, NaiveDate),
+    status: EventStatus,
 ) -> [Content; 2] {
     [
         Content {
@@ -223,12 +309,14 @@ fn event_pair(
             description: description.clone(),
             start,
             end,
+            status,
         },
         Content {
             summary: format!("Result due: {title} [{id}]"),
             description,
             start: result_date,
             end: result_date,
+            status,
         },
     ]
 }
@@ -244,9 +332,8 @@ fn contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
         &e.title,
         &e.id,
         description,
-        run.start,
-        run.end,
-        run.result_date,
+        (run.start, run.end, run.result_date),
+        EventStatus::Tentative,
     ))
 }
 
@@ -264,32 +351,95 @@ fn kept_contents(plan: &Plan, k: &KeptEvents) -> [Content; 2] {
         "Experiment: {} ({})\nRan from {} to {}; result due {}.\n{why}\nPortfolio: {}",
         k.title, k.id, k.start, k.end, k.result_date, plan.portfolio
     );
-    event_pair(&k.title, &k.id, description, k.start, k.end, k.result_date)
+    let status = if k.cancelled {
+        EventStatus::Cancelled
+    } else {
+        EventStatus::Confirmed
+    };
+    event_pair(
+        &k.title,
+        &k.id,
+        description,
+        (k.start, k.end, k.result_date),
+        status,
+    )
 }
 
 /// The events of a finished or cancelled test at the dates it really ran,
-/// when the re-plan knows them: a finished test's run and the day its
-/// result came due; a cancelled test's run, whose result never comes.
+/// when the re-plan knows them, in the past tense: a finished test's run
+/// and the day its result came (confirmed), with the look that stopped it
+/// and what it found; a cancelled test's run, whose result never comes
+/// (both cancelled).
 fn closed_contents(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
-    let ran = e.ran?;
-    let why = match e.status {
-        Status::Finished => "It has finished.",
-        Status::Cancelled => "It was cancelled; no result will come.",
+    let ran = e.ran.as_ref().filter(|_| e.run.is_none())?;
+    let (t, id) = (&e.title, &e.id);
+    let at = ran.share.map(|s| format!(" at {s}")).unwrap_or_default();
+    let mut lines = vec![
+        format!("Experiment: {t} ({id})"),
+        format!("Ran from {} to {}{at}.", ran.start, ran.end),
+    ];
+    let (run_summary, result_summary, status) = match e.status {
+        Status::Finished => {
+            if let Some(stop) = super::common::stop_words(ran) {
+                lines.push(format!("It {stop}."));
+            }
+            lines.push(format!("Its result came on {}.", ran.result_date()));
+            if let Some(o) = ran.outcome {
+                lines.push(format!("Outcome: {}.", super::common::outcome_words(o)));
+            }
+            let found = ran
+                .outcome
+                .map(|o| format!(" ({})", super::common::outcome_words(o)))
+                .unwrap_or_default();
+            (
+                format!("Test ran: {t} [{id}]"),
+                format!("Result in{found}: {t} [{id}]"),
+                EventStatus::Confirmed,
+            )
+        }
+        Status::Cancelled => {
+            lines.push(match e.reason.as_deref() {
+                Some(r) if r != "cancelled" => format!("It was {r}; no result will come."),
+                _ => "It was cancelled; no result will come.".to_string(),
+            });
+            (
+                format!("Test cancelled: {t} [{id}]"),
+                format!("No result: {t} [{id}]"),
+                EventStatus::Cancelled,
+            )
+        }
         _ => return None,
     };
-    let result_date = ran.end.succ_opt().unwrap_or(ran.end);
-    let description = format!(
-        "Experiment: {} ({})\nRan from {} to {}.\n{why}\nPortfolio: {}",
-        e.title, e.id, ran.start, ran.end, plan.portfolio
-    );
-    Some(event_pair(
-        &e.title,
-        &e.id,
-        description,
-        ran.start,
-        ran.end,
-        result_date,
-    ))
+    if ran.sample_ratio_mismatch {
+        lines.push(
+            "Its arms' counts miss the planned split (a sample-ratio mismatch): check the assignment before trusting its result."
+                .to_string(),
+        );
+    }
+    lines.push(format!("Portfolio: {}", plan.portfolio));
+    let description = lines.join("\n");
+    let result = ran.result_date();
+    Some([
+        Content {
+            summary: run_summary,
+            description: description.clone(),
+            start: ran.start,
+            end: ran.end,
+            status,
+        },
+        Content {
+            summary: result_summary,
+            description,
+            start: result,
+            end: result,
+            status,
+        },
+    ])
+}
+
+/// The run and result events of `e` in `plan`: planned, or as it ran.
+fn run_events(plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
+    contents(plan, e).or_else(|| closed_contents(plan, e))
 }
 
 /// The SEQUENCE of an experiment's events in `plan` (0 unless a re-plan's
@@ -325,7 +475,11 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
             .experiments
             .iter()
             .find(|o| o.id == id)
-            .and_then(|o| look_contents(o).into_iter().find(|(k, _)| *k == look))
+            .and_then(|o| {
+                look_events(previous, o)
+                    .into_iter()
+                    .find(|(k, _)| *k == look)
+            })
             .map(|(_, c)| c)
     };
     let was_kept = |id: &str, look: u32| {
@@ -334,6 +488,15 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
             .iter()
             .flat_map(|c| &c.kept)
             .any(|k| k.id == id && k.looks.len() >= look as usize)
+    };
+    // `plan` with this history's past looks, so a closed test's looks
+    // are worded as they will be written.
+    let with_past = Plan {
+        calendar: Some(CalendarHistory {
+            past_looks: history.past_looks.clone(),
+            ..CalendarHistory::default()
+        }),
+        ..plan.clone()
     };
     let mut push = |id: &str, look: u32, sequence: u32| {
         if sequence > 0 {
@@ -345,7 +508,7 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
         }
     };
     for e in &plan.experiments {
-        for (look, now) in look_contents(e) {
+        for (look, now) in look_events(&with_past, e) {
             let base = look_sequence_of(previous, &e.id, look);
             let sequence = match before(&e.id, look) {
                 Some(b) if b == now => base,
@@ -379,23 +542,22 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
 /// Every event of the plan's calendar, in plan order, then the kept ones.
 fn specs(plan: &Plan) -> Vec<Spec> {
     let mut out = Vec::new();
-    let mut push = |id: &str, events: [Content; 2], status: EventStatus, sequence: u32| {
+    let mut push = |id: &str, events: [Content; 2], sequence: u32| {
         for (content, kind) in events.into_iter().zip([EventKind::Run, EventKind::Result]) {
             out.push(Spec {
                 uid: uid(&plan.id, id, kind),
                 content,
-                status,
                 sequence,
             });
         }
     };
     for e in &plan.experiments {
         if let Some(cs) = contents(plan, e) {
-            push(&e.id, cs, EventStatus::Tentative, sequence_of(plan, &e.id));
+            push(&e.id, cs, sequence_of(plan, &e.id));
         }
     }
     // Finished and cancelled tests at their real dates, unless a re-plan's
-    // calendar history already keeps their events.
+    // calendar history keeps their events as last published.
     let kept = |id: &str| {
         plan.calendar
             .iter()
@@ -404,21 +566,11 @@ fn specs(plan: &Plan) -> Vec<Spec> {
     };
     for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
         if let Some(cs) = closed_contents(plan, e) {
-            let status = if e.status == Status::Cancelled {
-                EventStatus::Cancelled
-            } else {
-                EventStatus::Confirmed
-            };
-            push(&e.id, cs, status, sequence_of(plan, &e.id));
+            push(&e.id, cs, sequence_of(plan, &e.id));
         }
     }
     for k in plan.calendar.iter().flat_map(|c| &c.kept) {
-        let status = if k.cancelled {
-            EventStatus::Cancelled
-        } else {
-            EventStatus::Confirmed
-        };
-        push(&k.id, kept_contents(plan, k), status, k.sequence);
+        push(&k.id, kept_contents(plan, k), k.sequence);
     }
     // Interim looks last, so the run and result events keep their places;
     // a kept test's looks go as its run and result do.
@@ -452,18 +604,17 @@ fn specs(plan: &Plan) -> Vec<Spec> {
                     ),
                     start: date,
                     end: date,
+                    status,
                 },
-                status,
                 sequence: look_sequence_of(plan, &k.id, i as u32 + 1),
             });
         }
     }
-    for e in &plan.experiments {
-        for (k, content) in look_contents(e) {
+    for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
+        for (k, content) in look_events(plan, e) {
             out.push(Spec {
                 uid: uid(&plan.id, &e.id, EventKind::Look(k)),
                 content,
-                status: EventStatus::Tentative,
                 sequence: look_sequence_of(plan, &e.id, k),
             });
         }
@@ -479,32 +630,52 @@ fn specs(plan: &Plan) -> Vec<Spec> {
 /// of `previous` gives each experiment's two events the sequence they had
 /// there (from its `calendar`, else 0), plus one when what a calendar
 /// shows of them differs (summary, description, first and last day,
-/// status) or when they come back after leaving. A test that was in the
-/// previous calendar and is not in this one is kept with its last dates:
-/// cancelled (sequence plus one) unless it finished as planned, i.e. its
-/// last planned day came before this plan's today (then it stays as it
-/// was, its sequence plus one for the new wording). Tests already kept by
-/// `previous` stay kept as they were. So the sequence is a function of
-/// the two plans alone, and strictly increases for every changed event
-/// along a chain of re-plans.
+/// status) or when they come back after leaving. A finished or cancelled
+/// test whose real dates the progress file gives is written as it ran
+/// (confirmed, or cancelled), in place of its planned events; the interim
+/// looks an earlier plan published for it stay (`past_looks`): those that
+/// took place confirmed, those that will not come cancelled. A test that
+/// was in the previous calendar and is not in this one is kept with its
+/// last dates: cancelled (sequence plus one) unless it finished as
+/// planned, i.e. its last planned day came before this plan's today (then
+/// it stays as it was, its sequence plus one for the new wording). Tests
+/// already kept by `previous` stay kept as they were. So the sequence is
+/// a function of the two plans alone, and strictly increases for every
+/// changed event along a chain of re-plans.
 pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
     let prev_kept: Vec<&KeptEvents> = previous.calendar.iter().flat_map(|c| &c.kept).collect();
     let now_in = |id: &str| {
         plan.experiments
             .iter()
-            .any(|e| e.id == id && contents(plan, e).is_some())
+            .any(|e| e.id == id && run_events(plan, e).is_some())
     };
     let mut history = CalendarHistory::default();
     for e in &plan.experiments {
-        let Some(now) = contents(plan, e) else {
+        let Some(now) = run_events(plan, e) else {
             continue;
         };
+        let before_e = previous.experiments.iter().find(|o| o.id == e.id);
+        // The interim looks published for a test that has now closed.
+        if contents(plan, e).is_none() {
+            let published: Vec<NaiveDate> = match before_e.map(look_contents) {
+                Some(looks) if !looks.is_empty() => looks.iter().map(|(_, c)| c.start).collect(),
+                _ => previous
+                    .calendar
+                    .iter()
+                    .flat_map(|c| &c.past_looks)
+                    .find(|p| p.id == e.id)
+                    .map_or_else(Vec::new, |p| p.dates.clone()),
+            };
+            if !published.is_empty() {
+                history.past_looks.push(PastLooks {
+                    id: e.id.clone(),
+                    looks: published.len() as u32 + 1,
+                    dates: published,
+                });
+            }
+        }
         let base = sequence_of(previous, &e.id);
-        let before = previous
-            .experiments
-            .iter()
-            .find(|o| o.id == e.id)
-            .and_then(|o| contents(previous, o));
+        let before = before_e.and_then(|o| run_events(previous, o));
         let sequence = match before {
             Some(before) if before == now => base,
             Some(_) => base + 1,
@@ -585,7 +756,7 @@ impl Renderer for Ics {
                 .description(&c.description)
                 .starts(c.start)
                 .ends(c.end + Duration::days(1))
-                .status(spec.status)
+                .status(c.status)
                 .add_property("SEQUENCE", spec.sequence.to_string())
                 .add_property("TRANSP", "TRANSPARENT");
             cal.push(event.done());

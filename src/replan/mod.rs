@@ -143,10 +143,12 @@ pub fn replan(
     for (k, entry) in progress.entries.iter().enumerate() {
         let ran =
             |started: &Option<NaiveDate>, ended: &Option<NaiveDate>, share: &Option<Share>| {
-                started.map(|start| Ran {
-                    start,
-                    end: ended.unwrap_or(today - Duration::days(1)).max(start),
-                    share: *share,
+                started.map(|start| {
+                    Ran::new(
+                        start,
+                        ended.unwrap_or(today - Duration::days(1)).max(start),
+                        *share,
+                    )
                 })
             };
         match &entry.state {
@@ -181,18 +183,39 @@ pub fn replan(
                 started,
                 ended,
                 share,
-            } => request.excluded.push(Excluded {
-                experiment: entry.experiment,
-                ended: Some(ended.unwrap_or(today - Duration::days(1))),
-                reason: format!(
-                    "finished{}",
-                    match ended {
-                        Some(d) => format!(" on {d}"),
-                        None => String::new(),
+                stopped_at_look,
+                outcome,
+                units_per_arm,
+            } => {
+                let ran = ran(started, ended, share).map(|r| {
+                    let design = &portfolio.experiments[entry.experiment];
+                    let (sample_ratio, mismatch) =
+                        sample_ratio_of(portfolio, entry.experiment, units_per_arm.as_deref());
+                    Ran {
+                        stopped_at_look: *stopped_at_look,
+                        looks: design
+                            .looks
+                            .as_ref()
+                            .map(|l| l.design.information.len() as u32),
+                        outcome: *outcome,
+                        sample_ratio,
+                        sample_ratio_mismatch: mismatch,
+                        ..r
                     }
-                ),
-                ran: ran(started, ended, share),
-            }),
+                });
+                request.excluded.push(Excluded {
+                    experiment: entry.experiment,
+                    ended: Some(ended.unwrap_or(today - Duration::days(1))),
+                    reason: format!(
+                        "finished{}",
+                        match ended {
+                            Some(d) => format!(" on {d}"),
+                            None => String::new(),
+                        }
+                    ),
+                    ran,
+                })
+            }
             State::Cancelled {
                 note,
                 started,
@@ -394,18 +417,31 @@ fn sample_ratio(
     per_arm: Option<&[u64]>,
     outlook: &mut RunningOutlook,
 ) {
-    let Some(counts) = per_arm else { return };
-    let design = &portfolio.experiments[experiment].design;
-    let weights = crate::sizing::srm::weights(design.arms, design.ratio);
-    outlook.sample_ratio = crate::sizing::srm::check(counts, &weights);
-    if outlook
-        .sample_ratio
-        .as_ref()
-        .is_some_and(|r| r.p_value < portfolio.planning.srm_alpha)
-    {
+    let (check, mismatch) = sample_ratio_of(portfolio, experiment, per_arm);
+    outlook.sample_ratio = check;
+    if mismatch {
         outlook.flags.push(RunningFlag::SampleRatioMismatch);
         outlook.flags.sort();
     }
+}
+
+/// The sample-ratio check of a test's per-arm counts against its design's
+/// split, and whether it falls below `planning.srm_alpha`.
+fn sample_ratio_of(
+    portfolio: &Portfolio,
+    experiment: usize,
+    per_arm: Option<&[u64]>,
+) -> (Option<crate::sizing::srm::SampleRatio>, bool) {
+    let Some(counts) = per_arm else {
+        return (None, false);
+    };
+    let design = &portfolio.experiments[experiment].design;
+    let weights = crate::sizing::srm::weights(design.arms, design.ratio);
+    let check = crate::sizing::srm::check(counts, &weights);
+    let mismatch = check
+        .as_ref()
+        .is_some_and(|r| r.p_value < portfolio.planning.srm_alpha);
+    (check, mismatch)
 }
 
 #[cfg(test)]
@@ -779,6 +815,9 @@ mod tests {
                         started: Some(d("2027-01-04")),
                         ended: None,
                         share: Some(Share::from_fraction(0.5)),
+                        stopped_at_look: None,
+                        outcome: None,
+                        units_per_arm: None,
                     },
                 },
                 Entry {
@@ -808,11 +847,11 @@ mod tests {
         }
         assert_eq!(
             plan.experiments[0].ran,
-            Some(Ran {
-                start: d("2027-01-04"),
-                end: d("2027-01-31"),
-                share: Some(Share::from_fraction(0.5)),
-            })
+            Some(Ran::new(
+                d("2027-01-04"),
+                d("2027-01-31"),
+                Some(Share::from_fraction(0.5))
+            ))
         );
         assert_eq!(plan.experiments[1].ran, None);
         schedule::verify(&p, &request, &plan).unwrap();

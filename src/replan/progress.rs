@@ -43,6 +43,12 @@ pub enum State {
         ended: Option<NaiveDate>,
         /// The share of its pool it ran at, when the file gives it.
         share: Option<Share>,
+        /// The interim look that stopped it early, from 1.
+        stopped_at_look: Option<u32>,
+        /// What it found, when the file says.
+        outcome: Option<crate::plan::Outcome>,
+        /// Per arm, control first, when the file gives them.
+        units_per_arm: Option<Vec<u64>>,
     },
     /// Stopped for good: it holds no traffic any more.
     Cancelled {
@@ -145,6 +151,8 @@ struct RawEntry {
     units: Option<f64>,
     units_per_arm: Option<Vec<f64>>,
     note: Option<Text>,
+    stopped_at_look: Option<f64>,
+    outcome: Option<Text>,
 }
 
 fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
@@ -604,6 +612,20 @@ impl ProgressCheck<'_> {
                 );
             }
         }
+        if kind != "finished" {
+            for (key, given) in [
+                ("stopped_at_look", e.stopped_at_look.is_some()),
+                ("outcome", e.outcome.is_some()),
+            ] {
+                if given {
+                    self.ck.err(
+                        &format!("{at}.{key}"),
+                        format!("`{id}` is `{kind}`, but `{key}` is for a finished test"),
+                        format!("leave `{key}` out, or mark the test `state: finished`"),
+                    );
+                }
+            }
+        }
         match kind.as_str() {
             "finished" | "cancelled" => {
                 let share = match e.share {
@@ -621,10 +643,18 @@ impl ProgressCheck<'_> {
                     }
                 };
                 Some(if kind == "finished" {
+                    let (stopped_at_look, outcome) = self.result(entry, &e)?;
+                    let Ok(given) = self.per_arm(entry, e.units_per_arm) else {
+                        return None;
+                    };
+                    let counted = self.counts.get(&entry.index).map(|c| c.per_arm.clone());
                     State::Finished {
-                        started,
+                        started: started.or(self.counts.get(&entry.index).map(|c| c.first)),
                         ended,
                         share,
+                        stopped_at_look,
+                        outcome,
+                        units_per_arm: given.or(counted),
                     }
                 } else {
                     State::Cancelled {
@@ -637,6 +667,113 @@ impl ProgressCheck<'_> {
             }
             _ => self.running(entry, e, started),
         }
+    }
+
+    /// A finished entry's `stopped_at_look` (an interim look of its
+    /// design) and `outcome`; `None` after reporting a problem.
+    #[allow(clippy::type_complexity)]
+    fn result(
+        &mut self,
+        entry: &At,
+        e: &RawEntry,
+    ) -> Option<(Option<u32>, Option<crate::plan::Outcome>)> {
+        let (at, id) = (entry.at, entry.id);
+        let looks = self.p.experiments[entry.index]
+            .looks
+            .as_ref()
+            .map_or(1, |l| l.design.information.len() as u32);
+        let mut ok = true;
+        let stopped = match e.stopped_at_look {
+            None => None,
+            Some(k) if looks < 2 => {
+                self.ck.err(
+                    &format!("{at}.stopped_at_look"),
+                    format!("`{id}` has no interim looks, so it cannot have stopped at look {k}"),
+                    "leave `stopped_at_look` out; give the test's `looks` in the portfolio if it had them",
+                );
+                ok = false;
+                None
+            }
+            Some(k) if k.fract() != 0.0 || k < 1.0 || k >= f64::from(looks) => {
+                self.ck.err(
+                    &format!("{at}.stopped_at_look"),
+                    format!(
+                        "`{id}`: `stopped_at_look` is {k}; its interim looks are 1 to {}",
+                        looks - 1
+                    ),
+                    format!(
+                        "the interim look that stopped it, 1 to {}; look {looks} is its final read: then leave `stopped_at_look` out",
+                        looks - 1
+                    ),
+                );
+                ok = false;
+                None
+            }
+            Some(k) => Some(k as u32),
+        };
+        let outcome = match &e.outcome {
+            None => None,
+            Some(t) => {
+                let word = t.as_str().trim().to_lowercase().replace([' ', '-'], "_");
+                let names: Vec<&str> = crate::plan::Outcome::ALL.iter().map(|o| o.name()).collect();
+                match crate::plan::Outcome::ALL
+                    .into_iter()
+                    .find(|o| o.name() == word)
+                {
+                    Some(o) => Some(o),
+                    None => {
+                        let all = names
+                            .iter()
+                            .map(|n| format!("`{n}`"))
+                            .collect::<Vec<_>>()
+                            .join(", ");
+                        let hint = match diagnostic::suggestion(&word, &names) {
+                            Some(s) => format!("did you mean `{s}`? one of {all}"),
+                            None => format!("one of {all}"),
+                        };
+                        self.ck.err(
+                            &format!("{at}.outcome"),
+                            format!("outcome `{}` of `{id}` is not known", t.as_str()),
+                            hint,
+                        );
+                        ok = false;
+                        None
+                    }
+                }
+            }
+        };
+        ok.then_some((stopped, outcome))
+    }
+
+    /// The entry's `units_per_arm`, checked against its design's arms;
+    /// `Err` after reporting a problem.
+    fn per_arm(&mut self, entry: &At, given: Option<Vec<f64>>) -> Result<Option<Vec<u64>>, ()> {
+        let (at, id) = (entry.at, entry.id);
+        let arms = self.p.experiments[entry.index].design.arms as usize;
+        let Some(v) = given else { return Ok(None) };
+        let key = format!("{at}.units_per_arm");
+        if v.len() != arms {
+            self.ck.err(
+                &key,
+                format!(
+                    "`{id}` has {arms} arms but `units_per_arm` lists {}",
+                    v.len()
+                ),
+                "one count per arm, control first",
+            );
+            return Err(());
+        }
+        if v.iter()
+            .any(|u| !(u.is_finite() && *u >= 0.0 && u.fract() == 0.0 && *u < 1e15))
+        {
+            self.ck.err(
+                &key,
+                format!("`{id}`: `units_per_arm` must hold whole numbers >= 0"),
+                "counts of units, e.g. [20510, 20488]",
+            );
+            return Err(());
+        }
+        Ok(Some(v.iter().map(|u| *u as u64).collect()))
     }
 
     fn running(&mut self, entry: &At, e: RawEntry, started: Option<NaiveDate>) -> Option<State> {
@@ -673,34 +810,8 @@ impl ProgressCheck<'_> {
                 return None;
             }
         };
-        let arms = exp.design.arms as usize;
-        let per_arm = match e.units_per_arm {
-            Some(v) => {
-                let key = format!("{at}.units_per_arm");
-                if v.len() != arms {
-                    self.ck.err(
-                        &key,
-                        format!(
-                            "`{id}` has {arms} arms but `units_per_arm` lists {}",
-                            v.len()
-                        ),
-                        "one count per arm, control first",
-                    );
-                    return None;
-                }
-                if v.iter()
-                    .any(|u| !(u.is_finite() && *u >= 0.0 && u.fract() == 0.0 && *u < 1e15))
-                {
-                    self.ck.err(
-                        &key,
-                        format!("`{id}`: `units_per_arm` must hold whole numbers >= 0"),
-                        "counts of units, e.g. [20510, 20488]",
-                    );
-                    return None;
-                }
-                Some(v.iter().map(|u| *u as u64).collect::<Vec<u64>>())
-            }
-            None => None,
+        let Ok(per_arm) = self.per_arm(entry, e.units_per_arm) else {
+            return None;
         };
         let units = match (e.units, &per_arm) {
             (Some(u), _) if !(0.0..1e15).contains(&u) || u.fract() != 0.0 => {

@@ -437,7 +437,18 @@ fn assemble(
                         .excluded
                         .iter()
                         .find(|x| x.experiment == e)
-                        .and_then(|x| x.ran);
+                        .and_then(|x| x.ran.clone());
+                    // What it ran, its ramp included, as it ran.
+                    if let Some(r) = &out.ran {
+                        out.ramp = ramp_days(p, e, r.start)
+                            .into_iter()
+                            .filter(|s| s.start <= r.end)
+                            .map(|s| RampDays {
+                                end: s.end.min(r.end),
+                                ..s
+                            })
+                            .collect();
+                    }
                     if let Role::Excluded { ended, .. } = &inst.roles[e] {
                         out.status = if ended.is_some() {
                             Status::Finished
@@ -495,9 +506,10 @@ fn assemble(
                                 running += 1;
                             }
                         } else if let Some(r) = &pe.ran {
-                            // The past as it ran: finished and cancelled tests.
+                            // The past as it ran: finished and cancelled
+                            // tests, their ramps at the steps' shares.
                             if r.start <= date && date <= r.end {
-                                share_used += r.share.map_or(0.0, Share::fraction);
+                                share_used += pe.ran_share_on(date).map_or(0.0, Share::fraction);
                                 running += 1;
                             }
                         }

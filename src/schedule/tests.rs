@@ -536,11 +536,7 @@ fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> PlanRequest {
                     experiment: i,
                     ended: Some(t),
                     reason: "finished".into(),
-                    ran: Some(crate::plan::Ran {
-                        start: s,
-                        end: t,
-                        share: Some(sh),
-                    }),
+                    ran: Some(crate::plan::Ran::new(s, t, Some(sh))),
                 });
             } else if s < today {
                 r.fixed.push(FixedRun {

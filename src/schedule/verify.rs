@@ -210,7 +210,7 @@ pub fn verify(
             if runs[i].is_some() {
                 bad.push(format!("`{}` left the queue but is scheduled", ex.id));
             }
-            if plan.experiments.get(i).map(|pe| pe.ran) != Some(x.ran) {
+            if plan.experiments.get(i).map(|pe| &pe.ran) != Some(&x.ran) {
                 bad.push(format!(
                     "`{}` does not show what it ran as the progress gives it",
                     ex.id
@@ -401,9 +401,12 @@ pub fn verify(
                             }
                         }
                     }
-                } else if let Some(r) = excluded(i).and_then(|x| x.ran) {
+                } else if let Some(r) = excluded(i).and_then(|x| x.ran.as_ref()) {
                     if r.start <= day && day <= r.end {
-                        let sh = r.share.map_or(0.0, Share::fraction);
+                        // As it ran: its ramp's steps, then its share.
+                        let sh = ramp_share(ex, (day - r.start).num_days())
+                            .or(r.share.map(Share::fraction))
+                            .unwrap_or(0.0);
                         used += sh;
                         given += sh;
                         count += 1;

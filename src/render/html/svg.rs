@@ -311,6 +311,9 @@ pub(super) fn calendar(plan: &Plan, s: &mut String) {
                     let pool_id = pool.map(|p| p.id.as_str()).unwrap_or("");
                     bar(plan, &scale, e, r, y, pool_fill(gi), pool_id, s)
                 }
+                None if crate::render::common::past_run(e).is_some() => {
+                    past_bar(&scale, e, y, s);
+                }
                 None => {
                     let word = if e.status == crate::plan::Status::Unscheduled {
                         "does not fit: see the list below".to_string()
@@ -376,6 +379,51 @@ fn clip(s: &str, max: usize) -> String {
         out.push('…');
         out
     }
+}
+
+/// A finished or cancelled test's run as it ran (re-plans): a grey bar
+/// over its days, its ramp washed out at the ramp's days, and its words
+/// ("finished early at look 2 of 3: better than control, ran ...") after
+/// the bar, or inside the row's start when the bar leaves no room.
+fn past_bar(scale: &Scale, e: &PlannedExperiment, y: f64, s: &mut String) {
+    let Some(r) = crate::render::common::past_run(e) else {
+        return;
+    };
+    let words = crate::render::common::closed_words(e);
+    let (x0, x1) = scale.span(r.start, r.end);
+    let top = y + (ROW_H - BAR_H) / 2.0;
+    let h = BAR_H;
+    let _ = writeln!(
+        s,
+        r##"<g class="past-bar"><title>{}</title><rect x="{x0:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" rx="3" fill="#8a939d"/>"##,
+        esc(&format!("{} ({}): {words}", e.title, e.id)),
+        (x1 - x0).max(2.0)
+    );
+    for step in &e.ramp {
+        let (r0, r1) = scale.span(step.start, step.end);
+        let _ = writeln!(
+            s,
+            r##"<rect class="ramp" x="{r0:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" fill="#ffffff" fill-opacity="0.55"/>"##,
+            (r1 - r0).max(1.0)
+        );
+    }
+    // The words after the bar, shortened until they fit: in full, then
+    // without the dates (the bar shows them), then inside the bar.
+    let short = words.split(", ran ").next().unwrap_or(&words).to_string();
+    let width = |t: &str| t.chars().count() as f64 * CHAR_W;
+    let (x, text, fill) = if x1 + 6.0 + width(&words) <= PLOT_X1 {
+        (x1 + 6.0, words.as_str(), "#4a525c")
+    } else if x1 + 6.0 + width(&short) <= PLOT_X1 {
+        (x1 + 6.0, short.as_str(), "#4a525c")
+    } else {
+        (x0 + 6.0, short.as_str(), "#ffffff")
+    };
+    let _ = writeln!(
+        s,
+        r##"<text x="{x:.1}" y="{:.1}" font-size="11" font-style="italic" fill="{fill}">{}</text></g>"##,
+        top + h / 2.0 + 4.0,
+        esc(text)
+    );
 }
 
 #[allow(clippy::too_many_arguments)]

@@ -130,7 +130,7 @@ fn table_for(
         }
         match run.as_ref().or(past.as_ref()) {
             Some(r) => {
-                let share = match e.ran {
+                let share = match &e.ran {
                     Some(ran) if run.is_none() => {
                         ran.share.map_or("—".to_string(), |s| s.to_string())
                     }
@@ -142,12 +142,9 @@ fn table_for(
                     row.push(Cell::new(r.end));
                 }
                 // A past run shows when it ended, not a result to come.
-                row.push(match (run, e.status) {
-                    (None, crate::plan::Status::Cancelled) => {
-                        Cell::new(format!("stopped {}", r.end))
-                    }
-                    (None, _) => Cell::new(format!("ended {}", r.end)),
-                    _ => Cell::new(r.result_date),
+                row.push(match crate::render::common::past_result_cell(e) {
+                    Some(cell) => Cell::new(cell),
+                    None => Cell::new(r.result_date),
                 });
                 if ranges {
                     row.push(Cell::new(

@@ -246,7 +246,11 @@ pub(super) fn draw(plan: &Plan, width: usize, colour: bool, out: &mut String) {
                 None if past.is_some() => {
                     // Drawn where it ran, dim, and marked.
                     let glyphs: String = track
-                        .row(past.as_ref(), None, &blackout)
+                        .row(
+                            past.as_ref(),
+                            crate::render::common::past_full_from(e),
+                            &blackout,
+                        )
                         .into_iter()
                         .collect();
                     format!(
