@@ -187,6 +187,24 @@ function colours() {
   return { back, ink, ratio: (Math.max(back, ink) + 0.05) / (Math.min(back, ink) + 0.05) };
 }
 
+/**
+ * Rows whose state is told by colour alone: each calendar row must say its
+ * facts in words (`aria-label`), and a test without a run must say why in
+ * visible text, not only by a missing bar.
+ */
+function colourOnly(closed) {
+  const bad = [];
+  for (const row of document.querySelectorAll('.cal-row[data-test]')) {
+    const label = row.querySelector('svg')?.getAttribute('aria-label') || '';
+    if (!label.includes(row.dataset.test)) bad.push(`${row.dataset.test}: no words for its row`);
+  }
+  for (const [id, words] of closed) {
+    const rows = [...document.querySelectorAll(`.cal-row[data-test="${CSS.escape(id)}"]`)];
+    if (!rows.length || !rows.every((r) => words.some((w) => r.textContent.includes(w)))) bad.push(`${id}: its state is not in words`);
+  }
+  return bad;
+}
+
 // --- the runs -------------------------------------------------------------
 
 const { context, close } = await launch();
@@ -215,6 +233,35 @@ try {
         tally.check(`${at}: legend icons are at most 48px`, !icons.length, icons.slice(0, 3).join(', '));
         const cut = await page.evaluate(cutLabels);
         tally.check(`${at}: no bar label is cut`, !cut.length, cut.slice(0, 3).join('; '));
+        const closed = plan.experiments
+          .filter((e) => !e.result_date || ['finished', 'cancelled', 'unscheduled'].includes(e.status))
+          .filter((e) => e.status !== 'running' && e.status !== 'scheduled')
+          .map((e) => [e.id, e.status === 'unscheduled' ? ['does not fit'] : [e.status]]);
+        const colour = await page.evaluate(colourOnly, closed);
+        tally.check(`${at}: no test's state is told by colour alone (${closed.length} without a run)`, !colour.length, colour.slice(0, 3).join('; '));
+        if (width === 768 && scheme === 'light') {
+          // The keyboard reaches the calendar's frame and scrolls it.
+          await page.evaluate(() => {
+            document.querySelectorAll('.frame').forEach((f) => (f.scrollLeft = 0));
+            document.activeElement?.blur();
+            window.scrollTo(0, 0);
+          });
+          let reached = false;
+          for (let i = 0; i < 30 && !reached; i++) {
+            await page.keyboard.press('Tab');
+            reached = await page.evaluate(() => document.activeElement?.classList.contains('cal'));
+          }
+          let scrolled = 0;
+          if (reached) {
+            for (let i = 0; i < 6; i++) await page.keyboard.press('ArrowRight');
+            // Arrow keys scroll smoothly: wait for the frame to move.
+            await page
+              .waitForFunction(() => document.activeElement.scrollLeft > 0, null, { timeout: 3000 })
+              .catch(() => {});
+            scrolled = await page.evaluate(() => document.activeElement.scrollLeft);
+          }
+          tally.check(`${at}: the keyboard reaches the calendar and scrolls it sideways`, reached && scrolled > 0, reached ? 'it did not scroll' : 'never focused');
+        }
         const names = await page.evaluate(cutPoolNames, pools);
         tally.check(`${at}: every pool's name is shown whole`, !names.length, names.join(', '));
         const hidden = [];
