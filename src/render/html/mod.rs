@@ -166,13 +166,14 @@ svg .shade-back-light { fill: var(--shade-back-light); } svg .shade-stripe-light
 .pool-lists li { padding: 6px 0 6px 10px; border-bottom: 1px solid var(--rule); }
 .pool-lists .small, .pool-lists .muted { color: var(--muted); }
 .pool-lists .small { font-size: 13px; }
-table { border-collapse: collapse; width: 100%; font-size: 14px; }
+table { border-collapse: collapse; width: 100%; font-size: 14px; overflow-wrap: normal; }
 th, td { text-align: left; padding: 6px 10px; border-bottom: 1px solid var(--rule); vertical-align: top; }
 th { border-bottom: 2px solid var(--ink); font-weight: 600; }
 tbody tr:nth-child(even) { background: var(--band); }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.date { font-variant-numeric: tabular-nums; }
-.nw, td.date strong { white-space: nowrap; }
+.nw, td.date strong, td code { white-space: nowrap; }
+td.date:not(:has(br)) { white-space: nowrap; }
 td.test { min-width: 13em; }
 td .small { color: var(--muted); font-size: 13px; }
 td.muted { color: var(--muted); }
@@ -194,6 +195,7 @@ footer { margin-top: 36px; color: var(--muted); font-size: 13px; border-top: 1px
   .cal-row .name { width: 132px; padding-left: 6px; }
   .cal-head span { max-width: calc(100vw - 40px); }
   td.test { min-width: 10em; }
+  .frame > table { min-width: 640px; }
 }
 @page { size: landscape; margin: 10mm; }
 @media print {
@@ -216,6 +218,7 @@ footer { margin-top: 36px; color: var(--muted); font-size: 13px; border-top: 1px
   section.calendar, section.traffic, section.tests, section.cautions { break-before: page; }
   table { font-size: 9pt; }
   td.test { min-width: 11em; }
+  td code { white-space: normal; overflow-wrap: anywhere; }
 }
 "#;
 /// A run's facts as the report words them, shared by a bar's tooltip and
