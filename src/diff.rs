@@ -204,6 +204,7 @@ mod tests {
             window: PlanWindow {
                 start: d("2027-01-04"),
                 end: d("2027-01-06"),
+                week_start: None,
             },
             solver: SolverSummary {
                 backend: "microlp".into(),

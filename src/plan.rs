@@ -20,6 +20,11 @@ pub struct PlanWindow {
     pub start: NaiveDate,
     /// Last day.
     pub end: NaiveDate,
+    /// The weekday tests start on when they start on a weekly grid
+    /// (`planning.start_weekday`); reports begin their weeks on it. Absent
+    /// with a daily grid and in older plans: weeks then begin on `start`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub week_start: Option<chrono::Weekday>,
 }
 
 /// How the optimiser did.

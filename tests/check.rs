@@ -449,3 +449,49 @@ fn the_json_names_the_metric_that_drives_each_test() {
     assert_eq!(exps[1]["driver"], "primary");
     assert_eq!(exps[1]["control_units"], 14_751);
 }
+
+/// `check` lays its report out for the width it has (`COLUMNS` off a
+/// terminal): the table keeps the test and whether it fits alone, then
+/// its days, share and pool as room allows, and the prose is wrapped.
+#[test]
+fn check_fits_the_width() {
+    use unicode_width::UnicodeWidthStr;
+    let run = |columns: &str| {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_sluice"))
+            .args(["check", &crate::util::demo()])
+            .env("COLUMNS", columns)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        text(&out.stdout)
+    };
+    for (columns, wanted) in [
+        (80, &["experiment", "alone", "days from start"][..]),
+        (
+            120,
+            &["experiment", "alone", "days from start", "share"][..],
+        ),
+        (
+            200,
+            &["pool", "metric", "arms", "units per arm", "total units"][..],
+        ),
+    ] {
+        let report = run(&columns.to_string());
+        // The first line is the portfolio's name, which is not wrapped.
+        for line in report.lines().skip(1) {
+            assert!(line.width() <= columns, "{columns}: {line}");
+        }
+        let header = report.lines().find(|l| l.contains("│ experiment")).unwrap();
+        for column in wanted {
+            assert!(header.contains(column), "{columns}: {column} in {header}");
+        }
+        // Every test is named whole.
+        for id in [
+            "home-static-hero",
+            "search-sort-bestsellers",
+            "sitewide-free-returns",
+        ] {
+            assert!(report.contains(id), "{columns}: {id}");
+        }
+    }
+}

@@ -275,7 +275,7 @@ fn csv_markdown_and_html_carry_the_numbers() {
     assert!(html.contains(r#"<ul class="legend">"#));
     // Titles beside ids in the calendar.
     assert!(
-        html.contains(">One static hero image instead of…</text>"),
+        html.contains("<code>home-static-hero</code><span>One static hero image instead of the carousel</span>"),
         "titles"
     );
     // Solver words only in the closing note, not in the summary tiles.

@@ -581,9 +581,13 @@ fn out_writes_the_file_and_nothing_on_stdout() {
         assert!(out.stdout.is_empty(), "{format}: stdout stays empty");
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert!(stderr.contains(p), "the note names the file: {stderr}");
-        // The file holds what stdout would have held (files get the
-        // fallback width and no colour, like a pipe).
-        let piped = ok(&["plan", &demo(), "--format", format, "--no-timing"]);
+        // The file holds what stdout would have held at 120 columns (files
+        // get that fixed width and no colour).
+        let piped = sluice_env(
+            &["plan", &demo(), "--format", format, "--no-timing"],
+            &[("COLUMNS", "120")],
+        )
+        .stdout;
         assert_eq!(std::fs::read(&path).unwrap(), piped, "{format}");
     }
     let mut names: Vec<String> = std::fs::read_dir(dir.path())
@@ -766,7 +770,8 @@ fn columns_sets_the_width_off_a_terminal() {
     for junk in ["", "0", "wide", "-5", "99999"] {
         assert_eq!(text_with(&[("COLUMNS", junk)]), default, "COLUMNS={junk:?}");
     }
-    // A file does not depend on the caller's COLUMNS.
+    // A file does not depend on the caller's COLUMNS: it is laid out at
+    // 120 columns, with the result range and the pool in its table.
     let dir = tempfile::tempdir().unwrap();
     let file = dir.path().join("plan.txt");
     let out = sluice_env(
@@ -774,7 +779,19 @@ fn columns_sets_the_width_off_a_terminal() {
         &[("COLUMNS", "60")],
     );
     assert!(out.status.success());
-    assert_eq!(std::fs::read_to_string(&file).unwrap(), default);
+    let written = std::fs::read_to_string(&file).unwrap();
+    assert_eq!(written, text_with(&[("COLUMNS", "120")]));
+    assert!(written.lines().all(|l| l.width() <= 120), "{written}");
+    let header = written.lines().find(|l| l.contains(" test ")).unwrap();
+    for column in [
+        "pool",
+        "share",
+        "start",
+        "result due",
+        "result due (P10–P90)",
+    ] {
+        assert!(header.contains(column), "{column} in {header}");
+    }
 }
 
 #[test]

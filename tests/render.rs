@@ -483,18 +483,40 @@ fn html_is_well_formed_xml_with_the_expected_parts() {
         .iter()
         .filter(|e| e.status == Status::Scheduled)
         .count();
-    // One calendar chart plus one chart per pool, and the legend's six
-    // small icons.
-    assert_eq!(with_class("icon"), 6, "the legend's marks");
-    assert_eq!(count("svg"), 1 + plan.pools.len() + 6);
+    // The calendar: an axis and a drawing per row (a test on two pools has
+    // a row in each), one chart per pool, and the legend's seven icons.
+    let rows = elements
+        .iter()
+        .filter(|(n, a)| n == "div" && a.iter().any(|(k, _)| k == "data-test"))
+        .count();
+    let on_pools: usize = plan.experiments.iter().map(|e| e.pools.len()).sum();
+    assert_eq!(rows, on_pools, "a calendar row per test and pool");
+    assert_eq!(with_class("icon"), 7, "the legend's marks");
+    assert_eq!(count("svg"), 1 + rows + plan.pools.len() + 7);
+    let bars_on_rows: usize = plan
+        .experiments
+        .iter()
+        .filter(|e| e.status == Status::Scheduled)
+        .map(|e| e.pools.len())
+        .sum();
     assert_eq!(
         with_class("bar"),
-        scheduled,
-        "one labelled bar per scheduled test"
+        bars_on_rows,
+        "one labelled bar per scheduled test on each of its rows"
     );
-    assert_eq!(with_class("today"), 1, "today's line");
-    // Blackouts: the all-pool one shades both pool groups in the calendar
-    // and both pool charts; the storefront one shades one of each.
+    assert!(scheduled > 0);
+    assert_eq!(with_class("today-label"), 1, "today's label");
+    // Every row draws the week grid and today's line from the axis.
+    let uses = |href: &str| {
+        elements
+            .iter()
+            .filter(|(n, a)| n == "use" && a.iter().any(|(k, v)| k == "href" && v == href))
+            .count()
+    };
+    assert_eq!(uses("#cal-grid"), rows);
+    assert_eq!(uses("#cal-today"), rows);
+    // Blackouts: the all-pool one shades both pools' rows and both pool
+    // charts; the storefront one shades one of each.
     let shades = elements
         .iter()
         .filter(|(n, a)| {
@@ -504,7 +526,7 @@ fn html_is_well_formed_xml_with_the_expected_parts() {
         })
         .count();
     // The legend shows both kinds of shade once more.
-    assert_eq!(shades, 2 * 2 + 2 + 2);
+    assert_eq!(shades, 3 + 3 + 2);
     // Tables: a row per experiment, and a row of numbers per test with a run.
     let with_run = plan.experiments.iter().filter(|e| e.run.is_some()).count();
     assert_eq!(count("tr"), 1 + plan.experiments.len() + 1 + with_run);

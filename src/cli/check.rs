@@ -32,7 +32,10 @@ pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Error> {
     let report = check::check(&p);
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
-        TextOrJson::Text => Ok(text(&report).into_bytes()),
+        TextOrJson::Text => {
+            let width = crate::render::RenderOptions::for_stdout().effective_width();
+            Ok(text(&report, width).into_bytes())
+        }
     }
 }
 
@@ -50,8 +53,58 @@ fn right(t: &mut Table, columns: &[usize]) {
     }
 }
 
-/// The text report: a header, the experiment table, the reasons, the pool table.
-pub fn text(r: &CheckReport) -> String {
+/// A table of `header` over `rows` at `width` columns: the columns in
+/// `priority` (indexes, most wanted first) are kept while the table fits
+/// without wrapping a cell, in their own order, and the rest left out; what
+/// is kept is wrapped to the width when even the first two do not fit.
+/// `numbers` are the right-aligned columns.
+fn fitted(
+    header: &[&str],
+    rows: &[Vec<String>],
+    priority: &[usize],
+    numbers: &[usize],
+    width: usize,
+) -> Table {
+    let build = |keep: &[usize], wrap: bool| {
+        let mut keep = keep.to_vec();
+        keep.sort_unstable();
+        let mut t = table();
+        crate::render::common::fit_table(&mut t, wrap.then_some(width));
+        t.set_header(keep.iter().map(|&c| header[c]));
+        for row in rows {
+            t.add_row(keep.iter().map(|&c| row[c].clone()));
+        }
+        let aligned: Vec<usize> = keep
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| numbers.contains(c))
+            .map(|(i, _)| i)
+            .collect();
+        right(&mut t, &aligned);
+        t
+    };
+    let fits = |keep: &[usize]| {
+        build(keep, false)
+            .to_string()
+            .lines()
+            .all(|l| unicode_width::UnicodeWidthStr::width(l) <= width)
+    };
+    let mut keep = priority[..2.min(priority.len())].to_vec();
+    for &c in &priority[keep.len()..] {
+        let mut more = keep.clone();
+        more.push(c);
+        if !fits(&more) {
+            break;
+        }
+        keep = more;
+    }
+    build(&keep, true)
+}
+
+/// The text report at `width` columns: a header, the experiment table
+/// (its columns chosen by priority for the width), the reasons, the pool
+/// table.
+pub fn text(r: &CheckReport, width: usize) -> String {
     let mut out = String::new();
     out.push_str(&format!(
         "{}: window {} to {} ({} days), {} {}\n\n",
@@ -62,8 +115,7 @@ pub fn text(r: &CheckReport) -> String {
         r.experiments.len(),
         Count("experiment", r.experiments.len())
     ));
-    let mut t = table();
-    t.set_header(vec![
+    let header = [
         "experiment",
         "pool",
         "metric",
@@ -73,7 +125,8 @@ pub fn text(r: &CheckReport) -> String {
         "share",
         "days from start",
         "alone",
-    ]);
+    ];
+    let mut rows = Vec::with_capacity(r.experiments.len());
     for e in &r.experiments {
         let per_arm = if e.treatment_units == e.control_units {
             units(e.control_units)
@@ -84,7 +137,7 @@ pub fn text(r: &CheckReport) -> String {
             (Some(d), Some(end)) => format!("{d} (to {end})"),
             _ => format!("over {} years", check::HORIZON_DAYS / 365),
         };
-        t.add_row(vec![
+        rows.push(vec![
             e.id.clone(),
             e.pools.join(", "),
             e.metric.clone(),
@@ -108,7 +161,15 @@ pub fn text(r: &CheckReport) -> String {
             },
         ]);
     }
-    right(&mut t, &[3, 4, 5, 6, 7]);
+    // The test and whether it fits first, then its days, share and pool,
+    // then its size.
+    let t = fitted(
+        &header,
+        &rows,
+        &[0, 8, 7, 6, 1, 5, 4, 3, 2],
+        &[3, 4, 5, 6, 7],
+        width,
+    );
     out.push_str(&t.to_string());
     out.push('\n');
     out.push_str(&format!(
@@ -117,13 +178,23 @@ pub fn text(r: &CheckReport) -> String {
         r.experiments.len(),
         r.cannot_fit
     ));
+    // Prose is wrapped to the width, each item's later lines indented.
+    let item = |text: &str, indent: &str| {
+        let wrapped = crate::render::text::wrap(text, width, indent);
+        let more = format!("{indent}  ");
+        let mut lines = wrapped.lines();
+        let first = lines.next().unwrap_or_default().to_string();
+        let rest: String = lines.map(|l| format!("{}\n", l.trim_start())).collect();
+        let rest = crate::render::text::wrap(&rest, width, &more);
+        format!("{first}\n{rest}")
+    };
     for e in r.experiments.iter().filter(|e| !e.fits_alone) {
         if let Some(why) = &e.reason {
-            out.push_str(&format!("  `{}`: {why}\n", e.id));
+            out.push_str(&item(&format!("`{}`: {why}", e.id), "  "));
         }
         if let (Some(d), Some(s)) = (&e.detectable, &e.statistics) {
             let line = crate::render::numbers::detectable(d, s);
-            out.push_str(&format!("    {line}\n"));
+            out.push_str(&item(&line, "    "));
         }
     }
     let secondary: Vec<String> = r
@@ -131,7 +202,7 @@ pub fn text(r: &CheckReport) -> String {
         .iter()
         .filter_map(|e| {
             let line = crate::render::numbers::secondary_list(e.statistics.as_ref()?)?;
-            Some(format!("  `{}`: {line}\n", e.id))
+            Some(item(&format!("`{}`: {line}", e.id), "  "))
         })
         .collect();
     if !secondary.is_empty() {
@@ -140,6 +211,7 @@ pub fn text(r: &CheckReport) -> String {
     }
     out.push('\n');
     let mut t = table();
+    crate::render::common::fit_table(&mut t, Some(width));
     t.set_header(vec![
         "pool",
         "sharing",
@@ -171,7 +243,10 @@ pub fn text(r: &CheckReport) -> String {
     out.push_str(&t.to_string());
     out.push('\n');
     for p in &r.pools {
-        out.push_str(&format!("  `{}` ({}): {}\n", p.id, p.label, p.note));
+        out.push_str(&item(
+            &format!("`{}` ({}): {}", p.id, p.label, p.note),
+            "  ",
+        ));
     }
     out
 }

@@ -21,7 +21,7 @@ pub struct OutputArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
-    /// Write to this file (atomically) instead of stdout; never over a file the command reads
+    /// Write to this file (atomically) instead of stdout; never over a file the command reads. Text goes at a fixed 120 columns
     #[arg(long, value_name = "PATH")]
     pub out: Option<PathBuf>,
     /// Write 0 as the solver's seconds, so outputs compare byte for byte

@@ -8,7 +8,7 @@ use crate::plan::{
     Plan, PlanBlackout, PlannedExperiment, PoolPlan, ResultRange, Sharing, SolverStatus, Status,
 };
 pub(crate) use crate::words::{percent, thousands, units};
-use chrono::{Duration, NaiveDate};
+use chrono::{Datelike, Duration, NaiveDate};
 
 /// How to name an experiment with no run in this plan: "does not fit", or
 /// (in re-plans) "finished" / "cancelled".
@@ -272,10 +272,24 @@ pub struct Week {
     pub end: NaiveDate,
 }
 
-/// The window cut into weeks from its first day.
+/// The window cut into weeks that begin on the weekday tests start on
+/// (`window.week_start`; the days before the first make a short week), or
+/// from its first day when the plan has no weekly grid.
 pub fn weeks(plan: &Plan) -> Vec<Week> {
     let mut out = Vec::new();
     let mut start = plan.window.start;
+    // Weeks begin on the weekday tests start on; the days before the
+    // first such day make a short first week.
+    if let Some(day) = plan.window.week_start {
+        let ahead = (7 + i64::from(day.num_days_from_monday())
+            - i64::from(start.weekday().num_days_from_monday()))
+            % 7;
+        if ahead > 0 {
+            let end = (start + Duration::days(ahead - 1)).min(plan.window.end);
+            out.push(Week { start, end });
+            start += Duration::days(ahead);
+        }
+    }
     while start <= plan.window.end {
         let end = (start + Duration::days(6)).min(plan.window.end);
         out.push(Week { start, end });

@@ -32,6 +32,11 @@ use std::io::IsTerminal;
 /// (output is not a terminal, or the terminal does not say).
 pub const FALLBACK_WIDTH: u16 = 100;
 
+/// Columns of the text written to a file (`--out`): a fixed width, so a
+/// file is the same wherever and however it is written, wide enough for
+/// the table's key columns (result range and pool included).
+pub const FILE_WIDTH: u16 = 120;
+
 /// Narrowest width the text renderer lays out for; anything smaller is
 /// treated as this.
 pub const MIN_WIDTH: u16 = 40;
@@ -149,11 +154,14 @@ impl RenderOptions {
         RenderOptions::decide(is_tty, no_color.as_deref(), width, columns.as_deref())
     }
 
-    /// The options for writing to a file (`--out`): no colour, fallback
-    /// width. `COLUMNS` is not read, so a file is the same wherever it is
-    /// written from.
+    /// The options for writing to a file (`--out`): no colour, and
+    /// [`FILE_WIDTH`] columns. `COLUMNS` is not read, so a file is the same
+    /// wherever it is written from.
     pub fn for_file() -> RenderOptions {
-        RenderOptions::default()
+        RenderOptions {
+            width: Some(FILE_WIDTH),
+            colour: false,
+        }
     }
 
     /// The decision behind [`RenderOptions::for_stdout`], kept pure for tests.

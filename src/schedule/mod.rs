@@ -553,6 +553,8 @@ fn assemble(
         window: PlanWindow {
             start: w.start,
             end: w.end,
+            week_start: (p.planning.grid == crate::portfolio::StartGrid::Weekly)
+                .then_some(p.planning.start_weekday),
         },
         solver,
         greedy_value,

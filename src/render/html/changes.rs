@@ -56,7 +56,10 @@ pub(super) fn section(plan: &Plan) -> String {
             esc(TITLE),
             esc(&headline(d))
         );
-        s.push_str(&Html.table(&HEADER, &COLUMNS, &rows(d)));
+        s.push_str(&super::framed(
+            TITLE,
+            &Html.table(&HEADER, &COLUMNS, &rows(d)),
+        ));
         let _ = writeln!(s, "<ul>");
         let mut lines = String::new();
         summary_lines(&mut lines, d, "");
@@ -109,7 +112,7 @@ mod tests {
         // Nothing to add: no section, and the summary follows the header.
         let plain = report(&fixture::plan());
         assert!(!plain.contains(r#"id="changes""#));
-        assert!(plain.contains("</header>\n<section><h2 id=\"summary\">"));
+        assert!(plain.contains("</ul></nav>\n<section><h2 id=\"summary\">"));
         assert!(section(&fixture::plan()).is_empty());
     }
 

@@ -32,8 +32,14 @@ pub(super) fn section(plan: &Plan, s: &mut String) {
         if p.history.is_empty() {
             continue;
         }
-        let _ = writeln!(s, "<figure>");
+        let _ = writeln!(
+            s,
+            r#"<figure><h3>{}</h3><div class="frame" role="region" tabindex="0" aria-label="{}: forecast chart; it scrolls sideways">"#,
+            esc(&p.label),
+            esc(&p.label)
+        );
         chart(p, i, s);
+        let _ = writeln!(s, "</div>");
         let _ = writeln!(
             s,
             "<figcaption>{}</figcaption></figure>",
@@ -94,7 +100,7 @@ fn chart(p: &PoolPlan, index: usize, s: &mut String) {
         let (top_y, bottom_y) = (y(r.high / days), y(r.low / days));
         let _ = write!(
             bands,
-            r##"<rect x="{x0:.1}" y="{top_y:.1}" width="{:.1}" height="{:.1}" fill="#8a929c" fill-opacity="0.25"><title>{}</title></rect><line x1="{x0:.1}" y1="{ay:.1}" x2="{x1:.1}" y2="{ay:.1}" stroke="#2b3138" stroke-width="2"/>"##,
+            r##"<rect x="{x0:.1}" y="{top_y:.1}" width="{:.1}" height="{:.1}" fill="#8a929c" fill-opacity="0.25"><title>{}</title></rect><line x1="{x0:.1}" y1="{ay:.1}" x2="{x1:.1}" y2="{ay:.1}" class="ink-line" stroke-width="2"/>"##,
             x1 - x0,
             (bottom_y - top_y).max(1.0),
             esc(&format!(
@@ -112,13 +118,13 @@ fn chart(p: &PoolPlan, index: usize, s: &mut String) {
     let id = format!("fc-{index}");
     let _ = writeln!(
         s,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {W:.0} {H:.0}" role="img" aria-labelledby="{id}-title"><title id="{id}-title">{}: daily units, history and forecast</title>"#,
+        r#"<svg class="chart" xmlns="http://www.w3.org/2000/svg" width="{W:.0}" height="{H:.0}" viewBox="0 0 {W:.0} {H:.0}" role="img" aria-labelledby="{id}-title"><title id="{id}-title">{}: daily units, history and forecast</title>"#,
         esc(&p.label)
     );
     // Axis: the top value and zero, the first day, the window's start and end.
     let _ = writeln!(
         s,
-        r##"<line x1="{X0:.1}" y1="{Y1:.1}" x2="{X1:.1}" y2="{Y1:.1}" stroke="#c4cad1"/><text x="{:.1}" y="{:.1}" font-size="11" fill="#4a525c" text-anchor="end">{}</text><text x="{:.1}" y="{:.1}" font-size="11" fill="#4a525c" text-anchor="end">0</text>"##,
+        r##"<line class="rule" x1="{X0:.1}" y1="{Y1:.1}" x2="{X1:.1}" y2="{Y1:.1}"/><text x="{:.1}" y="{:.1}" class="muted" font-size="11" text-anchor="end">{}</text><text x="{:.1}" y="{:.1}" class="muted" font-size="11" text-anchor="end">0</text>"##,
         X0 - 6.0,
         Y0 + 4.0,
         esc(&units(top)),
@@ -131,14 +137,14 @@ fn chart(p: &PoolPlan, index: usize, s: &mut String) {
         let xs = x(d.date);
         let _ = writeln!(
             s,
-            r##"<line x1="{xs:.1}" y1="{Y0:.1}" x2="{xs:.1}" y2="{Y1:.1}" stroke="#4a525c" stroke-dasharray="4 3"/>"##
+            r##"<line x1="{xs:.1}" y1="{Y0:.1}" x2="{xs:.1}" y2="{Y1:.1}" class="muted-line" stroke-dasharray="4 3"/>"##
         );
     }
     labels.push((last, "end"));
     for (date, anchor) in labels {
         let _ = writeln!(
             s,
-            r##"<text x="{:.1}" y="{:.1}" font-size="11" fill="#4a525c" text-anchor="{anchor}">{}</text>"##,
+            r##"<text x="{:.1}" y="{:.1}" class="muted" font-size="11" text-anchor="{anchor}">{}</text>"##,
             x(date),
             Y1 + 16.0,
             esc(&short_date(date))

@@ -18,6 +18,7 @@
 //! `svg` draws the charts, `table` the table of tests, `changes` a
 //! re-plan's sections; the markup helpers and the page are here.
 
+mod calendar;
 mod changes;
 mod forecast;
 mod svg;
@@ -97,51 +98,127 @@ pub fn esc_with_code(s: &str) -> String {
 const POOL_FILLS: [&str; 5] = ["#1f5f8b", "#8a4f0a", "#5b3f8c", "#2d6a3e", "#8c2f4b"];
 
 const STYLE: &str = r#"
-:root { color-scheme: light; }
+:root { color-scheme: light dark;
+  --bg: #ffffff; --ink: #1c2127; --muted: #4a525c; --rule: #d5d9de; --rule-strong: #c4cad1;
+  --band: #f3f5f7; --guide: #e3e6ea; --today: #b3261e; --warn: #a4500f; --focus: #1f5f8b;
+  --shade-back: #eceff2; --shade-stripe: #b9c0c8; --shade-back-light: #f6f7f9; --shade-stripe-light: #c9ced5; }
+@media (prefers-color-scheme: dark) {
+  :root { --bg: #121519; --ink: #e7eaee; --muted: #a9b2bc; --rule: #353d46; --rule-strong: #4a535d;
+    --band: #1d2329; --guide: #2a3138; --today: #ff8f85; --warn: #f0a35e; --focus: #8cc4f0;
+    --shade-back: #232a31; --shade-stripe: #56606b; --shade-back-light: #1b2026; --shade-stripe-light: #444d57; }
+}
 * { box-sizing: border-box; }
-body { margin: 0; background: #ffffff; color: #1c2127;
+html { -webkit-text-size-adjust: 100%; text-size-adjust: 100%; }
+body { margin: 0; background: var(--bg); color: var(--ink);
   font-family: system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif;
-  font-size: 15px; line-height: 1.5; }
+  font-size: 15px; line-height: 1.5; overflow-wrap: break-word; }
 main { max-width: 1100px; margin: 0 auto; padding: 28px 28px 48px; }
-header.top { border-bottom: 3px solid #1c2127; padding-bottom: 12px; margin-bottom: 20px; }
-h1 { font-size: 26px; margin: 0 0 4px; letter-spacing: -0.01em; }
-h2 { font-size: 19px; margin: 32px 0 8px; padding-top: 8px; border-top: 1px solid #d5d9de; }
+a { color: var(--focus); }
+:focus-visible { outline: 3px solid var(--focus); outline-offset: 2px; }
+header.top { border-bottom: 3px solid var(--ink); padding-bottom: 12px; margin-bottom: 12px; }
+h1 { font-size: 26px; margin: 0 0 4px; letter-spacing: -0.01em; line-height: 1.25; }
+h2 { font-size: 19px; margin: 32px 0 8px; padding-top: 8px; border-top: 1px solid var(--rule); }
 h3 { font-size: 15px; margin: 18px 0 4px; }
-p.meta { margin: 0; color: #4a525c; }
+p.meta { margin: 0; color: var(--muted); }
+nav.controls ul { display: flex; flex-wrap: wrap; gap: 4px 16px; list-style: none; margin: 0; padding: 0; font-size: 14px; }
+.sr { position: absolute; width: 1px; height: 1px; margin: -1px; padding: 0; overflow: hidden; clip: rect(0 0 0 0); white-space: nowrap; border: 0; }
 .summary { display: flex; flex-wrap: wrap; gap: 12px; margin: 8px 0 4px; padding: 0; list-style: none; }
-.summary li { flex: 1 1 200px; border: 1px solid #c4cad1; border-left: 6px solid #1c2127; padding: 10px 14px; }
-.summary li.warn { border-left-color: #a4500f; }
+.summary li { flex: 1 1 200px; border: 1px solid var(--rule-strong); border-left: 6px solid var(--ink); padding: 10px 14px; }
+.summary li.warn { border-left-color: var(--warn); }
 .summary .big { display: block; font-size: 24px; font-weight: 700; line-height: 1.2; }
-.summary .small { color: #4a525c; font-size: 13px; }
+.summary .small { color: var(--muted); font-size: 13px; }
 figure { margin: 8px 0 0; }
-figcaption { color: #4a525c; font-size: 13px; margin-top: 4px; }
-svg { width: 100%; height: auto; display: block; }
+figcaption { color: var(--muted); font-size: 13px; margin-top: 4px; }
+figure h3 { margin-top: 12px; }
+.frame { overflow-x: auto; max-width: 100%; }
+svg { display: block; }
+svg.icon { display: inline-block; width: 28px; height: 16px; vertical-align: middle; }
 svg text { font-family: inherit; }
-table { border-collapse: collapse; width: 100%; font-size: 14px; }
-th, td { text-align: left; padding: 6px 10px; border-bottom: 1px solid #d5d9de; vertical-align: top; }
-th { border-bottom: 2px solid #1c2127; font-weight: 600; }
-tbody tr:nth-child(even) { background: #f3f5f7; }
+svg .muted { fill: var(--muted); }
+svg .ink { fill: var(--ink); }
+svg .on-bar { fill: #ffffff; }
+svg .rule { stroke: var(--rule); stroke-width: 1; }
+svg .guide { stroke: var(--guide); stroke-width: 1; }
+svg .ink-line { stroke: var(--ink); }
+svg .muted-line { stroke: var(--muted); }
+svg .today { stroke: var(--today); stroke-width: 2; stroke-dasharray: 5 3; }
+svg use.grid { color: var(--rule); } svg use.today { color: var(--today); stroke: none; }
+svg .today-label { fill: var(--today); }
+svg .due { fill: var(--bg); }
+svg .over { fill: var(--today); }
+svg .shade-back { fill: var(--shade-back); } svg .shade-stripe { fill: var(--shade-stripe); }
+svg .shade-back-light { fill: var(--shade-back-light); } svg .shade-stripe-light { fill: var(--shade-stripe-light); }
+.cal { margin-top: 8px; border: 1px solid var(--rule); }
+.cal-inner { width: max-content; min-width: 100%; }
+.cal-row { display: flex; height: 34px; }
+.cal-axis { height: 44px; }
+.cal-row .name { flex: none; width: 210px; position: sticky; left: 0; z-index: 1; background: var(--bg);
+  padding: 1px 8px 0 10px; border-left: 5px solid var(--pool, transparent); border-right: 1px solid var(--rule); line-height: 16px; }
+.cal-axis .name { border-left-color: transparent; }
+.cal-row .name code, .cal-row .name span { display: block; white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
+.cal-row .name code { font-size: 12px; }
+.cal-row .name span { font-size: 11px; color: var(--muted); }
+.cal-row.out .name, .cal-row.closed .name { font-style: italic; }
+.cal-head { background: var(--band); border-top: 1px solid var(--rule-strong); border-left: 5px solid var(--pool, transparent); font-size: 13px; font-weight: 700; line-height: 1.35; }
+.cal-head span { position: sticky; left: 0; display: inline-block; max-width: min(1030px, calc(100vw - 48px)); padding: 5px 10px; }
+.pool-lists { display: none; }
+.pool-lists ul.tests { list-style: none; margin: 0 0 8px; padding: 0; }
+.pool-lists li { padding: 6px 0 6px 10px; border-bottom: 1px solid var(--rule); }
+.pool-lists .small, .pool-lists .muted { color: var(--muted); }
+.pool-lists .small { font-size: 13px; }
+table { border-collapse: collapse; width: 100%; font-size: 14px; overflow-wrap: normal; }
+th, td { text-align: left; padding: 6px 10px; border-bottom: 1px solid var(--rule); vertical-align: top; }
+th { border-bottom: 2px solid var(--ink); font-weight: 600; }
+tbody tr:nth-child(even) { background: var(--band); }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.date { font-variant-numeric: tabular-nums; }
-td.date .nw, td.date strong { white-space: nowrap; }
+.nw, td.date strong, td code { white-space: nowrap; }
+td.date:not(:has(br)) { white-space: nowrap; }
 td.test { min-width: 13em; }
-td .small { color: #4a525c; font-size: 13px; }
-td.muted { color: #4a525c; }
+td .small { color: var(--muted); font-size: 13px; }
+td.muted { color: var(--muted); }
 .swatch { display: inline-block; width: 10px; height: 10px; margin-right: 6px; vertical-align: baseline; }
 ul.reasons li { margin-bottom: 6px; }
-ul.legend { display: flex; flex-wrap: wrap; gap: 6px 18px; list-style: none; padding: 0; margin: 6px 0 0; color: #4a525c; font-size: 13px; }
-ul.legend .icon { display: inline-block; vertical-align: middle; }
-p.note { color: #4a525c; font-size: 13px; }
+ul.legend { display: flex; flex-wrap: wrap; gap: 6px 18px; list-style: none; padding: 0; margin: 8px 0 0; color: var(--muted); font-size: 13px; }
+p.note { color: var(--muted); font-size: 13px; }
 code { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; font-size: 0.92em; }
-footer { margin-top: 36px; color: #4a525c; font-size: 13px; border-top: 1px solid #d5d9de; padding-top: 8px; }
+footer { margin-top: 36px; color: var(--muted); font-size: 13px; border-top: 1px solid var(--rule); padding-top: 8px; }
+@media (max-width: 1199px) {
+  main { padding: 20px 20px 40px; }
+}
+@media (max-width: 599px) {
+  main { padding: 14px 12px 32px; }
+  h1 { font-size: 22px; }
+  h2 { font-size: 18px; }
+  .summary li { flex-basis: 100%; }
+  .pool-lists { display: block; }
+  .cal-row .name { width: 132px; padding-left: 6px; }
+  .cal-head span { max-width: calc(100vw - 40px); }
+  td.test { min-width: 10em; }
+  .frame > table { min-width: 640px; }
+}
+@page { size: landscape; margin: 10mm; }
 @media print {
-  body { font-size: 10.5pt; }
+  :root { color-scheme: light; --bg: #ffffff; --ink: #000000; --muted: #3d444c; --rule: #c9ced4; --rule-strong: #aab2ba;
+    --band: #f1f3f5; --guide: #e3e6ea; --today: #b3261e; --warn: #a4500f;
+    --shade-back: #eceff2; --shade-stripe: #b9c0c8; --shade-back-light: #f6f7f9; --shade-stripe-light: #c9ced5; }
+  * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  body { font-size: 10pt; }
   main { max-width: none; padding: 0; }
-  h2 { break-after: avoid; }
-  figure, .summary li, tr { break-inside: avoid; }
+  nav.controls, .pool-lists { display: none; }
+  .frame { overflow: visible; }
+  .cal { border: 0; }
+  .cal-inner { width: auto; min-width: 0; }
+  .cal-row .name { position: static; width: 150px; }
+  .cal-head span { position: static; max-width: none; }
+  .cal-pool + .cal-pool { break-before: page; }
+  .cal-row, .cal-head, svg, figure, .summary li, tr { break-inside: avoid; }
+  .cal-head, h2, h3 { break-after: avoid; }
+  svg.chart { width: 100%; height: auto; }
+  section.calendar, section.traffic, section.tests, section.cautions { break-before: page; }
   table { font-size: 9pt; }
   td.test { min-width: 11em; }
-  * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+  td code { white-space: normal; overflow-wrap: anywhere; }
 }
 "#;
 /// A run's facts as the report words them, shared by a bar's tooltip and
@@ -204,7 +281,10 @@ fn numbers(plan: &Plan, s: &mut String) {
     );
     let mut columns = vec![Column::Code];
     columns.extend([Column::Text; TABLE_HEADER.len() - 1]);
-    s.push_str(&Html.table(&TABLE_HEADER, &columns, &rows));
+    s.push_str(&framed(
+        "The numbers behind each test",
+        &Html.table(&TABLE_HEADER, &columns, &rows),
+    ));
     let notes: Vec<String> = plan
         .experiments
         .iter()
@@ -241,6 +321,42 @@ fn how_made(plan: &Plan, s: &mut String) {
     );
 }
 
+/// A wide block (a table or a chart) in a frame of its own that scrolls
+/// sideways where the page is narrower, so the page itself never does;
+/// the frame takes the keyboard's focus so it can be scrolled without a
+/// mouse.
+pub(super) fn framed(label: &str, inner: &str) -> String {
+    format!(
+        r#"<div class="frame" role="region" tabindex="0" aria-label="{}; it scrolls sideways">{inner}</div>"#,
+        esc(label)
+    )
+}
+
+/// The links to the report's sections, for the keyboard and for finding
+/// one's place (left off paper).
+fn nav(plan: &Plan, s: &mut String) {
+    let mut links: Vec<(&str, &str)> = Vec::new();
+    if plan.changes.is_some() {
+        links.push(("changes", "What moved"));
+    }
+    links.extend([
+        ("summary", "Summary"),
+        ("calendar", "Calendar"),
+        ("traffic", "Traffic"),
+        ("tests", "Tests"),
+        ("not-fit", "Not fitting"),
+        ("assumptions", "Cautions"),
+    ]);
+    let _ = write!(
+        s,
+        r#"<nav class="controls" aria-label="Sections of the report"><ul>"#
+    );
+    for (id, words) in links {
+        let _ = write!(s, "<li><a href=\"#{id}\">{words}</a></li>");
+    }
+    let _ = writeln!(s, "</ul></nav>");
+}
+
 impl Renderer for Html {
     fn render(&self, plan: &Plan, _opts: &RenderOptions) -> Result<Vec<u8>, RenderError> {
         let mut s = String::new();
@@ -266,6 +382,7 @@ impl Renderer for Html {
             long_date(plan.window.end),
             long_date(plan.today)
         );
+        nav(plan, &mut s);
         // A re-plan's changes and advice, before the summary.
         for (anchor, title, lines) in crate::render::common::news(plan) {
             let _ = writeln!(
@@ -329,11 +446,14 @@ impl Renderer for Html {
         traffic(plan, &mut s);
 
         // Calendar.
-        let _ = writeln!(s, r#"<section><h2 id="calendar">Calendar</h2><figure>"#);
-        svg::calendar(plan, &mut s);
         let _ = writeln!(
             s,
-            "<figcaption>One row per test: its id, its title under it, and its run. Hover a bar for its numbers.</figcaption></figure>"
+            r#"<section class="calendar"><h2 id="calendar">Calendar</h2>"#
+        );
+        calendar::calendar(plan, &mut s);
+        let _ = writeln!(
+            s,
+            r#"<p class="note">One row per test: its id, its title under it, and its run, labelled with its share and result date; a bar's tooltip and the table of tests give its numbers.</p>"#
         );
         svg::legend(&mut s);
         let _ = writeln!(s, "</section>");
@@ -341,11 +461,18 @@ impl Renderer for Html {
         // Pool use.
         let _ = writeln!(
             s,
-            r#"<section><h2 id="traffic">Traffic in use per pool</h2>"#
+            r#"<section class="traffic"><h2 id="traffic">Traffic in use per pool</h2>"#
         );
         for (i, p) in plan.pools.iter().enumerate() {
-            let _ = writeln!(s, "<figure>");
+            let _ = writeln!(
+                s,
+                r#"<figure><h3><span class="swatch" style="background:{}"></span>{}</h3><div class="frame" role="region" tabindex="0" aria-label="{}: traffic in use; it scrolls sideways">"#,
+                pool_fill(i),
+                esc(&p.label),
+                esc(&p.label)
+            );
             svg::pool_chart(plan, i, p, &mut s);
+            let _ = writeln!(s, "</div>");
             let caption = if is_split(p) {
                 format!(
                     "{}: each day's bar is the sum of the shares of the tests running; the dashed line is the whole pool (100%).",
@@ -376,7 +503,7 @@ impl Renderer for Html {
         forecast::section(plan, &mut s);
 
         // Table.
-        let _ = writeln!(s, r#"<section><h2 id="tests">Tests</h2>"#);
+        let _ = writeln!(s, r#"<section class="tests"><h2 id="tests">Tests</h2>"#);
         table::tests(plan, &mut s);
         let _ = writeln!(s, "</section>");
         numbers(plan, &mut s);
@@ -413,16 +540,16 @@ impl Renderer for Html {
         }
         let _ = writeln!(s, "</section>");
 
-        // Assumptions.
+        how_made(plan, &mut s);
+        // Assumptions and cautions, last (on paper too).
         let _ = writeln!(
             s,
-            r#"<section><h2 id="assumptions">Assumptions and cautions</h2><ul>{}</ul></section>"#,
+            r#"<section class="cautions"><h2 id="assumptions">Assumptions and cautions</h2><ul>{}</ul></section>"#,
             cautions(plan)
                 .iter()
                 .map(|c| format!("<li>{}</li>", esc(c)))
                 .collect::<String>()
         );
-        how_made(plan, &mut s);
 
         let _ = writeln!(
             s,

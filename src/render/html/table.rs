@@ -21,7 +21,7 @@ fn range_line(e: &crate::plan::PlannedExperiment) -> String {
 pub(super) fn tests(plan: &Plan, s: &mut String) {
     let _ = writeln!(
         s,
-        r#"<table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
+        r#"<div class="frame" role="region" tabindex="0" aria-label="Table of tests; it scrolls sideways"><table><thead><tr><th>Test</th><th>Pool</th><th class="num">Share</th><th>Runs</th><th>Result due</th><th class="num">Units needed</th><th class="num">Units expected</th><th>Owner</th></tr></thead><tbody>"#
     );
     for e in &plan.experiments {
         let pool_index = plan
@@ -37,7 +37,8 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
         };
         let _ = write!(
             s,
-            r#"<tr><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
+            r#"<tr data-test="{}"><td class="test"><strong>{}</strong><br/><code>{}</code></td><td class="pool">{swatch}{}</td>"#,
+            esc(&e.id),
             esc(&e.title),
             esc(&e.id),
             esc(&pools_label(plan, e))
@@ -74,5 +75,5 @@ pub(super) fn tests(plan: &Plan, s: &mut String) {
         }
         let _ = writeln!(s, "<td>{}</td></tr>", esc(&e.owner));
     }
-    let _ = writeln!(s, "</tbody></table>");
+    let _ = writeln!(s, "</tbody></table></div>");
 }

@@ -46,7 +46,7 @@ fn paint(s: &str, sgr: &str, colour: bool) -> String {
 }
 
 /// Word-wraps `text` to `width` columns with `indent` before each line.
-fn wrap(text: &str, width: usize, indent: &str) -> String {
+pub(crate) fn wrap(text: &str, width: usize, indent: &str) -> String {
     let mut out = String::new();
     let mut line = String::new();
     for word in text.split_whitespace() {

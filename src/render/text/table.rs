@@ -7,83 +7,92 @@ use crate::render::common::{fit_table, is_split, out_word, percent, short_date, 
 use comfy_table::{Cell, CellAlignment, Color, ContentArrangement, Table};
 use unicode_width::UnicodeWidthStr;
 
-/// Which columns the experiment table shows, from fewest to most.
+/// A column of the experiment table, in the order the table shows them.
 #[derive(Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Debug)]
-enum Layout {
-    /// test, share, start, result due.
-    Narrow,
-    /// Adds the pool.
-    Compact,
-    /// Adds days and units needed.
-    Medium,
-    /// Adds the end day and the status.
-    Wide,
-    /// Adds the title.
-    Widest,
+enum Col {
+    Test,
+    Title,
+    Pool,
+    Share,
+    Start,
+    End,
+    Due,
+    Range,
+    Days,
+    Units,
+    Status,
 }
 
-impl Layout {
-    /// The richest layout worth trying at `width` columns.
-    fn for_width(width: usize) -> Layout {
-        match width {
-            0..=79 => Layout::Compact,
-            80..=119 => Layout::Medium,
-            120..=159 => Layout::Wide,
-            _ => Layout::Widest,
-        }
-    }
+/// The columns every table has, whatever its width.
+const ALWAYS: [Col; 4] = [Col::Test, Col::Share, Col::Start, Col::Due];
 
-    const ALL: [Layout; 5] = [
-        Layout::Widest,
-        Layout::Wide,
-        Layout::Medium,
-        Layout::Compact,
-        Layout::Narrow,
-    ];
-}
+/// The other columns, most wanted first: each is added while the table
+/// still fits, so a column is never shown while one above it is left out.
+/// The result range and the pool come before the end and status, and the
+/// title, which can be cut, comes last.
+const BY_PRIORITY: [Col; 6] = [
+    Col::Range,
+    Col::Pool,
+    Col::End,
+    Col::Status,
+    Col::Days,
+    Col::Units,
+];
 
-/// The experiment table at `width`: the richest layout (up to
-/// [`Layout::for_width`]) whose columns fit without wrapping a cell, so an
-/// id is never broken across lines while a column could be left out
-/// instead; the narrowest layout, wrapped to the width, when none fits.
+/// The experiment table at `width`: the columns [`ALWAYS`] shown, then as
+/// many of [`BY_PRIORITY`] as fit without wrapping a cell, so an id is
+/// never broken across lines while a column could be left out instead;
+/// then the titles, cut with `…` to the room left when that is enough to
+/// be worth a column. When even the first columns do not fit, they are
+/// wrapped to the width.
 pub(super) fn experiments(plan: &Plan, width: usize, colour: bool) -> Table {
-    let natural = |layout: Layout, title_room: usize| -> usize {
-        let t = table_for(plan, layout, title_room, None, false).to_string();
+    let natural = |cols: &[Col], title_room: usize| -> usize {
+        let t = table_for(plan, cols, title_room, None, false).to_string();
         t.lines().map(UnicodeWidthStr::width).max().unwrap_or(0)
     };
-    let most = Layout::for_width(width);
-    if most == Layout::Widest {
-        // Titles are long: they get the room the wide layout leaves, cut
-        // with `…`, when that is enough to be worth a column.
-        let room = width.saturating_sub(natural(Layout::Wide, 0) + 2);
-        if room >= MIN_TITLE_ROOM && natural(Layout::Widest, room) <= width {
-            return table_for(plan, Layout::Widest, room, Some(width), colour);
+    let ranges = plan.experiments.iter().any(|e| e.result_range.is_some());
+    let mut cols = ALWAYS.to_vec();
+    if natural(&cols, 0) > width {
+        return table_for(plan, &cols, 0, Some(width), colour);
+    }
+    for col in BY_PRIORITY {
+        if col == Col::Range && !ranges {
+            continue;
+        }
+        let mut more = cols.clone();
+        more.push(col);
+        more.sort();
+        if natural(&more, 0) > width {
+            break;
+        }
+        cols = more;
+    }
+    if cols.len() == ALWAYS.len() + BY_PRIORITY.len() - usize::from(!ranges) {
+        let room = width.saturating_sub(natural(&cols, 0) + 3);
+        let mut with_title = cols.clone();
+        with_title.push(Col::Title);
+        with_title.sort();
+        if room >= MIN_TITLE_ROOM && natural(&with_title, room) <= width {
+            return table_for(plan, &with_title, room, Some(width), colour);
         }
     }
-    for layout in Layout::ALL
-        .into_iter()
-        .filter(|&l| l <= most.min(Layout::Wide))
-    {
-        if natural(layout, 0) <= width {
-            return table_for(plan, layout, 0, Some(width), colour);
-        }
-    }
-    table_for(plan, Layout::Narrow, 0, Some(width), colour)
+    table_for(plan, &cols, 0, Some(width), colour)
 }
 
-/// Fewest columns worth giving the titles in the widest table.
+/// Fewest columns worth giving the titles.
 const MIN_TITLE_ROOM: usize = 16;
 
-/// The experiment table in `layout` (titles cut to `title_room` columns),
-/// wrapped to `width` when given and laid out at its natural width
-/// otherwise.
+/// The experiment table with the columns `cols` (in [`Col`] order; titles
+/// cut to `title_room` columns), wrapped to `width` when given and laid
+/// out at its natural width otherwise.
 fn table_for(
     plan: &Plan,
-    layout: Layout,
+    cols: &[Col],
     title_room: usize,
     width: Option<usize>,
     colour: bool,
 ) -> Table {
+    let has = |c: Col| cols.contains(&c);
     let mut t = Table::new();
     t.load_preset(TABLE_STYLE);
     fit_table(&mut t, width);
@@ -92,40 +101,32 @@ fn table_for(
     } else {
         t.force_no_tty();
     }
-    let mut header = vec!["test"];
-    if layout >= Layout::Widest {
-        header.push("title");
-    }
-    if layout >= Layout::Compact {
-        header.push("pool");
-    }
-    header.extend(["share", "start"]);
-    if layout >= Layout::Wide {
-        header.push("end");
-    }
-    header.push("result due");
-    // Only plans whose forecasts carry an error have ranges.
-    let ranges =
-        layout >= Layout::Compact && plan.experiments.iter().any(|e| e.result_range.is_some());
-    if ranges {
-        header.push("result due (P10–P90)");
-    }
-    if layout >= Layout::Medium {
-        header.extend(["days", "units needed"]);
-    }
-    if layout >= Layout::Wide {
-        header.push("status");
-    }
+    let header: Vec<&str> = cols
+        .iter()
+        .map(|c| match c {
+            Col::Test => "test",
+            Col::Title => "title",
+            Col::Pool => "pool",
+            Col::Share => "share",
+            Col::Start => "start",
+            Col::End => "end",
+            Col::Due => "result due",
+            Col::Range => "result due (P10–P90)",
+            Col::Days => "days",
+            Col::Units => "units needed",
+            Col::Status => "status",
+        })
+        .collect();
     t.set_header(header.iter().map(Cell::new));
     for e in &plan.experiments {
         let run = e.run;
         // A finished or cancelled test shows the days it ran (re-plans).
         let past = crate::render::common::past_run(e);
         let mut row = vec![Cell::new(&e.id)];
-        if layout >= Layout::Widest {
+        if has(Col::Title) {
             row.push(Cell::new(fit(&e.title, title_room)));
         }
-        if layout >= Layout::Compact {
+        if has(Col::Pool) {
             row.push(Cell::new(e.pools.join(", ")));
         }
         match run.as_ref().or(past.as_ref()) {
@@ -138,7 +139,7 @@ fn table_for(
                 };
                 row.push(Cell::new(share).set_alignment(CellAlignment::Right));
                 row.push(Cell::new(r.start));
-                if layout >= Layout::Wide {
+                if has(Col::End) {
                     row.push(Cell::new(r.end));
                 }
                 // A past run shows when it ended, not a result to come.
@@ -146,42 +147,40 @@ fn table_for(
                     Some(cell) => Cell::new(cell),
                     None => Cell::new(r.result_date),
                 });
-                if ranges {
+                if has(Col::Range) {
                     row.push(Cell::new(
                         e.result_range.as_ref().map_or(String::new(), range_cell),
                     ));
                 }
-                if layout >= Layout::Medium {
+                if has(Col::Days) {
                     row.push(Cell::new(r.days).set_alignment(CellAlignment::Right));
                 }
             }
             None => {
                 row.push(Cell::new("—").set_alignment(CellAlignment::Right));
-                let mut word = Cell::new(if layout >= Layout::Wide {
-                    "—"
-                } else {
-                    out_word(e)
-                });
-                if colour && layout < Layout::Wide {
+                // Without a status column, the status goes where the
+                // start would be.
+                let mut word = Cell::new(if has(Col::Status) { "—" } else { out_word(e) });
+                if colour && !has(Col::Status) {
                     word = word.fg(Color::Yellow);
                 }
                 row.push(word);
-                if layout >= Layout::Wide {
+                if has(Col::End) {
                     row.push(Cell::new(""));
                 }
                 row.push(Cell::new(""));
-                if ranges {
+                if has(Col::Range) {
                     row.push(Cell::new(""));
                 }
-                if layout >= Layout::Medium {
+                if has(Col::Days) {
                     row.push(Cell::new(""));
                 }
             }
         }
-        if layout >= Layout::Medium {
+        if has(Col::Units) {
             row.push(Cell::new(thousands(e.units_needed)).set_alignment(CellAlignment::Right));
         }
-        if layout >= Layout::Wide {
+        if has(Col::Status) {
             let mut status = Cell::new(if run.is_some() {
                 e.status.name()
             } else {
@@ -338,6 +337,60 @@ mod tests {
                 "{table}"
             );
         }
+    }
+
+    #[test]
+    fn columns_come_by_priority_range_and_pool_before_the_title() {
+        use crate::plan::ResultRange;
+        let mut plan = fixture::plan();
+        for e in plan.experiments.iter_mut().filter(|e| e.run.is_some()) {
+            let due = e.run.unwrap().result_date;
+            e.result_range = Some(ResultRange {
+                p10: Some(due),
+                p50: Some(due),
+                p90: Some(due + chrono::Duration::days(7)),
+                on_time: 0.9,
+                on_plan: None,
+            });
+        }
+        let header = |width: u16| {
+            let out = String::from_utf8(
+                Text.render(
+                    &plan,
+                    &RenderOptions {
+                        width: Some(width),
+                        colour: false,
+                    },
+                )
+                .unwrap(),
+            )
+            .unwrap();
+            out.lines()
+                .find(|l| l.starts_with(" test "))
+                .unwrap()
+                .to_string()
+        };
+        let mut seen_range_without_title = false;
+        for width in (60..=220).step_by(10) {
+            let h = header(width);
+            let has = |c: &str| h.split("  ").any(|cell| cell.trim() == c);
+            // A lower column never shows while a higher one is left out.
+            let order = [
+                "result due (P10–P90)",
+                "pool",
+                "end",
+                "status",
+                "days",
+                "units needed",
+                "title",
+            ];
+            let shown: Vec<bool> = order.iter().map(|c| has(c)).collect();
+            assert!(shown.windows(2).all(|w| w[0] || !w[1]), "{width}: {h}");
+            seen_range_without_title |= shown[0] && shown[1] && !shown[6];
+        }
+        assert!(seen_range_without_title);
+        assert!(header(120).contains("result due (P10–P90)"));
+        assert!(header(120).contains("pool"));
     }
 
     #[test]
