@@ -41,6 +41,7 @@ mod planner;
 pub mod portfolio;
 pub mod render;
 pub mod replan;
+pub mod scenario;
 pub mod schedule;
 pub mod share;
 pub mod sizing;

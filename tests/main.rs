@@ -16,6 +16,7 @@ mod ranges;
 mod render;
 mod replan;
 mod safe_files;
+mod scenario;
 mod size_cli;
 mod sizing_properties;
 mod sizing_published;
