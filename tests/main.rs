@@ -3,6 +3,7 @@
 
 mod util;
 
+mod board;
 mod calendar;
 mod check;
 mod commands;
