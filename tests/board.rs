@@ -111,7 +111,7 @@ impl Board {
 
     /// Stops it with SIGINT; its exit code and stderr.
     fn stop(&mut self) -> (Option<i32>, String) {
-        let mut child = self.child.take().unwrap();
+        let child = self.child.take().unwrap();
         Command::new("kill")
             .args(["-INT", &child.id().to_string()])
             .status()
@@ -146,10 +146,7 @@ impl Drop for Board {
 
 fn dechunk(mut b: &[u8]) -> Vec<u8> {
     let mut out = Vec::new();
-    loop {
-        let Some(end) = b.windows(2).position(|w| w == b"\r\n") else {
-            break;
-        };
+    while let Some(end) = b.windows(2).position(|w| w == b"\r\n") {
         let n = usize::from_str_radix(String::from_utf8_lossy(&b[..end]).trim(), 16).unwrap_or(0);
         if n == 0 {
             break;
