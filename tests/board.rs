@@ -180,7 +180,7 @@ fn requests_without_the_token_or_from_elsewhere_are_refused() {
         (r.0, v["error"].as_str().unwrap_or("").to_string())
     };
     // No token, a wrong one, the page without its query.
-    let (s, e) = error(b.raw("GET", "/api/state", &[host.clone()], b""));
+    let (s, e) = error(b.raw("GET", "/api/state", std::slice::from_ref(&host), b""));
     assert_eq!(s, 403);
     assert!(e.contains("token is missing or wrong"), "{e}");
     let wrong = format!("X-Sluice-Token: {}", "0".repeat(32));
@@ -188,7 +188,7 @@ fn requests_without_the_token_or_from_elsewhere_are_refused() {
         b.raw("GET", "/api/state", &[host.clone(), wrong], b"").0,
         403
     );
-    assert_eq!(b.raw("GET", "/", &[host.clone()], b"").0, 403);
+    assert_eq!(b.raw("GET", "/", std::slice::from_ref(&host), b"").0, 403);
     // DNS rebinding: the right token under another name.
     let (s, e) = error(b.raw(
         "GET",
