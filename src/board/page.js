@@ -172,6 +172,12 @@
     }
   }
 
+  // The report laid out in the board's column: its page width and
+  // margins given up, wide tables scrolled inside their own box.
+  const FIT = ".report-body main { max-width: none; padding: 8px 12px 40px; }" +
+    ".report-body table { display: block; max-width: 100%; overflow-x: auto; }" +
+    ".report-body svg { max-width: 100%; }";
+
   function drawReport(html) {
     const host = $("report");
     const root = host.shadowRoot || host.attachShadow({ mode: "open" });
@@ -180,7 +186,7 @@
     for (const s of doc.querySelectorAll("style")) nodes.push(document.importNode(s, true));
     const body = el("div", { class: "report-body" });
     for (const n of Array.from(doc.body.childNodes)) body.appendChild(document.importNode(n, true));
-    nodes.push(body);
+    nodes.push(el("style", { text: FIT }), body);
     root.replaceChildren(...nodes);
   }
 
@@ -196,7 +202,7 @@
     $("summary").textContent = v.summary;
     $("moved-headline").textContent = v.moved.headline;
     $("moved-list").replaceChildren(...v.moved.rows
-      .filter((r) => r[7] && r[7] !== "unchanged")
+      .filter((r) => r[7] && r[7] !== "unchanged" && r[7] !== "still out")
       .map((r) => el("li", { text: r[0] + ": " + r[7] })));
     $("steps").replaceChildren(...v.steps.map((s) => el("li", { text: s })));
     $("no-steps").hidden = v.steps.length > 0;
