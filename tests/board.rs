@@ -23,9 +23,16 @@ struct Board {
 
 impl Board {
     fn start(portfolio: &str) -> Board {
+        Board::start_with(&[portfolio])
+    }
+
+    /// `sluice board ARGS --no-open --port 0`.
+    fn start_with(args: &[&str]) -> Board {
         let mut child = Command::new(env!("CARGO_BIN_EXE_sluice"))
             .current_dir(env!("CARGO_MANIFEST_DIR"))
-            .args(["board", portfolio, "--no-open", "--port", "0"])
+            .arg("board")
+            .args(args)
+            .args(["--no-open", "--port", "0"])
             .stdout(Stdio::piped())
             .stderr(Stdio::piped())
             .spawn()
@@ -415,4 +422,64 @@ fn a_port_in_use_is_an_error_that_says_what_to_do() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("the planning board cannot start"), "{err}");
     assert!(err.contains("--port 0"), "{err}");
+}
+
+#[test]
+fn a_board_from_progress_re_plans_and_the_cli_agrees() {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("board");
+    std::fs::create_dir_all(&dir).unwrap();
+    let progress = dir.join("progress.yaml");
+    std::fs::write(
+        &progress,
+        "experiments:\n  - {id: bigger-photos, state: running, started: 2027-01-04, share: 0.5, units: 20000}\n",
+    )
+    .unwrap();
+    let progress = progress.to_str().unwrap();
+    let b = Board::start_with(&[
+        &quickstart(),
+        "--progress",
+        progress,
+        "--today",
+        "2027-02-01",
+    ]);
+    let (_, v) = b.call("GET", "/api/state", "");
+    assert_eq!(v["replan"], true);
+    assert_eq!(v["today"], "2027-02-01");
+    assert_eq!(test(&v, "bigger-photos")["status"], "running");
+    let (s, v) = b.call(
+        "POST",
+        "/api/edit",
+        r#"{"test": "bigger-photos", "leave_out": true}"#,
+    );
+    assert_eq!(s, 200, "{v}");
+    let stopped = test(&v, "bigger-photos");
+    assert_eq!(stopped["status"], "cancelled");
+    assert_eq!(stopped["reason"], "cancelled: left out by the scenario");
+    let saved = dir.join("replan-scenario.yaml");
+    std::fs::write(&saved, b.text("/api/scenario")).unwrap();
+    let from_cli = cmd(&[
+        "replan",
+        &quickstart(),
+        "--progress",
+        progress,
+        "--today",
+        "2027-02-01",
+        "--scenario",
+        saved.to_str().unwrap(),
+        "--format",
+        "json",
+        "--no-timing",
+    ])
+    .stdout();
+    assert!(
+        b.text("/api/plan.json") == from_cli,
+        "the board's re-plan and the command line's differ"
+    );
+}
+
+#[test]
+fn progress_needs_today() {
+    let out =
+        cmd(&["board", &quickstart(), "--no-open", "--progress", "p.yaml"]).assert_exit_code(2);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--today"));
 }

@@ -136,13 +136,20 @@
     return el("div", { class: "editor" }, ...parts);
   }
 
+  // Text with `backticked` names shown as code, as the report shows them.
+  function worded(cls, text) {
+    const parts = text.split("`");
+    if (parts.length % 2 === 0) return el("span", { class: cls, text });
+    return el("span", { class: cls }, ...parts.map((p, i) => (i % 2 ? el("code", { text: p }) : p)));
+  }
+
   function testItem(t, open) {
     const cls = t.left_out ? "left" : t.start ? "" : "out";
     const sub = [t.title, t.owner, t.pools.join(", ")].filter(Boolean).join(" · ");
     const summary = el("summary", { "data-key": t.id + ":summary" },
       el("span", { class: "id", text: t.id }), when(t),
       el("span", { class: "sub", text: sub }),
-      !t.start && t.reason ? el("span", { class: "why", text: t.reason }) : null,
+      !t.start && t.reason ? worded("why", t.reason) : null,
       !t.start && t.detectable ? el("span", { class: "could", text: t.detectable }) : null);
     const d = el("details", { open: open }, summary, testEditor(t));
     return el("li", { class: cls, "data-test-id": t.id, "data-status": t.status }, d);
