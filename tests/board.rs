@@ -483,3 +483,48 @@ fn progress_needs_today() {
         cmd(&["board", &quickstart(), "--no-open", "--progress", "p.yaml"]).assert_exit_code(2);
     assert!(String::from_utf8_lossy(&out.stderr).contains("--today"));
 }
+
+#[test]
+fn edits_sent_at_once_all_apply_and_stale_plans_are_dropped() {
+    let b = std::sync::Arc::new(Board::start(&quickstart()));
+    let edits = [
+        r#"{"test": "bigger-photos", "priority": 2}"#,
+        r#"{"test": "reviews-first", "priority": 3}"#,
+        r#"{"test": "delivery-dates", "priority": 4}"#,
+        r#"{"pool": "checkout", "scale": 0.9}"#,
+    ];
+    let answers: Vec<Value> = std::thread::scope(|s| {
+        let handles: Vec<_> = edits
+            .iter()
+            .map(|e| {
+                let b = b.clone();
+                s.spawn(move || {
+                    let (status, v) = b.call("POST", "/api/edit", e);
+                    assert_eq!(status, 200, "{v}");
+                    v
+                })
+            })
+            .collect();
+        handles.into_iter().map(|h| h.join().unwrap()).collect()
+    });
+    // Every answer is either the plan of its own state or says a later
+    // state replaced it; no two full answers share a version.
+    let mut versions = Vec::new();
+    for a in &answers {
+        if a["superseded"] == true {
+            assert!(a["version"].as_u64() < a["latest"].as_u64(), "{a}");
+        } else {
+            versions.push(a["version"].as_u64().unwrap());
+        }
+    }
+    let count = versions.len();
+    versions.sort_unstable();
+    versions.dedup();
+    assert_eq!(versions.len(), count);
+    // All four applied, each once.
+    let (_, v) = b.call("GET", "/api/state", "");
+    assert_eq!(v["version"], 4);
+    assert_eq!(v["steps"].as_array().unwrap().len(), 4);
+    assert_eq!(test(&v, "delivery-dates")["priority"], 4.0);
+    assert_eq!(test(&v, "bigger-photos")["priority"], 2.0);
+}
