@@ -14,7 +14,11 @@
 #      from the days since it; a running test whose arms came in 53:47
 #      on a 1:1 design is flagged as a sample-ratio mismatch; and what
 #      moved since the first plan;
-#   6. a what-if on top: product pages lose another 30% from today (--scale).
+#   6. a what-if on top: product pages lose another 30% from today (--scale);
+#   7. the planning meeting on the board (sluice board), scripted: it drops
+#      a test, watches another result come earlier, scales product pages
+#      to 0.7, pins a start, takes one change back, saves the scenario, and
+#      `sluice plan --scenario` plans that file byte for byte the same.
 #
 # Every output goes to demo/out/ (git-ignored), made afresh on each run.
 # Runs from any folder; needs cargo and python3 (standard library only).
@@ -118,6 +122,56 @@ PY
 
 heading "6. what if product pages lose another 30% from today: --scale $drop"
 "${replan[@]}" --scale "$drop" | tee "$out/whatif.txt"
+
+heading "7. the planning meeting on the board (sluice board), driven over its API"
+"$sluice" board "$portfolio" --no-open --port 0 >"$out/board.log" 2>&1 &
+board_pid=$!
+trap 'kill -INT "$board_pid" 2>/dev/null || true' EXIT
+for _ in $(seq 1 100); do
+    grep -q '^sluice board: http' "$out/board.log" 2>/dev/null && break
+    sleep 0.1
+done
+url="$(sed -n 's/^sluice board: //p' "$out/board.log" | head -1)"
+python3 - "$url" "$out" <<'PY'
+import json, sys, urllib.request
+url, out = sys.argv[1], sys.argv[2]
+base, token = url.split("/?token=")
+def call(method, path, body=None):
+    data = None if body is None else json.dumps(body).encode()
+    req = urllib.request.Request(base + path, data=data, method=method,
+                                 headers={"X-Sluice-Token": token, "Content-Type": "application/json"})
+    with urllib.request.urlopen(req) as r:
+        raw = r.read()
+    return raw if path.endswith((".json", "scenario")) else json.loads(raw)
+def dates(v):
+    return {t["id"]: t["result_date"] for t in v["tests"]}
+def say(v, what):
+    print(f"- {what}: {v['summary']} {v['moved']['headline']}")
+start = call("GET", "/api/state")
+print(f"- the portfolio as written: {start['summary']}")
+v = call("POST", "/api/edit", {"test": "home-static-hero", "leave_out": True})
+say(v, "drop the hero test")
+earlier = [i for i, d in dates(v).items() if d and dates(start)[i] and d < dates(start)[i]]
+if not earlier:
+    sys.exit("walkthrough: dropping a test moved no result earlier")
+print(f"  earlier now: {', '.join(earlier)}")
+say(call("POST", "/api/edit", {"pool": "product", "scale": 0.7, "from": "2027-02-01"}),
+    "what if product pages lose 30% from February")
+say(call("POST", "/api/edit", {"test": "app-style-quiz", "start": "2027-02-01"}),
+    "the app team wants the style quiz to start on 1 February")
+say(call("POST", "/api/undo"), "second thoughts on the pin (undo)")
+say(call("POST", "/api/redo"), "the pin stays after all (redo)")
+open(f"{out}/meeting.yaml", "wb").write(call("GET", "/api/scenario"))
+open(f"{out}/meeting-board.json", "wb").write(call("GET", "/api/plan.json"))
+print(f"- saved the meeting as {out}/meeting.yaml")
+PY
+kill -INT "$board_pid"
+wait "$board_pid" || true
+trap - EXIT
+cat "$out/meeting.yaml"
+"$sluice" plan "$portfolio" --scenario "$out/meeting.yaml" --format json --no-timing --out "$out/meeting-cli.json"
+cmp "$out/meeting-board.json" "$out/meeting-cli.json"
+echo "sluice plan --scenario $out/meeting.yaml gives the board's plan byte for byte"
 
 written=$(cd "$out" && ls | tr '\n' ' ')
 heading "done"

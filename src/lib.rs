@@ -29,6 +29,7 @@
 
 #![warn(missing_docs)]
 
+pub mod board;
 pub mod check;
 pub(crate) mod cli;
 pub mod day;
@@ -41,6 +42,7 @@ mod planner;
 pub mod portfolio;
 pub mod render;
 pub mod replan;
+pub mod scenario;
 pub mod schedule;
 pub mod share;
 pub mod sizing;

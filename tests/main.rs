@@ -3,6 +3,7 @@
 
 mod util;
 
+mod board;
 mod calendar;
 mod check;
 mod commands;
@@ -16,6 +17,7 @@ mod ranges;
 mod render;
 mod replan;
 mod safe_files;
+mod scenario;
 mod size_cli;
 mod sizing_properties;
 mod sizing_published;

@@ -79,13 +79,20 @@ pub(crate) enum Error {
     Stdout { io_error: std::io::Error },
     /// `forecast --pool` names a pool the portfolio does not define.
     UnknownPool { id: String, defined: Vec<String> },
+    /// The planning board cannot start (its port is taken, no token).
+    Board {
+        error: crate::board::server::StartError,
+    },
 }
 
 impl Error {
     /// The exit code this failure ends the process with.
     pub(crate) fn exit_code(&self) -> u8 {
         match self {
-            Error::Output { .. } | Error::Json { .. } | Error::Stdout { .. } => EXIT_FAILURE,
+            Error::Output { .. }
+            | Error::Json { .. }
+            | Error::Stdout { .. }
+            | Error::Board { .. } => EXIT_FAILURE,
             Error::Load { .. }
             | Error::TimeLimit { .. }
             | Error::UnknownBackend { .. }
@@ -153,6 +160,10 @@ impl fmt::Display for Error {
                     crate::diagnostic::list(&ranked)
                 )
             }
+            Error::Board { error } => write!(
+                f,
+                "the planning board cannot start: {error}; try another `--port`, or `--port 0` for a free one"
+            ),
             Error::TimeLimit { seconds } => write!(
                 f,
                 "`--time-limit` must be a positive number of seconds, not {seconds}"

@@ -3,6 +3,7 @@
 //! no statistics or scheduling logic of their own. One module per command;
 //! [`error`] words every failure and picks its exit code.
 
+mod board;
 mod check;
 mod detect;
 mod error;
@@ -46,6 +47,8 @@ pub enum Command {
     Plan(plan::PlanArgs),
     /// Plan again mid-quarter around the running tests, and show what moved
     Replan(replan::ReplanArgs),
+    /// Open the planning board: a local page where a meeting changes the queue and watches it re-plan
+    Board(board::BoardArgs),
     /// Show each pool's traffic model: fitted from its history, held-out error, a sparkline
     Forecast(forecast::ForecastArgs),
     /// Print a shell completion script, e.g. `sluice completions bash`
@@ -118,6 +121,7 @@ pub fn run(cli: Cli) -> Result<Vec<u8>, Error> {
         Command::Plan(args) => plan::run(&args),
         Command::Replan(args) => replan::run(&args),
         Command::Forecast(args) => forecast::run(&args),
+        Command::Board(args) => board::run(&args),
         Command::Completions { shell } => Ok(completions(shell)),
         Command::Man => man(),
     }

@@ -10,6 +10,7 @@ use crate::plan::Plan;
 use crate::portfolio;
 use crate::render::{self, Format, RenderOptions};
 use crate::replan::{self, ScaleArg};
+use crate::scenario;
 use crate::schedule::{self, Backend, PlanRequest};
 use chrono::NaiveDate;
 use clap::Args;
@@ -102,7 +103,8 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, inputs: &[&Path]) -> Result<Vec<u8
     sluice plan portfolios/demo.yaml --format html --out plan.html\n  \
     sluice plan portfolios/demo.yaml --format ics --out results.ics\n  \
     sluice plan portfolios/demo.yaml --format json --no-timing --out plan.json\n  \
-    sluice plan portfolios/demo.yaml --scale product=0.8 --scale search=0.9@2027-02-01\n\n\
+    sluice plan portfolios/demo.yaml --scale product=0.8 --scale search=0.9@2027-02-01\n  \
+    sluice plan portfolios/demo.yaml --scenario demo/meeting.yaml\n\n\
     --scale multiplies a pool's forecast from a day on (the window's first day \
     when none is given): a what-if before the quarter starts. \
     The search runs a fixed amount of work, so the same file gives the same \
@@ -116,10 +118,24 @@ pub struct PlanArgs {
     /// A traffic what-if, repeatable: POOL=FACTOR[@FROM], e.g. product=0.8@2027-02-01
     #[arg(long, value_name = "POOL=FACTOR[@DATE]")]
     pub scale: Vec<ScaleArg>,
+    /// A scenario: edits applied to the portfolio before planning (docs/scenario.md)
+    #[arg(long, value_name = "FILE")]
+    pub scenario: Option<PathBuf>,
     #[command(flatten)]
     pub output: OutputArgs,
     #[command(flatten)]
     pub solver: SolverArgs,
+}
+
+/// The edits of `--scenario`, checked against `portfolio` (none without it).
+pub fn scenario_edits(
+    path: Option<&Path>,
+    portfolio: &portfolio::Portfolio,
+) -> Result<Vec<scenario::Edit>, Error> {
+    match path {
+        Some(path) => Ok(scenario::load(path, portfolio)?),
+        None => Ok(Vec::new()),
+    }
 }
 
 /// `sluice plan`.
@@ -141,6 +157,11 @@ pub fn run(a: &PlanArgs) -> Result<Vec<u8>, Error> {
     } else {
         replan::with_scales(&p, &a.scale, a.today.unwrap_or(p.window.start))?
     };
-    let plan = schedule::plan(&p, &request);
-    emit(plan, &a.output, &[&a.file])
+    let edits = scenario_edits(a.scenario.as_deref(), &p)?;
+    let applied = scenario::Applied::new(&p, &request, &edits);
+    let mut plan = schedule::plan(&applied.portfolio, &applied.request);
+    applied.finish(&mut plan);
+    let mut inputs = vec![a.file.as_path()];
+    inputs.extend(a.scenario.as_deref());
+    emit(plan, &a.output, &inputs)
 }

@@ -7,6 +7,8 @@ use super::plan::{load_portfolio, OutputArgs, SolverArgs};
 use super::Error;
 use crate::plan::Plan;
 use crate::replan::{self, progress, ScaleArg};
+use crate::scenario;
+use crate::schedule::PlanRequest;
 use chrono::NaiveDate;
 use clap::Args;
 use std::path::PathBuf;
@@ -36,6 +38,9 @@ pub struct ReplanArgs {
     /// The earlier plan (`sluice plan --format json`) to compare against
     #[arg(long, value_name = "PLAN.json")]
     pub previous: Option<PathBuf>,
+    /// A scenario: edits applied to the portfolio before re-planning (docs/scenario.md)
+    #[arg(long, value_name = "FILE")]
+    pub scenario: Option<PathBuf>,
     /// Refuse (exit 2) when the progress file leaves out a test that the
     /// --previous plan ended before today, instead of warning
     #[arg(long, requires = "previous")]
@@ -78,14 +83,23 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     }
     let today = a.today;
     let portfolio = replan::with_scales(&portfolio, &a.scale, today)?;
-    let progress = progress::load_progress(&a.progress, &portfolio, a.today)?;
+    let edits = super::plan::scenario_edits(a.scenario.as_deref(), &portfolio)?;
+    let base = PlanRequest {
+        today: Some(today),
+        ..base
+    };
+    let applied = scenario::Applied::new(&portfolio, &base, &edits);
+    let portfolio = &applied.portfolio;
+    let progress = progress::load_progress(&a.progress, portfolio, a.today)?;
     for w in &progress.warnings {
         eprint!("{w}");
     }
+    let progress = applied.progress(&progress, today);
     let previous = a.previous.as_ref().map(read_previous).transpose()?;
-    let (mut plan, _request) = replan::replan(&portfolio, &progress, today, &base)?;
+    let (mut plan, _request) = replan::replan(portfolio, &progress, today, &applied.request)?;
+    applied.finish(&mut plan);
     if let Some(prev) = &previous {
-        plan.missing_progress = replan::missing_progress(prev, &progress, &portfolio, today);
+        plan.missing_progress = replan::missing_progress(prev, &progress, portfolio, today);
         if !plan.missing_progress.is_empty() {
             let e = Error::MissingProgress {
                 progress: a.progress.clone(),
@@ -106,5 +120,6 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
     }
     let mut inputs = vec![a.file.as_path(), a.progress.as_path()];
     inputs.extend(a.previous.as_deref());
+    inputs.extend(a.scenario.as_deref());
     super::plan::emit(plan, &a.output, &inputs)
 }

@@ -79,6 +79,28 @@ impl<'a> Checker<'a> {
         self.warnings.push(d);
     }
 
+    /// Whether a number is `ok`; when not, an error at `key` saying it
+    /// must be `expected`. `who` opens the message (`` test `x`: ``).
+    pub fn number(
+        &mut self,
+        key: &str,
+        who: &str,
+        value: f64,
+        ok: bool,
+        expected: &str,
+        hint: &str,
+    ) -> bool {
+        if !ok {
+            let leaf = key.rsplit('.').next().unwrap_or(key);
+            self.err(
+                key,
+                format!("{who}`{leaf}` is {}; it must be {expected}", show(value)),
+                hint,
+            );
+        }
+        ok
+    }
+
     /// The date at `key`, if given; an error when it is not YYYY-MM-DD.
     /// `name` opens the message (`` `as_of` ``), `example` ends the hint.
     pub fn date(
@@ -100,5 +122,20 @@ impl<'a> Checker<'a> {
                 None
             }
         }
+    }
+}
+
+/// A number as the user would write it.
+pub(crate) fn show(x: f64) -> String {
+    if x.is_nan() {
+        "not a number (NaN)".into()
+    } else if x.is_infinite() {
+        if x > 0.0 {
+            "infinite".into()
+        } else {
+            "minus infinite".into()
+        }
+    } else {
+        format!("{x}")
     }
 }

@@ -21,4 +21,5 @@ pub(crate) use checker::Checker;
 pub(crate) use load::{from_serde, index_of, prepare, read_text, two_documents, unknown_keys};
 pub use load::{load, load_str, LoadError};
 pub use model::*;
+pub(crate) use validate::resize;
 pub use validate::DEFAULT_SHARE_LEVELS;

@@ -6,7 +6,7 @@
 //! problem; the model is returned only when there is none. Positions come
 //! from the [`PositionIndex`] by the key's path.
 
-use super::checker::Checker;
+use super::checker::{show, Checker};
 use super::model::*;
 use super::position::PositionIndex;
 use super::raw::*;
@@ -72,15 +72,7 @@ impl Ctx<'_> {
         expected: &str,
         hint: &str,
     ) -> bool {
-        if !ok {
-            let leaf = leaf(key);
-            self.err(
-                key,
-                format!("{who}`{leaf}` is {}; it must be {expected}", show(value)),
-                hint,
-            );
-        }
-        ok
+        self.ck.number(key, who, value, ok, expected, hint)
     }
 
     /// The date at `key`, if given and valid.
@@ -184,21 +176,6 @@ impl<'a> Names<'a> {
 
 fn leaf(key: &str) -> &str {
     key.rsplit('.').next().unwrap_or(key)
-}
-
-/// A number as the user would write it.
-fn show(x: f64) -> String {
-    if x.is_nan() {
-        "not a number (NaN)".into()
-    } else if x.is_infinite() {
-        if x > 0.0 {
-            "infinite".into()
-        } else {
-            "minus infinite".into()
-        }
-    } else {
-        format!("{x}")
-    }
 }
 
 fn whole(x: f64, lo: f64, hi: f64) -> bool {
@@ -1702,23 +1679,10 @@ fn size_metrics(
         } else {
             who.to_string()
         };
-        let fixed = match plan.role {
-            Role::Primary => size(&plan.design),
-            Role::Guardrail => noninferiority::size(&plan.design),
-            Role::Secondary => {
-                plans.push((keys, plan));
-                continue;
-            }
+        let Some(sized) = size_one(&plan, count, boundary) else {
+            plans.push((keys, plan));
+            continue;
         };
-        let sized = fixed.and_then(|n| {
-            // Looks inflate by the design the sample is sized with: a
-            // guardrail's one-sided equivalent.
-            let at = match plan.role {
-                Role::Guardrail => noninferiority::equivalent(&plan.design)?,
-                _ => plan.design,
-            };
-            with_looks(&at, n, count, boundary)
-        });
         match sized {
             Ok((n, looks)) => {
                 plan.need = Some(n);
@@ -1754,6 +1718,77 @@ fn size_metrics(
         out.push(plan);
     }
     (primary, Some(need), looks, out, driver)
+}
+
+/// One metric's need with `count` looks (the maximum sample) and the
+/// looks' design; `None` for a secondary metric, which is not sized.
+fn size_one(
+    plan: &MetricPlan,
+    count: u32,
+    boundary: Boundary,
+) -> Option<Result<(SampleSize, Option<Looks>), SizingError>> {
+    let fixed = match plan.role {
+        Role::Primary => size(&plan.design),
+        Role::Guardrail => noninferiority::size(&plan.design),
+        Role::Secondary => return None,
+    };
+    Some(fixed.and_then(|n| {
+        // Looks inflate by the design the sample is sized with: a
+        // guardrail's one-sided equivalent.
+        let at = match plan.role {
+            Role::Guardrail => noninferiority::equivalent(&plan.design)?,
+            _ => plan.design,
+        };
+        with_looks(&at, n, count, boundary)
+    }))
+}
+
+/// `ex` sized again with `effect` as its first primary metric's smallest
+/// effect worth detecting (a scenario's `mde` edit): every need, the
+/// looks, the driving metric and the secondaries' detectable effects
+/// follow, by the same rules as the file's own sizing. A test whose
+/// `sample_size` was given has no effect to change: it comes back as it
+/// was (the caller refuses such an edit).
+pub(crate) fn resize(ex: &Experiment, effect: Effect) -> Result<Experiment, SizingError> {
+    let mut out = ex.clone();
+    let (count, boundary) = match &ex.looks {
+        Some(l) => (l.design.information.len() as u32, l.boundary),
+        None => (1, Boundary::SpendingObrienFleming),
+    };
+    let first = out.metrics.iter().position(|m| m.role == Role::Primary);
+    let Some(first) = first.filter(|_| !ex.sample_size_given) else {
+        return Ok(out);
+    };
+    out.metrics[first].design.effect = effect;
+    out.design = out.metrics[first].design;
+    let mut best: Option<(SampleSize, Option<Looks>, String)> = None;
+    for plan in &mut out.metrics {
+        if let Some(sized) = size_one(plan, count, boundary) {
+            let (n, looks) = sized?;
+            plan.need = Some(n);
+            if best
+                .as_ref()
+                .is_none_or(|(b, _, _)| (n.total, n.control) > (b.total, b.control))
+            {
+                best = Some((n, looks, plan.name.clone()));
+            }
+        }
+    }
+    let Some((need, looks, driver)) = best else {
+        return Ok(out);
+    };
+    for plan in &mut out.metrics {
+        if plan.role == Role::Secondary {
+            plan.detectable = Some(sizing::minimum_detectable_effect(
+                &plan.design,
+                need.control_exact,
+            )?);
+        }
+    }
+    out.need = need;
+    out.looks = looks;
+    out.driver = driver;
+    Ok(out)
 }
 
 /// The settings every metric of an experiment shares.

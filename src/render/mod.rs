@@ -20,7 +20,7 @@ pub mod ics;
 pub mod json;
 pub mod markdown;
 mod markup;
-mod moved;
+pub(crate) mod moved;
 pub mod numbers;
 pub mod text;
 

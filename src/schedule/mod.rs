@@ -34,7 +34,7 @@ mod tests;
 mod verify;
 
 pub use lp::Backend;
-pub use request::{Excluded, FixedRun, PlanRequest, DEFAULT_TIME_LIMIT};
+pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 
 use crate::forecast::test_units_on;

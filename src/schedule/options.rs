@@ -204,7 +204,16 @@ impl<'a> Instance<'a> {
         for &e in &portfolio.after_order {
             if inst.roles[e] == Role::Free {
                 inst.lo_start[e] = inst.earliest_start(e, today);
+                // A pinned test starts on its day or not at all.
+                let pin = request.pinned.iter().find(|p| p.experiment == e);
+                let pin = pin.map(|p| w.offset(p.start).offset());
+                if let Some(day) = pin {
+                    inst.lo_start[e] = inst.lo_start[e].max(day);
+                }
                 inst.options[e] = inst.enumerate(e);
+                if let Some(day) = pin {
+                    inst.options[e].retain(|o| o.start as i64 == day);
+                }
             }
         }
         inst.segment();

@@ -57,6 +57,15 @@ pub struct Excluded {
     pub ran: Option<crate::plan::Ran>,
 }
 
+/// A test held to one start day.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Pin {
+    /// Index into `Portfolio::experiments`.
+    pub experiment: usize,
+    /// The only day it may start.
+    pub start: NaiveDate,
+}
+
 /// The default wall-clock safety net in seconds: twenty times the largest
 /// benchmark case measured on a loaded two-core machine (the large
 /// portfolio, 15 s; docs/planning.md), so that in ordinary use the work
@@ -73,6 +82,9 @@ pub struct PlanRequest {
     pub fixed: Vec<FixedRun>,
     /// Tests left out of this plan.
     pub excluded: Vec<Excluded>,
+    /// Tests held to one start day (a scenario's `start` edit): each may
+    /// start only on its day, or not at all.
+    pub pinned: Vec<Pin>,
     /// Wall-clock safety net in seconds; the search is otherwise bounded
     /// by iteration counts, so results do not depend on timing.
     pub time_limit: f64,
@@ -88,6 +100,7 @@ impl Default for PlanRequest {
             today: None,
             fixed: Vec::new(),
             excluded: Vec::new(),
+            pinned: Vec::new(),
             time_limit: DEFAULT_TIME_LIMIT,
             backend: Backend::default(),
             effort: 1,

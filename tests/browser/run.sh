@@ -100,7 +100,7 @@ fi
 for spec in "${specs[@]}"; do
     echo "== $spec"
     start=$(date +%s)
-    SLUICE_REPORTS="$manifest" SLUICE_SHOTS="$shots" node "$here/$spec" 2>&1 | tee "$work/spec.log"
+    SLUICE_BIN="$bin" SLUICE_REPORTS="$manifest" SLUICE_SHOTS="$shots" node "$here/$spec" 2>&1 | tee "$work/spec.log"
     echo "($spec took $(($(date +%s) - start)) s)"
     line="$(grep -E '^spec .*: [0-9]+ ok, [0-9]+ failed$' "$work/spec.log" | tail -1)"
     if [ -z "$line" ]; then
