@@ -188,6 +188,34 @@ function colours() {
 }
 
 /**
+ * Bars whose shape is lost against the page: each run's bar, by its fill
+ * or its outline, must stand 3:1 from the background (WCAG 2.1's
+ * non-text contrast, SC 1.4.11).
+ */
+function faintBars() {
+  const lum = (c) => {
+    const m = (c || '').match(/[\d.]+/g);
+    if (!m || m.length < 3) return null;
+    const [r, g, b] = m.slice(0, 3).map((v) => {
+      const s = Number(v) / 255;
+      return s <= 0.03928 ? s / 12.92 : ((s + 0.055) / 1.055) ** 2.4;
+    });
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b;
+  };
+  const ratio = (a, b) => (Math.max(a, b) + 0.05) / (Math.min(a, b) + 0.05);
+  const back = lum(getComputedStyle(document.body).backgroundColor);
+  const bad = [];
+  for (const rect of document.querySelectorAll('rect.run')) {
+    const st = getComputedStyle(rect);
+    const fill = lum(st.fill);
+    const stroke = st.stroke === 'none' || parseFloat(st.strokeWidth) < 1 ? null : lum(st.stroke);
+    const best = Math.max(fill === null ? 0 : ratio(fill, back), stroke === null ? 0 : ratio(stroke, back));
+    if (best < 3) bad.push(`${rect.closest('[data-test]')?.dataset.test}: ${best.toFixed(2)}:1`);
+  }
+  return bad;
+}
+
+/**
  * Rows whose state is told by colour alone: each calendar row must say its
  * facts in words (`aria-label`), and a test without a run must say why in
  * visible text, not only by a missing bar.
@@ -237,6 +265,8 @@ try {
           .filter((e) => !e.result_date || ['finished', 'cancelled', 'unscheduled'].includes(e.status))
           .filter((e) => e.status !== 'running' && e.status !== 'scheduled')
           .map((e) => [e.id, e.status === 'unscheduled' ? ['does not fit'] : [e.status]]);
+        const faint = await page.evaluate(faintBars);
+        tally.check(`${at}: every bar stands 3:1 from the page`, !faint.length, faint.slice(0, 3).join('; '));
         const colour = await page.evaluate(colourOnly, closed);
         tally.check(`${at}: no test's state is told by colour alone (${closed.length} without a run)`, !colour.length, colour.slice(0, 3).join('; '));
         if (width === 768 && scheme === 'light') {

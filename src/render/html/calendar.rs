@@ -349,7 +349,7 @@ fn past_bar(scale: &Scale, e: &PlannedExperiment, s: &mut String) {
     let h = BAR_H;
     let _ = writeln!(
         s,
-        r##"<g class="past-bar"><rect x="{x0:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" rx="3" fill="#8a939d"/>"##,
+        r##"<g class="past-bar"><rect class="run" x="{x0:.1}" y="{top:.1}" width="{:.1}" height="{h:.1}" rx="3" fill="#8a939d"/>"##,
         (x1 - x0).max(2.0)
     );
     for step in &e.ramp {
@@ -472,7 +472,7 @@ fn bar(
     );
     let _ = writeln!(
         s,
-        r#"<rect x="{x0:.1}" y="{top:.1}" width="{w:.1}" height="{h:.1}" rx="3" fill="{fill}"/>"#
+        r#"<rect class="run" x="{x0:.1}" y="{top:.1}" width="{w:.1}" height="{h:.1}" rx="3" fill="{fill}"/>"#
     );
     // A ramp is drawn lighter: the bar washed out until its planned share.
     if let (Some(first), Some(last)) = (e.ramp.first(), e.ramp.last()) {

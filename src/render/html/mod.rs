@@ -106,6 +106,8 @@ const STYLE: &str = r#"
   :root { --bg: #121519; --ink: #e7eaee; --muted: #a9b2bc; --rule: #353d46; --rule-strong: #4a535d;
     --band: #1d2329; --guide: #2a3138; --today: #ff8f85; --warn: #f0a35e; --focus: #8cc4f0;
     --shade-back: #232a31; --shade-stripe: #56606b; --shade-back-light: #1b2026; --shade-stripe-light: #444d57; }
+  /* The pools' dark bars keep their shape against the dark page. */
+  rect.run { stroke: #c9d3dd; stroke-width: 1.5; }
 }
 * { box-sizing: border-box; }
 html { -webkit-text-size-adjust: 100%; text-size-adjust: 100%; }
