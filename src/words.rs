@@ -159,3 +159,28 @@ mod tests {
         assert_eq!(agree("does", "do", 2), "do");
     }
 }
+
+/// `x` to 12 significant digits: a value formed by one product or
+/// quotient of the user's decimals (0.05 x 0.031) prints as the decimal
+/// it is (`0.00155`), not with float noise (`0.0015500000000000002`).
+pub fn tidy(x: f64) -> f64 {
+    if !x.is_finite() || x == 0.0 {
+        return x;
+    }
+    format!("{x:.11e}").parse().unwrap_or(x)
+}
+
+#[cfg(test)]
+mod tidy_tests {
+    use super::tidy;
+
+    #[test]
+    fn tidy_drops_float_noise_and_keeps_the_value() {
+        assert_eq!(0.05 * 0.031, 0.0015500000000000002);
+        assert_eq!(tidy(0.05 * 0.031).to_string(), "0.00155");
+        assert_eq!(tidy(0.41 * 0.2).to_string(), "0.082");
+        assert_eq!(tidy(1.0 / 3.0), 0.333333333333);
+        assert_eq!(tidy(-2.5e-9), -2.5e-9);
+        assert_eq!(tidy(0.0), 0.0);
+    }
+}

@@ -324,3 +324,30 @@ fn the_trades_words_for_keys_get_a_hint_naming_sluices_key() {
         assert!(err.contains(":9:"), "{key}: the line in {err}");
     }
 }
+
+/// Decimals in `text` with float noise: a run of seven zeros or nines
+/// after the point, as in `0.0015500000000000002`.
+fn noisy(text: &str) -> Vec<String> {
+    text.split(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .filter(|t| {
+            t.split_once('.')
+                .is_some_and(|(_, frac)| frac.contains("0000000") || frac.contains("9999999"))
+        })
+        .map(str::to_string)
+        .collect()
+}
+
+#[test]
+fn json_and_csv_print_numbers_without_float_noise() {
+    // Issue 20, point 8: an MDE in points (baseline x relative MDE) and a
+    // pool's share in use (a sum of shares) print as the decimals they are.
+    for format in ["json", "csv"] {
+        let out = cmd(&["plan", &demo(), "--format", format, "--no-timing"]).stdout();
+        let bad = noisy(&out);
+        assert!(bad.is_empty(), "{format}: {bad:?}");
+        assert!(
+            out.contains("0.00155"),
+            "{format}: the MDE in points of a 3.1% baseline at 5%"
+        );
+    }
+}

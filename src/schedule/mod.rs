@@ -478,7 +478,8 @@ fn assemble(
             let days = (0..inst.days)
                 .map(|d| {
                     let date = w.date(d as i64);
-                    let mut share_used = 0.0;
+                    // Summed in whole millionths, so the JSON prints 0.35, not float noise.
+                    let mut used: u64 = 0;
                     let mut running = 0;
                     for (e, pe) in experiments.iter().enumerate() {
                         if !p.experiments[e].uses(pi) {
@@ -502,14 +503,16 @@ fn assemble(
                                             f.share_on(date, today)
                                         }
                                     });
-                                share_used += share.fraction();
+                                used += u64::from(share.millionths());
                                 running += 1;
                             }
                         } else if let Some(r) = &pe.ran {
                             // The past as it ran: finished and cancelled
                             // tests, their ramps at the steps' shares.
                             if r.start <= date && date <= r.end {
-                                share_used += pe.ran_share_on(date).map_or(0.0, Share::fraction);
+                                used += pe
+                                    .ran_share_on(date)
+                                    .map_or(0, |s| u64::from(s.millionths()));
                                 running += 1;
                             }
                         }
@@ -517,7 +520,7 @@ fn assemble(
                     PoolDay {
                         date,
                         forecast: inst.series[pi].units[d],
-                        share_used,
+                        share_used: used as f64 / 1e6,
                         running,
                     }
                 })

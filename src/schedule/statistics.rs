@@ -36,9 +36,10 @@ fn baseline(d: &Design) -> f64 {
 fn both(d: &Design, effect: f64) -> (Option<f64>, f64) {
     let base = baseline(d);
     let relative = |abs: f64| (base != 0.0).then(|| abs / base);
+    let tidy = crate::words::tidy;
     match d.effect {
-        Effect::Relative(_) => (Some(effect), effect * base),
-        Effect::Absolute(_) => (relative(effect), effect),
+        Effect::Relative(_) => (Some(effect), tidy(effect * base)),
+        Effect::Absolute(_) => (relative(effect).map(tidy), effect),
     }
 }
 
