@@ -244,6 +244,13 @@ pub struct LookDates {
     pub latest: NaiveDate,
 }
 
+impl LookDates {
+    /// The interim looks: every look but the last, which is the result.
+    pub fn interim(&self) -> &[LookDate] {
+        &self.dates[..self.dates.len().saturating_sub(1)]
+    }
+}
+
 /// One planned look.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LookDate {

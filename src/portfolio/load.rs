@@ -225,6 +225,38 @@ pub fn load_str(text: &str, file_name: &str) -> Result<Portfolio, LoadError> {
 
 /// The position index of `body`: `None` when the YAML parser rejects it
 /// (serde then reports the syntax error), an error when it nests too deep.
+/// The first passes every YAML loader of a small file shares: the
+/// position index, unknown keys (against `allowed_keys`, with their
+/// closest allowed one), a second document, then serde's type errors at
+/// their position, whose hints point at `doc` (docs/progress.md, ...).
+/// `what` names the file in messages ("the progress file").
+pub(crate) fn read_yaml<T: serde::de::DeserializeOwned>(
+    body: &str,
+    file_name: &str,
+    what: &str,
+    doc: &str,
+    allowed_keys: fn(&str) -> Option<&'static [&'static str]>,
+) -> Result<(T, Option<PositionIndex>), Vec<Diagnostic>> {
+    let index = index_of(body, file_name)?;
+    if let Some(ix) = &index {
+        let unknown = unknown_keys(ix, body, file_name, allowed_keys, |_, _| None);
+        if !unknown.is_empty() {
+            return Err(unknown);
+        }
+    }
+    if let Some(d) = two_documents(body, file_name, what) {
+        return Err(vec![d]);
+    }
+    match serde_yaml::from_str(body) {
+        Ok(raw) => Ok((raw, index)),
+        Err(e) => {
+            let mut d = from_serde(&e, body, file_name, index.as_ref());
+            d.hint = d.hint.map(|h| h.replace("docs/portfolio.md", doc));
+            Err(vec![d])
+        }
+    }
+}
+
 pub(crate) fn index_of(
     body: &str,
     file_name: &str,

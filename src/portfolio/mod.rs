@@ -18,8 +18,8 @@ pub(crate) mod raw;
 mod validate;
 
 pub(crate) use checker::Checker;
-pub(crate) use load::{from_serde, index_of, prepare, read_text, two_documents, unknown_keys};
 pub use load::{load, load_str, LoadError};
+pub(crate) use load::{prepare, read_text, read_yaml};
 pub use model::*;
 pub(crate) use validate::resize;
 pub use validate::DEFAULT_SHARE_LEVELS;

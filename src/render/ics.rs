@@ -155,9 +155,8 @@ fn look_contents(e: &PlannedExperiment) -> Vec<(u32, Content)> {
         return Vec::new();
     };
     let n = l.dates.len();
-    l.dates
+    l.interim()
         .iter()
-        .take(n.saturating_sub(1))
         .map(|d| {
             (
                 d.look,
@@ -718,10 +717,10 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             end: run.end,
             result_date: run.result_date,
             sequence: sequence_of(previous, &o.id) + 1,
-            looks: o.looks.as_ref().map_or_else(Vec::new, |l| {
-                let n = l.dates.len().saturating_sub(1);
-                l.dates.iter().take(n).map(|d| d.date).collect()
-            }),
+            looks: o
+                .looks
+                .as_ref()
+                .map_or_else(Vec::new, |l| l.interim().iter().map(|d| d.date).collect()),
         });
     }
     for k in prev_kept {

@@ -12,10 +12,7 @@
 use crate::diagnostic::{self, Diagnostic};
 use crate::forecast;
 use crate::portfolio::raw::{fields_of, RawEvent, Text};
-use crate::portfolio::{
-    from_serde, index_of, prepare, read_text, two_documents, unknown_keys, Checker, Event,
-    LoadError, Portfolio,
-};
+use crate::portfolio::{prepare, read_text, read_yaml, Checker, Event, LoadError, Portfolio};
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use serde::Deserialize;
@@ -199,28 +196,15 @@ pub fn load_progress_str(
         return fail(vec![Diagnostic::new(file_name, "", "the progress file is empty")
             .with_hint("list the tests that started: `experiments: [{id: ..., state: running, started: YYYY-MM-DD, share: 0.5, units: 1234}]`")]);
     }
-    let index = match index_of(body, file_name) {
-        Ok(index) => index,
+    let (raw, index): (RawProgress, _) = match read_yaml(
+        body,
+        file_name,
+        "the progress file",
+        "docs/progress.md",
+        allowed_keys,
+    ) {
+        Ok(read) => read,
         Err(d) => return fail(d),
-    };
-    if let Some(ix) = &index {
-        let unknown = unknown_keys(ix, body, file_name, allowed_keys, |_, _| None);
-        if !unknown.is_empty() {
-            return fail(unknown);
-        }
-    }
-    if let Some(d) = two_documents(body, file_name, "the progress file") {
-        return fail(vec![d]);
-    }
-    let raw: RawProgress = match serde_yaml::from_str(body) {
-        Ok(raw) => raw,
-        Err(e) => {
-            let mut d = from_serde(&e, body, file_name, index.as_ref());
-            d.hint = d
-                .hint
-                .map(|h| h.replace("docs/portfolio.md", "docs/progress.md"));
-            return fail(vec![d]);
-        }
     };
     let mut cx = ProgressCheck {
         ck: Checker::new(file_name, body, index.as_ref()),

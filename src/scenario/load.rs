@@ -11,10 +11,7 @@
 use super::{Edit, TestChange};
 use crate::diagnostic::{self, Diagnostic};
 use crate::portfolio::raw::{fields_of, Text};
-use crate::portfolio::{
-    from_serde, index_of, prepare, read_text, two_documents, unknown_keys, Checker, LoadError,
-    Portfolio, StartGrid,
-};
+use crate::portfolio::{prepare, read_text, read_yaml, Checker, LoadError, Portfolio, StartGrid};
 use crate::share::Share;
 use crate::sizing::Effect;
 use chrono::{Datelike, NaiveDate};
@@ -88,28 +85,15 @@ pub fn load_str(
             "list the edits: `edits: [{test: ID, leave_out: true}]` (docs/scenario.md)",
         )]);
     }
-    let index = match index_of(body, file_name) {
-        Ok(index) => index,
+    let (raw, index): (RawScenario, _) = match read_yaml(
+        body,
+        file_name,
+        "the scenario file",
+        "docs/scenario.md",
+        allowed_keys,
+    ) {
+        Ok(read) => read,
         Err(d) => return fail(d),
-    };
-    if let Some(ix) = &index {
-        let unknown = unknown_keys(ix, body, file_name, allowed_keys, |_, _| None);
-        if !unknown.is_empty() {
-            return fail(unknown);
-        }
-    }
-    if let Some(d) = two_documents(body, file_name, "the scenario file") {
-        return fail(vec![d]);
-    }
-    let raw: RawScenario = match serde_yaml::from_str(body) {
-        Ok(raw) => raw,
-        Err(e) => {
-            let mut d = from_serde(&e, body, file_name, index.as_ref());
-            d.hint = d
-                .hint
-                .map(|h| h.replace("docs/portfolio.md", "docs/scenario.md"));
-            return fail(vec![d]);
-        }
     };
     let mut ck = Checker::new(file_name, body, index.as_ref());
     let Some(list) = raw.edits else {

@@ -535,9 +535,8 @@ fn look_ticks(scale: &Scale, e: &PlannedExperiment) -> Vec<(f64, String)> {
         return Vec::new();
     };
     let n = l.dates.len();
-    l.dates
+    l.interim()
         .iter()
-        .take(n.saturating_sub(1))
         .map(|d| {
             (
                 scale.x(d.date).clamp(CAL_X0, CAL_X1),
