@@ -378,6 +378,86 @@ fn detect_inverts_size() {
 }
 
 #[test]
+fn detect_with_looks_inverts_size_with_looks() {
+    // `size` plans the maximum sample of a three-look Pocock design.
+    let planned = json(&[
+        "--baseline",
+        "0.04",
+        "--mde",
+        "0.15",
+        "--looks",
+        "3",
+        "--boundary",
+        "pocock",
+    ]);
+    let n = int(&planned, "control").to_string();
+    let looks = ["--looks", "3", "--boundary", "pocock"];
+    let mut args = vec!["--baseline", "0.04", "--n", n.as_str()];
+    args.extend(looks);
+    let v = detect(&args);
+    // The sample was rounded up, so a little under the planned 15%.
+    let mde = float(&v, "mde");
+    assert!(mde > 0.1499 && mde <= 0.15, "{mde}");
+    let l = &v["looks"];
+    assert_eq!(l["looks"], 3);
+    assert_eq!(l["boundary"], "pocock");
+    assert_eq!(float(l, "inflation"), float(&planned, "inflation"));
+    // The power for the planned effect is the design's.
+    args.extend(["--mde", "0.15"]);
+    let p = float(&detect(&args), "power");
+    assert!((p - float(&planned, "achieved_power")).abs() < 1e-9, "{p}");
+    // Without looks the same sample detects a smaller effect.
+    let single = detect(&["--baseline", "0.04", "--n", n.as_str()]);
+    assert!(float(&single, "mde") < mde);
+}
+
+#[test]
+fn detect_a_guardrail_gives_the_margin_it_rules_out_and_its_power() {
+    // Blackwelder (1982): n = (z_a + z_b)^2 p (1 - p) (1 + 1/r) / m^2, so
+    // with 60,000 per arm at p = 0.41 the smallest margin m is
+    // (z_0.95 + z_0.8) sqrt(0.41 x 0.59 x 2 / 60,000); the z values are
+    // scipy.stats.norm.ppf(0.95) and norm.ppf(0.8).
+    let z = 1.6448536269514722 + 0.8416212335729143;
+    let want = z * (0.41f64 * 0.59 * 2.0 / 60_000.0).sqrt();
+    let v = detect(&["--baseline", "0.41", "--n", "60000", "--guardrail"]);
+    let g = &v["guardrail"];
+    assert_eq!(g["harm"], "fall");
+    assert!((float(g, "margin_abs") - want).abs() < 1e-12, "{g}");
+    assert!((float(&v, "mde_abs") + want).abs() < 1e-12);
+    assert_eq!(v["sides"], "one");
+    assert_eq!(v["method"], "unpooled");
+    let rise = detect(&["--baseline", "0.41", "--n", "60000", "--guardrail", "rise"]);
+    assert!((float(&rise["guardrail"], "margin_abs") + want).abs() < 1e-12);
+    // `size --margin` plans that margin's sample; `detect --margin` on it
+    // gives back the planned power.
+    let m = format!("--margin={}", 0.02);
+    let planned = json(&["--baseline", "0.41", &m]);
+    let n = int(&planned, "control").to_string();
+    let p = detect(&["--baseline", "0.41", "--n", &n, &m]);
+    assert!((float(&p, "power") - float(&planned, "achieved_power")).abs() < 1e-9);
+    assert!((float(&p["guardrail"], "null_value") - 0.41 * 0.98).abs() < 1e-12);
+    let text = cmd(&["detect", "--baseline", "0.41", "--n", &n, &m]).stdout();
+    assert!(
+        text.contains("guardrail   non-inferiority, one-sided: a fall is the harm"),
+        "{text}"
+    );
+    assert!(text.contains(" for this margin"), "{text}");
+    // An effect and a margin together are refused.
+    let out = cmd(&[
+        "detect",
+        "--baseline",
+        "0.41",
+        "--n",
+        "6",
+        "--mde",
+        "0.1",
+        &m,
+    ])
+    .assert_exit_code(2);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--margin"));
+}
+
+#[test]
 fn detect_from_days_splits_the_units_over_the_arms() {
     // 8,000 a day x 50% x 28 days = 112,000 units; ratio 1.5 and 3 arms:
     // control = 112,000 / (1 + 2 x 1.5) = 28,000.

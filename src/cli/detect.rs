@@ -2,11 +2,12 @@
 //! power it has for a given effect. The inverse of `sluice size`, from the
 //! same formulas (see `sizing`).
 
-use super::size::{early_reading, MetricArgs, TestArgs};
+use super::size::{early_reading, flag_design, LooksArgs, MetricArgs, TestArgs};
 use super::{Error, TextOrJson};
-use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
+use crate::sizing::sequential::{self, Boundary};
+use crate::sizing::{self, noninferiority, Correction, Effect, Method, Metric, Sides};
 use crate::words::{thousands as fmt_units, Count};
-use clap::{ArgGroup, Args};
+use clap::{ArgGroup, Args, ValueEnum};
 use serde::Serialize;
 
 #[derive(Args, Debug)]
@@ -15,11 +16,20 @@ use serde::Serialize;
 #[command(after_help = concat!("Examples:\n  \
     sluice detect --baseline 0.04 --n 20000\n  \
     sluice detect --baseline 0.04 --n 20000 --mde 0.1\n  \
-    sluice detect --mean 38.5 --sd 61 --daily 8000 --share 0.5 --days 28 --format json\n\n\
+    sluice detect --mean 38.5 --sd 61 --daily 8000 --share 0.5 --days 28 --format json\n  \
+    sluice detect --baseline 0.04 --n 20000 --looks 3 --boundary pocock\n  \
+    sluice detect --baseline 0.41 --n 60000 --guardrail\n  \
+    sluice detect --baseline 0.41 --n 60000 --margin 0.02\n\n\
     With --n alone: the smallest effect the test detects at --power. With \
     --n and --mde (or --mde-abs): the power for that effect. With --daily, \
     --share and --days: the smallest effect reachable in that many days, \
-    the units split over the arms by --ratio.\n\n", early_reading!()))]
+    the units split over the arms by --ratio.\n\n\
+    With --looks, the sample is the design's maximum, read at each look: \
+    what it detects is what a single read of the sample over the looks' \
+    inflation would. With --guardrail: the smallest harm a one-sided \
+    non-inferiority test of the sample rules out at --power (a fall, or \
+    `--guardrail rise`); with --margin (or --margin-abs): its power for \
+    that margin, as `sluice size --margin` plans it.\n\n", early_reading!()))]
 pub struct DetectArgs {
     #[command(flatten)]
     pub metric: MetricArgs,
@@ -70,12 +80,83 @@ pub struct DetectArgs {
     #[arg(long, help_heading = "Effect")]
     pub decrease: bool,
 
+    /// Guardrail: the smallest harm the sample rules out (a fall unless `rise`)
+    #[arg(
+        long,
+        value_enum,
+        value_name = "HARM",
+        num_args = 0..=1,
+        default_missing_value = "fall",
+        conflicts_with_all = ["mde", "mde_abs", "decrease", "margin", "margin_abs"],
+        help_heading = "Guardrail"
+    )]
+    pub guardrail: Option<Harm>,
+    /// Guardrail: the power to rule out this harm, relative (0.02 = a 2% fall;
+    /// negative when a rise is the harm)
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with_all = ["mde", "mde_abs", "decrease", "margin_abs"],
+        help_heading = "Guardrail"
+    )]
+    pub margin: Option<f64>,
+    /// Guardrail: the power to rule out this harm, as an absolute difference
+    #[arg(
+        long,
+        value_name = "X",
+        allow_hyphen_values = true,
+        conflicts_with_all = ["mde", "mde_abs", "decrease"],
+        help_heading = "Guardrail"
+    )]
+    pub margin_abs: Option<f64>,
+
+    /// With --looks the sample is the design's maximum.
+    #[command(flatten)]
+    pub interim: LooksArgs,
+
     #[command(flatten)]
     pub test: TestArgs,
 
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
     pub format: TextOrJson,
+}
+
+/// Which way a guardrail's metric moves when the treatment harms it.
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Harm {
+    /// A fall is the harm (conversion, revenue)
+    Fall,
+    /// A rise is the harm (refunds, load time)
+    Rise,
+}
+
+/// A guardrail's part of the report: the margin solved for or given.
+#[derive(Serialize, Debug)]
+pub struct GuardrailReport {
+    /// Which way the harm goes.
+    pub harm: Harm,
+    /// The margin relative to the baseline, signed as in a portfolio
+    /// (positive: a fall is the harm); absent for a mean of zero.
+    pub margin: Option<f64>,
+    /// The margin as an absolute difference, signed the same way.
+    pub margin_abs: f64,
+    /// The treatment's rate or mean under H0: the baseline moved by the harm.
+    pub null_value: f64,
+}
+
+/// A design with interim looks: the sample is its maximum.
+#[derive(Serialize, Debug)]
+pub struct DetectLooks {
+    pub looks: u32,
+    pub boundary: Boundary,
+    /// The maximum sample over a single read's for the same power.
+    pub inflation: f64,
+    /// The control units a single read would need to match it: what the
+    /// effect is computed from.
+    pub single_read_control: f64,
 }
 
 /// The JSON object `sluice detect --format json` prints.
@@ -109,6 +190,13 @@ pub struct DetectReport {
     pub share: Option<f64>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub days: Option<f64>,
+    /// A design with interim looks.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub looks: Option<DetectLooks>,
+    /// A guardrail (non-inferiority) test: then `mde` and `mde_abs` are the
+    /// difference at its null, the harm it rules out.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub guardrail: Option<GuardrailReport>,
 }
 
 /// The control arm's units: `--n`, or the units `--daily x --share x
@@ -170,48 +258,86 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         Metric::Mean { mean, .. } => mean,
     };
     let n = control_units(a)?;
-    let method = a
-        .test
-        .method
-        .map(Method::from)
-        .unwrap_or_else(|| Method::default_for(&metric));
-    let sign = if a.decrease { -1.0 } else { 1.0 };
-    // Solving for the effect, the design carries only its direction; an
-    // absolute effect keeps a mean of zero meaningful.
-    let given = match (a.mde, a.mde_abs) {
-        (Some(x), _) => Some(Effect::Relative(x)),
-        (None, Some(x)) => Some(Effect::Absolute(x)),
+    let harm = match (a.guardrail, a.margin.or(a.margin_abs)) {
+        (Some(h), _) => Some(h),
+        (None, Some(m)) if m < 0.0 => Some(Harm::Rise),
+        (None, Some(_)) => Some(Harm::Fall),
         (None, None) => None,
     };
-    let design = Design {
-        metric,
-        effect: given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
-        alpha: a.test.alpha,
-        power: a.test.power,
-        sides: if a.test.one_sided {
-            Sides::One
-        } else {
-            Sides::Two
-        },
-        arms: a.test.arms,
-        ratio: a.test.ratio,
-        method,
-        correction: a.test.correction.into(),
-        rho: a.test.rho,
+    let guardrail = harm.is_some();
+    let sign = match harm {
+        Some(Harm::Fall) => 1.0,
+        Some(Harm::Rise) => -1.0,
+        None if a.decrease => -1.0,
+        None => 1.0,
     };
+    // Solving for the effect, the design carries only its direction; an
+    // absolute effect keeps a mean of zero meaningful. A guardrail's
+    // effect is its margin (see sizing::noninferiority).
+    let given = match (a.mde, a.mde_abs, a.margin, a.margin_abs) {
+        (Some(x), ..) | (_, _, Some(x), _) => Some(Effect::Relative(x)),
+        (_, Some(x), ..) | (.., Some(x)) => Some(Effect::Absolute(x)),
+        _ => None,
+    };
+    let design = flag_design(
+        metric,
+        given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
+        guardrail,
+        &a.test,
+    );
+    let method = design.method;
     let as_error = |error| Error::Design {
         error,
         effect: design.effect,
     };
-    let (mde_abs, power) = match given {
-        Some(_) => {
+    // With looks the sample is the maximum: the effect is a single read's
+    // at the sample over the inflation, and the power for a given effect
+    // is the sequential design's at the sample's share of its maximum.
+    let sequential = match a.interim.looks {
+        Some(k) => Some(
+            sequential::solve_plan(&sequential::Plan {
+                looks: k,
+                boundary: a.interim.boundary.into(),
+                alpha: design.comparison_alpha(),
+                power: design.power,
+                sides: design.sides,
+            })
+            .map_err(as_error)?,
+        ),
+        None => None,
+    };
+    let inflation = sequential.as_ref().map_or(1.0, |s| s.inflation);
+    let single = n / inflation;
+    let (mde_abs, power) = match (given, guardrail) {
+        (Some(_), false) => {
             design.validate().map_err(as_error)?;
-            let power = sizing::achieved_power(&design, n).map_err(as_error)?;
+            let power = match &sequential {
+                Some(s) => {
+                    let fixed = sizing::sample_size(&design).map_err(as_error)?;
+                    s.power_at(n / (fixed.control_exact * inflation), design.sides)
+                }
+                None => sizing::achieved_power(&design, n).map_err(as_error)?,
+            };
             (design.treatment_value() - base, power)
         }
-        None => {
-            let e = sizing::minimum_detectable_effect(&design, n).map_err(as_error)?;
+        (Some(_), true) => {
+            let power = match &sequential {
+                Some(s) => {
+                    let fixed = noninferiority::size(&design).map_err(as_error)?;
+                    s.power_at(n / (fixed.control_exact * inflation), Sides::One)
+                }
+                None => noninferiority::power(&design, n).map_err(as_error)?,
+            };
+            (noninferiority::null_value(&design) - base, power)
+        }
+        (None, false) => {
+            let e = sizing::minimum_detectable_effect(&design, single).map_err(as_error)?;
             (e, design.power)
+        }
+        (None, true) => {
+            // In the design's kind (absolute), with the harm's sign.
+            let m = noninferiority::smallest_margin(&design, single).map_err(as_error)?;
+            (-m, design.power)
         }
     };
     let report = DetectReport {
@@ -233,6 +359,18 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         daily: a.daily,
         share: a.daily.map(|_| a.share),
         days: a.days,
+        looks: sequential.as_ref().map(|s| DetectLooks {
+            looks: a.interim.looks.unwrap_or(1),
+            boundary: a.interim.boundary.into(),
+            inflation: s.inflation,
+            single_read_control: single,
+        }),
+        guardrail: harm.map(|harm| GuardrailReport {
+            harm,
+            margin: (base != 0.0).then(|| -mde_abs / base.abs()),
+            margin_abs: -mde_abs,
+            null_value: base + mde_abs,
+        }),
     };
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
@@ -297,6 +435,27 @@ fn detect_text(r: &DetectReport, power_asked: bool) -> String {
         );
     }
     let _ = writeln!(s);
+    if let Some(l) = &r.looks {
+        let _ = writeln!(
+            s,
+            "looks       {} ({}): the sample is the maximum, {:.4} x a single read's;\n            \
+             it detects what {} control units read once would",
+            l.looks,
+            l.boundary,
+            l.inflation,
+            fmt_units(l.single_read_control.round() as u64)
+        );
+    }
+    if let Some(g) = &r.guardrail {
+        let _ = writeln!(
+            s,
+            "guardrail   non-inferiority, one-sided: a {} is the harm",
+            match g.harm {
+                Harm::Fall => "fall",
+                Harm::Rise => "rise",
+            }
+        );
+    }
     let relative = match r.mde {
         Some(m) => format!("{:+.2}% relative, ", m * 100.0),
         None => String::new(),
@@ -305,17 +464,23 @@ fn detect_text(r: &DetectReport, power_asked: bool) -> String {
         Metric::Rate { .. } => format!("{:+.4} points absolute", r.mde_abs * 100.0),
         Metric::Mean { .. } => format!("{} absolute", trim(r.mde_abs)),
     };
-    let label = if power_asked { "effect" } else { "detects" };
-    let _ = writeln!(s, "{label:<11} {relative}{absolute} (treatment {value})");
-    let _ = writeln!(
-        s,
-        "power       {:.4}{}",
-        r.power,
-        if power_asked {
-            " for this effect"
-        } else {
-            ": the smallest effect found this often"
-        }
-    );
+    let (label, value_is, asked, found) = match (&r.guardrail, power_asked) {
+        (None, true) => ("effect", "treatment", " for this effect", ""),
+        (None, false) => (
+            "detects",
+            "treatment",
+            "",
+            ": the smallest effect found this often",
+        ),
+        (Some(_), true) => ("margin", "treatment under H0", " for this margin", ""),
+        (Some(_), false) => (
+            "rules out",
+            "treatment under H0",
+            "",
+            ": the smallest harm ruled out this often when there is none",
+        ),
+    };
+    let _ = writeln!(s, "{label:<11} {relative}{absolute} ({value_is} {value})");
+    let _ = writeln!(s, "power       {:.4}{asked}{found}", r.power);
     s
 }

@@ -153,18 +153,8 @@ pub struct SizeArgs {
     #[command(flatten)]
     pub test: TestArgs,
 
-    /// Planned looks, equally spaced in information (1 = fixed horizon)
-    #[arg(long, value_name = "K", help_heading = "Interim looks")]
-    pub looks: Option<u32>,
-    /// Stopping boundary of the looks
-    #[arg(
-        long,
-        value_enum,
-        requires = "looks",
-        default_value_t = BoundaryArg::SpendingObrienFleming,
-        help_heading = "Interim looks"
-    )]
-    pub boundary: BoundaryArg,
+    #[command(flatten)]
+    pub interim: LooksArgs,
 
     /// Eligible units per day, to compute the days the test needs
     #[arg(long, value_name = "N", help_heading = "Duration")]
@@ -193,6 +183,23 @@ pub struct SizeArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
     pub format: TextOrJson,
+}
+
+/// The interim-look flags `size` and `detect` share.
+#[derive(Args, Debug)]
+pub struct LooksArgs {
+    /// Planned looks, equally spaced in information (1 = fixed horizon)
+    #[arg(long, value_name = "K", help_heading = "Interim looks")]
+    pub looks: Option<u32>,
+    /// Stopping boundary of the looks
+    #[arg(
+        long,
+        value_enum,
+        requires = "looks",
+        default_value_t = BoundaryArg::SpendingObrienFleming,
+        help_heading = "Interim looks"
+    )]
+    pub boundary: BoundaryArg,
 }
 
 /// The metric flags `size` and `detect` share.
@@ -327,27 +334,7 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
         _ => return Err(Error::SizeEffect),
     };
     let guardrail = is_guardrail(a);
-    let method = a.test.method.map(Method::from).unwrap_or(match metric {
-        // Blackwelder's variance is the unpooled one at the assumed rates.
-        Metric::Rate { .. } if guardrail => Method::Unpooled,
-        _ => Method::default_for(&metric),
-    });
-    let design = Design {
-        metric,
-        effect,
-        alpha: a.test.alpha,
-        power: a.test.power,
-        sides: if a.test.one_sided || guardrail {
-            Sides::One
-        } else {
-            Sides::Two
-        },
-        arms: a.test.arms,
-        ratio: a.test.ratio,
-        method,
-        correction: a.test.correction.into(),
-        rho: a.test.rho,
-    };
+    let design = flag_design(metric, effect, guardrail, &a.test);
     let checked = if guardrail {
         noninferiority::equivalent(&design).map(|_| ())
     } else {
@@ -358,6 +345,33 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
         effect: design.effect,
     })?;
     Ok(design)
+}
+
+/// The design the flags of `size` and `detect` give, for `metric` and
+/// `effect` (a guardrail's margin when `guardrail`): a guardrail is
+/// one-sided and, for a rate, takes Blackwelder's unpooled variance at the
+/// assumed rates unless `--method` says otherwise.
+pub(super) fn flag_design(metric: Metric, effect: Effect, guardrail: bool, t: &TestArgs) -> Design {
+    let method = t.method.map(Method::from).unwrap_or(match metric {
+        Metric::Rate { .. } if guardrail => Method::Unpooled,
+        _ => Method::default_for(&metric),
+    });
+    Design {
+        metric,
+        effect,
+        alpha: t.alpha,
+        power: t.power,
+        sides: if t.one_sided || guardrail {
+            Sides::One
+        } else {
+            Sides::Two
+        },
+        arms: t.arms,
+        ratio: t.ratio,
+        method,
+        correction: t.correction.into(),
+        rho: t.rho,
+    }
 }
 
 /// The library's message for a design built from flags: an effect that
@@ -420,7 +434,7 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
         sizing::sample_size(&design)
     }
     .map_err(as_design_error)?;
-    let (n, looks, achieved) = match a.looks {
+    let (n, looks, achieved) = match a.interim.looks {
         None => {
             let achieved = if guardrail {
                 noninferiority::power(&design, fixed.control as f64)
@@ -433,7 +447,7 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
         Some(k) => {
             let plan = sequential::Plan {
                 looks: k,
-                boundary: a.boundary.into(),
+                boundary: a.interim.boundary.into(),
                 alpha: design.comparison_alpha(),
                 power: design.power,
                 sides: design.sides,

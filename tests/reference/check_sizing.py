@@ -680,6 +680,7 @@ def main():
     check_stats.check_detect(
         args.bin, tally, record, design, comparison_alpha, tail_alpha, ref_mde, ref_power
     )
+    check_stats.check_detect_designs(args.bin, tally, record)
 
     print(
         f"designs: {len(designs)} sized, {len(mde)} MDE inverses, "

@@ -38,6 +38,12 @@ solve_power for the effect (t, z, arcsine; within solve_power's own loose
 tolerance) and against a tight brentq on the reference power functions of
 check_sizing.py; the round trip (sluice size at that effect needs N units,
 within 1); and the power for a given effect against the reference power.
+`sluice detect --guardrail` (the smallest margin N rules out) against
+statsmodels' NormalIndPower solve_power, one-sided, times the standard
+deviation (sqrt(p (1 - p)) for a rate, Blackwelder's unpooled variance);
+and `sluice detect --looks K --boundary B` (classical boundaries) against
+the same solve_power at N over the inflation factor R solved with scipy's
+multivariate_normal as above.
 """
 
 import json
@@ -425,6 +431,78 @@ def solve_power_effect(d, n, comparison_alpha, tail_alpha):
         pc = d["baseline"]
         return math.sin(math.asin(math.sqrt(pc)) + es / 2) ** 2 - pc
     return None
+
+
+def check_detect_designs(binary, tally, record):
+    """`detect --guardrail` and `detect --looks` against statsmodels and scipy."""
+    guard = [
+        (metric, n, harm)
+        for metric in (["--baseline=0.08"], ["--baseline=0.41"], ["--mean=40", "--sd=12", "--method=z"])
+        for n in (4_000.0, 60_000.0)
+        for harm in ("fall", "rise")
+    ]
+    looks = [
+        (k, b, n)
+        for k in (2, 3, 5)
+        for b in ("obrien-fleming", "pocock")
+        for n in (4_000.0, 60_000.0)
+    ]
+    g_args = [["detect", "--format=json", f"--n={n!r}", f"--guardrail={h}"] + m for m, n, h in guard]
+    l_args = [["detect", "--format=json", f"--n={n!r}", "--baseline=0.08", "--method=z",
+               f"--looks={k}", f"--boundary={b}"] for k, b, n in looks]
+    worst = {"guardrail": 0.0, "looks": 0.0}
+    for (m, n, h), args, (code, out, err) in zip(guard, g_args, run_many(binary, g_args)):
+        name = "detect guardrail: " + " ".join(args[2:])
+        if code != 0:
+            record(tally, name, [f"sluice exited {code}: {err.strip()}"])
+            continue
+        j = json.loads(out)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            es = float(NormalIndPower().solve_power(
+                effect_size=None, nobs1=n, alpha=0.05, power=0.8, ratio=1.0,
+                alternative="larger",
+            ))
+        sd = 12.0 if "--sd=12" in m else math.sqrt(float(m[0].split("=")[1]) * (1 - float(m[0].split("=")[1])))
+        ref = es * sd * (1.0 if h == "fall" else -1.0)
+        got = j["guardrail"]["margin_abs"]
+        rel = abs(got - ref) / abs(ref)
+        worst["guardrail"] = max(worst["guardrail"], rel)
+        problems = [] if rel <= 1e-3 else [f"margin_abs {got!r}, solve_power {ref!r}"]
+        if abs(j["mde_abs"] + got) > 1e-15:
+            problems.append("mde_abs is not the difference at the null")
+        record(tally, name, problems)
+    r_of = {}
+    for (k, b, n), args, (code, out, err) in zip(looks, l_args, run_many(binary, l_args)):
+        name = "detect looks: " + " ".join(args[2:])
+        if code != 0:
+            record(tally, name, [f"sluice exited {code}: {err.strip()}"])
+            continue
+        j = json.loads(out)
+        if (k, b) not in r_of:
+            r_of[(k, b)] = solve_r([solve_c(b, k) * x for x in shape(b, k)], 0.8)
+        r = r_of[(k, b)]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            es = float(NormalIndPower().solve_power(
+                effect_size=None, nobs1=n / r, alpha=0.025, power=0.8, ratio=1.0,
+                alternative="larger",
+            ))
+        ref = es * math.sqrt(0.08 * 0.92)
+        rel = abs(j["mde_abs"] - ref) / ref
+        worst["looks"] = max(worst["looks"], rel)
+        problems = []
+        # R is solved to about 1e-4 here and solve_power stops near 1e-4.
+        if rel > 2e-3:
+            problems.append(f"mde_abs {j['mde_abs']!r}, solve_power at N / R {ref!r}")
+        if abs(j["looks"]["inflation"] - r) > 1e-3:
+            problems.append(f"inflation {j['looks']['inflation']!r}, scipy {r!r}")
+        record(tally, name, problems)
+    print(
+        f"detect designs: {len(guard)} guardrails, max relative difference of the margin from "
+        f"solve_power {worst['guardrail']:.3g}; {len(looks)} with looks, from solve_power at "
+        f"N / R {worst['looks']:.3g}"
+    )
 
 
 def check_detect(binary, tally, record, design, comparison_alpha, tail_alpha, ref_mde, ref_power):
