@@ -35,6 +35,13 @@ pub struct CheckReport {
     pub window_end: NaiveDate,
     /// Days in the window, both ends counted.
     pub window_days: usize,
+    /// The window's first start day (on the start grid), from which the
+    /// durations count.
+    pub first_start: NaiveDate,
+    /// `planning.confidence`: durations and solo fits are then on the
+    /// lower quantile of the forecast, as the plan makes them.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub confidence: Option<f64>,
     /// In portfolio order.
     pub experiments: Vec<ExperimentCheck>,
     /// In portfolio order.
@@ -74,11 +81,11 @@ pub struct ExperimentCheck {
     /// beside the holdout).
     pub share: Share,
     /// Days the run takes at `share` when started on the window's first
-    /// day (minimum run and whole weeks included); `None` when it would
-    /// take longer than [`HORIZON_DAYS`].
-    pub days_from_window_start: Option<u32>,
+    /// start day (minimum run and whole weeks included); `None` when it
+    /// would take longer than [`HORIZON_DAYS`].
+    pub days_from_first_start: Option<u32>,
     /// The last day of that run; `None` as above.
-    pub end_from_window_start: Option<NaiveDate>,
+    pub end_from_first_start: Option<NaiveDate>,
     /// Whether some start fits the window alone (see `reason` when not).
     pub fits_alone: bool,
     /// The earliest solo run that fits: first day.
@@ -94,6 +101,10 @@ pub struct ExperimentCheck {
     /// its earliest start to its deadline (or the window's end) could
     /// detect at `share`; `None` otherwise, and when no day is left.
     pub detectable: Option<crate::plan::Detectable>,
+    /// The look dates of its solo run, for a test planned with interim
+    /// looks that fits alone: `looks.idle` names looks the run is too
+    /// short to hold on days of their own.
+    pub looks: Option<crate::plan::LookDates>,
 }
 
 /// One pool's supply against demand over the window.
@@ -127,6 +138,17 @@ pub struct PoolCheck {
 /// Builds the report for a validated portfolio.
 pub fn check(p: &Portfolio) -> CheckReport {
     let w = p.window;
+    // At a confidence, every solo run is sized as the plan's first round
+    // sizes it: on the lower quantile of its pools' forecast.
+    let asked = p
+        .planning
+        .confidence
+        .map(|c| crate::schedule::at_confidence(p, c));
+    let q = asked.as_ref().unwrap_or(p);
+    let first_start = (0..w.days() as i64)
+        .map(|d| w.date(d))
+        .find(|&d| crate::schedule::on_grid(p, d))
+        .unwrap_or(w.start);
     let horizon_end = w.start + Duration::days(HORIZON_DAYS - 1);
     let series: Vec<Series> = p
         .pools
@@ -134,7 +156,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
         .map(|pool| Series::new(pool, w.start, horizon_end.max(w.end)))
         .collect();
     // The planner's view of the portfolio, for its start grid and blackouts.
-    let inst = Instance::new(p, &PlanRequest::default());
+    let inst = Instance::new(q, &PlanRequest::default());
     // Prerequisites first, so each test can start after theirs end.
     let mut done: Vec<Option<ExperimentCheck>> = vec![None; p.experiments.len()];
     for &i in &p.after_order {
@@ -145,7 +167,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
                 .iter()
                 .map(|&k| (&series[k], crate::forecast::entering(e, &p.pools[k]))),
         );
-        done[i] = Some(experiment(&inst, i, &summed, start));
+        done[i] = Some(experiment(&inst, e, i, &summed, start, first_start));
     }
     let experiments: Vec<ExperimentCheck> = done.into_iter().flatten().collect();
     let pools = p
@@ -219,6 +241,8 @@ pub fn check(p: &Portfolio) -> CheckReport {
         window_start: w.start,
         window_end: w.end,
         window_days: w.days(),
+        first_start,
+        confidence: p.planning.confidence,
         cannot_fit: experiments.len() - fit_alone,
         fit_alone,
         experiments,
@@ -264,21 +288,31 @@ fn earliest(p: &Portfolio, e: &Experiment, done: &[Option<ExperimentCheck>]) -> 
     Earliest::From(first, because)
 }
 
-fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> ExperimentCheck {
+/// Experiment `i` (`truth`, its true need; the instance's portfolio may
+/// ask more of it at a confidence) checked from `start`, with its
+/// duration counted from the window's `first_start` day.
+fn experiment(
+    inst: &Instance,
+    truth: &Experiment,
+    i: usize,
+    series: &Series,
+    start: Earliest,
+    first_start: NaiveDate,
+) -> ExperimentCheck {
     let p = inst.portfolio;
     let e = &p.experiments[i];
     let w = p.window;
     let share = share_for(p, e);
-    let from_start = series.test_end(e, 0, share.fraction());
-    let (days, end) = match from_start {
-        Some(j) => (Some(j as u32 + 1), Some(w.date(j as i64))),
+    let from = w.offset(first_start).offset().max(0) as usize;
+    let (days, end) = match series.test_end(e, from, share.fraction()) {
+        Some(j) => (Some((j - from) as u32 + 1), Some(w.date(j as i64))),
         None => (None, None),
     };
     let first = match &start {
         Earliest::From(first, _) => Some(*first),
         Earliest::Blocked(_) => None,
     };
-    let (solo, reason) = match start {
+    let (solo, mut reason) = match start {
         Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
         Earliest::Blocked(pre) => (
             None,
@@ -287,6 +321,42 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
             )),
         ),
     };
+    let margin = p
+        .planning
+        .confidence
+        .filter(|_| e.need.total > truth.need.total);
+    if let (Some(c), Some(why)) = (margin, &mut reason) {
+        why.push_str(&format!(
+            " (planned at {} confidence as {} units)",
+            crate::words::percent(c),
+            crate::words::thousands(e.need.total)
+        ));
+    }
+    let detectable = first
+        .filter(|_| solo.is_none() && !e.sample_size_given)
+        .and_then(|first| crate::schedule::statistics::detectable(p, i, first, share))
+        .map(|d| match margin {
+            Some(c) => crate::schedule::statistics::at_confidence(
+                truth,
+                &d,
+                truth.need.total as f64 / e.need.total as f64,
+                c,
+            ),
+            None => d,
+        });
+    // The looks of its solo run, on the days the plan would give them.
+    let looks = solo.and_then(|(start, end)| {
+        let (a, b) = (w.offset(start).offset(), w.offset(end).offset());
+        let run = crate::plan::Run {
+            start,
+            end,
+            result_date: end + Duration::days(1),
+            share,
+            days: (b - a + 1) as u32,
+            units_expected: share.fraction() * series.total(a as usize, b as usize),
+        };
+        crate::schedule::statistics::look_dates(p, i, &run)
+    });
     ExperimentCheck {
         id: e.id.clone(),
         title: e.title.clone(),
@@ -298,21 +368,20 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
         },
         eligible: e.eligible,
         driver: e.driver.clone(),
-        arms: e.need.arms,
-        control_units: e.need.control,
-        treatment_units: e.need.treatment,
-        total_units: e.need.total,
+        arms: truth.need.arms,
+        control_units: truth.need.control,
+        treatment_units: truth.need.treatment,
+        total_units: truth.need.total,
         share,
-        days_from_window_start: days,
-        end_from_window_start: end,
+        days_from_first_start: days,
+        end_from_first_start: end,
         fits_alone: solo.is_some(),
         solo_start: solo.map(|s| s.0),
         solo_end: solo.map(|s| s.1),
         reason,
         statistics: (!e.sample_size_given).then(|| crate::schedule::statistics::statistics(e)),
-        detectable: first
-            .filter(|_| solo.is_none() && !e.sample_size_given)
-            .and_then(|first| crate::schedule::statistics::detectable(p, i, first, share)),
+        detectable,
+        looks,
     }
 }
 
@@ -320,17 +389,17 @@ fn experiment(inst: &Instance, i: usize, series: &Series, start: Earliest) -> Ex
 /// `Instance` finds it from `first` on, or why none does.
 fn solo_fit(
     inst: &Instance,
-    i: usize,
+    i_ex: usize,
     series: &Series,
     share: Share,
     first: NaiveDate,
     because: Option<String>,
 ) -> (Option<(NaiveDate, NaiveDate)>, Option<String>) {
     let p = inst.portfolio;
-    let e = &p.experiments[i];
+    let e = &p.experiments[i_ex];
     let w = p.window;
     let last = e.deadline.unwrap_or(w.end).min(w.end);
-    let solo = inst.earliest_solo(i, share, w.offset(first).offset().max(0) as usize);
+    let solo = inst.earliest_solo(i_ex, share, w.offset(first).offset().max(0) as usize);
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
     }
@@ -352,12 +421,18 @@ fn solo_fit(
     } else if solo.crossed {
         format!("every run at {pct} that ends by {until} crosses a no-running blackout")
     } else if solo.ran_out {
-        let start = match (&because, first > w.start) {
-            (Some(pre), _) => format!(" even from {first}, after `{pre}` ends"),
-            (None, true) => format!(" even from its earliest start {first}"),
+        // Counted from the first day it may start on (the grid, freezes).
+        let from = w.offset(first).offset().max(0) as usize;
+        let i = (from..w.days())
+            .find(|&d| inst.may_start(d, i_ex))
+            .unwrap_or(from);
+        let day = w.date(i as i64);
+        let start = match (&because, day > w.start) {
+            (Some(pre), _) => format!(" even from {day}, after `{pre}` ends"),
+            (None, true) if first > w.start => format!(" even from its earliest start {day}"),
+            (None, true) => format!(" from the first start day, {day}"),
             (None, false) => String::new(),
         };
-        let i = w.offset(first).offset() as usize;
         match series.test_end(e, i, share.fraction()) {
             Some(j) => format!(
                 "at {pct} it needs {} days{start}, ending {}, after {until}",
@@ -412,9 +487,9 @@ mod tests {
         let need = p.experiments[0].need.total as f64;
         // 1,000 units a day at 100%: ceil(need / 1000) days, in whole weeks.
         let days = ((need / 1000.0).ceil() as u32).max(14).div_ceil(7) * 7;
-        assert_eq!(e.days_from_window_start, Some(days));
+        assert_eq!(e.days_from_first_start, Some(days));
         assert_eq!(
-            e.end_from_window_start,
+            e.end_from_first_start,
             Some(d("2027-01-04") + Duration::days(i64::from(days) - 1))
         );
         assert!(e.fits_alone);
@@ -429,7 +504,7 @@ mod tests {
         let p = portfolio("    max_share: 0.1\n", "");
         let e = &check(&p).experiments[0];
         assert!(!e.fits_alone);
-        let days = e.days_from_window_start.unwrap();
+        let days = e.days_from_first_start.unwrap();
         assert!(days > 91);
         let reason = e.reason.as_deref().unwrap();
         assert!(
@@ -448,7 +523,7 @@ mod tests {
         let mut p = p;
         p.pools[0].forecast.daily = 0.001;
         let e = &check(&p).experiments[0];
-        assert_eq!(e.days_from_window_start, None);
+        assert_eq!(e.days_from_first_start, None);
         assert!(e.reason.as_deref().unwrap().contains("more than 5 years"));
     }
 
@@ -486,7 +561,7 @@ mod tests {
         // The first Monday after the blackout.
         assert_eq!(e.solo_start, Some(d("2027-01-18")));
         // The duration from the window's first day ignores blackouts.
-        assert!(e.end_from_window_start.unwrap() >= d("2027-01-10"));
+        assert!(e.end_from_first_start.unwrap() >= d("2027-01-10"));
     }
 
     #[test]

@@ -242,12 +242,39 @@ pub struct LookDates {
     pub expected: NaiveDate,
     /// The latest result date: the run's `result_date`.
     pub latest: NaiveDate,
+    /// The interim looks that cannot stop the test early: each falls on
+    /// the day of a later look or of the result, so it has no read of its
+    /// own (a run too short for the looks planned). Empty when every look
+    /// has a day of its own.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub idle: Vec<u32>,
+    /// With idle looks, the sample all the looks add over a single read
+    /// at the end, as a fraction (the group-sequential inflation factor
+    /// less 1): what fewer looks would save.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub added_sample: Option<f64>,
 }
 
 impl LookDates {
-    /// The interim looks: every look but the last, which is the result.
-    pub fn interim(&self) -> &[LookDate] {
+    /// The interim looks that can stop the test early: every look but the
+    /// last, which is the result, and but those with no day of their own
+    /// ([`LookDates::idle`]).
+    pub fn interim(&self) -> impl Iterator<Item = &LookDate> {
+        let last = self.dates.len().saturating_sub(1);
+        self.dates[..last]
+            .iter()
+            .filter(|l| !self.idle.contains(&l.look))
+    }
+
+    /// Every interim look of the design, those with no day of their own
+    /// included: every look but the last.
+    pub fn all_interim(&self) -> &[LookDate] {
         &self.dates[..self.dates.len().saturating_sub(1)]
+    }
+
+    /// The reads the run holds on days of their own, the result included.
+    pub fn held(&self) -> usize {
+        self.dates.len() - self.idle.len()
     }
 }
 
@@ -283,6 +310,11 @@ pub struct Detectable {
     /// The detectable effect in the metric's units; `None` when too few
     /// units for any at the planned power.
     pub mde_abs: Option<f64>,
+    /// With `planning.confidence`: `units` are what the traffic delivers
+    /// on that share of its simulated paths (the plan's margin taken off),
+    /// not the expected forecast.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub confidence: Option<f64>,
 }
 
 /// When a scheduled test's result may come, over simulated traffic paths
@@ -818,6 +850,25 @@ pub struct CalendarHistory {
     /// that took place and cancels those that will not come.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub past_looks: Vec<PastLooks>,
+    /// Interim looks an earlier plan published that this plan's calendar
+    /// no longer holds, for tests it still shows (their run grew too
+    /// short for the look to have a day of its own): published cancelled.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub dropped_looks: Vec<DroppedLook>,
+}
+
+/// A published interim look that will not take place though its test
+/// still runs.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct DroppedLook {
+    /// The experiment's id.
+    pub id: String,
+    /// The look, from 1.
+    pub look: u32,
+    /// The test's looks, the final read included.
+    pub looks: u32,
+    /// Its date as last published.
+    pub date: NaiveDate,
 }
 
 /// The interim looks published for a test that has closed.
@@ -829,6 +880,10 @@ pub struct PastLooks {
     pub looks: u32,
     /// The dates of its interim looks as last published, look 1 first.
     pub dates: Vec<NaiveDate>,
+    /// Looks among `dates` that had no day of their own, so were never
+    /// published (see [`LookDates::idle`]): no event.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub idle: Vec<u32>,
 }
 
 /// One interim look's event version.
@@ -877,6 +932,10 @@ pub struct KeptEvents {
     /// are kept with the run's); empty without looks.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub looks: Vec<NaiveDate>,
+    /// Looks among `looks` that had no day of their own, so were never
+    /// published: no event.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub idle: Vec<u32>,
 }
 
 /// Re-plans only: where a running test stands and when it will finish.

@@ -139,6 +139,20 @@ fn a_replan_calendar_cancels_what_left_and_raises_the_sequence_of_what_changed()
     }
     assert!(changed > 0, "the re-plan moved something");
 
+    // Planned again from 8 February (the progress file leaves it out),
+    // `app-skip-signup` runs the 14-day minimum and its interim look falls
+    // on its result day: the look the first calendar published is
+    // cancelled, not left behind.
+    let look = &new["look-1.app-skip-signup.demo@sluice"];
+    assert_eq!(look.status, "CANCELLED", "{look:?}");
+    assert!(
+        look.summary
+            .starts_with("Interim look 1 of 2\\, not held: "),
+        "{look:?}"
+    );
+    assert_eq!(look.start, old["look-1.app-skip-signup.demo@sluice"].start);
+    assert_eq!(look.sequence, 1);
+
     // The cancelled test (it never started) is cancelled at its old
     // dates. The test that finished early (planned to run to 2027-02-07,
     // ended on 2027-01-31) and the one that finished as planned are

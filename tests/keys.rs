@@ -162,13 +162,13 @@ fn an_overlap_holdout_scales_units_and_adjustments_compose() {
 fn check_counts_eligibility_and_holdouts_in_solo_runs_and_supply() {
     let v = run(&["check", "--format", "json"]);
     let exp = |id: &str| experiment(&v, id);
-    assert_eq!(exp("everyone")["days_from_window_start"], 7);
+    assert_eq!(exp("everyone")["days_from_first_start"], 7);
     assert_eq!(exp("everyone")["metric"], "given");
-    assert_eq!(exp("logged-in")["days_from_window_start"], 14);
+    assert_eq!(exp("logged-in")["days_from_first_start"], 14);
     assert_eq!(exp("logged-in")["eligible"], 0.3);
     // The largest share beside the 5% holdout is 50%: 7,000 / 500 = 14 days.
     assert_eq!(exp("held")["share"], 0.5);
-    assert_eq!(exp("held")["days_from_window_start"], 14);
+    assert_eq!(exp("held")["days_from_first_start"], 14);
     // 84 days x 1,000 less 5%: 79,800 offered; 7,000 + 3,500 needed.
     let club = pool(&v, "club");
     assert!((club["offered_units"].as_f64().unwrap() - 79_800.0).abs() < 1e-6);

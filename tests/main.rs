@@ -3,6 +3,7 @@
 
 mod util;
 
+mod advice;
 mod board;
 mod calendar;
 mod check;

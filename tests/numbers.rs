@@ -126,6 +126,12 @@ fn a_test_that_does_not_fit_says_what_it_could_detect_and_detect_agrees() {
     for e in out {
         let id = e["id"].as_str().unwrap();
         let d = &e["detectable"];
+        if id == "basket-returns-note" {
+            // Before its deadline the plan leaves it one free week, under
+            // the 14-day minimum: no run, so nothing to detect.
+            assert!(d.is_null(), "{id}: {d}");
+            continue;
+        }
         assert!(d.is_object(), "{id}: detectable");
         assert!(d["from"].as_str() <= d["to"].as_str(), "{id}");
         let s = &e["statistics"];

@@ -97,3 +97,12 @@ pub fn demo_history_into(dir: &Path) {
 pub fn demo() -> String {
     repo("portfolios/demo.yaml").display().to_string()
 }
+
+/// Writes `text` to `name` in a new scratch folder, removed when the
+/// returned guard drops; returns the guard and the file's path.
+pub fn scratch_file(name: &str, text: &str) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().expect("a scratch folder");
+    let path = dir.path().join(name);
+    std::fs::write(&path, text).expect("the scratch file is written");
+    (dir, path)
+}

@@ -31,7 +31,16 @@ pub fn run(a: &CheckArgs) -> Result<Vec<u8>, Error> {
     let p = super::plan::load_portfolio(&a.file)?;
     let report = check::check(&p);
     match a.format {
-        TextOrJson::Json => super::json_bytes(&report),
+        TextOrJson::Json => {
+            // The text says it in place; JSON has no place for prose.
+            for e in &report.experiments {
+                if let Some(l) = e.looks.as_ref().filter(|l| !l.idle.is_empty()) {
+                    let line = crate::render::common::look_advice(&e.id, l);
+                    eprintln!("warning: {line}");
+                }
+            }
+            super::json_bytes(&report)
+        }
         TextOrJson::Text => {
             let width = crate::render::RenderOptions::for_stdout().effective_width();
             Ok(text(&report, width).into_bytes())
@@ -115,6 +124,24 @@ pub fn text(r: &CheckReport, width: usize) -> String {
         r.experiments.len(),
         Count("experiment", r.experiments.len())
     ));
+    let mut notes = Vec::new();
+    if r.first_start != r.window_start {
+        notes.push(format!(
+            "Days count from the first start day, {}.",
+            r.first_start
+        ));
+    }
+    if let Some(c) = r.confidence {
+        notes.push(format!(
+            "At {} confidence, as the plan is made: each test's days are those \
+             that collect its units on the forecast's lower quantile.",
+            crate::words::percent(c)
+        ));
+    }
+    if !notes.is_empty() {
+        out.push_str(&crate::render::text::wrap(&notes.join(" "), width, ""));
+        out.push('\n');
+    }
     let header = [
         "experiment",
         "pool",
@@ -133,7 +160,7 @@ pub fn text(r: &CheckReport, width: usize) -> String {
         } else {
             format!("{} / {}", units(e.control_units), units(e.treatment_units))
         };
-        let days = match (e.days_from_window_start, e.end_from_window_start) {
+        let days = match (e.days_from_first_start, e.end_from_first_start) {
             (Some(d), Some(end)) => format!("{d} (to {end})"),
             _ => format!("over {} years", check::HORIZON_DAYS / 365),
         };
@@ -196,6 +223,19 @@ pub fn text(r: &CheckReport, width: usize) -> String {
             let line = crate::render::numbers::detectable(d, s);
             out.push_str(&item(&line, "    "));
         }
+    }
+    let idle: Vec<String> = r
+        .experiments
+        .iter()
+        .filter_map(|e| {
+            let l = e.looks.as_ref().filter(|l| !l.idle.is_empty())?;
+            let line = crate::render::common::look_advice(&format!("`{}`", e.id), l);
+            Some(item(&line, "  "))
+        })
+        .collect();
+    if !idle.is_empty() {
+        out.push_str("\nInterim looks that cannot stop a test early, even alone:\n");
+        out.extend(idle);
     }
     let secondary: Vec<String> = r
         .experiments

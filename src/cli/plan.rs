@@ -77,6 +77,9 @@ pub fn emit(mut plan: Plan, out: &OutputArgs, inputs: &[&Path]) -> Result<Vec<u8
     if let Some(note) = crate::render::common::cut_short_note(&plan) {
         eprintln!("warning: {}", note.replace('`', ""));
     }
+    for line in crate::render::common::idle_look_lines(&plan) {
+        eprintln!("warning: {line}");
+    }
     let opts = if out.out.is_some() {
         RenderOptions::for_file()
     } else {

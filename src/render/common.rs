@@ -451,10 +451,59 @@ pub fn news(plan: &Plan) -> Vec<(&'static str, &'static str, Vec<String>)> {
             "Tests the progress file leaves out",
             missing_progress_lines(plan),
         ),
+        (
+            "idle-looks",
+            "Interim looks that cannot stop a test early",
+            idle_look_lines(plan),
+        ),
     ]
     .into_iter()
     .filter(|(_, _, lines)| !lines.is_empty())
     .collect()
+}
+
+/// The tests in the calendar with interim looks that have no day of their
+/// own (see [`crate::plan::LookDates::idle`]), one sentence each: which
+/// looks, how many reads the run holds, what the looks cost and what to do.
+pub fn idle_look_lines(plan: &Plan) -> Vec<String> {
+    plan.experiments
+        .iter()
+        .filter(|e| e.status.in_calendar())
+        .filter_map(|e| Some((e, e.looks.as_ref().filter(|l| !l.idle.is_empty())?)))
+        .map(|(e, l)| look_advice(&e.id, l))
+        .collect()
+}
+
+/// One sentence on a test whose looks `l` include idle ones.
+pub fn look_advice(id: &str, l: &crate::plan::LookDates) -> String {
+    let planned = l.dates.len().saturating_sub(1);
+    let idle = l.idle.len();
+    let on: Vec<String> = l
+        .dates
+        .iter()
+        .filter(|d| l.idle.contains(&d.look))
+        .map(|d| format!("look {} on {}", d.look, d.date))
+        .collect();
+    let held = l.held();
+    let holds = match held {
+        1 => "only its final read, so it cannot stop early".to_string(),
+        h => format!("{h} reads on days of their own"),
+    };
+    let cost = l
+        .added_sample
+        .map(|a| format!(", while the looks add {} to its sample", percent(a)))
+        .unwrap_or_default();
+    let fix = if held <= 1 {
+        "a single read (leave out `looks`)".to_string()
+    } else {
+        format!("`looks: {held}`")
+    };
+    format!(
+        "{id}: {idle} of its {planned} {} {} on the day of a later look or of its result ({}); its run holds {holds}{cost}. Plan it with {fix}, or lower its `max_share` so that its run is long enough for its looks.",
+        crate::words::Count("interim look", planned),
+        crate::words::agree("falls", "fall", idle),
+        on.join(", "),
+    )
 }
 
 /// The tests the previous plan ended before today that the progress file

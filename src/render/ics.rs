@@ -21,8 +21,8 @@
 use super::common::{cut_short_note, pools_label, ramp_words, thousands, units};
 use super::{RenderError, RenderOptions, Renderer};
 use crate::plan::{
-    CalendarHistory, EventSequence, KeptEvents, LookSequence, PastLooks, Plan, PlannedExperiment,
-    Run, Status,
+    CalendarHistory, DroppedLook, EventSequence, KeptEvents, LookSequence, PastLooks, Plan,
+    PlannedExperiment, Run, Status,
 };
 use chrono::{Duration, NaiveDate, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, EventStatus, Property};
@@ -156,7 +156,6 @@ fn look_contents(e: &PlannedExperiment) -> Vec<(u32, Content)> {
     };
     let n = l.dates.len();
     l.interim()
-        .iter()
         .map(|d| {
             (
                 d.look,
@@ -206,6 +205,7 @@ fn past_look_contents(plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Content)>
     past.dates
         .iter()
         .enumerate()
+        .filter(|(i, _)| !past.idle.contains(&(*i as u32 + 1)))
         .map(|(i, &date)| {
             let k = i as u32 + 1;
             let head = format!("Experiment: {} ({})\n", e.title, e.id);
@@ -486,7 +486,7 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
             .calendar
             .iter()
             .flat_map(|c| &c.kept)
-            .any(|k| k.id == id && k.looks.len() >= look as usize)
+            .any(|k| k.id == id && k.looks.len() >= look as usize && !k.idle.contains(&look))
     };
     // `plan` with this history's past looks, so a closed test's looks
     // are worded as they will be written.
@@ -518,7 +518,7 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
             push(&e.id, look, sequence);
         }
     }
-    let kept: Vec<(String, usize, bool)> = history
+    let kept: Vec<(String, usize, Vec<u32>, bool)> = history
         .kept
         .iter()
         .map(|k| {
@@ -527,14 +527,39 @@ fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
                 .iter()
                 .flat_map(|c| &c.kept)
                 .any(|p| p.id == k.id);
-            (k.id.clone(), k.looks.len(), new)
+            (k.id.clone(), k.looks.len(), k.idle.clone(), new)
         })
         .collect();
-    for (id, n, new) in kept {
-        for look in 1..=n as u32 {
+    for (id, n, idle, new) in kept {
+        for look in (1..=n as u32).filter(|k| !idle.contains(k)) {
             let base = look_sequence_of(previous, &id, look);
             push(&id, look, if new { base + 1 } else { base });
         }
+    }
+    // A dropped look changes once, when it is first published cancelled.
+    let before_all = look_specs(previous);
+    let with_dropped = Plan {
+        calendar: Some(CalendarHistory {
+            dropped_looks: history.dropped_looks.clone(),
+            ..CalendarHistory::default()
+        }),
+        ..plan.clone()
+    };
+    let dropped: Vec<LookSpec> = look_specs(&with_dropped)
+        .into_iter()
+        .filter(|l| {
+            history
+                .dropped_looks
+                .iter()
+                .any(|d| d.id == l.id && d.look == l.look)
+        })
+        .collect();
+    for l in dropped {
+        let base = look_sequence_of(previous, &l.id, l.look);
+        let same = before_all
+            .iter()
+            .any(|b| b.id == l.id && b.look == l.look && b.content == l.content);
+        push(&l.id, l.look, if same { base } else { base + 1 });
     }
 }
 
@@ -573,50 +598,12 @@ fn specs(plan: &Plan) -> Vec<Spec> {
     }
     // Interim looks last, so the run and result events keep their places;
     // a kept test's looks go as its run and result do.
-    for k in plan.calendar.iter().flat_map(|c| &c.kept) {
-        let status = if k.cancelled {
-            EventStatus::Cancelled
-        } else {
-            EventStatus::Confirmed
-        };
-        let n = k.looks.len() + 1;
-        for (i, &date) in k.looks.iter().enumerate() {
-            out.push(Spec {
-                uid: uid(&plan.id, &k.id, EventKind::Look(i as u32 + 1)),
-                content: Content {
-                    summary: format!(
-                        "Interim look {} of {n}, may stop early: {} [{}]",
-                        i + 1,
-                        k.title,
-                        k.id
-                    ),
-                    description: format!(
-                        "Experiment: {} ({})\n{}\nPortfolio: {}",
-                        k.title,
-                        k.id,
-                        if k.cancelled {
-                            "This look no longer holds."
-                        } else {
-                            "The test has finished."
-                        },
-                        plan.portfolio
-                    ),
-                    start: date,
-                    end: date,
-                    status,
-                },
-                sequence: look_sequence_of(plan, &k.id, i as u32 + 1),
-            });
-        }
-    }
-    for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
-        for (k, content) in look_events(plan, e) {
-            out.push(Spec {
-                uid: uid(&plan.id, &e.id, EventKind::Look(k)),
-                content,
-                sequence: look_sequence_of(plan, &e.id, k),
-            });
-        }
+    for l in look_specs(plan) {
+        out.push(Spec {
+            uid: uid(&plan.id, &l.id, EventKind::Look(l.look)),
+            sequence: look_sequence_of(plan, &l.id, l.look),
+            content: l.content,
+        });
     }
     out
 }
@@ -656,20 +643,30 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
         let before_e = previous.experiments.iter().find(|o| o.id == e.id);
         // The interim looks published for a test that has now closed.
         if contents(plan, e).is_none() {
-            let published: Vec<NaiveDate> = match before_e.map(look_contents) {
-                Some(looks) if !looks.is_empty() => looks.iter().map(|(_, c)| c.start).collect(),
-                _ => previous
+            // By look: every interim look of the design, and those never
+            // published for want of a day of their own.
+            let published: (Vec<NaiveDate>, Vec<u32>) = match before_e
+                .filter(|o| !look_contents(o).is_empty())
+                .and_then(|o| o.looks.as_ref())
+            {
+                Some(l) => (
+                    l.all_interim().iter().map(|d| d.date).collect(),
+                    l.idle.clone(),
+                ),
+                None => previous
                     .calendar
                     .iter()
                     .flat_map(|c| &c.past_looks)
                     .find(|p| p.id == e.id)
-                    .map_or_else(Vec::new, |p| p.dates.clone()),
+                    .map_or_else(Default::default, |p| (p.dates.clone(), p.idle.clone())),
             };
-            if !published.is_empty() {
+            if !published.0.is_empty() {
+                let (dates, idle) = published;
                 history.past_looks.push(PastLooks {
                     id: e.id.clone(),
-                    looks: published.len() as u32 + 1,
-                    dates: published,
+                    looks: dates.len() as u32 + 1,
+                    dates,
+                    idle,
                 });
             }
         }
@@ -717,10 +714,10 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             end: run.end,
             result_date: run.result_date,
             sequence: sequence_of(previous, &o.id) + 1,
-            looks: o
-                .looks
-                .as_ref()
-                .map_or_else(Vec::new, |l| l.interim().iter().map(|d| d.date).collect()),
+            looks: published_looks(o).map_or_else(Vec::new, |l| {
+                l.all_interim().iter().map(|d| d.date).collect()
+            }),
+            idle: published_looks(o).map_or_else(Vec::new, |l| l.idle.clone()),
         });
     }
     for k in prev_kept {
@@ -728,8 +725,145 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             history.kept.push(k.clone());
         }
     }
+    history.dropped_looks = dropped_looks(previous, plan, &history);
     look_history(previous, plan, &mut history);
     history
+}
+
+/// The looks of `o` its calendar published: `None` when it published none
+/// (no looks, or none with a day of its own).
+fn published_looks(o: &PlannedExperiment) -> Option<&crate::plan::LookDates> {
+    o.looks.as_ref().filter(|l| l.interim().next().is_some())
+}
+
+/// The looks `previous`'s calendar published that `plan`'s, with the
+/// rest of `history`, would leave out: each is published again cancelled.
+fn dropped_looks(previous: &Plan, plan: &Plan, history: &CalendarHistory) -> Vec<DroppedLook> {
+    let now = Plan {
+        calendar: Some(CalendarHistory {
+            dropped_looks: Vec::new(),
+            ..history.clone()
+        }),
+        ..plan.clone()
+    };
+    let written: Vec<(String, u32)> = look_specs(&now)
+        .into_iter()
+        .map(|l| (l.id, l.look))
+        .collect();
+    look_specs(previous)
+        .into_iter()
+        .filter(|l| !written.iter().any(|(id, k)| *id == l.id && *k == l.look))
+        .map(|l| DroppedLook {
+            id: l.id,
+            look: l.look,
+            looks: l.looks,
+            date: l.content.start,
+        })
+        .collect()
+}
+
+/// One interim look's event in a plan's calendar.
+struct LookSpec {
+    id: String,
+    look: u32,
+    /// The test's looks, the final read included.
+    looks: u32,
+    content: Content,
+}
+
+/// Every interim look event of `plan`'s calendar, in the order written:
+/// kept tests' looks, the experiments' own, then dropped looks.
+fn look_specs(plan: &Plan) -> Vec<LookSpec> {
+    let mut out = Vec::new();
+    let calendar = plan.calendar.as_ref();
+    let kept: Vec<&KeptEvents> = calendar.iter().flat_map(|c| &c.kept).collect();
+    for k in &kept {
+        let status = if k.cancelled {
+            EventStatus::Cancelled
+        } else {
+            EventStatus::Confirmed
+        };
+        let n = k.looks.len() as u32 + 1;
+        for (i, &date) in k.looks.iter().enumerate() {
+            let look = i as u32 + 1;
+            if k.idle.contains(&look) {
+                continue;
+            }
+            out.push(LookSpec {
+                id: k.id.clone(),
+                look,
+                looks: n,
+                content: Content {
+                    summary: format!(
+                        "Interim look {look} of {n}, may stop early: {} [{}]",
+                        k.title, k.id
+                    ),
+                    description: format!(
+                        "Experiment: {} ({})\n{}\nPortfolio: {}",
+                        k.title,
+                        k.id,
+                        if k.cancelled {
+                            "This look no longer holds."
+                        } else {
+                            "The test has finished."
+                        },
+                        plan.portfolio
+                    ),
+                    start: date,
+                    end: date,
+                    status,
+                },
+            });
+        }
+    }
+    for e in plan
+        .experiments
+        .iter()
+        .filter(|e| kept.iter().all(|k| k.id != e.id))
+    {
+        let n = e.looks.as_ref().map_or(1, |l| l.dates.len() as u32);
+        for (look, content) in look_events(plan, e) {
+            let n = calendar
+                .iter()
+                .flat_map(|c| &c.past_looks)
+                .find(|p| p.id == e.id && e.run.is_none())
+                .map_or(n, |p| p.looks);
+            out.push(LookSpec {
+                id: e.id.clone(),
+                look,
+                looks: n,
+                content,
+            });
+        }
+    }
+    for d in calendar.iter().flat_map(|c| &c.dropped_looks) {
+        let title = plan
+            .experiments
+            .iter()
+            .find(|e| e.id == d.id)
+            .map_or(d.id.as_str(), |e| e.title.as_str());
+        out.push(LookSpec {
+            id: d.id.clone(),
+            look: d.look,
+            looks: d.looks,
+            content: Content {
+                summary: format!(
+                    "Interim look {} of {}, not held: {title} [{}]",
+                    d.look, d.looks, d.id
+                ),
+                description: format!(
+                    "Experiment: {title} ({})\nThis look will not take place: the test's run \
+                     no longer holds it on a day of its own, so a later look or the result \
+                     reads the same data.\nPortfolio: {}",
+                    d.id, plan.portfolio
+                ),
+                start: d.date,
+                end: d.date,
+                status: EventStatus::Cancelled,
+            },
+        });
+    }
+    out
 }
 
 impl Renderer for Ics {

@@ -124,9 +124,17 @@ pub fn look_dates(l: &LookDates) -> String {
         .iter()
         .map(|d| format!("{} ({})", d.date, percent(d.stop_probability)))
         .collect();
-    let interim = match n.saturating_sub(1) {
-        1 => "its interim look may stop it early".to_string(),
-        k => format!("its {k} interim looks may stop it early"),
+    let planned = n.saturating_sub(1);
+    let live = l.interim().count();
+    let interim = match (planned, live) {
+        (1, 1) => "its interim look may stop it early".to_string(),
+        (k, m) if k == m => format!("its {k} interim looks may stop it early"),
+        (1, 0) => "its interim look falls on its result day, so it cannot stop early".to_string(),
+        (_, 0) => "none of its interim looks has a day of its own before the result, so it cannot stop early".to_string(),
+        (k, m) => format!(
+            "only {m} of its {k} interim looks {} a day of its own before the result and may stop it early",
+            if m == 1 { "has" } else { "have" }
+        ),
     };
     format!(
         "Looks on {} (chance of stopping there under the planned effect); \
@@ -140,8 +148,12 @@ pub fn look_dates(l: &LookDates) -> String {
 
 /// What a test that does not fit could detect, in one sentence.
 pub fn detectable(d: &Detectable, s: &TestStatistics) -> String {
+    let paths = match d.confidence {
+        Some(c) => format!(" on {} of traffic paths", percent(c)),
+        None => String::new(),
+    };
     let head = format!(
-        "With the traffic from {} to {} at {} ({} units)",
+        "With the traffic from {} to {} at {} ({} units{paths})",
         d.from,
         d.to,
         d.share,
@@ -411,6 +423,8 @@ mod tests {
             earliest: d("2027-01-18"),
             expected: d("2027-01-25"),
             latest: d("2027-02-01"),
+            idle: vec![],
+            added_sample: None,
         };
         let text = look_dates(&l);
         assert!(
@@ -419,6 +433,44 @@ mod tests {
         );
         assert!(text.contains("earliest result 2027-01-18, expected 2027-01-25"));
         assert!(text.contains("latest 2027-02-01"));
+        assert!(
+            text.ends_with("its interim look may stop it early."),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn looks_with_no_day_of_their_own_cannot_stop_a_test() {
+        let look = |k: u32, date: &str| LookDate {
+            look: k,
+            information: f64::from(k) / 3.0,
+            date: d(date),
+            stop_probability: 0.2,
+        };
+        let mut l = LookDates {
+            dates: vec![
+                look(1, "2027-05-03"),
+                look(2, "2027-05-03"),
+                look(3, "2027-05-03"),
+            ],
+            earliest: d("2027-05-03"),
+            expected: d("2027-05-03"),
+            latest: d("2027-05-03"),
+            idle: vec![1, 2],
+            added_sample: Some(0.12),
+        };
+        let text = look_dates(&l);
+        assert!(
+            text.ends_with("none of its interim looks has a day of its own before the result, so it cannot stop early."),
+            "{text}"
+        );
+        l.dates[0].date = d("2027-04-19");
+        l.idle = vec![2];
+        let text = look_dates(&l);
+        assert!(
+            text.ends_with("only 1 of its 2 interim looks has a day of its own before the result and may stop it early."),
+            "{text}"
+        );
     }
 
     #[test]
@@ -441,12 +493,19 @@ mod tests {
             units: 123_456.0,
             mde: Some(0.061),
             mde_abs: Some(0.001891),
+            confidence: None,
         };
         assert_eq!(
             detectable(&det, &s),
             "With the traffic from 2027-01-04 to 2027-04-04 at 50% (123,456 units) it could \
              detect +6.1% (+0.189 points) at power 80%; its planned MDE is +4% (+0.124 points)."
         );
+        let margin = Detectable {
+            confidence: Some(0.8),
+            ..det
+        };
+        assert!(detectable(&margin, &s)
+            .starts_with("With the traffic from 2027-01-04 to 2027-04-04 at 50% (123,456 units on 80% of traffic paths) it could"));
     }
 
     #[test]

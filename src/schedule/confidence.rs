@@ -23,22 +23,45 @@ use crate::words::{percent, thousands};
 /// How many times the portfolio is planned at most.
 pub const ROUNDS: usize = 6;
 
-/// Plans `portfolio` so that each scheduled test ends by its planned end
-/// on at least a share `confidence` of the simulated paths, where a few
-/// rounds of tightening can reach it; the plan's ranges say what each
-/// test achieved.
-pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64) -> Plan {
+/// How much more than its need each test is first asked for at
+/// `confidence`: one over its pool's lower-quantile factor (on several
+/// pools, the most lowered forecast among them).
+fn first_ask(portfolio: &Portfolio, confidence: f64) -> Vec<f64> {
     let factors: Vec<f64> = portfolio
         .pools
         .iter()
         .map(|p| lower_quantile_factor(p.forecast.uncertainty(), confidence))
         .collect();
-    let mut ask: Vec<f64> = portfolio
+    portfolio
         .experiments
         .iter()
-        // On several pools, the most lowered forecast among them.
         .map(|ex| 1.0 / ex.pools.iter().map(|&k| factors[k]).fold(1.0, f64::min))
-        .collect();
+        .collect()
+}
+
+/// `portfolio` with each test's need times its `ask`, rounded up.
+fn asking(portfolio: &Portfolio, ask: &[f64]) -> Portfolio {
+    let mut asked = portfolio.clone();
+    for (ex, a) in asked.experiments.iter_mut().zip(ask) {
+        ex.need.total = (ex.need.total as f64 * a).ceil() as u64;
+    }
+    asked
+}
+
+/// `portfolio` as the plan's first round at `confidence` sees it: each
+/// test asking for the units that reach its need on the lower quantile of
+/// its pools' forecast. `check` sizes solo runs on it, so it and `plan`
+/// agree on which tests fit.
+pub fn at_confidence(portfolio: &Portfolio, confidence: f64) -> Portfolio {
+    asking(portfolio, &first_ask(portfolio, confidence))
+}
+
+/// Plans `portfolio` so that each scheduled test ends by its planned end
+/// on at least a share `confidence` of the simulated paths, where a few
+/// rounds of tightening can reach it; the plan's ranges say what each
+/// test achieved.
+pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64) -> Plan {
+    let mut ask = first_ask(portfolio, confidence);
     let today = request.today.unwrap_or(portfolio.window.start);
     let so_far: Vec<_> = request
         .fixed
@@ -47,10 +70,7 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
         .collect();
     let mut round = 1;
     loop {
-        let mut asked = portfolio.clone();
-        for (ex, a) in asked.experiments.iter_mut().zip(&ask) {
-            ex.need.total = (ex.need.total as f64 * a).ceil() as u64;
-        }
+        let asked = asking(portfolio, &ask);
         let mut plan = plan_once(&asked, request);
         // Back to what each test truly needs, confirmed on the true forecast.
         for ((pe, ex), more) in plan
@@ -84,6 +104,7 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
             })
             .collect();
         if short.is_empty() || round == ROUNDS {
+            margin_facts(portfolio, &asked, &mut plan, confidence);
             return plan;
         }
         // Ask a short test for more: a step that grows with its shortfall.
@@ -91,5 +112,41 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
             ask[e] *= 1.03 + 0.5 * (confidence - got);
         }
         round += 1;
+    }
+}
+
+/// For each left-out test the plan asked more units of: what it could
+/// detect is counted on the traffic at `confidence` (its units times its
+/// true need over the units asked), and a test the room left would hold
+/// on the expected forecast is told that the margin is the cause.
+fn margin_facts(portfolio: &Portfolio, asked: &Portfolio, plan: &mut Plan, confidence: f64) {
+    for ((pe, ex), more) in plan
+        .experiments
+        .iter_mut()
+        .zip(&portfolio.experiments)
+        .zip(&asked.experiments)
+    {
+        if pe.status != Status::Unscheduled || more.need.total <= ex.need.total {
+            continue;
+        }
+        let Some(d) = pe.detectable.take() else {
+            continue;
+        };
+        let factor = ex.need.total as f64 / more.need.total as f64;
+        if d.units >= ex.need.total as f64 {
+            pe.reason = Some(format!(
+                "the room the plan leaves holds it on the expected forecast ({} from {} to {}, \
+                 {} units against the {} it needs), but not with the margin for {} confidence, \
+                 which plans it as {} units; lower `planning.confidence` or free its pool",
+                d.share,
+                d.from,
+                d.to,
+                thousands(d.units.floor() as u64),
+                thousands(ex.need.total),
+                percent(confidence),
+                thousands(more.need.total)
+            ));
+        }
+        pe.detectable = Some(super::statistics::at_confidence(ex, &d, factor, confidence));
     }
 }

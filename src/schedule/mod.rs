@@ -33,6 +33,7 @@ pub mod synthetic;
 mod tests;
 mod verify;
 
+pub use confidence::at_confidence;
 pub use lp::Backend;
 pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
@@ -45,8 +46,8 @@ use crate::plan::{
 use crate::portfolio::Portfolio;
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
-pub(crate) use options::Instance;
 use options::Role;
+pub(crate) use options::{on_grid, Instance};
 use rayon::prelude::*;
 use std::sync::atomic::AtomicBool;
 use std::sync::{Mutex, PoisonError};

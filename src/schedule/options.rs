@@ -17,7 +17,7 @@ use crate::day::Day;
 use crate::forecast::Series;
 use crate::portfolio::{BlackoutKind, Portfolio, Sharing, StartGrid};
 use crate::share::Share;
-use chrono::Datelike;
+use chrono::{Datelike, NaiveDate};
 
 /// One candidate run of one test.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -326,16 +326,12 @@ impl<'a> Instance<'a> {
     /// Whether test `e` may start on `day`: on the start grid and not in a
     /// `no_starts` blackout of any of its pools.
     pub fn may_start(&self, day: usize, e: usize) -> bool {
-        self.on_grid(day)
-            && !self.portfolio.experiments[e]
-                .pools
-                .iter()
-                .any(|&pool| self.no_start(day, pool))
+        may_start_on(self.portfolio, e, self.portfolio.window.date(day as i64))
     }
 
     /// The last day index a run of test `e` may end on: its deadline or
     /// the window's last day, whichever comes first.
-    fn last_end(&self, e: usize) -> i64 {
+    pub(crate) fn last_end(&self, e: usize) -> i64 {
         let p = self.portfolio;
         p.experiments[e]
             .deadline
@@ -403,20 +399,7 @@ impl<'a> Instance<'a> {
 
     /// Whether `day` is on the start grid.
     pub fn on_grid(&self, day: usize) -> bool {
-        let p = self.portfolio;
-        match p.planning.grid {
-            StartGrid::Daily => true,
-            StartGrid::Weekly => p.window.date(day as i64).weekday() == p.planning.start_weekday,
-        }
-    }
-
-    /// Whether a `no_starts` blackout covers `day` on `pool`.
-    pub fn no_start(&self, day: usize, pool: usize) -> bool {
-        let date = self.portfolio.window.date(day as i64);
-        self.portfolio
-            .blackouts
-            .iter()
-            .any(|b| b.kind == BlackoutKind::NoStarts && b.covers(date, pool))
+        on_grid(self.portfolio, self.portfolio.window.date(day as i64))
     }
 
     /// Days of `pool` a `no_running` blackout covers.
@@ -539,4 +522,30 @@ impl<'a> Instance<'a> {
             })
             .sum()
     }
+}
+
+/// Whether `date` is on the portfolio's start grid.
+pub(crate) fn on_grid(p: &Portfolio, date: NaiveDate) -> bool {
+    match p.planning.grid {
+        StartGrid::Daily => true,
+        StartGrid::Weekly => date.weekday() == p.planning.start_weekday,
+    }
+}
+
+/// Whether a `no_starts` blackout covers `date` on `pool`.
+fn no_start(p: &Portfolio, date: NaiveDate, pool: usize) -> bool {
+    p.blackouts
+        .iter()
+        .any(|b| b.kind == BlackoutKind::NoStarts && b.covers(date, pool))
+}
+
+/// Whether test `e` may start on `date`: on the start grid and not in a
+/// `no_starts` blackout of any of its pools. The one home of the rule, for
+/// the planner's options and for what a left-out test could still run.
+pub(crate) fn may_start_on(p: &Portfolio, e: usize, date: NaiveDate) -> bool {
+    on_grid(p, date)
+        && !p.experiments[e]
+            .pools
+            .iter()
+            .any(|&pool| no_start(p, date, pool))
 }

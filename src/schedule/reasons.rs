@@ -143,7 +143,11 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         return format!("no start day on the grid is left after {}", w.date(lo));
     };
     let start = w.date(first as i64);
-    let left = inst.days - first;
+    // Days from its first start to the last it may end on: its deadline
+    // when that comes before the window's end.
+    let last = inst.last_end(e);
+    let left = (last - first as i64 + 1).max(0);
+    let by_deadline = last < inst.days as i64 - 1;
     match days_needed(inst, e, start, top) {
         None => {
             return format!(
@@ -152,7 +156,22 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 share_of(inst, e, top)
             )
         }
-        Some(n) if n > left as i64 => {
+        Some(n) if n > left && by_deadline => {
+            let dl = w.date(last);
+            return if first == 0 {
+                let end = start + Duration::days(n - 1);
+                format!(
+                    "deadline {dl} cannot be met: at its maximum share of {top}{} the earliest end is {end}",
+                    limits(inst, e)
+                )
+            } else {
+                format!(
+                    "deadline {dl} cannot be met: needs {n} days at {}; from its earliest start on {start} to its deadline there are {left}",
+                    share_of(inst, e, top)
+                )
+            };
+        }
+        Some(n) if n > left => {
             return if first == 0 {
                 format!(
                     "needs {n} days at {}; the window has {left}",
@@ -165,17 +184,7 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 )
             };
         }
-        Some(n) => {
-            if let Some(dl) = ex.deadline {
-                let end = start + Duration::days(n - 1);
-                if end > dl {
-                    return format!(
-                        "deadline {dl} cannot be met: at its maximum share of {top}{} the earliest end is {end}",
-                        limits(inst, e)
-                    );
-                }
-            }
-        }
+        Some(_) => {}
     }
     if inst.options[e].is_empty() {
         return why_no_option(inst, e, first, top);

@@ -164,10 +164,19 @@ pub fn look_dates(p: &Portfolio, e: usize, run: &Run) -> Option<LookDates> {
         })
         .collect();
     let expected = read_on(&series, ex, run, looks.design.expected_fraction_h1 * max);
+    // A look whose day is a later look's (or the result's) has no read of
+    // its own: the later one reads the same data.
+    let idle: Vec<u32> = dates
+        .windows(2)
+        .filter(|w| w[0].date >= w[1].date)
+        .map(|w| w[0].look)
+        .collect();
     Some(LookDates {
         earliest: dates.first().map_or(run.result_date, |l| l.date),
         expected,
         latest: run.result_date,
+        added_sample: (!idle.is_empty()).then_some(looks.design.inflation - 1.0),
+        idle,
         dates,
     })
 }
@@ -239,7 +248,7 @@ fn detectable_where(
     }
     let series = Series::of_test(ex, &p.pools, from, to);
     // A run is one contiguous span and never crosses a no-running
-    // blackout: the longest stretch between them, by units.
+    // blackout: the stretches between them.
     let blocked = |i: usize| {
         let date = from + Duration::days(i as i64);
         !open(date)
@@ -247,6 +256,9 @@ fn detectable_where(
                 b.kind == BlackoutKind::NoRunning && ex.pools.iter().any(|&k| b.covers(date, k))
             })
     };
+    // In each, the runs the plan's rules allow: a start on the grid and
+    // outside `no_starts`, at least the minimum run, whole weeks when the
+    // test asks for them, to the stretch's end at most. The most units.
     let mut best: Option<(usize, usize, f64)> = None;
     let mut i = 0;
     while i < series.len() {
@@ -258,18 +270,46 @@ fn detectable_where(
         while j + 1 < series.len() && !blocked(j + 1) {
             j += 1;
         }
-        let total = series.total(i, j);
-        if best.is_none_or(|(_, _, t)| total > t) {
-            best = Some((i, j, total));
+        for s in i..=j {
+            let mut days = j - s + 1;
+            if ex.whole_weeks {
+                days -= days % 7;
+            }
+            if days == 0 || days < ex.min_days as usize {
+                // Later starts only leave fewer days.
+                break;
+            }
+            if !super::options::may_start_on(p, e, from + Duration::days(s as i64)) {
+                continue;
+            }
+            let total = series.total(s, s + days - 1);
+            if best.is_none_or(|(_, _, t)| total > t) {
+                best = Some((s, s + days - 1, total));
+            }
         }
         i = j + 1;
     }
     let (first, last, total) = best?;
-    let (from, to) = (
+    Some(detectable_of(
+        ex,
         from + Duration::days(first as i64),
         from + Duration::days(last as i64),
-    );
-    let units = share.fraction() * total;
+        share,
+        share.fraction() * total,
+        None,
+    ))
+}
+
+/// What `ex` can detect with `units` collected from `from` to `to` at
+/// `share`; `confidence` when `units` are the plan's lower quantile.
+fn detectable_of(
+    ex: &Experiment,
+    from: NaiveDate,
+    to: NaiveDate,
+    share: Share,
+    units: f64,
+    confidence: Option<f64>,
+) -> Detectable {
     let effect = (units > 0.0)
         .then(|| detectable_effect(ex, units))
         .flatten();
@@ -280,14 +320,35 @@ fn detectable_where(
         }
         None => (None, None),
     };
-    Some(Detectable {
+    Detectable {
         from,
         to,
         share,
         units,
         mde,
         mde_abs,
-    })
+        confidence,
+    }
+}
+
+/// `d` counted at a plan's `confidence`: its units times `factor`, the
+/// test's true need over the units the plan asked for it (see
+/// `planning.confidence`), so the effect is what the traffic delivers on
+/// that share of its paths.
+pub(crate) fn at_confidence(
+    ex: &Experiment,
+    d: &Detectable,
+    factor: f64,
+    confidence: f64,
+) -> Detectable {
+    detectable_of(
+        ex,
+        d.from,
+        d.to,
+        d.share,
+        d.units * factor,
+        Some(confidence),
+    )
 }
 
 /// Fills every sized experiment's statistics (a given sample size has

@@ -1004,7 +1004,7 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
     // The summed forecast is what `check` reads too: the same end alone.
     let report = crate::check::check(&p);
     assert_eq!(
-        report.experiments[0].end_from_window_start,
+        report.experiments[0].end_from_first_start,
         Some(d("2027-01-14"))
     );
     assert_eq!(report.experiments[0].pools, vec!["a", "b", "c"]);

@@ -245,11 +245,12 @@ fn row_words(plan: &Plan, e: &PlannedExperiment) -> String {
             let looks = e
                 .looks
                 .as_ref()
-                .filter(|l| l.dates.len() > 1)
-                .map(|l| {
+                .map(|l| l.interim().count())
+                .filter(|&n| n > 0)
+                .map(|n| {
                     format!(
                         "; {} that may stop it early",
-                        crate::words::Count("interim look", l.dates.len() - 1)
+                        crate::words::Count("interim look", n)
                     )
                 })
                 .unwrap_or_default();
@@ -536,7 +537,6 @@ fn look_ticks(scale: &Scale, e: &PlannedExperiment) -> Vec<(f64, String)> {
     };
     let n = l.dates.len();
     l.interim()
-        .iter()
         .map(|d| {
             (
                 scale.x(d.date).clamp(CAL_X0, CAL_X1),
