@@ -250,13 +250,6 @@ pub fn check(p: &Portfolio) -> CheckReport {
     }
 }
 
-/// The largest share level not above `max_share` nor, on a split pool,
-/// any of its pools' capacity (validation guarantees one).
-pub fn share_for(p: &Portfolio, e: &Experiment) -> Share {
-    let most = p.share_cap(e);
-    p.share_levels.largest_up_to(most).unwrap_or(most)
-}
-
 /// The first day a solo run of `e` may start, and why not earlier.
 #[derive(Debug, Clone, PartialEq)]
 enum Earliest {
@@ -302,7 +295,7 @@ fn experiment(
     let p = inst.portfolio;
     let e = &p.experiments[i];
     let w = p.window;
-    let share = share_for(p, e);
+    let share = p.top_share(e);
     let from = w.offset(first_start).offset().max(0) as usize;
     let (days, end) = match series.test_end(e, from, share.fraction()) {
         Some(j) => (Some((j - from) as u32 + 1), Some(w.date(j as i64))),
@@ -474,9 +467,9 @@ mod tests {
     #[test]
     fn the_share_is_the_largest_level_under_max_share() {
         let p = portfolio("    max_share: 0.3\n", "");
-        assert_eq!(share_for(&p, &p.experiments[0]), Share::from_fraction(0.25));
+        assert_eq!(p.top_share(&p.experiments[0]), Share::from_fraction(0.25));
         let p = portfolio("", "");
-        assert_eq!(share_for(&p, &p.experiments[0]), Share::WHOLE);
+        assert_eq!(p.top_share(&p.experiments[0]), Share::WHOLE);
     }
 
     #[test]

@@ -670,6 +670,14 @@ impl Portfolio {
             .fold(ex.max_share, Share::min)
     }
 
+    /// The share a test runs at when it may take all it is allowed: the
+    /// largest share level not above [`Portfolio::share_cap`]
+    /// (validation guarantees one).
+    pub fn top_share(&self, ex: &Experiment) -> Share {
+        let most = self.share_cap(ex);
+        self.share_levels.largest_up_to(most).unwrap_or(most)
+    }
+
     /// The fraction of the units under experiment `experiment`'s share of
     /// pool `pool` that enter the test: its `eligible` times the pool's
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.

@@ -11,6 +11,7 @@
 //! whole weeks the segments are the weeks themselves, which keeps the
 //! model small.
 
+pub use super::backend::Backend;
 use super::millionths::{room, WHOLE};
 use super::options::{Instance, Opt};
 use crate::portfolio::Sharing;
@@ -19,62 +20,6 @@ use good_lp::{
     Variable, WithTimeLimit,
 };
 
-/// The LP/MILP backend behind good_lp.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum Backend {
-    /// microlp: pure Rust, in every build.
-    #[default]
-    Microlp,
-    /// HiGHS, built from source with the `highs` cargo feature.
-    #[cfg(feature = "highs")]
-    Highs,
-}
-
-impl Backend {
-    /// The name in plans and tables.
-    pub fn name(self) -> &'static str {
-        match self {
-            Backend::Microlp => "microlp",
-            #[cfg(feature = "highs")]
-            Backend::Highs => "highs",
-        }
-    }
-
-    /// Whether its MILP is worth running on whole components within a
-    /// time limit (microlp's is not: it returns nothing when stopped early).
-    pub fn solves_milp(self) -> bool {
-        match self {
-            Backend::Microlp => false,
-            #[cfg(feature = "highs")]
-            Backend::Highs => true,
-        }
-    }
-
-    /// Whether several of its solves may run at once on different threads
-    /// (HiGHS's shared task scheduler has crashed when they did: HiGHS
-    /// issues 810 and 1005).
-    pub(crate) fn runs_on_threads(self) -> bool {
-        match self {
-            Backend::Microlp => true,
-            #[cfg(feature = "highs")]
-            Backend::Highs => false,
-        }
-    }
-
-    /// The backends this build has, the default first.
-    pub fn available() -> Vec<Backend> {
-        vec![
-            Backend::Microlp,
-            #[cfg(feature = "highs")]
-            Backend::Highs,
-        ]
-    }
-
-    /// The backend called `name`, if this build has it.
-    pub fn from_name(name: &str) -> Option<Backend> {
-        Backend::available().into_iter().find(|b| b.name() == name)
-    }
-}
 
 /// The part of the model the solver sees: for each test of the component,
 /// the indices of its options still allowed and whether it must run.

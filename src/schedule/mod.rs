@@ -15,6 +15,7 @@
 //! traffic, and the tests that left the queue.
 //! `synthetic` makes seeded random portfolios for tests and the benchmark.
 
+mod backend;
 mod confidence;
 mod deadline;
 mod greedy;
@@ -34,7 +35,7 @@ mod tests;
 mod verify;
 
 pub use confidence::at_confidence;
-pub use lp::Backend;
+pub use backend::Backend;
 pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 

@@ -6,7 +6,7 @@
 //! It sits apart from `schedule`'s entry point so that the candidate runs
 //! (`options`) and the verifier read it without importing the planner.
 
-use super::lp::Backend;
+use super::backend::Backend;
 use crate::share::Share;
 use chrono::NaiveDate;
 

@@ -203,7 +203,7 @@ pub fn detectable_in_room(
     pools: &[PoolPlan],
 ) -> Option<Detectable> {
     let ex = &p.experiments[e];
-    let top = crate::check::share_for(p, ex);
+    let top = p.top_share(ex);
     fn day_of(pool: &PoolPlan, start: NaiveDate, date: NaiveDate) -> Option<&PoolDay> {
         pool.days
             .get((date - start).num_days().max(0) as usize)
