@@ -227,7 +227,7 @@ mod tests {
                     .map(|i| PoolDay {
                         date: d(&format!("2027-01-0{i}")),
                         forecast: daily,
-                        share_used: 0.0,
+                        share_used: crate::share::Share::ZERO,
                         running: 0,
                     })
                     .collect(),

@@ -655,6 +655,27 @@ impl TryFrom<ExperimentJson> for PlannedExperiment {
     }
 }
 
+impl PoolPlan {
+    /// The most its tests' shares may add up to on a day (see
+    /// [`crate::portfolio::capacity`]).
+    pub fn capacity(&self) -> Share {
+        crate::portfolio::capacity(self.sharing, self.holdout)
+    }
+
+    /// Whether `day` holds more than the pool allows: more tests than
+    /// `max_concurrent`, or on a split pool shares beyond its capacity.
+    /// A plan never does; a renderer marks it should one arrive.
+    pub fn over(&self, day: &PoolDay) -> bool {
+        crate::portfolio::beyond_room(
+            self.sharing,
+            self.holdout,
+            self.max_concurrent,
+            day.share_used,
+            day.running,
+        )
+    }
+}
+
 /// One day of one pool.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PoolDay {
@@ -663,7 +684,7 @@ pub struct PoolDay {
     /// Forecast eligible units.
     pub forecast: f64,
     /// Sum of the shares of the tests running (may exceed 1 on overlap pools).
-    pub share_used: f64,
+    pub share_used: Share,
     /// Number of tests running.
     pub running: u32,
 }

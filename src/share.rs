@@ -51,6 +51,24 @@ impl Share {
     pub fn is_zero(self) -> bool {
         self.0 == 0
     }
+
+    /// The two shares together (saturating: an overlap pool's total may
+    /// pass one whole pool, never `u32::MAX` millionths).
+    pub fn plus(self, other: Share) -> Share {
+        Share(self.0.saturating_add(other.0))
+    }
+
+    /// Whether `self` beside `used` stays within `room`: exact, in
+    /// millionths. The one comparison of shares against a pool's room.
+    pub fn fits_beside(self, used: Share, room: Share) -> bool {
+        u64::from(used.0) + u64::from(self.0) <= u64::from(room.0)
+    }
+}
+
+impl std::iter::Sum for Share {
+    fn sum<I: Iterator<Item = Share>>(iter: I) -> Share {
+        iter.fold(Share::ZERO, Share::plus)
+    }
 }
 
 impl fmt::Display for Share {
@@ -128,6 +146,21 @@ impl ShareLevels {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn shares_add_and_fit_exactly() {
+        // 0.1 + 0.2 passes 0.3 in floating point; in millionths it is 0.3.
+        let (a, b) = (Share::from_fraction(0.1), Share::from_fraction(0.2));
+        assert_eq!(a.plus(b), Share::from_fraction(0.3));
+        assert!(b.fits_beside(a, Share::from_fraction(0.3)));
+        assert!(!Share::from_millionths(1).fits_beside(a.plus(b), Share::from_fraction(0.3)));
+        let total: Share = [a, b, Share::WHOLE].into_iter().sum();
+        assert_eq!(total.millionths(), 1_300_000);
+        assert_eq!(
+            Share::from_millionths(u32::MAX).plus(a).millionths(),
+            u32::MAX
+        );
+    }
 
     #[test]
     fn fractions_round_to_the_nearest_millionth_and_back_exactly() {

@@ -393,10 +393,27 @@ impl Pool {
     /// (`1 - holdout`, in whole millionths); the whole pool otherwise.
     /// The one place a pool's room is worked out.
     pub fn capacity(&self) -> Share {
-        match self.sharing {
-            Sharing::Split => Share::from_fraction(1.0 - self.holdout),
-            Sharing::Overlap => Share::WHOLE,
-        }
+        capacity(self.sharing, self.holdout)
+    }
+
+    /// Whether `share` more fits on a day when `used` is taken and
+    /// `running` tests run: below `max_concurrent`, and on a split pool
+    /// within its [`Pool::capacity`]. The one home of the pool-room rule
+    /// outside the planner's own millionths bookkeeping.
+    pub fn has_room(&self, used: Share, running: u32, share: Share) -> bool {
+        !self.overloaded(used.plus(share), running + 1)
+    }
+
+    /// Whether `used` shares and `running` tests are beyond what it
+    /// allows (see [`beyond_room`]).
+    pub fn overloaded(&self, used: Share, running: u32) -> bool {
+        beyond_room(
+            self.sharing,
+            self.holdout,
+            self.max_concurrent,
+            used,
+            running,
+        )
     }
 
     /// The fraction of the units under a share that may enter a test
@@ -596,6 +613,34 @@ pub enum BlackoutKind {
     NoRunning,
 }
 
+/// The most the shares of a pool's tests may add up to on a day: `1 -
+/// holdout` when it is split, the whole pool when it overlaps (then only
+/// the number running is limited). [`Pool::capacity`] and the plan's
+/// [`crate::plan::PoolPlan::capacity`] both read it.
+pub fn capacity(sharing: Sharing, holdout: f64) -> Share {
+    match sharing {
+        Sharing::Split => Share::from_fraction(1.0 - holdout),
+        Sharing::Overlap => Share::WHOLE,
+    }
+}
+
+/// Whether `used` shares and `running` tests on one day are beyond a
+/// pool's limits: more tests than `max_concurrent`, or on a split pool
+/// shares past its [`capacity`]. The pool-room rule, read by
+/// [`Pool::has_room`], [`Pool::overloaded`] and the plan's
+/// [`crate::plan::PoolPlan::over`]; the planner keeps the same rule in
+/// millionths for speed.
+pub fn beyond_room(
+    sharing: Sharing,
+    holdout: f64,
+    max_concurrent: u32,
+    used: Share,
+    running: u32,
+) -> bool {
+    running > max_concurrent
+        || (sharing == Sharing::Split && !Share::ZERO.fits_beside(used, capacity(sharing, holdout)))
+}
+
 /// A span of the calendar with a restriction.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Blackout {
@@ -617,6 +662,12 @@ impl Blackout {
         self.from <= date
             && date <= self.to
             && (self.pools.is_empty() || self.pools.contains(&pool))
+    }
+
+    /// Whether it forbids `kind` on `date` to a test on any of `pools`:
+    /// the one home of "does this blackout touch this test".
+    pub fn touches(&self, kind: BlackoutKind, date: NaiveDate, pools: &[usize]) -> bool {
+        self.kind == kind && pools.iter().any(|&k| self.covers(date, k))
     }
 }
 
@@ -670,6 +721,11 @@ impl Portfolio {
             .fold(ex.max_share, Share::min)
     }
 
+    /// Whether a blackout forbids `kind` on `date` to a test on `pools`.
+    pub fn forbids(&self, kind: BlackoutKind, date: NaiveDate, pools: &[usize]) -> bool {
+        self.blackouts.iter().any(|b| b.touches(kind, date, pools))
+    }
+
     /// The share a test runs at when it may take all it is allowed: the
     /// largest share level not above [`Portfolio::share_cap`]
     /// (validation guarantees one).
@@ -718,6 +774,21 @@ pub fn after_order(experiments: &[Experiment]) -> Option<Vec<usize>> {
 mod tests {
     use super::*;
     use crate::sizing::{Effect, Metric};
+
+    #[test]
+    fn a_pools_room_is_its_capacity_and_its_count() {
+        let split = |holdout: f64| (Sharing::Split, holdout, 2);
+        let s = Share::from_fraction;
+        // A split pool holding out 10% has room for 90% of shares.
+        let (sh, h, m) = split(0.1);
+        assert_eq!(capacity(sh, h), s(0.9));
+        assert!(!beyond_room(sh, h, m, s(0.9), 2));
+        assert!(beyond_room(sh, h, m, s(0.900001), 1));
+        assert!(beyond_room(sh, h, m, s(0.5), 3));
+        // An overlap pool limits only the number running.
+        assert!(!beyond_room(Sharing::Overlap, 0.1, 2, s(1.9), 2));
+        assert!(beyond_room(Sharing::Overlap, 0.1, 2, s(0.2), 3));
+    }
 
     /// Experiments whose `after` lists name the given indices.
     fn graph(after: &[&[usize]]) -> Vec<Experiment> {

@@ -92,19 +92,18 @@ fn input_overload(portfolio: &Portfolio, live: &[Live], pool: usize) -> Option<O
     let mut out: Option<Overload> = None;
     for d in 0..w.days() {
         let date = w.date(d as i64);
-        let (mut share, mut count) = (0.0, 0u32);
+        let (mut share, mut count) = (Share::ZERO, 0u32);
         for l in live {
             if portfolio.experiments[l.run.experiment].uses(pool)
                 && l.run.start <= date
                 && date <= held_to(portfolio, &l.outlook)
             {
-                share += l.run.share.fraction();
+                share = share.plus(l.run.share);
                 count += 1;
             }
         }
-        let over = (p.sharing == Sharing::Split && share > p.capacity().fraction() + 1e-9)
-            || count > p.max_concurrent;
-        if over {
+        if p.overloaded(share, count) {
+            let share = share.fraction();
             let o = out.get_or_insert(Overload {
                 from: date,
                 peak_share: 0.0,
@@ -253,7 +252,7 @@ pub fn replan(
             portfolio,
             held_to(portfolio, &live[i].outlook) + Duration::days(1),
         );
-        let others: Vec<(Vec<i64>, i64)> = portfolio.experiments[e]
+        let others: Vec<(Vec<i64>, Share)> = portfolio.experiments[e]
             .pools
             .iter()
             .filter(|&&pool| portfolio.pools[pool].sharing == Sharing::Split)
@@ -262,8 +261,7 @@ pub fn replan(
                 for h in &mut others[today_i.min(mine_to)..mine_to] {
                     *h -= i64::from(live[i].outlook.share.millionths());
                 }
-                let cap = i64::from(portfolio.pools[pool].capacity().millionths());
-                (others, cap)
+                (others, portfolio.pools[pool].capacity())
             })
             .collect();
         let run = live[i].run;
@@ -273,7 +271,7 @@ pub fn replan(
             others.iter().all(|(others, cap)| {
                 others[today_i.min(to)..to]
                     .iter()
-                    .all(|h| h + i64::from(s.millionths()) <= *cap)
+                    .all(|&h| s.fits_beside(Share::from_millionths(h.max(0) as u32), *cap))
             })
         };
         let found = portfolio
@@ -843,7 +841,12 @@ mod tests {
         for day in &plan.pools[0].days {
             let ran = day.date < today;
             assert_eq!(day.running, u32::from(ran), "{}", day.date);
-            assert_eq!(day.share_used, if ran { 0.5 } else { 0.0 }, "{}", day.date);
+            assert_eq!(
+                day.share_used.fraction(),
+                if ran { 0.5 } else { 0.0 },
+                "{}",
+                day.date
+            );
         }
         assert_eq!(
             plan.experiments[0].ran,

@@ -54,10 +54,7 @@ impl Run {
 
 /// Whether a `no_running` blackout covers `day` on `pool`.
 fn no_running(portfolio: &Portfolio, pool: usize, day: NaiveDate) -> bool {
-    portfolio
-        .blackouts
-        .iter()
-        .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(day, pool))
+    portfolio.forbids(BlackoutKind::NoRunning, day, &[pool])
 }
 
 /// Units that count towards `run` on `day` at `share` from `today`: none

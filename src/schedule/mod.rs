@@ -34,8 +34,8 @@ pub mod synthetic;
 mod tests;
 mod verify;
 
-pub use confidence::at_confidence;
 pub use backend::Backend;
+pub use confidence::at_confidence;
 pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 
@@ -522,7 +522,7 @@ fn assemble(
                     PoolDay {
                         date,
                         forecast: inst.series[pi].units[d],
-                        share_used: used as f64 / 1e6,
+                        share_used: Share::from_millionths(used as u32),
                         running,
                     }
                 })

@@ -408,9 +408,7 @@ impl<'a> Instance<'a> {
             .map(|d| {
                 let date = self.portfolio.window.date(d as i64);
                 self.portfolio
-                    .blackouts
-                    .iter()
-                    .any(|b| b.kind == BlackoutKind::NoRunning && b.covers(date, pool))
+                    .forbids(BlackoutKind::NoRunning, date, &[pool])
             })
             .collect()
     }
@@ -534,9 +532,7 @@ pub(crate) fn on_grid(p: &Portfolio, date: NaiveDate) -> bool {
 
 /// Whether a `no_starts` blackout covers `date` on `pool`.
 fn no_start(p: &Portfolio, date: NaiveDate, pool: usize) -> bool {
-    p.blackouts
-        .iter()
-        .any(|b| b.kind == BlackoutKind::NoStarts && b.covers(date, pool))
+    p.forbids(BlackoutKind::NoStarts, date, &[pool])
 }
 
 /// Whether test `e` may start on `date`: on the start grid and not in a

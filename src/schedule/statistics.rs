@@ -18,7 +18,7 @@ use crate::plan::{
     Detectable, LookDate, LookDates, PlannedExperiment, PoolDay, PoolPlan, Run, SecondaryEffect,
     TestStatistics,
 };
-use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Role, Sharing};
+use crate::portfolio::{BlackoutKind, Experiment, Portfolio, Role};
 use crate::share::Share;
 use crate::sizing::{self, Design, Effect, Metric};
 use chrono::{Duration, NaiveDate};
@@ -214,13 +214,8 @@ pub fn detectable_in_room(
         .filter_map(|share| {
             let free = |date: NaiveDate| {
                 ex.pools.iter().all(|&k| {
-                    let (def, pool) = (&p.pools[k], &pools[k]);
-                    day_of(pool, p.window.start, date).is_some_and(|d| {
-                        d.running < def.max_concurrent
-                            && (def.sharing != Sharing::Split
-                                || d.share_used + share.fraction()
-                                    <= def.capacity().fraction() + 1e-9)
-                    })
+                    day_of(&pools[k], p.window.start, date)
+                        .is_some_and(|d| p.pools[k].has_room(d.share_used, d.running, share))
                 })
             };
             detectable_where(p, e, from, share, &free)
@@ -251,10 +246,7 @@ fn detectable_where(
     // blackout: the stretches between them.
     let blocked = |i: usize| {
         let date = from + Duration::days(i as i64);
-        !open(date)
-            || p.blackouts.iter().any(|b| {
-                b.kind == BlackoutKind::NoRunning && ex.pools.iter().any(|&k| b.covers(date, k))
-            })
+        !open(date) || p.forbids(BlackoutKind::NoRunning, date, &ex.pools)
     };
     // In each, the runs the plan's rules allow: a start on the grid and
     // outside `no_starts`, at least the minimum run, whole weeks when the

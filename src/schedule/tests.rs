@@ -137,7 +137,7 @@ fn two_tests_share_one_pool_in_turn() {
     assert_eq!(run.result_date, d("2027-01-11"));
     assert_eq!(run.days, 7);
     assert_eq!(run.units_expected, 7000.0);
-    assert_eq!(plan.pools[0].days[0].share_used, 1.0);
+    assert_eq!(plan.pools[0].days[0].share_used.fraction(), 1.0);
     assert_eq!(plan.pools[0].days[0].running, 1);
 }
 
@@ -822,7 +822,7 @@ proptest! {
         for (pool, pp) in p.pools.iter().zip(&a.pools) {
             if pool.sharing == Sharing::Split {
                 for day in &pp.days {
-                    prop_assert!(day.share_used <= 1.0 - pool.holdout + 1e-9);
+                    prop_assert!(day.share_used.fraction() <= 1.0 - pool.holdout + 1e-9);
                 }
             }
         }
@@ -888,11 +888,11 @@ fn a_split_holdout_keeps_the_shares_under_its_capacity() {
     let run = bad.experiments[1].run.as_mut().unwrap();
     (run.start, run.end, run.result_date) = (d("2027-01-04"), d("2027-01-10"), d("2027-01-11"));
     for day in &mut bad.pools[0].days[..7] {
-        day.share_used = 1.0;
+        day.share_used = Share::WHOLE;
         day.running = 2;
     }
     for day in &mut bad.pools[0].days[7..14] {
-        day.share_used = 0.0;
+        day.share_used = Share::ZERO;
         day.running = 0;
     }
     bad.solver.value += 7.0 / 27.0 * 0.5;
@@ -993,7 +993,7 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
     assert_eq!(big.pools, vec!["a", "b", "c"]);
     assert_eq!(big.run.unwrap().units_expected, 22_000.0);
     for pool in &plan.pools {
-        assert_eq!(pool.days[0].share_used, 1.0, "{}", pool.id);
+        assert_eq!(pool.days[0].share_used.fraction(), 1.0, "{}", pool.id);
         assert_eq!(pool.days[0].running, 1, "{}", pool.id);
         assert_eq!(pool.days[11].running, 0, "{}", pool.id);
     }
@@ -1122,9 +1122,9 @@ fn ramp_days_count_only_with_ramp_counts() {
         );
         // Capacity is held at the ramp's share on its days.
         let days = &plan.pools[0].days;
-        assert_eq!(days[0].share_used, 0.05);
-        assert_eq!(days[1].share_used, 0.05);
-        assert_eq!(days[2].share_used, 0.5);
+        assert_eq!(days[0].share_used.fraction(), 0.05);
+        assert_eq!(days[1].share_used.fraction(), 0.05);
+        assert_eq!(days[2].share_used.fraction(), 0.5);
     }
 }
 
@@ -1143,8 +1143,8 @@ fn another_test_uses_the_room_a_ramp_leaves() {
         run_of(&plan, "short"),
         Some((d("2027-01-04"), d("2027-01-10"), 0.5))
     );
-    assert!((plan.pools[0].days[0].share_used - 0.55).abs() < 1e-12);
-    assert_eq!(plan.pools[0].days[3].share_used, 1.0);
+    assert!((plan.pools[0].days[0].share_used.fraction() - 0.55).abs() < 1e-12);
+    assert_eq!(plan.pools[0].days[3].share_used.fraction(), 1.0);
 }
 
 #[test]
@@ -1264,9 +1264,9 @@ fn a_running_ramped_multi_pool_test_keeps_its_dates_and_shares() {
     );
     assert_eq!(again.experiments[0].ramp, first.experiments[0].ramp);
     for pool in &again.pools {
-        assert_eq!(pool.days[1].share_used, 0.05, "{}", pool.id);
-        assert_eq!(pool.days[2].share_used, 1.0, "{}", pool.id);
-        assert_eq!(pool.days[5].share_used, 0.0, "{}", pool.id);
+        assert_eq!(pool.days[1].share_used.fraction(), 0.05, "{}", pool.id);
+        assert_eq!(pool.days[2].share_used.fraction(), 1.0, "{}", pool.id);
+        assert_eq!(pool.days[5].share_used.fraction(), 0.0, "{}", pool.id);
     }
 }
 

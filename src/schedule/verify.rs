@@ -441,7 +441,7 @@ pub fn verify(
                 Some(pd)
                     if pd.date == day
                         && pd.running == count
-                        && (pd.share_used - used).abs() < TOL => {}
+                        && (pd.share_used.fraction() - used).abs() < TOL => {}
                 _ => bad.push(format!(
                     "the plan's day {day} of `{}` does not match its runs",
                     pool.id

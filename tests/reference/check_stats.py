@@ -448,7 +448,7 @@ def check_detect_designs(binary, tally, record):
         for n in (4_000.0, 60_000.0)
     ]
     g_args = [["detect", "--format=json", f"--n={n!r}", f"--guardrail={h}"] + m for m, n, h in guard]
-    l_args = [["detect", "--format=json", f"--n={n!r}", "--baseline=0.08", "--method=z",
+    l_args = [["detect", "--format=json", f"--n={n!r}", "--mean=40", "--sd=12", "--method=z",
                f"--looks={k}", f"--boundary={b}"] for k, b, n in looks]
     worst = {"guardrail": 0.0, "looks": 0.0}
     for (m, n, h), args, (code, out, err) in zip(guard, g_args, run_many(binary, g_args)):
@@ -488,7 +488,7 @@ def check_detect_designs(binary, tally, record):
                 effect_size=None, nobs1=n / r, alpha=0.025, power=0.8, ratio=1.0,
                 alternative="larger",
             ))
-        ref = es * math.sqrt(0.08 * 0.92)
+        ref = es * 12.0
         rel = abs(j["mde_abs"] - ref) / ref
         worst["looks"] = max(worst["looks"], rel)
         problems = []

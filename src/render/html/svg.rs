@@ -183,7 +183,7 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
     let split = is_split(p);
     let value = |d: &crate::plan::PoolDay| {
         if split {
-            d.share_used
+            d.share_used.fraction()
         } else {
             f64::from(d.running)
         }
@@ -310,7 +310,7 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
         );
     }
     // Anything above capacity (a bug upstream) stands out in red.
-    for d in shown.iter().filter(|d| value(d) > capacity + 1e-9) {
+    for d in shown.iter().filter(|d| p.over(d)) {
         let (x0, x1) = scale.span(d.date, d.date);
         let _ = writeln!(
             s,
@@ -327,7 +327,7 @@ pub(super) fn pool_chart(plan: &Plan, index: usize, p: &PoolPlan, s: &mut String
         let tip = format!(
             "{}: {} in use, {} running, forecast {} units",
             long_date(d.date),
-            percent(d.share_used),
+            percent(d.share_used.fraction()),
             d.running,
             units(d.forecast)
         );

@@ -263,7 +263,11 @@ pub(super) fn pool_use(plan: &Plan, width: usize, colour: bool) -> Table {
                 .iter()
                 .filter(|d| w.start <= d.date && d.date <= w.end)
                 .collect();
-            let peak_share = days.iter().map(|d| d.share_used).fold(0.0, f64::max);
+            let peak_share = days
+                .iter()
+                .map(|d| d.share_used.fraction())
+                .fold(0.0, f64::max);
+            let over = days.iter().any(|d| p.over(d));
             let peak_running = days.iter().map(|d| d.running).max().unwrap_or(0);
             let (fraction, words) = if is_split(p) {
                 (peak_share, percent(peak_share))
@@ -279,7 +283,7 @@ pub(super) fn pool_use(plan: &Plan, width: usize, colour: bool) -> Table {
                 words
             };
             let mut cell = Cell::new(text);
-            if colour && fraction > 1.0 + 1e-9 {
+            if colour && over {
                 cell = cell.fg(Color::Red);
             }
             row.push(cell);
