@@ -324,10 +324,8 @@ fn run_replan_row(size: &str, backend: &str) -> Row {
         factor: 0.7,
     });
     let peak_reset = reset_peak();
-    let ((plan, replan_request), seconds, cpu_seconds) = timed(|| {
-        sluice::replan::replan(&portfolio, &progress, today, &request)
-            .expect("the re-plan of a synthetic portfolio")
-    });
+    let ((plan, replan_request), seconds, cpu_seconds) =
+        timed(|| sluice::replan::replan(&portfolio, &progress, today, &request));
     let peak = peak_mb();
     if let Err(problems) = schedule::verify(&portfolio, &replan_request, &plan) {
         panic!(

@@ -16,7 +16,8 @@
 //! ```
 //!
 //! [`Planner`] takes the options of `sluice plan` (`today`, `time_limit`,
-//! `backend`); [`Error`] is every way the three steps fail.
+//! `backend`); [`Replanner`] re-plans from a progress file as `sluice
+//! replan` does; [`Error`] is every way the steps fail.
 //!
 //! Data flows one way (see DEVELOPERS.md):
 //! `portfolio` (YAML to a validated model) -> `sizing` (statistics) ->
@@ -49,7 +50,7 @@ pub mod sizing;
 pub(crate) mod words;
 
 pub use plan::Plan;
-pub use planner::{Error, Planner};
+pub use planner::{Error, Planner, Replanner};
 pub use portfolio::Portfolio;
 pub use render::{Format, RenderOptions};
 pub use schedule::Backend;

@@ -1,11 +1,14 @@
-//! The path for library users: load a portfolio, plan it, render the plan,
-//! with one error type. Thin wrappers over [`crate::portfolio::load`],
-//! [`crate::schedule::plan`] and [`crate::render::render`]; the `sluice plan`
-//! command does the same with flags.
+//! The path for library users: load a portfolio, plan it (or re-plan it
+//! from a progress file), render the plan, with one error type. Thin
+//! wrappers over [`crate::portfolio::load`], [`crate::schedule::plan`],
+//! [`crate::replan`] and [`crate::render::render`]; the `sluice plan` and
+//! `sluice replan` commands run the same pipelines with flags.
 
 use crate::plan::Plan;
 use crate::portfolio::{self, LoadError, Portfolio};
 use crate::render::{self, Format, RenderError, RenderOptions};
+use crate::replan::{self, Progress, ReplanError};
+use crate::scenario::{Applied, Edit};
 use crate::schedule::{self, Backend, PlanRequest};
 use chrono::NaiveDate;
 use std::fmt;
@@ -30,6 +33,8 @@ pub enum Error {
     },
     /// The plan cannot be rendered in the format asked for.
     Render(RenderError),
+    /// The re-plan's what-ifs do not apply to the portfolio.
+    Replan(ReplanError),
 }
 
 impl fmt::Display for Error {
@@ -44,6 +49,7 @@ impl fmt::Display for Error {
                 write!(f, "today {today} lies outside the window {start} to {end}")
             }
             Error::Render(e) => write!(f, "cannot render the plan: {e}"),
+            Error::Replan(e) => write!(f, "{e}"),
         }
     }
 }
@@ -53,6 +59,7 @@ impl std::error::Error for Error {
         match self {
             Error::Load(e) => Some(e),
             Error::Render(e) => Some(e),
+            Error::Replan(e) => Some(e),
             Error::TimeLimit(_) | Error::TodayOutsideWindow { .. } => None,
         }
     }
@@ -61,6 +68,12 @@ impl std::error::Error for Error {
 impl From<LoadError> for Error {
     fn from(e: LoadError) -> Error {
         Error::Load(e)
+    }
+}
+
+impl From<ReplanError> for Error {
+    fn from(e: ReplanError) -> Error {
+        Error::Replan(e)
     }
 }
 
@@ -102,7 +115,8 @@ impl<'p> Planner<'p> {
         self
     }
 
-    /// Most seconds to spend (default 10); the best verified plan so far
+    /// Most seconds to spend (default [`schedule::DEFAULT_TIME_LIMIT`],
+    /// 300); the best verified plan so far
     /// is returned. The search is otherwise bounded by a fixed amount of
     /// work, so the same portfolio gives the same plan.
     pub fn time_limit(mut self, seconds: f64) -> Planner<'p> {
@@ -118,19 +132,131 @@ impl<'p> Planner<'p> {
 
     /// The plan.
     pub fn plan(&self) -> Result<Plan, Error> {
-        let r = &self.request;
-        if !(r.time_limit.is_finite() && r.time_limit > 0.0) {
-            return Err(Error::TimeLimit(r.time_limit));
+        checked(self.portfolio, &self.request)?;
+        Ok(schedule::plan(self.portfolio, &self.request))
+    }
+}
+
+/// `request`'s time limit and day, checked against `portfolio`.
+fn checked(portfolio: &Portfolio, request: &PlanRequest) -> Result<(), Error> {
+    if !(request.time_limit.is_finite() && request.time_limit > 0.0) {
+        return Err(Error::TimeLimit(request.time_limit));
+    }
+    let window = portfolio.window;
+    match request.today.filter(|&t| !window.contains(t)) {
+        Some(today) => Err(Error::TodayOutsideWindow {
+            today,
+            start: window.start,
+            end: window.end,
+        }),
+        None => Ok(()),
+    }
+}
+
+/// Re-plans a portfolio mid-window around what happened: running tests
+/// keep their start and share, finished and cancelled ones free their
+/// pools, pools with counts so far get forecasts refitted from them, and
+/// every other test is planned again from `today`. Given the previous plan,
+/// it also says what moved, which tests the progress file leaves out, and
+/// how each calendar event changed. The pipeline of `sluice replan`.
+///
+/// ```
+/// use chrono::NaiveDate;
+/// use sluice::replan::load_progress_str;
+/// use sluice::{Planner, Portfolio, Replanner};
+///
+/// # fn main() -> Result<(), sluice::Error> {
+/// let p = Portfolio::load("portfolios/quickstart.yaml")?;
+/// let first = Planner::new(&p).plan()?;
+/// let today = NaiveDate::from_ymd_opt(2027, 2, 1).unwrap();
+/// let progress = load_progress_str(
+///     "as_of: 2027-02-01\nexperiments:\n  - id: bigger-photos\n    state: cancelled\n",
+///     "progress.yaml",
+///     &p,
+///     today,
+/// )?;
+/// let plan = Replanner::new(&p, &progress, today).previous(&first).replan()?;
+/// let photos = plan.experiments.iter().find(|e| e.id == "bigger-photos").unwrap();
+/// assert_eq!(photos.status, sluice::plan::Status::Cancelled);
+/// assert!(plan.changes.is_some() && plan.calendar.is_some());
+/// # Ok(())
+/// # }
+/// ```
+#[derive(Debug, Clone)]
+pub struct Replanner<'p> {
+    portfolio: &'p Portfolio,
+    progress: &'p Progress,
+    today: NaiveDate,
+    request: PlanRequest,
+    edits: &'p [Edit],
+    previous: Option<&'p Plan>,
+}
+
+impl<'p> Replanner<'p> {
+    /// A re-plan of `portfolio` from `today` given `progress`, with the
+    /// default options.
+    pub fn new(portfolio: &'p Portfolio, progress: &'p Progress, today: NaiveDate) -> Self {
+        Replanner {
+            portfolio,
+            progress,
+            today,
+            request: PlanRequest::default(),
+            edits: &[],
+            previous: None,
         }
-        let window = self.portfolio.window;
-        if let Some(today) = r.today.filter(|&t| !window.contains(t)) {
-            return Err(Error::TodayOutsideWindow {
-                today,
-                start: window.start,
-                end: window.end,
-            });
+    }
+
+    /// Most seconds to spend, as [`Planner::time_limit`].
+    pub fn time_limit(mut self, seconds: f64) -> Self {
+        self.request.time_limit = seconds;
+        self
+    }
+
+    /// The LP backend, as [`Planner::backend`].
+    pub fn backend(mut self, backend: Backend) -> Self {
+        self.request.backend = backend;
+        self
+    }
+
+    /// Every option of the plan at once (its `today` is the re-plan's).
+    pub fn request(mut self, request: PlanRequest) -> Self {
+        self.request = request;
+        self
+    }
+
+    /// A scenario's edits (docs/scenario.md), applied before re-planning.
+    pub fn scenario(mut self, edits: &'p [Edit]) -> Self {
+        self.edits = edits;
+        self
+    }
+
+    /// The plan this one follows: the re-plan then carries what moved
+    /// (`changes`), the tests the progress file leaves out
+    /// (`missing_progress`) and the calendar's history (`calendar`).
+    pub fn previous(mut self, plan: &'p Plan) -> Self {
+        self.previous = Some(plan);
+        self
+    }
+
+    /// The re-plan.
+    pub fn replan(&self) -> Result<Plan, Error> {
+        let request = PlanRequest {
+            today: Some(self.today),
+            ..self.request.clone()
+        };
+        checked(self.portfolio, &request)?;
+        let applied = Applied::new(self.portfolio, &request, self.edits);
+        let progress = applied.progress(self.progress, self.today);
+        let (mut plan, _) =
+            replan::replan(&applied.portfolio, &progress, self.today, &applied.request);
+        applied.finish(&mut plan);
+        if let Some(previous) = self.previous {
+            plan.missing_progress =
+                replan::missing_progress(previous, &progress, &applied.portfolio, self.today);
+            plan.changes = Some(crate::diff::diff(previous, &plan));
+            plan.calendar = Some(render::ics::calendar_history(previous, &plan));
         }
-        Ok(schedule::plan(self.portfolio, r))
+        Ok(plan)
     }
 }
 

@@ -258,8 +258,7 @@ fn the_scenario_keeps_running_tests_passes_the_verifier_and_diffs_exactly() {
     let scales: Vec<ScaleArg> = vec![scale.parse().unwrap()];
     let portfolio = replan::with_scales(&portfolio, &scales, d(DAY30)).unwrap();
     let progress = load_progress(Path::new(progress), &portfolio, d(DAY30)).unwrap();
-    let (plan, request) =
-        replan::replan(&portfolio, &progress, d(DAY30), &PlanRequest::default()).unwrap();
+    let (plan, request) = replan::replan(&portfolio, &progress, d(DAY30), &PlanRequest::default());
     if let Err(problems) = schedule::verify(&portfolio, &request, &plan) {
         panic!("the verifier rejects the re-plan:\n{}", problems.join("\n"));
     }
@@ -643,7 +642,7 @@ fn the_verifier_flags_an_overload_the_replan_made_and_reports_one_the_input_had(
     let p = sluice::portfolio::load(Path::new(&portfolio)).unwrap();
     let today = d("2027-02-01");
     let prog = load_progress(Path::new(&progress), &p, today).unwrap();
-    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default()).unwrap();
+    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default());
     let facts = schedule::verify(&p, &request, &plan).expect("the re-plan verifies");
     assert!(facts.is_empty(), "{facts:?}");
     // Both raised to 75% from today: the re-plan made 150%, never excused.
@@ -661,7 +660,7 @@ fn the_verifier_flags_an_overload_the_replan_made_and_reports_one_the_input_had(
     let (portfolio, progress) = two_halves("verify-input", false, 0.75);
     let p = sluice::portfolio::load(Path::new(&portfolio)).unwrap();
     let prog = load_progress(Path::new(&progress), &p, today).unwrap();
-    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default()).unwrap();
+    let (plan, request) = replan::replan(&p, &prog, today, &PlanRequest::default());
     let facts = schedule::verify(&p, &request, &plan).expect("an input overload is excused");
     assert!(
         facts

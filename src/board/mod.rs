@@ -186,7 +186,7 @@ fn plan_with(
         None => schedule::plan(&applied.portfolio, &applied.request),
         Some((progress, today)) => {
             let progress = applied.progress(progress, *today);
-            replan::replan(&applied.portfolio, &progress, *today, &applied.request)?.0
+            replan::replan(&applied.portfolio, &progress, *today, &applied.request).0
         }
     };
     applied.finish(&mut plan);

@@ -119,6 +119,20 @@ impl From<LoadError> for Error {
     }
 }
 
+impl From<crate::Error> for Error {
+    fn from(error: crate::Error) -> Error {
+        match error {
+            crate::Error::Load(error) => Error::Load { error },
+            crate::Error::TimeLimit(seconds) => Error::TimeLimit { seconds },
+            crate::Error::TodayOutsideWindow { today, start, end } => {
+                Error::TodayOutsideWindow { today, start, end }
+            }
+            crate::Error::Render(error) => error.into(),
+            crate::Error::Replan(error) => Error::Replan { error },
+        }
+    }
+}
+
 impl From<ReplanError> for Error {
     fn from(error: ReplanError) -> Error {
         Error::Replan { error }

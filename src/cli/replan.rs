@@ -9,6 +9,7 @@ use crate::plan::Plan;
 use crate::replan::{self, progress, ScaleArg};
 use crate::scenario;
 use crate::schedule::PlanRequest;
+use crate::Replanner;
 use chrono::NaiveDate;
 use clap::Args;
 use std::path::PathBuf;
@@ -88,35 +89,35 @@ pub fn run(a: &ReplanArgs) -> Result<Vec<u8>, Error> {
         today: Some(today),
         ..base
     };
-    let applied = scenario::Applied::new(&portfolio, &base, &edits);
-    let portfolio = &applied.portfolio;
-    let progress = progress::load_progress(&a.progress, portfolio, a.today)?;
+    // The progress file is read against the portfolio as the scenario
+    // leaves it (its shares within the edited limits).
+    let edited = scenario::Applied::new(&portfolio, &base, &edits).portfolio;
+    let progress = progress::load_progress(&a.progress, &edited, a.today)?;
     for w in &progress.warnings {
         eprint!("{w}");
     }
-    let progress = applied.progress(&progress, today);
     let previous = a.previous.as_ref().map(read_previous).transpose()?;
-    let (mut plan, _request) = replan::replan(portfolio, &progress, today, &applied.request)?;
-    applied.finish(&mut plan);
+    let mut replanner = Replanner::new(&portfolio, &progress, today)
+        .request(base)
+        .scenario(&edits);
     if let Some(prev) = &previous {
-        plan.missing_progress = replan::missing_progress(prev, &progress, portfolio, today);
-        if !plan.missing_progress.is_empty() {
-            let e = Error::MissingProgress {
-                progress: a.progress.clone(),
-                ids: plan.missing_progress.clone(),
-            };
-            if a.strict {
-                return Err(e);
-            }
-            // The same words as the error, as a warning.
-            let words = e.to_string();
-            eprintln!(
-                "warning: {}",
-                words.strip_prefix("error: ").unwrap_or(&words)
-            );
+        replanner = replanner.previous(prev);
+    }
+    let plan = replanner.replan()?;
+    if !plan.missing_progress.is_empty() {
+        let e = Error::MissingProgress {
+            progress: a.progress.clone(),
+            ids: plan.missing_progress.clone(),
+        };
+        if a.strict {
+            return Err(e);
         }
-        plan.changes = Some(crate::diff::diff(prev, &plan));
-        plan.calendar = Some(crate::render::ics::calendar_history(prev, &plan));
+        // The same words as the error, as a warning.
+        let words = e.to_string();
+        eprintln!(
+            "warning: {}",
+            words.strip_prefix("error: ").unwrap_or(&words)
+        );
     }
     let mut inputs = vec![a.file.as_path(), a.progress.as_path()];
     inputs.extend(a.previous.as_deref());

@@ -31,11 +31,28 @@ use std::fmt;
 
 /// Why a re-plan could not be made.
 #[derive(Debug, Clone, PartialEq)]
-pub struct ReplanError(pub String);
+pub enum ReplanError {
+    /// A `--scale` names a pool the portfolio does not define.
+    UnknownScalePool {
+        /// The pool named.
+        pool: String,
+        /// The defined pools, closest to `pool` first.
+        closest: Vec<String>,
+    },
+}
 
 impl fmt::Display for ReplanError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(&self.0)
+        match self {
+            ReplanError::UnknownScalePool { pool, closest } => {
+                let ids: Vec<&str> = closest.iter().map(String::as_str).collect();
+                write!(
+                    f,
+                    "`--scale`: pool `{pool}` is not defined; defined pools, closest first: {}",
+                    crate::diagnostic::list(&ids)
+                )
+            }
+        }
     }
 }
 
@@ -128,7 +145,7 @@ pub fn replan(
     progress: &Progress,
     today: NaiveDate,
     base: &PlanRequest,
-) -> Result<(Plan, PlanRequest), ReplanError> {
+) -> (Plan, PlanRequest) {
     // The pools' actual traffic so far, when given, makes their forecasts.
     let (refitted, traffic) = traffic::refit(portfolio, progress);
     let portfolio = &refitted;
@@ -382,7 +399,7 @@ pub fn replan(
     }
     plan.running = outlooks;
     plan.traffic = traffic;
-    Ok((plan, request))
+    (plan, request)
 }
 
 /// The tests `previous` ended before `today` (their last day of data
@@ -487,8 +504,15 @@ mod tests {
     fn with_scales_names_an_unknown_pool_and_defaults_to_today() {
         let p = flat(false, 1, false);
         let e = with_scales(&p, &["shoop=0.5".parse().unwrap()], d("2027-02-01")).unwrap_err();
-        assert!(e.0.contains("pool `shoop` is not defined"), "{e}");
-        assert!(e.0.contains("`shop`"), "{e}");
+        assert_eq!(
+            e,
+            ReplanError::UnknownScalePool {
+                pool: "shoop".into(),
+                closest: vec!["shop".into()],
+            }
+        );
+        assert!(e.to_string().contains("pool `shoop` is not defined"), "{e}");
+        assert!(e.to_string().contains("`shop`"), "{e}");
         let scaled = with_scales(&p, &["shop=0.5".parse().unwrap()], d("2027-02-01")).unwrap();
         let pool = &scaled.pools[0];
         assert_eq!(units_on(pool, d("2027-01-31")), 1000.0);
@@ -757,7 +781,7 @@ mod tests {
         let rescue = outlook(&p, &r, Share::from_fraction(0.1), today)
             .rescue_share
             .unwrap();
-        let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
+        let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default());
         assert_eq!(request.fixed[0].share, Share::from_fraction(0.1));
         assert!(request.fixed[0].end > p.window.end);
         assert_eq!(plan.experiments[0].status, Status::Running);
@@ -779,7 +803,7 @@ mod tests {
 
         // Allowed: it takes the rescue share from today and ends in time.
         let p = flat(false, 1, true);
-        let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default()).unwrap();
+        let (plan, request) = replan(&p, &progress_of(&r), today, &PlanRequest::default());
         let fixed = &request.fixed[0];
         assert_eq!(fixed.share, rescue);
         assert_eq!(fixed.start, d("2027-01-04"));
@@ -831,7 +855,7 @@ mod tests {
             traffic: Vec::new(),
             warnings: Vec::new(),
         };
-        let (plan, request) = replan(&p, &progress, today, &PlanRequest::default()).unwrap();
+        let (plan, request) = replan(&p, &progress, today, &PlanRequest::default());
         assert_eq!(plan.experiments[0].status, Status::Finished);
         assert_eq!(plan.experiments[1].status, Status::Cancelled);
         assert_eq!(request.excluded[0].ended, Some(d("2027-01-31")));

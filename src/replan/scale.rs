@@ -65,12 +65,11 @@ pub fn with_scales(
     for s in scales {
         let Some(i) = scaled.pool_index(&s.pool) else {
             let ids: Vec<&str> = scaled.pools.iter().map(|p| p.id.as_str()).collect();
-            let ids = crate::diagnostic::closest_first(&s.pool, &ids);
-            return Err(ReplanError(format!(
-                "`--scale`: pool `{}` is not defined; defined pools, closest first: {}",
-                s.pool,
-                crate::diagnostic::list(&ids)
-            )));
+            let closest = crate::diagnostic::closest_first(&s.pool, &ids);
+            return Err(ReplanError::UnknownScalePool {
+                pool: s.pool.clone(),
+                closest: closest.into_iter().map(str::to_string).collect(),
+            });
         };
         scaled.pools[i].forecast.scales.push(Scale {
             from: s.from.unwrap_or(today),
