@@ -5,9 +5,8 @@
 //! portfolio's `id`, not its display name. Read back with the independent
 //! `ical` parser.
 
-use crate::util::{cmd, demo};
+use crate::util::{cmd, demo, write_in, DAY30_PROGRESS};
 use std::collections::BTreeMap;
-use std::path::Path;
 
 /// What a calendar shows of one event, by UID.
 #[derive(Debug, Clone, PartialEq)]
@@ -58,33 +57,6 @@ fn events(bytes: &[u8]) -> BTreeMap<String, Ev> {
     out
 }
 
-const PROGRESS: &str = "\
-as_of: 2027-02-03
-experiments:
-  - id: search-ranking-v2
-    state: running
-    started: 2027-01-04
-    share: 1.0
-    units: 1000000
-  - id: home-personal-recs
-    state: finished
-    started: 2027-01-04
-    ended: 2027-01-17
-  - id: home-static-hero
-    state: finished
-    started: 2027-01-18
-    ended: 2027-01-31
-  - id: pdp-bundles
-    state: cancelled
-    note: the bundle supplier pulled out
-";
-
-fn write(dir: &Path, name: &str, bytes: &[u8]) -> String {
-    let path = dir.join(name);
-    std::fs::write(&path, bytes).unwrap();
-    path.to_str().unwrap().to_string()
-}
-
 fn replan(portfolio: &str, progress: &str, today: &str, previous: &str, format: &str) -> Vec<u8> {
     cmd(&[
         "replan",
@@ -111,12 +83,12 @@ fn a_replan_calendar_cancels_what_left_and_raises_the_sequence_of_what_changed()
             .assert_exit_code(0)
             .stdout
     };
-    let plan_json = write(dir.path(), "plan.json", &plan("json"));
+    let plan_json = write_in(dir.path(), "plan.json", plan("json"));
     let old = events(&plan("ics"));
     assert!(old
         .values()
         .all(|e| e.sequence == 0 && e.status == "TENTATIVE"));
-    let progress = write(dir.path(), "progress.yaml", PROGRESS.as_bytes());
+    let progress = write_in(dir.path(), "progress.yaml", DAY30_PROGRESS);
     let new = events(&replan(&demo(), &progress, "2027-02-03", &plan_json, "ics"));
 
     // Every event the previous calendar held is published again: none is
@@ -208,10 +180,10 @@ fn a_replan_calendar_cancels_what_left_and_raises_the_sequence_of_what_changed()
     // A re-plan of the re-plan keeps the history: the cancelled events stay
     // published, and no SEQUENCE ever goes down; the same inputs again
     // change nothing, so nothing moves up either.
-    let replan_json = write(
+    let replan_json = write_in(
         dir.path(),
         "replan.json",
-        &replan(&demo(), &progress, "2027-02-03", &plan_json, "json"),
+        replan(&demo(), &progress, "2027-02-03", &plan_json, "json"),
     );
     let again = events(&replan(
         &demo(),
@@ -263,14 +235,14 @@ fn uids_follow_the_portfolio_id_not_its_name() {
         "name: Larkspur and Loom - spring",
     );
     assert_ne!(renamed, text);
-    let path = write(dir.path(), "demo.yaml", renamed.as_bytes());
+    let path = write_in(dir.path(), "demo.yaml", renamed.as_bytes());
     assert_eq!(uids(&path), base);
 
     // An `id` key keeps them when the file moves.
     let with_id = format!("id: demo\n{renamed}");
-    let moved = write(dir.path(), "q1-final.yaml", with_id.as_bytes());
+    let moved = write_in(dir.path(), "q1-final.yaml", with_id.as_bytes());
     assert_eq!(uids(&moved), base);
-    let other = write(
+    let other = write_in(
         dir.path(),
         "other.yaml",
         format!("id: shop-q1\n{text}").as_bytes(),

@@ -9,7 +9,7 @@
 //!
 //! The library-level snapshots of each format live in tests/render.rs.
 
-use crate::util::{cmd, demo, repo, sluice};
+use crate::util::{cmd, demo, ics_unescape, repo, sluice, DAY30_PROGRESS};
 use chrono::{Duration, NaiveDate};
 use sluice::plan::{Plan, PlannedExperiment, Status};
 use std::collections::BTreeSet;
@@ -156,25 +156,6 @@ fn csv_has_a_header_and_one_row_per_experiment_agreeing_with_the_json() {
 
 // ---------------------------------------------------------------- iCalendar
 
-/// Undoes RFC 5545 §3.3.11 TEXT escaping (the `ical` parser leaves values
-/// as written).
-fn unescape(s: &str) -> String {
-    let mut out = String::new();
-    let mut chars = s.chars();
-    while let Some(c) = chars.next() {
-        if c == '\\' {
-            match chars.next() {
-                Some('n') | Some('N') => out.push('\n'),
-                Some(other) => out.push(other),
-                None => {}
-            }
-        } else {
-            out.push(c);
-        }
-    }
-    out
-}
-
 struct Event {
     props: Vec<ical::property::Property>,
 }
@@ -240,7 +221,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
     let want = format!("Experiment plan: {}", plan.portfolio);
     for key in ["NAME", "X-WR-CALNAME"] {
         let p = cal.properties.iter().find(|p| p.name == key).unwrap();
-        assert_eq!(unescape(p.value.as_deref().unwrap()), want, "{key}");
+        assert_eq!(ics_unescape(p.value.as_deref().unwrap()), want, "{key}");
     }
     let events = parse_ics(&bytes);
     let tests = scheduled(&plan);
@@ -267,8 +248,8 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         let tag = format!("[{}]", e.id);
         let (look_events, mine): (Vec<&Event>, Vec<&Event>) = events
             .iter()
-            .filter(|ev| unescape(&ev.get("SUMMARY")).ends_with(&tag))
-            .partition(|ev| unescape(&ev.get("SUMMARY")).starts_with("Interim look "));
+            .filter(|ev| ics_unescape(&ev.get("SUMMARY")).ends_with(&tag))
+            .partition(|ev| ics_unescape(&ev.get("SUMMARY")).starts_with("Interim look "));
         assert_eq!(mine.len(), 2, "{}: two events", e.id);
         // One all-day event per interim look, on the look's date, that
         // says which look it is and that the test may stop there.
@@ -280,7 +261,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
             e.id
         );
         for (k, (ev, date)) in look_events.iter().zip(&dates).enumerate() {
-            let summary = unescape(&ev.get("SUMMARY"));
+            let summary = ics_unescape(&ev.get("SUMMARY"));
             let want = format!(
                 "Interim look {} of {}, may stop early",
                 k + 1,
@@ -293,7 +274,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         }
         let (result, run): (Vec<&Event>, Vec<&Event>) = mine
             .into_iter()
-            .partition(|ev| unescape(&ev.get("SUMMARY")).starts_with("Result due: "));
+            .partition(|ev| ics_unescape(&ev.get("SUMMARY")).starts_with("Result due: "));
         let (run, result) = (run[0], result[0]);
         let r = e.run.unwrap();
         let (start, end, due) = (r.start, r.end, r.result_date);
@@ -302,7 +283,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
         // so the day after the last day of data.
         assert_eq!(run.date("DTSTART"), start, "{}", e.id);
         assert_eq!(run.date("DTEND"), end + Duration::days(1), "{}", e.id);
-        assert!(unescape(&run.get("SUMMARY")).contains(&e.title));
+        assert!(ics_unescape(&run.get("SUMMARY")).contains(&e.title));
         // The result-due event covers exactly the result date.
         assert_eq!(result.date("DTSTART"), due, "{}", e.id);
         assert_eq!(result.date("DTEND"), due + Duration::days(1), "{}", e.id);
@@ -320,7 +301,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
             })
             .collect();
         for ev in [run, result] {
-            let desc = unescape(&ev.get("DESCRIPTION"));
+            let desc = ics_unescape(&ev.get("DESCRIPTION"));
             assert!(
                 desc.contains(&format!(
                     "Pool: {} ({})",
@@ -346,7 +327,7 @@ fn ics_has_a_run_and_a_result_day_for_every_scheduled_test() {
 fn uids_by_summary(bytes: &[u8]) -> BTreeSet<(String, String)> {
     parse_ics(bytes)
         .iter()
-        .map(|ev| (unescape(&ev.get("SUMMARY")), ev.get("UID")))
+        .map(|ev| (ics_unescape(&ev.get("SUMMARY")), ev.get("UID")))
         .collect()
 }
 
@@ -653,30 +634,12 @@ fn out_into_a_missing_folder_is_a_clear_error() {
 
 // ---------------------------------------------------------------- replan
 
-/// Where the demo stands on 2027-02-03 by an invented progress file.
-const PROGRESS: &str = "\
-as_of: 2027-02-03
-experiments:
-  - id: search-ranking-v2
-    state: running
-    started: 2027-01-04
-    share: 1.0
-    units: 1000000
-  - id: home-personal-recs
-    state: finished
-    started: 2027-01-04
-    ended: 2027-01-17
-  - id: pdp-bundles
-    state: cancelled
-    note: the bundle supplier pulled out
-";
-
 #[test]
 fn replan_with_previous_shows_what_moved_in_text_md_and_json() {
     let dir = tempfile::tempdir().unwrap();
     let previous = dir.path().join("plan.json");
     let progress = dir.path().join("progress.yaml");
-    std::fs::write(&progress, PROGRESS).unwrap();
+    std::fs::write(&progress, DAY30_PROGRESS).unwrap();
     let prev = previous.to_str().unwrap();
     ok(&[
         "plan",

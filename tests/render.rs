@@ -9,6 +9,7 @@
 //! These call the library: `sluice plan` (and with it tests that run the
 //! binary on the demo portfolio) arrives with the scheduler.
 
+use crate::util::ics_unescape;
 use chrono::{Duration, NaiveDate};
 use sluice::plan::{Plan, Run, Status};
 use sluice::render::{render, Format, RenderOptions};
@@ -170,25 +171,6 @@ fn csv_parses_back_row_by_row() {
     }
 }
 
-/// Undoes RFC 5545 §3.3.11 TEXT escaping (the `ical` parser leaves values
-/// escaped).
-fn unescape_text(s: &str) -> String {
-    let mut out = String::new();
-    let mut chars = s.chars();
-    while let Some(c) = chars.next() {
-        if c == '\\' {
-            match chars.next() {
-                Some('n') | Some('N') => out.push('\n'),
-                Some(other) => out.push(other),
-                None => {}
-            }
-        } else {
-            out.push(c);
-        }
-    }
-    out
-}
-
 /// One property as the parser gives it: name, parameters, value.
 type ParsedProperty = (String, Vec<(String, Vec<String>)>, String);
 
@@ -275,7 +257,7 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
     assert_eq!(events.len(), 2 * scheduled.len() + looks.len());
     for (k, (id, n, date)) in looks.iter().enumerate() {
         let ev = &events[2 * scheduled.len() + k];
-        let summary = unescape_text(ev.get("SUMMARY"));
+        let summary = ics_unescape(ev.get("SUMMARY"));
         assert!(
             summary.starts_with(&format!("Interim look {} of {n}, may stop early: ", k + 1)),
             "{summary}"
@@ -300,14 +282,14 @@ fn ics_parses_with_an_independent_parser_and_every_event_checks_out() {
         // The run: all day from start, DTEND exclusive (RFC 5545 §3.6.1).
         assert_eq!(run.date("DTSTART"), start, "{}", e.id);
         assert_eq!(run.date("DTEND"), end + Duration::days(1), "{}", e.id);
-        assert!(unescape_text(run.get("SUMMARY")).contains(&e.title));
+        assert!(ics_unescape(run.get("SUMMARY")).contains(&e.title));
         // The result: one all-day event on the result date.
         assert_eq!(result.date("DTSTART"), due, "{}", e.id);
         assert_eq!(result.date("DTEND"), due + Duration::days(1), "{}", e.id);
-        assert!(unescape_text(result.get("SUMMARY")).starts_with("Result due: "));
+        assert!(ics_unescape(result.get("SUMMARY")).starts_with("Result due: "));
 
         for ev in [run, result] {
-            let desc = unescape_text(ev.get("DESCRIPTION"));
+            let desc = ics_unescape(ev.get("DESCRIPTION"));
             assert!(
                 desc.contains(&format!("({})", e.pools.join(", "))),
                 "pool in {desc}"
@@ -351,7 +333,7 @@ fn ics_lines_are_crlf_and_folded_to_75_octets() {
         .find(|l| l.starts_with("SUMMARY:Test running: A very"))
         .unwrap();
     assert_eq!(
-        unescape_text(&summary["SUMMARY:".len()..]),
+        ics_unescape(&summary["SUMMARY:".len()..]),
         format!("Test running: {} [hero-copy]", plan.experiments[0].title)
     );
     let (_, events) = parse_ics(&bytes);

@@ -5,7 +5,7 @@
 //! and the edge cases: today outside the window, every test finished, a
 //! pool without traffic, a test already past its need, bad progress files.
 
-use crate::util::{cmd, demo, repo, sluice};
+use crate::util::{cmd, demo, repo, scratch_path, sluice, stdout_of};
 use chrono::NaiveDate;
 use serde_json::Value;
 use sluice::replan::{self, load_progress, ScaleArg};
@@ -19,19 +19,11 @@ use std::sync::OnceLock;
 const DAY30: &str = "2027-02-03";
 
 fn scratch(name: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("replan");
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
+    scratch_path("replan", name)
 }
 
 fn ok(out: &Output) -> String {
-    assert!(
-        out.status.success(),
-        "exit {:?}: {}",
-        out.status.code(),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8(out.stdout.clone()).unwrap()
+    stdout_of(out)
 }
 
 fn d(s: &str) -> NaiveDate {

@@ -5,8 +5,7 @@
 //! not UTF-8; whole-number counts refuse fractions; ids refuse control
 //! characters; `replan --today` before the window is an error.
 
-use crate::util::{cmd, repo};
-use std::path::Path;
+use crate::util::{cmd, repo, write_in};
 
 fn quickstart() -> String {
     repo("portfolios/quickstart.yaml").display().to_string()
@@ -18,12 +17,6 @@ fn quickstart_text() -> String {
 
 fn stderr_of(args: &[&str], code: i32) -> String {
     String::from_utf8(cmd(args).assert_exit_code(code).stderr).unwrap()
-}
-
-fn write(dir: &Path, name: &str, bytes: &[u8]) -> String {
-    let path = dir.join(name);
-    std::fs::write(&path, bytes).unwrap();
-    path.display().to_string()
 }
 
 const PROGRESS: &str = "\
@@ -92,7 +85,7 @@ fn out_onto_a_character_device_writes_into_it_and_keeps_the_device() {
 #[test]
 fn out_never_writes_over_the_progress_file_or_the_previous_plan() {
     let dir = tempfile::tempdir().unwrap();
-    let progress = write(dir.path(), "progress.yaml", PROGRESS.as_bytes());
+    let progress = write_in(dir.path(), "progress.yaml", PROGRESS.as_bytes());
     let previous = dir.path().join("plan.json");
     let prev = previous.display().to_string();
     cmd(&["plan", &quickstart(), "--format", "json", "--out", &prev]).assert_exit_code(0);
@@ -132,7 +125,7 @@ fn out_never_writes_over_the_progress_file_or_the_previous_plan() {
 fn out_refuses_a_read_only_file_and_leaves_it() {
     use std::os::unix::fs::PermissionsExt;
     let dir = tempfile::tempdir().unwrap();
-    let out = write(dir.path(), "plan.md", b"kept");
+    let out = write_in(dir.path(), "plan.md", b"kept");
     std::fs::set_permissions(&out, std::fs::Permissions::from_mode(0o444)).unwrap();
     let err = stderr_of(&["plan", &quickstart(), "--format", "md", "--out", &out], 1);
     assert!(err.contains("read-only"), "{err}");
@@ -162,7 +155,7 @@ fn a_nul_or_control_byte_is_reported_at_its_line_and_column() {
         let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
         assert_eq!(lines[8], "    label: Product pages");
         lines[8].insert(14, byte);
-        let path = write(dir.path(), "p.yaml", lines.join("\n").as_bytes());
+        let path = write_in(dir.path(), "p.yaml", lines.join("\n").as_bytes());
         let err = stderr_of(&["check", &path], 2);
         assert!(err.contains(name), "{err}");
         assert_eq!(position(&err), (9, 15), "{err}");
@@ -181,7 +174,7 @@ fn a_second_yaml_document_is_reported_at_its_marker() {
         format!("{text}---\nname: again\n"),
         format!("---\n{text}---\nname: again\n"),
     ] {
-        let path = write(dir.path(), "p.yaml", doc.as_bytes());
+        let path = write_in(dir.path(), "p.yaml", doc.as_bytes());
         let err = stderr_of(&["check", &path], 2);
         assert!(err.contains("second YAML document"), "{err}");
         let want = doc.lines().count() - 1;
@@ -194,13 +187,13 @@ fn a_second_yaml_document_is_reported_at_its_marker() {
 fn old_mac_line_ends_read_as_line_breaks() {
     let dir = tempfile::tempdir().unwrap();
     let text = quickstart_text();
-    let lf = write(dir.path(), "lf.yaml", text.as_bytes());
-    let cr = write(dir.path(), "cr.yaml", text.replace('\n', "\r").as_bytes());
+    let lf = write_in(dir.path(), "lf.yaml", text.as_bytes());
+    let cr = write_in(dir.path(), "cr.yaml", text.replace('\n', "\r").as_bytes());
     let plan = |p: &str| cmd(&["plan", p, "--format", "csv", "--no-timing"]).stdout();
     assert_eq!(plan(&cr), plan(&lf));
     // And a problem in such a file is found at its line.
     let bad = text.replace("max_concurrent: 3", "max_concurrent: three");
-    let cr_bad = write(
+    let cr_bad = write_in(
         dir.path(),
         "cr-bad.yaml",
         bad.replace('\n', "\r").as_bytes(),
@@ -219,7 +212,7 @@ fn a_progress_file_that_is_not_utf8_gives_the_line() {
     // Latin-1 é instead of UTF-8's two bytes, on line 4.
     let at = bytes.windows(2).position(|w| w == [0xc3, 0xa9]).unwrap();
     bytes.splice(at..at + 2, [0xe9]);
-    let progress = write(dir.path(), "progress.yaml", &bytes);
+    let progress = write_in(dir.path(), "progress.yaml", &bytes);
     let err = stderr_of(
         &[
             "replan",
@@ -238,7 +231,7 @@ fn a_progress_file_that_is_not_utf8_gives_the_line() {
 #[test]
 fn whole_number_counts_refuse_fractions() {
     let dir = tempfile::tempdir().unwrap();
-    let progress = write(
+    let progress = write_in(
         dir.path(),
         "progress.yaml",
         PROGRESS
@@ -266,7 +259,7 @@ fn whole_number_counts_refuse_fractions() {
 #[test]
 fn replan_today_before_the_window_is_an_error_as_for_plan() {
     let dir = tempfile::tempdir().unwrap();
-    let progress = write(
+    let progress = write_in(
         dir.path(),
         "progress.yaml",
         "as_of: 2027-01-02\nexperiments: []\n".as_bytes(),
@@ -305,7 +298,7 @@ fn ids_with_line_breaks_or_control_characters_are_refused() {
     ] {
         let bad = text.replacen(from, to, 1);
         assert_ne!(bad, text);
-        let path = write(dir.path(), "p.yaml", bad.as_bytes());
+        let path = write_in(dir.path(), "p.yaml", bad.as_bytes());
         let err = stderr_of(&["check", &path], 2);
         assert!(err.contains("control character"), "{key}: {err}");
         assert!(err.contains(&format!("key: {key}")), "{key}: {err}");

@@ -4,14 +4,12 @@
 //! portfolio file is never written, and a bad edit is an error at its
 //! line and column with a hint.
 
-use crate::util::{cmd, demo, repo};
+use crate::util::{cmd, demo, repo, scratch_path};
 use serde_json::Value;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 fn scratch(name: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("scenario");
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
+    scratch_path("scenario", name)
 }
 
 /// Writes `text` as a scenario file called `name` and returns its path.

@@ -9,6 +9,29 @@ use std::ffi::OsStr;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
+/// The demo on day 30 (2027-02-03), by an invented progress file: a test
+/// running, two finished (one early) and one cancelled before it started.
+pub const DAY30_PROGRESS: &str = "\
+as_of: 2027-02-03
+experiments:
+  - id: search-ranking-v2
+    state: running
+    started: 2027-01-04
+    share: 1.0
+    units: 1000000
+  - id: home-personal-recs
+    state: finished
+    started: 2027-01-04
+    ended: 2027-01-17
+  - id: home-static-hero
+    state: finished
+    started: 2027-01-18
+    ended: 2027-01-31
+  - id: pdp-bundles
+    state: cancelled
+    note: the bundle supplier pulled out
+";
+
 /// The `sluice` binary with its arguments, environment and working folder.
 pub struct TestCommand {
     cmd: Command,
@@ -105,4 +128,49 @@ pub fn scratch_file(name: &str, text: &str) -> (tempfile::TempDir, PathBuf) {
     let path = dir.path().join(name);
     std::fs::write(&path, text).expect("the scratch file is written");
     (dir, path)
+}
+
+/// Writes `bytes` to `name` in `dir`; returns the path as a string.
+pub fn write_in(dir: &Path, name: &str, bytes: impl AsRef<[u8]>) -> String {
+    let path = dir.join(name);
+    std::fs::write(&path, bytes).expect("the file is written");
+    path.display().to_string()
+}
+
+/// A path for `name` in the folder `area` under cargo's scratch folder for
+/// integration tests, made if missing: for files a test module keeps.
+pub fn scratch_path(area: &str, name: &str) -> PathBuf {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(area);
+    std::fs::create_dir_all(&dir).expect("the scratch folder is made");
+    dir.join(name)
+}
+
+/// Insists that `out` succeeded; returns its stdout.
+pub fn stdout_of(out: &Output) -> String {
+    assert!(
+        out.status.success(),
+        "exit {:?}: {}",
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout.clone()).expect("UTF-8 on stdout")
+}
+
+/// Undoes RFC 5545 §3.3.11 TEXT escaping (the `ical` parser leaves values
+/// as written).
+pub fn ics_unescape(s: &str) -> String {
+    let mut out = String::new();
+    let mut chars = s.chars();
+    while let Some(c) = chars.next() {
+        if c == '\\' {
+            match chars.next() {
+                Some('n') | Some('N') => out.push('\n'),
+                Some(other) => out.push(other),
+                None => {}
+            }
+        } else {
+            out.push(c);
+        }
+    }
+    out
 }
