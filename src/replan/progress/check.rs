@@ -1,239 +1,19 @@
-//! The progress file: where each test stands mid-quarter (running with the
-//! units collected so far, finished, or cancelled), read for a re-plan.
-//!
-//! Same three passes and the same quality of errors as the portfolio
-//! loader (unknown keys with the closest allowed one, serde's type errors
-//! with their position, then every semantic problem at once), checked
-//! against an already validated [`Portfolio`] and the re-plan's `today`.
-//! Counts that the forecast could not have delivered are flagged as
-//! warnings, not refused: forecasts err, counts are facts.
-//! docs/progress.md documents every key.
+//! The semantic checks of one progress file against a validated
+//! portfolio and the re-plan's `today`: every problem at once, each at
+//! its line and key with a hint.
 
-use crate::diagnostic::{self, Diagnostic};
-use crate::forecast;
-use crate::portfolio::raw::{fields_of, RawEvent, Text};
-use crate::portfolio::{prepare, read_text, read_yaml, Checker, Event, LoadError, Portfolio};
-use crate::share::Share;
-use chrono::{Duration, NaiveDate};
-use serde::Deserialize;
-use std::path::Path;
-
-/// Where one experiment stands.
-#[derive(Debug, Clone, PartialEq)]
-pub enum State {
-    /// Started on `started` at `share` and still collecting.
-    Running {
-        /// Its first day.
-        started: NaiveDate,
-        /// Its share of the pool.
-        share: Share,
-        /// Units collected so far over all arms.
-        units: u64,
-        /// Per arm, control first, when the file gives them.
-        units_per_arm: Option<Vec<u64>>,
-    },
-    /// Done: it holds no traffic any more.
-    Finished {
-        /// Its first day, when the file gives it.
-        started: Option<NaiveDate>,
-        /// Its last day of data, when the file gives it.
-        ended: Option<NaiveDate>,
-        /// The share of its pool it ran at, when the file gives it.
-        share: Option<Share>,
-        /// The interim look that stopped it early, from 1.
-        stopped_at_look: Option<u32>,
-        /// What it found, when the file says.
-        outcome: Option<crate::plan::Outcome>,
-        /// Per arm, control first, when the file gives them.
-        units_per_arm: Option<Vec<u64>>,
-    },
-    /// Stopped for good: it holds no traffic any more.
-    Cancelled {
-        /// Why, in the file's words.
-        note: String,
-        /// Its first day, when it had started and the file gives it.
-        started: Option<NaiveDate>,
-        /// Its last day of data, when the file gives it.
-        ended: Option<NaiveDate>,
-        /// The share of its pool it ran at, when the file gives it.
-        share: Option<Share>,
-    },
-}
-
-/// One line of the progress file, resolved.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Entry {
-    /// Index into `Portfolio::experiments`.
-    pub experiment: usize,
-    /// Where it stands.
-    pub state: State,
-}
-
-/// The whole progress file, validated.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Progress {
-    /// The day the counts were read: units up to the end of the day before.
-    /// Defaults to the re-plan's `today`.
-    pub as_of: NaiveDate,
-    /// In file order, one per experiment named.
-    pub entries: Vec<Entry>,
-    /// The daily units each pool actually had so far (`traffic`), one per
-    /// pool named, in file order.
-    pub traffic: Vec<Observed>,
-    /// Problems worth a look that do not stop the re-plan.
-    pub warnings: Vec<Diagnostic>,
-}
-
-/// A pool's actual daily units so far, as the progress file gives them.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Observed {
-    /// Index into `Portfolio::pools`.
-    pub pool: usize,
-    /// The first day.
-    pub start: NaiveDate,
-    /// Units per day from `start`, without gaps, up to the day before
-    /// `as_of` at the latest.
-    pub units: Vec<f64>,
-    /// Known events in these days (`events`), left out of the refit.
-    pub events: Vec<Event>,
-}
-
-impl Observed {
-    /// The last day.
-    pub fn end(&self) -> NaiveDate {
-        self.start + Duration::days(self.units.len() as i64 - 1)
-    }
-}
-
-impl Progress {
-    /// The entry for an experiment, if the file has one.
-    pub fn entry(&self, experiment: usize) -> Option<&Entry> {
-        self.entries.iter().find(|e| e.experiment == experiment)
-    }
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-struct RawProgress {
-    as_of: Option<Text>,
-    experiments: Option<Vec<RawEntry>>,
-    traffic: Option<Vec<RawTraffic>>,
-    counts: Option<Text>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-struct RawTraffic {
-    pool: Option<Text>,
-    history: Option<Text>,
-    days: Option<Vec<RawDay>>,
-    events: Option<Vec<RawEvent>>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-struct RawDay {
-    date: Option<Text>,
-    units: Option<f64>,
-}
-
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-struct RawEntry {
-    id: Option<Text>,
-    state: Option<Text>,
-    started: Option<Text>,
-    ended: Option<Text>,
-    share: Option<f64>,
-    units: Option<f64>,
-    units_per_arm: Option<Vec<f64>>,
-    note: Option<Text>,
-    stopped_at_look: Option<f64>,
-    outcome: Option<Text>,
-}
-
-fn allowed_keys(shape: &str) -> Option<&'static [&'static str]> {
-    Some(match shape {
-        "" => fields_of::<RawProgress>(),
-        "experiments[]" => fields_of::<RawEntry>(),
-        "traffic[]" => fields_of::<RawTraffic>(),
-        "traffic[].days[]" => fields_of::<RawDay>(),
-        "traffic[].events[]" => fields_of::<RawEvent>(),
-        _ => return None,
-    })
-}
-
-/// Reads and validates the progress file at `path` against `portfolio`.
-pub fn load_progress(
-    path: &Path,
-    portfolio: &Portfolio,
-    today: NaiveDate,
-) -> Result<Progress, LoadError> {
-    let name = path.display().to_string();
-    let text = read_text(path, "the progress file", "save the progress file as UTF-8")?;
-    load_progress_str(&text, &name, portfolio, today)
-}
-
-/// Validates progress text; `file_name` is used in messages only.
-pub fn load_progress_str(
-    text: &str,
-    file_name: &str,
-    portfolio: &Portfolio,
-    today: NaiveDate,
-) -> Result<Progress, LoadError> {
-    let fail = |diagnostics: Vec<Diagnostic>| Err(LoadError { diagnostics });
-    let body = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let body = prepare(
-        body,
-        file_name,
-        "remove it; save the progress file as plain text",
-    )?;
-    let body = body.as_ref();
-    if body
-        .lines()
-        .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
-    {
-        return fail(vec![Diagnostic::new(file_name, "", "the progress file is empty")
-            .with_hint("list the tests that started: `experiments: [{id: ..., state: running, started: YYYY-MM-DD, share: 0.5, units: 1234}]`")]);
-    }
-    let (raw, index): (RawProgress, _) = match read_yaml(
-        body,
-        file_name,
-        "the progress file",
-        "docs/progress.md",
-        allowed_keys,
-    ) {
-        Ok(read) => read,
-        Err(d) => return fail(d),
-    };
-    let mut cx = ProgressCheck {
-        ck: Checker::new(file_name, body, index.as_ref()),
-        p: portfolio,
-        today,
-        counts: super::counts::Counts::new(),
-        counts_name: String::new(),
-    };
-    let progress = cx.validate(raw);
-    if cx.ck.errors.is_empty() {
-        Ok(Progress {
-            warnings: cx.ck.warnings,
-            ..progress
-        })
-    } else {
-        fail(cx.ck.errors)
-    }
-}
+use super::*;
 
 /// The checks of one progress file against a portfolio and the re-plan's
 /// `today`, recorded by the shared [`Checker`].
-struct ProgressCheck<'a> {
-    ck: Checker<'a>,
-    p: &'a Portfolio,
-    today: NaiveDate,
+pub(super) struct ProgressCheck<'a> {
+    pub(super) ck: Checker<'a>,
+    pub(super) p: &'a Portfolio,
+    pub(super) today: NaiveDate,
     /// The `counts` file's sums, by experiment (empty without one).
-    counts: super::counts::Counts,
+    pub(super) counts: crate::replan::counts::Counts,
     /// The `counts` file's path, for messages.
-    counts_name: String,
+    pub(super) counts_name: String,
 }
 
 /// One entry under check: its key (`experiments[2]`), its id, its index
@@ -250,7 +30,7 @@ impl ProgressCheck<'_> {
         self.ck.date(key, &format!("`{key}`"), v, "2027-02-01")
     }
 
-    fn validate(&mut self, raw: RawProgress) -> Progress {
+    pub(super) fn validate(&mut self, raw: RawProgress) -> Progress {
         let (p, today) = (self.p, self.today);
         let as_of = match self.date("as_of", &raw.as_of) {
             Some(d) if d > today => {
@@ -317,7 +97,7 @@ impl ProgressCheck<'_> {
             }
         }
         // Counts of tests the file does not list are left out: say so.
-        let mut unlisted: Vec<(&usize, &super::counts::Counted)> = self
+        let mut unlisted: Vec<(&usize, &crate::replan::counts::Counted)> = self
             .counts
             .iter()
             .filter(|(k, _)| !entries.iter().any(|e| e.experiment == **k))
@@ -358,7 +138,7 @@ impl ProgressCheck<'_> {
             }
         };
         self.counts_name = path.display().to_string();
-        match super::counts::parse(&text, &self.counts_name, self.p, as_of) {
+        match crate::replan::counts::parse(&text, &self.counts_name, self.p, as_of) {
             Ok(c) => self.counts = c,
             Err(problems) => self.ck.errors.extend(problems),
         }
@@ -896,217 +676,5 @@ impl ProgressCheck<'_> {
             units,
             units_per_arm: per_arm,
         })
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn quickstart() -> Portfolio {
-        let text = include_str!("../../portfolios/quickstart.yaml");
-        crate::portfolio::load_str(text, "quickstart.yaml").unwrap()
-    }
-
-    fn d(s: &str) -> NaiveDate {
-        NaiveDate::parse_from_str(s, "%Y-%m-%d").unwrap()
-    }
-
-    fn load(text: &str) -> Result<Progress, LoadError> {
-        load_progress_str(text, "progress.yaml", &quickstart(), d("2027-02-03"))
-    }
-
-    fn messages(r: Result<Progress, LoadError>) -> String {
-        r.unwrap_err()
-            .diagnostics
-            .iter()
-            .map(|d| format!("{}:{} {}", d.line.unwrap_or(0), d.key, d.message))
-            .collect::<Vec<_>>()
-            .join("\n")
-    }
-
-    #[test]
-    fn reads_inline_traffic_days() {
-        let p = load(
-            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-05, units: 120.5}\n",
-        )
-        .unwrap();
-        assert_eq!(
-            p.traffic,
-            vec![Observed {
-                pool: 0,
-                start: d("2027-01-04"),
-                units: vec![100.0, 120.5],
-                events: Vec::new(),
-            }]
-        );
-        assert_eq!(p.traffic[0].end(), d("2027-01-05"));
-    }
-
-    #[test]
-    fn traffic_events_are_read_and_checked_against_its_days() {
-        let p = load(
-            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-05, units: 900}\n    events:\n      - {from: 2027-01-05, to: 2027-01-05, note: flash sale}\n",
-        )
-        .unwrap();
-        assert_eq!(
-            p.traffic[0].events,
-            vec![Event {
-                from: d("2027-01-05"),
-                to: d("2027-01-05"),
-                note: "flash sale".into()
-            }]
-        );
-        let outside = messages(load(
-            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n    events:\n      - {from: 2027-01-03, to: 2027-01-04}\n",
-        ));
-        assert!(
-            outside.contains("6:traffic[0].events[0].from the traffic of pool `product`: event `from` 2027-01-03 is outside the days given, which run from 2027-01-04 to 2027-01-04"),
-            "{outside}"
-        );
-    }
-
-    #[test]
-    fn traffic_problems_are_errors_at_their_keys() {
-        let gap = messages(load(
-            "traffic:\n  - pool: product\n    days:\n      - {date: 2027-01-04, units: 100}\n      - {date: 2027-01-06, units: 120}\n",
-        ));
-        assert!(
-            gap.contains("5:traffic[0].days[1].date 2027-01-06 leaves a gap"),
-            "{gap}"
-        );
-        let unknown = messages(load(
-            "traffic:\n  - pool: prodct\n    days: [{date: 2027-01-04, units: 1}]\n",
-        ));
-        assert!(
-            unknown.contains("pool `prodct` is not in the portfolio"),
-            "{unknown}"
-        );
-        let both = messages(load(
-            "traffic:\n  - pool: product\n    history: t.csv\n    days: [{date: 2027-01-04, units: 1}]\n",
-        ));
-        assert!(both.contains("needs either `history` or `days`"), "{both}");
-        let future = messages(load(
-            "as_of: 2027-01-05\ntraffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: 1}, {date: 2027-01-05, units: 1}]\n",
-        ));
-        assert!(
-            future.contains("on or after `as_of` (2027-01-05)"),
-            "{future}"
-        );
-        let negative = messages(load(
-            "traffic:\n  - pool: product\n    days: [{date: 2027-01-04, units: -3}]\n",
-        ));
-        assert!(negative.contains("`units` is -3"), "{negative}");
-        let unread = messages(load(
-            "traffic:\n  - pool: product\n    history: nowhere.csv\n",
-        ));
-        assert!(
-            unread.contains("cannot read the traffic `nowhere.csv`"),
-            "{unread}"
-        );
-    }
-
-    #[test]
-    fn reads_every_state() {
-        let p = load(
-            "as_of: 2027-02-02\nexperiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units_per_arm: [40000, 40100]\n  - id: one-page-checkout\n    state: finished\n    started: 2027-01-04\n    ended: 2027-01-31\n  - id: delivery-dates\n    state: cancelled\n    note: legal review\n",
-        )
-        .unwrap();
-        assert_eq!(p.as_of, d("2027-02-02"));
-        assert_eq!(p.entries.len(), 3);
-        assert_eq!(
-            p.entries[0].state,
-            State::Running {
-                started: d("2027-01-04"),
-                share: Share::from_fraction(0.5),
-                units: 80100,
-                units_per_arm: Some(vec![40000, 40100]),
-            }
-        );
-        assert!(matches!(p.entries[1].state, State::Finished { .. }));
-        assert_eq!(
-            p.entries[2].state,
-            State::Cancelled {
-                note: "legal review".into(),
-                started: None,
-                ended: None,
-                share: None,
-            }
-        );
-        assert!(p.warnings.is_empty());
-    }
-
-    #[test]
-    fn unknown_id_lists_the_closest_first_with_its_line() {
-        let e = load("experiments:\n  - id: biger-photos\n    state: finished\n").unwrap_err();
-        let d = &e.diagnostics[0];
-        assert_eq!(d.line, Some(2));
-        assert_eq!(d.key, "experiments[0].id");
-        assert!(d.message.contains("`biger-photos` is not in the portfolio"));
-        assert!(d
-            .hint
-            .as_deref()
-            .unwrap()
-            .contains("closest first: `bigger-photos`"));
-    }
-
-    #[test]
-    fn running_after_today_is_an_error() {
-        let e = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-02-10\n    share: 0.5\n    units: 0\n").unwrap_err();
-        let d = &e.diagnostics[0];
-        assert_eq!(d.line, Some(4));
-        assert!(
-            d.message
-                .contains("marked running but starts on 2027-02-10"),
-            "{}",
-            d.message
-        );
-    }
-
-    #[test]
-    fn too_many_units_is_a_warning_not_an_error() {
-        // The product pool offers about 9,000 a day; at 50% for 30 days that
-        // is about 135,000, far below 900,000.
-        let p = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units: 900000\n").unwrap();
-        assert_eq!(p.warnings.len(), 1);
-        assert_eq!(p.warnings[0].line, Some(6));
-        assert!(p.warnings[0].message.contains("more than the forecast"));
-    }
-
-    #[test]
-    fn misspelt_key_names_the_closest_allowed_one() {
-        let e = load("experiments:\n  - id: bigger-photos\n    stat: running\n").unwrap_err();
-        let d = &e.diagnostics[0];
-        assert_eq!(d.line, Some(3));
-        assert!(
-            d.hint.as_deref().unwrap().contains("did you mean `state`?"),
-            "{d:?}"
-        );
-    }
-
-    #[test]
-    fn every_problem_is_reported_at_once() {
-        let e = load("experiments:\n  - id: nope\n    state: finished\n  - id: bigger-photos\n    state: runing\n  - id: one-page-checkout\n    state: running\n    started: 2027-01-04\n    share: 1.5\n    units: 10\n").unwrap_err();
-        assert_eq!(e.diagnostics.len(), 3, "{e}");
-    }
-
-    #[test]
-    fn arm_counts_must_match_the_design() {
-        let e = load("experiments:\n  - id: bigger-photos\n    state: running\n    started: 2027-01-04\n    share: 0.5\n    units_per_arm: [1, 2, 3]\n").unwrap_err();
-        assert!(e.diagnostics[0].message.contains("has 2 arms"));
-    }
-
-    #[test]
-    fn garbage_is_an_error_not_a_panic() {
-        for text in [
-            "",
-            "[1, 2",
-            "experiments: 3",
-            "- a\n- b",
-            "as_of: tomorrow",
-            "\u{0}\u{1}",
-        ] {
-            assert!(load(text).is_err(), "{text:?}");
-        }
     }
 }
