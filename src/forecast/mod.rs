@@ -61,13 +61,10 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     value * scale
 }
 
-/// The fraction of `pool`'s units that enter `experiment` while it holds
-/// the whole pool: its `eligible` times the pool's
-/// [`Pool::open_fraction`] (what an overlap pool's holdout leaves). The one
-/// place a test's units from one pool are worked out.
-pub fn entering(experiment: &Experiment, pool: &Pool) -> f64 {
-    experiment.eligible * pool.open_fraction()
-}
+/// The model's [`crate::portfolio::entering`], re-exported for the
+/// forecast's readers: the one place a test's units from one pool are
+/// worked out.
+pub use crate::portfolio::entering;
 
 /// The units `experiment` receives from `pool` on `date` at `share`.
 pub fn test_units_on(experiment: &Experiment, pool: &Pool, date: NaiveDate, share: f64) -> f64 {

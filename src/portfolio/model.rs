@@ -683,8 +683,17 @@ impl Portfolio {
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.
     /// The one place this product is formed.
     pub fn entering_fraction(&self, experiment: usize, pool: usize) -> f64 {
-        crate::forecast::entering(&self.experiments[experiment], &self.pools[pool])
+        entering(&self.experiments[experiment], &self.pools[pool])
     }
+}
+
+/// The fraction of `pool`'s units that enter `experiment` while it holds
+/// the whole pool: its `eligible` times the pool's
+/// [`Pool::open_fraction`] (what an overlap pool's holdout leaves). The one
+/// place a test's units from one pool are worked out; the forecast, the
+/// check and the planner all read it from here.
+pub fn entering(experiment: &Experiment, pool: &Pool) -> f64 {
+    experiment.eligible * pool.open_fraction()
 }
 
 /// Experiment indices ordered so every `after` prerequisite comes before

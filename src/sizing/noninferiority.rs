@@ -31,6 +31,23 @@ use super::{
     SampleSize, Sides, SizingError,
 };
 
+/// The design of a non-inferiority (guardrail) test, with the defaults
+/// that make it one, in one place for the portfolio and the command line:
+/// `base` (its `effect` the margin) made one-sided, with `method` when one
+/// is named; otherwise, for a rate, the unpooled variance of Blackwelder
+/// (1982), whose formula sizes it, and for a mean `base`'s own method.
+pub fn design(base: Design, method: Option<Method>) -> Design {
+    let method = method.unwrap_or(match base.metric {
+        Metric::Rate { .. } => Method::Unpooled,
+        Metric::Mean { .. } => base.method,
+    });
+    Design {
+        sides: Sides::One,
+        method,
+        ..base
+    }
+}
+
 /// The margin as an absolute difference, with its sign (positive: a fall
 /// is the harm).
 fn margin_abs(d: &Design) -> f64 {
