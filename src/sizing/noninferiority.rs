@@ -224,6 +224,27 @@ mod tests {
     }
 
     #[test]
+    fn a_guardrail_design_is_one_sided_and_unpooled_for_a_rate_unless_named() {
+        let two = |metric| Design {
+            sides: Sides::Two,
+            method: Method::default_for(&metric),
+            ..Design::new(metric, Effect::Relative(0.02))
+        };
+        let rate = design(two(Metric::Rate { baseline: 0.1 }), None);
+        assert_eq!((rate.sides, rate.method), (Sides::One, Method::Unpooled));
+        let named = design(two(Metric::Rate { baseline: 0.1 }), Some(Method::Pooled));
+        assert_eq!((named.sides, named.method), (Sides::One, Method::Pooled));
+        // A mean keeps its own method; the margin stays the effect.
+        let mean = Metric::Mean {
+            mean: 40.0,
+            sd: 12.0,
+        };
+        let m = design(two(mean), None);
+        assert_eq!(m.method, Method::default_for(&mean));
+        assert_eq!((m.sides, m.effect), (Sides::One, Effect::Relative(0.02)));
+    }
+
+    #[test]
     fn bad_margins_and_methods_are_refused() {
         assert!(size(&rate(0.1, Effect::Absolute(0.0))).is_err());
         assert!(size(&rate(0.1, Effect::Absolute(0.2))).is_err()); // null rate -0.1
