@@ -644,7 +644,7 @@ impl Portfolio {
     /// The fraction of the units under experiment `experiment`'s share of
     /// pool `pool` that enter the test: its `eligible` times the pool's
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.
-    /// The one place this product is formed.
+    /// By index; [`entering`] forms the product.
     pub fn entering_fraction(&self, experiment: usize, pool: usize) -> f64 {
         entering(&self.experiments[experiment], &self.pools[pool])
     }

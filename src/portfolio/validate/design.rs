@@ -313,7 +313,8 @@ pub(super) fn design(
         "in [0, 1)",
         "the correlation of the metric with its pre-period value; 0 for none",
     );
-    // A guardrail's own default method comes from its builder below.
+    // A guardrail's default (Blackwelder's unpooled variance for a rate)
+    // is set by `noninferiority::design` below.
     let default_method = match metric {
         Metric::Rate { .. } => d.rate_method,
         Metric::Mean { .. } => d.mean_method,
