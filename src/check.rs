@@ -165,7 +165,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
         let summed = Series::summed(
             e.pools
                 .iter()
-                .map(|&k| (&series[k], crate::forecast::entering(e, &p.pools[k]))),
+                .map(|&k| (&series[k], crate::portfolio::entering(e, &p.pools[k]))),
         );
         done[i] = Some(experiment(&inst, e, i, &summed, start, first_start));
     }
@@ -185,7 +185,7 @@ pub fn check(p: &Portfolio) -> CheckReport {
                 .iter()
                 .map(|e| {
                     let part = |k: usize| {
-                        crate::forecast::entering(e, &p.pools[k]) * series[k].total(0, last)
+                        crate::portfolio::entering(e, &p.pools[k]) * series[k].total(0, last)
                     };
                     let all: f64 = e.pools.iter().map(|&k| part(k)).sum();
                     let fraction = if all > 0.0 {

@@ -36,6 +36,7 @@ pub(crate) mod cli;
 pub mod day;
 pub mod diagnostic;
 pub mod diff;
+pub mod fit;
 pub mod forecast;
 pub(crate) mod output;
 pub mod plan;

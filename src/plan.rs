@@ -7,7 +7,7 @@
 //! It also holds [`PlanDiff`], what moved since a previous plan, which a
 //! re-plan carries; `crate::diff` computes it from two plans.
 
-pub use crate::forecast::fit::LevelRule;
+pub use crate::fit::LevelRule;
 pub use crate::portfolio::{BlackoutKind, Sharing};
 use crate::share::Share;
 use chrono::NaiveDate;
@@ -717,7 +717,7 @@ pub struct PoolPlan {
     /// total's forecast, P10-P90 range and actual), for the chart; empty
     /// (and left out of JSON) otherwise.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub backtest: Vec<crate::forecast::backtest::OriginRange>,
+    pub backtest: Vec<crate::fit::backtest::OriginRange>,
 }
 
 /// How many of a pool's last history days a plan carries.

@@ -352,25 +352,23 @@ fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
 /// one-sided and, for a rate, takes Blackwelder's unpooled variance at the
 /// assumed rates unless `--method` says otherwise.
 pub(super) fn flag_design(metric: Metric, effect: Effect, guardrail: bool, t: &TestArgs) -> Design {
-    let method = t.method.map(Method::from).unwrap_or(match metric {
-        Metric::Rate { .. } if guardrail => Method::Unpooled,
-        _ => Method::default_for(&metric),
-    });
-    Design {
+    let given = t.method.map(Method::from);
+    let base = Design {
         metric,
         effect,
         alpha: t.alpha,
         power: t.power,
-        sides: if t.one_sided || guardrail {
-            Sides::One
-        } else {
-            Sides::Two
-        },
+        sides: if t.one_sided { Sides::One } else { Sides::Two },
         arms: t.arms,
         ratio: t.ratio,
-        method,
+        method: given.unwrap_or(Method::default_for(&metric)),
         correction: t.correction.into(),
         rho: t.rho,
+    };
+    if guardrail {
+        noninferiority::design(base, given)
+    } else {
+        base
     }
 }
 

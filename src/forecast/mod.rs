@@ -12,14 +12,17 @@
 //! re-plan, renderers) reads traffic through this module. [`fit`] fits the
 //! level, pattern, trend and season from a pool's daily history, with
 //! [`shift`] finding a recent change of level and [`backtest`] scoring the
-//! fit from rolling origins and calibrating its spread; [`report`] is what
-//! `sluice forecast` shows of it.
+//! fit from rolling origins and calibrating its spread (all three live in
+//! [`crate::fit`], below the portfolio, whose loader fits each history,
+//! and are re-exported here); [`report`] is what `sluice forecast` shows
+//! of it.
 
-pub mod backtest;
-pub mod fit;
 pub mod report;
-pub mod shift;
 pub mod uncertainty;
+
+/// The fit of a pool's history lives below the portfolio, in
+/// [`crate::fit`]; the forecast's readers find it here too.
+pub use crate::fit::{self, backtest, shift};
 
 use crate::portfolio::{Change, Experiment, Pool};
 use chrono::{Datelike, Duration, NaiveDate};
@@ -61,13 +64,10 @@ pub fn units_on(pool: &Pool, date: NaiveDate) -> f64 {
     value * scale
 }
 
-/// The fraction of `pool`'s units that enter `experiment` while it holds
-/// the whole pool: its `eligible` times the pool's
-/// [`Pool::open_fraction`] (what an overlap pool's holdout leaves). The one
-/// place a test's units from one pool are worked out.
-pub fn entering(experiment: &Experiment, pool: &Pool) -> f64 {
-    experiment.eligible * pool.open_fraction()
-}
+/// The model's [`crate::portfolio::entering`], re-exported for the
+/// forecast's readers: the one place a test's units from one pool are
+/// worked out.
+pub use crate::portfolio::entering;
 
 /// The units `experiment` receives from `pool` on `date` at `share`.
 pub fn test_units_on(experiment: &Experiment, pool: &Pool, date: NaiveDate, share: f64) -> f64 {

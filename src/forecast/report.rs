@@ -2,8 +2,8 @@
 //! four weeks held out, and the days a chart of history and forecast
 //! draws. Facts only; `cli::forecast` words them.
 
-use super::backtest::Backtest;
-use super::fit::{self, LevelRule, Shift};
+use crate::fit::backtest::Backtest;
+use crate::fit::{self, LevelRule, Shift};
 use crate::portfolio::{Pool, Portfolio};
 use chrono::{Duration, NaiveDate};
 use serde::Serialize;

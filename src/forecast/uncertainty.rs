@@ -23,6 +23,8 @@
 //! pool by pool, the level then the days), so the same input gives the
 //! same ranges.
 
+pub use crate::fit::grown;
+
 use super::Series;
 use crate::plan::{PlannedExperiment, ResultRange, Status};
 use crate::portfolio::{Portfolio, Uncertainty};
@@ -36,12 +38,6 @@ use rayon::prelude::*;
 /// `cv`: `sqrt(ln(1 + cv²))`.
 pub fn sigma(cv: f64) -> f64 {
     (1.0 + cv * cv).ln().sqrt()
-}
-
-/// How much the level's spread has grown `days` days after the forecast's
-/// origin: `max(1, days / 28)^growth`.
-pub fn grown(days: i64, growth: f64) -> f64 {
-    (days as f64 / 28.0).max(1.0).powf(growth)
 }
 
 /// The mean-1 lognormal factor of σ `s` at the standard normal value `z`.

@@ -8,7 +8,7 @@ use super::checker::Checker;
 use super::model::{event_days, Event, History};
 use super::raw::{RawEvent, Text};
 use crate::diagnostic::Diagnostic;
-use crate::forecast::fit;
+use crate::fit;
 use chrono::{Duration, NaiveDate};
 use std::path::{Path, PathBuf};
 

@@ -6,6 +6,9 @@
 //! field (ids resolved to indices, dates inside the window, numbers in
 //! range, the `after` graph acyclic, every experiment sized).
 
+// The level's path after a history is a fact of the fit, below the model.
+pub use crate::fit::LevelPath;
+
 use crate::day::Day;
 use crate::share::{Share, ShareLevels};
 use crate::sizing::sequential::{Boundary, Sequential};
@@ -268,46 +271,6 @@ impl Uncertainty {
     }
 }
 
-/// The path of a pool's level after its history's last day, fitted from
-/// the history: a trend (damped when the history is shorter than a year)
-/// and, with a year or more of history, the yearly season. On `date` the
-/// level is `daily x` [`LevelPath::factor`].
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct LevelPath {
-    /// The day the level is `daily` (the history's last day).
-    pub from: NaiveDate,
-    /// The trend: the log of the level's change per week at `from`.
-    pub per_week: f64,
-    /// The trend's damping per week (Gardner & McKenzie 1985): week w
-    /// after `from` adds `per_week x damping^w`; 1 keeps it constant.
-    pub damping: f64,
-    /// The yearly season: the log of the level on day `from + 1 + i`
-    /// against `from`, for a year; later days repeat it. Empty without
-    /// one.
-    #[serde(skip)]
-    pub season: Vec<f64>,
-}
-
-impl LevelPath {
-    /// The level on `date` over the level on `from`. Before `from` the
-    /// trend runs back undamped and the season is left out.
-    pub fn factor(&self, date: NaiveDate) -> f64 {
-        let days = (date - self.from).num_days();
-        let weeks = days as f64 / 7.0;
-        let trend = if days <= 0 || self.damping >= 1.0 {
-            self.per_week * weeks
-        } else {
-            let phi = self.damping;
-            self.per_week * phi * (1.0 - phi.powf(weeks)) / (1.0 - phi)
-        };
-        let season = match (days, self.season.len()) {
-            (d, len) if d > 0 && len > 0 => self.season[(d as usize - 1) % len],
-            _ => 0.0,
-        };
-        (trend + season).exp()
-    }
-}
-
 /// A span of a history's days that are not the pool's normal traffic (a
 /// campaign, an outage, a tracking fault): left out of the fit.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -344,7 +307,7 @@ pub struct History {
     /// Known events in the history, left out of the fit (`events`).
     pub events: Vec<Event>,
     /// The fitted model (before `daily` or `weekday_pattern` override it).
-    pub fit: crate::forecast::fit::Fit,
+    pub fit: crate::fit::Fit,
 }
 
 impl History {
@@ -737,10 +700,19 @@ impl Portfolio {
     /// The fraction of the units under experiment `experiment`'s share of
     /// pool `pool` that enter the test: its `eligible` times the pool's
     /// [`Pool::open_fraction`]. Units entering = share x this x forecast.
-    /// The one place this product is formed.
+    /// By index; [`entering`] forms the product.
     pub fn entering_fraction(&self, experiment: usize, pool: usize) -> f64 {
-        crate::forecast::entering(&self.experiments[experiment], &self.pools[pool])
+        entering(&self.experiments[experiment], &self.pools[pool])
     }
+}
+
+/// The fraction of `pool`'s units that enter `experiment` while it holds
+/// the whole pool: its `eligible` times the pool's
+/// [`Pool::open_fraction`] (what an overlap pool's holdout leaves). The one
+/// place a test's units from one pool are worked out; the forecast, the
+/// check and the planner all read it from here.
+pub fn entering(experiment: &Experiment, pool: &Pool) -> f64 {
+    experiment.eligible * pool.open_fraction()
 }
 
 /// Experiment indices ordered so every `after` prerequisite comes before

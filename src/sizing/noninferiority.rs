@@ -31,6 +31,23 @@ use super::{
     SampleSize, Sides, SizingError,
 };
 
+/// The design of a non-inferiority (guardrail) test, with the defaults
+/// that make it one, in one place for the portfolio and the command line:
+/// `base` (its `effect` the margin) made one-sided, with `method` when one
+/// is named; otherwise, for a rate, the unpooled variance of Blackwelder
+/// (1982), whose formula sizes it, and for a mean `base`'s own method.
+pub fn design(base: Design, method: Option<Method>) -> Design {
+    let method = method.unwrap_or(match base.metric {
+        Metric::Rate { .. } => Method::Unpooled,
+        Metric::Mean { .. } => base.method,
+    });
+    Design {
+        sides: Sides::One,
+        method,
+        ..base
+    }
+}
+
 /// The margin as an absolute difference, with its sign (positive: a fall
 /// is the harm).
 fn margin_abs(d: &Design) -> f64 {
@@ -204,6 +221,27 @@ mod tests {
             0.08,
             epsilon = 1e-8
         );
+    }
+
+    #[test]
+    fn a_guardrail_design_is_one_sided_and_unpooled_for_a_rate_unless_named() {
+        let two = |metric| Design {
+            sides: Sides::Two,
+            method: Method::default_for(&metric),
+            ..Design::new(metric, Effect::Relative(0.02))
+        };
+        let rate = design(two(Metric::Rate { baseline: 0.1 }), None);
+        assert_eq!((rate.sides, rate.method), (Sides::One, Method::Unpooled));
+        let named = design(two(Metric::Rate { baseline: 0.1 }), Some(Method::Pooled));
+        assert_eq!((named.sides, named.method), (Sides::One, Method::Pooled));
+        // A mean keeps its own method; the margin stays the effect.
+        let mean = Metric::Mean {
+            mean: 40.0,
+            sd: 12.0,
+        };
+        let m = design(two(mean), None);
+        assert_eq!(m.method, Method::default_for(&mean));
+        assert_eq!((m.sides, m.effect), (Sides::One, Effect::Relative(0.02)));
     }
 
     #[test]

@@ -1,9 +1,9 @@
-//! The backtest: how well the fit of [`super::fit`] forecast a pool's own
+//! The backtest: how well the fit of [`super`] forecast a pool's own
 //! history, and the calibration of the spread behind result ranges.
 //!
 //! From rolling origins (every week over the last year of the history,
 //! each with at least [`MIN_FIT_DAYS`] days before it) the fit that
-//! planning uses (`fit::fit_point`, never a copy of it) is made
+//! planning uses (`fit_point` in `point.rs`, never a copy of it) is made
 //! on the days before the origin only, and forecasts the next 13 weeks.
 //! The forecast is scored as in Hyndman & Athanasopoulos ("Forecasting:
 //! Principles and Practice", 3rd ed. 2021, §5.10, time series
@@ -20,9 +20,11 @@
 //! smallest such σL). The coverage reported is that range's, on the same
 //! origins.
 
-use super::fit::{fit_point, lognormal_cv};
+pub use super::model::{Backtest, OriginRange};
+
+use super::model::grown;
+use super::point::{fit_point, lognormal_cv};
 use chrono::{Duration, NaiveDate};
-use serde::{Deserialize, Serialize};
 
 /// The fewest days a backtest origin fits on.
 pub const MIN_FIT_DAYS: usize = 56;
@@ -32,45 +34,6 @@ pub const MAX_ORIGINS: usize = 52;
 pub const MIN_ORIGINS: usize = 4;
 /// The standard normal's 90% quantile.
 const Z90: f64 = 1.281_551_565_544_600_4;
-
-/// A pool's backtest, in the JSON of `sluice forecast`.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Backtest {
-    /// The origins forecast from.
-    pub origins: usize,
-    /// Mean absolute percentage error of the daily forecast one week ahead.
-    pub mape_1w: Option<f64>,
-    /// The same four weeks ahead.
-    pub mape_4w: Option<f64>,
-    /// The same thirteen weeks ahead.
-    pub mape_13w: Option<f64>,
-    /// The share of origins whose four-week total fell in its P10-P90
-    /// range.
-    pub coverage_4w: Option<f64>,
-    /// The same for thirteen-week totals.
-    pub coverage_13w: Option<f64>,
-    /// Each origin's four-week total against its range, oldest first (for
-    /// the chart).
-    #[serde(skip)]
-    pub ranges: Vec<OriginRange>,
-}
-
-/// One origin's four-week total: forecast, P10-P90 range and what came.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct OriginRange {
-    /// The first day forecast.
-    pub from: NaiveDate,
-    /// The last day forecast.
-    pub to: NaiveDate,
-    /// The forecast total.
-    pub forecast: f64,
-    /// Its P10.
-    pub low: f64,
-    /// Its P90.
-    pub high: f64,
-    /// The actual total.
-    pub actual: f64,
-}
 
 /// One total's error: log(actual / forecast), its horizon in days and
 /// the days it counts.
@@ -202,7 +165,7 @@ fn mean_growth(t: &TotalError, growth: f64) -> f64 {
         return 1.0;
     }
     (1..=t.horizon)
-        .map(|k| super::uncertainty::grown(k as i64, growth))
+        .map(|k| grown(k as i64, growth))
         .sum::<f64>()
         / t.horizon as f64
 }
