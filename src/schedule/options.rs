@@ -53,7 +53,7 @@ pub(crate) struct Instance<'a> {
     /// Forecast of each pool over the window.
     pub series: Vec<Series>,
     /// The units entering each test per day at the whole of each of its
-    /// pools: its pools' forecasts summed (see `forecast::entering`).
+    /// pools: its pools' forecasts summed (see `portfolio::entering`).
     pub test_series: Vec<Series>,
     /// Share of each pool held by fixed runs, per day.
     pub base_share: Vec<Vec<i64>>,
@@ -119,7 +119,7 @@ impl<'a> Instance<'a> {
                 Series::summed(ex.pools.iter().map(|&pool| {
                     (
                         &series[pool],
-                        crate::forecast::entering(ex, &portfolio.pools[pool]),
+                        crate::portfolio::entering(ex, &portfolio.pools[pool]),
                     )
                 }))
             })

@@ -7,7 +7,7 @@ and the references fit the same series independently:
 * the weekday pattern: statsmodels' `seasonal_decompose` (the classical
   multiplicative decomposition: each day over its centred seven-day moving
   average, averaged per weekday, scaled to average 1; the method sluice
-  documents in src/forecast/fit.rs) on the last 364 days at most, after
+  documents in src/fit/) on the last 364 days at most, after
   the cleaning below. Each multiplier must agree within 2%. statsmodels'
   robust `STL` on the log units (the smoother settings below) is printed
   beside it for comparison.
@@ -66,7 +66,7 @@ PENALTY = 3.0
 TOTAL_TOL = 0.03
 HORIZON = 28
 
-# The settings of sluice's decomposition (src/forecast/fit.rs, `STL`).
+# The settings of sluice's decomposition (src/fit/, `STL`).
 STL_ARGS = dict(
     period=7,
     seasonal=13,

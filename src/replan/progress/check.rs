@@ -654,7 +654,7 @@ impl ProgressCheck<'_> {
                 .map(|&k| {
                     let series = forecast::Series::new(&p.pools[k], started, last);
                     series.total(0, series.len() - 1)
-                        * forecast::entering(exp, &p.pools[k])
+                        * crate::portfolio::entering(exp, &p.pools[k])
                         * share.fraction()
                 })
                 .sum();
