@@ -35,8 +35,8 @@ pub struct CheckReport {
     pub window_end: NaiveDate,
     /// Days in the window, both ends counted.
     pub window_days: usize,
-    /// The window's first start day (on the start grid), from which the
-    /// durations count.
+    /// The window's first start day (on the start grid): no test's days
+    /// count from earlier.
     pub first_start: NaiveDate,
     /// `planning.confidence`: durations and solo fits are then on the
     /// lower quantile of the forecast, as the plan makes them.
@@ -80,9 +80,12 @@ pub struct ExperimentCheck {
     /// the experiment's `max_share` (nor, on a split pool, its room
     /// beside the holdout).
     pub share: Share,
-    /// Days the run takes at `share` when started on the window's first
-    /// start day (minimum run and whole weeks included); `None` when it
-    /// would take longer than [`HORIZON_DAYS`].
+    /// Days its run takes at `share` from its first start day (the first
+    /// day on the start grid, outside `no_starts`, on or after its
+    /// earliest start and its prerequisites): its solo run when it fits
+    /// alone (which steps around blackouts), else the days the traffic
+    /// alone needs (minimum run and whole weeks included); `None` when
+    /// that would take longer than [`HORIZON_DAYS`].
     pub days_from_first_start: Option<u32>,
     /// The last day of that run; `None` as above.
     pub end_from_first_start: Option<NaiveDate>,
@@ -296,14 +299,16 @@ fn experiment(
     let e = &p.experiments[i];
     let w = p.window;
     let share = p.top_share(e);
-    let from = w.offset(first_start).offset().max(0) as usize;
-    let (days, end) = match series.test_end(e, from, share.fraction()) {
-        Some(j) => (Some((j - from) as u32 + 1), Some(w.date(j as i64))),
-        None => (None, None),
-    };
     let first = match &start {
         Earliest::From(first, _) => Some(*first),
         Earliest::Blocked(_) => None,
+    };
+    // Its days count from the first day it may start on: on the grid,
+    // outside `no_starts`, not before its earliest start or prerequisites.
+    let from = first_day(inst, i, first.unwrap_or(first_start).max(first_start));
+    let (days, end) = match series.test_end(e, from, share.fraction()) {
+        Some(j) => (Some((j - from) as u32 + 1), Some(w.date(j as i64))),
+        None => (None, None),
     };
     let (solo, mut reason) = match start {
         Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
@@ -366,8 +371,10 @@ fn experiment(
         treatment_units: truth.need.treatment,
         total_units: truth.need.total,
         share,
-        days_from_first_start: days,
-        end_from_first_start: end,
+        // A test that fits alone counts its solo run (which steps around
+        // blackouts); one that does not, its days on the traffic alone.
+        days_from_first_start: solo.map(|(a, b)| (b - a).num_days() as u32 + 1).or(days),
+        end_from_first_start: solo.map(|s| s.1).or(end),
         fits_alone: solo.is_some(),
         solo_start: solo.map(|s| s.0),
         solo_end: solo.map(|s| s.1),
@@ -376,6 +383,16 @@ fn experiment(
         detectable,
         looks,
     }
+}
+
+/// The index of the first day from `from` on that test `i` may start on
+/// (the start grid, `no_starts`); `from`'s own when none is left.
+fn first_day(inst: &Instance, i: usize, from: NaiveDate) -> usize {
+    let w = inst.portfolio.window;
+    let from = w.offset(from).offset().max(0) as usize;
+    (from..w.days())
+        .find(|&d| inst.may_start(d, i))
+        .unwrap_or(from)
 }
 
 /// The earliest run of experiment `i` alone that fits, as the planner's
@@ -415,10 +432,7 @@ fn solo_fit(
         format!("every run at {pct} that ends by {until} crosses a no-running blackout")
     } else if solo.ran_out {
         // Counted from the first day it may start on (the grid, freezes).
-        let from = w.offset(first).offset().max(0) as usize;
-        let i = (from..w.days())
-            .find(|&d| inst.may_start(d, i_ex))
-            .unwrap_or(from);
+        let i = first_day(inst, i_ex, first);
         let day = w.date(i as i64);
         let start = match (&because, day > w.start) {
             (Some(pre), _) => format!(" even from {day}, after `{pre}` ends"),

@@ -186,8 +186,9 @@ fn check_sizes_each_test_at_the_confidence_the_plan_plans_to() {
     // The units reported are the test's own need either way.
     assert_eq!(at["total_units"], plain["total_units"]);
     let (text, _) = run(&["check", sure.to_str().unwrap()]);
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
     assert!(
-        text.contains("At 80% confidence, as the plan is made"),
+        flat.contains("At 80% confidence, as the plan is made"),
         "{text}"
     );
 }
@@ -208,8 +209,20 @@ fn check_counts_days_from_the_first_start_day_in_text_and_json() {
         "{big}"
     );
     assert_eq!(big["solo_end"], big["end_from_first_start"]);
+    // On the demo too: a test that fits alone counts its own solo run,
+    // never days before its first start (some start weeks in).
+    let demo = json(&["check", &demo(), "--format", "json"]);
+    for e in demo["experiments"].as_array().unwrap() {
+        if e["fits_alone"] == true {
+            assert_eq!(e["solo_end"], e["end_from_first_start"], "{e}");
+            let days = (date(&e["solo_end"]) - date(&e["solo_start"])).num_days() + 1;
+            assert_eq!(e["days_from_first_start"], days, "{e}");
+        }
+    }
     let (text, _) = run(&["check", path.to_str().unwrap()]);
-    assert!(text.contains("Days count from the first start day, 2027-01-11."));
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(flat
+        .contains("Each test's days count from its first start day (the window's is 2027-01-11)."));
     assert!(text.contains(&format!("{days} (to {end})")), "{text}");
 }
 

@@ -127,7 +127,7 @@ pub fn text(r: &CheckReport, width: usize) -> String {
     let mut notes = Vec::new();
     if r.first_start != r.window_start {
         notes.push(format!(
-            "Days count from the first start day, {}.",
+            "Each test's days count from its first start day (the window's is {}).",
             r.first_start
         ));
     }
