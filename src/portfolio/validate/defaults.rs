@@ -5,7 +5,7 @@ use super::super::model::*;
 use super::super::raw::*;
 use super::metrics::{looks_count, BOUNDARIES};
 use super::{
-    is_holdout, is_share, whole, Ctx, CORRECTIONS, DEFAULT_SHARE_LEVELS, MAX_DAYS_SETTING,
+    alpha_ok, days_ok, is_holdout, is_share, power_ok, Ctx, CORRECTIONS, DEFAULT_SHARE_LEVELS,
     MEAN_METHODS, RATE_METHODS, SIDES,
 };
 use crate::share::{Share, ShareLevels};
@@ -14,23 +14,9 @@ pub(super) fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
     let before = cx.errors.len();
     let fallback = Defaults::default();
     let alpha = d.alpha.unwrap_or(fallback.alpha);
-    cx.number(
-        "defaults.alpha",
-        "",
-        alpha,
-        alpha > 0.0 && alpha <= 0.5,
-        "in (0, 0.5]",
-        "the usual alpha is 0.05",
-    );
+    alpha_ok(cx, "defaults.alpha", "", alpha, "the usual alpha is 0.05");
     let power = d.power.unwrap_or(fallback.power);
-    cx.number(
-        "defaults.power",
-        "",
-        power,
-        power > alpha && power < 1.0,
-        "in (alpha, 1)",
-        "the usual power is 0.8",
-    );
+    power_ok(cx, "defaults.power", "", power, alpha);
     let sides = cx.choice("defaults.sides", "", &d.sides, &SIDES, fallback.sides);
     let rate_method = cx.choice(
         "defaults.rate_method",
@@ -54,21 +40,19 @@ pub(super) fn defaults(cx: &mut Ctx, d: RawDefaults) -> (Defaults, bool) {
         fallback.correction,
     );
     let min_days = d.min_days.unwrap_or(f64::from(fallback.min_days));
-    let min_ok = cx.number(
+    let min_ok = days_ok(
+        cx,
         "defaults.min_days",
         "",
         min_days,
-        whole(min_days, 1.0, MAX_DAYS_SETTING),
-        "a whole number of days from 1 to 366",
         "two weeks (14) is common practice",
     );
     let guardrail_alpha = d.guardrail_alpha.unwrap_or(fallback.guardrail_alpha);
-    cx.number(
+    alpha_ok(
+        cx,
         "defaults.guardrail_alpha",
         "",
         guardrail_alpha,
-        guardrail_alpha > 0.0 && guardrail_alpha <= 0.5,
-        "in (0, 0.5]",
         "the one-sided alpha of the guardrails; 0.05 is the default",
     );
     let holdout = d.holdout.unwrap_or(fallback.holdout);

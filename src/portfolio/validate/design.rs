@@ -6,7 +6,9 @@
 use super::super::checker::show;
 use super::super::model::*;
 use super::super::raw::*;
-use super::{whole, Ctx, CORRECTIONS, MAX_ARMS, MEAN_METHODS, RATE_METHODS, SIDES};
+use super::{
+    alpha_ok, power_ok, whole, Ctx, CORRECTIONS, MAX_ARMS, MEAN_METHODS, RATE_METHODS, SIDES,
+};
 use crate::sizing::{
     noninferiority, Correction, Design, Effect, Method, Metric, Sides, SizingError,
 };
@@ -81,23 +83,9 @@ pub(super) fn shared(
     let before = cx.errors.len();
     let at = |k: &str| format!("experiments[{i}].{k}");
     let alpha = e.alpha.unwrap_or(d.alpha);
-    cx.number(
-        &at("alpha"),
-        who,
-        alpha,
-        alpha > 0.0 && alpha <= 0.5,
-        "in (0, 0.5]",
-        "the usual alpha is 0.05",
-    );
+    alpha_ok(cx, &at("alpha"), who, alpha, "the usual alpha is 0.05");
     let power = e.power.unwrap_or(d.power);
-    cx.number(
-        &at("power"),
-        who,
-        power,
-        power > alpha && power < 1.0,
-        "in (alpha, 1)",
-        "the usual power is 0.8",
-    );
+    power_ok(cx, &at("power"), who, power, alpha);
     let arms = e.arms.unwrap_or(2.0);
     let arms_ok = cx.number(
         &at("arms"),

@@ -10,7 +10,7 @@ use super::super::raw::*;
 use super::design::shared;
 use super::metrics::{looks_count, metrics, short_form_keys, size_metrics, BOUNDARIES};
 use super::relations::{after, apart, cycles, keep_apart_both_ways};
-use super::{ids, inside, is_share, text_or, whole, Ctx, Entry, Names, MAX_DAYS_SETTING};
+use super::{days_ok, ids, inside, is_share, text_or, whole, Ctx, Entry, Names};
 use crate::diagnostic;
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{Design, Effect, Metric, SampleSize};
@@ -242,12 +242,11 @@ fn limits(cx: &mut Ctx, t: &Entry, scope: &Scope) -> Limits {
         }
     }
     let min_days = e.min_days.unwrap_or(f64::from(d.min_days));
-    let min_ok = cx.number(
+    let min_ok = days_ok(
+        cx,
         &t.at("min_days"),
         who,
         min_days,
-        whole(min_days, 1.0, MAX_DAYS_SETTING),
-        "a whole number of days from 1 to 366",
         "two weeks (14) is common practice",
     );
     Limits {
@@ -477,12 +476,11 @@ fn ramp(
                 );
             }
         }
-        let days_ok = cx.number(
+        let days_ok = days_ok(
+            cx,
             &at("days"),
             who,
             days,
-            whole(days, 1.0, MAX_DAYS_SETTING),
-            "a whole number of days from 1 to 366",
             "how many days the step holds its share, e.g. 2",
         );
         if share_ok && days_ok {

@@ -76,19 +76,6 @@ impl Ctx<'_> {
         );
     }
 
-    /// Checks a number against a rule; `expected` completes "it must be ...".
-    fn number(
-        &mut self,
-        key: &str,
-        who: &str,
-        value: f64,
-        ok: bool,
-        expected: &str,
-        hint: &str,
-    ) -> bool {
-        self.ck.number(key, who, value, ok, expected, hint)
-    }
-
     /// The date at `key`, if given and valid.
     fn date(&mut self, key: &str, who: &str, v: &Option<Text>) -> Option<NaiveDate> {
         let name = format!("{who}`{}`", leaf(key));
@@ -209,6 +196,42 @@ impl<'a> Names<'a> {
 
 fn leaf(key: &str) -> &str {
     key.rsplit('.').next().unwrap_or(key)
+}
+
+/// An alpha at `key`: in (0, 0.5].
+fn alpha_ok(cx: &mut Ctx, key: &str, who: &str, alpha: f64, hint: &str) -> bool {
+    cx.number(
+        key,
+        who,
+        alpha,
+        alpha > 0.0 && alpha <= 0.5,
+        "in (0, 0.5]",
+        hint,
+    )
+}
+
+/// A power at `key`: above the test's alpha, below 1.
+fn power_ok(cx: &mut Ctx, key: &str, who: &str, power: f64, alpha: f64) -> bool {
+    cx.number(
+        key,
+        who,
+        power,
+        power > alpha && power < 1.0,
+        "in (alpha, 1)",
+        "the usual power is 0.8",
+    )
+}
+
+/// A whole number of days at `key`, from 1 to 366.
+fn days_ok(cx: &mut Ctx, key: &str, who: &str, days: f64, hint: &str) -> bool {
+    cx.number(
+        key,
+        who,
+        days,
+        whole(days, 1.0, MAX_DAYS_SETTING),
+        "a whole number of days from 1 to 366",
+        hint,
+    )
 }
 
 fn whole(x: f64, lo: f64, hi: f64) -> bool {

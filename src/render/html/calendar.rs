@@ -232,16 +232,21 @@ fn axis(plan: &Plan, scale: &Scale, gs: &[Group], s: &mut String) {
     let _ = writeln!(s, "</svg></div>");
 }
 
+/// A test's result range worded, then laid out by `layout`; empty
+/// without a range.
+fn range_part(e: &PlannedExperiment, layout: impl Fn(String) -> String) -> String {
+    e.result_range
+        .as_ref()
+        .map(|r| layout(range_words(r)))
+        .unwrap_or_default()
+}
+
 /// What a row's drawing says in words, for readers who cannot see it.
 fn row_words(plan: &Plan, e: &PlannedExperiment) -> String {
     match &e.run {
         Some(r) => {
             let w = RunWords::of(e, r);
-            let range = e
-                .result_range
-                .as_ref()
-                .map(|r| format!("; P10–P90 {}", range_words(r)))
-                .unwrap_or_default();
+            let range = range_part(e, |words| format!("; P10–P90 {words}"));
             let looks = e
                 .looks
                 .as_ref()
@@ -599,16 +604,9 @@ fn lists(plan: &Plan, gs: &[Group], s: &mut String) {
             match &e.run {
                 Some(r) => {
                     let w = RunWords::of(e, r);
-                    let range = e
-                        .result_range
-                        .as_ref()
-                        .map(|r| {
-                            format!(
-                                r#"<br/><span class="small">P10–P90 {}</span>"#,
-                                esc(&range_words(r))
-                            )
-                        })
-                        .unwrap_or_default();
+                    let range = range_part(e, |words| {
+                        format!(r#"<br/><span class="small">P10–P90 {}</span>"#, esc(&words))
+                    });
                     let _ = writeln!(
                         s,
                         r#"{}{} · <span class="nw">{}</span> to <span class="nw">{}</span><br/>result due <strong class="nw">{}</strong>{range}</li>"#,
