@@ -810,21 +810,13 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
             )));
         }
     }
-    // Power rises with n, so rounding the exact root up gives the smallest
-    // whole size that reaches the target (for the t method too).
-    // An arm holds at least one unit, however large the effect.
-    let control = round_up(control_exact).max(1);
-    let treatment = round_up(treatment_exact).max(1);
-    // Checked: many arms of a large size must not wrap the total around.
-    let total = u64::from(d.arms - 1)
-        .checked_mul(treatment)
-        .and_then(|t| t.checked_add(control))
-        .filter(|&t| (t as f64) < MAX_UNITS)
+    let (control, treatment, total) = whole_arms(control_exact, treatment_exact, d.arms)
         .ok_or_else(|| {
             SizingError::NoSolution(format!(
-                "`arms` is {}: {treatment} units in each treatment arm come to more than \
+                "`arms` is {}: {} units in each treatment arm come to more than \
                  {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
-                d.arms
+                d.arms,
+                round_up(treatment_exact)
             ))
         })?;
     Ok(SampleSize {
@@ -836,6 +828,27 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
         total,
         comparison_alpha: d.comparison_alpha(),
     })
+}
+
+/// The exact sizes of the control and each treatment arm rounded to
+/// whole units, and the total over `arms`; `None` when the total passes
+/// [`MAX_UNITS`] (or the sizes are not finite). Power rises with n, so
+/// rounding the exact root up gives the smallest whole size that reaches
+/// the target (for the t method too); an arm holds at least one unit,
+/// however large the effect. The sum is checked: many arms of a large size
+/// must not wrap it around.
+pub(crate) fn whole_arms(
+    control_exact: f64,
+    treatment_exact: f64,
+    arms: u32,
+) -> Option<(u64, u64, u64)> {
+    let control = round_up(control_exact).max(1);
+    let treatment = round_up(treatment_exact).max(1);
+    let total = u64::from(arms - 1)
+        .checked_mul(treatment)
+        .and_then(|t| t.checked_add(control))
+        .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())?;
+    Some((control, treatment, total))
 }
 
 /// Rounds a size up to whole units, forgiving floating-point noise just

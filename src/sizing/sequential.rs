@@ -31,7 +31,7 @@
 //! tables do. The inflation factor is the maximum information over the
 //! fixed test's: `(drift / (z_{a_s} + z_beta))^2`.
 
-use super::{round_up, SampleSize, Sides, SizingError, MAX_UNITS};
+use super::{SampleSize, Sides, SizingError};
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};
 use statrs::function::erf::erfc;
@@ -425,12 +425,7 @@ fn boundaries(p: &Plan, info: &[f64]) -> Vec<f64> {
 pub fn inflate(fixed: &SampleSize, ratio: f64, inflation: f64) -> Result<SampleSize, SizingError> {
     let control_exact = fixed.control_exact * inflation;
     let treatment_exact = control_exact * ratio;
-    let control = round_up(control_exact).max(1);
-    let treatment = round_up(treatment_exact).max(1);
-    let total = u64::from(fixed.arms - 1)
-        .checked_mul(treatment)
-        .and_then(|t| t.checked_add(control))
-        .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())
+    let (control, treatment, total) = super::whole_arms(control_exact, treatment_exact, fixed.arms)
         .ok_or_else(|| {
             SizingError::NoSolution(format!(
                 "with its looks the design needs {control_exact:.0} units in the control arm, \
