@@ -87,32 +87,22 @@ pub(super) fn planning(cx: &mut Ctx, p: RawPlanning, d: &Defaults) -> Planning {
         "in [0, 1)",
         "0 ignores when results arrive; 0.5 (the default) halves the value of a result on the window's last day",
     );
-    let seed = p.seed.unwrap_or(fallback.seed as f64);
-    let seed = if cx.number(
+    let seed = whole_setting(
+        cx,
         "planning.seed",
-        "",
-        seed,
-        whole(seed, 0.0, 4_294_967_295.0),
-        "a whole number from 0 to 4294967295",
+        p.seed,
+        (0, 4_294_967_295),
         "any number picks the simulated traffic behind result ranges; the same seed gives the same ranges",
-    ) {
-        seed as u64
-    } else {
-        fallback.seed
-    };
-    let paths = p.paths.unwrap_or(f64::from(fallback.paths));
-    let paths = if cx.number(
+    )
+    .unwrap_or(fallback.seed);
+    let paths = whole_setting(
+        cx,
         "planning.paths",
-        "",
-        paths,
-        whole(paths, 100.0, 100_000.0),
-        "a whole number from 100 to 100000",
+        p.paths,
+        (100, 100_000),
         "how many simulated traffic paths result ranges rest on; 2000 (the default) is plenty",
-    ) {
-        paths as u32
-    } else {
-        fallback.paths
-    };
+    )
+    .map_or(fallback.paths, |n| n as u32);
     let confidence = p.confidence.filter(|&c| {
         cx.number(
             "planning.confidence",
@@ -235,4 +225,24 @@ pub(super) fn blackouts(
         }
     }
     out
+}
+
+/// A whole number at `key` within `lo..=hi`, when given and valid.
+fn whole_setting(
+    cx: &mut Ctx,
+    key: &str,
+    v: Option<f64>,
+    (lo, hi): (u64, u64),
+    hint: &str,
+) -> Option<u64> {
+    let v = v?;
+    cx.number(
+        key,
+        "",
+        v,
+        whole(v, lo as f64, hi as f64),
+        &format!("a whole number from {lo} to {hi}"),
+        hint,
+    )
+    .then_some(v as u64)
 }
