@@ -34,8 +34,8 @@ pub mod synthetic;
 mod tests;
 mod verify;
 
-pub use confidence::at_confidence;
 pub use backend::Backend;
+pub use confidence::at_confidence;
 pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 
