@@ -48,9 +48,10 @@ const TESTS_PER_TASK: usize = 16;
 /// equal coefficients on successive rows of one family are one range:
 /// a run's share on each segment it covers, a link's thresholds from its
 /// start on. A range is priced from running sums of the prices, in one
-/// step whatever its length; on the daily grid, where a run covers a
-/// segment per day, this holds and prices about a tenth of the entries
-/// (docs/planning.md).
+/// step whatever its length. On the daily grid, where a run covers a
+/// segment per day, the scale-daily component's 20.7 million entries are
+/// 975,140 ranges, one in twenty-one (DEVELOPERS.md, the 2026-12-05
+/// measurements).
 struct Columns {
     /// Start of each test's options among the columns.
     first: Vec<usize>,
