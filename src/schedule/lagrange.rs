@@ -43,20 +43,58 @@ const PATIENCE: usize = 50;
 /// handing them over costs little beside pricing them.
 const TESTS_PER_TASK: usize = 16;
 
-/// The linking rows column by column, for the priced values.
+/// The linking rows column by column, for the priced values. Rows are
+/// numbered family by family (`lp::each_linking_row`), and a column's
+/// equal coefficients on successive rows of one family are one range:
+/// a run's share on each segment it covers, a link's thresholds from its
+/// start on. A range is priced from running sums of the prices, in one
+/// step whatever its length. On the daily grid, where a run covers a
+/// segment per day, the scale-daily component's 20.7 million entries are
+/// 975,140 ranges, one in twenty-one (DEVELOPERS.md, the 2026-12-05
+/// measurements).
 struct Columns {
     /// Start of each test's options among the columns.
     first: Vec<usize>,
-    /// Start of each column's entries.
+    /// Start of each column's ranges.
     at: Vec<usize>,
-    /// Each entry's row.
-    row: Vec<u32>,
-    /// Each entry's coefficient.
-    coef: Vec<f64>,
-    /// Each row's right-hand side.
+    /// Each range of rows with its coefficient.
+    ranges: Vec<Range>,
+    /// Each row's right-hand side, rows numbered family by family.
     rhs: Vec<f64>,
     /// Each column's value.
     value: Vec<f64>,
+}
+
+/// Rows `lo..hi` (numbered family by family), each with coefficient `coef`.
+#[derive(Clone, Copy)]
+struct Range {
+    lo: u32,
+    hi: u32,
+    coef: f64,
+}
+
+/// A column's last range in one of the four families a pool makes
+/// interleaved (`family % 4`): its family, the rank of its last row in
+/// that family, and its coefficient's bits (first pass) or the range's
+/// place (second pass).
+#[derive(Clone, Copy)]
+struct Tail {
+    family: u32,
+    rank: u32,
+    data: u64,
+}
+
+const NO_TAIL: Tail = Tail {
+    family: u32::MAX,
+    rank: 0,
+    data: 0,
+};
+
+impl Tail {
+    /// Whether row `rank` of `family` continues this range.
+    fn continued_by(&self, family: u32, rank: u32) -> bool {
+        self.family == family && self.rank + 1 == rank
+    }
 }
 
 impl Columns {
@@ -68,51 +106,111 @@ impl Columns {
             value.extend(sub.allowed[i].iter().map(|&k| inst.options[e][k].value));
         }
         first.push(value.len());
+        let cols = value.len();
         // Two passes over the rows as they are made (counting, then
         // filling), so they are never all held at once beside the columns.
-        let mut count = vec![0usize; value.len() + 1];
-        let mut rhs = Vec::new();
-        each_linking_row(inst, sub, &mut |terms, b| {
-            for (i, j, _) in terms {
-                count[first[i] + j + 1] += 1;
+        let mut count = vec![0usize; cols + 1];
+        let mut tails = vec![NO_TAIL; 4 * cols];
+        let mut rhs_made = Vec::new();
+        let mut made: Vec<(u32, u32)> = Vec::new();
+        let mut in_family: Vec<u32> = Vec::new();
+        each_linking_row(inst, sub, &mut |terms, b, family| {
+            let f = family as usize;
+            if in_family.len() <= f {
+                in_family.resize(f + 1, 0);
             }
-            rhs.push(b);
+            let rank = in_family[f];
+            in_family[f] += 1;
+            made.push((family, rank));
+            rhs_made.push(b);
+            for (i, j, a) in terms {
+                let c = first[i] + j;
+                let tail = &mut tails[4 * c + f % 4];
+                if tail.continued_by(family, rank) && tail.data == a.to_bits() {
+                    tail.rank = rank;
+                } else {
+                    count[c + 1] += 1;
+                    *tail = Tail {
+                        family,
+                        rank,
+                        data: a.to_bits(),
+                    };
+                }
+            }
         });
+        // Each family's rows together, in the order they were made.
+        let mut family_at = Vec::with_capacity(in_family.len());
+        let mut m = 0u32;
+        for &n in &in_family {
+            family_at.push(m);
+            m += n;
+        }
+        let number: Vec<u32> = made
+            .iter()
+            .map(|&(f, r)| family_at[f as usize] + r)
+            .collect();
+        drop(made);
+        let mut rhs = vec![0.0; m as usize];
+        for (r, b) in rhs_made.into_iter().enumerate() {
+            rhs[number[r] as usize] = b;
+        }
         for c in 1..count.len() {
             count[c] += count[c - 1];
         }
         let at = count.clone();
-        let nnz = at[value.len()];
-        let mut row = vec![0u32; nnz];
-        let mut coef = vec![0.0; nnz];
+        let mut ranges = vec![
+            Range {
+                lo: 0,
+                hi: 0,
+                coef: 0.0
+            };
+            at[cols]
+        ];
         let mut next = count;
-        let mut r = 0u32;
-        each_linking_row(inst, sub, &mut |terms, _| {
+        tails.fill(NO_TAIL);
+        let mut made = 0usize;
+        each_linking_row(inst, sub, &mut |terms, _, family| {
+            let n = number[made];
+            let rank = n - family_at[family as usize];
+            made += 1;
             for (i, j, a) in terms {
                 let c = first[i] + j;
-                row[next[c]] = r;
-                coef[next[c]] = a;
-                next[c] += 1;
+                let tail = &mut tails[4 * c + family as usize % 4];
+                if tail.continued_by(family, rank) && ranges[tail.data as usize].coef == a {
+                    ranges[tail.data as usize].hi = n + 1;
+                    tail.rank = rank;
+                } else {
+                    let k = next[c];
+                    next[c] += 1;
+                    ranges[k] = Range {
+                        lo: n,
+                        hi: n + 1,
+                        coef: a,
+                    };
+                    *tail = Tail {
+                        family,
+                        rank,
+                        data: k as u64,
+                    };
+                }
             }
-            r += 1;
         });
         Columns {
             first,
             at,
-            row,
-            coef,
+            ranges,
             rhs,
             value,
         }
     }
 
     /// Test `i`'s option of largest priced value, if any is positive, with
-    /// that value (0 for none).
-    fn best(&self, i: usize, mu: &[f64]) -> (f64, Option<usize>) {
+    /// that value (0 for none); `sums` are the running sums of the prices.
+    fn best(&self, i: usize, sums: &[f64]) -> (f64, Option<usize>) {
         let mut top = 0.0;
         let mut pick = None;
         for c in self.first[i]..self.first[i + 1] {
-            let v = self.priced(c, mu);
+            let v = self.priced(c, sums);
             if v > top {
                 top = v;
                 pick = Some(c);
@@ -122,12 +220,10 @@ impl Columns {
     }
 
     /// Column `c`'s value less the priced use of its rows.
-    fn priced(&self, c: usize, mu: &[f64]) -> f64 {
-        let span = self.at[c]..self.at[c + 1];
-        let used: f64 = self.row[span.clone()]
+    fn priced(&self, c: usize, sums: &[f64]) -> f64 {
+        let used: f64 = self.ranges[self.at[c]..self.at[c + 1]]
             .iter()
-            .zip(&self.coef[span])
-            .map(|(&r, &a)| mu[r as usize] * a)
+            .map(|r| r.coef * (sums[r.hi as usize] - sums[r.lo as usize]))
             .sum();
         self.value[c] - used
     }
@@ -156,6 +252,7 @@ pub(crate) fn bound(
     let mut g = vec![0.0; m];
     let mut tally = vec![0.0; cols.value.len()];
     let mut tallied = 0usize;
+    let mut sums = vec![0.0; m + 1];
     let average_from = steps / 2;
     for step in 0..steps {
         if step % 16 == 0 && deadline.passed() {
@@ -163,12 +260,15 @@ pub(crate) fn bound(
         }
         let mut l: f64 = mu.iter().zip(&cols.rhs).map(|(u, b)| u * b).sum();
         chosen.clear();
+        for (r, u) in mu.iter().enumerate() {
+            sums[r + 1] = sums[r] + u;
+        }
         // Each test's best priced option, tests spread over the threads;
         // summed in test order, so the bound is the same on any number.
         let picks: Vec<(f64, Option<usize>)> = (0..tests)
             .into_par_iter()
             .with_min_len(TESTS_PER_TASK)
-            .map(|i| cols.best(i, &mu))
+            .map(|i| cols.best(i, &sums))
             .collect();
         for (top, pick) in picks {
             l += top;
@@ -193,8 +293,10 @@ pub(crate) fn bound(
         // The subgradient b - A x, projected on the prices' bounds.
         g.copy_from_slice(&cols.rhs);
         for &c in &chosen {
-            for k in cols.at[c]..cols.at[c + 1] {
-                g[cols.row[k] as usize] -= cols.coef[k];
+            for r in &cols.ranges[cols.at[c]..cols.at[c + 1]] {
+                for gr in &mut g[r.lo as usize..r.hi as usize] {
+                    *gr -= r.coef;
+                }
             }
         }
         for (gr, &u) in g.iter_mut().zip(&mu) {
@@ -273,7 +375,7 @@ mod tests {
         assert_eq!(exps.len(), 3);
         let sub = Sub::all(&inst, &exps);
         let mut rows = 0;
-        each_linking_row(&inst, &sub, &mut |_, _| rows += 1);
+        each_linking_row(&inst, &sub, &mut |_, _, _| rows += 1);
         assert_eq!(rows, 0);
         let cut = AtomicBool::new(false);
         let deadline = Deadline::new(Instant::now() + Duration::from_secs(60), &cut);
@@ -284,6 +386,66 @@ mod tests {
             assert_eq!(x[0], 1.0);
             assert!(x[1..].iter().all(|&v| v == 0.0));
         }
+    }
+
+    /// A column's ranges price exactly its entries: for any prices, its
+    /// priced value is its value less price times coefficient summed over
+    /// the rows as `each_linking_row` makes them (here on the daily grid,
+    /// with tests on several pools, ramps, pairs apart and `after` links),
+    /// and the ranges are far fewer than the entries.
+    #[test]
+    fn ranges_price_what_the_rows_say() {
+        let spec = synthetic::Spec::medium(2);
+        let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), 2);
+        synthetic::with_keys(&mut p, 2);
+        p.planning.grid = crate::portfolio::StartGrid::Daily;
+        for e in &mut p.experiments {
+            e.whole_weeks = false;
+        }
+        let inst = Instance::new(&p, &PlanRequest::default());
+        let exps: Vec<usize> = inst.free().collect();
+        let sub = Sub::all(&inst, &exps);
+        let cols = Columns::new(&inst, &sub);
+        let mut rows = Vec::new();
+        each_linking_row(&inst, &sub, &mut |terms, b, family| {
+            rows.push((terms, b, family))
+        });
+        assert_eq!(rows.len(), cols.rhs.len());
+        // Numbered family by family, in the order made.
+        let mut order: Vec<usize> = (0..rows.len()).collect();
+        order.sort_by_key(|&r| rows[r].2);
+        let mut number = vec![0; rows.len()];
+        for (n, &r) in order.iter().enumerate() {
+            number[r] = n;
+        }
+        let mut rng = crate::schedule::search::SplitMix64::new(7);
+        let mu: Vec<f64> = (0..rows.len()).map(|_| rng.unit()).collect();
+        let mut sums = vec![0.0; mu.len() + 1];
+        for (r, u) in mu.iter().enumerate() {
+            sums[r + 1] = sums[r] + u;
+        }
+        let mut used = vec![0.0; cols.value.len()];
+        let mut entries = 0;
+        for (r, (terms, b, _)) in rows.iter().enumerate() {
+            assert_eq!(cols.rhs[number[r]], *b);
+            for &(i, j, a) in terms {
+                used[cols.first[i] + j] += a * mu[number[r]];
+                entries += 1;
+            }
+        }
+        for (c, used) in used.iter().enumerate() {
+            let want = cols.value[c] - used;
+            let got = cols.priced(c, &sums);
+            assert!(
+                (got - want).abs() < 1e-9 * want.abs().max(1.0),
+                "{got} vs {want}"
+            );
+        }
+        assert!(
+            cols.ranges.len() * 4 < entries,
+            "{} ranges for {entries} entries",
+            cols.ranges.len()
+        );
     }
 
     /// The same component gets the same bound and the same average

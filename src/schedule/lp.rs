@@ -110,7 +110,7 @@ fn breakpoints(spans: impl Iterator<Item = (usize, usize)>) -> Vec<usize> {
 /// Every row of the model of `sub`.
 fn build_rows(inst: &Instance, sub: &Sub) -> Rows {
     let mut rows = test_rows(sub);
-    each_linking_row(inst, sub, &mut |terms, rhs| rows.le.push((terms, rhs)));
+    each_linking_row(inst, sub, &mut |terms, rhs, _| rows.le.push((terms, rhs)));
     rows
 }
 
@@ -137,8 +137,17 @@ fn test_rows(sub: &Sub) -> Rows {
 
 /// Hands each row that links tests (pool capacity, `not_with`, `apart`,
 /// `after`) to `sink` as it is made, so a caller that stores rows its own
-/// way never holds them all twice.
-pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(Terms, f64)) {
+/// way never holds them all twice, with its family: a pool's count rows,
+/// its first and second cover cuts and its share rows are four families
+/// (numbers `4 p` to `4 p + 3` for the `p`-th pool of the component, in
+/// that order), each `not_with` pair, each pair apart and each `after`
+/// link one family of its own, numbered on from there. A family's rows
+/// come in order (segment by segment, or threshold by threshold for a
+/// link), and only the pool families of one pool are made interleaved, so
+/// an option's equal coefficients on successive rows of a family (a run's
+/// share over its segments) can be stored as one range
+/// (`lagrange::Columns`).
+pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(Terms, f64, u32)) {
     let p = inst.portfolio;
     let opt = |i: usize, j: usize| -> &Opt { &inst.options[sub.exps[i]][sub.allowed[i][j]] };
     // Pool capacity per segment.
@@ -149,7 +158,10 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
         .collect();
     pools.sort_unstable();
     pools.dedup();
+    let mut family = 0u32;
     for &pool in &pools {
+        let base = family;
+        family += 4;
         let members: Vec<usize> = (0..sub.exps.len())
             .filter(|&i| p.experiments[sub.exps[i]].uses(pool))
             .collect();
@@ -200,7 +212,11 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
             }
             max_share_sum += cur_max;
             if distinct as f64 > count_left {
-                sink(c.iter().map(|&(i, j, _)| (i, j, 1.0)).collect(), count_left);
+                sink(
+                    c.iter().map(|&(i, j, _)| (i, j, 1.0)).collect(),
+                    count_left,
+                    base,
+                );
             }
             if split && max_share_sum > share_left + 1e-9 {
                 // Valid cuts the share row alone misses: at most k runs
@@ -215,10 +231,10 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
                     let mut tests: Vec<usize> = big.iter().map(|&(i, _, _)| i).collect();
                     tests.dedup();
                     if tests.len() > k && (k as f64) < count_left {
-                        sink(big, k as f64);
+                        sink(big, k as f64, base + k as u32);
                     }
                 }
-                sink(c, share_left);
+                sink(c, share_left, base + 3);
             }
         }
     }
@@ -257,9 +273,10 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
             }
             for (s, c) in cover.into_iter().enumerate() {
                 if has[s][0] && has[s][1] {
-                    sink(c, 1.0);
+                    sink(c, 1.0, family);
                 }
             }
+            family += 1;
         }
     }
     // Pairs apart on traffic inside the component: on each overlap pool
@@ -293,9 +310,10 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
                     })
                     .sum();
                 if has_a && has_b && most > 1.0 + 1e-9 {
-                    sink(c, 1.0);
+                    sink(c, 1.0, family);
                 }
             }
+            family += 1;
         }
     }
     // after links inside the component.
@@ -317,8 +335,9 @@ pub(crate) fn each_linking_row(inst: &Instance, sub: &Sub, sink: &mut dyn FnMut(
                         .filter(|&j| opt(a_pos, j).end + 1 + gap as usize <= t)
                         .map(|j| (a_pos, j, -1.0)),
                 );
-                sink(row, 0.0);
+                sink(row, 0.0, family);
             }
+            family += 1;
         }
     }
 }

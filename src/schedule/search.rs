@@ -544,6 +544,10 @@ fn lns(
     // The places of the tests whose choice may differ between `state` and
     // `best`: every move changes only tests on the pools it touched, so
     // copying between the two needs to look at these alone.
+    // Each test's place in `exps`, for its `not_with` partners.
+    let place: std::collections::HashMap<usize, usize> =
+        exps.iter().enumerate().map(|(i, &e)| (e, i)).collect();
+    let mut near: Vec<usize> = Vec::new();
     let mut differs = vec![false; exps.len()];
     let mut differing: Vec<usize> = Vec::new();
     for it in 0..iters {
@@ -568,7 +572,22 @@ fn lns(
             let top = 1 + rng.below(n);
             let k = rng.below(top);
             let o = inst.options[u][k];
-            for &e in exps {
+            // Only a test on a pool of `u`'s or kept from it by `not_with`
+            // can compete with it: those, in the component's order.
+            near.clear();
+            for &pool in &p.experiments[u].pools {
+                near.extend(&on_pool[pool]);
+            }
+            near.extend(
+                p.experiments[u]
+                    .not_with
+                    .iter()
+                    .filter_map(|&b| place.get(&b)),
+            );
+            near.sort_unstable();
+            near.dedup();
+            for &i in &near {
+                let e = exps[i];
                 if let Some(eo) = state.opt(inst, e) {
                     let span = (eo.start, eo.end);
                     if competes(inst, u, (o.start, o.end), e, span) {
@@ -601,10 +620,8 @@ fn lns(
             };
             let a = rng.below(inst.days.max(1));
             let b = a + 7 * (1 + rng.below(6));
-            for &e in exps {
-                if !p.experiments[e].uses(pool) {
-                    continue;
-                }
+            for &i in &on_pool[pool] {
+                let e = exps[i];
                 if let Some(eo) = state.opt(inst, e) {
                     if eo.start <= b && a <= eo.end {
                         state.remove_with_successors(inst, e, &mut removed);

@@ -1430,3 +1430,72 @@ fn the_plan_is_the_same_bytes_on_one_thread_and_on_two() {
         assert!(one == bytes(2), "the plans differ on one thread and two");
     }
 }
+
+/// The portfolio the process test plans: 70 tests on 4 pools over a
+/// year with every key (tests on several pools, ramps, pairs apart,
+/// eligibility, holdouts), whose one component is past 8,000 options and
+/// gets the Lagrangian bound.
+fn keyed_year() -> Portfolio {
+    let spec = synthetic::Spec {
+        tests: 70,
+        pools: 4,
+        weeks: 52,
+        seed: 1,
+    };
+    let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), 1);
+    synthetic::with_keys(&mut p, 1);
+    p
+}
+
+/// The child of the test below: plans [`keyed_year`] and writes the
+/// plan's JSON to the file `SLUICE_THREADS_CHILD` names; without it (an
+/// ordinary `cargo test`) it does nothing.
+#[test]
+fn threads_child_writes_its_plan() {
+    let Ok(out) = std::env::var("SLUICE_THREADS_CHILD") else {
+        return;
+    };
+    let plan = untimed(plan(&keyed_year(), &PlanRequest::default()));
+    assert!(!plan.solver.cut_short);
+    std::fs::write(out, serde_json::to_vec(&plan).expect("a plan serialises"))
+        .expect("the child writes its plan");
+}
+
+/// Two processes, one with `RAYON_NUM_THREADS=1` and one with `=2`, plan
+/// the same synthetic portfolio (a component past 8,000 options, so the
+/// Lagrangian bound's parallel pricing runs) and write the same bytes:
+/// each is this test binary again, running only the child above.
+#[test]
+fn separate_processes_on_one_thread_and_two_write_the_same_plan() {
+    let p = keyed_year();
+    let inst = Instance::new(&p, &PlanRequest::default());
+    let biggest = components(&inst)
+        .iter()
+        .map(|c| options_of(&inst, c))
+        .fold(0.0, f64::max);
+    assert!(biggest > 8000.0, "{biggest} options");
+    let dir = std::env::temp_dir().join(format!("sluice-threads-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("a scratch directory");
+    let bytes = |threads: &str| {
+        let out = dir.join(format!("plan-{threads}.json"));
+        let status = std::process::Command::new(std::env::current_exe().expect("this test binary"))
+            .args([
+                "--exact",
+                "schedule::tests::threads_child_writes_its_plan",
+                "--test-threads",
+                "1",
+                "--quiet",
+            ])
+            .env("SLUICE_THREADS_CHILD", &out)
+            .env("RAYON_NUM_THREADS", threads)
+            .stdout(std::process::Stdio::null())
+            .status()
+            .expect("the child runs");
+        assert!(status.success(), "the child on {threads} thread(s) failed");
+        std::fs::read(&out).expect("the child wrote its plan")
+    };
+    let (one, two) = (bytes("1"), bytes("2"));
+    std::fs::remove_dir_all(&dir).ok();
+    assert!(one.len() > 1000);
+    assert!(one == two, "the plans differ on one thread and two");
+}
