@@ -40,6 +40,7 @@ pub(crate) mod output;
 pub mod plan;
 mod planner;
 pub mod portfolio;
+pub mod reason;
 pub mod render;
 pub mod replan;
 pub mod scenario;

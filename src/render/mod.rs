@@ -23,6 +23,7 @@ mod markup;
 pub(crate) mod moved;
 pub mod numbers;
 pub mod text;
+pub mod words;
 
 use crate::plan::Plan;
 use std::fmt;

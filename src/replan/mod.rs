@@ -374,7 +374,7 @@ pub fn replan(
     for l in &live {
         let pe = &mut plan.experiments[l.run.experiment];
         if let Some(advice) = &l.outlook.advice {
-            pe.reason = Some(advice.clone());
+            pe.reason = Some(advice.as_str().into());
         }
         // What it collected, plus the forecast from the day the counts were read.
         if let Some(r) = &mut pe.run {

@@ -34,8 +34,8 @@ pub mod synthetic;
 mod tests;
 mod verify;
 
-pub use confidence::at_confidence;
 pub use backend::Backend;
+pub use confidence::at_confidence;
 pub use request::{Excluded, FixedRun, Pin, PlanRequest, DEFAULT_TIME_LIMIT};
 pub use verify::verify;
 
@@ -45,6 +45,7 @@ use crate::plan::{
     SolverStatus, SolverSummary, Status,
 };
 use crate::portfolio::Portfolio;
+use crate::reason::Said;
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use options::Role;
@@ -434,7 +435,7 @@ fn assemble(
                     out.ramp = ramp_days(p, e, start);
                 }
                 None => {
-                    out.reason = why[e].clone();
+                    out.reason = why[e].clone().map(Said::new);
                     out.ran = request
                         .excluded
                         .iter()

@@ -125,7 +125,7 @@ fn for_terminal(plan: &Plan) -> Plan {
         e.title = clean(&e.title);
         e.owner = clean(&e.owner);
         e.pools = e.pools.iter().map(|p| clean(p)).collect();
-        e.reason = e.reason.as_deref().map(clean);
+        e.reason = e.reason.as_deref().map(|r| clean(r).into());
         if let Some(s) = &mut e.statistics {
             s.metric = clean(&s.metric);
             s.driver = clean(&s.driver);
@@ -372,7 +372,7 @@ mod tests {
     fn user_text_cannot_carry_terminal_escapes() {
         let mut plan = fixture::plan();
         plan.experiments[0].title = "evil\x1b[2J\x1b]0;title\x07".to_string();
-        plan.experiments[5].reason = Some("line\nbreak\x1b[31m".to_string());
+        plan.experiments[5].reason = Some("line\nbreak\x1b[31m".into());
         plan.portfolio = "q1\rover".to_string();
         let opts = RenderOptions {
             width: Some(160),

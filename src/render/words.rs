@@ -1,0 +1,340 @@
+//! The sentences of sluice: the one place that puts the library's facts
+//! into words, one function per family of facts. [`reason`] words why a
+//! test is out of the calendar ([`Reason`]), for every format and for the
+//! `reason` key of a plan's JSON and of `check --format json`. Numbers
+//! inside the sentences are worded by [`crate::words`].
+
+use crate::reason::{BlackoutSpan, Helps, Limit, Needs, Reason, ShareOf, SoloFrom, Span, Words};
+use crate::words::{percent, thousands, trimmed};
+
+impl Words for Reason {
+    fn words(&self) -> String {
+        reason(self)
+    }
+
+    fn read(words: String) -> Reason {
+        Reason::Worded(words)
+    }
+}
+
+/// Why a test is out of the calendar, in words a planner can act on.
+pub fn reason(r: &Reason) -> String {
+    match r {
+        Reason::Worded(s) => s.clone(),
+        Reason::PrerequisiteLeft { prerequisite } => {
+            format!("depends on `{prerequisite}`, which left the queue without finishing")
+        }
+        Reason::PrerequisiteUnscheduled { prerequisite } => {
+            format!("depends on `{prerequisite}`, which is not scheduled")
+        }
+        Reason::NoShareLevel { max_share } => format!(
+            "no share level is at or below its maximum share of {max_share}; add a smaller level or raise it"
+        ),
+        Reason::EarliestStartPastWindow { earliest } => {
+            format!("its earliest possible start, {earliest}, is past the window")
+        }
+        Reason::NoStartDayAfter { after } => {
+            format!("no start day on the grid is left after {after}")
+        }
+        Reason::NeverDelivers { units, at } => format!(
+            "needs {} units; at {} the forecast does not deliver them within three years",
+            thousands(*units),
+            share_of(at)
+        ),
+        Reason::DeadlineFromFirstDay { deadline, at, end } => format!(
+            "deadline {deadline} cannot be met: at its maximum share of {}{} the earliest end is {end}",
+            at.share,
+            limits(at)
+        ),
+        Reason::DeadlineTooClose {
+            deadline,
+            days,
+            at,
+            start,
+            left,
+        } => format!(
+            "deadline {deadline} cannot be met: needs {days} days at {}; from its earliest start on {start} to its deadline there are {left}",
+            share_of(at)
+        ),
+        Reason::LongerThanWindow {
+            days,
+            at,
+            from: None,
+            left,
+        } => format!("needs {days} days at {}; the window has {left}", share_of(at)),
+        Reason::LongerThanWindow {
+            days,
+            at,
+            from: Some(start),
+            left,
+        } => format!(
+            "needs {days} days at {}; from its earliest start on {start} the window has {left}",
+            share_of(at)
+        ),
+        Reason::PoolFull {
+            pool,
+            from,
+            to,
+            gaps,
+            higher,
+            holders,
+            apart,
+        } => {
+            let names: Vec<String> = holders
+                .iter()
+                .map(|h| format!("{} ({})", h.id, trimmed(h.priority, 3)))
+                .collect();
+            let whom = if *higher {
+                "tests of higher priority"
+            } else {
+                "tests worth more to the plan together"
+            };
+            let gaps = if *gaps {
+                " (with gaps too short for it)"
+            } else {
+                ""
+            };
+            let mut text = format!(
+                "fits alone, but `{pool}` is full from {from} to {to}{gaps} with {whom}: {}",
+                names.join(", ")
+            );
+            if !apart.is_empty() {
+                text.push_str(&format!(
+                    "; it also must not run alongside {}",
+                    ticked(apart).join(", ")
+                ));
+            }
+            text
+        }
+        Reason::KeptApartInTime { partners } => format!(
+            "fits alone, but must not run alongside {}, which the plan keeps",
+            spans(partners)
+        ),
+        Reason::KeptApartOnTraffic { partners } => format!(
+            "fits alone, but is kept apart on traffic from {}, which the plan keeps, and no share level fits beside it",
+            spans(partners)
+        ),
+        Reason::WaitsFor { prerequisites } => {
+            let ps: Vec<String> = prerequisites
+                .iter()
+                .map(|(id, end)| format!("`{id}` (ends {end})"))
+                .collect();
+            format!(
+                "must wait for {}, which leaves too little time after it",
+                ps.join(", ")
+            )
+        }
+        Reason::NoRunFits => "no run fits beside the scheduled tests".to_string(),
+        Reason::RunningHold {
+            pools,
+            holders,
+            until,
+            past_window,
+            alone_from,
+        } => {
+            let on = pools_named(pools);
+            if holders.is_empty() {
+                return format!("the tests already running on {on} leave no room for it in time");
+            }
+            let when = match until {
+                Some(u) if *past_window => format!("past the window's end (until {u})"),
+                Some(u) => format!("until {u}"),
+                None => String::new(),
+            };
+            format!(
+                "the running tests {} hold {on} {when}, leaving no room for it in time; alone it could run from {alone_from}",
+                ticked(holders).join(", ")
+            )
+        }
+        Reason::BlackoutInTheWay {
+            limit,
+            spans,
+            helps,
+        } => format!(
+            "every run that ends by {} meets a no-running blackout ({}){}",
+            its_limit(limit),
+            blackouts(spans),
+            would_help(helps)
+        ),
+        Reason::NoFreeStartDay { from, spans, limit } => format!(
+            "no start day from {from} is free of the no-starts blackouts ({}) in time for {}",
+            blackouts(spans),
+            its_limit(limit)
+        ),
+        Reason::NoRunByLimit {
+            limit,
+            share,
+            helps,
+        } => format!(
+            "no run from an allowed start ends by {} at its largest share of {share}{}",
+            its_limit(limit),
+            would_help(helps)
+        ),
+        Reason::Margin {
+            share,
+            from,
+            to,
+            units,
+            need,
+            confidence,
+            asked,
+        } => format!(
+            "the room the plan leaves holds it on the expected forecast ({share} from {from} to {to}, \
+             {} units against the {} it needs), but not with the margin for {} confidence, \
+             which plans it as {} units; lower `planning.confidence` or free its pool",
+            thousands(*units),
+            thousands(*need),
+            percent(*confidence),
+            thousands(*asked)
+        ),
+        Reason::AtConfidence {
+            reason: inner,
+            confidence,
+            units,
+        } => format!(
+            "{} (planned at {} confidence as {} units)",
+            reason(inner),
+            percent(*confidence),
+            thousands(*units)
+        ),
+        Reason::PrerequisiteMisfit { prerequisite } => {
+            format!("it runs after `{prerequisite}`, which cannot fit even alone")
+        }
+        Reason::StartsTooLate {
+            first,
+            after: Some(pre),
+            until,
+        } => format!(
+            "it may start only on {first}, after `{pre}` ends and the gap, later than {}",
+            its_limit(until)
+        ),
+        Reason::StartsTooLate {
+            first,
+            after: None,
+            until,
+        } => format!(
+            "it may start only on {first}, later than {}",
+            its_limit(until)
+        ),
+        Reason::NoAllowedStart { from, to } => {
+            format!("no allowed start day between {from} and {to} (start grid, freezes)")
+        }
+        Reason::SoloCrossesBlackout { share, until } => format!(
+            "every run at {share} that ends by {} crosses a no-running blackout",
+            its_limit(until)
+        ),
+        Reason::SoloTooLong {
+            share,
+            needs,
+            from,
+            until,
+        } => {
+            let start = match from {
+                SoloFrom::AfterPrerequisite(day, pre) => {
+                    format!(" even from {day}, after `{pre}` ends")
+                }
+                SoloFrom::EarliestStart(day) => format!(" even from its earliest start {day}"),
+                SoloFrom::FirstStartDay(day) => format!(" from the first start day, {day}"),
+                SoloFrom::WindowStart => String::new(),
+            };
+            match needs {
+                Needs::Days { days, end } => format!(
+                    "at {share} it needs {days} days{start}, ending {end}, after {}",
+                    its_limit(until)
+                ),
+                Needs::Years(years) => {
+                    format!("at {share} it needs more than {years} years{start}")
+                }
+            }
+        }
+        Reason::NoSoloRun { share, until } => {
+            format!("no run at {share} ends by {}", its_limit(until))
+        }
+    }
+}
+
+/// "`a`, `b`".
+fn ticked(ids: &[String]) -> Vec<String> {
+    ids.iter().map(|id| format!("`{id}`")).collect()
+}
+
+/// The pools of a test as a reason names them: "`home`", or
+/// "each of `home`, `search`".
+fn pools_named(pools: &[String]) -> String {
+    let names = ticked(pools);
+    if names.len() == 1 {
+        names[0].clone()
+    } else {
+        format!("each of {}", names.join(", "))
+    }
+}
+
+/// What limits the units a test collects beside its share, as
+/// ` (30% of its units eligible, 5% held out)`, or nothing.
+fn limits(at: &ShareOf) -> String {
+    let mut notes = Vec::new();
+    if at.eligible < 1.0 {
+        notes.push(format!("{} of its units eligible", percent(at.eligible)));
+    }
+    if at.held_out > 0.0 {
+        notes.push(format!("{} held out", percent(at.held_out)));
+    }
+    if notes.is_empty() {
+        String::new()
+    } else {
+        format!(" ({})", notes.join(", "))
+    }
+}
+
+/// `75% of `product``, or `75% of each of `home`, `search``, with its
+/// [`limits`].
+fn share_of(at: &ShareOf) -> String {
+    format!("{} of {}{}", at.share, pools_named(&at.pools), limits(at))
+}
+
+/// "`x` (2027-01-04 to 2027-01-17)" for each test.
+fn spans(list: &[Span]) -> String {
+    list.iter()
+        .map(|s| format!("`{}` ({} to {})", s.id, s.from, s.to))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// "2027-02-01..2027-02-07, launch; ..." for each blackout.
+fn blackouts(list: &[BlackoutSpan]) -> String {
+    list.iter()
+        .map(|b| {
+            if b.note.is_empty() {
+                format!("{}..{}", b.from, b.to)
+            } else {
+                format!("{}..{}, {}", b.from, b.to, b.note)
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
+/// "its deadline 2027-03-01" or "the window's end 2027-03-31".
+fn its_limit(limit: &Limit) -> String {
+    match limit {
+        Limit::Deadline(d) => format!("its deadline {d}"),
+        Limit::WindowEnd(d) => format!("the window's end {d}"),
+    }
+}
+
+/// "; a larger `max_share` than 50% or a later deadline would help", or
+/// nothing.
+fn would_help(helps: &Helps) -> String {
+    let mut list: Vec<String> = Vec::new();
+    if let Some(top) = helps.larger_than {
+        list.push(format!("a larger `max_share` than {top}"));
+    }
+    if helps.later_deadline {
+        list.push("a later deadline".to_string());
+    }
+    if list.is_empty() {
+        String::new()
+    } else {
+        format!("; {} would help", list.join(" or "))
+    }
+}
