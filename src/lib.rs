@@ -29,6 +29,7 @@
 
 #![warn(missing_docs)]
 
+pub mod advice;
 pub mod board;
 pub mod check;
 pub(crate) mod cli;

@@ -7,6 +7,7 @@
 //! It also holds [`PlanDiff`], what moved since a previous plan, which a
 //! re-plan carries; `crate::diff` computes it from two plans.
 
+pub use crate::advice::Advice;
 pub use crate::forecast::fit::LevelRule;
 pub use crate::portfolio::{BlackoutKind, Sharing};
 pub use crate::reason::{Reason, Said};
@@ -964,7 +965,7 @@ pub struct RunningOutlook {
     pub detectable_effect: Option<f64>,
     /// The outlook in words, when it cannot finish as it runs, needs a
     /// decision, was re-shared or is ready to read.
-    pub advice: Option<String>,
+    pub advice: Option<Said<Advice>>,
     /// The share it ran at before today, as the progress file gives it
     /// (differs from `share` only when the re-plan re-shared it).
     #[serde(default)]

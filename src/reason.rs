@@ -22,6 +22,8 @@ pub enum Reason {
     /// A reason already in words: read back from a plan's JSON, or given
     /// by the request (a finished, cancelled or left-out test).
     Worded(String),
+    /// A running test's advice, which a re-plan gives as its reason.
+    Running(crate::advice::Advice),
     /// A prerequisite (`after`) left the queue without finishing.
     PrerequisiteLeft {
         /// The prerequisite's id.
@@ -403,6 +405,12 @@ impl<T: fmt::Debug> fmt::Debug for Said<T> {
 impl<T: Words> PartialEq for Said<T> {
     fn eq(&self, other: &Said<T>) -> bool {
         **self == **other
+    }
+}
+
+impl From<crate::advice::Advice> for Said<crate::advice::Advice> {
+    fn from(a: crate::advice::Advice) -> Said<crate::advice::Advice> {
+        Said::new(a)
     }
 }
 

@@ -1,9 +1,12 @@
 //! The sentences of sluice: the one place that puts the library's facts
 //! into words, one function per family of facts. [`reason`] words why a
 //! test is out of the calendar ([`Reason`]), for every format and for the
-//! `reason` key of a plan's JSON and of `check --format json`. Numbers
+//! `reason` key of a plan's JSON and of `check --format json`; [`advice`]
+//! words a running test's outlook ([`Advice`]) for the `advice` key and
+//! every format. Numbers
 //! inside the sentences are worded by [`crate::words`].
 
+use crate::advice::{Advice, Detect, Note, Rescue};
 use crate::reason::{BlackoutSpan, Helps, Limit, Needs, Reason, ShareOf, SoloFrom, Span, Words};
 use crate::words::{percent, thousands, trimmed};
 
@@ -21,6 +24,7 @@ impl Words for Reason {
 pub fn reason(r: &Reason) -> String {
     match r {
         Reason::Worded(s) => s.clone(),
+        Reason::Running(a) => advice(a),
         Reason::PrerequisiteLeft { prerequisite } => {
             format!("depends on `{prerequisite}`, which left the queue without finishing")
         }
@@ -336,5 +340,165 @@ fn would_help(helps: &Helps) -> String {
         String::new()
     } else {
         format!("; {} would help", list.join(" or "))
+    }
+}
+
+impl Words for Advice {
+    fn words(&self) -> String {
+        advice(self)
+    }
+
+    fn read(words: String) -> Advice {
+        Advice::Worded(words)
+    }
+}
+
+/// A running test's advice: its notes, joined by "; ".
+pub fn advice(a: &Advice) -> String {
+    match a {
+        Advice::Worded(s) => s.clone(),
+        Advice::Notes(notes) => notes.iter().map(note).collect::<Vec<_>>().join("; "),
+    }
+}
+
+/// "`home`" or "`home`, `search`" for the pools of a running test.
+fn pools_ticked(pools: &[String]) -> String {
+    ticked(pools).join(", ")
+}
+
+/// One note of a running test's advice.
+fn note(n: &Note) -> String {
+    match n {
+        Note::Reshared { from, to, today } => format!(
+            "re-shared from {from} to {to} from {today} so it finishes in the window; the arms' split is unchanged"
+        ),
+        Note::ReadyToRead {
+            collected,
+            needed,
+            last_day,
+            share,
+            pools,
+        } => format!(
+            "ready to read: {} of its {} units are in; its last day of data was {last_day}, and its {share} of {} is free from today",
+            thousands(*collected),
+            thousands(*needed),
+            pools_ticked(pools)
+        ),
+        Note::RunsToMinimum {
+            collected,
+            needed,
+            min_days,
+            end,
+        } => format!(
+            "has its sample ({} of {} units) but runs to its minimum of {min_days} days, to {end}",
+            thousands(*collected),
+            thousands(*needed)
+        ),
+        Note::CannotFinish {
+            window_end,
+            share,
+            need,
+            end,
+            rescue,
+            detect,
+        } => {
+            let when = match end {
+                Some(day) => format!(
+                    "at {share} it would reach its {} units on {day}",
+                    thousands(*need)
+                ),
+                None => format!(
+                    "at {share} it would not reach its {} units within ten years",
+                    thousands(*need)
+                ),
+            };
+            let mut text =
+                format!("cannot reach its sample by the window's end ({window_end}): {when}");
+            match rescue {
+                Rescue::Share(s) => text.push_str(&format!(
+                    "; a share of {s} from today would finish it in time"
+                )),
+                Rescue::NoRoom {
+                    needed,
+                    pools,
+                    holders,
+                } => {
+                    let held: Vec<String> = holders
+                        .iter()
+                        .map(|(id, s)| format!("`{id}` {s}"))
+                        .collect();
+                    text.push_str(&format!(
+                        "; a share of {needed} from today would finish it, but {} has no room for it (running from today: {}); one of them would have to stop to make room",
+                        pools_ticked(pools),
+                        held.join(", ")
+                    ));
+                }
+                Rescue::Nothing { max_share } => text.push_str(&format!(
+                    "; no share up to its maximum of {max_share} finishes it in time"
+                )),
+                Rescue::Unsaid => {}
+            }
+            text.push_str(&format!(
+                "; stopped at the window's end {}",
+                can_detect(detect)
+            ));
+            text
+        }
+        Note::NoRunning {
+            from,
+            to,
+            note,
+            pools,
+            stop_end,
+            detect,
+            end,
+        } => {
+            let note = if note.is_empty() {
+                String::new()
+            } else {
+                format!(" ({note})")
+            };
+            let later = match end {
+                Some(end) => format!("ends on {end}"),
+                None => "does not end within ten years".to_string(),
+            };
+            format!(
+                "its run reaches the no-running span {from}..{to} of {}{note}, whose units do not count: stopped on {stop_end}, {}; or, with those days left out, it {later}",
+                pools_ticked(pools),
+                can_detect(detect)
+            )
+        }
+        Note::Overload {
+            pools,
+            from,
+            peak_share,
+            peak_count,
+            max_concurrent,
+        } => format!(
+            "the running tests on {} alone already overload it from {from}, at the shares the progress file gives them (up to {} of it and {peak_count} tests; at most {max_concurrent} may run)",
+            pools_ticked(pools),
+            percent(*peak_share)
+        ),
+    }
+}
+
+/// "it can detect a relative effect of 8.7% (planned MDE: 8.0%)", or that
+/// it has too few units for any.
+fn can_detect(d: &Detect) -> String {
+    match d {
+        Detect::SampleGiven => "its sample size was given, not sized from an effect, so no detectable effect is worked out".to_string(),
+        Detect::Effect { effect, planned } => {
+            let (kind, planned) = match planned {
+                crate::sizing::Effect::Relative(x) => (
+                    format!("a relative effect of {:.1}%", effect * 100.0),
+                    format!("{:.1}%", x * 100.0),
+                ),
+                crate::sizing::Effect::Absolute(x) => {
+                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
+                }
+            };
+            format!("it can detect {kind} (planned MDE: {planned})")
+        }
+        Detect::TooFew => "it has too few units to detect any effect at the planned power".to_string(),
     }
 }

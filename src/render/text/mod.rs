@@ -149,7 +149,7 @@ fn for_terminal(plan: &Plan) -> Plan {
     // A re-plan's outlooks and changes may come from a `--previous` file.
     for o in &mut p.running {
         o.id = clean(&o.id);
-        o.advice = o.advice.as_deref().map(clean);
+        o.advice = o.advice.as_deref().map(|a| clean(a).into());
         if let Some(n) = &mut o.no_running {
             n.note = clean(&n.note);
         }
@@ -392,7 +392,7 @@ mod tests {
         let changes = plan.changes.as_mut().expect("the fixture has changes");
         changes.experiments[0].id = "old\x1b[2Jid".to_string();
         changes.no_longer_fit.push("gone\x1b]0;t\x07".to_string());
-        plan.running[0].advice = Some("stop\x1b[31m now".to_string());
+        plan.running[0].advice = Some("stop\x1b[31m now".into());
         let opts = RenderOptions {
             width: Some(160),
             colour: false,
