@@ -39,6 +39,7 @@
 //! treatment size. All sizes are per arm; `total` sums every arm.
 
 pub mod noninferiority;
+pub(crate) mod report;
 pub mod sequential;
 pub mod srm;
 

@@ -22,6 +22,7 @@ pub mod markdown;
 mod markup;
 pub(crate) mod moved;
 pub mod numbers;
+pub mod reports;
 pub mod text;
 pub mod words;
 
