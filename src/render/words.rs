@@ -8,7 +8,7 @@
 
 use crate::advice::{Advice, Detect, Note, Rescue};
 use crate::reason::{BlackoutSpan, Helps, Limit, Needs, Reason, ShareOf, SoloFrom, Span, Words};
-use crate::words::{percent, thousands, trimmed};
+use crate::words::{percent, significant, thousands, trimmed};
 
 impl Words for Reason {
     fn words(&self) -> String {
@@ -482,6 +482,9 @@ fn note(n: &Note) -> String {
     }
 }
 
+/// A running test's advice words a relative effect to one decimal.
+const ADVICE_DIGITS: Digits = Digits::Fixed(1);
+
 /// "it can detect a relative effect of 8.7% (planned MDE: 8.0%)", or that
 /// it has too few units for any.
 fn can_detect(d: &Detect) -> String {
@@ -490,15 +493,62 @@ fn can_detect(d: &Detect) -> String {
         Detect::Effect { effect, planned } => {
             let (kind, planned) = match planned {
                 crate::sizing::Effect::Relative(x) => (
-                    format!("a relative effect of {:.1}%", effect * 100.0),
-                    format!("{:.1}%", x * 100.0),
+                    format!("a relative effect of {}", relative(*effect, ADVICE_DIGITS)),
+                    relative(*x, ADVICE_DIGITS),
                 ),
-                crate::sizing::Effect::Absolute(x) => {
-                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
-                }
+                crate::sizing::Effect::Absolute(x) => (
+                    format!("an absolute effect of {}", number(*effect, Digits::Fixed(4))),
+                    format!("{x}"),
+                ),
             };
             format!("it can detect {kind} (planned MDE: {planned})")
         }
         Detect::TooFew => "it has too few units to detect any effect at the planned power".to_string(),
+    }
+}
+
+/// How an effect's number is rounded.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Digits {
+    /// To this many significant digits, without trailing zeros: the plan's
+    /// statistics, `size` and `detect`.
+    Significant(usize),
+    /// To this many decimals, zeros kept: a running test's advice.
+    Fixed(usize),
+}
+
+/// The plan's rounding of an effect: three significant digits.
+pub const EFFECT_DIGITS: Digits = Digits::Significant(3);
+
+/// `x` rounded as `digits` says.
+pub fn number(x: f64, digits: Digits) -> String {
+    match digits {
+        Digits::Significant(n) => significant(x, n),
+        Digits::Fixed(n) => format!("{x:.n$}"),
+    }
+}
+
+/// A relative effect as a percentage of the baseline: `4%`, `-8.7%`.
+pub fn relative(rel: f64, digits: Digits) -> String {
+    format!("{}%", number(rel * 100.0, digits))
+}
+
+/// An absolute effect in the metric's units: points of a rate
+/// (`0.124 points`), or the mean's own units (`-0.07`).
+pub fn absolute(abs: f64, rate: bool, digits: Digits) -> String {
+    if rate {
+        format!("{} points", number(abs * 100.0, digits))
+    } else {
+        number(abs, digits)
+    }
+}
+
+/// `word` for the value `x`, with a `+` when `x` is above zero: `+4%`,
+/// `-0.5 points`.
+pub fn signed(x: f64, word: String) -> String {
+    if x > 0.0 {
+        format!("+{word}")
+    } else {
+        word
     }
 }

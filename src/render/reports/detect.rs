@@ -2,6 +2,7 @@
 //! guardrail, the effect detected (or given) and its power. The report
 //! comes from `cli::detect` over [`crate::sizing`].
 
+use crate::render::words::{self, EFFECT_DIGITS};
 use crate::sizing::report::{DetectReport, Harm};
 use crate::sizing::{Metric, Sides};
 use crate::words::{thousands as fmt_units, Count};
@@ -87,13 +88,17 @@ pub fn text(r: &DetectReport) -> String {
         );
     }
     let relative = match r.mde {
-        Some(m) => format!("{:+.2}% relative, ", m * 100.0),
+        Some(m) => format!(
+            "{} relative, ",
+            words::signed(m, words::relative(m, EFFECT_DIGITS))
+        ),
         None => String::new(),
     };
-    let absolute = match r.metric {
-        Metric::Rate { .. } => format!("{:+.4} points absolute", r.mde_abs * 100.0),
-        Metric::Mean { .. } => format!("{} absolute", trim(r.mde_abs)),
-    };
+    let rate = matches!(r.metric, Metric::Rate { .. });
+    let absolute = format!(
+        "{} absolute",
+        words::signed(r.mde_abs, words::absolute(r.mde_abs, rate, EFFECT_DIGITS))
+    );
     let (label, value_is, asked, found) = match (&r.guardrail, power_asked) {
         (None, true) => ("effect", "treatment", " for this effect", ""),
         (None, false) => (

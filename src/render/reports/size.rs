@@ -2,6 +2,7 @@
 //! power, the looks of a group-sequential design and the duration. The
 //! report comes from `cli::size` over [`crate::sizing`].
 
+use crate::render::words::{self, EFFECT_DIGITS};
 use crate::sizing::report::{LooksReport, SizeReport};
 use crate::sizing::{Effect, Metric, Sides};
 use crate::words::thousands as fmt_units;
@@ -24,9 +25,16 @@ pub fn text(r: &SizeReport) -> String {
             trim_float(r.treatment_value)
         ),
     };
+    let rate = matches!(r.metric, Metric::Rate { .. });
     let effect = |e: Effect| match e {
-        Effect::Relative(x) => format!("{}% relative", signed(x * 100.0)),
-        Effect::Absolute(x) => format!("{} absolute", signed(x)),
+        Effect::Relative(x) => format!(
+            "{} relative",
+            words::signed(x, words::relative(x, EFFECT_DIGITS))
+        ),
+        Effect::Absolute(x) => format!(
+            "{} absolute",
+            words::signed(x, words::absolute(x, rate, EFFECT_DIGITS))
+        ),
     };
     match (r.margin, r.null_value) {
         (Some(margin), Some(null)) => {
@@ -174,14 +182,4 @@ fn looks_text(s: &mut String, l: &LooksReport, ratio: f64) {
 /// A number as people read it: at most six decimals, no trailing zeros.
 fn trim_float(x: f64) -> String {
     trimmed(x, 6)
-}
-
-/// [`trim_float`] with its sign always shown: `+7`, `-0.5`.
-fn signed(x: f64) -> String {
-    let t = trim_float(x);
-    if t.starts_with('-') || t == "0" {
-        t
-    } else {
-        format!("+{t}")
-    }
 }
