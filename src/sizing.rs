@@ -370,18 +370,55 @@ pub enum SizingError {
     },
     /// A relative effect of a zero mean.
     RelativeOfZero,
+    /// Many treatment arms of a large size come to more units in all than
+    /// any traffic (the field is `arms`).
+    TooManyInAll {
+        /// Control plus treatments.
+        arms: u32,
+        /// Units in each treatment arm.
+        treatment: u64,
+    },
     /// An inverse found no answer: e.g. no effect inside (0,1) reaches the power.
     NoSolution(String),
 }
 
-impl fmt::Display for SizingError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+impl SizingError {
+    /// The field the error is about, as a portfolio names it (`mde_abs`);
+    /// `None` when it names none.
+    pub fn field(&self) -> Option<&'static str> {
+        match self {
+            SizingError::OutOfRange { field, .. } => Some(field),
+            SizingError::TooManyInAll { .. } => Some("arms"),
+            _ => None,
+        }
+    }
+
+    /// The message with its field written by `name` (a portfolio's
+    /// `` `mde_abs` `` in [`fmt::Display`]; the command line words it as
+    /// its flag).
+    pub fn worded(&self, name: &dyn Fn(&'static str) -> String) -> String {
         match self {
             SizingError::OutOfRange {
                 field,
                 value,
                 expected,
-            } => write!(f, "`{field}` is {value}; it must be {expected}"),
+            } => format!("{} is {value}; it must be {expected}", name(field)),
+            SizingError::TooManyInAll { arms, treatment } => format!(
+                "{} is {arms}: {treatment} units in each treatment arm come to more than \
+                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
+                name("arms")
+            ),
+            other => other.to_string(),
+        }
+    }
+}
+
+impl fmt::Display for SizingError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            SizingError::OutOfRange { .. } | SizingError::TooManyInAll { .. } => {
+                f.write_str(&self.worded(&|field| format!("`{field}`")))
+            }
             SizingError::TreatmentRateOutside {
                 baseline,
                 treatment,
@@ -821,12 +858,9 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
         .checked_mul(treatment)
         .and_then(|t| t.checked_add(control))
         .filter(|&t| (t as f64) < MAX_UNITS)
-        .ok_or_else(|| {
-            SizingError::NoSolution(format!(
-                "`arms` is {}: {treatment} units in each treatment arm come to more than \
-                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
-                d.arms
-            ))
+        .ok_or(SizingError::TooManyInAll {
+            arms: d.arms,
+            treatment,
         })?;
     Ok(SampleSize {
         control_exact,

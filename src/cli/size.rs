@@ -4,7 +4,7 @@ use super::{Error, TextOrJson};
 use crate::sizing::noninferiority;
 use crate::sizing::report::{LooksReport, SizeReport};
 use crate::sizing::sequential::{self, Boundary};
-use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
+use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
 use clap::{Args, ValueEnum};
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -309,52 +309,6 @@ pub(super) fn flag_design(metric: Metric, effect: Effect, guardrail: bool, t: &T
         correction: t.correction.into(),
         rho: t.rho,
     }
-}
-
-/// The library's message for a design built from flags: an effect that
-/// moves the rate outside (0, 1) is put down to the flag that set it, and
-/// every field is named as its flag.
-pub(super) fn flag_message(e: &SizingError, effect: Effect) -> String {
-    let text = e.to_string();
-    let text = match (e, effect) {
-        (SizingError::TreatmentRateOutside { .. }, Effect::Relative(_)) => format!("`mde`: {text}"),
-        (SizingError::TreatmentRateOutside { .. }, Effect::Absolute(_)) => {
-            format!("`mde_abs`: {text}")
-        }
-        _ => text,
-    };
-    flagify(text)
-}
-
-/// Library messages name fields as in a portfolio (`mde_abs`); on the
-/// command line they are flags (`--mde-abs`).
-pub(super) fn flagify(message: String) -> String {
-    let mut out = message;
-    for field in [
-        "alpha",
-        "power",
-        "arms",
-        "ratio",
-        "rho",
-        "mde_abs",
-        "mde",
-        "margin_abs",
-        "margin",
-        "looks",
-        "baseline",
-        "mean",
-        "sd",
-        "share",
-        "daily",
-        "days",
-        "n",
-    ] {
-        out = out.replace(
-            &format!("`{field}`"),
-            &format!("`--{}`", field.replace('_', "-")),
-        );
-    }
-    out
 }
 
 /// `sluice size`.
