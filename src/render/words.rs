@@ -4,7 +4,7 @@
 //! `reason` key of a plan's JSON and of `check --format json`; [`advice`]
 //! words a running test's outlook ([`Advice`]) for the `advice` key and
 //! every format. Numbers
-//! inside the sentences are worded by [`crate::words`].
+//! inside the sentences are worded by `crate::words`.
 
 use crate::advice::{Advice, Detect, Note, Rescue};
 use crate::reason::{BlackoutSpan, Helps, Limit, Needs, Reason, ShareOf, SoloFrom, Span, Words};
