@@ -132,8 +132,26 @@ pub struct PoolCheck {
     pub needed_units: u64,
     /// `needed_units / offered_units` (infinite when the pool offers none).
     pub ratio: f64,
-    /// How to read the ratio for this pool's sharing rule.
-    pub note: String,
+    /// How to read the ratio for this pool's sharing rule (a string in
+    /// JSON).
+    pub note: Said<PoolNote>,
+}
+
+/// How to read a pool's needed-over-offered ratio, as facts (worded by
+/// `render::words::pool_note`).
+#[derive(Debug, Clone, PartialEq)]
+pub enum PoolNote {
+    /// Already in words.
+    Worded(String),
+    /// The pool's sharing rule, its cap and its holdout.
+    Ratio {
+        /// How its tests share its units.
+        sharing: Sharing,
+        /// Most tests running at once.
+        max_concurrent: u32,
+        /// The fraction of its units no test may receive.
+        holdout: f64,
+    },
 }
 
 /// Builds the report for a validated portfolio.
@@ -206,22 +224,11 @@ pub fn check(p: &Portfolio) -> CheckReport {
             } else {
                 f64::INFINITY
             };
-            let mut note = match pool.sharing {
-                Sharing::Split => {
-                    "split: tests take disjoint slices, so above 1 not all can finish in the window"
-                        .to_string()
-                }
-                Sharing::Overlap => format!(
-                    "overlap: each test may see every unit and up to {} run at once, so a ratio up to {} can fit",
-                    pool.max_concurrent, pool.max_concurrent
-                ),
-            };
-            if pool.holdout > 0.0 {
-                note.push_str(&format!(
-                    "; {} of its units are held out of every test and not offered",
-                    crate::words::percent(pool.holdout)
-                ));
-            }
+            let note = Said::new(PoolNote::Ratio {
+                sharing: pool.sharing,
+                max_concurrent: pool.max_concurrent,
+                holdout: pool.holdout,
+            });
             PoolCheck {
                 id: pool.id.clone(),
                 label: pool.label.clone(),

@@ -7,6 +7,8 @@
 //! inside the sentences are worded by `crate::words`.
 
 use crate::advice::{Advice, Detect, Note, Rescue};
+use crate::check::PoolNote;
+use crate::portfolio::Sharing;
 use crate::reason::{BlackoutSpan, Helps, Limit, Needs, Reason, ShareOf, SoloFrom, Span, Words};
 use crate::words::{percent, significant, thousands, trimmed};
 
@@ -550,5 +552,44 @@ pub fn signed(x: f64, word: String) -> String {
         format!("+{word}")
     } else {
         word
+    }
+}
+
+impl Words for PoolNote {
+    fn words(&self) -> String {
+        pool_note(self)
+    }
+
+    fn read(words: String) -> PoolNote {
+        PoolNote::Worded(words)
+    }
+}
+
+/// How to read a pool's needed-over-offered ratio in `check`.
+pub fn pool_note(n: &PoolNote) -> String {
+    match n {
+        PoolNote::Worded(s) => s.clone(),
+        PoolNote::Ratio {
+            sharing,
+            max_concurrent,
+            holdout,
+        } => {
+            let mut note = match sharing {
+                Sharing::Split => {
+                    "split: tests take disjoint slices, so above 1 not all can finish in the window"
+                        .to_string()
+                }
+                Sharing::Overlap => format!(
+                    "overlap: each test may see every unit and up to {max_concurrent} run at once, so a ratio up to {max_concurrent} can fit"
+                ),
+            };
+            if *holdout > 0.0 {
+                note.push_str(&format!(
+                    "; {} of its units are held out of every test and not offered",
+                    percent(*holdout)
+                ));
+            }
+            note
+        }
     }
 }
