@@ -20,6 +20,7 @@ use good_lp::{
     Variable, WithTimeLimit,
 };
 
+
 /// The part of the model the solver sees: for each test of the component,
 /// the indices of its options still allowed and whether it must run.
 #[derive(Debug, Clone)]
