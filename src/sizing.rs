@@ -370,16 +370,56 @@ pub enum SizingError {
     },
     /// A relative effect of a zero mean.
     RelativeOfZero,
-    /// Many treatment arms of a large size come to more units in all than
-    /// any traffic (the field is `arms`).
-    TooManyInAll {
-        /// Control plus treatments.
-        arms: u32,
-        /// Units in each treatment arm.
-        treatment: u64,
-    },
     /// An inverse found no answer: e.g. no effect inside (0,1) reaches the power.
-    NoSolution(String),
+    NoSolution(Unsolved),
+}
+
+/// Why an inverse found no answer, in words; when the words begin with a
+/// field (`arms`), the field apart, so the command line can name it as
+/// its flag. Reads as its words (`&*unsolved`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Unsolved {
+    /// The words, the field written as a portfolio names it.
+    text: String,
+    /// The field the words begin with.
+    field: Option<&'static str>,
+    /// The words after the field.
+    rest: String,
+}
+
+impl Unsolved {
+    /// Words that begin with `field` (as `` `arms` ``), followed by `rest`.
+    pub fn about(field: &'static str, rest: String) -> Unsolved {
+        Unsolved {
+            text: format!("`{field}`{rest}"),
+            field: Some(field),
+            rest,
+        }
+    }
+}
+
+impl From<String> for Unsolved {
+    fn from(text: String) -> Unsolved {
+        Unsolved {
+            text,
+            field: None,
+            rest: String::new(),
+        }
+    }
+}
+
+impl From<&str> for Unsolved {
+    fn from(text: &str) -> Unsolved {
+        Unsolved::from(text.to_string())
+    }
+}
+
+impl std::ops::Deref for Unsolved {
+    type Target = str;
+
+    fn deref(&self) -> &str {
+        &self.text
+    }
 }
 
 impl SizingError {
@@ -388,7 +428,7 @@ impl SizingError {
     pub fn field(&self) -> Option<&'static str> {
         match self {
             SizingError::OutOfRange { field, .. } => Some(field),
-            SizingError::TooManyInAll { .. } => Some("arms"),
+            SizingError::NoSolution(u) => u.field,
             _ => None,
         }
     }
@@ -403,11 +443,11 @@ impl SizingError {
                 value,
                 expected,
             } => format!("{} is {value}; it must be {expected}", name(field)),
-            SizingError::TooManyInAll { arms, treatment } => format!(
-                "{} is {arms}: {treatment} units in each treatment arm come to more than \
-                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
-                name("arms")
-            ),
+            SizingError::NoSolution(Unsolved {
+                field: Some(field),
+                rest,
+                ..
+            }) => format!("{}{rest}", name(field)),
             other => other.to_string(),
         }
     }
@@ -416,7 +456,7 @@ impl SizingError {
 impl fmt::Display for SizingError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            SizingError::OutOfRange { .. } | SizingError::TooManyInAll { .. } => {
+            SizingError::OutOfRange { .. } => {
                 f.write_str(&self.worded(&|field| format!("`{field}`")))
             }
             SizingError::TreatmentRateOutside {
@@ -843,9 +883,12 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
     let treatment_exact = control_exact * d.ratio;
     for exact in [control_exact, treatment_exact] {
         if !(exact.is_finite() && exact > 0.0 && exact < MAX_UNITS) {
-            return Err(SizingError::NoSolution(format!(
+            return Err(SizingError::NoSolution(
+                format!(
                 "the design needs {exact} units in one arm, beyond any traffic; use a larger MDE"
-            )));
+            )
+                .into(),
+            ));
         }
     }
     // Power rises with n, so rounding the exact root up gives the smallest
@@ -858,9 +901,15 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
         .checked_mul(treatment)
         .and_then(|t| t.checked_add(control))
         .filter(|&t| (t as f64) < MAX_UNITS)
-        .ok_or(SizingError::TooManyInAll {
-            arms: d.arms,
-            treatment,
+        .ok_or_else(|| {
+            SizingError::NoSolution(Unsolved::about(
+                "arms",
+                format!(
+                    " is {}: {treatment} units in each treatment arm come to more than \
+                     {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
+                    d.arms
+                ),
+            ))
         })?;
     Ok(SampleSize {
         control_exact,
@@ -971,10 +1020,13 @@ pub fn minimum_detectable_effect(d: &Design, n_control: f64) -> Result<f64, Sizi
     let hi_probe = max_mag * (1.0 - 1e-9);
     let power_at = |e: f64| -> f64 { achieved_power(&with_effect(e), n_control).unwrap_or(0.0) };
     if power_at(hi_probe) < d.power {
-        return Err(SizingError::NoSolution(format!(
+        return Err(SizingError::NoSolution(
+            format!(
             "{n_control:.0} units per arm cannot reach power {} for any effect in this direction",
             d.power
-        )));
+        )
+            .into(),
+        ));
     }
     let e = bisect(|e| power_at(e) - d.power, 0.0, hi_probe, 1e-10);
     Ok(sign * e)
@@ -1009,9 +1061,10 @@ pub fn days_needed(
     let per_day = daily_units * share;
     let raw = (total_units as f64 / per_day).ceil();
     if raw > 1e9 {
-        return Err(SizingError::NoSolution(format!(
-            "{total_units} units at {per_day:.1} a day take more than a million years"
-        )));
+        return Err(SizingError::NoSolution(
+            format!("{total_units} units at {per_day:.1} a day take more than a million years")
+                .into(),
+        ));
     }
     Ok(round_days(raw as u64, min_days, whole_weeks))
 }

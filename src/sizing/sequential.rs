@@ -432,10 +432,13 @@ pub fn inflate(fixed: &SampleSize, ratio: f64, inflation: f64) -> Result<SampleS
         .and_then(|t| t.checked_add(control))
         .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())
         .ok_or_else(|| {
-            SizingError::NoSolution(format!(
-                "with its looks the design needs {control_exact:.0} units in the control arm, \
+            SizingError::NoSolution(
+                format!(
+                    "with its looks the design needs {control_exact:.0} units in the control arm, \
                  beyond any traffic; use a larger MDE"
-            ))
+                )
+                .into(),
+            )
         })?;
     Ok(SampleSize {
         control_exact,
