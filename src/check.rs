@@ -14,6 +14,7 @@
 
 use crate::forecast::Series;
 use crate::portfolio::{Experiment, Portfolio, Sharing};
+use crate::reason::{Limit, Needs, Reason, Said, SoloFrom};
 use crate::schedule::{Instance, PlanRequest};
 use crate::share::Share;
 use crate::sizing::Metric;
@@ -95,8 +96,8 @@ pub struct ExperimentCheck {
     pub solo_start: Option<NaiveDate>,
     /// The earliest solo run that fits: last day.
     pub solo_end: Option<NaiveDate>,
-    /// Why it cannot fit even alone.
-    pub reason: Option<String>,
+    /// Why it cannot fit even alone (a string in JSON).
+    pub reason: Option<Said<Reason>>,
     /// The statistics behind its size, as a plan records them; `None` for
     /// a sample size given from elsewhere.
     pub statistics: Option<crate::plan::TestStatistics>,
@@ -134,8 +135,26 @@ pub struct PoolCheck {
     pub needed_units: u64,
     /// `needed_units / offered_units` (infinite when the pool offers none).
     pub ratio: f64,
-    /// How to read the ratio for this pool's sharing rule.
-    pub note: String,
+    /// How to read the ratio for this pool's sharing rule (a string in
+    /// JSON).
+    pub note: Said<PoolNote>,
+}
+
+/// How to read a pool's needed-over-offered ratio, as facts (worded by
+/// `render::words::pool_note`).
+#[derive(Debug, Clone, PartialEq)]
+pub enum PoolNote {
+    /// Already in words.
+    Worded(String),
+    /// The pool's sharing rule, its cap and its holdout.
+    Ratio {
+        /// How its tests share its units.
+        sharing: Sharing,
+        /// Most tests running at once.
+        max_concurrent: u32,
+        /// The fraction of its units no test may receive.
+        holdout: f64,
+    },
 }
 
 /// Builds the report for a validated portfolio.
@@ -208,22 +227,11 @@ pub fn check(p: &Portfolio) -> CheckReport {
             } else {
                 f64::INFINITY
             };
-            let mut note = match pool.sharing {
-                Sharing::Split => {
-                    "split: tests take disjoint slices, so above 1 not all can finish in the window"
-                        .to_string()
-                }
-                Sharing::Overlap => format!(
-                    "overlap: each test may see every unit and up to {} run at once, so a ratio up to {} can fit",
-                    pool.max_concurrent, pool.max_concurrent
-                ),
-            };
-            if pool.holdout > 0.0 {
-                note.push_str(&format!(
-                    "; {} of its units are held out of every test and not offered",
-                    crate::words::percent(pool.holdout)
-                ));
-            }
+            let note = Said::new(PoolNote::Ratio {
+                sharing: pool.sharing,
+                max_concurrent: pool.max_concurrent,
+                holdout: pool.holdout,
+            });
             PoolCheck {
                 id: pool.id.clone(),
                 label: pool.label.clone(),
@@ -312,23 +320,14 @@ fn experiment(
     };
     let (solo, mut reason) = match start {
         Earliest::From(first, because) => solo_fit(inst, i, series, share, first, because),
-        Earliest::Blocked(pre) => (
-            None,
-            Some(format!(
-                "it runs after `{pre}`, which cannot fit even alone"
-            )),
-        ),
+        Earliest::Blocked(pre) => (None, Some(Reason::PrerequisiteMisfit { prerequisite: pre })),
     };
     let margin = p
         .planning
         .confidence
         .filter(|_| e.need.total > truth.need.total);
-    if let (Some(c), Some(why)) = (margin, &mut reason) {
-        why.push_str(&format!(
-            " (planned at {} confidence as {} units)",
-            crate::words::percent(c),
-            crate::words::thousands(e.need.total)
-        ));
+    if let Some(c) = margin {
+        reason = reason.map(|r| r.at_confidence(c, e.need.total));
     }
     let detectable = first
         .filter(|_| solo.is_none() && !e.sample_size_given)
@@ -378,7 +377,7 @@ fn experiment(
         fits_alone: solo.is_some(),
         solo_start: solo.map(|s| s.0),
         solo_end: solo.map(|s| s.1),
-        reason,
+        reason: reason.map(Said::new),
         statistics: (!e.sample_size_given).then(|| crate::schedule::statistics::statistics(e)),
         detectable,
         looks,
@@ -404,7 +403,7 @@ fn solo_fit(
     share: Share,
     first: NaiveDate,
     because: Option<String>,
-) -> (Option<(NaiveDate, NaiveDate)>, Option<String>) {
+) -> (Option<(NaiveDate, NaiveDate)>, Option<Reason>) {
     let p = inst.portfolio;
     let e = &p.experiments[i_ex];
     let w = p.window;
@@ -413,46 +412,49 @@ fn solo_fit(
     if let Some((start, end)) = solo.run {
         return (Some((w.date(start as i64), w.date(end as i64))), None);
     }
-    let pct = share.to_string();
     let until = if e.deadline.is_some_and(|d| d < w.end) {
-        format!("its deadline {last}")
+        Limit::Deadline(last)
     } else {
-        format!("the window's end {last}")
+        Limit::WindowEnd(last)
     };
     let reason = if first > last {
-        match &because {
-            Some(pre) => format!(
-                "it may start only on {first}, after `{pre}` ends and the gap, later than {until}"
-            ),
-            None => format!("it may start only on {first}, later than {until}"),
+        Reason::StartsTooLate {
+            first,
+            after: because,
+            until,
         }
     } else if !solo.any_start {
-        format!("no allowed start day between {first} and {last} (start grid, freezes)")
+        Reason::NoAllowedStart {
+            from: first,
+            to: last,
+        }
     } else if solo.crossed {
-        format!("every run at {pct} that ends by {until} crosses a no-running blackout")
+        Reason::SoloCrossesBlackout { share, until }
     } else if solo.ran_out {
         // Counted from the first day it may start on (the grid, freezes).
         let i = first_day(inst, i_ex, first);
         let day = w.date(i as i64);
-        let start = match (&because, day > w.start) {
-            (Some(pre), _) => format!(" even from {day}, after `{pre}` ends"),
-            (None, true) if first > w.start => format!(" even from its earliest start {day}"),
-            (None, true) => format!(" from the first start day, {day}"),
-            (None, false) => String::new(),
+        let start = match (because, day > w.start) {
+            (Some(pre), _) => SoloFrom::AfterPrerequisite(day, pre),
+            (None, true) if first > w.start => SoloFrom::EarliestStart(day),
+            (None, true) => SoloFrom::FirstStartDay(day),
+            (None, false) => SoloFrom::WindowStart,
         };
-        match series.test_end(e, i, share.fraction()) {
-            Some(j) => format!(
-                "at {pct} it needs {} days{start}, ending {}, after {until}",
-                j - i + 1,
-                w.date(j as i64)
-            ),
-            None => format!(
-                "at {pct} it needs more than {} years{start}",
-                HORIZON_DAYS / 365
-            ),
+        let needs = match series.test_end(e, i, share.fraction()) {
+            Some(j) => Needs::Days {
+                days: j - i + 1,
+                end: w.date(j as i64),
+            },
+            None => Needs::Years(HORIZON_DAYS / 365),
+        };
+        Reason::SoloTooLong {
+            share,
+            needs,
+            from: start,
+            until,
         }
     } else {
-        format!("no run at {pct} ends by {until}")
+        Reason::NoSoloRun { share, until }
     };
     (None, Some(reason))
 }

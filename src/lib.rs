@@ -30,6 +30,7 @@
 
 #![warn(missing_docs)]
 
+pub mod advice;
 pub mod board;
 pub mod check;
 pub(crate) mod cli;
@@ -42,6 +43,7 @@ pub(crate) mod output;
 pub mod plan;
 mod planner;
 pub mod portfolio;
+pub mod reason;
 pub mod render;
 pub mod replan;
 pub mod scenario;

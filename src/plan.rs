@@ -7,8 +7,10 @@
 //! It also holds [`PlanDiff`], what moved since a previous plan, which a
 //! re-plan carries; `crate::diff` computes it from two plans.
 
+pub use crate::advice::Advice;
 pub use crate::fit::LevelRule;
 pub use crate::portfolio::{BlackoutKind, Sharing};
+pub use crate::reason::{Reason, Said};
 use crate::share::Share;
 use chrono::NaiveDate;
 use serde::{Deserialize, Serialize};
@@ -144,8 +146,9 @@ pub struct PlannedExperiment {
     /// The fraction of its pool's units its targeting admits, in (0, 1];
     /// it still holds its whole share of a split pool.
     pub eligible: f64,
-    /// Why it is not scheduled, in words a planner can act on.
-    pub reason: Option<String>,
+    /// Why it is not scheduled, as facts ([`Reason`]); in JSON the
+    /// string of `render::words::reason`.
+    pub reason: Option<Said<Reason>>,
     /// Re-plans only: what a finished or cancelled test ran, as the
     /// progress file gives it; `None` for every other test, and for a
     /// finished or cancelled test whose `started` the file does not give.
@@ -524,7 +527,7 @@ struct ExperimentJson {
     sample_size_given: bool,
     #[serde(default = "whole_pool")]
     eligible: f64,
-    reason: Option<String>,
+    reason: Option<Said<Reason>>,
     #[serde(default)]
     ran: Option<Ran>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -983,7 +986,7 @@ pub struct RunningOutlook {
     pub detectable_effect: Option<f64>,
     /// The outlook in words, when it cannot finish as it runs, needs a
     /// decision, was re-shared or is ready to read.
-    pub advice: Option<String>,
+    pub advice: Option<Said<Advice>>,
     /// The share it ran at before today, as the progress file gives it
     /// (differs from `share` only when the re-plan re-shared it).
     #[serde(default)]

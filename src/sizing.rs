@@ -39,6 +39,7 @@
 //! treatment size. All sizes are per arm; `total` sums every arm.
 
 pub mod noninferiority;
+pub(crate) mod report;
 pub mod sequential;
 pub mod srm;
 
@@ -370,17 +371,94 @@ pub enum SizingError {
     /// A relative effect of a zero mean.
     RelativeOfZero,
     /// An inverse found no answer: e.g. no effect inside (0,1) reaches the power.
-    NoSolution(String),
+    NoSolution(Unsolved),
 }
 
-impl fmt::Display for SizingError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+/// Why an inverse found no answer, in words; when the words begin with a
+/// field (`arms`), the field apart, so the command line can name it as
+/// its flag. Reads as its words (`&*unsolved`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Unsolved {
+    /// The words, the field written as a portfolio names it.
+    text: String,
+    /// The field the words begin with.
+    field: Option<&'static str>,
+    /// The words after the field.
+    rest: String,
+}
+
+impl Unsolved {
+    /// Words that begin with `field` (as `` `arms` ``), followed by `rest`.
+    pub fn about(field: &'static str, rest: String) -> Unsolved {
+        Unsolved {
+            text: format!("`{field}`{rest}"),
+            field: Some(field),
+            rest,
+        }
+    }
+}
+
+impl From<String> for Unsolved {
+    fn from(text: String) -> Unsolved {
+        Unsolved {
+            text,
+            field: None,
+            rest: String::new(),
+        }
+    }
+}
+
+impl From<&str> for Unsolved {
+    fn from(text: &str) -> Unsolved {
+        Unsolved::from(text.to_string())
+    }
+}
+
+impl std::ops::Deref for Unsolved {
+    type Target = str;
+
+    fn deref(&self) -> &str {
+        &self.text
+    }
+}
+
+impl SizingError {
+    /// The field the error is about, as a portfolio names it (`mde_abs`);
+    /// `None` when it names none.
+    pub fn field(&self) -> Option<&'static str> {
+        match self {
+            SizingError::OutOfRange { field, .. } => Some(field),
+            SizingError::NoSolution(u) => u.field,
+            _ => None,
+        }
+    }
+
+    /// The message with its field written by `name` (a portfolio's
+    /// `` `mde_abs` `` in [`fmt::Display`]; the command line words it as
+    /// its flag).
+    pub fn worded(&self, name: &dyn Fn(&'static str) -> String) -> String {
         match self {
             SizingError::OutOfRange {
                 field,
                 value,
                 expected,
-            } => write!(f, "`{field}` is {value}; it must be {expected}"),
+            } => format!("{} is {value}; it must be {expected}", name(field)),
+            SizingError::NoSolution(Unsolved {
+                field: Some(field),
+                rest,
+                ..
+            }) => format!("{}{rest}", name(field)),
+            other => other.to_string(),
+        }
+    }
+}
+
+impl fmt::Display for SizingError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            SizingError::OutOfRange { .. } => {
+                f.write_str(&self.worded(&|field| format!("`{field}`")))
+            }
             SizingError::TreatmentRateOutside {
                 baseline,
                 treatment,
@@ -805,18 +883,24 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
     let treatment_exact = control_exact * d.ratio;
     for exact in [control_exact, treatment_exact] {
         if !(exact.is_finite() && exact > 0.0 && exact < MAX_UNITS) {
-            return Err(SizingError::NoSolution(format!(
+            return Err(SizingError::NoSolution(
+                format!(
                 "the design needs {exact} units in one arm, beyond any traffic; use a larger MDE"
-            )));
+            )
+                .into(),
+            ));
         }
     }
     let (control, treatment, total) = whole_arms(control_exact, treatment_exact, d.arms)
         .ok_or_else(|| {
-            SizingError::NoSolution(format!(
-                "`arms` is {}: {} units in each treatment arm come to more than \
-                 {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
-                d.arms,
-                round_up(treatment_exact)
+            SizingError::NoSolution(Unsolved::about(
+                "arms",
+                format!(
+                    " is {}: {} units in each treatment arm come to more than \
+                     {MAX_UNITS:e} in all, beyond any traffic; use fewer arms or a larger MDE",
+                    d.arms,
+                    round_up(treatment_exact)
+                ),
             ))
         })?;
     Ok(SampleSize {
@@ -949,10 +1033,13 @@ pub fn minimum_detectable_effect(d: &Design, n_control: f64) -> Result<f64, Sizi
     let hi_probe = max_mag * (1.0 - 1e-9);
     let power_at = |e: f64| -> f64 { achieved_power(&with_effect(e), n_control).unwrap_or(0.0) };
     if power_at(hi_probe) < d.power {
-        return Err(SizingError::NoSolution(format!(
+        return Err(SizingError::NoSolution(
+            format!(
             "{n_control:.0} units per arm cannot reach power {} for any effect in this direction",
             d.power
-        )));
+        )
+            .into(),
+        ));
     }
     let e = bisect(|e| power_at(e) - d.power, 0.0, hi_probe, 1e-10);
     Ok(sign * e)
@@ -987,9 +1074,10 @@ pub fn days_needed(
     let per_day = daily_units * share;
     let raw = (total_units as f64 / per_day).ceil();
     if raw > 1e9 {
-        return Err(SizingError::NoSolution(format!(
-            "{total_units} units at {per_day:.1} a day take more than a million years"
-        )));
+        return Err(SizingError::NoSolution(
+            format!("{total_units} units at {per_day:.1} a day take more than a million years")
+                .into(),
+        ));
     }
     Ok(round_days(raw as u64, min_days, whole_weeks))
 }

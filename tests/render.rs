@@ -548,7 +548,7 @@ fn html_escapes_hostile_text_everywhere() {
     let mut plan = fixture();
     plan.portfolio = "q1 <script>alert(1)</script> & co".to_string();
     plan.experiments[0].title = "</title><svg onload=\"x\">".to_string();
-    plan.experiments[5].reason = Some("a ' \" < > & reason".to_string());
+    plan.experiments[5].reason = Some("a ' \" < > & reason".into());
     plan.pools[0].label = "<b>bold</b>".to_string();
     plan.blackouts[0].note = "]]> <!-- -->".to_string();
     let html = render_str(&plan, Format::Html, &file_opts());

@@ -4,11 +4,10 @@
 
 use super::size::{early_reading, flag_design, LooksArgs, MetricArgs, TestArgs};
 use super::{Error, TextOrJson};
-use crate::sizing::sequential::{self, Boundary};
-use crate::sizing::{self, noninferiority, Correction, Effect, Method, Metric, Sides};
-use crate::words::{thousands as fmt_units, Count};
-use clap::{ArgGroup, Args, ValueEnum};
-use serde::Serialize;
+use crate::sizing::report::{DetectLooks, DetectReport, GuardrailReport, Harm};
+use crate::sizing::sequential;
+use crate::sizing::{self, noninferiority, Effect, Metric, Sides};
+use clap::{ArgGroup, Args};
 
 #[derive(Args, Debug)]
 #[command(allow_negative_numbers = true)]
@@ -121,82 +120,6 @@ pub struct DetectArgs {
     /// Output format
     #[arg(long, value_enum, default_value_t = TextOrJson::Text)]
     pub format: TextOrJson,
-}
-
-/// Which way a guardrail's metric moves when the treatment harms it.
-#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Harm {
-    /// A fall is the harm (conversion, revenue)
-    Fall,
-    /// A rise is the harm (refunds, load time)
-    Rise,
-}
-
-/// A guardrail's part of the report: the margin solved for or given.
-#[derive(Serialize, Debug)]
-pub struct GuardrailReport {
-    /// Which way the harm goes.
-    pub harm: Harm,
-    /// The margin relative to the baseline, signed as in a portfolio
-    /// (positive: a fall is the harm); absent for a mean of zero.
-    pub margin: Option<f64>,
-    /// The margin as an absolute difference, signed the same way.
-    pub margin_abs: f64,
-    /// The treatment's rate or mean under H0: the baseline moved by the harm.
-    pub null_value: f64,
-}
-
-/// A design with interim looks: the sample is its maximum.
-#[derive(Serialize, Debug)]
-pub struct DetectLooks {
-    pub looks: u32,
-    pub boundary: Boundary,
-    /// The maximum sample over a single read's for the same power.
-    pub inflation: f64,
-    /// The control units a single read would need to match it: what the
-    /// effect is computed from.
-    pub single_read_control: f64,
-}
-
-/// The JSON object `sluice detect --format json` prints.
-#[derive(Serialize, Debug)]
-pub struct DetectReport {
-    pub metric: Metric,
-    /// The detectable (or given) effect, relative to the baseline; absent
-    /// for a mean of zero.
-    pub mde: Option<f64>,
-    /// The same effect as an absolute difference.
-    pub mde_abs: f64,
-    /// The treatment's rate or mean at that effect.
-    pub treatment_value: f64,
-    /// The power at that effect: `--power` when the effect was solved for.
-    pub power: f64,
-    /// Units in the control arm.
-    pub control: f64,
-    /// Units in each treatment arm.
-    pub treatment: f64,
-    pub method: Method,
-    pub alpha: f64,
-    pub comparison_alpha: f64,
-    pub sides: Sides,
-    pub arms: u32,
-    pub ratio: f64,
-    pub correction: Correction,
-    pub rho: f64,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub daily: Option<f64>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub share: Option<f64>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub days: Option<f64>,
-    /// A design with interim looks.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub looks: Option<DetectLooks>,
-    /// A guardrail (non-inferiority) test: then `mde` and `mde_abs` are the
-    /// difference at its null, the harm it rules out.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub guardrail: Option<GuardrailReport>,
 }
 
 /// The control arm's units: `--n`, or the units `--daily x --share x
@@ -371,116 +294,10 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
             margin_abs: -mde_abs,
             null_value: base + mde_abs,
         }),
+        power_given: given.is_some(),
     };
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
-        TextOrJson::Text => Ok(detect_text(&report, given.is_some()).into_bytes()),
+        TextOrJson::Text => Ok(crate::render::reports::detect::text(&report).into_bytes()),
     }
-}
-
-fn detect_text(r: &DetectReport, power_asked: bool) -> String {
-    use std::fmt::Write as _;
-    let trim = |x: f64| crate::words::trimmed(x, 6);
-    let mut s = String::new();
-    let (metric, value) = match r.metric {
-        Metric::Rate { baseline } => (
-            format!(
-                "rate, baseline {}%",
-                crate::words::trimmed(baseline * 100.0, 4)
-            ),
-            format!("{}%", crate::words::trimmed(r.treatment_value * 100.0, 4)),
-        ),
-        Metric::Mean { mean, sd } => (
-            format!("mean, baseline {} (sd {})", trim(mean), trim(sd)),
-            trim(r.treatment_value),
-        ),
-    };
-    let _ = writeln!(s, "metric      {metric}");
-    let sides = match r.sides {
-        Sides::One => "one-sided",
-        Sides::Two => "two-sided",
-    };
-    let _ = write!(s, "test        alpha {} {sides}", r.alpha);
-    if r.arms > 2 {
-        let _ = write!(
-            s,
-            " ({} per comparison, {})",
-            trim(r.comparison_alpha),
-            r.correction.name()
-        );
-    }
-    let _ = writeln!(s, ", method {}", r.method);
-    let _ = write!(
-        s,
-        "sample      {} control, {} in {}",
-        fmt_units(r.control.round() as u64),
-        fmt_units(r.treatment.round() as u64),
-        if r.arms == 2 {
-            "the treatment arm".to_string()
-        } else {
-            format!(
-                "each of {} {}",
-                r.arms - 1,
-                Count("treatment arm", r.arms as usize - 1)
-            )
-        }
-    );
-    if let (Some(daily), Some(share), Some(days)) = (r.daily, r.share, r.days) {
-        let _ = write!(
-            s,
-            " ({} days at {} units a day x {}% share)",
-            trim(days),
-            fmt_units(daily.round() as u64),
-            trim(share * 100.0)
-        );
-    }
-    let _ = writeln!(s);
-    if let Some(l) = &r.looks {
-        let _ = writeln!(
-            s,
-            "looks       {} ({}): the sample is the maximum, {:.4} x a single read's;\n            \
-             it detects what {} control units read once would",
-            l.looks,
-            l.boundary,
-            l.inflation,
-            fmt_units(l.single_read_control.round() as u64)
-        );
-    }
-    if let Some(g) = &r.guardrail {
-        let _ = writeln!(
-            s,
-            "guardrail   non-inferiority, one-sided: a {} is the harm",
-            match g.harm {
-                Harm::Fall => "fall",
-                Harm::Rise => "rise",
-            }
-        );
-    }
-    let relative = match r.mde {
-        Some(m) => format!("{:+.2}% relative, ", m * 100.0),
-        None => String::new(),
-    };
-    let absolute = match r.metric {
-        Metric::Rate { .. } => format!("{:+.4} points absolute", r.mde_abs * 100.0),
-        Metric::Mean { .. } => format!("{} absolute", trim(r.mde_abs)),
-    };
-    let (label, value_is, asked, found) = match (&r.guardrail, power_asked) {
-        (None, true) => ("effect", "treatment", " for this effect", ""),
-        (None, false) => (
-            "detects",
-            "treatment",
-            "",
-            ": the smallest effect found this often",
-        ),
-        (Some(_), true) => ("margin", "treatment under H0", " for this margin", ""),
-        (Some(_), false) => (
-            "rules out",
-            "treatment under H0",
-            "",
-            ": the smallest harm ruled out this often when there is none",
-        ),
-    };
-    let _ = writeln!(s, "{label:<11} {relative}{absolute} ({value_is} {value})");
-    let _ = writeln!(s, "power       {:.4}{asked}{found}", r.power);
-    s
 }

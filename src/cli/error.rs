@@ -6,7 +6,6 @@
 //! Exit codes: 2 for input the user can fix (bad flags or files), 1 for
 //! anything else. A closed pipe on stdout is not an error.
 
-use super::size;
 use crate::output::OutputError;
 use crate::portfolio::LoadError;
 use crate::render::RenderError;
@@ -110,6 +109,27 @@ impl Error {
             | Error::Render { .. }
             | Error::UnknownPool { .. } => EXIT_INVALID,
         }
+    }
+}
+
+/// A field as the command line names it: `mde_abs` is `` `--mde-abs` ``.
+fn flag(field: &'static str) -> String {
+    format!("`--{}`", field.replace('_', "-"))
+}
+
+/// The library's message for a design built from flags, its field worded
+/// as its flag; an effect that moves the rate outside (0, 1) is put down to
+/// the flag that set it.
+fn design_words(error: &SizingError, effect: Effect) -> String {
+    let text = error.worded(&flag);
+    match (error, effect) {
+        (SizingError::TreatmentRateOutside { .. }, Effect::Relative(_)) => {
+            format!("{}: {text}", flag("mde"))
+        }
+        (SizingError::TreatmentRateOutside { .. }, Effect::Absolute(_)) => {
+            format!("{}: {text}", flag("mde_abs"))
+        }
+        _ => text,
     }
 }
 
@@ -232,11 +252,9 @@ impl fmt::Display for Error {
             Error::SizeEffect => f.write_str(
                 "give the effect: `--mde X` for a relative lift (0.05 = 5%), or `--mde-abs X` for an absolute difference (for a guardrail: `--margin X` or `--margin-abs X`)",
             ),
-            Error::Design { error, effect } => {
-                f.write_str(&size::flag_message(error, *effect))
-            }
+            Error::Design { error, effect } => f.write_str(&design_words(error, *effect)),
             Error::Power { error } => write!(f, "{error}"),
-            Error::Duration { error } => f.write_str(&size::flagify(error.to_string())),
+            Error::Duration { error } => f.write_str(&error.worded(&flag)),
             Error::Render { error } => write!(f, "cannot render the plan: {error}"),
             Error::Output { error } => write!(f, "{error}"),
             Error::Json { error } => write!(f, "cannot write JSON: {error}"),

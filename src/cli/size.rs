@@ -2,12 +2,10 @@
 
 use super::{Error, TextOrJson};
 use crate::sizing::noninferiority;
+use crate::sizing::report::{LooksReport, SizeReport};
 use crate::sizing::sequential::{self, Boundary};
-use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides, SizingError};
-use crate::words::thousands as fmt_units;
-use crate::words::trimmed;
+use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
 use clap::{Args, ValueEnum};
-use serde::Serialize;
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
 pub enum MethodArg {
@@ -255,67 +253,6 @@ pub struct TestArgs {
     pub rho: f64,
 }
 
-/// The JSON object `sluice size --format json` prints.
-#[derive(Serialize, Debug)]
-pub struct SizeReport {
-    pub metric: Metric,
-    pub effect: Effect,
-    /// The treatment arm's rate or mean implied by the effect.
-    pub treatment_value: f64,
-    pub method: Method,
-    pub alpha: f64,
-    pub comparison_alpha: f64,
-    pub power: f64,
-    pub sides: Sides,
-    pub arms: u32,
-    pub ratio: f64,
-    pub correction: Correction,
-    pub rho: f64,
-    pub control: u64,
-    pub treatment: u64,
-    pub control_exact: f64,
-    pub treatment_exact: f64,
-    pub total: u64,
-    /// Power at the rounded sizes.
-    pub achieved_power: f64,
-    /// A guardrail's margin (then `effect` is the assumed true difference, 0).
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub margin: Option<Effect>,
-    /// A guardrail's treatment value under H0: the baseline less the margin.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub null_value: Option<f64>,
-    #[serde(flatten)]
-    pub looks: Option<LooksReport>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub daily: Option<f64>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub share: Option<f64>,
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub days: Option<u64>,
-}
-
-/// The fields a design with interim looks adds to the JSON.
-#[derive(Serialize, Debug)]
-pub struct LooksReport {
-    pub looks: u32,
-    pub boundary: Boundary,
-    /// The fixed-horizon control arm, before rounding.
-    pub fixed_control_exact: f64,
-    /// Maximum over fixed.
-    pub inflation: f64,
-    /// Information fraction of each look.
-    pub information: Vec<f64>,
-    /// The efficacy boundary (z) at each look.
-    pub boundaries: Vec<f64>,
-    /// Type I error spent by each look, cumulative.
-    pub alpha_spent: Vec<f64>,
-    /// Probability of stopping for efficacy (planned direction) at each look
-    /// under the planned effect; they sum to the power.
-    pub stop_probabilities: Vec<f64>,
-    pub expected_control_exact_h1: f64,
-    pub expected_control_exact_h0: f64,
-}
-
 /// Whether the flags size a guardrail (non-inferiority) test.
 fn is_guardrail(a: &SizeArgs) -> bool {
     a.margin.is_some() || a.margin_abs.is_some()
@@ -370,52 +307,6 @@ pub(super) fn flag_design(metric: Metric, effect: Effect, guardrail: bool, t: &T
     } else {
         base
     }
-}
-
-/// The library's message for a design built from flags: an effect that
-/// moves the rate outside (0, 1) is put down to the flag that set it, and
-/// every field is named as its flag.
-pub(super) fn flag_message(e: &SizingError, effect: Effect) -> String {
-    let text = e.to_string();
-    let text = match (e, effect) {
-        (SizingError::TreatmentRateOutside { .. }, Effect::Relative(_)) => format!("`mde`: {text}"),
-        (SizingError::TreatmentRateOutside { .. }, Effect::Absolute(_)) => {
-            format!("`mde_abs`: {text}")
-        }
-        _ => text,
-    };
-    flagify(text)
-}
-
-/// Library messages name fields as in a portfolio (`mde_abs`); on the
-/// command line they are flags (`--mde-abs`).
-pub(super) fn flagify(message: String) -> String {
-    let mut out = message;
-    for field in [
-        "alpha",
-        "power",
-        "arms",
-        "ratio",
-        "rho",
-        "mde_abs",
-        "mde",
-        "margin_abs",
-        "margin",
-        "looks",
-        "baseline",
-        "mean",
-        "sd",
-        "share",
-        "daily",
-        "days",
-        "n",
-    ] {
-        out = out.replace(
-            &format!("`{field}`"),
-            &format!("`--{}`", field.replace('_', "-")),
-        );
-    }
-    out
 }
 
 /// `sluice size`.
@@ -515,187 +406,11 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
         daily: a.daily,
         share: a.daily.map(|_| a.share),
         days,
+        min_days: a.min_days,
+        whole_weeks: !a.no_whole_weeks,
     };
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
-        TextOrJson::Text => Ok(size_text(&report, a).into_bytes()),
-    }
-}
-
-fn size_text(r: &SizeReport, a: &SizeArgs) -> String {
-    use std::fmt::Write as _;
-    let mut s = String::new();
-    let metric = match r.metric {
-        Metric::Rate { baseline } => format!(
-            "rate, baseline {}% -> treatment {}%",
-            trimmed(baseline * 100.0, 4),
-            trimmed(r.treatment_value * 100.0, 4)
-        ),
-        Metric::Mean { mean, sd } => format!(
-            "mean, baseline {} (sd {}) -> treatment {}",
-            trim_float(mean),
-            trim_float(sd),
-            trim_float(r.treatment_value)
-        ),
-    };
-    let effect = |e: Effect| match e {
-        Effect::Relative(x) => format!("{}% relative", signed(x * 100.0)),
-        Effect::Absolute(x) => format!("{} absolute", signed(x)),
-    };
-    match (r.margin, r.null_value) {
-        (Some(margin), Some(null)) => {
-            let metric = match r.metric {
-                Metric::Rate { baseline } => {
-                    format!("rate, baseline {}%", trimmed(baseline * 100.0, 4))
-                }
-                Metric::Mean { mean, sd } => format!(
-                    "mean, baseline {} (sd {})",
-                    trim_float(mean),
-                    trim_float(sd)
-                ),
-            };
-            let harm = match margin {
-                Effect::Relative(x) | Effect::Absolute(x) if x < 0.0 => "a rise",
-                _ => "a fall",
-            };
-            let null = match r.metric {
-                Metric::Rate { .. } => format!("{}%", trimmed(null * 100.0, 4)),
-                Metric::Mean { .. } => trim_float(null),
-            };
-            let _ = writeln!(s, "metric      {metric}");
-            let _ = writeln!(
-                s,
-                "guardrail   non-inferiority: margin {} ({harm} is the harm), \
-                 H0 treatment at {null}, true difference 0",
-                effect(margin).trim_start_matches(['+', '-'])
-            );
-        }
-        _ => {
-            let _ = writeln!(s, "metric      {metric}");
-            let _ = writeln!(s, "effect      {}", effect(r.effect));
-        }
-    }
-    let sides = match r.sides {
-        Sides::One => "one-sided",
-        Sides::Two => "two-sided",
-    };
-    let _ = write!(s, "test        alpha {} {sides}", trim_float(r.alpha));
-    if r.arms > 2 {
-        let _ = write!(
-            s,
-            " ({} per comparison, {})",
-            trim_float(r.comparison_alpha),
-            r.correction.name()
-        );
-    }
-    let _ = writeln!(s, ", power {}, method {}", trim_float(r.power), r.method);
-    if r.rho > 0.0 {
-        let _ = writeln!(
-            s,
-            "covariate   rho {} (size x {})",
-            trim_float(r.rho),
-            trimmed(1.0 - r.rho * r.rho, 4)
-        );
-    }
-    let _ = writeln!(s);
-    let _ = writeln!(
-        s,
-        "control     {:>12} units  ({:.2} before rounding)",
-        fmt_units(r.control),
-        r.control_exact
-    );
-    let label = if r.arms > 2 {
-        format!("treatment x{}", r.arms - 1)
-    } else {
-        "treatment".to_string()
-    };
-    let _ = writeln!(
-        s,
-        "{label:<11} {:>12} units  ({:.2} before rounding, ratio {})",
-        fmt_units(r.treatment),
-        r.treatment_exact,
-        trim_float(r.ratio)
-    );
-    let _ = writeln!(
-        s,
-        "total       {:>12} units over {} arms",
-        fmt_units(r.total),
-        r.arms
-    );
-    let _ = writeln!(s, "power       {:.4} at these sizes", r.achieved_power);
-    if let Some(l) = &r.looks {
-        looks_text(&mut s, l, r.ratio);
-    }
-    if let (Some(days), Some(daily)) = (r.days, r.daily) {
-        let weeks = if a.no_whole_weeks {
-            String::new()
-        } else {
-            format!(" ({} weeks)", days / 7)
-        };
-        let _ = writeln!(
-            s,
-            "duration    {days} days{weeks} at {} units a day x {}% share (minimum {} days)",
-            fmt_units(daily.round() as u64),
-            trim_float(a.share * 100.0),
-            a.min_days
-        );
-    }
-    s
-}
-
-/// The looks of a group-sequential design: boundaries, stop chances and
-/// the expected sizes.
-fn looks_text(s: &mut String, l: &LooksReport, ratio: f64) {
-    use std::fmt::Write as _;
-    let _ = writeln!(
-        s,
-        "looks       {} ({}), maximum {:.4} x the fixed {} units per control arm",
-        l.looks,
-        l.boundary,
-        l.inflation,
-        fmt_units(l.fixed_control_exact.ceil() as u64)
-    );
-    let _ = writeln!(
-        s,
-        "            look  information  control units  boundary z  stop chance"
-    );
-    let control_max = l.fixed_control_exact * l.inflation;
-    for (j, ((t, c), p)) in l
-        .information
-        .iter()
-        .zip(&l.boundaries)
-        .zip(&l.stop_probabilities)
-        .enumerate()
-    {
-        let _ = writeln!(
-            s,
-            "            {:>4}  {:>10.1}%  {:>13}  {:>10.3}  {:>10.1}%",
-            j + 1,
-            t * 100.0,
-            fmt_units((control_max * t).ceil() as u64),
-            c,
-            p * 100.0
-        );
-    }
-    let _ = writeln!(
-        s,
-        "expected    {} control units with the planned effect, {} with none (ratio {ratio})",
-        fmt_units(l.expected_control_exact_h1.ceil() as u64),
-        fmt_units(l.expected_control_exact_h0.ceil() as u64)
-    );
-}
-
-/// A number as people read it: at most six decimals, no trailing zeros.
-fn trim_float(x: f64) -> String {
-    trimmed(x, 6)
-}
-
-/// [`trim_float`] with its sign always shown: `+7`, `-0.5`.
-fn signed(x: f64) -> String {
-    let t = trim_float(x);
-    if t.starts_with('-') || t == "0" {
-        t
-    } else {
-        format!("+{t}")
+        TextOrJson::Text => Ok(crate::render::reports::size::text(&report).into_bytes()),
     }
 }

@@ -98,7 +98,7 @@ impl Renderer for Csv {
                     .unwrap_or_else(|| opt(&|r| r.days.to_string())),
                 e.units_needed.to_string(),
                 opt(&|r| format!("{:.0}", r.units_expected)),
-                e.reason.clone().unwrap_or_default(),
+                e.reason.as_deref().unwrap_or_default().to_string(),
                 e.eligible.to_string(),
                 e.sample_size_given.to_string(),
                 super::common::ramp_words(e).unwrap_or_default(),

@@ -22,7 +22,9 @@ pub mod markdown;
 mod markup;
 pub(crate) mod moved;
 pub mod numbers;
+pub mod reports;
 pub mod text;
+pub mod words;
 
 use crate::plan::Plan;
 use std::fmt;

@@ -9,17 +9,9 @@
 //! use the sentences, CSV the cells, Markdown and HTML the table rows.
 
 use crate::plan::{Detectable, LookDates, PlannedExperiment, TestStatistics};
+use crate::render::words::{self, signed, EFFECT_DIGITS};
 use crate::sizing::Sides;
 use crate::words::{percent, significant, units};
-
-/// A value with its sign: `+4%`, `-0.5 points`.
-fn signed(x: f64, word: String) -> String {
-    if x > 0.0 {
-        format!("+{word}")
-    } else {
-        word
-    }
-}
 
 /// The baseline: a rate as a percentage, a mean with its standard deviation.
 pub fn baseline(s: &TestStatistics) -> String {
@@ -32,16 +24,12 @@ pub fn baseline(s: &TestStatistics) -> String {
 /// An absolute effect in the metric's units: points of a rate, or the
 /// mean's own units.
 pub fn absolute(s: &TestStatistics, abs: f64) -> String {
-    if s.kind == "rate" {
-        signed(abs, format!("{} points", significant(abs * 100.0, 3)))
-    } else {
-        signed(abs, significant(abs, 3))
-    }
+    signed(abs, words::absolute(abs, s.kind == "rate", EFFECT_DIGITS))
 }
 
 /// A relative change as a signed percentage.
 pub fn relative(rel: f64) -> String {
-    signed(rel, format!("{}%", significant(rel * 100.0, 3)))
+    signed(rel, words::relative(rel, EFFECT_DIGITS))
 }
 
 /// An effect both ways: `+4% (+0.124 points)`; the absolute one alone when

@@ -25,7 +25,9 @@ use crate::portfolio::{Portfolio, Sharing};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
-use outlook::{advise, outlook, running_end, units_by, Overload, Rescue, Run, HORIZON_DAYS};
+#[cfg(test)]
+use outlook::advise;
+use outlook::{advice, outlook, running_end, units_by, Overload, Rescue, Run, HORIZON_DAYS};
 use progress::State;
 use std::fmt;
 
@@ -363,7 +365,8 @@ pub fn replan(
         }) {
             l.outlook.flags.push(RunningFlag::InputOverload);
         }
-        l.outlook.advice = advise(portfolio, &l.run, &l.outlook, &l.rescue, today, overload);
+        l.outlook.advice =
+            advice(portfolio, &l.run, &l.outlook, &l.rescue, today, overload).map(Into::into);
         request.fixed.push(FixedRun {
             experiment: l.run.experiment,
             start: l.run.start,
@@ -389,7 +392,7 @@ pub fn replan(
     for l in &live {
         let pe = &mut plan.experiments[l.run.experiment];
         if let Some(advice) = &l.outlook.advice {
-            pe.reason = Some(advice.clone());
+            pe.reason = Some(crate::reason::Reason::Running(advice.facts().clone()).into());
         }
         // What it collected, plus the forecast from the day the counts were read.
         if let Some(r) = &mut pe.run {

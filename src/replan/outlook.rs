@@ -1,7 +1,7 @@
 //! The outlook of each running test in a re-plan: its new end from the
 //! units still needed and the forecast from the day the counts were read,
 //! what stands out about it (the flags of [`RunningFlag`]), and the advice
-//! in words: when it can no longer finish inside the window, the rescue
+//! as facts ([`Advice`], worded by `render::words`): when it can no longer finish inside the window, the rescue
 //! (a larger share where its pool has room, or the effect it can still
 //! detect by the window's end, the sizing inverse); when its run reaches a
 //! `no_running` span, the choice of stopping before it or ending later;
@@ -10,12 +10,12 @@
 //! Units on a `no_running` day of its pool never count towards a test: the
 //! traffic of such a day does not represent normal behaviour.
 
+use crate::advice::{self, Advice, Detect, Note};
 use crate::forecast::test_units_on;
 use crate::plan::{NoRunningChoice, RunningFlag, RunningOutlook};
 use crate::portfolio::{BlackoutKind, Portfolio};
 use crate::share::Share;
-use crate::sizing::{self, round_days};
-use crate::words::thousands;
+use crate::sizing::round_days;
 use chrono::{Duration, NaiveDate};
 
 /// How far past the window a running test's end is searched (ten years).
@@ -156,27 +156,18 @@ fn detectable(portfolio: &Portfolio, experiment: usize, units: f64) -> Option<f6
     crate::schedule::statistics::detectable_effect(&portfolio.experiments[experiment], units)
 }
 
-/// "it can detect a relative effect of 8.7% (planned MDE: 8.0%)", or that
-/// it has too few units for any.
-fn can_detect(portfolio: &Portfolio, experiment: usize, effect: Option<f64>) -> String {
-    let d = &portfolio.experiments[experiment].design;
-    if portfolio.experiments[experiment].sample_size_given {
-        return "its sample size was given, not sized from an effect, so no detectable effect is worked out".to_string();
+/// What test `experiment` can detect with `effect` worked out for it.
+fn can_detect(portfolio: &Portfolio, experiment: usize, effect: Option<f64>) -> Detect {
+    let e = &portfolio.experiments[experiment];
+    if e.sample_size_given {
+        return Detect::SampleGiven;
     }
     match effect {
-        Some(effect) => {
-            let (kind, planned) = match d.effect {
-                sizing::Effect::Relative(x) => (
-                    format!("a relative effect of {:.1}%", effect * 100.0),
-                    format!("{:.1}%", x * 100.0),
-                ),
-                sizing::Effect::Absolute(x) => {
-                    (format!("an absolute effect of {effect:.4}"), format!("{x}"))
-                }
-            };
-            format!("it can detect {kind} (planned MDE: {planned})")
-        }
-        None => "it has too few units to detect any effect at the planned power".to_string(),
+        Some(effect) => Detect::Effect {
+            effect,
+            planned: e.design.effect,
+        },
+        None => Detect::TooFew,
     }
 }
 
@@ -203,7 +194,7 @@ fn first_no_running<'p>(
 /// flags (all but `input_overload`, which needs the whole pool), the
 /// `no_running` choice, the smallest share level that would finish it in
 /// the window were its pool's room no limit, and the effect it can detect
-/// by the window's end. No advice yet: see [`advise`].
+/// by the window's end. No advice yet: see [`advice`].
 pub(super) fn outlook(
     portfolio: &Portfolio,
     run: &Run,
@@ -294,8 +285,100 @@ pub(super) enum Rescue {
     Nothing,
 }
 
-/// The advice in words for one running test, from its facts, the joint
-/// rescue, and the pool's overload by the input (its peak and a day).
+/// The advice for one running test, from its facts, the joint rescue,
+/// and the pool's overload by the input (its peak and a day); `None` when
+/// there is nothing to tell. `render::words::advice` words it.
+pub(super) fn advice(
+    portfolio: &Portfolio,
+    run: &Run,
+    o: &RunningOutlook,
+    rescue: &Rescue,
+    today: NaiveDate,
+    overload: Option<Overload>,
+) -> Option<Advice> {
+    let e = &portfolio.experiments[run.experiment];
+    let pools: Vec<String> = e
+        .pools
+        .iter()
+        .map(|&k| portfolio.pools[k].id.clone())
+        .collect();
+    let mut notes: Vec<Note> = Vec::new();
+    if let Rescue::Reshared { from } = rescue {
+        notes.push(Note::Reshared {
+            from: *from,
+            to: o.share,
+            today,
+        });
+    }
+    if o.past_need() {
+        match o.end {
+            Some(end) if end < today => notes.push(Note::ReadyToRead {
+                collected: o.collected,
+                needed: o.units_needed,
+                last_day: end,
+                share: o.share,
+                pools: pools.clone(),
+            }),
+            Some(end) => notes.push(Note::RunsToMinimum {
+                collected: o.collected,
+                needed: o.units_needed,
+                min_days: e.min_days,
+                end,
+            }),
+            None => {}
+        }
+    }
+    if o.flags.contains(&RunningFlag::CannotFinish) {
+        notes.push(Note::CannotFinish {
+            window_end: portfolio.window.end,
+            share: o.share,
+            need: e.need.total,
+            end: o.end,
+            rescue: match rescue {
+                Rescue::Advise(s) => advice::Rescue::Share(*s),
+                Rescue::NoRoom { needed, holders } => advice::Rescue::NoRoom {
+                    needed: *needed,
+                    pools: pools.clone(),
+                    holders: holders.clone(),
+                },
+                Rescue::Nothing => advice::Rescue::Nothing {
+                    max_share: e.max_share,
+                },
+                Rescue::None | Rescue::Reshared { .. } => advice::Rescue::Unsaid,
+            },
+            detect: can_detect(portfolio, run.experiment, o.detectable_effect),
+        });
+    }
+    if let Some(c) = &o.no_running {
+        notes.push(Note::NoRunning {
+            from: c.from,
+            to: c.to,
+            note: c.note.clone(),
+            pools: pools.clone(),
+            stop_end: c.stop_end,
+            detect: can_detect(portfolio, run.experiment, c.stop_effect),
+            end: o.end,
+        });
+    }
+    if let Some(x) = overload {
+        notes.push(Note::Overload {
+            pools,
+            from: x.from,
+            peak_share: x.peak_share,
+            peak_count: x.peak_count,
+            max_concurrent: e
+                .pools
+                .iter()
+                .map(|&k| portfolio.pools[k].max_concurrent)
+                .min()
+                .unwrap_or(0),
+        });
+    }
+    (!notes.is_empty()).then_some(Advice::Notes(notes))
+}
+
+/// [`advice`] in words, as the tests read it.
+#[cfg(test)]
 pub(super) fn advise(
     portfolio: &Portfolio,
     run: &Run,
@@ -304,110 +387,5 @@ pub(super) fn advise(
     today: NaiveDate,
     overload: Option<Overload>,
 ) -> Option<String> {
-    let e = &portfolio.experiments[run.experiment];
-    let pool = e
-        .pools
-        .iter()
-        .map(|&k| portfolio.pools[k].id.as_str())
-        .collect::<Vec<_>>()
-        .join("`, `");
-    let mut parts: Vec<String> = Vec::new();
-    if let Rescue::Reshared { from } = rescue {
-        parts.push(format!(
-            "re-shared from {from} to {} from {today} so it finishes in the window; the arms' split is unchanged",
-            o.share
-        ));
-    }
-    if o.past_need() {
-        match o.end {
-            Some(end) if end < today => parts.push(format!(
-                "ready to read: {} of its {} units are in; its last day of data was {end}, and its {} of `{pool}` is free from today",
-                thousands(o.collected),
-                thousands(o.units_needed),
-                o.share
-            )),
-            Some(end) => parts.push(format!(
-                "has its sample ({} of {} units) but runs to its minimum of {} days, to {end}",
-                thousands(o.collected),
-                thousands(o.units_needed),
-                e.min_days
-            )),
-            None => {}
-        }
-    }
-    if o.flags.contains(&RunningFlag::CannotFinish) {
-        let when = match o.end {
-            Some(day) => format!(
-                "at {} it would reach its {} units on {day}",
-                o.share,
-                thousands(e.need.total)
-            ),
-            None => format!(
-                "at {} it would not reach its {} units within ten years",
-                o.share,
-                thousands(e.need.total)
-            ),
-        };
-        let mut text = format!(
-            "cannot reach its sample by the window's end ({}): {when}",
-            portfolio.window.end
-        );
-        match rescue {
-            Rescue::Advise(s) => text.push_str(&format!(
-                "; a share of {s} from today would finish it in time"
-            )),
-            Rescue::NoRoom { needed, holders } => {
-                let held: Vec<String> = holders
-                    .iter()
-                    .map(|(id, s)| format!("`{id}` {s}"))
-                    .collect();
-                text.push_str(&format!(
-                    "; a share of {needed} from today would finish it, but `{pool}` has no room for it (running from today: {}); one of them would have to stop to make room",
-                    held.join(", ")
-                ));
-            }
-            Rescue::Nothing => text.push_str(&format!(
-                "; no share up to its maximum of {} finishes it in time",
-                e.max_share
-            )),
-            Rescue::None | Rescue::Reshared { .. } => {}
-        }
-        text.push_str(&format!(
-            "; stopped at the window's end {}",
-            can_detect(portfolio, run.experiment, o.detectable_effect)
-        ));
-        parts.push(text);
-    }
-    if let Some(c) = &o.no_running {
-        let note = if c.note.is_empty() {
-            String::new()
-        } else {
-            format!(" ({})", c.note)
-        };
-        let later = match o.end {
-            Some(end) => format!("ends on {end}"),
-            None => "does not end within ten years".to_string(),
-        };
-        parts.push(format!(
-            "its run reaches the no-running span {}..{} of `{pool}`{note}, whose units do not count: stopped on {}, {}; or, with those days left out, it {later}",
-            c.from,
-            c.to,
-            c.stop_end,
-            can_detect(portfolio, run.experiment, c.stop_effect)
-        ));
-    }
-    if let Some(x) = overload {
-        parts.push(format!(
-            "the running tests on `{pool}` alone already overload it from {}, at the shares the progress file gives them (up to {} of it and {} tests; at most {} may run)",
-            x.from,
-            crate::words::percent(x.peak_share),
-            x.peak_count,
-            e.pools
-                .iter()
-                .map(|&k| portfolio.pools[k].max_concurrent)
-                .min()
-                .unwrap_or(0)
-        ));
-    }
-    (!parts.is_empty()).then(|| parts.join("; "))
+    advice(portfolio, run, o, rescue, today, overload).map(|a| crate::render::words::advice(&a))
 }

@@ -239,7 +239,7 @@ impl Applied {
             };
             if e.status == Status::Cancelled && e.ran.is_none() {
                 e.status = Status::Unscheduled;
-                e.reason = Some(LEFT_OUT.to_string());
+                e.reason = Some(LEFT_OUT.into());
             }
         }
     }

@@ -18,7 +18,7 @@ use super::request::PlanRequest;
 use crate::forecast::uncertainty::{fill_ranges, lower_quantile_factor};
 use crate::plan::{Plan, Status};
 use crate::portfolio::Portfolio;
-use crate::words::{percent, thousands};
+use crate::reason::{Reason, Said};
 
 /// How many times the portfolio is planned at most.
 pub const ROUNDS: usize = 6;
@@ -82,14 +82,11 @@ pub(super) fn plan(portfolio: &Portfolio, request: &PlanRequest, confidence: f64
             pe.units_needed = ex.need.total;
             pe.result_range = None;
             // A reason speaks of the units the planner was asked for.
-            if let (Status::Unscheduled, Some(reason)) = (pe.status, &mut pe.reason) {
-                if more.need.total > ex.need.total {
-                    reason.push_str(&format!(
-                        " (planned at {} confidence as {} units)",
-                        percent(confidence),
-                        thousands(more.need.total)
-                    ));
-                }
+            if pe.status == Status::Unscheduled && more.need.total > ex.need.total {
+                pe.reason = pe
+                    .reason
+                    .take()
+                    .map(|r| Said::new(r.into_facts().at_confidence(confidence, more.need.total)));
             }
         }
         fill_ranges(portfolio, &mut plan.experiments, &so_far, today);
@@ -134,18 +131,15 @@ fn margin_facts(portfolio: &Portfolio, asked: &Portfolio, plan: &mut Plan, confi
         };
         let factor = ex.need.total as f64 / more.need.total as f64;
         if d.units >= ex.need.total as f64 {
-            pe.reason = Some(format!(
-                "the room the plan leaves holds it on the expected forecast ({} from {} to {}, \
-                 {} units against the {} it needs), but not with the margin for {} confidence, \
-                 which plans it as {} units; lower `planning.confidence` or free its pool",
-                d.share,
-                d.from,
-                d.to,
-                thousands(d.units.floor() as u64),
-                thousands(ex.need.total),
-                percent(confidence),
-                thousands(more.need.total)
-            ));
+            pe.reason = Some(Said::new(Reason::Margin {
+                share: d.share,
+                from: d.from,
+                to: d.to,
+                units: d.units.floor() as u64,
+                need: ex.need.total,
+                confidence,
+                asked: more.need.total,
+            }));
         }
         pe.detectable = Some(super::statistics::at_confidence(ex, &d, factor, confidence));
     }

@@ -45,6 +45,7 @@ use crate::plan::{
     SolverStatus, SolverSummary, Status,
 };
 use crate::portfolio::Portfolio;
+use crate::reason::Said;
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
 use options::Role;
@@ -434,7 +435,7 @@ fn assemble(
                     out.ramp = ramp_days(p, e, start);
                 }
                 None => {
-                    out.reason = why[e].clone();
+                    out.reason = why[e].clone().map(Said::new);
                     out.ran = request
                         .excluded
                         .iter()

@@ -1,5 +1,5 @@
-//! Why each test left out of the calendar is out, in words a planner can
-//! act on: a missing predecessor, a run longer than the window, a deadline
+//! Why each test left out of the calendar is out, as the facts of a
+//! [`Reason`] (worded by `render::words`): a missing predecessor, a run longer than the window, a deadline
 //! that cannot be met, running tests that hold its pool, blackouts in the
 //! way, a `not_with` partner (in time or on traffic), or a pool full of
 //! tests the plan preferred (named, with their priorities; for a test on
@@ -11,21 +11,16 @@
 use super::options::{Instance, Role};
 use super::state::State;
 use crate::day::Day;
+use crate::reason::{BlackoutSpan, Held, Helps, Limit, Reason, ShareOf, Span};
 use crate::share::Share;
-pub(crate) use crate::words::thousands;
-use chrono::{Datelike, Duration, NaiveDate};
-
-/// A priority as people read it: at most three decimals, no trailing zeros.
-fn number(x: f64) -> String {
-    crate::words::trimmed(x, 3)
-}
+use chrono::{Duration, NaiveDate};
 
 /// The reason of every unscheduled test; `None` for the scheduled.
-pub(crate) fn explain(inst: &Instance, state: &State) -> Vec<Option<String>> {
+pub(crate) fn explain(inst: &Instance, state: &State) -> Vec<Option<Reason>> {
     (0..inst.roles.len())
         .map(|e| match &inst.roles[e] {
             Role::Fixed { .. } => None,
-            Role::Excluded { reason, .. } => Some(reason.clone()),
+            Role::Excluded { reason, .. } => Some(Reason::Worded(reason.clone())),
             Role::Free if state.choice[e].is_some() => None,
             Role::Free => Some(why(inst, state, e)),
         })
@@ -44,20 +39,14 @@ fn days_needed(inst: &Instance, e: usize, start: NaiveDate, share: Share) -> Opt
         .map(|end| end as i64 + 1)
 }
 
-/// The pools of test `e` as a reason names them: "`home`", or
-/// "each of `home`, `search`".
-fn pools_named(inst: &Instance, e: usize) -> String {
+/// The ids of the pools of test `e`.
+fn pool_ids(inst: &Instance, e: usize) -> Vec<String> {
     let p = inst.portfolio;
-    let names: Vec<String> = p.experiments[e]
+    p.experiments[e]
         .pools
         .iter()
-        .map(|&i| format!("`{}`", p.pools[i].id))
-        .collect();
-    if names.len() == 1 {
-        names[0].clone()
-    } else {
-        format!("each of {}", names.join(", "))
-    }
+        .map(|&i| p.pools[i].id.clone())
+        .collect()
 }
 
 /// Whether `pool` cannot take test `e` on `day` at `share` beside the
@@ -70,43 +59,26 @@ fn pool_full(inst: &Instance, state: &State, pool: usize, day: usize, share: Sha
                 > super::millionths::room(def))
 }
 
-/// What limits the units test `e` collects beside its share, as
-/// ` (30% of its units eligible, 5% held out)`, or nothing: the share of
-/// its units its targeting admits, and its pool's holdout, which caps the
-/// share of a split pool and thins every test's units on an overlap pool.
-fn limits(inst: &Instance, e: usize) -> String {
+/// Test `e` at `share` of its pools, with what limits the units it
+/// collects beside its share: the share of its units its targeting
+/// admits, and its pools' largest holdout, which caps the share of a split
+/// pool and thins every test's units on an overlap pool.
+fn share_of(inst: &Instance, e: usize, share: Share) -> ShareOf {
     let p = inst.portfolio;
     let ex = &p.experiments[e];
-    let mut notes = Vec::new();
-    if ex.eligible < 1.0 {
-        notes.push(format!(
-            "{} of its units eligible",
-            crate::words::percent(ex.eligible)
-        ));
-    }
-    // On several pools, the largest holdout among them.
-    let holdout = ex
-        .pools
-        .iter()
-        .map(|&k| p.pools[k].holdout)
-        .fold(0.0, f64::max);
-    if holdout > 0.0 {
-        notes.push(format!("{} held out", crate::words::percent(holdout)));
-    }
-    if notes.is_empty() {
-        String::new()
-    } else {
-        format!(" ({})", notes.join(", "))
+    ShareOf {
+        share,
+        pools: pool_ids(inst, e),
+        eligible: ex.eligible,
+        held_out: ex
+            .pools
+            .iter()
+            .map(|&k| p.pools[k].holdout)
+            .fold(0.0, f64::max),
     }
 }
 
-/// `75% of `product``, or `75% of each of `home`, `search``, with its
-/// [`limits`].
-fn share_of(inst: &Instance, e: usize, share: Share) -> String {
-    format!("{share} of {}{}", pools_named(inst, e), limits(inst, e))
-}
-
-fn why(inst: &Instance, state: &State, e: usize) -> String {
+fn why(inst: &Instance, state: &State, e: usize) -> Reason {
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
@@ -115,32 +87,34 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
         let pid = &p.experiments[pre.experiment].id;
         match &inst.roles[pre.experiment] {
             Role::Excluded { ended: None, .. } => {
-                return format!("depends on `{pid}`, which left the queue without finishing")
+                return Reason::PrerequisiteLeft {
+                    prerequisite: pid.clone(),
+                }
             }
             Role::Free if state.choice[pre.experiment].is_none() => {
-                return format!("depends on `{pid}`, which is not scheduled")
+                return Reason::PrerequisiteUnscheduled {
+                    prerequisite: pid.clone(),
+                }
             }
             _ => {}
         }
     }
     let shares = inst.shares(e);
     let Some(&top) = shares.last() else {
-        return format!(
-            "no share level is at or below its maximum share of {}; add a smaller level or raise it",
-            ex.max_share
-        );
+        return Reason::NoShareLevel {
+            max_share: ex.max_share,
+        };
     };
     // Alone: the earliest start on the grid at its largest share.
     let lo = inst.lo_start[e];
     if lo >= inst.days as i64 {
-        return format!(
-            "its earliest possible start, {}, is past the window",
-            w.date(lo)
-        );
+        return Reason::EarliestStartPastWindow {
+            earliest: w.date(lo),
+        };
     }
     let first = (lo.max(0) as usize..inst.days).find(|&d| inst.on_grid(d));
     let Some(first) = first else {
-        return format!("no start day on the grid is left after {}", w.date(lo));
+        return Reason::NoStartDayAfter { after: w.date(lo) };
     };
     let start = w.date(first as i64);
     // Days from its first start to the last it may end on: its deadline
@@ -150,38 +124,35 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
     let by_deadline = last < inst.days as i64 - 1;
     match days_needed(inst, e, start, top) {
         None => {
-            return format!(
-                "needs {} units; at {} the forecast does not deliver them within three years",
-                thousands(ex.need.total),
-                share_of(inst, e, top)
-            )
+            return Reason::NeverDelivers {
+                units: ex.need.total,
+                at: share_of(inst, e, top),
+            }
         }
         Some(n) if n > left && by_deadline => {
             let dl = w.date(last);
             return if first == 0 {
-                let end = start + Duration::days(n - 1);
-                format!(
-                    "deadline {dl} cannot be met: at its maximum share of {top}{} the earliest end is {end}",
-                    limits(inst, e)
-                )
+                Reason::DeadlineFromFirstDay {
+                    deadline: dl,
+                    at: share_of(inst, e, top),
+                    end: start + Duration::days(n - 1),
+                }
             } else {
-                format!(
-                    "deadline {dl} cannot be met: needs {n} days at {}; from its earliest start on {start} to its deadline there are {left}",
-                    share_of(inst, e, top)
-                )
+                Reason::DeadlineTooClose {
+                    deadline: dl,
+                    days: n,
+                    at: share_of(inst, e, top),
+                    start,
+                    left,
+                }
             };
         }
         Some(n) if n > left => {
-            return if first == 0 {
-                format!(
-                    "needs {n} days at {}; the window has {left}",
-                    share_of(inst, e, top)
-                )
-            } else {
-                format!(
-                    "needs {n} days at {}; from its earliest start on {start} the window has {left}",
-                    share_of(inst, e, top)
-                )
+            return Reason::LongerThanWindow {
+                days: n,
+                at: share_of(inst, e, top),
+                from: (first != 0).then_some(start),
+                left,
             };
         }
         Some(_) => {}
@@ -275,104 +246,80 @@ fn why(inst: &Instance, state: &State, e: usize) -> String {
                 .total_cmp(&p.experiments[a].priority)
                 .then(a.cmp(&b))
         });
-        let names: Vec<String> = holders
-            .iter()
-            .map(|&b| {
-                format!(
-                    "{} ({})",
-                    p.experiments[b].id,
-                    number(p.experiments[b].priority)
-                )
-            })
-            .collect();
-        let higher = holders
-            .iter()
-            .all(|&b| p.experiments[b].priority >= ex.priority);
-        let from = w.date(from_d as i64);
-        let to = w.date(to_d as i64);
-        let whom = if higher {
-            "tests of higher priority"
-        } else {
-            "tests worth more to the plan together"
-        };
-        let gaps = if full.is_empty() || full.len() == to_d - from_d + 1 {
-            ""
-        } else {
-            " (with gaps too short for it)"
-        };
-        let mut text = format!(
-            "fits alone, but `{}` is full from {from} to {to}{gaps} with {whom}: {}",
-            pool.id,
-            names.join(", ")
-        );
-        if !partners.is_empty() {
-            let ps: Vec<String> = partners
+        return Reason::PoolFull {
+            pool: pool.id.clone(),
+            from: w.date(from_d as i64),
+            to: w.date(to_d as i64),
+            gaps: !(full.is_empty() || full.len() == to_d - from_d + 1),
+            higher: holders
                 .iter()
-                .map(|&b| format!("`{}`", p.experiments[b].id))
-                .collect();
-            text.push_str(&format!(
-                "; it also must not run alongside {}",
-                ps.join(", ")
-            ));
-        }
-        return text;
+                .all(|&b| p.experiments[b].priority >= ex.priority),
+            holders: holders
+                .iter()
+                .map(|&b| Held {
+                    id: p.experiments[b].id.clone(),
+                    priority: p.experiments[b].priority,
+                })
+                .collect(),
+            apart: partners
+                .iter()
+                .map(|&b| p.experiments[b].id.clone())
+                .collect(),
+        };
     }
-    // "`x` (2027-01-04 to 2027-01-17)" for each test of `list`.
-    let with_spans = |list: &[usize]| -> String {
+    // Each test of `list` with its run's days.
+    let with_spans = |list: &[usize]| -> Vec<Span> {
         list.iter()
             .map(|&b| {
-                let (s, t) = match (&inst.roles[b], state.opt(inst, b)) {
+                let (from, to) = match (&inst.roles[b], state.opt(inst, b)) {
                     (Role::Fixed { start, end, .. }, _) => (w.date(*start), w.date(*end)),
                     (_, Some(bo)) => (w.date(bo.start as i64), w.date(bo.end as i64)),
                     _ => (w.start, w.start),
                 };
-                format!("`{}` ({s} to {t})", p.experiments[b].id)
+                Span {
+                    id: p.experiments[b].id.clone(),
+                    from,
+                    to,
+                }
             })
-            .collect::<Vec<_>>()
-            .join(", ")
+            .collect()
     };
     if !partners.is_empty() {
-        return format!(
-            "fits alone, but must not run alongside {}, which the plan keeps",
-            with_spans(&partners)
-        );
+        return Reason::KeptApartInTime {
+            partners: with_spans(&partners),
+        };
     }
     if !traffic.is_empty() {
-        return format!(
-            "fits alone, but is kept apart on traffic from {}, which the plan keeps, and no share level fits beside it",
-            with_spans(&traffic)
-        );
+        return Reason::KeptApartOnTraffic {
+            partners: with_spans(&traffic),
+        };
     }
     if !late_preds.is_empty() {
-        let ps: Vec<String> = late_preds
-            .iter()
-            .map(|&b| {
-                let end = state
-                    .opt(inst, b)
-                    .map(|o| w.date(o.end as i64))
-                    .unwrap_or(w.start);
-                format!("`{}` (ends {end})", p.experiments[b].id)
-            })
-            .collect();
-        return format!(
-            "must wait for {}, which leaves too little time after it",
-            ps.join(", ")
-        );
+        return Reason::WaitsFor {
+            prerequisites: late_preds
+                .iter()
+                .map(|&b| {
+                    let end = state
+                        .opt(inst, b)
+                        .map(|o| w.date(o.end as i64))
+                        .unwrap_or(w.start);
+                    (p.experiments[b].id.clone(), end)
+                })
+                .collect(),
+        };
     }
-    // Nothing above applies: say what was tried.
-    let _ = start.weekday();
-    "no run fits beside the scheduled tests".to_string()
+    // Nothing above applies.
+    Reason::NoRunFits
 }
 
 /// Why test `e` has no option at all although a run at its largest share
 /// `top` is short enough for the window: the real cause, and only changes
 /// that are not already at their limit.
-fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String {
+fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> Reason {
     use crate::portfolio::BlackoutKind;
     let p = inst.portfolio;
     let w = p.window;
     let ex = &p.experiments[e];
-    let on = pools_named(inst, e);
     let solo = inst.earliest_solo(e, top, first);
     if let Some((s, _)) = solo.run {
         // It fits alone: the running tests hold the pool.
@@ -390,74 +337,57 @@ fn why_no_option(inst: &Instance, e: usize, first: usize, top: Share) -> String 
                 _ => None,
             })
             .max();
-        let names: Vec<String> = holders
-            .iter()
-            .map(|&b| format!("`{}`", p.experiments[b].id))
-            .collect();
-        let when = match until {
-            Some(u) if u > w.end => format!("past the window's end (until {u})"),
-            Some(u) => format!("until {u}"),
-            None => String::new(),
-        };
-        return if names.is_empty() {
-            format!(
-                "the tests already running on {} leave no room for it in time",
-                on
-            )
-        } else {
-            format!(
-                "the running tests {} hold {} {when}, leaving no room for it in time; alone it could run from {}",
-                names.join(", "),
-                on,
-                w.date(s as i64)
-            )
+        return Reason::RunningHold {
+            pools: pool_ids(inst, e),
+            holders: holders
+                .iter()
+                .map(|&b| p.experiments[b].id.clone())
+                .collect(),
+            until,
+            past_window: until.is_some_and(|u| u > w.end),
+            alone_from: w.date(s as i64),
         };
     }
-    let spans = |kind: BlackoutKind| -> Vec<String> {
+    let spans = |kind: BlackoutKind| -> Vec<BlackoutSpan> {
         p.blackouts
             .iter()
             .filter(|b| {
                 b.kind == kind && (b.pools.is_empty() || b.pools.iter().any(|&q| ex.uses(q)))
             })
-            .map(|b| {
-                if b.note.is_empty() {
-                    format!("{}..{}", b.from, b.to)
-                } else {
-                    format!("{}..{}, {}", b.from, b.to, b.note)
-                }
+            .map(|b| BlackoutSpan {
+                from: b.from,
+                to: b.to,
+                note: b.note.clone(),
             })
             .collect()
     };
     // Changes that could help, only where not already at their limit.
-    let mut helps: Vec<String> = Vec::new();
     let largest = p.share_levels.all().last().copied();
-    if largest.is_some_and(|l| l > top) {
-        helps.push(format!("a larger `max_share` than {top}"));
-    }
-    if ex.deadline.is_some() {
-        helps.push("a later deadline".to_string());
-    }
-    let help = if helps.is_empty() {
-        String::new()
-    } else {
-        format!("; {} would help", helps.join(" or "))
+    let helps = Helps {
+        larger_than: largest.filter(|&l| l > top).map(|_| top),
+        later_deadline: ex.deadline.is_some(),
     };
     let limit = match ex.deadline {
-        Some(dl) => format!("its deadline {dl}"),
-        None => format!("the window's end {}", w.end),
+        Some(dl) => Limit::Deadline(dl),
+        None => Limit::WindowEnd(w.end),
     };
     if solo.crossed {
-        return format!(
-            "every run that ends by {limit} meets a no-running blackout ({}){help}",
-            spans(BlackoutKind::NoRunning).join("; ")
-        );
+        return Reason::BlackoutInTheWay {
+            limit,
+            spans: spans(BlackoutKind::NoRunning),
+            helps,
+        };
     }
     if !solo.any_start {
-        return format!(
-            "no start day from {} is free of the no-starts blackouts ({}) in time for {limit}",
-            w.date(first as i64),
-            spans(BlackoutKind::NoStarts).join("; ")
-        );
+        return Reason::NoFreeStartDay {
+            from: w.date(first as i64),
+            spans: spans(BlackoutKind::NoStarts),
+            limit,
+        };
     }
-    format!("no run from an allowed start ends by {limit} at its largest share of {top}{help}")
+    Reason::NoRunByLimit {
+        limit,
+        share: top,
+        helps,
+    }
 }

@@ -108,7 +108,7 @@ fn run_of(plan: &Plan, id: &str) -> Option<(NaiveDate, NaiveDate, f64)> {
 
 fn reason_of(plan: &Plan, id: &str) -> String {
     let e = plan.experiments.iter().find(|e| e.id == id).unwrap();
-    e.reason.clone().unwrap_or_default()
+    e.reason.as_deref().unwrap_or_default().to_string()
 }
 
 #[test]

@@ -90,11 +90,14 @@ pub fn equivalent(d: &Design) -> Result<Design, SizingError> {
     match d.metric {
         Metric::Rate { baseline } => {
             if !matches!(d.method, Method::Unpooled) {
-                return Err(SizingError::NoSolution(format!(
-                    "a non-inferiority test of a rate is sized by Blackwelder's formula, \
+                return Err(SizingError::NoSolution(
+                    format!(
+                        "a non-inferiority test of a rate is sized by Blackwelder's formula, \
                      method `unpooled`; `{}` applies to superiority tests",
-                    d.method
-                )));
+                        d.method
+                    )
+                    .into(),
+                ));
             }
             if !(baseline > 0.0 && baseline < 1.0) {
                 return Err(SizingError::OutOfRange {

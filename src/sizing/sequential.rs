@@ -427,10 +427,13 @@ pub fn inflate(fixed: &SampleSize, ratio: f64, inflation: f64) -> Result<SampleS
     let treatment_exact = control_exact * ratio;
     let (control, treatment, total) = super::whole_arms(control_exact, treatment_exact, fixed.arms)
         .ok_or_else(|| {
-            SizingError::NoSolution(format!(
-                "with its looks the design needs {control_exact:.0} units in the control arm, \
+            SizingError::NoSolution(
+                format!(
+                    "with its looks the design needs {control_exact:.0} units in the control arm, \
                  beyond any traffic; use a larger MDE"
-            ))
+                )
+                .into(),
+            )
         })?;
     Ok(SampleSize {
         control_exact,

@@ -125,7 +125,7 @@ fn for_terminal(plan: &Plan) -> Plan {
         e.title = clean(&e.title);
         e.owner = clean(&e.owner);
         e.pools = e.pools.iter().map(|p| clean(p)).collect();
-        e.reason = e.reason.as_deref().map(clean);
+        e.reason = e.reason.as_deref().map(|r| clean(r).into());
         if let Some(s) = &mut e.statistics {
             s.metric = clean(&s.metric);
             s.driver = clean(&s.driver);
@@ -149,7 +149,7 @@ fn for_terminal(plan: &Plan) -> Plan {
     // A re-plan's outlooks and changes may come from a `--previous` file.
     for o in &mut p.running {
         o.id = clean(&o.id);
-        o.advice = o.advice.as_deref().map(clean);
+        o.advice = o.advice.as_deref().map(|a| clean(a).into());
         if let Some(n) = &mut o.no_running {
             n.note = clean(&n.note);
         }
@@ -372,7 +372,7 @@ mod tests {
     fn user_text_cannot_carry_terminal_escapes() {
         let mut plan = fixture::plan();
         plan.experiments[0].title = "evil\x1b[2J\x1b]0;title\x07".to_string();
-        plan.experiments[5].reason = Some("line\nbreak\x1b[31m".to_string());
+        plan.experiments[5].reason = Some("line\nbreak\x1b[31m".into());
         plan.portfolio = "q1\rover".to_string();
         let opts = RenderOptions {
             width: Some(160),
@@ -392,7 +392,7 @@ mod tests {
         let changes = plan.changes.as_mut().expect("the fixture has changes");
         changes.experiments[0].id = "old\x1b[2Jid".to_string();
         changes.no_longer_fit.push("gone\x1b]0;t\x07".to_string());
-        plan.running[0].advice = Some("stop\x1b[31m now".to_string());
+        plan.running[0].advice = Some("stop\x1b[31m now".into());
         let opts = RenderOptions {
             width: Some(160),
             colour: false,
