@@ -172,7 +172,6 @@ mod tests {
             title: id.into(),
             owner: String::new(),
             pools: vec!["home".into()],
-            ramp: Vec::new(),
             priority: 1.0,
             status,
             run: end
@@ -186,14 +185,8 @@ mod tests {
                     units_expected: 0.0,
                 }),
             units_needed: 1000,
-            sample_size_given: false,
             eligible: 1.0,
-            reason: None,
-            ran: None,
-            result_range: None,
-            statistics: None,
-            looks: None,
-            detectable: None,
+            ..PlannedExperiment::default()
         }
     }
 

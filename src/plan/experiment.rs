@@ -11,7 +11,7 @@ use super::*;
 /// wire struct keeps that layout (`#[serde(flatten)]` could not put
 /// `units_needed` between them). Reading a plan refuses half a run, and a
 /// run that disagrees with the status.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 #[serde(into = "ExperimentJson", try_from = "ExperimentJson")]
 pub struct PlannedExperiment {
     /// The experiment's id.

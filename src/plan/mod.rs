@@ -81,12 +81,13 @@ impl SolverStatus {
 }
 
 /// Whether an experiment got a place in the calendar.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Status {
     /// Has a place in the calendar.
     Scheduled,
-    /// Left out; `reason` says why.
+    /// Left out; `reason` says why (the default, before a place is found).
+    #[default]
     Unscheduled,
     /// Re-plans only: started before today and still collecting units.
     Running,

@@ -25,8 +25,6 @@ use crate::portfolio::{Portfolio, Sharing};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
 use crate::share::Share;
 use chrono::{Duration, NaiveDate};
-#[cfg(test)]
-use outlook::advise;
 use outlook::{advice, outlook, running_end, units_by, Overload, Rescue, Run, HORIZON_DAYS};
 use progress::State;
 use std::fmt;
@@ -638,7 +636,9 @@ mod tests {
             Some(s) => Rescue::Advise(s),
             None => Rescue::Nothing,
         };
-        advise(p, r, o, &rescue, today, None).unwrap()
+        advice(p, r, o, &rescue, today, None)
+            .map(|a| crate::render::words::advice(&a))
+            .unwrap()
     }
 
     #[test]
@@ -751,7 +751,7 @@ mod tests {
         assert!(o.fits_window);
         assert!(o.flags.is_empty());
         assert_eq!(
-            advise(&p, &r, &o, &Rescue::None, d("2027-02-01"), None),
+            advice(&p, &r, &o, &Rescue::None, d("2027-02-01"), None),
             None
         );
         assert_eq!(o.rescue_share, None);

@@ -376,16 +376,3 @@ pub(super) fn advice(
     }
     (!notes.is_empty()).then_some(Advice::Notes(notes))
 }
-
-/// [`advice`] in words, as the tests read it.
-#[cfg(test)]
-pub(super) fn advise(
-    portfolio: &Portfolio,
-    run: &Run,
-    o: &RunningOutlook,
-    rescue: &Rescue,
-    today: NaiveDate,
-    overload: Option<Overload>,
-) -> Option<String> {
-    advice(portfolio, run, o, rescue, today, overload).map(|a| crate::render::words::advice(&a))
-}

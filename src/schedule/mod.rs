@@ -405,18 +405,10 @@ fn assemble(
                 owner: ex.owner.clone(),
                 pools: ex.pools.iter().map(|&i| p.pools[i].id.clone()).collect(),
                 priority: ex.priority,
-                status: Status::Unscheduled,
-                run: None,
                 units_needed: ex.need.total,
                 sample_size_given: ex.sample_size_given,
                 eligible: ex.eligible,
-                reason: None,
-                ran: None,
-                result_range: None,
-                statistics: None,
-                looks: None,
-                detectable: None,
-                ramp: Vec::new(),
+                ..PlannedExperiment::default()
             };
             match run {
                 Some((start, end, share)) => {

@@ -391,8 +391,8 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
             ));
         }
     }
-    let (control, treatment, total) = whole_arms(control_exact, treatment_exact, d.arms)
-        .ok_or_else(|| {
+    SampleSize::from_exact(control_exact, treatment_exact, d.arms, d.comparison_alpha()).ok_or_else(
+        || {
             SizingError::NoSolution(Unsolved::about(
                 "arms",
                 format!(
@@ -402,37 +402,41 @@ pub fn sample_size(d: &Design) -> Result<SampleSize, SizingError> {
                     round_up(treatment_exact)
                 ),
             ))
-        })?;
-    Ok(SampleSize {
-        control_exact,
-        treatment_exact,
-        control,
-        treatment,
-        arms: d.arms,
-        total,
-        comparison_alpha: d.comparison_alpha(),
-    })
+        },
+    )
 }
 
-/// The exact sizes of the control and each treatment arm rounded to
-/// whole units, and the total over `arms`; `None` when the total passes
-/// [`MAX_UNITS`] (or the sizes are not finite). Power rises with n, so
-/// rounding the exact root up gives the smallest whole size that reaches
-/// the target (for the t method too); an arm holds at least one unit,
-/// however large the effect. The sum is checked: many arms of a large size
-/// must not wrap it around.
-pub(crate) fn whole_arms(
-    control_exact: f64,
-    treatment_exact: f64,
-    arms: u32,
-) -> Option<(u64, u64, u64)> {
-    let control = round_up(control_exact).max(1);
-    let treatment = round_up(treatment_exact).max(1);
-    let total = u64::from(arms - 1)
-        .checked_mul(treatment)
-        .and_then(|t| t.checked_add(control))
-        .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())?;
-    Some((control, treatment, total))
+impl SampleSize {
+    /// The size of `arms` arms from the exact sizes of the control and
+    /// each treatment arm, at a comparison's alpha: each rounded to whole
+    /// units, and the total over the arms; `None` when the total passes
+    /// [`MAX_UNITS`] (or the sizes are not finite). Power rises with n, so
+    /// rounding the exact root up gives the smallest whole size that
+    /// reaches the target (for the t method too); an arm holds at least one
+    /// unit, however large the effect. The sum is checked: many arms of a
+    /// large size must not wrap it around.
+    pub(crate) fn from_exact(
+        control_exact: f64,
+        treatment_exact: f64,
+        arms: u32,
+        comparison_alpha: f64,
+    ) -> Option<SampleSize> {
+        let control = round_up(control_exact).max(1);
+        let treatment = round_up(treatment_exact).max(1);
+        let total = u64::from(arms - 1)
+            .checked_mul(treatment)
+            .and_then(|t| t.checked_add(control))
+            .filter(|&t| (t as f64) < MAX_UNITS && treatment_exact.is_finite())?;
+        Some(SampleSize {
+            control_exact,
+            treatment_exact,
+            control,
+            treatment,
+            arms,
+            total,
+            comparison_alpha,
+        })
+    }
 }
 
 /// Rounds a size up to whole units, forgiving floating-point noise just

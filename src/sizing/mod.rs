@@ -44,7 +44,6 @@ pub(crate) mod report;
 pub mod sequential;
 pub mod srm;
 
-pub(crate) use formulas::whole_arms;
 pub use formulas::{
     achieved_power, days_needed, minimum_detectable_effect, noncentral_t_cdf, round_days,
     sample_size,

@@ -425,23 +425,20 @@ fn boundaries(p: &Plan, info: &[f64]) -> Vec<f64> {
 pub fn inflate(fixed: &SampleSize, ratio: f64, inflation: f64) -> Result<SampleSize, SizingError> {
     let control_exact = fixed.control_exact * inflation;
     let treatment_exact = control_exact * ratio;
-    let (control, treatment, total) = super::whole_arms(control_exact, treatment_exact, fixed.arms)
-        .ok_or_else(|| {
-            SizingError::NoSolution(
-                format!(
-                    "with its looks the design needs {control_exact:.0} units in the control arm, \
-                 beyond any traffic; use a larger MDE"
-                )
-                .into(),
-            )
-        })?;
-    Ok(SampleSize {
+    SampleSize::from_exact(
         control_exact,
         treatment_exact,
-        control,
-        treatment,
-        total,
-        ..*fixed
+        fixed.arms,
+        fixed.comparison_alpha,
+    )
+    .ok_or_else(|| {
+        SizingError::NoSolution(
+            format!(
+                "with its looks the design needs {control_exact:.0} units in the control arm, \
+                     beyond any traffic; use a larger MDE"
+            )
+            .into(),
+        )
     })
 }
 

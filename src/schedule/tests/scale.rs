@@ -10,14 +10,7 @@ use super::*;
 /// twice.
 #[test]
 fn a_component_past_one_lps_size_plans_verified_from_the_lagrangian_bound() {
-    let spec = synthetic::Spec {
-        tests: 70,
-        pools: 4,
-        weeks: 52,
-        seed: 1,
-    };
-    let mut p = synthetic::with_calendar_keys(synthetic::portfolio(&spec), 1);
-    synthetic::with_keys(&mut p, 1);
+    let p = keyed_year();
     let request = PlanRequest::default();
     let inst = Instance::new(&p, &request);
     let biggest = components(&inst)
@@ -69,14 +62,7 @@ fn the_plan_is_the_same_bytes_on_one_thread_and_on_two() {
         e.not_with.retain(|&o| pool_of[o] == pool_of[i]);
     }
     several.after_order = after_order(&several.experiments).expect("no cycle");
-    let large_spec = synthetic::Spec {
-        tests: 70,
-        pools: 4,
-        weeks: 52,
-        seed: 1,
-    };
-    let mut large = synthetic::with_calendar_keys(synthetic::portfolio(&large_spec), 1);
-    synthetic::with_keys(&mut large, 1);
+    let large = keyed_year();
     let request = PlanRequest::default();
     for (p, lagrangian) in [(&several, false), (&large, true)] {
         let inst = Instance::new(p, &request);
