@@ -5,8 +5,7 @@
 //! that puts them into words is [`crate::render::words::reason`], which
 //! also gives the string a plan's JSON (and `check --format json`) writes
 //! under `reason`. A reason read back from JSON, or given in words by a
-//! request (a finished, cancelled or left-out test), is
-//! [`Reason::Worded`]. A plan carries a reason as a [`Said`]: the facts,
+//! request, is [`Reason::Worded`]. A plan carries a reason as a [`Said`]: the facts,
 //! worded the first time they are read as text.
 
 use crate::share::Share;
@@ -24,6 +23,19 @@ pub enum Reason {
     Worded(String),
     /// A running test's advice, which a re-plan gives as its reason.
     Running(crate::advice::Advice),
+    /// It finished before the re-plan: on `ended` when the progress file
+    /// says so.
+    Finished {
+        /// Its last day of data, as the progress file gives it.
+        ended: Option<NaiveDate>,
+    },
+    /// It was cancelled, with the progress file's note (may be empty).
+    Cancelled {
+        /// Why, in the progress file's words.
+        note: String,
+    },
+    /// A scenario left it out.
+    LeftOut,
     /// A prerequisite (`after`) left the queue without finishing.
     PrerequisiteLeft {
         /// The prerequisite's id.

@@ -27,6 +27,11 @@ pub fn reason(r: &Reason) -> String {
     match r {
         Reason::Worded(s) => s.clone(),
         Reason::Running(a) => advice(a),
+        Reason::Finished { ended: Some(d) } => format!("finished on {d}"),
+        Reason::Finished { ended: None } => "finished".to_string(),
+        Reason::Cancelled { note } if note.is_empty() => "cancelled".to_string(),
+        Reason::Cancelled { note } => format!("cancelled: {note}"),
+        Reason::LeftOut => crate::scenario::LEFT_OUT.to_string(),
         Reason::PrerequisiteLeft { prerequisite } => {
             format!("depends on `{prerequisite}`, which left the queue without finishing")
         }

@@ -20,7 +20,7 @@ pub mod traffic;
 pub use progress::{load_progress, load_progress_str, Progress};
 pub use scale::{with_scales, ScaleArg};
 
-use crate::plan::{Plan, Ran, RunningFlag, RunningOutlook, Status};
+use crate::plan::{Plan, Ran, Reason, RunningFlag, RunningOutlook, Status};
 use crate::portfolio::{Portfolio, Sharing};
 use crate::schedule::{self, Excluded, FixedRun, PlanRequest};
 use crate::share::Share;
@@ -222,13 +222,7 @@ pub fn replan(
                 request.excluded.push(Excluded {
                     experiment: entry.experiment,
                     ended: Some(ended.unwrap_or(today - Duration::days(1))),
-                    reason: format!(
-                        "finished{}",
-                        match ended {
-                            Some(d) => format!(" on {d}"),
-                            None => String::new(),
-                        }
-                    ),
+                    reason: Reason::Finished { ended: *ended },
                     ran,
                 })
             }
@@ -240,11 +234,7 @@ pub fn replan(
             } => request.excluded.push(Excluded {
                 experiment: entry.experiment,
                 ended: None,
-                reason: if note.is_empty() {
-                    "cancelled".to_string()
-                } else {
-                    format!("cancelled: {note}")
-                },
+                reason: Reason::Cancelled { note: note.clone() },
                 ran: ran(started, ended, share),
             }),
         }
@@ -862,7 +852,16 @@ mod tests {
         assert_eq!(plan.experiments[0].status, Status::Finished);
         assert_eq!(plan.experiments[1].status, Status::Cancelled);
         assert_eq!(request.excluded[0].ended, Some(d("2027-01-31")));
-        assert_eq!(request.excluded[1].reason, "cancelled: legal review");
+        assert_eq!(
+            request.excluded[1].reason,
+            Reason::Cancelled {
+                note: "legal review".into()
+            }
+        );
+        assert_eq!(
+            crate::render::words::reason(&request.excluded[1].reason),
+            "cancelled: legal review"
+        );
         // Nothing holds the pool from today; before today the finished
         // test is drawn as it ran (the cancelled one never started).
         for day in &plan.pools[0].days {

@@ -184,7 +184,7 @@ impl Applied {
                 request.excluded.push(Excluded {
                     experiment: i,
                     ended: None,
-                    reason: LEFT_OUT.to_string(),
+                    reason: crate::reason::Reason::LeftOut,
                     ran: None,
                 });
             }
@@ -239,7 +239,7 @@ impl Applied {
             };
             if e.status == Status::Cancelled && e.ran.is_none() {
                 e.status = Status::Unscheduled;
-                e.reason = Some(LEFT_OUT.into());
+                e.reason = Some(crate::reason::Reason::LeftOut.into());
             }
         }
     }

@@ -42,7 +42,10 @@ pub(crate) enum Role {
     /// Running: holds its traffic as given (offsets may lie outside the window).
     Fixed { start: Day, end: Day, share: Share },
     /// Left out by request; `ended` is the last day of a finished run.
-    Excluded { ended: Option<Day>, reason: String },
+    Excluded {
+        ended: Option<Day>,
+        reason: crate::reason::Reason,
+    },
 }
 
 /// The portfolio as the planner sees it.

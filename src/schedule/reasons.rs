@@ -20,7 +20,7 @@ pub(crate) fn explain(inst: &Instance, state: &State) -> Vec<Option<Reason>> {
     (0..inst.roles.len())
         .map(|e| match &inst.roles[e] {
             Role::Fixed { .. } => None,
-            Role::Excluded { reason, .. } => Some(Reason::Worded(reason.clone())),
+            Role::Excluded { reason, .. } => Some(reason.clone()),
             Role::Free if state.choice[e].is_some() => None,
             Role::Free => Some(why(inst, state, e)),
         })

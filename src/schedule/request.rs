@@ -51,7 +51,7 @@ pub struct Excluded {
     /// successors cannot run.
     pub ended: Option<NaiveDate>,
     /// Shown as the test's reason in the plan.
-    pub reason: String,
+    pub reason: crate::reason::Reason,
     /// What it ran before today, when known; kept in the plan as history
     /// and drawn in the pool's past days.
     pub ran: Option<crate::plan::Ran>,

@@ -10,6 +10,7 @@ use crate::portfolio::{
     after_order, Blackout, BlackoutKind, Defaults, Experiment, Forecast, Planning, Pool, Portfolio,
     Prerequisite, Sharing, StartGrid, Window,
 };
+use crate::reason::Reason;
 use crate::share::{Share, ShareLevels};
 use crate::sizing::{Design, Effect, Metric};
 use chrono::Weekday;
@@ -365,13 +366,15 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
             Excluded {
                 experiment: 2,
                 ended: Some(d("2027-01-08")),
-                reason: "finished".into(),
+                reason: Reason::Finished { ended: None },
                 ran: None,
             },
             Excluded {
                 experiment: 5,
                 ended: None,
-                reason: "cancelled".into(),
+                reason: Reason::Cancelled {
+                    note: String::new(),
+                },
                 ran: None,
             },
         ],

@@ -23,7 +23,7 @@ pub(super) fn replan_request(p: &Portfolio, first: &Plan, weeks_in: i64) -> Plan
                 r.excluded.push(Excluded {
                     experiment: i,
                     ended: Some(t),
-                    reason: "finished".into(),
+                    reason: Reason::Finished { ended: None },
                     ran: Some(crate::plan::Ran::new(s, t, Some(sh))),
                 });
             } else if s < today {
