@@ -152,6 +152,11 @@ fn looks_with_no_day_of_their_own_are_said_and_not_promised() {
     assert!(!html.contains("interim look 1 of 3"));
     assert!(html.contains("interim look 1 of 2 on"));
     assert!(html.contains("Interim looks that cannot stop a test early"));
+    // Only `steady` counts among the tests that may stop early.
+    assert!(
+        html.contains(r#"<span class="big">1</span><span class="small">test with interim looks that may stop early"#),
+        "the summary tile counts only looks that can fire"
+    );
 
     // `check` says it of the test's solo run too.
     let c = check_json(&path);

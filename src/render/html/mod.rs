@@ -259,7 +259,12 @@ fn results_tile(plan: &Plan, s: &mut String) {
     let with_looks = plan
         .experiments
         .iter()
-        .filter(|e| e.run.is_some() && e.looks.is_some())
+        .filter(|e| {
+            e.run.is_some()
+                && e.looks
+                    .as_ref()
+                    .is_some_and(|l| l.interim().next().is_some())
+        })
         .count();
     let _ = writeln!(
         s,
