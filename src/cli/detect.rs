@@ -4,9 +4,8 @@
 
 use super::size::{early_reading, flag_design, LooksArgs, MetricArgs, TestArgs};
 use super::{Error, TextOrJson};
-use crate::sizing::report::{DetectLooks, DetectReport, GuardrailReport, Harm};
-use crate::sizing::sequential;
-use crate::sizing::{self, noninferiority, Effect, Metric, Sides};
+use crate::sizing::report::{DetectQuery, DetectReport, Harm, Traffic};
+use crate::sizing::{self, Effect, Metric};
 use clap::{ArgGroup, Args};
 
 #[derive(Args, Debug)]
@@ -176,18 +175,14 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
         _ => return Err(Error::SizeMetric),
     };
-    let base = match metric {
-        Metric::Rate { baseline } => baseline,
-        Metric::Mean { mean, .. } => mean,
-    };
-    let n = control_units(a)?;
+    let base = metric.control_value();
+    let control = control_units(a)?;
     let harm = match (a.guardrail, a.margin.or(a.margin_abs)) {
         (Some(h), _) => Some(h),
         (None, Some(m)) if m < 0.0 => Some(Harm::Rise),
         (None, Some(_)) => Some(Harm::Fall),
         (None, None) => None,
     };
-    let guardrail = harm.is_some();
     let sign = match harm {
         Some(Harm::Fall) => 1.0,
         Some(Harm::Rise) => -1.0,
@@ -205,97 +200,27 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
     let design = flag_design(
         metric,
         given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
-        guardrail,
+        harm.is_some(),
         &a.test,
     );
-    let method = design.method;
-    let as_error = |error| Error::Design {
-        error,
-        effect: design.effect,
+    let query = DetectQuery {
+        design,
+        effect_given: given.is_some(),
+        harm,
+        control,
+        looks: a.interim.looks(),
+        traffic: match (a.daily, a.days) {
+            (Some(daily), Some(days)) => Some((
+                Traffic {
+                    daily,
+                    share: a.share,
+                },
+                days,
+            )),
+            _ => None,
+        },
     };
-    // With looks the sample is the maximum: the effect is a single read's
-    // at the sample over the inflation, and the power for a given effect
-    // is the sequential design's at the sample's share of its maximum.
-    let sequential = match a.interim.looks {
-        Some(k) => Some(
-            sequential::solve_plan(&sequential::Plan {
-                looks: k,
-                boundary: a.interim.boundary.into(),
-                alpha: design.comparison_alpha(),
-                power: design.power,
-                sides: design.sides,
-            })
-            .map_err(as_error)?,
-        ),
-        None => None,
-    };
-    let inflation = sequential.as_ref().map_or(1.0, |s| s.inflation);
-    let single = n / inflation;
-    let (mde_abs, power) = match (given, guardrail) {
-        (Some(_), false) => {
-            design.validate().map_err(as_error)?;
-            let power = match &sequential {
-                Some(s) => {
-                    let fixed = sizing::sample_size(&design).map_err(as_error)?;
-                    s.power_at(n / (fixed.control_exact * inflation), design.sides)
-                }
-                None => sizing::achieved_power(&design, n).map_err(as_error)?,
-            };
-            (design.treatment_value() - base, power)
-        }
-        (Some(_), true) => {
-            let power = match &sequential {
-                Some(s) => {
-                    let fixed = noninferiority::size(&design).map_err(as_error)?;
-                    s.power_at(n / (fixed.control_exact * inflation), Sides::One)
-                }
-                None => noninferiority::power(&design, n).map_err(as_error)?,
-            };
-            (noninferiority::null_value(&design) - base, power)
-        }
-        (None, false) => {
-            let e = sizing::minimum_detectable_effect(&design, single).map_err(as_error)?;
-            (e, design.power)
-        }
-        (None, true) => {
-            // In the design's kind (absolute), with the harm's sign.
-            let m = noninferiority::smallest_margin(&design, single).map_err(as_error)?;
-            (-m, design.power)
-        }
-    };
-    let report = DetectReport {
-        metric,
-        mde: (base != 0.0).then(|| mde_abs / base.abs()),
-        mde_abs,
-        treatment_value: base + mde_abs,
-        power,
-        control: n,
-        treatment: n * a.test.ratio,
-        method,
-        alpha: a.test.alpha,
-        comparison_alpha: design.comparison_alpha(),
-        sides: design.sides,
-        arms: a.test.arms,
-        ratio: a.test.ratio,
-        correction: design.correction,
-        rho: a.test.rho,
-        daily: a.daily,
-        share: a.daily.map(|_| a.share),
-        days: a.days,
-        looks: sequential.as_ref().map(|s| DetectLooks {
-            looks: a.interim.looks.unwrap_or(1),
-            boundary: a.interim.boundary.into(),
-            inflation: s.inflation,
-            single_read_control: single,
-        }),
-        guardrail: harm.map(|harm| GuardrailReport {
-            harm,
-            margin: (base != 0.0).then(|| -mde_abs / base.abs()),
-            margin_abs: -mde_abs,
-            null_value: base + mde_abs,
-        }),
-        power_given: given.is_some(),
-    };
+    let report = DetectReport::of(&query).map_err(|e| Error::from_report(e, design.effect))?;
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
         TextOrJson::Text => Ok(crate::render::reports::detect::text(&report).into_bytes()),

@@ -11,6 +11,7 @@ use crate::portfolio::LoadError;
 use crate::render::RenderError;
 use crate::replan::ReplanError;
 use crate::schedule::Backend;
+use crate::sizing::report::ReportError;
 use crate::sizing::{Effect, SizingError};
 use chrono::NaiveDate;
 use std::fmt;
@@ -85,6 +86,15 @@ pub(crate) enum Error {
 }
 
 impl Error {
+    /// The failure of a `size` or `detect` report of a design with `effect`.
+    pub(crate) fn from_report(e: ReportError, effect: Effect) -> Error {
+        match e {
+            ReportError::Design(error) => Error::Design { error, effect },
+            ReportError::Power(error) => Error::Power { error },
+            ReportError::Duration(error) => Error::Duration { error },
+        }
+    }
+
     /// The exit code this failure ends the process with.
     pub(crate) fn exit_code(&self) -> u8 {
         match self {

@@ -2,9 +2,9 @@
 
 use super::{Error, TextOrJson};
 use crate::sizing::noninferiority;
-use crate::sizing::report::{LooksReport, SizeReport};
-use crate::sizing::sequential::{self, Boundary};
-use crate::sizing::{self, Correction, Design, Effect, Method, Metric, Sides};
+use crate::sizing::report::{SizeQuery, SizeReport, Traffic};
+use crate::sizing::sequential::Boundary;
+use crate::sizing::{Correction, Design, Effect, Method, Metric, Sides};
 use clap::{Args, ValueEnum};
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
@@ -200,6 +200,13 @@ pub struct LooksArgs {
     pub boundary: BoundaryArg,
 }
 
+impl LooksArgs {
+    /// The looks asked for, with their boundary.
+    pub fn looks(&self) -> Option<(u32, Boundary)> {
+        self.looks.map(|k| (k, self.boundary.into()))
+    }
+}
+
 /// The metric flags `size` and `detect` share.
 #[derive(Args, Debug)]
 pub struct MetricArgs {
@@ -312,103 +319,18 @@ pub(super) fn flag_design(metric: Metric, effect: Effect, guardrail: bool, t: &T
 /// `sluice size`.
 pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
     let design = design_from_args(a)?;
-    let guardrail = is_guardrail(a);
-    let as_design_error = |error| Error::Design {
-        error,
-        effect: design.effect,
-    };
-    let fixed = if guardrail {
-        noninferiority::size(&design)
-    } else {
-        sizing::sample_size(&design)
-    }
-    .map_err(as_design_error)?;
-    let (n, looks, achieved) = match a.interim.looks {
-        None => {
-            let achieved = if guardrail {
-                noninferiority::power(&design, fixed.control as f64)
-            } else {
-                sizing::achieved_power(&design, fixed.control as f64)
-            }
-            .map_err(|error| Error::Power { error })?;
-            (fixed, None, achieved)
-        }
-        Some(k) => {
-            let plan = sequential::Plan {
-                looks: k,
-                boundary: a.interim.boundary.into(),
-                alpha: design.comparison_alpha(),
-                power: design.power,
-                sides: design.sides,
-            };
-            let s = sequential::solve_plan(&plan).map_err(as_design_error)?;
-            let n =
-                sequential::inflate(&fixed, design.ratio, s.inflation).map_err(as_design_error)?;
-            let achieved = s.power_at(n.control as f64 / n.control_exact, design.sides);
-            let looks = LooksReport {
-                looks: k,
-                boundary: plan.boundary,
-                fixed_control_exact: fixed.control_exact,
-                inflation: s.inflation,
-                expected_control_exact_h1: n.control_exact * s.expected_fraction_h1,
-                expected_control_exact_h0: n.control_exact * s.expected_fraction_h0,
-                information: s.information,
-                boundaries: s.boundaries,
-                alpha_spent: s.alpha_spent,
-                stop_probabilities: s.stop_probabilities,
-            };
-            (n, Some(looks), achieved)
-        }
-    };
-    let days = match a.daily {
-        Some(daily) => Some(
-            sizing::days_needed(n.total, daily, a.share, a.min_days, !a.no_whole_weeks)
-                .map_err(|error| Error::Duration { error })?,
-        ),
-        None => None,
-    };
-    let (effect, treatment_value, margin, null_value) = if guardrail {
-        let zero = match design.effect {
-            Effect::Relative(_) => Effect::Relative(0.0),
-            Effect::Absolute(_) => Effect::Absolute(0.0),
-        };
-        let base = match design.metric {
-            Metric::Rate { baseline } => baseline,
-            Metric::Mean { mean, .. } => mean,
-        };
-        let null = noninferiority::null_value(&design);
-        (zero, base, Some(design.effect), Some(null))
-    } else {
-        (design.effect, design.treatment_value(), None, None)
-    };
-    let report = SizeReport {
-        metric: design.metric,
-        effect,
-        treatment_value,
-        method: design.method,
-        alpha: design.alpha,
-        comparison_alpha: n.comparison_alpha,
-        power: design.power,
-        sides: design.sides,
-        arms: design.arms,
-        ratio: design.ratio,
-        correction: design.correction,
-        rho: design.rho,
-        control: n.control,
-        treatment: n.treatment,
-        control_exact: n.control_exact,
-        treatment_exact: n.treatment_exact,
-        total: n.total,
-        achieved_power: achieved,
-        margin,
-        null_value,
-        looks,
-        daily: a.daily,
-        share: a.daily.map(|_| a.share),
-        days,
+    let query = SizeQuery {
+        design,
+        guardrail: is_guardrail(a),
+        looks: a.interim.looks(),
+        traffic: a.daily.map(|daily| Traffic {
+            daily,
+            share: a.share,
+        }),
         min_days: a.min_days,
         whole_weeks: !a.no_whole_weeks,
     };
+    let report = SizeReport::of(&query).map_err(|e| Error::from_report(e, design.effect))?;
     match a.format {
         TextOrJson::Json => super::json_bytes(&report),
         TextOrJson::Text => Ok(crate::render::reports::size::text(&report).into_bytes()),

@@ -23,18 +23,10 @@ use crate::share::Share;
 use crate::sizing::{self, Design, Effect, Metric};
 use chrono::{Duration, NaiveDate};
 
-/// The baseline of a design's metric.
-fn baseline(d: &Design) -> f64 {
-    match d.metric {
-        Metric::Rate { baseline } => baseline,
-        Metric::Mean { mean, .. } => mean,
-    }
-}
-
 /// An effect in the design's kind as (relative, absolute); the relative
 /// one is `None` for a zero baseline.
 fn both(d: &Design, effect: f64) -> (Option<f64>, f64) {
-    let base = baseline(d);
+    let base = d.metric.control_value();
     let relative = |abs: f64| (base != 0.0).then(|| abs / base);
     let tidy = crate::words::tidy;
     match d.effect {
@@ -80,7 +72,7 @@ pub fn statistics(ex: &Experiment) -> TestStatistics {
             Metric::Rate { .. } => "rate".into(),
             Metric::Mean { .. } => "mean".into(),
         },
-        baseline: baseline(d),
+        baseline: d.metric.control_value(),
         sd: match d.metric {
             Metric::Rate { .. } => None,
             Metric::Mean { sd, .. } => Some(sd),

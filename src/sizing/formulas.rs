@@ -63,16 +63,9 @@ fn normal_form(d: &Design) -> NormalForm {
             NormalForm {
                 a: s,
                 b: s,
-                delta: d.treatment_value() - mean_of(d),
+                delta: d.treatment_value() - d.metric.control_value(),
             }
         }
-    }
-}
-
-fn mean_of(d: &Design) -> f64 {
-    match d.metric {
-        Metric::Mean { mean, .. } => mean,
-        Metric::Rate { baseline } => baseline,
     }
 }
 
@@ -260,7 +253,7 @@ fn t_power(d: &Design, n_control: f64) -> f64 {
     if df < 1.0 {
         return 0.0;
     }
-    let delta = (d.treatment_value() - mean_of(d)).abs();
+    let delta = (d.treatment_value() - d.metric.control_value()).abs();
     let ncp = delta / (sd * (1.0 / n1 + 1.0 / n2).sqrt());
     let sides = f64::from(d.sides.count());
     let crit = t_upper(d.comparison_alpha() / sides, df);
@@ -301,7 +294,7 @@ fn z_power(d: &Design, n_control: f64) -> f64 {
     let sd = sd * (1.0 - d.rho * d.rho).sqrt();
     let n1 = n_control;
     let n2 = n_control * d.ratio;
-    let delta = (d.treatment_value() - mean_of(d)).abs();
+    let delta = (d.treatment_value() - d.metric.control_value()).abs();
     let ncp = delta / (sd * (1.0 / n1 + 1.0 / n2).sqrt());
     let za = z_alpha(d);
     let near = std_normal().cdf(ncp - za);

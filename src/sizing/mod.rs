@@ -69,6 +69,16 @@ pub enum Metric {
     },
 }
 
+impl Metric {
+    /// The control's rate or mean: what an effect is relative to.
+    pub fn control_value(&self) -> f64 {
+        match *self {
+            Metric::Rate { baseline } => baseline,
+            Metric::Mean { mean, .. } => mean,
+        }
+    }
+}
+
 /// The minimum detectable effect: the smallest true change worth finding.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 #[serde(tag = "kind", content = "value", rename_all = "lowercase")]
@@ -256,10 +266,7 @@ impl Design {
 
     /// The treatment arm's metric value (rate or mean) implied by the effect.
     pub fn treatment_value(&self) -> f64 {
-        let base = match self.metric {
-            Metric::Rate { baseline } => baseline,
-            Metric::Mean { mean, .. } => mean,
-        };
+        let base = self.metric.control_value();
         match self.effect {
             Effect::Relative(r) => base * (1.0 + r),
             Effect::Absolute(d) => base + d,

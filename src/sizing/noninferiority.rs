@@ -61,11 +61,7 @@ fn margin_abs(d: &Design) -> f64 {
 /// The value of the control's metric moved by the harm the margin allows:
 /// the treatment's rate or mean under H0.
 pub fn null_value(d: &Design) -> f64 {
-    let base = match d.metric {
-        Metric::Rate { baseline } => baseline,
-        Metric::Mean { mean, .. } => mean,
-    };
-    base - margin_abs(d)
+    d.metric.control_value() - margin_abs(d)
 }
 
 /// The one-sided superiority design with the same size as the
