@@ -408,18 +408,7 @@ mod tests {
     use super::*;
 
     fn design(effect: Effect) -> Design {
-        Design {
-            metric: Metric::Rate { baseline: 0.04 },
-            effect,
-            alpha: 0.05,
-            power: 0.8,
-            sides: Sides::Two,
-            arms: 2,
-            ratio: 1.0,
-            method: Method::Pooled,
-            correction: Correction::Bonferroni,
-            rho: 0.0,
-        }
+        Design::new(Metric::Rate { baseline: 0.04 }, effect)
     }
 
     /// `detect` is the inverse of `size`: at the sample `size` gives, the
