@@ -2,15 +2,18 @@
 //! power it has for a given effect. The inverse of `sluice size`, from the
 //! same formulas (see `sizing`).
 
-use super::size::{early_reading, flag_design, LooksArgs, MetricArgs, TestArgs};
+use super::size::{
+    early_reading, flag_design, EffectArgs, LooksArgs, MetricArgs, TestArgs, TrafficArgs,
+};
 use super::{Error, TextOrJson};
-use crate::sizing::report::{DetectQuery, DetectReport, Harm, Traffic};
+use crate::sizing::report::{DetectQuery, DetectReport, Harm};
 use crate::sizing::{self, Effect, Metric};
 use clap::{ArgGroup, Args};
 
 #[derive(Args, Debug)]
 #[command(allow_negative_numbers = true)]
 #[command(group(ArgGroup::new("sample").required(true).args(["n", "daily"])))]
+#[command(group(ArgGroup::new("arrivals").args(["daily"]).requires("days")))]
 #[command(after_help = concat!("Examples:\n  \
     sluice detect --baseline 0.04 --n 20000\n  \
     sluice detect --baseline 0.04 --n 20000 --mde 0.1\n  \
@@ -40,44 +43,19 @@ pub struct DetectArgs {
         help_heading = "Sample"
     )]
     pub n: Option<f64>,
-    /// Eligible units per day
-    #[arg(long, value_name = "D", requires = "days", help_heading = "Sample")]
-    pub daily: Option<f64>,
-    /// Share of the daily units that enter the test
-    #[arg(
-        long,
-        value_name = "S",
-        default_value_t = 1.0,
-        requires = "daily",
-        help_heading = "Sample"
-    )]
-    pub share: f64,
+    #[command(flatten)]
+    pub traffic: TrafficArgs,
     /// Days the test runs
-    #[arg(long, value_name = "T", requires = "daily", help_heading = "Sample")]
+    #[arg(long, value_name = "T", requires = "daily", help_heading = "Traffic")]
     pub days: Option<f64>,
 
-    /// The effect to find the power for, as a relative lift (needs --n or --daily)
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with_all = ["mde_abs", "decrease"],
-        help_heading = "Effect"
-    )]
-    pub mde: Option<f64>,
-    /// The effect to find the power for, as an absolute difference
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with = "decrease",
-        help_heading = "Effect"
-    )]
-    pub mde_abs: Option<f64>,
+    // The effect to find the power for (--mde, --mde-abs), or the
+    // guardrail's margin to find it for (--margin, --margin-abs).
+    #[command(flatten)]
+    pub effect: EffectArgs,
     /// Find the smallest detectable fall instead of rise
-    #[arg(long, help_heading = "Effect")]
+    #[arg(long, conflicts_with_all = ["mde", "mde_abs", "margin", "margin_abs"], help_heading = "Effect")]
     pub decrease: bool,
-
     /// Guardrail: the smallest harm the sample rules out (a fall unless `rise`)
     #[arg(
         long,
@@ -89,25 +67,6 @@ pub struct DetectArgs {
         help_heading = "Guardrail"
     )]
     pub guardrail: Option<Harm>,
-    /// Guardrail: the power to rule out this harm, relative (0.02 = a 2% fall;
-    /// negative when a rise is the harm)
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with_all = ["mde", "mde_abs", "decrease", "margin_abs"],
-        help_heading = "Guardrail"
-    )]
-    pub margin: Option<f64>,
-    /// Guardrail: the power to rule out this harm, as an absolute difference
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with_all = ["mde", "mde_abs", "decrease"],
-        help_heading = "Guardrail"
-    )]
-    pub margin_abs: Option<f64>,
 
     /// With --looks the sample is the design's maximum.
     #[command(flatten)]
@@ -140,14 +99,14 @@ fn control_units(a: &DetectArgs) -> Result<f64, Error> {
             Err(bad("n", n, "> 0 units in the control arm"))
         };
     }
-    let (Some(daily), Some(days)) = (a.daily, a.days) else {
+    let (Some(daily), Some(days)) = (a.traffic.daily, a.days) else {
         return Err(bad("n", f64::NAN, "given, or --daily with --days"));
     };
     if !(daily > 0.0 && daily.is_finite()) {
         return Err(bad("daily", daily, "> 0 units per day"));
     }
-    if !(a.share > 0.0 && a.share <= 1.0) {
-        return Err(bad("share", a.share, "in (0, 1]"));
+    if !(a.traffic.share > 0.0 && a.traffic.share <= 1.0) {
+        return Err(bad("share", a.traffic.share, "in (0, 1]"));
     }
     if !(days > 0.0 && days.is_finite()) {
         return Err(bad("days", days, "> 0"));
@@ -157,7 +116,7 @@ fn control_units(a: &DetectArgs) -> Result<f64, Error> {
         return Ok(1.0);
     }
     let per_control = 1.0 + f64::from(a.test.arms - 1) * a.test.ratio;
-    let n = (daily * a.share * days / per_control).floor();
+    let n = (daily * a.traffic.share * days / per_control).floor();
     if n < 1.0 {
         return Err(bad(
             "days",
@@ -177,7 +136,7 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
     };
     let base = metric.control_value();
     let control = control_units(a)?;
-    let harm = match (a.guardrail, a.margin.or(a.margin_abs)) {
+    let harm = match (a.guardrail, a.effect.margin()) {
         (Some(h), _) => Some(h),
         (None, Some(m)) if m < 0.0 => Some(Harm::Rise),
         (None, Some(_)) => Some(Harm::Fall),
@@ -190,13 +149,8 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         None => 1.0,
     };
     // Solving for the effect, the design carries only its direction; an
-    // absolute effect keeps a mean of zero meaningful. A guardrail's
-    // effect is its margin (see sizing::noninferiority).
-    let given = match (a.mde, a.mde_abs, a.margin, a.margin_abs) {
-        (Some(x), ..) | (_, _, Some(x), _) => Some(Effect::Relative(x)),
-        (_, Some(x), ..) | (.., Some(x)) => Some(Effect::Absolute(x)),
-        _ => None,
-    };
+    // absolute effect keeps a mean of zero meaningful.
+    let given = a.effect.given();
     let design = flag_design(
         metric,
         given.unwrap_or(Effect::Absolute(sign * 1e-9 * base.abs().max(1e-9))),
@@ -209,16 +163,7 @@ pub fn run(a: &DetectArgs) -> Result<Vec<u8>, Error> {
         harm,
         control,
         looks: a.interim.looks(),
-        traffic: match (a.daily, a.days) {
-            (Some(daily), Some(days)) => Some((
-                Traffic {
-                    daily,
-                    share: a.share,
-                },
-                days,
-            )),
-            _ => None,
-        },
+        traffic: a.traffic.traffic().zip(a.days),
     };
     let report = DetectReport::of(&query).map_err(|e| Error::from_report(e, design.effect))?;
     match a.format {

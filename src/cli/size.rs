@@ -111,42 +111,8 @@ pub struct SizeArgs {
     #[command(flatten)]
     pub metric: MetricArgs,
 
-    /// Minimum detectable effect as a relative lift: 0.05 = 5% above baseline
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with = "mde_abs",
-        help_heading = "Effect"
-    )]
-    pub mde: Option<f64>,
-    /// Minimum detectable effect as an absolute difference (0.005 = half a point)
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        help_heading = "Effect"
-    )]
-    pub mde_abs: Option<f64>,
-    /// Guardrail: the largest acceptable harm, relative (0.02 = a 2% fall);
-    /// sizes a one-sided non-inferiority test instead
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with_all = ["mde", "mde_abs", "margin_abs"],
-        help_heading = "Effect"
-    )]
-    pub margin: Option<f64>,
-    /// Guardrail: the largest acceptable harm as an absolute difference
-    #[arg(
-        long,
-        value_name = "X",
-        allow_hyphen_values = true,
-        conflicts_with_all = ["mde", "mde_abs"],
-        help_heading = "Effect"
-    )]
-    pub margin_abs: Option<f64>,
+    #[command(flatten)]
+    pub effect: EffectArgs,
 
     #[command(flatten)]
     pub test: TestArgs,
@@ -154,18 +120,8 @@ pub struct SizeArgs {
     #[command(flatten)]
     pub interim: LooksArgs,
 
-    /// Eligible units per day, to compute the days the test needs
-    #[arg(long, value_name = "N", help_heading = "Duration")]
-    pub daily: Option<f64>,
-    /// Share of the daily units that enter the test
-    #[arg(
-        long,
-        value_name = "S",
-        default_value_t = 1.0,
-        requires = "daily",
-        help_heading = "Duration"
-    )]
-    pub share: f64,
+    #[command(flatten)]
+    pub traffic: TrafficArgs,
     /// Shortest run in days
     #[arg(
         long,
@@ -204,6 +160,84 @@ impl LooksArgs {
     /// The looks asked for, with their boundary.
     pub fn looks(&self) -> Option<(u32, Boundary)> {
         self.looks.map(|k| (k, self.boundary.into()))
+    }
+}
+
+/// The effect flags `size` and `detect` share: the effect to plan for or
+/// find the power for, or a guardrail's margin. At most one is given.
+#[derive(Args, Debug)]
+pub struct EffectArgs {
+    /// The effect as a relative lift: 0.05 = 5% above the baseline
+    #[arg(
+        long,
+        value_name = "X",
+        conflicts_with_all = ["mde_abs", "margin", "margin_abs"],
+        help_heading = "Effect"
+    )]
+    pub mde: Option<f64>,
+    /// The effect as an absolute difference (0.005 = half a point)
+    #[arg(long, value_name = "X", help_heading = "Effect")]
+    pub mde_abs: Option<f64>,
+    /// Guardrail: the largest acceptable harm, relative (0.02 = a 2% fall;
+    /// negative when a rise is the harm)
+    #[arg(
+        long,
+        value_name = "X",
+        conflicts_with_all = ["mde_abs", "margin_abs"],
+        help_heading = "Guardrail"
+    )]
+    pub margin: Option<f64>,
+    /// Guardrail: the largest acceptable harm as an absolute difference
+    #[arg(
+        long,
+        value_name = "X",
+        conflicts_with = "mde_abs",
+        help_heading = "Guardrail"
+    )]
+    pub margin_abs: Option<f64>,
+}
+
+impl EffectArgs {
+    /// The effect given, if any; a guardrail's is its margin (see
+    /// `sizing::noninferiority`).
+    pub fn given(&self) -> Option<Effect> {
+        match (self.mde, self.mde_abs, self.margin, self.margin_abs) {
+            (Some(x), ..) | (_, _, Some(x), _) => Some(Effect::Relative(x)),
+            (_, Some(x), ..) | (.., Some(x)) => Some(Effect::Absolute(x)),
+            _ => None,
+        }
+    }
+
+    /// The guardrail's margin, if one is given, in either kind.
+    pub fn margin(&self) -> Option<f64> {
+        self.margin.or(self.margin_abs)
+    }
+}
+
+/// The traffic flags `size` and `detect` share.
+#[derive(Args, Debug)]
+pub struct TrafficArgs {
+    /// Eligible units per day
+    #[arg(long, value_name = "D", help_heading = "Traffic")]
+    pub daily: Option<f64>,
+    /// Share of the daily units that enter the test
+    #[arg(
+        long,
+        value_name = "S",
+        default_value_t = 1.0,
+        requires = "daily",
+        help_heading = "Traffic"
+    )]
+    pub share: f64,
+}
+
+impl TrafficArgs {
+    /// The traffic, when `--daily` is given.
+    pub fn traffic(&self) -> Option<Traffic> {
+        self.daily.map(|daily| Traffic {
+            daily,
+            share: self.share,
+        })
     }
 }
 
@@ -260,24 +294,14 @@ pub struct TestArgs {
     pub rho: f64,
 }
 
-/// Whether the flags size a guardrail (non-inferiority) test.
-fn is_guardrail(a: &SizeArgs) -> bool {
-    a.margin.is_some() || a.margin_abs.is_some()
-}
-
 fn design_from_args(a: &SizeArgs) -> Result<Design, Error> {
     let metric = match (a.metric.baseline, a.metric.mean, a.metric.sd) {
         (Some(p), None, None) => Metric::Rate { baseline: p },
         (None, Some(mean), Some(sd)) => Metric::Mean { mean, sd },
         _ => return Err(Error::SizeMetric),
     };
-    // A guardrail's `effect` is its margin (see sizing::noninferiority).
-    let effect = match (a.mde, a.mde_abs, a.margin, a.margin_abs) {
-        (Some(x), None, None, None) | (None, None, Some(x), None) => Effect::Relative(x),
-        (None, Some(x), None, None) | (None, None, None, Some(x)) => Effect::Absolute(x),
-        _ => return Err(Error::SizeEffect),
-    };
-    let guardrail = is_guardrail(a);
+    let effect = a.effect.given().ok_or(Error::SizeEffect)?;
+    let guardrail = a.effect.margin().is_some();
     let design = flag_design(metric, effect, guardrail, &a.test);
     let checked = if guardrail {
         noninferiority::equivalent(&design).map(|_| ())
@@ -321,12 +345,9 @@ pub fn run(a: &SizeArgs) -> Result<Vec<u8>, Error> {
     let design = design_from_args(a)?;
     let query = SizeQuery {
         design,
-        guardrail: is_guardrail(a),
+        guardrail: a.effect.margin().is_some(),
         looks: a.interim.looks(),
-        traffic: a.daily.map(|daily| Traffic {
-            daily,
-            share: a.share,
-        }),
+        traffic: a.traffic.traffic(),
         min_days: a.min_days,
         whole_weeks: !a.no_whole_weeks,
     };
