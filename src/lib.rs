@@ -34,6 +34,7 @@ pub mod advice;
 pub mod board;
 pub mod check;
 pub(crate) mod cli;
+pub(crate) mod csv_file;
 pub mod day;
 pub mod diagnostic;
 pub mod diff;

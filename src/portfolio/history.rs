@@ -2,18 +2,16 @@
 //! and one row per day, ISO dates ascending without gaps or repeats,
 //! units a number >= 0. Every problem is reported at its line and column
 //! in the CSV file, like the portfolio's own (all of them at once, up to
-//! [`MAX_PROBLEMS`]).
+//! [`MAX_PROBLEMS`](crate::csv_file::MAX_PROBLEMS)).
 
 use super::checker::Checker;
 use super::model::{event_days, Event, History};
 use super::raw::{RawEvent, Text};
+use crate::csv_file::{read_rows, Layout};
 use crate::diagnostic::Diagnostic;
 use crate::fit;
 use chrono::{Duration, NaiveDate};
 use std::path::{Path, PathBuf};
-
-/// Problems reported from one history file before the rest are left out.
-pub const MAX_PROBLEMS: usize = 20;
 
 /// A history file read: its first day and units per day.
 #[derive(Debug, Clone, PartialEq)]
@@ -54,166 +52,62 @@ pub(crate) fn read(path: &Path) -> Result<Daily, HistoryError> {
 
 /// Parses history text; `name` is the file in messages.
 pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
-    let body = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let lines: Vec<&str> = body.lines().collect();
-    let mut problems: Vec<Diagnostic> = Vec::new();
-    // A problem at `line` (1-based), in field `field` (0 date, 1 units).
-    let at = |line: usize, field: usize, key: &str, message: String, hint: &str| {
-        let source = lines.get(line - 1).copied().unwrap_or("");
-        Diagnostic {
-            key: key.to_string(),
-            ..csv_problem(name, source, line, field, message, hint)
-        }
+    let layout = Layout {
+        kind: "history",
+        columns: &["date", "units"],
+        row_of: "day",
+        example: "2026-06-01,18250",
     };
-    let mut reader = csv_reader(body);
-    let mut records = reader.records();
-    let header_hint = "the first line names the columns: `date,units`";
-    match records.next() {
-        None => {
-            return Err(HistoryError::Rows(vec![Diagnostic::new(
-                name,
-                "",
-                "the history file is empty",
-            )
-            .with_hint(format!(
-                "{header_hint}, then one row per day such as `2026-06-01,18250`"
-            ))]))
-        }
-        Some(Ok(h)) => {
-            let names: Vec<String> = h.iter().map(str::to_lowercase).collect();
-            if names != ["date", "units"] {
-                problems.push(at(
-                    1,
-                    0,
-                    "",
-                    format!("the header is `{}`, not `date,units`", lines[0].trim()),
-                    header_hint,
-                ));
-            }
-        }
-        Some(Err(e)) => problems.push(at(
-            1,
-            0,
-            "",
-            format!("cannot read the header: {e}"),
-            header_hint,
-        )),
-    }
     let mut start: Option<NaiveDate> = None;
     let mut units = Vec::new();
     // The last good date and its line.
     let mut last: Option<(NaiveDate, usize)> = None;
-    for record in records {
-        if problems.len() >= MAX_PROBLEMS {
-            break;
-        }
-        let r = match record {
-            Ok(r) => r,
-            Err(e) => {
-                let line = e.position().map_or(lines.len(), |p| p.line() as usize);
-                problems.push(at(
-                    line,
-                    0,
-                    "",
-                    format!("cannot read the row: {e}"),
-                    "write `date,units`",
-                ));
-                continue;
-            }
-        };
-        let line = r.position().map_or(0, |p| p.line() as usize);
-        if r.iter().all(str::is_empty) {
-            continue;
-        }
-        if r.len() != 2 {
-            problems.push(at(
-                line,
-                0,
-                "",
-                format!("the row has {} fields; it needs 2 (`date,units`)", r.len()),
-                "one date and one number per line; write numbers without thousands separators",
-            ));
-            continue;
-        }
-        let date = match NaiveDate::parse_from_str(&r[0], "%Y-%m-%d") {
+    let problems = read_rows(text, name, &layout, |line, r, problems| {
+        let date = match NaiveDate::parse_from_str(r[0], "%Y-%m-%d") {
             Ok(d) => Some(d),
             Err(_) => {
-                problems.push(at(
+                problems.push(
                     line,
                     0,
                     "date",
-                    format!("`{}` is not a date", &r[0]),
+                    format!("`{}` is not a date", r[0]),
                     "write dates as YYYY-MM-DD, e.g. 2026-06-01",
-                ));
+                );
                 None
             }
         };
         let value = match r[1].parse::<f64>() {
             Ok(u) if (0.0..1e12).contains(&u) => Some(u),
             _ => {
-                problems.push(at(
+                problems.push(
                     line,
                     1,
                     "units",
-                    format!("units `{}` is not a number >= 0", &r[1]),
+                    format!("units `{}` is not a number >= 0", r[1]),
                     "the eligible units of that day, e.g. 18250; write 0 for a day without traffic",
-                ));
+                );
                 None
             }
         };
         let Some(date) = date else {
             // The next date is not compared with one before the bad one.
             last = None;
-            continue;
+            return;
         };
         if let Some((prev, prev_line)) = last {
-            let step = (date - prev).num_days();
-            if step == 0 {
-                problems.push(at(
-                    line,
-                    0,
-                    "date",
-                    format!("{date} appears twice (first on line {prev_line})"),
-                    "give one row per day; add the two rows up if both hold part of the day",
-                ));
-                continue;
-            }
-            if step < 0 {
-                problems.push(at(
-                    line,
-                    0,
-                    "date",
-                    format!("{date} comes after {prev} (line {prev_line}); dates must ascend"),
-                    "sort the rows by date",
-                ));
-                continue;
-            }
-            if step > 1 {
-                let first = prev + Duration::days(1);
-                let gap = if step == 2 {
-                    format!("{first} is missing")
-                } else {
-                    format!(
-                        "{} days are missing ({first} to {})",
-                        step - 1,
-                        date - Duration::days(1)
-                    )
-                };
-                problems.push(at(
-                    line,
-                    0,
-                    "date",
-                    format!("a gap after {prev} (line {prev_line}): {gap}"),
-                    "give one row per day; write 0 for a day without traffic",
-                ));
+            if let Some((message, hint)) = out_of_step(prev, prev_line, date) {
+                problems.push(line, 0, "date", message, hint);
+                if date <= prev {
+                    return;
+                }
             }
         }
         last = Some((date, line));
         start.get_or_insert(date);
         units.push(value.unwrap_or(0.0));
-    }
+    });
     if !problems.is_empty() {
-        return Err(HistoryError::Rows(problems));
+        return Err(HistoryError::Rows(problems.into_vec()));
     }
     match start {
         Some(start) => Ok(Daily { start, units }),
@@ -223,8 +117,47 @@ pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
             "the history file has a header but no rows",
         )
         .with_hint("add one row per day such as `2026-06-01,18250`")
-        .at_line(lines.first().copied(), 1, 1, 1)])),
+        .at_line(problems.first_line(), 1, 1, 1)])),
     }
+}
+
+/// What is wrong with `date` following `prev` (on line `prev_line`): a
+/// repeat, a step back or a gap, with its hint.
+fn out_of_step(
+    prev: NaiveDate,
+    prev_line: usize,
+    date: NaiveDate,
+) -> Option<(String, &'static str)> {
+    let step = (date - prev).num_days();
+    if step == 0 {
+        return Some((
+            format!("{date} appears twice (first on line {prev_line})"),
+            "give one row per day; add the two rows up if both hold part of the day",
+        ));
+    }
+    if step < 0 {
+        return Some((
+            format!("{date} comes after {prev} (line {prev_line}); dates must ascend"),
+            "sort the rows by date",
+        ));
+    }
+    if step == 1 {
+        return None;
+    }
+    let first = prev + Duration::days(1);
+    let gap = if step == 2 {
+        format!("{first} is missing")
+    } else {
+        format!(
+            "{} days are missing ({first} to {})",
+            step - 1,
+            date - Duration::days(1)
+        )
+    };
+    Some((
+        format!("a gap after {prev} (line {prev_line}): {gap}"),
+        "give one row per day; write 0 for a day without traffic",
+    ))
 }
 
 /// A pool's `history` and `trend` keys (`key` is `pools[i]`): the file read
@@ -356,47 +289,6 @@ pub(crate) fn checked_events(
         }
     }
     (ck.errors.len() == before).then_some(out)
-}
-
-/// A reader of a CSV body as sluice's CSV files are read: the header row
-/// checked by hand, any number of fields (counted by hand), fields
-/// trimmed.
-pub(crate) fn csv_reader(body: &str) -> csv::Reader<&[u8]> {
-    csv::ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .trim(csv::Trim::All)
-        .from_reader(body.as_bytes())
-}
-
-/// A problem in CSV file `name` at `line` (1-based, whose text is
-/// `source`), under comma-separated field `field`.
-pub(crate) fn csv_problem(
-    name: &str,
-    source: &str,
-    line: usize,
-    field: usize,
-    message: String,
-    hint: &str,
-) -> Diagnostic {
-    let (column, width) = field_span(source, field);
-    Diagnostic::new(name, "", message)
-        .with_hint(hint)
-        .at_line(Some(source), line, column, width)
-}
-
-/// The 1-based column and width of comma-separated field `field` in `line`.
-pub(crate) fn field_span(line: &str, field: usize) -> (usize, usize) {
-    let mut column = 1;
-    for (i, part) in line.split(',').enumerate() {
-        let lead = part.chars().take_while(|c| c.is_whitespace()).count();
-        let width = part.trim().chars().count();
-        if i == field {
-            return (column + lead, width.max(1));
-        }
-        column += part.chars().count() + 1;
-    }
-    (column, 1)
 }
 
 #[cfg(test)]

@@ -7,17 +7,14 @@
 //! An unknown experiment, an arm outside its design, a date on or after
 //! `as_of`, a repeated `(date, experiment, arm)` or a bad value is an error
 //! at its line and column in the CSV file, like a history's (at most
-//! [`MAX_PROBLEMS`] of them). Read as bytes with the `csv` crate, so a
+//! [`MAX_PROBLEMS`](crate::csv_file::MAX_PROBLEMS) of them). Read as bytes with the `csv` crate, so a
 //! million rows take well under a second.
 
+use crate::csv_file::{read_rows, Layout};
 use crate::diagnostic::Diagnostic;
-use crate::portfolio::history::{csv_problem, csv_reader};
 use crate::portfolio::Portfolio;
 use chrono::NaiveDate;
 use std::collections::{HashMap, HashSet};
-
-/// Problems reported from one counts file before the rest are left out.
-pub const MAX_PROBLEMS: usize = 20;
 
 /// One test's counts from the file.
 #[derive(Debug, Clone, PartialEq)]
@@ -41,92 +38,42 @@ pub fn parse(
     portfolio: &Portfolio,
     as_of: NaiveDate,
 ) -> Result<Counts, Vec<Diagnostic>> {
-    let body = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let line_text = |line: usize| body.lines().nth(line - 1).unwrap_or("").to_string();
-    let at = |line: usize, field: usize, message: String, hint: &str| {
-        csv_problem(name, &line_text(line), line, field, message, hint)
-    };
     let ids: HashMap<&str, usize> = portfolio
         .experiments
         .iter()
         .enumerate()
         .map(|(i, e)| (e.id.as_str(), i))
         .collect();
-    let mut reader = csv_reader(body);
-    let mut records = reader.byte_records();
-    let header_hint = "the first line names the columns: `date,experiment,arm,units`";
-    let mut problems = Vec::new();
-    match records.next() {
-        None => {
-            return Err(vec![Diagnostic::new(name, "", "the counts file is empty")
-                .with_hint(format!(
-                    "{header_hint}, then one row per day, test and arm such as `2027-01-04,hero-copy,0,1520`"
-                ))])
-        }
-        Some(Ok(h)) => {
-            let names: Vec<String> = h
-                .iter()
-                .map(|f| String::from_utf8_lossy(f).to_lowercase())
-                .collect();
-            if names != ["date", "experiment", "arm", "units"] {
-                problems.push(at(
-                    1,
-                    0,
-                    format!("the header is `{}`, not `date,experiment,arm,units`", line_text(1).trim()),
-                    header_hint,
-                ));
-            }
-        }
-        Some(Err(e)) => problems.push(at(1, 0, format!("cannot read the header: {e}"), header_hint)),
-    }
+    let layout = Layout {
+        kind: "counts",
+        columns: &["date", "experiment", "arm", "units"],
+        row_of: "day, test and arm",
+        example: "2027-01-04,hero-copy,0,1520",
+    };
     let mut counts = Counts::new();
     let mut seen: HashMap<(NaiveDate, usize, u32), usize> = HashMap::new();
     let mut unknown: HashSet<String> = HashSet::new();
-    for record in records {
-        if problems.len() >= MAX_PROBLEMS {
-            break;
-        }
-        let r = match record {
-            Ok(r) => r,
-            Err(e) => {
-                let line = e.position().map_or(1, |p| p.line() as usize);
-                problems.push(at(
-                    line,
-                    0,
-                    format!("cannot read the row: {e}"),
-                    "write `date,experiment,arm,units`",
-                ));
-                continue;
-            }
-        };
-        let line = r.position().map_or(1, |p| p.line() as usize);
-        if r.len() != 4 {
-            problems.push(at(
-                line,
-                0,
-                format!("the row has {} fields, not 4", r.len()),
-                "write `date,experiment,arm,units`",
-            ));
-            continue;
-        }
-        let field = |k: usize| std::str::from_utf8(&r[k]).unwrap_or("");
+    let problems = read_rows(text, name, &layout, |line, r, problems| {
+        let mut at =
+            |line, field, message, hint: &str| problems.push(line, field, "", message, hint);
+        let field = |k: usize| r[k];
         let Ok(date) = NaiveDate::parse_from_str(field(0), "%Y-%m-%d") else {
-            problems.push(at(
+            at(
                 line,
                 0,
                 format!("`{}` is not a date", field(0)),
                 "write dates as YYYY-MM-DD",
-            ));
-            continue;
+            );
+            return;
         };
         if date >= as_of {
-            problems.push(at(
+            at(
                 line,
                 0,
                 format!("{date} is on or after `as_of` ({as_of})"),
                 "counts are of the days before the progress file's `as_of`; leave later rows out or move `as_of`",
-            ));
-            continue;
+            );
+            return;
         }
         let id = field(1);
         let Some(&experiment) = ids.get(id) else {
@@ -137,7 +84,7 @@ pub fn parse(
                     .map(|e| e.id.as_str())
                     .collect();
                 let closest = crate::diagnostic::closest_first(id, &known);
-                problems.push(at(
+                at(
                     line,
                     1,
                     format!("experiment `{id}` is not in the portfolio"),
@@ -145,15 +92,15 @@ pub fn parse(
                         "defined experiments, closest first: {}",
                         crate::diagnostic::list(&closest.into_iter().take(8).collect::<Vec<_>>())
                     ),
-                ));
+                );
             }
-            continue;
+            return;
         };
         let arms = portfolio.experiments[experiment].design.arms;
         let arm = match field(2).parse::<u32>() {
             Ok(a) if a < arms => a,
             _ => {
-                problems.push(at(
+                at(
                     line,
                     2,
                     format!(
@@ -162,27 +109,27 @@ pub fn parse(
                         arms - 1
                     ),
                     "number the arms from 0 (control), as the design orders them",
-                ));
-                continue;
+                );
+                return;
             }
         };
         let Ok(units) = field(3).parse::<u64>() else {
-            problems.push(at(
+            at(
                 line,
                 3,
                 format!("units `{}` is not a whole number >= 0", field(3)),
                 "the units exposed that day in that arm, e.g. `1520`",
-            ));
-            continue;
+            );
+            return;
         };
         if let Some(first) = seen.insert((date, experiment, arm), line) {
-            problems.push(at(
+            at(
                 line,
                 0,
                 format!("{date}, `{id}`, arm {arm} appears twice (first on line {first})"),
                 "give each day, test and arm one row",
-            ));
-            continue;
+            );
+            return;
         }
         let c = counts.entry(experiment).or_insert_with(|| Counted {
             first: date,
@@ -193,11 +140,11 @@ pub fn parse(
         if date < c.first {
             c.first = date;
         }
-    }
+    });
     if problems.is_empty() {
         Ok(counts)
     } else {
-        Err(problems)
+        Err(problems.into_vec())
     }
 }
 
