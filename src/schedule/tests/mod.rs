@@ -107,6 +107,42 @@ fn run_of(plan: &Plan, id: &str) -> Option<(NaiveDate, NaiveDate, f64)> {
     e.run.map(|r| (r.start, r.end, r.share.fraction()))
 }
 
+/// Asserts that `plan` runs `id` from `start` to `end` (ISO dates) at
+/// `share` of its pool.
+#[track_caller]
+fn assert_run(plan: &Plan, id: &str, start: &str, end: &str, share: f64) {
+    assert_eq!(
+        run_of(plan, id),
+        Some((d(start), d(end), share)),
+        "the run of `{id}`"
+    );
+}
+
+/// Asserts the reason `plan` gives for leaving `id` out, as worded.
+#[track_caller]
+fn assert_reason(plan: &Plan, id: &str, expected: &str) {
+    assert_eq!(reason_of(plan, id), expected, "the reason of `{id}`");
+}
+
+/// A blackout from `from` to `to` (ISO dates) on `pools` (all when empty).
+fn blackout(from: &str, to: &str, kind: BlackoutKind, pools: &[usize]) -> Blackout {
+    Blackout {
+        from: d(from),
+        to: d(to),
+        kind,
+        note: format!("{kind:?} from {from}"),
+        pools: pools.to_vec(),
+    }
+}
+
+/// One prerequisite: the test at index `experiment`, then `gap_days`.
+fn after(experiment: usize, gap_days: u32) -> Vec<Prerequisite> {
+    vec![Prerequisite {
+        experiment,
+        gap_days,
+    }]
+}
+
 fn reason_of(plan: &Plan, id: &str) -> String {
     let e = plan.experiments.iter().find(|e| e.id == id).unwrap();
     e.reason.as_deref().unwrap_or_default().to_string()
@@ -125,14 +161,8 @@ fn two_tests_share_one_pool_in_turn() {
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.solver.value - 68.5 / 27.0).abs() < 1e-9);
     assert_eq!(plan.solver.status, SolverStatus::Optimal);
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-11"), d("2027-01-17"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-10", 1.0);
+    assert_run(&plan, "b", "2027-01-11", "2027-01-17", 1.0);
     let e = &plan.experiments[0];
     let run = e.run.unwrap();
     assert_eq!(run.result_date, d("2027-01-11"));
@@ -159,14 +189,8 @@ fn the_optimiser_beats_greedy_where_priority_order_blocks_a_deadline() {
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.greedy_value - 20.5 / 27.0).abs() < 1e-9);
     assert!((plan.solver.value - 41.0 / 27.0).abs() < 1e-9);
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-11"), d("2027-01-24"), 1.0))
-    );
+    assert_run(&plan, "b", "2027-01-04", "2027-01-10", 1.0);
+    assert_run(&plan, "a", "2027-01-11", "2027-01-24", 1.0);
 }
 
 #[test]
@@ -174,10 +198,7 @@ fn after_waits_for_the_predecessor_and_its_gap() {
     // a ends on day 6; b starts no earlier than 6 + 1 + 7 = day 14 and runs
     // one week at 100% to day 20: 24/27 + (1 - 10/27) = 41/27.
     let mut b = exp("b", 0, 7000, 1.0);
-    b.after = vec![Prerequisite {
-        experiment: 0,
-        gap_days: 7,
-    }];
+    b.after = after(0, 7);
     let p = portfolio(
         vec![pool("home", 1000.0, Sharing::Split, 3)],
         vec![exp("a", 0, 7000, 1.0), b],
@@ -230,10 +251,7 @@ fn reasons_say_what_to_change() {
     let mut late = exp("late", 0, 14000, 1.0);
     late.deadline = Some(d("2027-01-10"));
     let mut child = exp("child", 0, 7000, 1.0);
-    child.after = vec![Prerequisite {
-        experiment: 0,
-        gap_days: 0,
-    }];
+    child.after = after(0, 0);
     let p = portfolio(
         vec![pool("home", 1000.0, Sharing::Split, 3)],
         vec![
@@ -246,22 +264,18 @@ fn reasons_say_what_to_change() {
         ],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        reason_of(&plan, "too-long"),
-        "needs 105 days at 100% of `home`; the window has 28"
+    assert_reason(
+        &plan,
+        "too-long",
+        "needs 105 days at 100% of `home`; the window has 28",
     );
-    assert_eq!(
-        reason_of(&plan, "late"),
-        "deadline 2027-01-10 cannot be met: at its maximum share of 100% the earliest end is 2027-01-17"
+    assert_reason(&plan, "late", "deadline 2027-01-10 cannot be met: at its maximum share of 100% the earliest end is 2027-01-17");
+    assert_reason(
+        &plan,
+        "child",
+        "depends on `too-long`, which is not scheduled",
     );
-    assert_eq!(
-        reason_of(&plan, "child"),
-        "depends on `too-long`, which is not scheduled"
-    );
-    assert_eq!(
-        reason_of(&plan, "c3"),
-        "fits alone, but `home` is full from 2027-01-04 to 2027-01-31 with tests of higher priority: c1 (3), c2 (2)"
-    );
+    assert_reason(&plan, "c3", "fits alone, but `home` is full from 2027-01-04 to 2027-01-31 with tests of higher priority: c1 (3), c2 (2)");
 }
 
 #[test]
@@ -274,28 +288,13 @@ fn blackouts_bind_and_are_named() {
         vec![exp("a", 0, 14000, 1.0), exp("b", 0, 7000, 1.0)],
     );
     p.blackouts = vec![
-        Blackout {
-            from: d("2027-01-11"),
-            to: d("2027-01-17"),
-            kind: BlackoutKind::NoRunning,
-            note: "redesign".into(),
-            pools: vec![],
-        },
-        Blackout {
-            from: d("2027-01-18"),
-            to: d("2027-01-18"),
-            kind: BlackoutKind::NoStarts,
-            note: "freeze".into(),
-            pools: vec![0],
-        },
+        blackout("2027-01-11", "2027-01-17", BlackoutKind::NoRunning, &[]),
+        blackout("2027-01-18", "2027-01-18", BlackoutKind::NoStarts, &[0]),
     ];
     let plan = planned(&p, &PlanRequest::default());
     // b fits in week 1 (days 0-6); a cannot fit: weeks 1-2 cross the
     // blackout, week 3 cannot start, weeks 4-5 leave the window.
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
+    assert_run(&plan, "b", "2027-01-04", "2027-01-10", 1.0);
     assert!(run_of(&plan, "a").is_none());
     assert!(
         reason_of(&plan, "a").contains("blackout"),
@@ -315,10 +314,7 @@ fn a_daily_grid_starts_on_the_earliest_start() {
     let mut p = portfolio(vec![pool("home", 1000.0, Sharing::Split, 3)], vec![a]);
     p.planning.grid = StartGrid::Daily;
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-06"), d("2027-01-10"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-06", "2027-01-10", 1.0);
     assert!((plan.solver.value - (1.0 - 0.5 * 6.0 / 27.0)).abs() < 1e-9);
 }
 
@@ -329,15 +325,9 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
     // and ends on day 20. c finished on 2027-01-08, so its successor d may
     // start from the next Monday on; e's predecessor was cancelled.
     let mut d_ = exp("d", 1, 7000, 1.0);
-    d_.after = vec![Prerequisite {
-        experiment: 2,
-        gap_days: 0,
-    }];
+    d_.after = after(2, 0);
     let mut e_ = exp("e", 1, 7000, 1.0);
-    e_.after = vec![Prerequisite {
-        experiment: 5,
-        gap_days: 0,
-    }];
+    e_.after = after(5, 0);
     let p = portfolio(
         vec![
             pool("home", 1000.0, Sharing::Split, 3),
@@ -382,14 +372,8 @@ fn a_replan_keeps_running_tests_and_starts_nothing_before_today() {
     };
     let plan = planned(&p, &request);
     assert_eq!(plan.experiments[0].status, Status::Running);
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-17"), 1.0))
-    );
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-18"), d("2027-01-24"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-17", 1.0);
+    assert_run(&plan, "b", "2027-01-18", "2027-01-24", 1.0);
     assert_eq!(plan.experiments[2].status, Status::Finished);
     assert_eq!(plan.experiments[5].status, Status::Cancelled);
     assert_eq!(run_of(&plan, "d").unwrap().0, d("2027-01-11"));
@@ -412,13 +396,11 @@ fn edge_cases_give_plans_with_reasons() {
         vec![exp("a", 0, 7000, 1.0), exp("b", 1, 7000, 1.0), tiny],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        reason_of(&plan, "b"),
-        "needs 7,000 units; at 100% of `dark` the forecast does not deliver them within three years"
-    );
-    assert_eq!(
-        reason_of(&plan, "tiny-share"),
-        "no share level is at or below its maximum share of 25%; add a smaller level or raise it"
+    assert_reason(&plan, "b", "needs 7,000 units; at 100% of `dark` the forecast does not deliver them within three years");
+    assert_reason(
+        &plan,
+        "tiny-share",
+        "no share level is at or below its maximum share of 25%; add a smaller level or raise it",
     );
     let late = PlanRequest {
         today: Some(d("2027-02-15")),
@@ -426,9 +408,10 @@ fn edge_cases_give_plans_with_reasons() {
     };
     let plan = planned(&p, &late);
     assert!(plan.experiments.iter().all(|e| e.run.is_none()));
-    assert_eq!(
-        reason_of(&plan, "a"),
-        "its earliest possible start, 2027-02-15, is past the window"
+    assert_reason(
+        &plan,
+        "a",
+        "its earliest possible start, 2027-02-15, is past the window",
     );
     assert_eq!(plan.solver.value, 0.0);
 }

@@ -17,14 +17,8 @@ fn eligibility_lengthens_a_run_by_its_own_arithmetic() {
         vec![exp("a", 0, 4200, 1.0), b],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-04"), d("2027-01-17"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-10", 1.0);
+    assert_run(&plan, "b", "2027-01-04", "2027-01-17", 1.0);
     let e = plan.experiments.iter().find(|e| e.id == "b").unwrap();
     assert!((e.run.unwrap().units_expected - 4200.0).abs() < 1e-9);
     // The verifier re-derives the end: one day short is refused.
@@ -48,14 +42,8 @@ fn a_split_holdout_keeps_the_shares_under_its_capacity() {
         vec![exp("a", 0, 3500, 2.0), exp("b", 0, 3500, 1.0)],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-10"), 0.5))
-    );
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-11"), d("2027-01-17"), 0.5))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-10", 0.5);
+    assert_run(&plan, "b", "2027-01-11", "2027-01-17", 0.5);
     assert_eq!(plan.pools[0].holdout, 0.05);
     // Side by side they would use 100% of a pool whose room is 95%.
     let mut bad = plan.clone();
@@ -89,10 +77,7 @@ fn an_overlap_holdout_scales_every_tests_units() {
     assert_eq!(p.entering_fraction(0, 0), 0.8);
     assert_eq!(p.pools[0].capacity(), Share::WHOLE);
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-13"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-13", 1.0);
 }
 
 #[test]
@@ -103,9 +88,10 @@ fn the_reason_names_eligibility_and_the_holdout() {
     a.eligible = 0.3;
     let p = portfolio(vec![pool("home", 1000.0, Sharing::Overlap, 2)], vec![a]);
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        reason_of(&plan, "a"),
-        "needs 35 days at 100% of `home` (30% of its units eligible); the window has 28"
+    assert_reason(
+        &plan,
+        "a",
+        "needs 35 days at 100% of `home` (30% of its units eligible); the window has 28",
     );
     // A split pool with a 5% holdout caps the share at 50% (the levels are
     // 50% and 100%): 10,000 at 500 a day is 20 days, 21 in whole weeks,
@@ -116,10 +102,7 @@ fn the_reason_names_eligibility_and_the_holdout() {
     shop.holdout = 0.05;
     let p = portfolio(vec![shop], vec![b]);
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        reason_of(&plan, "b"),
-        "deadline 2027-01-17 cannot be met: at its maximum share of 50% (5% held out) the earliest end is 2027-01-24"
-    );
+    assert_reason(&plan, "b", "deadline 2027-01-17 cannot be met: at its maximum share of 50% (5% held out) the earliest end is 2027-01-24");
 }
 
 // Tests on several pools, ramps and pairs kept apart on traffic.
@@ -159,10 +142,7 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
         ],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "big"),
-        Some((d("2027-01-04"), d("2027-01-14"), 1.0))
-    );
+    assert_run(&plan, "big", "2027-01-04", "2027-01-14", 1.0);
     let big = &plan.experiments[0];
     assert_eq!(big.pools, vec!["a", "b", "c"]);
     assert_eq!(big.run.unwrap().units_expected, 22_000.0);
@@ -171,10 +151,7 @@ fn a_three_pool_test_ends_from_the_summed_forecast_and_holds_each_pool() {
         assert_eq!(pool.days[0].running, 1, "{}", pool.id);
         assert_eq!(pool.days[11].running, 0, "{}", pool.id);
     }
-    assert_eq!(
-        run_of(&plan, "solo"),
-        Some((d("2027-01-18"), d("2027-01-24"), 1.0))
-    );
+    assert_run(&plan, "solo", "2027-01-18", "2027-01-24", 1.0);
     // The summed forecast is what `check` reads too: the same end alone.
     let report = crate::check::check(&p);
     assert_eq!(
@@ -197,19 +174,15 @@ fn a_blackout_of_any_of_its_pools_applies_to_a_multi_pool_test() {
         ],
         vec![site("big", &[0, 1], 14_000, 1.0)],
     );
-    p.blackouts.push(Blackout {
-        from: d("2027-01-04"),
-        to: d("2027-01-10"),
-        kind: BlackoutKind::NoStarts,
-        note: "freeze on b".into(),
-        pools: vec![1],
-    });
+    p.blackouts.push(blackout(
+        "2027-01-04",
+        "2027-01-10",
+        BlackoutKind::NoStarts,
+        &[1],
+    ));
     // 2,000 a day at 100%: 7 days, from the next Monday.
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "big"),
-        Some((d("2027-01-11"), d("2027-01-17"), 1.0))
-    );
+    assert_run(&plan, "big", "2027-01-11", "2027-01-17", 1.0);
 }
 
 #[test]
@@ -313,10 +286,7 @@ fn another_test_uses_the_room_a_ramp_leaves() {
     p.experiments.push(short);
     p.after_order = after_order(&p.experiments).unwrap();
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "short"),
-        Some((d("2027-01-04"), d("2027-01-10"), 0.5))
-    );
+    assert_run(&plan, "short", "2027-01-04", "2027-01-10", 0.5);
     assert!((plan.pools[0].days[0].share_used.fraction() - 0.55).abs() < 1e-12);
     assert_eq!(plan.pools[0].days[3].share_used.fraction(), 1.0);
 }
@@ -338,21 +308,12 @@ fn tests_apart_on_traffic_split_an_overlap_pool() {
         portfolio(vec![pool("o", 1000.0, Sharing::Overlap, 3)], vec![a, b])
     };
     let free = planned(&both(false), &PlanRequest::default());
-    assert_eq!(
-        run_of(&free, "b"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
+    assert_run(&free, "b", "2027-01-04", "2027-01-10", 1.0);
     let p = both(true);
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.solver.value - 68.5 / 27.0).abs() < 1e-9);
-    assert_eq!(
-        run_of(&plan, "a"),
-        Some((d("2027-01-04"), d("2027-01-10"), 1.0))
-    );
-    assert_eq!(
-        run_of(&plan, "b"),
-        Some((d("2027-01-11"), d("2027-01-17"), 1.0))
-    );
+    assert_run(&plan, "a", "2027-01-04", "2027-01-10", 1.0);
+    assert_run(&plan, "b", "2027-01-11", "2027-01-17", 1.0);
     // The free calendar breaks the pair's rule: the verifier says so.
     let err = verify(&p, &PlanRequest::default(), &free).unwrap_err();
     assert!(
@@ -414,10 +375,7 @@ fn a_running_ramped_multi_pool_test_keeps_its_dates_and_shares() {
         vec![t],
     );
     let first = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&first, "big"),
-        Some((d("2027-01-04"), d("2027-01-08"), 1.0))
-    );
+    assert_run(&first, "big", "2027-01-04", "2027-01-08", 1.0);
     let r = PlanRequest {
         today: Some(d("2027-01-06")),
         fixed: vec![FixedRun {
@@ -432,10 +390,7 @@ fn a_running_ramped_multi_pool_test_keeps_its_dates_and_shares() {
     };
     let again = planned(&p, &r);
     assert_eq!(again.experiments[0].status, Status::Running);
-    assert_eq!(
-        run_of(&again, "big"),
-        Some((d("2027-01-04"), d("2027-01-08"), 1.0))
-    );
+    assert_run(&again, "big", "2027-01-04", "2027-01-08", 1.0);
     assert_eq!(again.experiments[0].ramp, first.experiments[0].ramp);
     for pool in &again.pools {
         assert_eq!(pool.days[1].share_used.fraction(), 0.05, "{}", pool.id);
@@ -500,13 +455,7 @@ fn a_test_kept_apart_on_traffic_names_its_partner() {
         vec![big, small],
     );
     let plan = planned(&p, &PlanRequest::default());
-    assert_eq!(
-        run_of(&plan, "big"),
-        Some((d("2027-01-04"), d("2027-01-31"), 1.0))
-    );
+    assert_run(&plan, "big", "2027-01-04", "2027-01-31", 1.0);
     assert_eq!(run_of(&plan, "small"), None);
-    assert_eq!(
-        reason_of(&plan, "small"),
-        "fits alone, but is kept apart on traffic from `big` (2027-01-04 to 2027-01-31), which the plan keeps, and no share level fits beside it"
-    );
+    assert_reason(&plan, "small", "fits alone, but is kept apart on traffic from `big` (2027-01-04 to 2027-01-31), which the plan keeps, and no share level fits beside it");
 }
