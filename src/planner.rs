@@ -254,7 +254,11 @@ impl<'p> Replanner<'p> {
             plan.missing_progress =
                 replan::missing_progress(previous, &progress, &applied.portfolio, self.today);
             plan.changes = Some(crate::diff::diff(previous, &plan));
-            plan.calendar = Some(render::ics::calendar_history(previous, &plan));
+            plan.calendar = Some(crate::diff::calendar_history(
+                &render::ics::Shown,
+                previous,
+                &plan,
+            ));
         }
         Ok(plan)
     }

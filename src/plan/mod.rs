@@ -306,7 +306,7 @@ pub struct Plan {
     pub changes: Option<PlanDiff>,
     /// Re-plans with `--previous` only: the versions of the calendar
     /// events that earlier plans published, so that a re-imported
-    /// calendar updates them (`crate::render::ics::calendar_history`).
+    /// calendar updates them (`crate::diff::calendar_history`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub calendar: Option<CalendarHistory>,
 }

@@ -316,3 +316,37 @@ pub struct PlanDiff {
     /// Each pool's totals before and after, in the new plan's order.
     pub pools: Vec<PoolDiff>,
 }
+
+impl Plan {
+    /// The SEQUENCE of experiment `id`'s run and result events in this
+    /// plan's calendar: 0 unless a re-plan's calendar history raised it.
+    pub fn event_sequence(&self, id: &str) -> u32 {
+        self.calendar.as_ref().map_or(0, |c| {
+            c.sequences
+                .iter()
+                .find(|s| s.id == id)
+                .map(|s| s.sequence)
+                .or_else(|| c.kept.iter().find(|k| k.id == id).map(|k| k.sequence))
+                .unwrap_or(0)
+        })
+    }
+
+    /// The SEQUENCE of experiment `id`'s interim look `look` in this
+    /// plan's calendar: 0 unless a re-plan's calendar history raised it.
+    pub fn look_sequence(&self, id: &str, look: u32) -> u32 {
+        self.calendar.as_ref().map_or(0, |c| {
+            c.looks
+                .iter()
+                .find(|s| s.id == id && s.look == look)
+                .map_or(0, |s| s.sequence)
+        })
+    }
+}
+
+impl PlannedExperiment {
+    /// The interim looks its calendar publishes: `None` when it publishes
+    /// none (no looks, or none with a day of its own).
+    pub fn published_looks(&self) -> Option<&LookDates> {
+        self.looks.as_ref().filter(|l| l.interim().next().is_some())
+    }
+}

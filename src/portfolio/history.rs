@@ -2,7 +2,7 @@
 //! and one row per day, ISO dates ascending without gaps or repeats,
 //! units a number >= 0. Every problem is reported at its line and column
 //! in the CSV file, like the portfolio's own (all of them at once, up to
-//! [`MAX_PROBLEMS`](crate::csv_file::MAX_PROBLEMS)).
+//! 20; `csv_file` reads it).
 
 use super::checker::Checker;
 use super::model::{event_days, Event, History};

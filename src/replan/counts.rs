@@ -6,9 +6,8 @@
 //!
 //! An unknown experiment, an arm outside its design, a date on or after
 //! `as_of`, a repeated `(date, experiment, arm)` or a bad value is an error
-//! at its line and column in the CSV file, like a history's (at most
-//! [`MAX_PROBLEMS`](crate::csv_file::MAX_PROBLEMS) of them). Read as bytes with the `csv` crate, so a
-//! million rows take well under a second.
+//! at its line and column in the CSV file, like a history's (at most 20
+//! of them; the file is read as `csv_file` reads every CSV file).
 
 use crate::csv_file::{read_rows, Layout};
 use crate::diagnostic::Diagnostic;

@@ -2,6 +2,7 @@
 //! days and status, for runs, results and interim looks.
 
 use super::*;
+use crate::diff::{CalendarView, LookEvent};
 use crate::plan::{KeptEvents, Plan, PlannedExperiment, Run, Status};
 use chrono::NaiveDate;
 use icalendar::EventStatus;
@@ -198,16 +199,18 @@ pub(super) fn look_events(plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Conte
 /// What a calendar shows of one event; two plans that give an event the
 /// same content leave it unchanged.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub(super) struct Content {
-    pub(super) summary: String,
-    pub(super) description: String,
+pub struct Content {
+    /// SUMMARY: the event's title line.
+    pub summary: String,
+    /// DESCRIPTION: its text, line by line.
+    pub description: String,
     /// First day.
-    pub(super) start: NaiveDate,
+    pub start: NaiveDate,
     /// Last day (inclusive; DTEND is the day after).
-    pub(super) end: NaiveDate,
+    pub end: NaiveDate,
     /// Tentative while planned, confirmed once it took place, cancelled
     /// when it will not.
-    pub(super) status: EventStatus,
+    pub status: EventStatus,
 }
 
 /// One event as written: its content, UID and SEQUENCE.
@@ -368,18 +371,9 @@ pub(super) fn run_events(plan: &Plan, e: &PlannedExperiment) -> Option<[Content;
     contents(plan, e).or_else(|| closed_contents(plan, e))
 }
 
-/// One interim look's event in a plan's calendar.
-pub(super) struct LookSpec {
-    pub(super) id: String,
-    pub(super) look: u32,
-    /// The test's looks, the final read included.
-    pub(super) looks: u32,
-    pub(super) content: Content,
-}
-
 /// Every interim look event of `plan`'s calendar, in the order written:
 /// kept tests' looks, the experiments' own, then dropped looks.
-pub(super) fn look_specs(plan: &Plan) -> Vec<LookSpec> {
+pub(super) fn look_specs(plan: &Plan) -> Vec<LookEvent<Content>> {
     let mut out = Vec::new();
     let calendar = plan.calendar.as_ref();
     let kept: Vec<&KeptEvents> = calendar.iter().flat_map(|c| &c.kept).collect();
@@ -395,11 +389,12 @@ pub(super) fn look_specs(plan: &Plan) -> Vec<LookSpec> {
             if k.idle.contains(&look) {
                 continue;
             }
-            out.push(LookSpec {
+            out.push(LookEvent {
                 id: k.id.clone(),
                 look,
                 looks: n,
-                content: Content {
+                date,
+                event: Content {
                     summary: format!(
                         "Interim look {look} of {n}, may stop early: {} [{}]",
                         k.title, k.id
@@ -434,11 +429,12 @@ pub(super) fn look_specs(plan: &Plan) -> Vec<LookSpec> {
                 .flat_map(|c| &c.past_looks)
                 .find(|p| p.id == e.id && e.run.is_none())
                 .map_or(n, |p| p.looks);
-            out.push(LookSpec {
+            out.push(LookEvent {
                 id: e.id.clone(),
                 look,
                 looks: n,
-                content,
+                date: content.start,
+                event: content,
             });
         }
     }
@@ -448,11 +444,12 @@ pub(super) fn look_specs(plan: &Plan) -> Vec<LookSpec> {
             .iter()
             .find(|e| e.id == d.id)
             .map_or(d.id.as_str(), |e| e.title.as_str());
-        out.push(LookSpec {
+        out.push(LookEvent {
             id: d.id.clone(),
             look: d.look,
             looks: d.looks,
-            content: Content {
+            date: d.date,
+            event: Content {
                 summary: format!(
                     "Interim look {} of {}, not held: {title} [{}]",
                     d.look, d.looks, d.id
@@ -470,4 +467,32 @@ pub(super) fn look_specs(plan: &Plan) -> Vec<LookSpec> {
         });
     }
     out
+}
+
+/// What an iCalendar shows of a plan's events: the view the calendar
+/// history compares to tell which events changed.
+pub struct Shown;
+
+impl CalendarView for Shown {
+    type Event = Content;
+
+    fn planned(&self, plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
+        contents(plan, e)
+    }
+
+    fn run_events(&self, plan: &Plan, e: &PlannedExperiment) -> Option<[Content; 2]> {
+        run_events(plan, e)
+    }
+
+    fn has_planned_looks(&self, e: &PlannedExperiment) -> bool {
+        !look_contents(e).is_empty()
+    }
+
+    fn look_events(&self, plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Content)> {
+        look_events(plan, e)
+    }
+
+    fn every_look(&self, plan: &Plan) -> Vec<LookEvent<Content>> {
+        look_specs(plan)
+    }
 }

@@ -10,7 +10,8 @@
 //! midnight UTC (not the clock).
 //!
 //! A re-plan with `--previous` carries a [`CalendarHistory`](crate::plan::CalendarHistory)
-//! ([`calendar_history`]): each changed event gets a higher SEQUENCE
+//! ([`crate::diff::calendar_history`], comparing the events as [`Shown`]
+//! words them): each changed event gets a higher SEQUENCE
 //! (RFC 5545 §3.8.7.4), and the events of tests that left the calendar
 //! (cancelled, finished early, no longer fitting, dropped) are published
 //! again with STATUS:CANCELLED (§3.8.1.11), so that importing the re-plan
@@ -25,11 +26,9 @@ use chrono::{Duration, NaiveTime};
 use icalendar::{Calendar, Component, Event, EventLike, Property};
 
 mod content;
-mod history;
 
-use content::{closed_contents, contents, kept_contents, look_specs, Content, Spec};
-pub use history::calendar_history;
-use history::{look_sequence_of, sequence_of};
+use content::{closed_contents, contents, kept_contents, look_specs, Spec};
+pub use content::{Content, Shown};
 
 /// The iCalendar renderer.
 pub struct Ics;
@@ -100,7 +99,7 @@ fn specs(plan: &Plan) -> Vec<Spec> {
     };
     for e in &plan.experiments {
         if let Some(cs) = contents(plan, e) {
-            push(&e.id, cs, sequence_of(plan, &e.id));
+            push(&e.id, cs, plan.event_sequence(&e.id));
         }
     }
     // Finished and cancelled tests at their real dates, unless a re-plan's
@@ -113,7 +112,7 @@ fn specs(plan: &Plan) -> Vec<Spec> {
     };
     for e in plan.experiments.iter().filter(|e| !kept(&e.id)) {
         if let Some(cs) = closed_contents(plan, e) {
-            push(&e.id, cs, sequence_of(plan, &e.id));
+            push(&e.id, cs, plan.event_sequence(&e.id));
         }
     }
     for k in plan.calendar.iter().flat_map(|c| &c.kept) {
@@ -124,8 +123,8 @@ fn specs(plan: &Plan) -> Vec<Spec> {
     for l in look_specs(plan) {
         out.push(Spec {
             uid: uid(&plan.id, &l.id, EventKind::Look(l.look)),
-            sequence: look_sequence_of(plan, &l.id, l.look),
-            content: l.content,
+            sequence: plan.look_sequence(&l.id, l.look),
+            content: l.event,
         });
     }
     out

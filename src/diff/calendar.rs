@@ -1,49 +1,67 @@
 //! The calendar history of a re-plan: which events changed (SEQUENCE),
 //! which tests left the calendar, and which published looks are
 //! cancelled, from the previous plan and this one alone.
+//!
+//! An event changed when what a calendar shows of it changed. What it
+//! shows is the calendar format's business (its summary and description
+//! are worded): the format hands it over as a [`CalendarView`], and this
+//! module compares the views and keeps the facts ([`CalendarHistory`]).
+//! `render::ics::Shown` is the iCalendar view.
 
-use super::content::*;
 use crate::plan::{
     CalendarHistory, DroppedLook, EventSequence, KeptEvents, LookSequence, PastLooks, Plan,
     PlannedExperiment, Status,
 };
 use chrono::NaiveDate;
 
-/// The SEQUENCE of an experiment's events in `plan` (0 unless a re-plan's
-/// calendar history raised it).
-pub(super) fn sequence_of(plan: &Plan, id: &str) -> u32 {
-    plan.calendar.as_ref().map_or(0, |c| {
-        c.sequences
-            .iter()
-            .find(|s| s.id == id)
-            .map(|s| s.sequence)
-            .or_else(|| c.kept.iter().find(|k| k.id == id).map(|k| k.sequence))
-            .unwrap_or(0)
-    })
+/// What a calendar shows of a plan's events, as its format words them.
+pub trait CalendarView {
+    /// One event as the calendar shows it: equal when nothing shown
+    /// changed.
+    type Event: PartialEq;
+    /// The run and result events of `e` while it is planned: none once it
+    /// has finished or been cancelled, or when it is not in the calendar.
+    fn planned(&self, plan: &Plan, e: &PlannedExperiment) -> Option<[Self::Event; 2]>;
+    /// The run and result events of `e`: planned, or as it ran.
+    fn run_events(&self, plan: &Plan, e: &PlannedExperiment) -> Option<[Self::Event; 2]>;
+    /// Whether `e`'s own planned looks give any event.
+    fn has_planned_looks(&self, e: &PlannedExperiment) -> bool;
+    /// The interim look events of `e` in `plan`, by look.
+    fn look_events(&self, plan: &Plan, e: &PlannedExperiment) -> Vec<(u32, Self::Event)>;
+    /// Every interim look event of `plan`'s calendar, in the order written.
+    fn every_look(&self, plan: &Plan) -> Vec<LookEvent<Self::Event>>;
 }
 
-/// The SEQUENCE of an interim look's event in `plan` (0 unless a re-plan's
-/// calendar history raised it).
-pub(super) fn look_sequence_of(plan: &Plan, id: &str, look: u32) -> u32 {
-    plan.calendar.as_ref().map_or(0, |c| {
-        c.looks
-            .iter()
-            .find(|s| s.id == id && s.look == look)
-            .map_or(0, |s| s.sequence)
-    })
+/// One interim look's event in a plan's calendar.
+pub struct LookEvent<E> {
+    /// The experiment's id.
+    pub id: String,
+    /// The look, from 1.
+    pub look: u32,
+    /// The test's looks, the final read included.
+    pub looks: u32,
+    /// The look's day.
+    pub date: NaiveDate,
+    /// What the calendar shows of it.
+    pub event: E,
 }
 
 /// The interim looks' part of [`calendar_history`]: each look event of
 /// `plan` keeps its sequence when its content is unchanged and gains one
 /// when it changed, came back or is kept (cancelled or confirmed).
-pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarHistory) {
+fn look_history<V: CalendarView>(
+    view: &V,
+    previous: &Plan,
+    plan: &Plan,
+    history: &mut CalendarHistory,
+) {
     let before = |id: &str, look: u32| {
         previous
             .experiments
             .iter()
             .find(|o| o.id == id)
             .and_then(|o| {
-                look_events(previous, o)
+                view.look_events(previous, o)
                     .into_iter()
                     .find(|(k, _)| *k == look)
             })
@@ -75,8 +93,8 @@ pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarH
         }
     };
     for e in &plan.experiments {
-        for (look, now) in look_events(&with_past, e) {
-            let base = look_sequence_of(previous, &e.id, look);
+        for (look, now) in view.look_events(&with_past, e) {
+            let base = previous.look_sequence(&e.id, look);
             let sequence = match before(&e.id, look) {
                 Some(b) if b == now => base,
                 Some(_) => base + 1,
@@ -100,12 +118,12 @@ pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarH
         .collect();
     for (id, n, idle, new) in kept {
         for look in (1..=n as u32).filter(|k| !idle.contains(k)) {
-            let base = look_sequence_of(previous, &id, look);
+            let base = previous.look_sequence(&id, look);
             push(&id, look, if new { base + 1 } else { base });
         }
     }
     // A dropped look changes once, when it is first published cancelled.
-    let before_all = look_specs(previous);
+    let before_all = view.every_look(previous);
     let with_dropped = Plan {
         calendar: Some(CalendarHistory {
             dropped_looks: history.dropped_looks.clone(),
@@ -113,7 +131,8 @@ pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarH
         }),
         ..plan.clone()
     };
-    let dropped: Vec<LookSpec> = look_specs(&with_dropped)
+    let dropped: Vec<LookEvent<V::Event>> = view
+        .every_look(&with_dropped)
         .into_iter()
         .filter(|l| {
             history
@@ -123,10 +142,10 @@ pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarH
         })
         .collect();
     for l in dropped {
-        let base = look_sequence_of(previous, &l.id, l.look);
+        let base = previous.look_sequence(&l.id, l.look);
         let same = before_all
             .iter()
-            .any(|b| b.id == l.id && b.look == l.look && b.content == l.content);
+            .any(|b| b.id == l.id && b.look == l.look && b.event == l.event);
         push(&l.id, l.look, if same { base } else { base + 1 });
     }
 }
@@ -151,25 +170,29 @@ pub(super) fn look_history(previous: &Plan, plan: &Plan, history: &mut CalendarH
 /// already kept by `previous` stay kept as they were. So the sequence is
 /// a function of the two plans alone, and strictly increases for every
 /// changed event along a chain of re-plans.
-pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
+pub fn calendar_history<V: CalendarView>(
+    view: &V,
+    previous: &Plan,
+    plan: &Plan,
+) -> CalendarHistory {
     let prev_kept: Vec<&KeptEvents> = previous.calendar.iter().flat_map(|c| &c.kept).collect();
     let now_in = |id: &str| {
         plan.experiments
             .iter()
-            .any(|e| e.id == id && run_events(plan, e).is_some())
+            .any(|e| e.id == id && view.run_events(plan, e).is_some())
     };
     let mut history = CalendarHistory::default();
     for e in &plan.experiments {
-        let Some(now) = run_events(plan, e) else {
+        let Some(now) = view.run_events(plan, e) else {
             continue;
         };
         let before_e = previous.experiments.iter().find(|o| o.id == e.id);
         // The interim looks published for a test that has now closed.
-        if contents(plan, e).is_none() {
+        if view.planned(plan, e).is_none() {
             // By look: every interim look of the design, and those never
             // published for want of a day of their own.
             let published: (Vec<NaiveDate>, Vec<u32>) = match before_e
-                .filter(|o| !look_contents(o).is_empty())
+                .filter(|o| view.has_planned_looks(o))
                 .and_then(|o| o.looks.as_ref())
             {
                 Some(l) => (
@@ -193,8 +216,8 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
                 });
             }
         }
-        let base = sequence_of(previous, &e.id);
-        let before = before_e.and_then(|o| run_events(previous, o));
+        let base = previous.event_sequence(&e.id);
+        let before = before_e.and_then(|o| view.run_events(previous, o));
         let sequence = match before {
             Some(before) if before == now => base,
             Some(_) => base + 1,
@@ -236,11 +259,13 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             start: run.start,
             end: run.end,
             result_date: run.result_date,
-            sequence: sequence_of(previous, &o.id) + 1,
-            looks: published_looks(o).map_or_else(Vec::new, |l| {
+            sequence: previous.event_sequence(&o.id) + 1,
+            looks: o.published_looks().map_or_else(Vec::new, |l| {
                 l.all_interim().iter().map(|d| d.date).collect()
             }),
-            idle: published_looks(o).map_or_else(Vec::new, |l| l.idle.clone()),
+            idle: o
+                .published_looks()
+                .map_or_else(Vec::new, |l| l.idle.clone()),
         });
     }
     for k in prev_kept {
@@ -248,20 +273,15 @@ pub fn calendar_history(previous: &Plan, plan: &Plan) -> CalendarHistory {
             history.kept.push(k.clone());
         }
     }
-    history.dropped_looks = dropped_looks(previous, plan, &history);
-    look_history(previous, plan, &mut history);
+    history.dropped_looks = dropped_looks(view, previous, plan, &history);
+    look_history(view, previous, plan, &mut history);
     history
-}
-
-/// The looks of `o` its calendar published: `None` when it published none
-/// (no looks, or none with a day of its own).
-pub(super) fn published_looks(o: &PlannedExperiment) -> Option<&crate::plan::LookDates> {
-    o.looks.as_ref().filter(|l| l.interim().next().is_some())
 }
 
 /// The looks `previous`'s calendar published that `plan`'s, with the
 /// rest of `history`, would leave out: each is published again cancelled.
-pub(super) fn dropped_looks(
+fn dropped_looks<V: CalendarView>(
+    view: &V,
     previous: &Plan,
     plan: &Plan,
     history: &CalendarHistory,
@@ -273,18 +293,19 @@ pub(super) fn dropped_looks(
         }),
         ..plan.clone()
     };
-    let written: Vec<(String, u32)> = look_specs(&now)
+    let written: Vec<(String, u32)> = view
+        .every_look(&now)
         .into_iter()
         .map(|l| (l.id, l.look))
         .collect();
-    look_specs(previous)
+    view.every_look(previous)
         .into_iter()
         .filter(|l| !written.iter().any(|(id, k)| *id == l.id && *k == l.look))
         .map(|l| DroppedLook {
             id: l.id,
             look: l.look,
             looks: l.looks,
-            date: l.content.start,
+            date: l.date,
         })
         .collect()
 }

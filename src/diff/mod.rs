@@ -3,7 +3,13 @@
 //!
 //! Reads two [`Plan`]s only, matched by experiment id; it computes no
 //! schedule facts of its own beyond subtracting dates and summing the
-//! plans' own per-experiment numbers.
+//! plans' own per-experiment numbers. [`calendar_history`] is the
+//! calendar's side of the same difference: which published events
+//! changed, left or were cancelled.
+
+mod calendar;
+
+pub use calendar::{calendar_history, CalendarView, LookEvent};
 
 use crate::plan::{
     ExperimentDiff, Movement, Plan, PlanDiff, PlannedExperiment, PoolDiff, PoolTotals, Status,
