@@ -135,6 +135,27 @@ fn blackout(from: &str, to: &str, kind: BlackoutKind, pools: &[usize]) -> Blacko
     }
 }
 
+/// How two tests are kept apart.
+enum Apart {
+    /// Never running on the same day (`not_with`).
+    InTime,
+    /// Never sharing a unit of traffic (`apart_traffic`).
+    OnTraffic,
+}
+
+/// The two tests of `pair`, at indexes 0 and 1, kept apart `how`.
+fn apart(pair: [Experiment; 2], how: Apart) -> Vec<Experiment> {
+    let mut pair = Vec::from(pair);
+    for (i, e) in pair.iter_mut().enumerate() {
+        let other = vec![1 - i];
+        match how {
+            Apart::InTime => e.not_with = other,
+            Apart::OnTraffic => e.apart_traffic = other,
+        }
+    }
+    pair
+}
+
 /// One prerequisite: the test at index `experiment`, then `gap_days`.
 fn after(experiment: usize, gap_days: u32) -> Vec<Prerequisite> {
     vec![Prerequisite {
@@ -212,16 +233,13 @@ fn after_waits_for_the_predecessor_and_its_gap() {
 fn not_with_links_two_pools() {
     // Each alone on its own pool, but they must not overlap: a (2) first,
     // b (1) the week after: 48/27 + 20.5/27 = 68.5/27.
-    let mut a = exp("a", 0, 7000, 2.0);
-    let mut b = exp("b", 1, 7000, 1.0);
-    a.not_with = vec![1];
-    b.not_with = vec![0];
+    let pair = [exp("a", 0, 7000, 2.0), exp("b", 1, 7000, 1.0)];
     let p = portfolio(
         vec![
             pool("home", 1000.0, Sharing::Split, 3),
             pool("search", 1000.0, Sharing::Split, 3),
         ],
-        vec![a, b],
+        apart(pair, Apart::InTime),
     );
     let plan = planned(&p, &PlanRequest::default());
     assert!((plan.solver.value - 68.5 / 27.0).abs() < 1e-9);

@@ -298,14 +298,14 @@ fn tests_apart_on_traffic_split_an_overlap_pool() {
     // Apart on traffic their shares add up to at most 1: a at 100% in week
     // 1 (2 x 24/27) and b at 100% in week 2 (20.5/27), 68.5/27, beats both
     // at 50% to day 13 (3 x 20.5/27 = 61.5/27).
-    let both = |apart: bool| {
-        let mut a = exp("a", 0, 7000, 2.0);
-        let mut b = exp("b", 0, 7000, 1.0);
-        if apart {
-            a.apart_traffic = vec![1];
-            b.apart_traffic = vec![0];
-        }
-        portfolio(vec![pool("o", 1000.0, Sharing::Overlap, 3)], vec![a, b])
+    let both = |kept_apart: bool| {
+        let pair = [exp("a", 0, 7000, 2.0), exp("b", 0, 7000, 1.0)];
+        let tests = if kept_apart {
+            apart(pair, Apart::OnTraffic)
+        } else {
+            pair.into()
+        };
+        portfolio(vec![pool("o", 1000.0, Sharing::Overlap, 3)], tests)
     };
     let free = planned(&both(false), &PlanRequest::default());
     assert_run(&free, "b", "2027-01-04", "2027-01-10", 1.0);
@@ -446,13 +446,10 @@ fn a_test_kept_apart_on_traffic_names_its_partner() {
     // One overlap pool of 1,000 a day for four weeks; `big` (priority 5)
     // needs all of it for four weeks, so `small`, kept apart on traffic
     // from it, has no share level left on any day.
-    let mut big = exp("big", 0, 28_000, 5.0);
-    let mut small = exp("small", 0, 3_500, 1.0);
-    big.apart_traffic = vec![1];
-    small.apart_traffic = vec![0];
+    let pair = [exp("big", 0, 28_000, 5.0), exp("small", 0, 3_500, 1.0)];
     let p = portfolio(
         vec![pool("o", 1000.0, Sharing::Overlap, 3)],
-        vec![big, small],
+        apart(pair, Apart::OnTraffic),
     );
     let plan = planned(&p, &PlanRequest::default());
     assert_run(&plan, "big", "2027-01-04", "2027-01-31", 1.0);
