@@ -56,7 +56,7 @@ pub struct DetectArgs {
     /// Find the smallest detectable fall instead of rise
     #[arg(long, conflicts_with_all = ["mde", "mde_abs", "margin", "margin_abs"], help_heading = "Effect")]
     pub decrease: bool,
-    /// Guardrail: the smallest harm the sample rules out (a fall unless `rise`)
+    /// Find the smallest harm the sample rules out (a fall unless `rise`)
     #[arg(
         long,
         value_enum,

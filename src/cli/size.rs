@@ -178,8 +178,8 @@ pub struct EffectArgs {
     /// The effect as an absolute difference (0.005 = half a point)
     #[arg(long, value_name = "X", help_heading = "Effect")]
     pub mde_abs: Option<f64>,
-    /// Guardrail: the largest acceptable harm, relative (0.02 = a 2% fall;
-    /// negative when a rise is the harm)
+    /// The largest acceptable harm to a guardrail metric, relative (0.02 =
+    /// a 2% fall; negative when a rise is the harm)
     #[arg(
         long,
         value_name = "X",
@@ -187,7 +187,7 @@ pub struct EffectArgs {
         help_heading = "Guardrail"
     )]
     pub margin: Option<f64>,
-    /// Guardrail: the largest acceptable harm as an absolute difference
+    /// The largest acceptable harm as an absolute difference
     #[arg(
         long,
         value_name = "X",
