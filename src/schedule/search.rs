@@ -229,6 +229,13 @@ const BNB_MAX_OPTIONS: usize = 2500;
 /// 7-test component of 169 options left needs about 2,500 nodes) in under
 /// a second (DEVELOPERS.md, the 2026-12-05 bound measurements).
 const BNB_WORK: usize = 80_000_000;
+/// Components of more tests than this, whose trees grow too fast for a
+/// budget to close them (medium-keys' 30 tests, the 13- and 20-test
+/// components of large-replan), get the budget `BNB_WORK_WIDE` and a
+/// best-first search that plunges only where best-first would go next.
+const BNB_FEW_TESTS: usize = 10;
+/// The work budget of a component of more than `BNB_FEW_TESTS` tests.
+const BNB_WORK_WIDE: usize = 12_000_000;
 
 /// Proves what it can of the component's calendar `best`: reduced-cost
 /// fixing from the LP's dual (`lp::fix_by_reduced_costs`), then a branch
@@ -259,7 +266,12 @@ fn fix_and_branch(
         return bound;
     }
     let left: usize = root.allowed.iter().map(Vec::len).sum();
-    let budget = (effort as usize) * BNB_WORK / (left * left).max(1);
+    let work = if exps.len() <= BNB_FEW_TESTS {
+        BNB_WORK
+    } else {
+        BNB_WORK_WIDE
+    };
+    let budget = (effort as usize) * work / (left * left).max(1);
     if let Some(b) = branch_and_bound(inst, exps, root, best, backend, deadline, budget) {
         bound = bound.min(b);
     }
@@ -271,7 +283,9 @@ fn fix_and_branch(
 /// options split at the LP's median), prune by the incumbent. Best-first
 /// (the open node of largest bound), except that the child explored first
 /// follows its parent at once (a plunge), so that with microlp its LP is
-/// its parent's re-solved from the last basis (`lp::Warm`). Improves
+/// its parent's re-solved from the last basis (`lp::Warm`): always in a
+/// component of at most `BNB_FEW_TESTS` tests, otherwise only when no
+/// open node has a larger bound. Improves
 /// `best` in place and returns a bound on the component's value: its value
 /// when the tree is exhausted, otherwise the largest LP value of a node
 /// left open. `None` when a solve fails.
@@ -461,7 +475,15 @@ fn branch_and_bound<'s>(
             }
         };
         stack.push(second);
-        if first.warm.is_some() {
+        // A small tree plunges always; a wide one only where best-first
+        // would go next anyway, so its open bound falls as fast as it can.
+        let plunge = exps.len() <= BNB_FEW_TESTS
+            || first.parent
+                >= stack
+                    .iter()
+                    .map(|n| n.parent)
+                    .fold(f64::NEG_INFINITY, f64::max);
+        if first.warm.is_some() && plunge {
             next = Some(first);
         } else {
             stack.push(first);
