@@ -493,3 +493,275 @@ fn read<S: Solution>(
         matches!(sol.status(), SolutionStatus::Optimal),
     )
 }
+
+/// A solved LP relaxation that the branch and bound edits and re-solves
+/// from its last basis: microlp's dual simplex after an added row, so a
+/// node's LP costs a few pivots instead of a solve from scratch. The
+/// variables are those of the root's `Sub`, one per allowed option; a
+/// branch forbids options by a row `sum x <= 0` and makes a test run by
+/// `sum x >= 1`, so the rows of every node are the root's (valid for its
+/// narrower model too: a node only drops terms) plus its branchings.
+#[derive(Clone)]
+pub(crate) struct Warm {
+    sol: microlp::Solution,
+    /// Per test of the component, its variable per option (by the
+    /// option's index; `None` for an option the root does not allow).
+    vars: Vec<Vec<Option<microlp::Variable>>>,
+}
+
+impl Warm {
+    /// The LP relaxation of the model of `sub`, solved within `seconds`
+    /// (the limit of every later re-solve too).
+    pub fn root(inst: &Instance, sub: &Sub, seconds: f64) -> Result<Warm, Failed> {
+        let rows = build_rows(inst, sub);
+        let mut problem = microlp::Problem::new(microlp::OptimizationDirection::Maximize);
+        let mut vars: Vec<Vec<Option<microlp::Variable>>> = Vec::with_capacity(sub.exps.len());
+        let mut at: Vec<Vec<microlp::Variable>> = Vec::with_capacity(sub.exps.len());
+        for (i, &e) in sub.exps.iter().enumerate() {
+            let mut by_option = vec![None; inst.options[e].len()];
+            let mut here = Vec::with_capacity(sub.allowed[i].len());
+            // As in `model`: x <= 1 follows from the test's row, which a
+            // test with one option does not have.
+            let max = if sub.allowed[i].len() == 1 {
+                1.0
+            } else {
+                f64::INFINITY
+            };
+            for &k in &sub.allowed[i] {
+                let v = problem.add_var(inst.options[e][k].value, (0.0, max));
+                by_option[k] = Some(v);
+                here.push(v);
+            }
+            vars.push(by_option);
+            at.push(here);
+        }
+        for (terms, rhs) in &rows.le {
+            let mut ex = microlp::LinearExpr::empty();
+            for &(i, j, c) in terms {
+                ex.add(at[i][j], c);
+            }
+            problem.add_constraint(ex, microlp::ComparisonOp::Le, *rhs);
+        }
+        let mut options = microlp::SolveOptions::default();
+        options.time_limit = Some(std::time::Duration::from_secs_f64(seconds.max(0.01)));
+        let outcome = problem.solve_with(options).map_err(warm_failed)?;
+        Warm::from_outcome(outcome, vars)
+    }
+
+    fn from_outcome(
+        outcome: microlp::SolveOutcome,
+        vars: Vec<Vec<Option<microlp::Variable>>>,
+    ) -> Result<Warm, Failed> {
+        let sol = outcome.into_solution().map_err(|_| Failed::Other)?;
+        // Only a proved LP optimum is a bound.
+        if !matches!(sol.status(), microlp::SolutionStatus::Optimal) {
+            return Err(Failed::Other);
+        }
+        Ok(Warm { sol, vars })
+    }
+
+    /// The LP's value.
+    pub fn value(&self) -> f64 {
+        self.sol.objective()
+    }
+
+    /// The LP's values of the options `sub` allows, in its order.
+    pub fn x(&self, sub: &Sub) -> Vec<Vec<f64>> {
+        sub.allowed
+            .iter()
+            .enumerate()
+            .map(|(i, ks)| {
+                ks.iter()
+                    .map(|&k| {
+                        self.vars[i][k].map_or(0.0, |v| self.sol.var_value_raw(v).clamp(0.0, 1.0))
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+
+    /// Re-solved with the options `ks` of test `i` forbidden.
+    pub fn forbid(self, i: usize, ks: &[usize]) -> Result<Warm, Failed> {
+        self.edit(i, ks, microlp::ComparisonOp::Le, 0.0)
+    }
+
+    /// Re-solved with test `i` running one of the options `ks`.
+    pub fn force(self, i: usize, ks: &[usize]) -> Result<Warm, Failed> {
+        self.edit(i, ks, microlp::ComparisonOp::Ge, 1.0)
+    }
+
+    fn edit(
+        self,
+        i: usize,
+        ks: &[usize],
+        op: microlp::ComparisonOp,
+        rhs: f64,
+    ) -> Result<Warm, Failed> {
+        let mut ex = microlp::LinearExpr::empty();
+        let mut any = false;
+        for &k in ks {
+            if let Some(v) = self.vars[i][k] {
+                ex.add(v, 1.0);
+                any = true;
+            }
+        }
+        if !any {
+            // Nothing to forbid; nothing to run on.
+            return match op {
+                microlp::ComparisonOp::Ge => Err(Failed::Infeasible),
+                _ => Ok(self),
+            };
+        }
+        let Warm { sol, vars } = self;
+        let outcome = sol.add_constraint(ex, op, rhs).map_err(warm_failed)?;
+        Warm::from_outcome(outcome, vars)
+    }
+}
+
+fn warm_failed(e: microlp::Error) -> Failed {
+    match e {
+        microlp::Error::Infeasible => Failed::Infeasible,
+        _ => Failed::Other,
+    }
+}
+
+/// What reduced-cost fixing proved of a model: a bound on its value, and
+/// the model narrowed to the options and runs that could still beat the
+/// calendar it was given.
+pub(crate) struct Fixed<'s> {
+    /// An upper bound on the model's value.
+    pub bound: f64,
+    /// The model with every option that cannot beat `floor` forbidden and
+    /// every test that must run to beat it forced; `None` when nothing can.
+    pub sub: Option<Sub<'s>>,
+}
+
+/// Reduced-cost fixing (Dantzig, Fulkerson & Johnson 1954, "Solution of a
+/// large-scale traveling-salesman problem", Operations Research 2;
+/// Nemhauser & Wolsey 1988, "Integer and Combinatorial Optimization",
+/// Wiley, on fixing variables by their reduced costs; cited from memory).
+///
+/// The prices `y >= 0` of the rows linking tests come from the dual of the
+/// LP relaxation of `sub`, solved by microlp. Whatever their accuracy,
+/// for any `y >= 0` every calendar is worth at most
+/// `L = y . b + sum over tests of max(0, best reduced value)`, where an
+/// option's reduced value is its value less `y` times its column
+/// (Lagrangian weak duality; Geoffrion 1974, as in `lagrange`). The same
+/// sum with one option chosen for its test bounds every calendar that
+/// runs it; when that is no more than `floor + tol` the option cannot
+/// beat `floor` and is forbidden. When leaving a test out is bounded so,
+/// it must run. Sound for the proof of `floor`: what is cut is worth no
+/// more than `floor` within `tol`. `None` when the dual is not solved.
+pub(crate) fn fix_by_reduced_costs<'s>(
+    inst: &Instance,
+    sub: &Sub<'s>,
+    floor: f64,
+    tol: f64,
+    seconds: f64,
+) -> Option<Fixed<'s>> {
+    let mut rows: Vec<(Terms, f64)> = Vec::new();
+    each_linking_row(inst, sub, &mut |terms, rhs, _| rows.push((terms, rhs)));
+    // The dual: min b . y + sum_t u_t, with y . A_o + u_t >= c_o per
+    // option o of test t; u_t is the price of the test's own row (x <= 1
+    // for a single option), y >= 0 and u >= 0. A forced test's row is
+    // `sum x >= 1` instead, whose price may be of either sign.
+    let mut problem = microlp::Problem::new(microlp::OptimizationDirection::Minimize);
+    let y: Vec<microlp::Variable> = rows
+        .iter()
+        .map(|(_, rhs)| problem.add_var(*rhs, (0.0, f64::INFINITY)))
+        .collect();
+    let u: Vec<microlp::Variable> = (0..sub.exps.len())
+        .map(|i| {
+            let lo = if sub.forced[i] {
+                f64::NEG_INFINITY
+            } else {
+                0.0
+            };
+            problem.add_var(1.0, (lo, f64::INFINITY))
+        })
+        .collect();
+    // Each option's column: the rows it is on.
+    let mut column: Vec<Vec<Vec<(usize, f64)>>> = sub
+        .allowed
+        .iter()
+        .map(|ks| vec![Vec::new(); ks.len()])
+        .collect();
+    for (r, (terms, _)) in rows.iter().enumerate() {
+        for &(i, j, c) in terms {
+            column[i][j].push((r, c));
+        }
+    }
+    for (i, &e) in sub.exps.iter().enumerate() {
+        for (j, &k) in sub.allowed[i].iter().enumerate() {
+            let mut ex = microlp::LinearExpr::empty();
+            for &(r, c) in &column[i][j] {
+                ex.add(y[r], c);
+            }
+            ex.add(u[i], 1.0);
+            problem.add_constraint(ex, microlp::ComparisonOp::Ge, inst.options[e][k].value);
+        }
+    }
+    let mut options = microlp::SolveOptions::default();
+    options.time_limit = Some(std::time::Duration::from_secs_f64(seconds.max(0.01)));
+    let sol = problem.solve_with(options).ok()?.into_solution().ok()?;
+    let prices: Vec<f64> = y.iter().map(|&v| sol.var_value_raw(v).max(0.0)).collect();
+    // The bound and the reduced values, from the prices alone.
+    let mut bound: f64 = prices.iter().zip(&rows).map(|(p, (_, b))| p * b).sum();
+    let reduced: Vec<Vec<f64>> = sub
+        .exps
+        .iter()
+        .enumerate()
+        .map(|(i, &e)| {
+            sub.allowed[i]
+                .iter()
+                .enumerate()
+                .map(|(j, &k)| {
+                    let used: f64 = column[i][j].iter().map(|&(r, c)| prices[r] * c).sum();
+                    inst.options[e][k].value - used
+                })
+                .collect()
+        })
+        .collect();
+    // A forced test takes its best option even when it is worth less
+    // than nothing; any other test may take none.
+    let top: Vec<f64> = reduced
+        .iter()
+        .enumerate()
+        .map(|(i, rs)| {
+            let best = rs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            if sub.forced[i] {
+                best
+            } else {
+                best.max(0.0)
+            }
+        })
+        .collect();
+    bound += top.iter().sum::<f64>();
+    if !bound.is_finite() {
+        return None;
+    }
+    let beats = |v: f64| v > floor + tol;
+    if !beats(bound) {
+        return Some(Fixed { bound, sub: None });
+    }
+    let mut narrowed = sub.clone();
+    for i in 0..sub.exps.len() {
+        let others = bound - top[i];
+        narrowed.allowed[i] = sub.allowed[i]
+            .iter()
+            .zip(&reduced[i])
+            .filter(|&(_, &r)| beats(others + r))
+            .map(|(&k, _)| k)
+            .collect();
+        if !sub.forced[i] && !beats(others) {
+            narrowed.forced[i] = true;
+        }
+        if narrowed.forced[i] && narrowed.allowed[i].is_empty() {
+            return Some(Fixed { bound, sub: None });
+        }
+    }
+    Some(Fixed {
+        bound,
+        sub: Some(narrowed),
+    })
+}

@@ -4,8 +4,11 @@
 //! calendar, then a seeded large neighbourhood search (remove the tests
 //! around a pool and span, around a left-out test's option, or a few at
 //! random, and re-insert everything that fits, best value first with a
-//! little noise) that keeps the best; then, on small components, a branch
-//! and bound over LP relaxations, and with HiGHS the exact MILP.
+//! little noise) that keeps the best; then, on small components,
+//! reduced-cost fixing from the LP's dual and a branch and bound over LP
+//! relaxations of what is left, and with HiGHS the exact MILP. A
+//! component is proved optimal only when its calendar's value meets one
+//! of those bounds (within `tol`).
 //!
 //! Every step is counted in iterations, not seconds, so the same input
 //! gives the same plan; the wall clock only cuts the search short when the
@@ -139,10 +142,9 @@ pub(crate) fn solve_component(
     adopt(inst, exps, &mut best, state);
     let mut bound = bound;
     if relaxed.is_some() && !proved(&best, inst, exps, bound) && nopt <= BNB_MAX_OPTIONS {
-        let budget = (effort as usize) * BNB_WORK / (nopt * nopt).max(1);
-        if let Some(b) = branch_and_bound(inst, exps, &mut best, backend, deadline, budget) {
-            bound = bound.min(b);
-        }
+        bound = bound.min(fix_and_branch(
+            inst, exps, &mut best, backend, deadline, effort,
+        ));
     }
     if backend.solves_milp() && !proved(&best, inst, exps, bound) && nopt <= MILP_MAX_OPTIONS {
         if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, 1) {
@@ -221,18 +223,76 @@ fn exact_milp(
 
 /// Components with at most this many options get a branch and bound.
 const BNB_MAX_OPTIONS: usize = 2500;
-/// Its node budget times the square of the component's options (about
-/// the cost of one LP solve): a deterministic work budget.
-const BNB_WORK: usize = 12_000_000;
+/// Its node budget times the square of the options left after
+/// reduced-cost fixing (about the cost of one LP solve): a deterministic
+/// work budget. 80 million closes the benchmark's medium portfolio (its
+/// 7-test component of 169 options left needs about 2,500 nodes) in under
+/// a second (DEVELOPERS.md, the 2026-12-05 bound measurements).
+const BNB_WORK: usize = 80_000_000;
+/// Components of more tests than this, whose trees grow too fast for a
+/// budget to close them (medium-keys' 30 tests, the 13- and 20-test
+/// components of large-replan), get the budget `BNB_WORK_WIDE` and a
+/// best-first search that plunges only where best-first would go next.
+const BNB_FEW_TESTS: usize = 10;
+/// The work budget of a component of more than `BNB_FEW_TESTS` tests.
+const BNB_WORK_WIDE: usize = 12_000_000;
 
-/// Depth-first branch and bound over LP relaxations: branch on the most
-/// nearly chosen fractional option (take it / forbid it), prune by the
-/// incumbent. Improves `best` in place and returns a bound on the
-/// component's value: its value when the tree is exhausted, otherwise the
-/// largest LP value of a node left open. `None` when a solve fails.
-fn branch_and_bound(
+/// Proves what it can of the component's calendar `best`: reduced-cost
+/// fixing from the LP's dual (`lp::fix_by_reduced_costs`), then a branch
+/// and bound over what could still beat `best`, within its work budget.
+/// Improves `best` in place; returns an upper bound on the component's
+/// value (infinite when neither step gave one).
+fn fix_and_branch(
     inst: &Instance,
     exps: &[usize],
+    best: &mut State,
+    backend: Backend,
+    deadline: Deadline,
+    effort: u32,
+) -> f64 {
+    let floor = comp_value(inst, exps, best);
+    let all = Sub::all(inst, exps);
+    let (mut bound, root) =
+        match lp::fix_by_reduced_costs(inst, &all, floor, tol(floor), remaining(deadline)) {
+            // Nothing can beat `best`: it is optimal.
+            Some(lp::Fixed { sub: None, .. }) => return floor,
+            Some(lp::Fixed {
+                bound,
+                sub: Some(narrowed),
+            }) => (bound, narrowed),
+            None => (f64::INFINITY, all),
+        };
+    if floor >= bound - tol(bound) {
+        return bound;
+    }
+    let left: usize = root.allowed.iter().map(Vec::len).sum();
+    let work = if exps.len() <= BNB_FEW_TESTS {
+        BNB_WORK
+    } else {
+        BNB_WORK_WIDE
+    };
+    let budget = (effort as usize) * work / (left * left).max(1);
+    if let Some(b) = branch_and_bound(inst, exps, root, best, backend, deadline, budget) {
+        bound = bound.min(b);
+    }
+    bound
+}
+
+/// Branch and bound over LP relaxations from the model `root`: branch on
+/// the test whose LP choice is most spread out (left out / run, or its
+/// options split at the LP's median), prune by the incumbent. Best-first
+/// (the open node of largest bound), except that the child explored first
+/// follows its parent at once (a plunge), so that with microlp its LP is
+/// its parent's re-solved from the last basis (`lp::Warm`): always in a
+/// component of at most `BNB_FEW_TESTS` tests, otherwise only when no
+/// open node has a larger bound. Improves
+/// `best` in place and returns a bound on the component's value: its value
+/// when the tree is exhausted, otherwise the largest LP value of a node
+/// left open. `None` when a solve fails.
+fn branch_and_bound<'s>(
+    inst: &Instance,
+    exps: &'s [usize],
+    root: Sub<'s>,
     best: &mut State,
     backend: Backend,
     deadline: Deadline,
@@ -241,11 +301,18 @@ fn branch_and_bound(
     struct Node<'s> {
         sub: Sub<'s>,
         parent: f64,
+        /// The parent's solved LP and the row that makes this node's.
+        warm: Option<(lp::Warm, Edit)>,
     }
+    // Open nodes holding a solved LP (each a copy of the simplex's state).
+    let mut held = 0usize;
+    let options: usize = root.allowed.iter().map(Vec::len).sum();
+    let most_held = (WARM_HELD_OPTIONS / options.max(1)).min(16);
     let mut incumbent = comp_value(inst, exps, best);
     let mut stack = vec![Node {
-        sub: Sub::all(inst, exps),
+        sub: root,
         parent: f64::INFINITY,
+        warm: None,
     }];
     let mut rank = vec![0usize; inst.roles.len()];
     for (r, &e) in inst.portfolio.after_order.iter().enumerate() {
@@ -265,7 +332,11 @@ fn branch_and_bound(
         }
         bi.map(|k| stack.remove(k))
     }
-    while let Some(node) = pop_best(&mut stack) {
+    // The child explored next, straight after its parent (a plunge), so
+    // its LP is re-solved from its parent's basis.
+    let mut next: Option<Node> = None;
+    while let Some(node) = next.take().or_else(|| pop_best(&mut stack)) {
+        held -= usize::from(node.warm.is_some());
         if node.parent <= incumbent + tol(incumbent) {
             continue;
         }
@@ -274,9 +345,7 @@ fn branch_and_bound(
             break;
         }
         nodes += 1;
-        let lp = lp::solve(inst, &node.sub, backend, false, remaining(deadline), None);
-        deadline.after_lp(&lp);
-        let lp = match lp {
+        let (lp, warm) = match node_lp(inst, &node.sub, node.warm, backend, deadline) {
             Ok(lp) => lp,
             Err(lp::Failed::Infeasible) => continue,
             Err(lp::Failed::Other) => return None,
@@ -331,14 +400,23 @@ fn branch_and_bound(
         let sum: f64 = xs.iter().sum();
         let (first, second) = if sum < 1.0 - 1e-6 && !node.sub.forced[i] {
             // Left out, or run.
+            let (out_warm, run_warm) = hand_on(
+                warm,
+                Edit::Forbid(i, node.sub.allowed[i].clone()),
+                Edit::Force(i),
+                &mut held,
+                most_held,
+            );
             let mut out = Node {
                 sub: node.sub.clone(),
                 parent: node_bound,
+                warm: out_warm,
             };
             out.sub.allowed[i].clear();
             let mut run = Node {
                 sub: node.sub,
                 parent: node_bound,
+                warm: run_warm,
             };
             run.sub.forced[i] = true;
             if sum >= 0.5 {
@@ -370,30 +448,122 @@ fn branch_and_bound(
             let mut hi: Vec<usize> = idx[cut..].iter().map(|&j| allowed[j]).collect();
             lo.sort_unstable();
             hi.sort_unstable();
+            let lo_first = lo_mass >= sum / 2.0;
+            let (forbid_hi, forbid_lo) = (Edit::Forbid(i, hi.clone()), Edit::Forbid(i, lo.clone()));
+            let (a_warm, b_warm) = if lo_first {
+                hand_on(warm, forbid_hi, forbid_lo, &mut held, most_held)
+            } else {
+                let (b, a) = hand_on(warm, forbid_lo, forbid_hi, &mut held, most_held);
+                (a, b)
+            };
             let mut a = Node {
                 sub: node.sub.clone(),
                 parent: node_bound,
+                warm: a_warm,
             };
             a.sub.allowed[i] = lo;
             let mut b = Node {
                 sub: node.sub,
                 parent: node_bound,
+                warm: b_warm,
             };
             b.sub.allowed[i] = hi;
-            if lo_mass >= sum / 2.0 {
+            if lo_first {
                 (a, b)
             } else {
                 (b, a)
             }
         };
         stack.push(second);
-        stack.push(first);
+        // A small tree plunges always; a wide one only where best-first
+        // would go next anyway, so its open bound falls as fast as it can.
+        let plunge = exps.len() <= BNB_FEW_TESTS
+            || first.parent
+                >= stack
+                    .iter()
+                    .map(|n| n.parent)
+                    .fold(f64::NEG_INFINITY, f64::max);
+        if first.warm.is_some() && plunge {
+            next = Some(first);
+        } else {
+            stack.push(first);
+        }
     }
     let open = stack
         .iter()
         .map(|n| n.parent)
         .fold(f64::NEG_INFINITY, f64::max);
     Some(incumbent.max(open))
+}
+
+/// The row that makes a branch and bound node's LP from its parent's:
+/// some options of one test forbidden, or one test made to run.
+enum Edit {
+    Forbid(usize, Vec<usize>),
+    Force(usize),
+}
+
+/// Most open nodes (the plunge's next one included) that keep a copy of their
+/// parent's solved LP for a warm start, times the options of the model
+/// (capped at 16 nodes); the others solve theirs from scratch. A bound on
+/// memory, since each copy is the simplex's whole state (on large-keys'
+/// 2,488-option component, 16 copies took the peak from 24 to 111 MB);
+/// counted, so the plan does not depend on it.
+const WARM_HELD_OPTIONS: usize = 3000;
+
+/// A parent's solved LP handed to a child, with the child's row.
+type Handed = (lp::Warm, Edit);
+
+/// The parent's solved LP `warm` handed to its two children, the first
+/// (explored first) with `first`'s row, the second with `second`'s, each
+/// the second only while fewer than `most` open nodes hold a copy.
+fn hand_on(
+    warm: Option<lp::Warm>,
+    first: Edit,
+    second: Edit,
+    held: &mut usize,
+    most: usize,
+) -> (Option<Handed>, Option<Handed>) {
+    let Some(w) = warm else {
+        return (None, None);
+    };
+    let copy = (*held < most).then(|| (w.clone(), second));
+    *held += 1 + usize::from(copy.is_some());
+    (Some((w, first)), copy)
+}
+
+/// The LP of a branch and bound node: its parent's solved LP with the
+/// node's one branching row added and re-solved (microlp), or else solved
+/// from scratch; with the solved LP to hand on to its children (microlp).
+fn node_lp(
+    inst: &Instance,
+    sub: &Sub,
+    warm: Option<(lp::Warm, Edit)>,
+    backend: Backend,
+    deadline: Deadline,
+) -> Result<(lp::Solved, Option<lp::Warm>), lp::Failed> {
+    let solved = match warm {
+        Some((w, Edit::Forbid(i, ks))) => w.forbid(i, &ks),
+        Some((w, Edit::Force(i))) => w.force(i, &sub.allowed[i]),
+        None if backend == Backend::Microlp => lp::Warm::root(inst, sub, remaining(deadline)),
+        None => {
+            let cold = lp::solve(inst, sub, backend, false, remaining(deadline), None);
+            deadline.after_lp(&cold);
+            return cold.map(|s| (s, None));
+        }
+    };
+    let solved = solved.map(|w| {
+        let s = lp::Solved {
+            value: w.value(),
+            x: w.x(sub),
+            optimal: true,
+        };
+        (s, Some(w))
+    });
+    if matches!(solved, Err(lp::Failed::Other)) {
+        deadline.passed();
+    }
+    solved
 }
 
 fn proved(state: &State, inst: &Instance, exps: &[usize], bound: f64) -> bool {
@@ -885,5 +1055,272 @@ mod tests {
             b.expect("the successor runs"),
         );
         assert!(a.end < b.start);
+    }
+
+    /// The best calendar of the tests `exps` by exhaustive search: each
+    /// test, in the `after` order, takes every option that fits the runs
+    /// placed before it, or none (`State::fits`, the planner's own rules),
+    /// cut only where even every later test's best option could not beat
+    /// the best found. Returns its value and choices.
+    fn exhaustive(inst: &Instance, exps: &[usize]) -> (f64, Vec<Option<usize>>) {
+        let order: Vec<usize> = inst
+            .portfolio
+            .after_order
+            .iter()
+            .copied()
+            .filter(|e| exps.contains(e))
+            .collect();
+        // The most the tests from each place on can add.
+        let mut rest = vec![0.0; order.len() + 1];
+        for d in (0..order.len()).rev() {
+            let top = inst.options[order[d]]
+                .iter()
+                .map(|o| o.value)
+                .fold(0.0, f64::max);
+            rest[d] = rest[d + 1] + top;
+        }
+        struct Search<'a, 'b> {
+            inst: &'a Instance<'b>,
+            order: Vec<usize>,
+            rest: Vec<f64>,
+            state: State,
+            best: (f64, Vec<Option<usize>>),
+        }
+        fn go(s: &mut Search, d: usize, value: f64) {
+            if value + s.rest[d] <= s.best.0 + 1e-12 {
+                return;
+            }
+            if d == s.order.len() {
+                s.best = (value, s.state.choice.clone());
+                return;
+            }
+            let e = s.order[d];
+            for k in 0..s.inst.options[e].len() {
+                let o = s.inst.options[e][k];
+                if s.state.fits(s.inst, e, &o) {
+                    s.state.add(s.inst, e, k);
+                    go(s, d + 1, value + o.value);
+                    s.state.remove(s.inst, e);
+                }
+            }
+            go(s, d + 1, value);
+        }
+        let mut s = Search {
+            inst,
+            order,
+            rest,
+            state: State::new(inst),
+            best: (-1.0, Vec::new()),
+        };
+        go(&mut s, 0, 0.0);
+        s.best
+    }
+
+    /// Small seeded portfolios: few tests on one or two pools over a few
+    /// weeks, so that every calendar can be tried; half with the calendar
+    /// keys (tests on several pools, ramps, pairs apart).
+    fn small_portfolio(seed: u64) -> crate::portfolio::Portfolio {
+        let spec = synthetic::Spec {
+            tests: 5 + (seed % 2) as usize,
+            pools: 1 + usize::from(seed.is_multiple_of(3)),
+            weeks: 6 + (seed % 3) as usize,
+            seed,
+        };
+        let p = synthetic::portfolio(&spec);
+        if seed.is_multiple_of(2) {
+            synthetic::with_calendar_keys(p, seed)
+        } else {
+            p
+        }
+    }
+
+    /// Every component's outcome against its exhaustive optimum: the bound
+    /// is never below the optimum nor below the calendar found, a calendar
+    /// stamped proved is worth the optimum, and no calendar is worth more
+    /// than it. The fixing and the branch and bound must close real gaps:
+    /// some components are proved whose LP bound lies above the optimum.
+    #[test]
+    fn proved_components_are_worth_their_exhaustive_optimum() {
+        let cut = AtomicBool::new(false);
+        let (mut proved_past_lp, mut proved, mut comps, mut branched) = (0, 0, 0, 0);
+        for seed in 0..24 {
+            let p = small_portfolio(seed);
+            let request = PlanRequest::default();
+            let inst = Instance::new(&p, &request);
+            let greedy = super::super::greedy::greedy(&inst);
+            for exps in super::super::components(&inst) {
+                let (optimum, _) = exhaustive(&inst, &exps);
+                let floor = comp_value(&inst, &exps, &greedy);
+                let relaxed = relax(&inst, &exps, request.backend, floor, far_deadline(&cut))
+                    .expect("the LP solves");
+                let mut state = greedy.clone();
+                let out = solve_component(
+                    &inst,
+                    &exps,
+                    &mut state,
+                    Some(&relaxed),
+                    request.backend,
+                    far_deadline(&cut),
+                    1,
+                );
+                let value = comp_value(&inst, &exps, &state);
+                let eps = 1e-6 * optimum.max(1.0);
+                assert!(
+                    value <= optimum + eps,
+                    "seed {seed}: {value} above {optimum}"
+                );
+                assert!(
+                    out.bound >= optimum - eps,
+                    "seed {seed}: bound {} under the optimum {optimum}",
+                    out.bound
+                );
+                assert!(out.bound >= value - eps);
+                if out.proved {
+                    assert!(
+                        value >= optimum - eps,
+                        "seed {seed}: proved {value}, optimum {optimum}"
+                    );
+                    proved += 1;
+                    if relaxed.value > optimum + 1e-4 * optimum.max(1.0) {
+                        proved_past_lp += 1;
+                    }
+                }
+                comps += 1;
+                // Fixing and branching alone, from the greedy calendar and
+                // from none: the search's optimum proves nothing for them.
+                for from in [greedy.clone(), State::new(&inst)] {
+                    let mut best = from;
+                    let bound = fix_and_branch(
+                        &inst,
+                        &exps,
+                        &mut best,
+                        request.backend,
+                        far_deadline(&cut),
+                        1,
+                    );
+                    let value = comp_value(&inst, &exps, &best);
+                    assert!(
+                        bound >= optimum - eps,
+                        "seed {seed}: bound {bound} under {optimum}"
+                    );
+                    assert!(value <= optimum + eps);
+                    if value >= bound - tol(bound) {
+                        assert!(
+                            value >= optimum - eps,
+                            "seed {seed}: {value} proved, optimum {optimum}"
+                        );
+                        branched += 1;
+                    }
+                }
+            }
+        }
+        assert!(
+            branched >= comps,
+            "{branched} of {} proved by fixing and branching",
+            2 * comps
+        );
+        assert!(comps >= 24);
+        assert!(proved * 2 >= comps, "{proved} of {comps} proved");
+        assert!(
+            proved_past_lp >= 6,
+            "{proved_past_lp} proved past their LP bound"
+        );
+    }
+
+    /// Reduced-cost fixing from a calendar worth less than the optimum
+    /// keeps the exhaustive optimum: its options stay allowed and the
+    /// tests it forces run in it; its bound is at or above the optimum;
+    /// and from the optimum itself it often proves it with no search.
+    #[test]
+    fn reduced_cost_fixing_keeps_every_better_calendar() {
+        let (mut narrowed, mut closed) = (0, 0);
+        for seed in 0..24 {
+            let p = small_portfolio(seed);
+            let request = PlanRequest::default();
+            let inst = Instance::new(&p, &request);
+            let greedy = super::super::greedy::greedy(&inst);
+            for exps in super::super::components(&inst) {
+                let (optimum, choice) = exhaustive(&inst, &exps);
+                let all = Sub::all(&inst, &exps);
+                let eps = 1e-6 * optimum.max(1.0);
+                // From the greedy calendar, and from just under the optimum.
+                for floor in [comp_value(&inst, &exps, &greedy), 0.99 * optimum] {
+                    let fixed = lp::fix_by_reduced_costs(&inst, &all, floor, tol(floor), 600.0)
+                        .expect("the dual solves");
+                    assert!(fixed.bound >= optimum - eps, "seed {seed}");
+                    if optimum <= floor + tol(floor) {
+                        continue;
+                    }
+                    let sub = fixed.sub.expect("a better calendar is left");
+                    for (i, &e) in exps.iter().enumerate() {
+                        match choice[e] {
+                            Some(k) => {
+                                assert!(sub.allowed[i].contains(&k), "seed {seed}: test {e}")
+                            }
+                            None => assert!(!sub.forced[i], "seed {seed}: test {e} forced"),
+                        }
+                    }
+                    let before: usize = all.allowed.iter().map(Vec::len).sum();
+                    let after: usize = sub.allowed.iter().map(Vec::len).sum();
+                    narrowed += usize::from(after < before);
+                }
+                let at_optimum =
+                    lp::fix_by_reduced_costs(&inst, &all, optimum, tol(optimum), 600.0)
+                        .expect("the dual solves");
+                assert!(at_optimum.bound >= optimum - eps);
+                closed += usize::from(at_optimum.sub.is_none());
+            }
+        }
+        assert!(narrowed >= 5, "{narrowed} models narrowed");
+        assert!(closed >= 1, "{closed} optima proved by fixing alone");
+    }
+
+    /// A node's LP re-solved from its parent's basis (`lp::Warm`) is worth
+    /// what the same narrowed model solved from scratch is worth.
+    #[test]
+    fn a_warm_node_lp_equals_the_same_model_solved_cold() {
+        let mut edits = 0;
+        for seed in 0..12 {
+            let p = small_portfolio(seed);
+            let request = PlanRequest::default();
+            let inst = Instance::new(&p, &request);
+            for exps in super::super::components(&inst) {
+                let mut sub = Sub::all(&inst, &exps);
+                let mut warm = lp::Warm::root(&inst, &sub, 600.0).expect("the root solves");
+                // Forbid the upper half of each test's options in turn, and
+                // make every other test run.
+                for i in 0..exps.len() {
+                    let n = sub.allowed[i].len();
+                    let next = if i % 2 == 0 && n > 1 {
+                        let cut: Vec<usize> = sub.allowed[i][n / 2..].to_vec();
+                        sub.allowed[i].truncate(n / 2);
+                        warm.forbid(i, &cut)
+                    } else {
+                        sub.forced[i] = true;
+                        warm.force(i, &sub.allowed[i])
+                    };
+                    let cold = lp::solve(&inst, &sub, request.backend, false, 600.0, None);
+                    match (next, cold) {
+                        (Ok(w), Ok(c)) => {
+                            assert!(
+                                (w.value() - c.value).abs() <= 1e-6 * c.value.abs().max(1.0),
+                                "seed {seed}: warm {} against cold {}",
+                                w.value(),
+                                c.value
+                            );
+                            edits += 1;
+                            warm = w;
+                        }
+                        (Err(lp::Failed::Infeasible), Err(lp::Failed::Infeasible)) => break,
+                        (w, c) => panic!(
+                            "seed {seed}: warm {:?} against cold {:?}",
+                            w.map(|w| w.value()).err(),
+                            c.map(|c| c.value).err()
+                        ),
+                    }
+                }
+            }
+        }
+        assert!(edits >= 20);
     }
 }
