@@ -356,12 +356,7 @@ mod tests {
     /// average choice is that option.
     #[test]
     fn tests_that_share_nothing_are_bounded_by_their_best_options() {
-        let spec = synthetic::Spec {
-            tests: 3,
-            pools: 3,
-            weeks: 13,
-            seed: 2,
-        };
+        let spec = synthetic::Spec::quarter(3, 3, 2);
         let mut p = synthetic::portfolio(&spec);
         p.blackouts.clear();
         for (i, e) in p.experiments.iter_mut().enumerate() {

@@ -110,6 +110,12 @@ pub(crate) fn solve_component(
     deadline: Deadline,
     effort: u32,
 ) -> Outcome {
+    let comp = Comp {
+        inst,
+        exps,
+        backend,
+        deadline,
+    };
     let greedy_value = comp_value(inst, exps, state);
     let trivial: f64 = exps
         .iter()
@@ -142,12 +148,10 @@ pub(crate) fn solve_component(
     adopt(inst, exps, &mut best, state);
     let mut bound = bound;
     if relaxed.is_some() && !proved(&best, inst, exps, bound) && nopt <= BNB_MAX_OPTIONS {
-        bound = bound.min(fix_and_branch(
-            inst, exps, &mut best, backend, deadline, effort,
-        ));
+        bound = bound.min(fix_and_branch(comp, &mut best, effort));
     }
     if backend.solves_milp() && !proved(&best, inst, exps, bound) && nopt <= MILP_MAX_OPTIONS {
-        if let Some((v, exact)) = exact_milp(inst, exps, &mut best, backend, deadline, 1) {
+        if let Some((v, exact)) = exact_milp(comp, &mut best, 1) {
             if exact {
                 bound = bound.min(v);
             }
@@ -178,17 +182,21 @@ const LNS_MAX_ITERS: usize = 25_000;
 /// the backend is good at it.
 const MILP_MAX_OPTIONS: usize = 8000;
 
+/// One component's proof work: the instance, the component's tests, the
+/// LP backend and the clock.
+#[derive(Clone, Copy)]
+struct Comp<'a, 'p, 'd> {
+    inst: &'a Instance<'p>,
+    exps: &'a [usize],
+    backend: Backend,
+    deadline: Deadline<'d>,
+}
+
 /// Hands the component's exact 0-1 model to the backend, warm-started from
 /// `best`, with a fair share of the time left. Adopts a better calendar;
 /// returns its value and whether the backend proved it optimal.
-fn exact_milp(
-    inst: &Instance,
-    exps: &[usize],
-    best: &mut State,
-    backend: Backend,
-    deadline: Deadline,
-    comps_left: usize,
-) -> Option<(f64, bool)> {
+fn exact_milp(c: Comp, best: &mut State, comps_left: usize) -> Option<(f64, bool)> {
+    let (inst, exps, backend, deadline) = (c.inst, c.exps, c.backend, c.deadline);
     let sub = Sub::all(inst, exps);
     let start: Vec<Option<usize>> = exps.iter().map(|&e| best.choice[e]).collect();
     let seconds = remaining(deadline) / comps_left.max(1) as f64;
@@ -242,14 +250,8 @@ const BNB_WORK_WIDE: usize = 12_000_000;
 /// and bound over what could still beat `best`, within its work budget.
 /// Improves `best` in place; returns an upper bound on the component's
 /// value (infinite when neither step gave one).
-fn fix_and_branch(
-    inst: &Instance,
-    exps: &[usize],
-    best: &mut State,
-    backend: Backend,
-    deadline: Deadline,
-    effort: u32,
-) -> f64 {
+fn fix_and_branch(c: Comp, best: &mut State, effort: u32) -> f64 {
+    let (inst, exps, deadline) = (c.inst, c.exps, c.deadline);
     let floor = comp_value(inst, exps, best);
     let all = Sub::all(inst, exps);
     let (mut bound, root) =
@@ -272,7 +274,7 @@ fn fix_and_branch(
         BNB_WORK_WIDE
     };
     let budget = (effort as usize) * work / (left * left).max(1);
-    if let Some(b) = branch_and_bound(inst, exps, root, best, backend, deadline, budget) {
+    if let Some(b) = branch_and_bound(c, root, best, budget) {
         bound = bound.min(b);
     }
     bound
@@ -290,14 +292,12 @@ fn fix_and_branch(
 /// when the tree is exhausted, otherwise the largest LP value of a node
 /// left open. `None` when a solve fails.
 fn branch_and_bound<'s>(
-    inst: &Instance,
-    exps: &'s [usize],
+    c: Comp<'s, '_, '_>,
     root: Sub<'s>,
     best: &mut State,
-    backend: Backend,
-    deadline: Deadline,
     budget: usize,
 ) -> Option<f64> {
+    let (inst, exps, backend, deadline) = (c.inst, c.exps, c.backend, c.deadline);
     struct Node<'s> {
         sub: Sub<'s>,
         parent: f64,
@@ -1024,12 +1024,7 @@ mod tests {
     /// those, since adding runs never makes room).
     #[test]
     fn fill_places_a_successor_that_comes_before_its_predecessor() {
-        let spec = synthetic::Spec {
-            tests: 2,
-            pools: 1,
-            weeks: 13,
-            seed: 4,
-        };
+        let spec = synthetic::Spec::quarter(2, 1, 4);
         let mut p = synthetic::portfolio(&spec);
         for e in &mut p.experiments {
             e.after.clear();
@@ -1134,6 +1129,23 @@ mod tests {
         }
     }
 
+    /// Calls `check(seed, instance, greedy calendar, component, optimum,
+    /// optimal choices)` for every component of the 24 small seeded
+    /// portfolios, with its exhaustive optimum.
+    fn each_small_component(
+        mut check: impl FnMut(u64, &Instance, &State, &[usize], f64, &[Option<usize>]),
+    ) {
+        for seed in 0..24 {
+            let p = small_portfolio(seed);
+            let inst = Instance::new(&p, &PlanRequest::default());
+            let greedy = super::super::greedy::greedy(&inst);
+            for exps in super::super::components(&inst) {
+                let (optimum, choice) = exhaustive(&inst, &exps);
+                check(seed, &inst, &greedy, &exps, optimum, &choice);
+            }
+        }
+    }
+
     /// Every component's outcome against its exhaustive optimum: the bound
     /// is never below the optimum nor below the calendar found, a calendar
     /// stamped proved is worth the optimum, and no calendar is worth more
@@ -1143,77 +1155,70 @@ mod tests {
     fn proved_components_are_worth_their_exhaustive_optimum() {
         let cut = AtomicBool::new(false);
         let (mut proved_past_lp, mut proved, mut comps, mut branched) = (0, 0, 0, 0);
-        for seed in 0..24 {
-            let p = small_portfolio(seed);
-            let request = PlanRequest::default();
-            let inst = Instance::new(&p, &request);
-            let greedy = super::super::greedy::greedy(&inst);
-            for exps in super::super::components(&inst) {
-                let (optimum, _) = exhaustive(&inst, &exps);
-                let floor = comp_value(&inst, &exps, &greedy);
-                let relaxed = relax(&inst, &exps, request.backend, floor, far_deadline(&cut))
-                    .expect("the LP solves");
-                let mut state = greedy.clone();
-                let out = solve_component(
-                    &inst,
-                    &exps,
-                    &mut state,
-                    Some(&relaxed),
-                    request.backend,
-                    far_deadline(&cut),
-                    1,
-                );
-                let value = comp_value(&inst, &exps, &state);
-                let eps = 1e-6 * optimum.max(1.0);
+        let request = PlanRequest::default();
+        each_small_component(|seed, inst, greedy, exps, optimum, _| {
+            let floor = comp_value(inst, exps, greedy);
+            let relaxed = relax(inst, exps, request.backend, floor, far_deadline(&cut))
+                .expect("the LP solves");
+            let mut state = greedy.clone();
+            let out = solve_component(
+                inst,
+                exps,
+                &mut state,
+                Some(&relaxed),
+                request.backend,
+                far_deadline(&cut),
+                1,
+            );
+            let value = comp_value(inst, exps, &state);
+            let eps = 1e-6 * optimum.max(1.0);
+            assert!(
+                value <= optimum + eps,
+                "seed {seed}: {value} above {optimum}"
+            );
+            assert!(
+                out.bound >= optimum - eps,
+                "seed {seed}: bound {} under the optimum {optimum}",
+                out.bound
+            );
+            assert!(out.bound >= value - eps);
+            if out.proved {
                 assert!(
-                    value <= optimum + eps,
-                    "seed {seed}: {value} above {optimum}"
+                    value >= optimum - eps,
+                    "seed {seed}: proved {value}, optimum {optimum}"
                 );
-                assert!(
-                    out.bound >= optimum - eps,
-                    "seed {seed}: bound {} under the optimum {optimum}",
-                    out.bound
-                );
-                assert!(out.bound >= value - eps);
-                if out.proved {
-                    assert!(
-                        value >= optimum - eps,
-                        "seed {seed}: proved {value}, optimum {optimum}"
-                    );
-                    proved += 1;
-                    if relaxed.value > optimum + 1e-4 * optimum.max(1.0) {
-                        proved_past_lp += 1;
-                    }
-                }
-                comps += 1;
-                // Fixing and branching alone, from the greedy calendar and
-                // from none: the search's optimum proves nothing for them.
-                for from in [greedy.clone(), State::new(&inst)] {
-                    let mut best = from;
-                    let bound = fix_and_branch(
-                        &inst,
-                        &exps,
-                        &mut best,
-                        request.backend,
-                        far_deadline(&cut),
-                        1,
-                    );
-                    let value = comp_value(&inst, &exps, &best);
-                    assert!(
-                        bound >= optimum - eps,
-                        "seed {seed}: bound {bound} under {optimum}"
-                    );
-                    assert!(value <= optimum + eps);
-                    if value >= bound - tol(bound) {
-                        assert!(
-                            value >= optimum - eps,
-                            "seed {seed}: {value} proved, optimum {optimum}"
-                        );
-                        branched += 1;
-                    }
+                proved += 1;
+                if relaxed.value > optimum + 1e-4 * optimum.max(1.0) {
+                    proved_past_lp += 1;
                 }
             }
-        }
+            comps += 1;
+            // Fixing and branching alone, from the greedy calendar and
+            // from none: the search's optimum proves nothing for them.
+            for from in [greedy.clone(), State::new(inst)] {
+                let mut best = from;
+                let comp = Comp {
+                    inst,
+                    exps,
+                    backend: request.backend,
+                    deadline: far_deadline(&cut),
+                };
+                let bound = fix_and_branch(comp, &mut best, 1);
+                let value = comp_value(inst, exps, &best);
+                assert!(
+                    bound >= optimum - eps,
+                    "seed {seed}: bound {bound} under {optimum}"
+                );
+                assert!(value <= optimum + eps);
+                if value >= bound - tol(bound) {
+                    assert!(
+                        value >= optimum - eps,
+                        "seed {seed}: {value} proved, optimum {optimum}"
+                    );
+                    branched += 1;
+                }
+            }
+        });
         assert!(
             branched >= comps,
             "{branched} of {} proved by fixing and branching",
@@ -1234,43 +1239,35 @@ mod tests {
     #[test]
     fn reduced_cost_fixing_keeps_every_better_calendar() {
         let (mut narrowed, mut closed) = (0, 0);
-        for seed in 0..24 {
-            let p = small_portfolio(seed);
-            let request = PlanRequest::default();
-            let inst = Instance::new(&p, &request);
-            let greedy = super::super::greedy::greedy(&inst);
-            for exps in super::super::components(&inst) {
-                let (optimum, choice) = exhaustive(&inst, &exps);
-                let all = Sub::all(&inst, &exps);
-                let eps = 1e-6 * optimum.max(1.0);
-                // From the greedy calendar, and from just under the optimum.
-                for floor in [comp_value(&inst, &exps, &greedy), 0.99 * optimum] {
-                    let fixed = lp::fix_by_reduced_costs(&inst, &all, floor, tol(floor), 600.0)
-                        .expect("the dual solves");
-                    assert!(fixed.bound >= optimum - eps, "seed {seed}");
-                    if optimum <= floor + tol(floor) {
-                        continue;
-                    }
-                    let sub = fixed.sub.expect("a better calendar is left");
-                    for (i, &e) in exps.iter().enumerate() {
-                        match choice[e] {
-                            Some(k) => {
-                                assert!(sub.allowed[i].contains(&k), "seed {seed}: test {e}")
-                            }
-                            None => assert!(!sub.forced[i], "seed {seed}: test {e} forced"),
-                        }
-                    }
-                    let before: usize = all.allowed.iter().map(Vec::len).sum();
-                    let after: usize = sub.allowed.iter().map(Vec::len).sum();
-                    narrowed += usize::from(after < before);
+        each_small_component(|seed, inst, greedy, exps, optimum, choice| {
+            let all = Sub::all(inst, exps);
+            let eps = 1e-6 * optimum.max(1.0);
+            // From the greedy calendar, and from just under the optimum.
+            for floor in [comp_value(inst, exps, greedy), 0.99 * optimum] {
+                let fixed = lp::fix_by_reduced_costs(inst, &all, floor, tol(floor), 600.0)
+                    .expect("the dual solves");
+                assert!(fixed.bound >= optimum - eps, "seed {seed}");
+                if optimum <= floor + tol(floor) {
+                    continue;
                 }
-                let at_optimum =
-                    lp::fix_by_reduced_costs(&inst, &all, optimum, tol(optimum), 600.0)
-                        .expect("the dual solves");
-                assert!(at_optimum.bound >= optimum - eps);
-                closed += usize::from(at_optimum.sub.is_none());
+                let sub = fixed.sub.expect("a better calendar is left");
+                for (i, &e) in exps.iter().enumerate() {
+                    match choice[e] {
+                        Some(k) => {
+                            assert!(sub.allowed[i].contains(&k), "seed {seed}: test {e}")
+                        }
+                        None => assert!(!sub.forced[i], "seed {seed}: test {e} forced"),
+                    }
+                }
+                let before: usize = all.allowed.iter().map(Vec::len).sum();
+                let after: usize = sub.allowed.iter().map(Vec::len).sum();
+                narrowed += usize::from(after < before);
             }
-        }
+            let at_optimum = lp::fix_by_reduced_costs(inst, &all, optimum, tol(optimum), 600.0)
+                .expect("the dual solves");
+            assert!(at_optimum.bound >= optimum - eps);
+            closed += usize::from(at_optimum.sub.is_none());
+        });
         assert!(narrowed >= 5, "{narrowed} models narrowed");
         assert!(closed >= 1, "{closed} optima proved by fixing alone");
     }

@@ -34,6 +34,15 @@ pub struct Spec {
 }
 
 impl Spec {
+    /// `tests` tests on `pools` pools over a quarter of 13 weeks.
+    pub fn quarter(tests: usize, pools: usize, seed: u64) -> Spec {
+        Spec {
+            tests,
+            pools,
+            weeks: 13,
+            seed,
+        }
+    }
     /// 10 tests, 2 pools, 13 weeks.
     pub fn small(seed: u64) -> Spec {
         Spec {

@@ -49,12 +49,7 @@ pub(crate) fn on_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) 
 /// byte for byte in its JSON, on one thread and on two.
 #[test]
 fn the_plan_is_the_same_bytes_on_one_thread_and_on_two() {
-    let mut several = synthetic::portfolio(&synthetic::Spec {
-        tests: 40,
-        pools: 8,
-        weeks: 13,
-        seed: 3,
-    });
+    let mut several = synthetic::portfolio(&synthetic::Spec::quarter(40, 8, 3));
     // Links only within a pool, so each pool is a component of its own.
     let pool_of: Vec<usize> = several.experiments.iter().map(|e| e.pools[0]).collect();
     for (i, e) in several.experiments.iter_mut().enumerate() {
