@@ -24,15 +24,31 @@ pub(crate) struct Layout<'a> {
 /// The problems found in one file so far; a row pushes its own.
 pub(crate) struct Problems<'a> {
     name: &'a str,
-    lines: Vec<&'a str>,
+    /// The file's text, read for a problem's line only: a problem is rare
+    /// and a counts file may hold a million rows.
+    body: &'a str,
     list: Vec<Diagnostic>,
+}
+
+/// One row of the file, its fields trimmed, `row[k]` the field of column
+/// `k`; borrowed from the reader, so no row is copied.
+pub(crate) struct Row<'r>(&'r csv::ByteRecord);
+
+impl std::ops::Index<usize> for Row<'_> {
+    type Output = str;
+
+    /// The text is UTF-8 and the csv crate splits at ASCII commas, so
+    /// every field is UTF-8 too.
+    fn index(&self, k: usize) -> &str {
+        std::str::from_utf8(&self.0[k]).unwrap_or("")
+    }
 }
 
 impl Problems<'_> {
     /// A problem at `line` (1-based) in column `field` (0-based); `key`
     /// names the column in the message's `key` line, or is empty.
     pub fn push(&mut self, line: usize, field: usize, key: &str, message: String, hint: &str) {
-        let source = self.lines.get(line.wrapping_sub(1)).copied().unwrap_or("");
+        let source = self.body.lines().nth(line.wrapping_sub(1)).unwrap_or("");
         let (column, width) = field_span(source, field);
         self.list.push(
             Diagnostic::new(self.name, key, message)
@@ -48,7 +64,7 @@ impl Problems<'_> {
 
     /// The text of the file's first line.
     pub fn first_line(&self) -> Option<&str> {
-        self.lines.first().copied()
+        self.body.lines().next()
     }
 
     /// The problems, in the order they were found.
@@ -65,13 +81,13 @@ pub(crate) fn read_rows<'a>(
     text: &'a str,
     name: &'a str,
     layout: &Layout,
-    mut row: impl FnMut(usize, &[&str], &mut Problems<'a>),
+    mut row: impl FnMut(usize, &Row, &mut Problems<'a>),
 ) -> Problems<'a> {
     let body = text.strip_prefix('\u{feff}').unwrap_or(text);
     let columns = layout.columns.join(",");
     let mut problems = Problems {
         name,
-        lines: body.lines().collect(),
+        body,
         list: Vec::new(),
     };
     let mut reader = csv::ReaderBuilder::new()
@@ -121,7 +137,7 @@ pub(crate) fn read_rows<'a>(
             Err(e) => {
                 let line = e
                     .position()
-                    .map_or(problems.lines.len().max(1), |p| p.line() as usize);
+                    .map_or_else(|| body.lines().count().max(1), |p| p.line() as usize);
                 let hint = format!("write `{columns}`");
                 problems.push(line, 0, "", format!("cannot read the row: {e}"), &hint);
                 continue;
@@ -147,7 +163,7 @@ pub(crate) fn read_rows<'a>(
             problems.push(line, 0, "", message, hint);
             continue;
         }
-        row(line, &fields, &mut problems);
+        row(line, &Row(&r), &mut problems);
     }
     problems
 }
@@ -181,7 +197,7 @@ mod tests {
     fn read(text: &str) -> (Vec<(usize, String)>, Vec<String>) {
         let mut rows = Vec::new();
         let problems = read_rows(text, "p.csv", &PAIRS, |line, r, _| {
-            rows.push((line, r.join("|")))
+            rows.push((line, format!("{}|{}", &r[0], &r[1])))
         });
         let problems = problems
             .into_vec()

@@ -63,14 +63,14 @@ pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
     // The last good date and its line.
     let mut last: Option<(NaiveDate, usize)> = None;
     let problems = read_rows(text, name, &layout, |line, r, problems| {
-        let date = match NaiveDate::parse_from_str(r[0], "%Y-%m-%d") {
+        let date = match NaiveDate::parse_from_str(&r[0], "%Y-%m-%d") {
             Ok(d) => Some(d),
             Err(_) => {
                 problems.push(
                     line,
                     0,
                     "date",
-                    format!("`{}` is not a date", r[0]),
+                    format!("`{}` is not a date", &r[0]),
                     "write dates as YYYY-MM-DD, e.g. 2026-06-01",
                 );
                 None
@@ -83,7 +83,7 @@ pub(crate) fn parse(text: &str, name: &str) -> Result<Daily, HistoryError> {
                     line,
                     1,
                     "units",
-                    format!("units `{}` is not a number >= 0", r[1]),
+                    format!("units `{}` is not a number >= 0", &r[1]),
                     "the eligible units of that day, e.g. 18250; write 0 for a day without traffic",
                 );
                 None

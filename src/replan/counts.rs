@@ -55,7 +55,7 @@ pub fn parse(
     let problems = read_rows(text, name, &layout, |line, r, problems| {
         let mut at =
             |line, field, message, hint: &str| problems.push(line, field, "", message, hint);
-        let field = |k: usize| r[k];
+        let field = |k: usize| &r[k];
         let Ok(date) = NaiveDate::parse_from_str(field(0), "%Y-%m-%d") else {
             at(
                 line,
