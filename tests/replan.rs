@@ -5,7 +5,7 @@
 //! and the edge cases: today outside the window, every test finished, a
 //! pool without traffic, a test already past its need, bad progress files.
 
-use crate::util::{cmd, demo, repo, scratch_path, sluice, stdout_of};
+use crate::util::{cmd, demo, repo, scratch_path, sluice, stdout_of, write_scratch};
 use chrono::NaiveDate;
 use serde_json::Value;
 use sluice::replan::{self, load_progress, ScaleArg};
@@ -107,9 +107,7 @@ fn progress_from(plan: &Value, today: NaiveDate) -> String {
 }
 
 fn write(name: &str, text: &str) -> String {
-    let path = scratch(name);
-    std::fs::write(&path, text).unwrap();
-    path.display().to_string()
+    write_scratch("replan", name, text)
 }
 
 /// The day-30 progress file of the scenario.

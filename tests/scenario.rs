@@ -4,7 +4,7 @@
 //! portfolio file is never written, and a bad edit is an error at its
 //! line and column with a hint.
 
-use crate::util::{cmd, demo, repo, scratch_path};
+use crate::util::{cmd, demo, repo, scratch_path, write_scratch};
 use serde_json::Value;
 use std::path::PathBuf;
 
@@ -14,9 +14,7 @@ fn scratch(name: &str) -> PathBuf {
 
 /// Writes `text` as a scenario file called `name` and returns its path.
 fn scenario(name: &str, text: &str) -> String {
-    let path = scratch(name);
-    std::fs::write(&path, text).unwrap();
-    path.display().to_string()
+    write_scratch("scenario", name, text)
 }
 
 fn quickstart() -> String {

@@ -145,6 +145,22 @@ pub fn scratch_path(area: &str, name: &str) -> PathBuf {
     dir.join(name)
 }
 
+/// Writes `text` to `name` under [`scratch_path`]`(area, ..)` and returns
+/// the path. The text goes to a temporary file that is then renamed into
+/// place, so tests that share a helper (and so a file name) never read a
+/// half-written file while another test rewrites it with the same bytes.
+pub fn write_scratch(area: &str, name: &str, text: &str) -> String {
+    use std::io::Write;
+    let path = scratch_path(area, name);
+    let mut file = tempfile::NamedTempFile::new_in(path.parent().expect("a scratch folder"))
+        .expect("a temporary scratch file");
+    file.write_all(text.as_bytes())
+        .expect("the scratch file is written");
+    file.persist(&path)
+        .expect("the scratch file is put in place");
+    path.display().to_string()
+}
+
 /// Insists that `out` succeeded; returns its stdout.
 pub fn stdout_of(out: &Output) -> String {
     assert!(
