@@ -203,20 +203,44 @@ fn exact_milp(c: Comp, best: &mut State, comps_left: usize) -> Option<(f64, bool
     let solved = lp::solve(inst, &sub, backend, true, seconds, Some(&start));
     deadline.after_lp(&solved);
     let solved = solved.ok()?;
+    let order = after_places(inst, exps);
+    let cand = place_chosen(inst, &sub, &solved.x, |x| x > 0.5, &order, best)?;
+    adopt(inst, exps, best, &cand);
+    let v = comp_value(inst, exps, &cand);
+    Some((v, solved.optimal))
+}
+
+/// The places in `exps` of the component's tests, in the portfolio's
+/// `after` order (a predecessor before its successors).
+fn after_places(inst: &Instance, exps: &[usize]) -> Vec<usize> {
+    let mut rank = vec![0usize; inst.roles.len()];
+    for (r, &e) in inst.portfolio.after_order.iter().enumerate() {
+        rank[e] = r;
+    }
+    let mut places: Vec<usize> = (0..exps.len()).collect();
+    places.sort_by_key(|&i| rank[exps[i]]);
+    places
+}
+
+/// A copy of `best` with the tests of `sub` cleared, then each test whose
+/// solution `x` (of `sub`) gives one option a weight that `chosen` accepts
+/// placed on that option, tests taken at their places `order`. `None`
+/// when one does not fit.
+fn place_chosen(
+    inst: &Instance,
+    sub: &Sub,
+    x: &[Vec<f64>],
+    chosen: impl Fn(f64) -> bool,
+    order: &[usize],
+    best: &State,
+) -> Option<State> {
     let mut cand = best.clone();
-    for &e in exps {
+    for &e in sub.exps {
         cand.remove(inst, e);
     }
-    let mut pos = vec![usize::MAX; inst.roles.len()];
-    for (i, &e) in exps.iter().enumerate() {
-        pos[e] = i;
-    }
-    for &e in &inst.portfolio.after_order {
-        let i = pos[e];
-        if i == usize::MAX {
-            continue;
-        }
-        if let Some(j) = solved.x[i].iter().position(|&x| x > 0.5) {
+    for &i in order {
+        let e = sub.exps[i];
+        if let Some(j) = x[i].iter().position(|&w| chosen(w)) {
             let k = sub.allowed[i][j];
             if !cand.fits(inst, e, &inst.options[e][k]) {
                 return None;
@@ -224,9 +248,7 @@ fn exact_milp(c: Comp, best: &mut State, comps_left: usize) -> Option<(f64, bool
             cand.add(inst, e, k);
         }
     }
-    adopt(inst, exps, best, &cand);
-    let v = comp_value(inst, exps, &cand);
-    Some((v, solved.optimal))
+    Some(cand)
 }
 
 /// Components with at most this many options get a branch and bound.
@@ -314,12 +336,7 @@ fn branch_and_bound<'s>(
         parent: f64::INFINITY,
         warm: None,
     }];
-    let mut rank = vec![0usize; inst.roles.len()];
-    for (r, &e) in inst.portfolio.after_order.iter().enumerate() {
-        rank[e] = r;
-    }
-    let mut by_rank: Vec<usize> = (0..exps.len()).collect();
-    by_rank.sort_by_key(|&i| rank[exps[i]]);
+    let by_rank = after_places(inst, exps);
     let mut nodes = 0usize;
     // Best-first: the open node with the largest bound (earliest made on
     // ties), so the proved bound falls as fast as it can.
@@ -369,23 +386,8 @@ fn branch_and_bound<'s>(
             }
         }
         // Round this node's LP into a calendar; an integral LP is exact.
-        let mut cand = best.clone();
-        for &e in exps {
-            cand.remove(inst, e);
-        }
-        let mut ok = true;
-        for &i in &by_rank {
-            let e = exps[i];
-            if let Some(j) = lp.x[i].iter().position(|&x| x >= 1.0 - 1e-6) {
-                let k = node.sub.allowed[i][j];
-                if cand.fits(inst, e, &inst.options[e][k]) {
-                    cand.add(inst, e, k);
-                } else {
-                    ok = false;
-                }
-            }
-        }
-        if ok {
+        let whole = |x: f64| x >= 1.0 - 1e-6;
+        if let Some(mut cand) = place_chosen(inst, &node.sub, &lp.x, whole, &by_rank, best) {
             fill(inst, exps, &mut cand);
             let v = comp_value(inst, exps, &cand);
             if v > incumbent + tol(incumbent) {
