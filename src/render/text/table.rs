@@ -118,6 +118,7 @@ fn table_for(
         })
         .collect();
     t.set_header(header.iter().map(Cell::new));
+    let any_marked = plan.experiments.iter().any(|e| e.eligible < 1.0);
     for e in &plan.experiments {
         let run = e.run;
         // A finished or cancelled test shows the days it ran (re-plans).
@@ -137,7 +138,15 @@ fn table_for(
                     }
                     _ => r.share.to_string(),
                 };
-                row.push(Cell::new(share).set_alignment(CellAlignment::Right));
+                // The mark of the footnote under the table on what its
+                // targeting admits; a space in its place keeps the other
+                // shares' digits aligned.
+                let mark = match (e.eligible < 1.0, any_marked) {
+                    (true, _) => "*",
+                    (false, true) => " ",
+                    (false, false) => "",
+                };
+                row.push(Cell::new(format!("{share}{mark}")).set_alignment(CellAlignment::Right));
                 row.push(Cell::new(r.start));
                 if has(Col::End) {
                     row.push(Cell::new(r.end));
@@ -157,7 +166,8 @@ fn table_for(
                 }
             }
             None => {
-                row.push(Cell::new("—").set_alignment(CellAlignment::Right));
+                let pad = if any_marked { " " } else { "" };
+                row.push(Cell::new(format!("—{pad}")).set_alignment(CellAlignment::Right));
                 // Without a status column, the status goes where the
                 // start would be.
                 let mut word = Cell::new(if has(Col::Status) { "—" } else { out_word(e) });
