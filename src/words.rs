@@ -39,6 +39,32 @@ pub fn percent(share: f64) -> String {
     }
 }
 
+/// A gap as a percentage, as [`percent`] except that a gap that is not
+/// zero never reads `0%`: under 0.05 points it keeps one significant digit
+/// (`0.03%`).
+pub fn percent_gap(share: f64) -> String {
+    let p = share * 100.0;
+    if p != 0.0 && p.abs() < 0.05 {
+        format!("{}%", significant(p, 1))
+    } else {
+        percent(share)
+    }
+}
+
+/// A relative change in percent, signed and whole (`+2%`, `-18%`); under
+/// half a percent one significant digit (`-0.4%`, `+0.03%`), so that a
+/// small change never reads `-0%`, and no change reads `0%`.
+pub fn percent_change(pct: f64) -> String {
+    if pct == 0.0 {
+        "0%".to_string()
+    } else if pct.abs() < 0.5 {
+        let sign = if pct < 0.0 { "-" } else { "+" };
+        format!("{sign}{}%", significant(pct.abs(), 1))
+    } else {
+        format!("{pct:+.0}%")
+    }
+}
+
 /// A number rounded to at most `decimals` places, without trailing zeros:
 /// `trimmed(33.0, 2)` is `33`, `trimmed(12.50, 2)` is `12.5`,
 /// `trimmed(0.1 * 70.0, 6)` is `7`. Negative zero prints as `0`.
@@ -127,6 +153,19 @@ mod tests {
         assert_eq!(units(629_759.6), "629,760");
         assert_eq!(units(f64::NAN), "?");
         assert_eq!(units(-1.0), "?");
+    }
+
+    #[test]
+    fn small_gaps_and_changes_never_read_zero() {
+        assert_eq!(percent_gap(0.000307), "0.03%");
+        assert_eq!(percent_gap(0.003), "0.3%");
+        assert_eq!(percent_gap(0.087), "8.7%");
+        assert_eq!(percent_gap(0.0), "0%");
+        assert_eq!(percent_change(-0.403), "-0.4%");
+        assert_eq!(percent_change(0.031), "+0.03%");
+        assert_eq!(percent_change(-18.37), "-18%");
+        assert_eq!(percent_change(2.0), "+2%");
+        assert_eq!(percent_change(0.0), "0%");
     }
 
     #[test]

@@ -392,7 +392,7 @@ pub fn traffic_lines(plan: &Plan) -> Vec<String> {
             let away = |d: f64| {
                 format!(
                     "{} {}",
-                    percent(d.abs()),
+                    crate::words::percent_gap(d.abs()),
                     if d < 0.0 { "below" } else { "above" }
                 )
             };

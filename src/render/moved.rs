@@ -184,8 +184,8 @@ pub fn pool_line(p: &PoolDiff) -> String {
     } else {
         let change = if b.forecast_units > 0.0 {
             format!(
-                " ({:+.0}%)",
-                (a.forecast_units / b.forecast_units - 1.0) * 100.0
+                " ({})",
+                crate::words::percent_change((a.forecast_units / b.forecast_units - 1.0) * 100.0)
             )
         } else {
             String::new()
