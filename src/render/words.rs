@@ -58,6 +58,11 @@ pub fn reason(r: &Reason) -> String {
             limits(at)
         ),
         Reason::DeadlineTooClose {
+            deadline, start, ..
+        } if start > deadline => format!(
+            "deadline {deadline} cannot be met: its earliest start, {start}, is after it"
+        ),
+        Reason::DeadlineTooClose {
             deadline,
             days,
             at,
@@ -596,5 +601,44 @@ pub fn pool_note(n: &PoolNote) -> String {
             }
             note
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use chrono::NaiveDate;
+
+    fn day(s: &str) -> NaiveDate {
+        NaiveDate::parse_from_str(s, "%Y-%m-%d").expect("a date")
+    }
+
+    /// A deadline that falls before the test's earliest start is said so,
+    /// rather than counting "0" days to it; a deadline after it counts
+    /// the days.
+    #[test]
+    fn a_deadline_before_the_earliest_start_is_named_as_such() {
+        let at = ShareOf {
+            share: crate::share::Share::WHOLE,
+            pools: vec!["basket".into()],
+            eligible: 1.0,
+            held_out: 0.0,
+        };
+        let too_close = |start: &str, left: i64| Reason::DeadlineTooClose {
+            deadline: day("2027-01-31"),
+            days: 28,
+            at: at.clone(),
+            start: day(start),
+            left,
+        };
+        assert_eq!(
+            reason(&too_close("2027-02-08", 0)),
+            "deadline 2027-01-31 cannot be met: its earliest start, 2027-02-08, is after it"
+        );
+        assert_eq!(
+            reason(&too_close("2027-01-18", 14)),
+            "deadline 2027-01-31 cannot be met: needs 28 days at 100% of `basket`; \
+             from its earliest start on 2027-01-18 to its deadline there are 14"
+        );
     }
 }
